@@ -74,6 +74,11 @@ export function chiSquareCdf(x: number, nu: number): number {
   return gammaP(nu / 2, x / 2);
 }
 
+/** χ² upper tail 1 − CDF, accurate for small tail probabilities (p-value of the global test). */
+export function chiSquareSurvival(x: number, nu: number): number {
+  return gammaQ(nu / 2, x / 2);
+}
+
 /**
  * χ² quantile: the x with P(χ²_nu ≤ x) = p. Wilson–Hilferty gives a start within a few per cent;
  * Newton steps on P(nu/2, x/2) − p (derivative = χ² density), kept inside a bisection bracket,
@@ -88,7 +93,9 @@ export function chiSquareQuantile(p: number, nu: number): number {
   const a = nu / 2;
   const z = normalQuantile(p);
   const h = 2 / (9 * nu);
-  let x = nu * Math.pow(Math.max(1 - h + z * Math.sqrt(h), 1e-3), 3);
+  const wh = 1 - h + z * Math.sqrt(h);
+  // Near zero Wilson–Hilferty fails; there P(a, x/2) ≈ (x/2)^a / Γ(a + 1) gives the start instead.
+  let x = wh > 0.2 ? nu * wh * wh * wh : 2 * Math.exp((Math.log(p) + logGamma(a + 1)) / a);
   if (!(x > 0) || !Number.isFinite(x)) x = nu;
   const upper = p > 0.5;
   const target = upper ? 1 - p : p;
@@ -104,7 +111,7 @@ export function chiSquareQuantile(p: number, nu: number): number {
     const density = Math.exp(logNorm + (a - 1) * Math.log(x) - x / 2);
     let xNew = x - fx / density;
     if (!(xNew > lo && xNew < hi) || !Number.isFinite(xNew)) xNew = Number.isFinite(hi) ? (lo + hi) / 2 : 2 * x + 1;
-    if (Math.abs(xNew - x) <= 1e-15 * Math.max(1, x)) return xNew;
+    if (Math.abs(xNew - x) <= 1e-15 * x) return xNew;
     x = xNew;
   }
   return x;
