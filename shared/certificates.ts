@@ -1,0 +1,121 @@
+import { z } from 'zod';
+
+// What a certificate shows, frozen at issue time. The PDF is rendered from this snapshot alone,
+// so a certificate can be re-rendered years later from the stored JSON.
+
+/** Our own numbering: CL-<year>-<serial, 5 digits>-r<revision>. */
+export const CERTIFICATE_NUMBER_PATTERN = /^CL-(\d{4})-(\d{5})-r(\d+)$/;
+
+export const certificateNumberSchema = z.string().regex(CERTIFICATE_NUMBER_PATTERN, 'expected CL-<year>-<5-digit serial>-r<revision>');
+
+/** Frequency ratios and nominal frequencies travel as decimal strings: float64 cannot hold 18+ digits. */
+const decimalString = z.string().regex(/^[+-]?\d+(\.\d+)?([eE][+-]?\d+)?$/, 'expected a decimal number as a string');
+
+const sha256Hex = z.string().regex(/^[0-9a-f]{64}$/, 'expected a lower-case hex SHA-256');
+
+/** A value with its expanded uncertainty; certificates state k = 2 only. */
+const expandedQuantity = z.object({
+  value: z.number(),
+  expandedUncertainty: z.number().nonnegative(),
+  coverageFactor: z.literal(2),
+});
+
+const clockSchema = z.object({
+  name: z.string().min(1),
+  institute: z.string().min(1),
+  species: z.string().min(1),
+  transition: z.string().min(1),
+  nominalFrequencyHz: decimalString,
+});
+
+export const budgetRowSchema = z.object({
+  component: z.string().min(1),
+  type: z.enum(['A', 'B']),
+  standardUncertainty: z.number().nonnegative(),
+  /** Sensitivity coefficient c_i of GUM (JCGM 100:2008) 5.1.3. */
+  sensitivity: z.number(),
+  /** |c_i|·u(x_i), in the unit of the output quantity. */
+  contribution: z.number().nonnegative(),
+  unit: z.string().min(1),
+});
+
+export const allanPointSchema = z.object({
+  tauSeconds: z.number().positive(),
+  adev: z.number().positive(),
+  low: z.number().positive(),
+  high: z.number().positive(),
+});
+
+export const certificateSnapshotSchema = z
+  .object({
+    certificateNumber: certificateNumberSchema,
+    revision: z.number().int().nonnegative(),
+    issueDate: z.iso.datetime(),
+    issuingInstitute: z.string().min(1),
+    participants: z.array(z.string().min(1)).min(1),
+    clockA: clockSchema,
+    clockB: clockSchema,
+    fibreLink: z.object({
+      name: z.string().min(1),
+      fibreLengthKm: z.number().nonnegative(),
+      geodesicDistanceKm: z.number().nonnegative(),
+    }),
+    measurementPeriod: z.object({ start: z.iso.datetime(), end: z.iso.datetime() }),
+    uptimeFraction: z.number().min(0).max(1),
+    measuredRatio: decimalString,
+    referenceRatio: z.object({ value: decimalString, source: z.string().min(1) }),
+    fractionalOffset: z.object({ y: z.number(), standardUncertainty: z.number().nonnegative() }),
+    deltaC_m2s2: expandedQuantity,
+    deltaH_m: expandedQuantity,
+    geodeticComparison: z.object({
+      deltaHGeodesy_m: expandedQuantity,
+      source: z.string().min(1),
+      En: z.number(),
+      agreed: z.boolean(),
+    }),
+    budget: z.object({
+      /** Unit of the output quantity the contributions are expressed in (e.g. m²/s²). */
+      outputUnit: z.string().min(1),
+      rows: z.array(budgetRowSchema).min(1),
+      combinedStandardUncertainty: z.number().nonnegative(),
+    }),
+    allanDeviation: z.array(allanPointSchema).min(2),
+    /** Decimated series for the thumbnail: seconds since measurement start, fractional offset y. */
+    timeSeries: z.array(z.object({ tSeconds: z.number().nonnegative(), y: z.number() })).min(2),
+    tideSystem: z.enum(['mean-tide', 'zero-tide', 'tide-free']),
+    w0Convention: z.object({ name: z.string().min(1), value_m2s2: z.number(), source: z.string().min(1) }),
+    constants: z.array(z.object({ name: z.string().min(1), value: z.string().min(1), unit: z.string(), source: z.string().min(1) })),
+    softwareVersion: z.string().min(1),
+    inputFiles: z.array(z.object({ name: z.string().min(1), sha256: sha256Hex })).min(1),
+    auditChainHead: sha256Hex,
+    method: z.object({ statement: z.string().min(1), sources: z.array(z.string().min(1)).min(1) }),
+    /** Campaign-specific cautions; the standing cautions are printed on every certificate anyway. */
+    cautions: z.array(z.string().min(1)),
+    signer: z.object({ name: z.string().min(1), role: z.string().min(1) }),
+    verificationUrl: z.url(),
+  })
+  .superRefine((s, ctx) => {
+    const m = CERTIFICATE_NUMBER_PATTERN.exec(s.certificateNumber);
+    if (m && Number(m[3]) !== s.revision) {
+      ctx.addIssue({ code: 'custom', path: ['revision'], message: `revision ${s.revision} does not match certificate number ${s.certificateNumber}` });
+    }
+    if (Date.parse(s.measurementPeriod.end) <= Date.parse(s.measurementPeriod.start)) {
+      ctx.addIssue({ code: 'custom', path: ['measurementPeriod', 'end'], message: 'end must be after start' });
+    }
+    s.allanDeviation.forEach((p, i) => {
+      if (!(p.low <= p.adev && p.adev <= p.high)) {
+        ctx.addIssue({ code: 'custom', path: ['allanDeviation', i], message: 'expected low ≤ adev ≤ high' });
+      }
+    });
+  });
+
+export type CertificateSnapshot = z.infer<typeof certificateSnapshotSchema>;
+export type CertificateBudgetRow = z.infer<typeof budgetRowSchema>;
+export type CertificateAllanPoint = z.infer<typeof allanPointSchema>;
+
+export function formatCertificateNumber(year: number, serial: number, revision: number): string {
+  if (!Number.isInteger(year) || year < 1000 || year > 9999) throw new RangeError(`year ${year} is not a 4-digit year`);
+  if (!Number.isInteger(serial) || serial < 0 || serial > 99_999) throw new RangeError(`serial ${serial} does not fit 5 digits`);
+  if (!Number.isInteger(revision) || revision < 0) throw new RangeError(`revision ${revision} must be a non-negative integer`);
+  return `CL-${year}-${String(serial).padStart(5, '0')}-r${revision}`;
+}
