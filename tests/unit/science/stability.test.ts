@@ -1,0 +1,234 @@
+import { describe, expect, it } from 'vitest';
+import {
+  frequencyToPhase,
+  gridFromEpochs,
+  meanWithStatisticalUncertainty,
+  phaseToFrequency,
+  stabilityAnalysis,
+  type StabilityPoint,
+} from '../../../server/science/stability';
+
+/** NBS/NIST 1000-point data set (NIST SP 1065 test suite; generator in references.md §3.2). */
+function nbs1000(): Float64Array {
+  const y = new Float64Array(1000);
+  let n = 1_234_567_890;
+  for (let i = 0; i < 1000; i++) {
+    y[i] = n / 2_147_483_647;
+    n = (16_807 * n) % 2_147_483_647;
+  }
+  return y;
+}
+
+/** Seeded uniform RNG (mulberry32) and Box–Muller normals: common practice for reproducible noise. */
+function gaussian(seed: number): () => number {
+  let a = seed >>> 0;
+  const uniform = (): number => {
+    a = (a + 0x6d2b79f5) >>> 0;
+    let t = a;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+  return () => Math.sqrt(-2 * Math.log(1 - uniform())) * Math.cos(2 * Math.PI * uniform());
+}
+
+function whiteFm(n: number, seed: number): Float64Array {
+  const g = gaussian(seed);
+  return Float64Array.from({ length: n }, () => g());
+}
+
+function at(points: StabilityPoint[], m: number): StabilityPoint {
+  const p = points.find((q) => q.m === m);
+  if (!p) throw new Error(`no point for m=${m}`);
+  return p;
+}
+
+function rel(actual: number | null, expected: number): number {
+  return Math.abs((actual as number) / expected - 1);
+}
+
+/**
+ * Direct SP 1065 §5.2 formulas on phase (references.md §3.4), O(N·m). Phase is accumulated straight through the gap
+ * samples (whatever they hold); a term is kept only if none of the frequency increments it spans is flagged bad.
+ */
+function bruteForce(x: Float64Array, badIncrement: Uint8Array, m: number): { oavar: number; mvar: number } {
+  const N = x.length;
+  const clean = (from: number, to: number): boolean => {
+    for (let k = from; k < to; k++) if (badIncrement[k]) return false;
+    return true;
+  };
+  let so = 0;
+  let co = 0;
+  for (let i = 0; i + 2 * m < N; i++) {
+    if (!clean(i, i + 2 * m)) continue;
+    const d = x[i + 2 * m] - 2 * x[i + m] + x[i];
+    so += d * d;
+    co++;
+  }
+  let sm = 0;
+  let cm = 0;
+  for (let j = 0; j + 3 * m <= N; j++) {
+    if (!clean(j, j + 3 * m - 1)) continue;
+    let inner = 0;
+    for (let i = j; i < j + m; i++) inner += x[i + 2 * m] - 2 * x[i + m] + x[i];
+    sm += inner * inner;
+    cm++;
+  }
+  return { oavar: so / (2 * m * m * co), mvar: sm / (2 * m ** 4 * cm) };
+}
+
+describe('stability: NIST SP 1065 test data', () => {
+  it('1000-point set: ADEV, OADEV, MDEV, TDEV at τ = 1, 10, 100 s (SP 1065 p. 107–108 via references.md §3.2)', () => {
+    const y = nbs1000();
+    expect(y[0]).toBeCloseTo(0.57489047, 8);
+    const points = stabilityAnalysis({ y, tau0Seconds: 1, ms: [1, 10, 100] });
+    const table: Record<number, { adev: number; oadev: number; mdev: number; tdev: number }> = {
+      1: { adev: 2.922319e-1, oadev: 2.922319e-1, mdev: 2.922319e-1, tdev: 1.687202e-1 },
+      10: { adev: 9.965736e-2, oadev: 9.159953e-2, mdev: 6.172376e-2, tdev: 3.563623e-1 },
+      100: { adev: 3.897804e-2, oadev: 3.241343e-2, mdev: 2.170921e-2, tdev: 1.253382 },
+    };
+    for (const m of [1, 10, 100]) {
+      const p = at(points, m);
+      const t = table[m];
+      expect(rel(p.adevNonOverlapping, t.adev)).toBeLessThan(1e-6);
+      expect(rel(p.adev, t.oadev)).toBeLessThan(1e-6);
+      expect(rel(p.mdev, t.mdev)).toBeLessThan(1e-6);
+      expect(rel(p.tdev, t.tdev)).toBeLessThan(1e-6);
+    }
+  });
+
+  it('9-point frequency set: τ = 1, 2 (references.md §3.3)', () => {
+    const y = Float64Array.from([892, 809, 823, 798, 671, 644, 883, 903, 677]);
+    const points = stabilityAnalysis({ y, tau0Seconds: 1, ms: [1, 2] });
+    expect(rel(at(points, 1).adev, 91.22945)).toBeLessThan(1e-6);
+    expect(rel(at(points, 2).adevNonOverlapping, 115.8082)).toBeLessThan(1e-6);
+    expect(rel(at(points, 2).adev, 85.95287)).toBeLessThan(1e-6);
+    expect(rel(at(points, 2).mdev, 74.78849)).toBeLessThan(1e-6);
+    expect(rel(at(points, 1).tdev, 52.67135)).toBeLessThan(1e-6);
+    expect(rel(at(points, 2).tdev, 86.35831)).toBeLessThan(1e-6);
+  });
+
+  it('the same set given as 10 phase points (published to 5 decimals) gives the same deviations', () => {
+    const x = Float64Array.from([0, 103.11111, 123.22222, 157.33333, 166.44444, 48.55555, -96.33333, -2.22222, 111.88889, 0]);
+    const points = stabilityAnalysis({ x, tau0Seconds: 1, ms: [1, 2] });
+    expect(rel(at(points, 1).adev, 91.22945)).toBeLessThan(1e-6);
+    expect(rel(at(points, 2).mdev, 74.78849)).toBeLessThan(1e-6);
+  });
+});
+
+describe('stability: white noise and noise identification', () => {
+  it('white FM: ADEV ∝ τ^−1/2 with σ_y(τ) = σ/√m (SP 1065 §5.2 / Table 3 power law)', () => {
+    const y = whiteFm(200_000, 7);
+    const points = stabilityAnalysis({ y, tau0Seconds: 2 });
+    for (const p of points.filter((q) => q.m <= 256)) {
+      expect(rel(p.adev, 1 / Math.sqrt(p.m))).toBeLessThan(0.1);
+      expect(p.tauSeconds).toBe(2 * p.m);
+      expect(p.noiseType).toBe('WFM');
+      expect(p.adevLow!).toBeLessThan(p.adev!);
+      expect(p.adevHigh!).toBeGreaterThan(p.adev!);
+    }
+    // MDEV for white FM: Mod σ²/σ² → 0.5 at large m (SP 1065 §5.2.5, R(n) = 0.5 for WFM) [from memory for the table].
+    expect(at(points, 256).mdev! / at(points, 256).adev!).toBeCloseTo(Math.SQRT1_2, 1);
+  });
+
+  it('identifies white PM and random-walk FM from the lag-1 ACF (Riley & Greenhall 2004)', () => {
+    const g = gaussian(11);
+    const wpm = Float64Array.from({ length: 20_001 }, () => g());
+    const yWpm = phaseToFrequency(wpm, 1).y;
+    const rw = new Float64Array(20_000);
+    for (let i = 1; i < rw.length; i++) rw[i] = rw[i - 1] + g();
+    const a = stabilityAnalysis({ y: yWpm, tau0Seconds: 1, ms: [1, 4, 16] });
+    const b = stabilityAnalysis({ y: rw, tau0Seconds: 1, ms: [1, 4, 16] });
+    for (const p of a) expect(p.noiseType).toBe('WPM');
+    for (const p of b) expect(p.noiseType).toBe('RWFM');
+  });
+
+  it('±1σ confidence intervals from the WFM EDF cover the true ADEV about 68 % of the time (SP 1065 §5.3)', () => {
+    let covered = 0;
+    const trials = 300;
+    for (let t = 0; t < trials; t++) {
+      const p = stabilityAnalysis({ y: whiteFm(1000, 1000 + t), tau0Seconds: 1, ms: [8] })[0];
+      const truth = 1 / Math.sqrt(8);
+      if (p.adevLow! <= truth && truth <= p.adevHigh!) covered++;
+    }
+    expect(covered / trials).toBeGreaterThan(0.6);
+    expect(covered / trials).toBeLessThan(0.77);
+  });
+});
+
+describe('stability: gaps and dead time', () => {
+  it('matches the direct SP 1065 formulas with every term spanning a gap skipped, whatever the gap holds', () => {
+    const y = whiteFm(3000, 3);
+    const valid = new Uint8Array(3000).fill(1);
+    for (let i = 1000; i < 1100; i++) valid[i] = 0;
+    valid[2500] = 0;
+    const garbage = Float64Array.from(y);
+    for (let i = 0; i < 3000; i++) if (!valid[i]) garbage[i] = 1e3; // far off, but small enough to keep the brute force's phase well conditioned
+    expect(Number.isNaN(frequencyToPhase(garbage, 1, valid)[1001])).toBe(true);
+    const x = frequencyToPhase(garbage, 1);
+    const badIncrement = valid.map((v) => 1 - v);
+    const points = stabilityAnalysis({ y: garbage, tau0Seconds: 1, valid, ms: [1, 3, 16, 50] });
+    for (const p of points) {
+      const direct = bruteForce(x, badIncrement, p.m);
+      expect(rel(p.adev, Math.sqrt(direct.oavar))).toBeLessThan(1e-9);
+      expect(rel(p.mdev, Math.sqrt(direct.mvar))).toBeLessThan(1e-9);
+      // Terms touching the gap are skipped: 3000 − 2m + 1 windows minus those overlapping 100 + 1 bad samples.
+      const expectedTerms = 3000 - 2 * p.m + 1 - (100 + 2 * p.m - 1) - (1 + 2 * p.m - 1);
+      expect(p.n).toBe(expectedTerms);
+    }
+  });
+
+  it('places time-stamped samples on a grid; missing epochs become gaps', () => {
+    const tau0 = 1;
+    const start = 60_000.5;
+    const epochs: number[] = [];
+    const values: number[] = [];
+    for (let i = 0; i < 20; i++) {
+      if (i === 5 || i === 6) continue; // dead time
+      epochs.push(start + (i * tau0) / 86_400);
+      values.push(i);
+    }
+    const valid = new Uint8Array(values.length).fill(1);
+    valid[10] = 0;
+    const grid = gridFromEpochs(Float64Array.from(epochs), Float64Array.from(values), valid);
+    expect(grid.tau0Seconds).toBeCloseTo(1, 6);
+    expect(grid.y.length).toBe(20);
+    expect(grid.missingEpochs).toBe(2);
+    expect(grid.invalidSamples).toBe(1);
+    expect(Array.from(grid.valid.slice(4, 8))).toEqual([1, 0, 0, 1]);
+    expect(grid.valid[12]).toBe(0);
+    expect(() => gridFromEpochs(Float64Array.from([start, start]), Float64Array.from([1, 2]), undefined, 1)).toThrow();
+  });
+
+  it('phase and frequency conversions round-trip on unbroken data (SP 1065 §3.4: x_{i+1} = x_i + y_i τ0)', () => {
+    const y = whiteFm(100, 5);
+    const back = phaseToFrequency(frequencyToPhase(y, 0.5), 0.5);
+    for (let i = 0; i < y.length; i++) expect(back.y[i]).toBeCloseTo(y[i], 12);
+    expect(back.valid.every((v) => v === 1)).toBe(true);
+  });
+});
+
+describe('mean with statistical uncertainty', () => {
+  it('white FM: the uncertainty of the mean is σ/√N (common practice: standard error of a white-noise mean)', () => {
+    const N = 50_000;
+    const y = whiteFm(N, 21).map((v) => 3e-16 + 1e-15 * v);
+    const result = meanWithStatisticalUncertainty({ y, tau0Seconds: 1 });
+    const expected = 1e-15 / Math.sqrt(N);
+    expect(result.statisticalUncertainty! / expected).toBeGreaterThan(0.7);
+    expect(result.statisticalUncertainty! / expected).toBeLessThan(1.3);
+    let sum = 0;
+    for (const v of y) sum += v;
+    expect(result.mean).toBeCloseTo(sum / N, 30);
+    expect(Math.abs(result.mean - 3e-16)).toBeLessThan(4 * expected);
+    expect(result.method).toContain('white-FM extrapolation');
+  });
+
+  it('skips invalid samples and uses the valid time only', () => {
+    const y = Float64Array.from([1, 2, 3, 1000, 5, 6, 7, 8, 9, 10, 11, 12]);
+    const valid = Uint8Array.from([1, 1, 1, 0, 1, 1, 1, 1, 1, 1, 1, 1]);
+    const r = meanWithStatisticalUncertainty({ y, tau0Seconds: 10, valid });
+    expect(r.mean).toBeCloseTo(74 / 11, 12);
+    expect(r.totalAveragingTimeSeconds).toBe(110);
+    expect(r.validSamples).toBe(11);
+  });
+});
