@@ -118,6 +118,8 @@ export async function verifySignedPdf(pdf: Buffer, pinnedCertificatePem: string)
   const cmsBytes = Buffer.from(pdf.subarray(b + 1, c - 1).toString('latin1'), 'hex');
   const asn = asn1js.fromBER(toArrayBuffer(cmsBytes));
   if (asn.offset === -1) return withDigest('signature is not valid DER/BER');
+  // The placeholder is zero-padded; anything else after the CMS blob is not ours.
+  if (cmsBytes.subarray(asn.offset).some((byte) => byte !== 0)) return withDigest('data after the CMS signature in /Contents');
   let signedData: pkijs.SignedData;
   try {
     const contentInfo = new pkijs.ContentInfo({ schema: asn.result });
