@@ -1,0 +1,76 @@
+// `npm start`: everything needed to run Chronolevel on one machine, with an embedded default set-up.
+// Installs missing npm packages and Debian's PostgreSQL, starts PostgreSQL on loopback with data in .data/pg,
+// builds the client when its sources changed, then runs the server (migrations + demo seed happen there).
+import { spawn, spawnSync } from 'node:child_process';
+import fs from 'node:fs';
+import path from 'node:path';
+import { ensureNodeModules } from './lib/setup.mjs';
+
+const say = (m) => console.log(`[chronolevel] ${m}`);
+process.chdir(path.dirname(path.dirname(new URL(import.meta.url).pathname)));
+
+ensureNodeModules(say);
+const { startCluster } = await import('./lib/postgres.mjs');
+
+const port = Number(process.env.PORT ?? 8080);
+const env = { ...process.env, PORT: String(port), NODE_ENV: process.env.NODE_ENV ?? 'production' };
+let cluster = null;
+if (!env.DATABASE_URL) {
+  const pgPort = Number(process.env.PGPORT_LOCAL ?? 55432);
+  cluster = await startCluster({ dataDir: path.resolve('.data/pg'), port: pgPort, database: 'chronolevel', log: say });
+  env.DATABASE_URL = cluster.url;
+  say(`PostgreSQL running on 127.0.0.1:${pgPort} (data in .data/pg)`);
+} else {
+  say('Using the database in DATABASE_URL');
+}
+
+function newestMtime(dir) {
+  let newest = 0;
+  for (const e of fs.readdirSync(dir, { withFileTypes: true })) {
+    const p = path.join(dir, e.name);
+    newest = Math.max(newest, e.isDirectory() ? newestMtime(p) : fs.statSync(p).mtimeMs);
+  }
+  return newest;
+}
+const builtIndex = 'dist/client/index.html';
+const sources = Math.max(newestMtime('src'), newestMtime('shared'), fs.statSync('index.html').mtimeMs, fs.statSync('vite.config.ts').mtimeMs);
+if (!fs.existsSync(builtIndex) || fs.statSync(builtIndex).mtimeMs < sources) {
+  say('Building the client (vite build)…');
+  const r = spawnSync('npx', ['vite', 'build', '--logLevel', 'warn'], { stdio: 'inherit', env });
+  if (r.status !== 0) {
+    cluster?.stop();
+    process.exit(1);
+  }
+}
+
+const server = spawn(process.execPath, ['--import', 'tsx', 'server/index.ts'], { stdio: ['inherit', 'inherit', 'inherit', 'ipc'], env });
+server.on('message', (m) => {
+  if (m && m.ready) {
+    console.log(`
+  Chronolevel is running: open ${m.url}
+  Sign in with "Sign in" → the local identity provider lists the invented demo people:
+    Lab staff (operator):   ines.varga@saltmarsh-lab.invalid, mira.ostrowe@highridge-obs.invalid
+    Coordinator:            ansel.brandt@geopotential-office.invalid
+    Auditor:                petra.lind@audit-bureau.invalid
+    Administrator:          yusra.holm@geopotential-office.invalid
+  API documentation: ${m.url}/api/v1/openapi.json    Mail catcher: ${env.MAILBOX_URL ?? 'http://127.0.0.1:8181'}/messages
+  Press Ctrl-C to stop everything started here.
+`);
+  }
+});
+let stopping = false;
+const stop = (signal) => {
+  if (stopping) return;
+  stopping = true;
+  say(`stopping (${signal})…`);
+  server.kill('SIGTERM');
+};
+process.on('SIGINT', () => stop('SIGINT'));
+process.on('SIGTERM', () => stop('SIGTERM'));
+server.on('exit', (code) => {
+  if (cluster) {
+    say('stopping PostgreSQL');
+    cluster.stop();
+  }
+  process.exit(code ?? 0);
+});

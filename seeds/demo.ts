@@ -1,0 +1,42 @@
+import type { DataSource, EntityManager } from 'typeorm';
+import { recordAudit } from '../server/audit/audit.service';
+import { InstituteEntity, UserEntity } from '../server/db/entities/core.entities';
+import { demoInstitutes, demoPeople } from './people';
+
+// Loads the invented demo scenario into an empty database. Every name, place and number here is made up.
+// Feature seeders run after the people, in order; each receives the transaction and the institutes by code.
+export type SeedContext = { manager: EntityManager; instituteIds: Record<string, string>; userIds: Record<string, string> };
+export type Seeder = { name: string; run: (ctx: SeedContext) => Promise<void> };
+
+export const featureSeeders: Seeder[] = [];
+
+export async function isSeeded(ds: DataSource): Promise<boolean> {
+  return (await ds.getRepository(InstituteEntity).count()) > 0;
+}
+
+export async function seedDemo(ds: DataSource, log: (msg: string) => void = () => {}): Promise<boolean> {
+  if (await isSeeded(ds)) return false;
+  await ds.transaction(async (manager) => {
+    const instituteIds: Record<string, string> = {};
+    for (const i of demoInstitutes) {
+      const row = await manager.getRepository(InstituteEntity).save({ ...i });
+      instituteIds[i.code] = row.id;
+    }
+    const userIds: Record<string, string> = {};
+    for (const p of demoPeople) {
+      const row = await manager.getRepository(UserEntity).save({
+        email: p.email,
+        displayName: p.displayName,
+        role: p.role,
+        instituteId: p.instituteCode ? instituteIds[p.instituteCode] : null,
+      });
+      userIds[p.email] = row.id;
+    }
+    await recordAudit(manager, null, { action: 'demo.seeded', entityType: 'database', details: { scenario: 'invented demo scenario' } });
+    for (const s of featureSeeders) {
+      log(`seeding ${s.name}`);
+      await s.run({ manager, instituteIds, userIds });
+    }
+  });
+  return true;
+}

@@ -1,0 +1,122 @@
+import crypto from 'node:crypto';
+import fs from 'node:fs';
+import path from 'node:path';
+import connectPgSimple from 'connect-pg-simple';
+import express, { type NextFunction, type Request, type Response } from 'express';
+import session from 'express-session';
+import helmet from 'helmet';
+import passport from 'passport';
+import { pinoHttp } from 'pino-http';
+import pg from 'pg';
+import { createAuthRouter } from './auth/auth.router';
+import { csrfGuard } from './auth/csrf';
+import { createSamlStrategy } from './auth/saml';
+import type { AppDeps } from './deps';
+import { NotFound } from './http/errors';
+import { buildOpenApi } from './http/openapi';
+import { problemHandler } from './http/problem';
+import { mountRoutes } from './http/route';
+import { apiRoutes } from './routes';
+import { actorFromToken } from './tokens/tokens.service';
+import { findActorByUserId } from './users/users.service';
+
+/** Builds the Express app without listening; the server process and the tests both use it. */
+export function createApp(deps: AppDeps) {
+  const { config, dataSource, logger } = deps;
+  const app = express();
+  app.disable('x-powered-by');
+  if (config.trustProxy) app.set('trust proxy', 1);
+
+  app.use(
+    pinoHttp({
+      logger,
+      genReqId: (req, res) => {
+        const id = crypto.randomUUID();
+        res.setHeader('x-request-id', id);
+        return id;
+      },
+      autoLogging: { ignore: (req) => req.url === '/api/health' },
+    }),
+  );
+  app.use(
+    helmet({
+      contentSecurityPolicy: {
+        directives: {
+          'default-src': ["'self'"],
+          'img-src': ["'self'", 'data:', 'blob:'],
+          'style-src': ["'self'", "'unsafe-inline'"],
+          'form-action': ["'self'", config.idpUrl],
+          'upgrade-insecure-requests': null,
+        },
+      },
+    }),
+  );
+
+  const pool = new pg.Pool({ connectionString: config.databaseUrl, max: 5 });
+  const PgStore = connectPgSimple(session);
+  app.use(
+    session({
+      name: 'chronolevel.sid',
+      store: new PgStore({ pool, tableName: 'session', createTableIfMissing: false, pruneSessionInterval: 15 * 60 }),
+      secret: config.sessionSecret,
+      resave: false,
+      saveUninitialized: false,
+      rolling: true,
+      proxy: config.trustProxy,
+      cookie: {
+        httpOnly: true,
+        sameSite: 'lax',
+        secure: config.publicUrl.startsWith('https://'),
+        maxAge: 12 * 60 * 60 * 1000,
+      },
+    }),
+  );
+  app.locals.closeSessionPool = () => pool.end();
+
+  const strategy = createSamlStrategy(config, dataSource);
+  passport.use('saml', strategy as unknown as passport.Strategy);
+  passport.serializeUser((user, done) => done(null, (user as { id: string }).id));
+  passport.deserializeUser((id: string, done) => done(null, { id }));
+  app.use(passport.initialize());
+  app.use(passport.session());
+
+  // Resolve the caller once: API token first (scripts), then the browser session.
+  app.use(async (req: Request, _res: Response, next: NextFunction) => {
+    try {
+      const auth = req.headers.authorization;
+      if (auth?.startsWith('Bearer ')) {
+        req.actor = await actorFromToken(dataSource, auth.slice(7).trim());
+      } else if (req.user && (req.user as { id?: string }).id) {
+        req.actor = await findActorByUserId(dataSource, (req.user as { id: string }).id);
+      } else {
+        req.actor = null;
+      }
+      next();
+    } catch (e) {
+      next(e);
+    }
+  });
+
+  app.use('/auth/logout', csrfGuard);
+  app.use(createAuthRouter(strategy));
+
+  const api = express.Router();
+  api.use(express.json({ limit: '20mb' }));
+  api.use(csrfGuard);
+  mountRoutes(api, apiRoutes, deps);
+  app.get('/api/v1/openapi.json', (_req, res) => {
+    res.json(buildOpenApi(apiRoutes, config.publicUrl));
+  });
+  app.use(api);
+  app.use(['/api', '/auth'], (_req: Request, _res: Response, next: NextFunction) => next(new NotFound('Route')));
+
+  // The built client (Vite) with history-API fallback.
+  const clientDir = path.resolve('dist/client');
+  if (fs.existsSync(path.join(clientDir, 'index.html'))) {
+    app.use(express.static(clientDir, { index: false, maxAge: '1h' }));
+    app.get(/^\/(?!api\/|auth\/).*/, (_req, res) => res.sendFile(path.join(clientDir, 'index.html')));
+  }
+
+  app.use(problemHandler(logger));
+  return app;
+}

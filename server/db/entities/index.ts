@@ -1,0 +1,4 @@
+import { ApiTokenEntity, AuditEventEntity, InstituteEntity, MailOutboxEntity, UserEntity } from './core.entities';
+
+// Every entity the data source knows. Feature entities are added here.
+export const entities = [InstituteEntity, UserEntity, ApiTokenEntity, AuditEventEntity, MailOutboxEntity];

@@ -1,0 +1,28 @@
+import type { DataSource } from 'typeorm';
+import type { CreateInstitute } from '../../shared/auth';
+import { recordAudit } from '../audit/audit.service';
+import type { Actor } from '../auth/actor';
+import { authorize } from '../auth/permissions';
+import { InstituteEntity } from '../db/entities/core.entities';
+import { Conflict } from '../http/errors';
+import { toInstituteDto } from '../users/users.service';
+
+export function createInstitutesService(dataSource: DataSource) {
+  return {
+    async list(actor: Actor) {
+      authorize(actor, 'institutes:read');
+      const rows = await dataSource.getRepository(InstituteEntity).find({ order: { code: 'ASC' } });
+      return rows.map((r) => toInstituteDto(r)!);
+    },
+    async create(actor: Actor, input: CreateInstitute) {
+      authorize(actor, 'institutes:write');
+      return dataSource.transaction(async (m) => {
+        const repo = m.getRepository(InstituteEntity);
+        if (await repo.findOneBy({ code: input.code })) throw new Conflict(`An institute with code ${input.code} exists.`);
+        const row = await repo.save(repo.create(input));
+        await recordAudit(m, actor, { action: 'institute.created', entityType: 'institute', entityId: row.id, details: { ...input } });
+        return toInstituteDto(row)!;
+      });
+    },
+  };
+}

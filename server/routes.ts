@@ -1,0 +1,7 @@
+import type { RouteSpec } from './http/route';
+import { healthRoutes } from './health/health.routes';
+import { foundationRoutes } from './me/me.routes';
+
+// Every API route of the product, in one list: Express, OpenAPI and the access tests read it.
+// Feature folders export their own arrays; add them here.
+export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes];

@@ -1,0 +1,32 @@
+import { z } from 'zod';
+
+/** RFC 9457 problem details as the API sends them. */
+export const problemSchema = z.object({
+  type: z.string(),
+  title: z.string(),
+  status: z.number(),
+  detail: z.string(),
+  instance: z.string().optional(),
+  code: z.string(),
+  requestId: z.string().optional(),
+  issues: z
+    .array(z.object({ path: z.string(), message: z.string(), line: z.number().optional(), column: z.string().optional() }))
+    .optional(),
+}).passthrough();
+export type Problem = z.infer<typeof problemSchema>;
+
+export const pageQuerySchema = z.object({
+  page: z.coerce.number().int().min(1).default(1),
+  pageSize: z.coerce.number().int().min(1).max(500).default(25),
+  sort: z.string().max(60).optional(),
+  order: z.enum(['asc', 'desc']).default('asc'),
+  q: z.string().max(200).optional(),
+});
+export type PageQuery = z.infer<typeof pageQuerySchema>;
+
+export function pageOf<T extends z.ZodTypeAny>(item: T) {
+  return z.object({ items: z.array(item), total: z.number().int(), page: z.number().int(), pageSize: z.number().int() });
+}
+export type Page<T> = { items: T[]; total: number; page: number; pageSize: number };
+
+export const idParamsSchema = z.object({ id: z.string().uuid() });

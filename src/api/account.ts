@@ -1,0 +1,74 @@
+import { queryOptions, useMutation, useQuery, useQueryClient } from '@tanstack/react-query';
+import type { ApiToken, Institute, Me, User } from '../../shared/auth';
+import type { Page } from '../../shared/http';
+import { api, ApiError, setCsrfToken } from '../lib/api-client';
+
+export const accountKeys = {
+  all: ['account'] as const,
+  me: () => [...accountKeys.all, 'me'] as const,
+  tokens: () => [...accountKeys.all, 'tokens'] as const,
+};
+export const adminKeys = {
+  all: ['admin'] as const,
+  institutes: () => [...adminKeys.all, 'institutes'] as const,
+  users: (params: object) => [...adminKeys.all, 'users', params] as const,
+  mailbox: () => [...adminKeys.all, 'mailbox'] as const,
+};
+
+export const meQuery = queryOptions({
+  queryKey: accountKeys.me(),
+  queryFn: async (): Promise<Me | null> => {
+    try {
+      const me = await api<Me>('/api/v1/me');
+      setCsrfToken(me.csrfToken);
+      return me;
+    } catch (e) {
+      if (e instanceof ApiError && e.status === 401) return null;
+      throw e;
+    }
+  },
+  staleTime: 60_000,
+});
+export const useMe = () => useQuery(meQuery);
+
+export function useSignOut() {
+  const qc = useQueryClient();
+  return useMutation({
+    mutationFn: () => api<void>('/auth/logout', { method: 'POST' }),
+    onSuccess: () => {
+      setCsrfToken(null);
+      qc.clear();
+      window.location.assign('/');
+    },
+  });
+}
+
+export const useTokens = () => useQuery({ queryKey: accountKeys.tokens(), queryFn: () => api<ApiToken[]>('/api/v1/me/tokens') });
+export function useCreateToken() {
+  const qc = useQueryClient();
+  return useMutation({
+    mutationFn: (name: string) => api<{ token: ApiToken; secret: string }>('/api/v1/me/tokens', { body: { name } }),
+    onSuccess: () => qc.invalidateQueries({ queryKey: accountKeys.tokens() }),
+  });
+}
+export function useRevokeToken() {
+  const qc = useQueryClient();
+  return useMutation({
+    mutationFn: (id: string) => api<void>(`/api/v1/me/tokens/${id}`, { method: 'DELETE' }),
+    onSuccess: () => qc.invalidateQueries({ queryKey: accountKeys.tokens() }),
+  });
+}
+
+export const useInstitutes = () => useQuery({ queryKey: adminKeys.institutes(), queryFn: () => api<Institute[]>('/api/v1/institutes') });
+export const useUsers = (params: { page: number; pageSize: number; sort?: string; order?: string; q?: string }) =>
+  useQuery({
+    queryKey: adminKeys.users(params),
+    queryFn: () => api<Page<User>>(`/api/v1/users?${new URLSearchParams(Object.entries(params).filter(([, v]) => v !== undefined && v !== '').map(([k, v]) => [k, String(v)]))}`),
+    placeholderData: (prev) => prev,
+  });
+export const useMailbox = () =>
+  useQuery({
+    queryKey: adminKeys.mailbox(),
+    queryFn: () => api<{ id: number; receivedAt: string; from: string; to: string[]; subject: string; text: string }[]>('/api/v1/dev/mailbox'),
+    refetchInterval: 5000,
+  });

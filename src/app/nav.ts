@@ -1,0 +1,12 @@
+import type { Role } from '../../shared/auth';
+
+/** Navigation entries and which roles see them. Features add their own entries here. */
+export type NavItem = { to: string; label: string; roles: readonly Role[]; group: 'work' | 'tools' | 'admin' };
+
+const all: readonly Role[] = ['operator', 'coordinator', 'auditor', 'admin'];
+export const navItems: NavItem[] = [
+  { to: '/', label: 'Overview', roles: all, group: 'work' },
+  { to: '/admin', label: 'Institutes and people', roles: ['admin'], group: 'admin' },
+  { to: '/admin/mailbox', label: 'Mail catcher', roles: ['admin'], group: 'admin' },
+  { to: '/account/tokens', label: 'My API tokens', roles: all, group: 'tools' },
+];

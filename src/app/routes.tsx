@@ -1,0 +1,15 @@
+import type { RouteObject } from 'react-router';
+import { TokensPage } from '../pages/account/tokens-page';
+import { AdminPage } from '../pages/admin/admin-page';
+import { MailboxPage } from '../pages/admin/mailbox-page';
+import { HomePage } from '../pages/home-page';
+import { NotFoundPage } from '../pages/not-found-page';
+
+/** Client routes; features add theirs here (and a nav entry in nav.ts). */
+export const featureRoutes: RouteObject[] = [
+  { index: true, element: <HomePage /> },
+  { path: 'admin', element: <AdminPage /> },
+  { path: 'admin/mailbox', element: <MailboxPage /> },
+  { path: 'account/tokens', element: <TokensPage /> },
+  { path: '*', element: <NotFoundPage /> },
+];

@@ -1,0 +1,19 @@
+import { useMailbox } from '../../api/account';
+import { EmptyState, Panel } from '../../components/ui';
+
+export function MailboxPage() {
+  const mail = useMailbox();
+  return (
+    <>
+      <h1>Mail catcher</h1>
+      <p className="text-sm text-ink-500">Messages Chronolevel sent through the local mail catcher of this development set-up. Nothing leaves the machine.</p>
+      {mail.data?.length === 0 && <EmptyState title="No messages yet" />}
+      {mail.data?.map((m) => (
+        <Panel key={m.id} title={m.subject}>
+          <p className="text-xs text-ink-500">to {m.to.join(', ')} · {m.receivedAt}</p>
+          <pre className="mt-2 whitespace-pre-wrap text-sm">{m.text}</pre>
+        </Panel>
+      ))}
+    </>
+  );
+}

@@ -1,0 +1,45 @@
+import type { Server } from 'node:http';
+import { chromium, type Browser, type Page } from 'playwright-core';
+// @ts-expect-error plain ESM helper shared with `npm start`
+import { freePort } from '../../scripts/lib/postgres.mjs';
+import { createTestApp, type TestApp } from './test-app';
+
+// Browser tests: the real app on a loopback port, driven by Debian's Chromium through playwright-core.
+export const chromiumArgs = ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run',
+  '--disable-background-networking', '--disable-component-update', '--disable-sync'];
+
+export async function launchBrowser(): Promise<Browser> {
+  return chromium.launch({ executablePath: '/usr/bin/chromium', args: chromiumArgs, headless: true });
+}
+
+export type E2eServer = TestApp & { baseUrl: string; server: Server; stop: () => Promise<void> };
+
+export async function startE2eServer(): Promise<E2eServer> {
+  const port: number = await freePort();
+  const baseUrl = `http://127.0.0.1:${port}`;
+  const t = await createTestApp({ env: { PUBLIC_URL: baseUrl, PORT: String(port) } });
+  t.deps.mail.start(500);
+  const server: Server = await new Promise((resolve) => {
+    const s = t.app.listen(port, '127.0.0.1', () => resolve(s));
+  });
+  return {
+    ...t, baseUrl, server,
+    stop: async () => {
+      await new Promise<void>((r) => server.close(() => r()));
+      await t.close();
+    },
+  };
+}
+
+/** Signs in as a demo person through the local identity provider's page, as a person would. */
+export async function signInWithBrowser(page: Page, baseUrl: string, email: string, path = '/') {
+  await page.goto(`${baseUrl}${path}`);
+  await page.getByRole('link', { name: 'Sign in with your institute' }).click();
+  await page.locator(`button[data-email="${email}"]`).click();
+  await page.waitForURL((u) => u.origin === baseUrl);
+  await page.getByTestId('whoami').waitFor();
+}
+
+export async function screenshot(page: Page, name: string) {
+  await page.screenshot({ path: `test-results/${name}.png`, fullPage: true });
+}

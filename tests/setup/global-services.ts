@@ -1,0 +1,63 @@
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import type { TestProject } from 'vitest/node';
+// @ts-expect-error plain ESM helper shared with `npm start`
+import { freePort, startCluster } from '../../scripts/lib/postgres.mjs';
+import { openDatabase } from '../../server/db/data-source';
+import { startFakeIdp } from '../../server/dev/fake-idp';
+import { startFakeSmtp } from '../../server/dev/fake-smtp';
+
+// Once per test run: a private PostgreSQL in a temporary folder with a migrated template database,
+// the local identity provider and the mail catcher, all on free loopback ports.
+declare module 'vitest' {
+  export interface ProvidedContext {
+    pgAdminUrl: string;
+    templateDb: string;
+    idpUrl: string;
+    idpCertFile: string;
+    secretsDir: string;
+    smtpUrl: string;
+    mailboxUrl: string;
+  }
+}
+
+export default async function setup(project: TestProject) {
+  const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'chronolevel-test-'));
+  const secretsDir = path.join(tmp, 'secrets');
+  let pgUrl = process.env.TEST_DATABASE_ADMIN_URL;
+  let stopPg = () => {};
+  if (!pgUrl) {
+    const port = await freePort();
+    process.env.PG_FSYNC = 'off';
+    const cluster = await startCluster({ dataDir: path.join(tmp, 'pg'), port, database: 'postgres', log: () => {} });
+    pgUrl = cluster.url;
+    stopPg = cluster.stop;
+  }
+  const admin = await openDatabase(pgUrl!, { migrate: false });
+  const templateDb = `chronolevel_template_${process.pid}`;
+  await admin.query(`DROP DATABASE IF EXISTS ${templateDb}`);
+  await admin.query(`CREATE DATABASE ${templateDb}`);
+  const templateUrl = pgUrl!.replace(/\/[^/]*$/, `/${templateDb}`);
+  const tpl = await openDatabase(templateUrl);
+  await tpl.destroy();
+  await admin.destroy();
+
+  const idp = await startFakeIdp({ port: 0, keysDir: path.join(secretsDir, 'idp') });
+  const smtp = await startFakeSmtp({ smtpPort: 0, httpPort: 0 });
+
+  project.provide('pgAdminUrl', pgUrl!);
+  project.provide('templateDb', templateDb);
+  project.provide('idpUrl', idp.url);
+  project.provide('idpCertFile', path.join(secretsDir, 'idp', 'idp-cert.pem'));
+  project.provide('secretsDir', secretsDir);
+  project.provide('smtpUrl', smtp.smtpUrl);
+  project.provide('mailboxUrl', smtp.mailboxUrl);
+
+  return async () => {
+    await idp.close();
+    await smtp.close();
+    stopPg();
+    fs.rmSync(tmp, { recursive: true, force: true });
+  };
+}
