@@ -121,16 +121,16 @@ function paragraph(flow: Flow, text: string, style: TextStyle = {}, width = CONT
 }
 
 /** Label–value rows; labels in slate on the left, values wrap in their own column. */
-function keyValues(flow: Flow, rows: [string, string][], labelWidth = 150): void {
+function keyValues(flow: Flow, rows: [string, string][], labelWidth = 150, valueSize = 9): void {
   const { doc } = flow;
   const valueWidth = CONTENT_WIDTH - labelWidth - 10;
   for (const [label, value] of rows) {
     const hl = measure(doc, label, labelWidth, { size: 8.5 });
-    const hv = measure(doc, value, valueWidth, { size: 9 });
+    const hv = measure(doc, value, valueWidth, { size: valueSize });
     const h = Math.max(hl, hv);
     flow.ensure(h + 4);
     put(doc, label, MARGIN.left, flow.y + 0.5, labelWidth, { size: 8.5, colour: COLOUR.slate });
-    put(doc, value, MARGIN.left + labelWidth + 10, flow.y, valueWidth, { size: 9 });
+    put(doc, value, MARGIN.left + labelWidth + 10, flow.y + (9 - valueSize) / 2, valueWidth, { size: valueSize });
     flow.y += h + 4;
   }
 }
@@ -172,7 +172,10 @@ function table(flow: Flow, columns: Column[], rows: string[][], options: { boldL
     const bold = options.boldLastRows !== undefined && r >= rows.length - options.boldLastRows;
     const font = bold ? FONT.semi : FONT.regular;
     const h = rowHeight(cells, font);
-    if (flow.y + h > flow.bottom) {
+    // Summary rows stay together, so a total never sits alone under a repeated header.
+    const firstSummary = options.boldLastRows !== undefined && r === rows.length - options.boldLastRows;
+    const needed = firstSummary ? rows.slice(r).reduce((sum, row) => sum + rowHeight(row, FONT.semi), 0) : h;
+    if (flow.y + needed > flow.bottom) {
       flow.newPage();
       drawHeader();
     }
@@ -573,7 +576,7 @@ function renderBody(doc: Doc, s: CertificateSnapshot): void {
   keyValues(flow, [
     ['Software version', s.softwareVersion],
     ['Audit-chain head at issue', groupHex(s.auditChainHead)],
-  ]);
+  ], 164, 8);
   table(
     flow,
     [
