@@ -14,7 +14,7 @@ export const GRS80_GM_M3_PER_S2 = 3_986_005e8;
 export const GRS80_J2 = 108_263e-8;
 export const GRS80_OMEGA_RAD_PER_S = 7_292_115e-11;
 
-/** GRS80 derived constants (Moritz 2000, published digits; reproduced in references.md §1). */
+/** GRS80 derived constants (Moritz 2000, published digits; recomputed values of references.md §1, rounded to the nearest double). */
 export const GRS80_F = 1 / 298.257222100883;
 export const GRS80_B_M = 6_356_752.31414035;
 export const GRS80_E2 = 0.006694380022903416;
@@ -22,7 +22,7 @@ export const GRS80_EP2 = 0.006739496775481622;
 /** m = ω²a²b/GM. */
 export const GRS80_M = 0.003449786003077674;
 export const GRS80_GAMMA_E_M_PER_S2 = 9.780326771534893;
-export const GRS80_GAMMA_P_M_PER_S2 = 9.832186368519575;
+export const GRS80_GAMMA_P_M_PER_S2 = 9.832186368519576;
 /** Somigliana k = bγp/(aγe) − 1. */
 export const GRS80_SOMIGLIANA_K = 0.001931851353260676;
 /** Normal potential on the GRS80 ellipsoid — not to be confused with W0 (they differ by 7.45 m²/s²). */
