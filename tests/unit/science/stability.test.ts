@@ -37,6 +37,25 @@ function whiteFm(n: number, seed: number): Float64Array {
   return Float64Array.from({ length: n }, () => g());
 }
 
+/**
+ * Flicker (1/f) noise by the Kasdin & Walter (1992, Proc. IEEE FCS 274–283) discrete filter, h_0 = 1,
+ * h_k = h_{k−1}(α/2 + k − 1)/k with α = 1, applied by direct convolution.
+ */
+function flicker(n: number, seed: number): Float64Array {
+  const g = gaussian(seed);
+  const w = Float64Array.from({ length: n }, () => g());
+  const h = new Float64Array(n);
+  h[0] = 1;
+  for (let k = 1; k < n; k++) h[k] = (h[k - 1] * (0.5 + k - 1)) / k;
+  const out = new Float64Array(n);
+  for (let i = 0; i < n; i++) {
+    let sum = 0;
+    for (let k = 0; k <= i; k++) sum += h[k] * w[i - k];
+    out[i] = sum;
+  }
+  return out;
+}
+
 function at(points: StabilityPoint[], m: number): StabilityPoint {
   const p = points.find((q) => q.m === m);
   if (!p) throw new Error(`no point for m=${m}`);
@@ -141,6 +160,14 @@ describe('stability: white noise and noise identification', () => {
     const b = stabilityAnalysis({ y: rw, tau0Seconds: 1, ms: [1, 4, 16] });
     for (const p of a) expect(p.noiseType).toBe('WPM');
     for (const p of b) expect(p.noiseType).toBe('RWFM');
+  });
+
+  it('identifies flicker FM and flicker PM at τ0 (Riley & Greenhall 2004; flicker is the borderline case, so only m = 1)', () => {
+    for (const seed of [1, 2, 3]) {
+      const f = flicker(6000, seed);
+      expect(stabilityAnalysis({ y: f, tau0Seconds: 1, ms: [1] })[0].noiseType).toBe('FFM');
+      expect(stabilityAnalysis({ y: phaseToFrequency(f, 1).y, tau0Seconds: 1, ms: [1] })[0].noiseType).toBe('FPM');
+    }
   });
 
   it('±1σ confidence intervals from the WFM EDF cover the true ADEV about 68 % of the time (SP 1065 §5.3)', () => {
