@@ -7,7 +7,7 @@ const points = 1_000_000;
 const epochs = Float64Array.from({ length: points }, (_, i) => 60_000 + i / 86_400);
 tidePotentialSeries(site, epochs.subarray(0, 10_000)); // warm-up (JIT)
 const times: number[] = [];
-let series = new Float64Array(0);
+let series: Float64Array = new Float64Array(0);
 for (let run = 0; run < 3; run++) {
   const t0 = performance.now();
   series = tidePotentialSeries(site, epochs, { removePermanent: true });
