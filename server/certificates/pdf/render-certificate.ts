@@ -587,7 +587,7 @@ function renderBody(doc: Doc, s: CertificateSnapshot): void {
     { size: 8 },
   );
 
-  sectionHeading(flow, ++n, 'Cautions');
+  sectionHeading(flow, n + 1, 'Cautions');
   for (const caution of [...STANDING_CAUTIONS, ...s.cautions]) {
     const h = measure(doc, caution, CONTENT_WIDTH - 14, { size: 9 });
     flow.ensure(h);

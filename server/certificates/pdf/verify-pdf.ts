@@ -149,7 +149,7 @@ export async function verifySignedPdf(pdf: Buffer, pinnedCertificatePem: string)
   try {
     pinned = pkijs.Certificate.fromBER(toArrayBuffer(pemToDer(pinnedCertificatePem)));
   } catch (err) {
-    throw new Error(`pinned institute certificate cannot be parsed: ${(err as Error).message}`);
+    throw new Error(`pinned institute certificate cannot be parsed: ${(err as Error).message}`, { cause: err });
   }
   const sid = signerInfo.sid;
   const signerCert = (signedData.certificates ?? []).find(
@@ -166,7 +166,7 @@ export async function verifySignedPdf(pdf: Buffer, pinnedCertificatePem: string)
 
   // Verify with the pinned certificate itself, so no embedded data can stand in for it.
   signedData.certificates = [pinned];
-  let signatureVerified = false;
+  let signatureVerified: boolean;
   try {
     const result = await signedData.verify(
       { signer: 0, data: toArrayBuffer(signedBytes), checkChain: false, extendedMode: true },
