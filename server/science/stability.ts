@@ -175,11 +175,13 @@ function deviationsForM(p: PreparedFrequency, m: number, scratch: Float64Array):
 }
 
 function lag1Autocorrelation(z: Float64Array): { r1: number; pairs: number } {
+  // Gaps are NaN; block means of finite data are never infinite, so `v === v` is the gap test.
   let sum = 0;
   let cnt = 0;
   for (let i = 0; i < z.length; i++) {
-    if (Number.isFinite(z[i])) {
-      sum += z[i];
+    const v = z[i];
+    if (v === v) {
+      sum += v;
       cnt++;
     }
   }
@@ -187,14 +189,19 @@ function lag1Autocorrelation(z: Float64Array): { r1: number; pairs: number } {
   let num = 0;
   let den = 0;
   let pairs = 0;
+  let previous = NaN;
   for (let i = 0; i < z.length; i++) {
-    if (!Number.isFinite(z[i])) continue;
     const a = z[i] - mean;
+    if (a !== a) {
+      previous = NaN;
+      continue;
+    }
     den += a * a;
-    if (i + 1 < z.length && Number.isFinite(z[i + 1])) {
-      num += a * (z[i + 1] - mean);
+    if (previous === previous) {
+      num += previous * a;
       pairs++;
     }
+    previous = a;
   }
   return { r1: den > 0 ? num / den : 0, pairs };
 }
