@@ -1,7 +1,8 @@
 import type { RouteSpec } from './http/route';
 import { healthRoutes } from './health/health.routes';
 import { foundationRoutes } from './me/me.routes';
+import { calcRoutes } from './calc/calc.routes';
 
 // Every API route of the product, in one list: Express, OpenAPI and the access tests read it.
 // Feature folders export their own arrays; add them here.
-export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes];
+export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes, ...calcRoutes];

@@ -1,0 +1,110 @@
+import type {
+  GeodesicRequest, GeodesicResponse, NormalGravityRequest, NormalGravityResponse, RedshiftResponse, StabilityResponse,
+  TideResponse, TransformResponse,
+} from '../../shared/calc';
+import { redshiftRequestSchema, stabilityRequestSchema, tideRequestSchema, transformRequestSchema } from '../../shared/calc';
+import type { z } from 'zod';
+import { Invalid } from '../http/errors';
+import { ScienceInputError } from '../science/errors';
+import { geodesicInverse, toGrs80Geodetic, transform } from '../science/geodesy';
+import { meanNormalGravity, normalGravityAtHeight } from '../science/normal-gravity';
+import { redshiftCalculator } from '../science/redshift';
+import { stabilityAnalysis } from '../science/stability';
+import { tidePotentialSeries } from '../science/tides';
+import { C2_M2_PER_S2 } from '../science/constants';
+
+// Calculator service: no state, no database; each function validates what zod cannot (multiples of τ0, CRS strings)
+// and turns the science core's ScienceInputError into a 400 naming the request field.
+
+/** Runs science code and maps its field names onto request paths (`body.<field>`). */
+export function withFieldMap<T>(fn: () => T, fieldMap: Record<string, string> = {}): T {
+  try {
+    return fn();
+  } catch (e) {
+    if (e instanceof ScienceInputError) {
+      const head = e.field.split(/[.[]/)[0];
+      const mapped = fieldMap[head] ? fieldMap[head] + e.field.slice(head.length) : e.field;
+      throw new Invalid(`The request body is not valid: ${e.message}`, [{ path: `body.${mapped}`, message: e.message.replace(/^[^:]*: /, '') }]);
+    }
+    throw e;
+  }
+}
+
+export function redshift(body: z.output<typeof redshiftRequestSchema>): RedshiftResponse {
+  const r = withFieldMap(() => redshiftCalculator(body));
+  return {
+    fractionalOffset: r.fractionalOffset.value,
+    fractionalOffsetDecimal: r.fractionalOffset.decimal,
+    potentialDifference: r.potentialDifference,
+    heightDifference: r.heightDifference,
+    coverageFactor: 1,
+    method:
+      'y = R/R0 − 1 in 50-digit decimal arithmetic; ΔC = c²·y (first order in 1/c²); Δh = H_N(C_A + ΔC) − H_A with GRS80 mean normal gravity along the normal plumb line at the given latitude. Uncertainties are standard (k = 1), propagated from the given u(y).',
+  };
+}
+
+export function stability(body: z.output<typeof stabilityRequestSchema>): StabilityResponse {
+  const tau0 = body.tau0Seconds;
+  const ms = body.tauSeconds?.map((tau, i) => {
+    const m = Math.round(tau / tau0);
+    if (m < 1 || Math.abs(tau / tau0 - m) > 1e-9 * Math.max(1, m)) {
+      throw new Invalid('The request body is not valid.', [{ path: `body.tauSeconds.${i}`, message: 'must be a whole multiple of tau0Seconds' }]);
+    }
+    return m;
+  });
+  const points = withFieldMap(
+    () =>
+      stabilityAnalysis({
+        tau0Seconds: tau0,
+        y: body.fractionalFrequency ? Float64Array.from(body.fractionalFrequency) : undefined,
+        x: body.phaseSeconds ? Float64Array.from(body.phaseSeconds) : undefined,
+        ms,
+      }),
+    { y: 'fractionalFrequency', x: 'phaseSeconds', ms: 'tauSeconds' },
+  );
+  return {
+    points: points.map((p) => ({
+      tauSeconds: p.tauSeconds, n: p.n, adev: p.adev, adevLow: p.adevLow, adevHigh: p.adevHigh, mdev: p.mdev, tdev: p.tdev,
+      edf: p.edf, noiseType: p.noiseType, noiseIdentified: p.noiseIdentified,
+    })),
+    method:
+      'Overlapping Allan deviation (adev), modified Allan deviation (mdev) and time deviation (tdev, seconds) after NIST SP 1065 §5.2; adevLow/adevHigh: 68.3 % chi-square interval with the SP 1065 §5.3 EDF for the noise type found by lag-1 autocorrelation.',
+  };
+}
+
+export function normalGravity(body: Required<NormalGravityRequest>): NormalGravityResponse {
+  return {
+    gravity: normalGravityAtHeight(body.latitudeDeg, body.heightM),
+    meanGravityToHeight: meanNormalGravity(body.latitudeDeg, body.heightM),
+    unit: 'm/s2',
+    ellipsoid: 'GRS80',
+  };
+}
+
+export function geodesic(body: GeodesicRequest): GeodesicResponse {
+  const r = withFieldMap(() => geodesicInverse(body.from, body.to));
+  return { distanceM: r.distanceM, azimuthFromDeg: r.azimuth1Deg, azimuthToDeg: r.azimuth2Deg, ellipsoid: 'GRS80' };
+}
+
+export function coordinateTransform(body: z.output<typeof transformRequestSchema>): TransformResponse {
+  const coordinates = withFieldMap(() => transform(body.from, body.to, body.coordinates), { coords: 'coordinates' });
+  // The frame assumptions (which datums are taken as coincident) travel with the numbers.
+  const assumptions = withFieldMap(() => toGrs80Geodetic(body.from, body.coordinates).assumptions, { crs: 'from', coords: 'coordinates' });
+  return { coordinates, assumptions };
+}
+
+const MJD_UNIX_EPOCH = 40_587;
+
+export function tide(body: z.output<typeof tideRequestSchema>): TideResponse {
+  const epochsMjd = Float64Array.from(body.epochs, (iso) => Date.parse(iso) / 86_400_000 + MJD_UNIX_EPOCH);
+  const site = { latitudeDeg: body.site.latitudeDeg, longitudeDeg: body.site.longitudeDeg, ellipsoidalHeightM: body.site.heightM };
+  const potential = Array.from(withFieldMap(() => tidePotentialSeries(site, epochsMjd, { removePermanent: body.tideSystem === 'mean-tide' }), { epochsMjd: 'epochs' }));
+  return {
+    potential,
+    fractionalFrequency: potential.map((w) => -w / C2_M2_PER_S2),
+    tideSystem: body.tideSystem,
+    unit: 'm2/s2',
+    method:
+      'Degree-2 Moon and Sun tidal potential times 1 + k2 − h2 = 0.68745 (IERS Conventions 2010, ch. 6–7), body positions from astronomy-engine; mean-tide leaves out the permanent part, tide-free keeps it. Epochs are UTC (UT1 − UTC neglected).',
+  };
+}

@@ -1,0 +1,119 @@
+import { z } from 'zod';
+
+// Calculator contract: stateless conversions on top of the science core. Ratios are decimal strings (never JSON numbers,
+// which would drop digits beyond the 17th); everything else is a plain number with its unit in the field name.
+
+const decimalString = z.string().trim().regex(/^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d{1,4})?$/, 'a decimal number written as a string, e.g. "1.000000000000000012"');
+const latitude = z.number().min(-90).max(90);
+const longitude = z.number().min(-540).max(540);
+const finite = z.number().refine(Number.isFinite, 'must be a finite number');
+
+export const redshiftRequestSchema = z.object({
+  ratio: decimalString,
+  referenceRatio: decimalString.default('1'),
+  /** Standard uncertainty of y (k = 1). */
+  fractionalUncertainty: z.number().min(0).max(1).optional(),
+  latitudeDeg: latitude,
+  /** Normal height of clock A (m); Δh is computed at A's height. */
+  normalHeightM: z.number().min(-1000).max(10_000).default(0),
+});
+export type RedshiftRequest = z.input<typeof redshiftRequestSchema>;
+
+const quantity = <U extends string>(unit: U) => z.object({ value: z.number(), uncertainty: z.number().nullable(), unit: z.literal(unit) });
+export const redshiftResponseSchema = z.object({
+  fractionalOffset: z.number(),
+  /** y to 50 significant digits from the decimal computation. */
+  fractionalOffsetDecimal: z.string(),
+  potentialDifference: quantity('m2/s2'),
+  heightDifference: quantity('m'),
+  coverageFactor: z.literal(1),
+  method: z.string(),
+});
+export type RedshiftResponse = z.infer<typeof redshiftResponseSchema>;
+
+export const MAX_STABILITY_SAMPLES = 2_000_000;
+export const stabilityRequestSchema = z
+  .object({
+    tau0Seconds: z.number().positive().refine(Number.isFinite, 'must be finite'),
+    fractionalFrequency: z.array(z.number()).min(3).max(MAX_STABILITY_SAMPLES).optional(),
+    phaseSeconds: z.array(z.number()).min(4).max(MAX_STABILITY_SAMPLES).optional(),
+    /** Averaging times, each a whole multiple of τ0; octaves 1, 2, 4 … × τ0 when omitted. */
+    tauSeconds: z.array(z.number().positive()).min(1).max(200).optional(),
+  })
+  .superRefine((v, ctx) => {
+    if (!v.fractionalFrequency === !v.phaseSeconds) {
+      ctx.addIssue({ code: 'custom', path: ['fractionalFrequency'], message: 'give either fractionalFrequency or phaseSeconds, not both and not neither' });
+    }
+  });
+export type StabilityRequest = z.input<typeof stabilityRequestSchema>;
+
+export const noiseTypeSchema = z.enum(['WPM', 'FPM', 'WFM', 'FFM', 'RWFM']);
+export const stabilityPointSchema = z.object({
+  tauSeconds: z.number(),
+  n: z.number().int(),
+  adev: z.number().nullable(),
+  adevLow: z.number().nullable(),
+  adevHigh: z.number().nullable(),
+  mdev: z.number().nullable(),
+  tdev: z.number().nullable(),
+  edf: z.number().nullable(),
+  noiseType: noiseTypeSchema,
+  noiseIdentified: z.boolean(),
+});
+export type StabilityPointDto = z.infer<typeof stabilityPointSchema>;
+export const stabilityResponseSchema = z.object({
+  points: z.array(stabilityPointSchema),
+  method: z.string(),
+});
+export type StabilityResponse = z.infer<typeof stabilityResponseSchema>;
+
+export const normalGravityRequestSchema = z.object({ latitudeDeg: latitude, heightM: z.number().min(-1000).max(20_000).default(0) });
+export type NormalGravityRequest = z.input<typeof normalGravityRequestSchema>;
+export const normalGravityResponseSchema = z.object({
+  /** Normal gravity at the height, m/s². */
+  gravity: z.number(),
+  /** Mean normal gravity between the ellipsoid and the height (for normal heights), m/s². */
+  meanGravityToHeight: z.number(),
+  unit: z.literal('m/s2'),
+  ellipsoid: z.literal('GRS80'),
+});
+export type NormalGravityResponse = z.infer<typeof normalGravityResponseSchema>;
+
+const point = z.object({ latitudeDeg: latitude, longitudeDeg: longitude });
+export const geodesicRequestSchema = z.object({ from: point, to: point });
+export type GeodesicRequest = z.input<typeof geodesicRequestSchema>;
+export const geodesicResponseSchema = z.object({
+  distanceM: z.number(),
+  azimuthFromDeg: z.number(),
+  azimuthToDeg: z.number(),
+  ellipsoid: z.literal('GRS80'),
+});
+export type GeodesicResponse = z.infer<typeof geodesicResponseSchema>;
+
+export const transformRequestSchema = z.object({
+  from: z.string().trim().min(1).max(500),
+  to: z.string().trim().min(1).max(500),
+  /** Longitude first for geographic CRSs (as proj4): [lon, lat, h?]; [E, N] projected; [X, Y, Z] geocentric. */
+  coordinates: z.array(finite).min(2).max(3),
+});
+export type TransformRequest = z.input<typeof transformRequestSchema>;
+export const transformResponseSchema = z.object({ coordinates: z.array(z.number()), assumptions: z.array(z.string()) });
+export type TransformResponse = z.infer<typeof transformResponseSchema>;
+
+export const tideRequestSchema = z.object({
+  site: z.object({ latitudeDeg: latitude, longitudeDeg: longitude, heightM: z.number().min(-1000).max(20_000).default(0) }),
+  epochs: z.array(z.iso.datetime({ offset: true })).min(1).max(100_000),
+  /** mean-tide: periodic part only (the permanent tide stays in the result, as in the IHRS); tide-free: the full tide. */
+  tideSystem: z.enum(['mean-tide', 'tide-free']).default('mean-tide'),
+});
+export type TideRequest = z.input<typeof tideRequestSchema>;
+export const tideResponseSchema = z.object({
+  /** Tidal potential seen by a clock on the deforming Earth, (1 + k2 − h2)·W2, m²/s², one per epoch. */
+  potential: z.array(z.number()),
+  /** Fractional frequency change of the clock, −potential/c². */
+  fractionalFrequency: z.array(z.number()),
+  tideSystem: z.enum(['mean-tide', 'tide-free']),
+  unit: z.literal('m2/s2'),
+  method: z.string(),
+});
+export type TideResponse = z.infer<typeof tideResponseSchema>;
