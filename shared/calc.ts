@@ -117,3 +117,18 @@ export const tideResponseSchema = z.object({
   method: z.string(),
 });
 export type TideResponse = z.infer<typeof tideResponseSchema>;
+
+/** Planning view (computed in the browser): two sites and the clock and link uncertainties, all k = 1. */
+export const planningInputSchema = z.object({
+  latitudeADeg: latitude,
+  normalHeightAM: z.number().min(-1000).max(10_000),
+  latitudeBDeg: latitude,
+  normalHeightBM: z.number().min(-1000).max(10_000),
+  systematicA: z.number().min(0).max(1e-12),
+  systematicB: z.number().min(0).max(1e-12),
+  /** Combined instability σ_y(1 s) of the comparison, white frequency noise assumed. */
+  sigmaYAt1s: z.number().positive().max(1e-10),
+  link: z.number().min(0).max(1e-12),
+  referenceRatio: z.number().min(0).max(1e-12),
+});
+export type PlanningInput = z.infer<typeof planningInputSchema>;

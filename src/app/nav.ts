@@ -9,4 +9,5 @@ export const navItems: NavItem[] = [
   { to: '/admin', label: 'Institutes and people', roles: ['admin'], group: 'admin' },
   { to: '/admin/mailbox', label: 'Mail catcher', roles: ['admin'], group: 'admin' },
   { to: '/account/tokens', label: 'My API tokens', roles: all, group: 'tools' },
+  { to: '/calculator', label: 'Calculator', roles: all, group: 'tools' },
 ];

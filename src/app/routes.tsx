@@ -3,6 +3,7 @@ import { TokensPage } from '../pages/account/tokens-page';
 import { AdminPage } from '../pages/admin/admin-page';
 import { MailboxPage } from '../pages/admin/mailbox-page';
 import { HomePage } from '../pages/home-page';
+import { CalculatorPage } from '../pages/calculator/calculator-page';
 import { NotFoundPage } from '../pages/not-found-page';
 
 /** Client routes; features add theirs here (and a nav entry in nav.ts). */
@@ -11,5 +12,6 @@ export const featureRoutes: RouteObject[] = [
   { path: 'admin', element: <AdminPage /> },
   { path: 'admin/mailbox', element: <MailboxPage /> },
   { path: 'account/tokens', element: <TokensPage /> },
+  { path: 'calculator', element: <CalculatorPage /> },
   { path: '*', element: <NotFoundPage /> },
 ];
