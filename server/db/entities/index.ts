@@ -1,4 +1,5 @@
 import { ApiTokenEntity, AuditEventEntity, InstituteEntity, MailOutboxEntity, UserEntity } from './core.entities';
+import { CertificateEntity } from './certificates.entities';
 
 // Every entity the data source knows. Feature entities are added here.
-export const entities = [InstituteEntity, UserEntity, ApiTokenEntity, AuditEventEntity, MailOutboxEntity];
+export const entities = [InstituteEntity, UserEntity, ApiTokenEntity, AuditEventEntity, MailOutboxEntity, CertificateEntity];

@@ -1,0 +1,227 @@
+import { createHash, randomUUID } from 'node:crypto';
+import type { EntityManager } from 'typeorm';
+import { formatCertificateNumber, type CertificateSnapshot } from '../../shared/certificates';
+import { recordAudit } from '../audit/audit.service';
+import { type Actor, actorLabel } from '../auth/actor';
+import type { AppConfig } from '../config';
+import { AuditEventEntity, InstituteEntity, UserEntity } from '../db/entities/core.entities';
+import { CertificateEntity, type CertificateRow } from '../db/entities/certificates.entities';
+import { Conflict, NotFound } from '../http/errors';
+import { enqueueMail } from '../mail/outbox';
+import type { CertificateSource, SnapshotBody } from './certificate-source.types';
+import { coordinatingInstitute, instituteSigningIdentity } from './institute-identity';
+import { renderCertificatePdf } from './pdf/render-certificate';
+import { signPdf } from './pdf/signing';
+
+// Issuing, reissuing and revoking inside the caller's transaction: number, snapshot, render, sign, store,
+// audit and mail commit together or not at all.
+
+export type LoadSource = (manager: EntityManager, campaignId: string) => Promise<CertificateSource>;
+export type MarkCertified = (manager: EntityManager, campaignId: string, actor: Actor) => Promise<unknown>;
+
+export interface IssueContext {
+  manager: EntityManager;
+  config: AppConfig;
+  actor: Actor;
+  loadSource: LoadSource;
+  markCertified: MarkCertified;
+  now?: Date;
+}
+
+/** Key order fixed, so the same inputs always give the same fingerprint. */
+function canonicalJson(value: unknown): string {
+  if (Array.isArray(value)) return `[${value.map(canonicalJson).join(',')}]`;
+  if (value && typeof value === 'object') {
+    return `{${Object.keys(value as object)
+      .sort()
+      .filter((k) => (value as Record<string, unknown>)[k] !== undefined)
+      .map((k) => `${JSON.stringify(k)}:${canonicalJson((value as Record<string, unknown>)[k])}`)
+      .join(',')}}`;
+  }
+  return JSON.stringify(value);
+}
+
+export function fingerprintOf(source: CertificateSource): string {
+  return createHash('sha256').update(canonicalJson({ resultId: source.resultId, body: source.body })).digest('hex');
+}
+
+export const sha256Hex = (bytes: Buffer) => createHash('sha256').update(bytes).digest('hex');
+
+/** Concurrent issues for one campaign queue up here (held until commit). */
+async function lockCampaign(manager: EntityManager, campaignId: string): Promise<void> {
+  await manager.query(`SELECT pg_advisory_xact_lock(hashtext($1))`, [`certificate:${campaignId}`]);
+}
+
+async function nextSerial(manager: EntityManager, year: number): Promise<number> {
+  const rows: { last_serial: number }[] = await manager.query(
+    `INSERT INTO certificate_serial (year, last_serial) VALUES ($1, 1)
+     ON CONFLICT (year) DO UPDATE SET last_serial = certificate_serial.last_serial + 1
+     RETURNING last_serial`,
+    [year],
+  );
+  return rows[0].last_serial;
+}
+
+async function auditChainHead(manager: EntityManager): Promise<string> {
+  const last = await manager.getRepository(AuditEventEntity).find({ order: { id: 'DESC' }, take: 1 });
+  // An empty trail has no head; 64 zeros says so without breaking the snapshot schema.
+  return last[0]?.hash || '0'.repeat(64);
+}
+
+export function verificationUrlFor(config: AppConfig, number: string): string {
+  return `${config.publicUrl}/verify?number=${encodeURIComponent(number)}`;
+}
+
+async function renderAndSign(ctx: IssueContext, body: SnapshotBody, number: string, revision: number, issuedAt: Date) {
+  const institute = await coordinatingInstitute(ctx.manager);
+  const issuingInstitute = institute?.name ?? 'Coordinating institute';
+  const snapshot: CertificateSnapshot = {
+    ...body,
+    certificateNumber: number,
+    revision,
+    issueDate: issuedAt.toISOString(),
+    issuingInstitute,
+    auditChainHead: await auditChainHead(ctx.manager),
+    signer: { name: ctx.actor.displayName, role: `Coordinator, ${issuingInstitute}` },
+    verificationUrl: verificationUrlFor(ctx.config, number),
+  };
+  const identity = await instituteSigningIdentity(ctx.config, { commonName: `${issuingInstitute} certificate signing`, organization: issuingInstitute });
+  const unsigned = await renderCertificatePdf(snapshot);
+  const pdf = await signPdf(unsigned, identity, {
+    reason: revision > 1 ? `Certificate ${number} (revision ${revision})` : `Certificate ${number}`,
+    location: institute?.city ?? issuingInstitute,
+    name: ctx.actor.displayName,
+    signingTime: issuedAt,
+  });
+  return { snapshot, pdf, pdfSha256: sha256Hex(pdf) };
+}
+
+/** The operators of both clocks' institutes and the coordinator mailbox. */
+async function participantAddresses(manager: EntityManager, config: AppConfig, row: Pick<CertificateRow, 'instituteAId' | 'instituteBId'>): Promise<string[]> {
+  const ids = [row.instituteAId, row.instituteBId].filter((x): x is string => !!x);
+  const operators = ids.length
+    ? await manager.getRepository(UserEntity).createQueryBuilder('u').where('u.role = :r', { r: 'operator' }).andWhere('u.institute_id IN (:...ids)', { ids }).getMany()
+    : [];
+  return [...new Set([...operators.map((u) => u.email), config.coordinatorMail])];
+}
+
+async function notify(manager: EntityManager, config: AppConfig, row: CertificateRow, subject: string, text: string) {
+  for (const to of await participantAddresses(manager, config, row)) {
+    await enqueueMail(manager, { to, subject, text });
+  }
+}
+
+export type IssueOutcome = { created: boolean; row: CertificateRow };
+
+export async function issueCertificate(ctx: IssueContext, campaignId: string): Promise<IssueOutcome> {
+  const { manager, actor } = ctx;
+  await lockCampaign(manager, campaignId);
+  const source = await ctx.loadSource(manager, campaignId);
+  const fingerprint = fingerprintOf(source);
+  const repo = manager.getRepository(CertificateEntity);
+  const current = await repo.findOneBy({ campaignId, state: 'valid' });
+  if (current) {
+    if (current.resultFingerprint === fingerprint) return { created: false, row: current };
+    throw new Conflict(`The campaign changed since certificate ${current.number} was issued; reissue that certificate instead.`, { number: current.number });
+  }
+  if (source.campaignState !== 'accepted' && source.campaignState !== 'certified') {
+    throw new Conflict(`Only an accepted campaign can be certified; this one is '${source.campaignState}'.`, { state: source.campaignState });
+  }
+  const issuedAt = ctx.now ?? new Date();
+  const year = issuedAt.getUTCFullYear();
+  const serial = await nextSerial(manager, year);
+  const number = formatCertificateNumber(year, serial, 1);
+  const { snapshot, pdf, pdfSha256 } = await renderAndSign(ctx, source.body, number, 1, issuedAt);
+  const row = await insertRow(manager, actor, source, fingerprint, { number, year, serial, revision: 1, issuedAt, snapshot, pdf, pdfSha256 });
+  await recordAudit(manager, actor, {
+    action: 'certificate.issued', entityType: 'certificate', entityId: number,
+    details: { campaignId, resultId: source.resultId, pdfSha256, auditChainHead: snapshot.auditChainHead },
+  });
+  if (source.campaignState !== 'certified') await ctx.markCertified(manager, campaignId, actor);
+  await notify(manager, ctx.config, row, `Certificate ${number} issued`,
+    `Certificate ${number} was issued for the campaign "${source.campaignLabel}" by ${actor.displayName}.\n\n` +
+      `SHA-256 of the signed file: ${pdfSha256}\nVerify it at ${verificationUrlFor(ctx.config, number)}\n`);
+  return { created: true, row };
+}
+
+async function insertRow(
+  manager: EntityManager, actor: Actor, source: CertificateSource, fingerprint: string,
+  v: { id?: string; number: string; year: number; serial: number; revision: number; issuedAt: Date; snapshot: CertificateSnapshot; pdf: Buffer; pdfSha256: string },
+): Promise<CertificateRow> {
+  const repo = manager.getRepository(CertificateEntity);
+  const id = v.id ?? randomUUID();
+  await repo.insert({
+    id, number: v.number, year: v.year, serial: v.serial, revision: v.revision,
+    campaignId: source.campaignId, resultId: source.resultId, resultFingerprint: fingerprint,
+    instituteAId: source.instituteAId, instituteBId: source.instituteBId, campaignLabel: source.campaignLabel,
+    state: 'valid', issuedBy: actor.userId, issuedByLabel: actorLabel(actor), issuedAt: v.issuedAt,
+    pdf: v.pdf, pdfSha256: v.pdfSha256, pdfBytes: v.pdf.length, snapshot: v.snapshot as never,
+  });
+  return repo.findOneByOrFail({ id });
+}
+
+async function lockByNumber(manager: EntityManager, number: string): Promise<CertificateRow> {
+  const row = await manager.getRepository(CertificateEntity).createQueryBuilder('c').setLock('pessimistic_write').where('c.number = :number', { number }).getOne();
+  if (!row) throw new NotFound(`Certificate ${number}`);
+  return row;
+}
+
+async function newestRevisionNumber(manager: EntityManager, year: number, serial: number): Promise<string> {
+  const newest = await manager.getRepository(CertificateEntity).findOne({ where: { year, serial }, order: { revision: 'DESC' } });
+  return newest!.number;
+}
+
+export async function reissueCertificate(ctx: IssueContext, number: string, reason: string): Promise<CertificateRow> {
+  const { manager, actor } = ctx;
+  const previous = await lockByNumber(manager, number);
+  if (previous.state === 'superseded') {
+    throw new Conflict(`Certificate ${number} was already replaced; reissue the newest revision ${await newestRevisionNumber(manager, previous.year, previous.serial)}.`);
+  }
+  if (previous.state === 'revoked') throw new Conflict(`Certificate ${number} was withdrawn and cannot be reissued; issue a new certificate for the campaign.`);
+  await lockCampaign(manager, previous.campaignId);
+  const source = await ctx.loadSource(manager, previous.campaignId);
+  if (source.campaignState !== 'accepted' && source.campaignState !== 'certified') {
+    throw new Conflict(`The campaign is '${source.campaignState}'; a certificate can be reissued only for an accepted or certified campaign.`, { state: source.campaignState });
+  }
+  const issuedAt = ctx.now ?? new Date();
+  const revision = previous.revision + 1;
+  const newNumber = formatCertificateNumber(previous.year, previous.serial, revision);
+  const { snapshot, pdf, pdfSha256 } = await renderAndSign(ctx, source.body, newNumber, revision, issuedAt);
+  const id = randomUUID();
+  // The pointer's foreign key is deferred, so the old row can step aside before the new valid one arrives.
+  await manager.getRepository(CertificateEntity).update({ id: previous.id }, { state: 'superseded', supersededBy: id, supersededAt: issuedAt });
+  const row = await insertRow(manager, actor, source, fingerprintOf(source), { id, number: newNumber, year: previous.year, serial: previous.serial, revision, issuedAt, snapshot, pdf, pdfSha256 });
+  await recordAudit(manager, actor, { action: 'certificate.superseded', entityType: 'certificate', entityId: number, details: { campaignId: previous.campaignId, supersededBy: newNumber, reason } });
+  await recordAudit(manager, actor, {
+    action: 'certificate.reissued', entityType: 'certificate', entityId: newNumber,
+    details: { campaignId: previous.campaignId, supersedes: number, reason, resultId: source.resultId, pdfSha256, auditChainHead: snapshot.auditChainHead },
+  });
+  if (source.campaignState !== 'certified') await ctx.markCertified(manager, previous.campaignId, actor);
+  await notify(manager, ctx.config, row, `Certificate ${number} replaced by ${newNumber}`,
+    `Certificate ${number} for the campaign "${source.campaignLabel}" has been replaced by revision ${revision}, ${newNumber}, issued by ${actor.displayName}.\n\n` +
+      `What was corrected: ${reason}\n\nThe earlier file no longer stands on its own; use ${newNumber}.\n` +
+      `SHA-256 of the new signed file: ${pdfSha256}\nVerify it at ${verificationUrlFor(ctx.config, newNumber)}\n`);
+  return row;
+}
+
+export async function revokeCertificate(ctx: Pick<IssueContext, 'manager' | 'config' | 'actor' | 'now'>, number: string, reason: string): Promise<CertificateRow> {
+  const { manager, actor } = ctx;
+  const row = await lockByNumber(manager, number);
+  if (row.state === 'revoked') throw new Conflict(`Certificate ${number} is already withdrawn.`);
+  if (row.state === 'superseded') {
+    throw new Conflict(`Certificate ${number} was replaced; withdraw the newest revision ${await newestRevisionNumber(manager, row.year, row.serial)} instead.`);
+  }
+  const revokedAt = ctx.now ?? new Date();
+  await manager.getRepository(CertificateEntity).update({ id: row.id }, { state: 'revoked', revokedAt, revokedBy: actor.userId, revocationReason: reason });
+  await recordAudit(manager, actor, { action: 'certificate.revoked', entityType: 'certificate', entityId: number, details: { campaignId: row.campaignId, reason } });
+  const fresh = await manager.getRepository(CertificateEntity).findOneByOrFail({ id: row.id });
+  await notify(manager, ctx.config, fresh, `Certificate ${number} withdrawn`,
+    `Certificate ${number} for the campaign "${row.campaignLabel}" was withdrawn on ${revokedAt.toISOString()} by ${actor.displayName}.\n\n` +
+      `Reason: ${reason}\n\nThe file must no longer be relied on. Anyone can check its state at ${verificationUrlFor(ctx.config, number)}\n`);
+  return fresh;
+}
+
+export async function instituteNames(manager: EntityManager): Promise<Map<string, { id: string; code: string; name: string }>> {
+  const all = await manager.getRepository(InstituteEntity).find();
+  return new Map(all.map((i) => [i.id, { id: i.id, code: i.code, name: i.name }]));
+}

@@ -1,0 +1,108 @@
+import { keepPreviousData, useMutation, useQuery, useQueryClient } from '@tanstack/react-query';
+import type { AuditEvent } from '../../shared/auth';
+import type { CertificateDetail, CertificateListQuery, CertificateSummary, VerificationResult } from '../../shared/certificate-registry';
+import type { CertificateSnapshot } from '../../shared/certificates';
+import type { Page, Problem } from '../../shared/http';
+import { api, ApiError } from '../lib/api-client';
+
+export const certificateKeys = {
+  all: ['certificates'] as const,
+  list: (params: object) => [...certificateKeys.all, 'list', params] as const,
+  detail: (number: string) => [...certificateKeys.all, 'detail', number] as const,
+  snapshot: (number: string) => [...certificateKeys.all, 'snapshot', number] as const,
+  forCampaign: (campaignId: string) => [...certificateKeys.all, 'campaign', campaignId] as const,
+  audit: (campaignId: string, numbers: readonly string[]) => [...certificateKeys.all, 'audit', campaignId, numbers] as const,
+};
+
+function queryString(params: object): string {
+  return new URLSearchParams(
+    Object.entries(params)
+      .filter(([, v]) => v !== undefined && v !== null && v !== '')
+      .map(([k, v]) => [k, String(v)]),
+  ).toString();
+}
+
+export type CertificateListParams = Partial<CertificateListQuery> & { page: number; pageSize: number };
+
+export const useCertificates = (params: CertificateListParams) =>
+  useQuery({
+    queryKey: certificateKeys.list(params),
+    queryFn: () => api<Page<CertificateSummary>>(`/api/v1/certificates?${queryString(params)}`),
+    placeholderData: keepPreviousData,
+  });
+
+export const useCampaignCertificates = (campaignId: string) =>
+  useQuery({
+    queryKey: certificateKeys.forCampaign(campaignId),
+    queryFn: () => api<Page<CertificateSummary>>(`/api/v1/certificates?${queryString({ campaignId, page: 1, pageSize: 50, sort: 'issuedAt', order: 'asc' })}`),
+  });
+
+export const useCertificate = (number: string) =>
+  useQuery({ queryKey: certificateKeys.detail(number), queryFn: () => api<CertificateDetail>(`/api/v1/certificates/${encodeURIComponent(number)}`) });
+
+export const useCertificateSnapshot = (number: string, enabled: boolean) =>
+  useQuery({
+    queryKey: certificateKeys.snapshot(number),
+    queryFn: () => api<CertificateSnapshot>(`/api/v1/certificates/${encodeURIComponent(number)}/snapshot`),
+    enabled,
+  });
+
+export const certificatePdfUrl = (number: string) => `/api/v1/certificates/${encodeURIComponent(number)}/pdf`;
+export const certificateSnapshotUrl = (number: string) => `/api/v1/certificates/${encodeURIComponent(number)}/snapshot`;
+
+/** The campaign's own events plus those of each of its certificates, oldest first. */
+export const useCampaignAuditTrail = (campaignId: string, certificateNumbers: readonly string[], enabled: boolean) =>
+  useQuery({
+    queryKey: certificateKeys.audit(campaignId, certificateNumbers),
+    enabled,
+    queryFn: async () => {
+      const fetchAll = (entityType: string, entityId: string) =>
+        api<Page<AuditEvent>>(`/api/v1/audit-events?${queryString({ entityType, entityId, page: 1, pageSize: 500 })}`).then((p) => p.items);
+      const lists = await Promise.all([fetchAll('campaign', campaignId), ...certificateNumbers.map((n) => fetchAll('certificate', n))]);
+      return lists.flat().sort((a, b) => Number(a.id) - Number(b.id));
+    },
+  });
+
+function useCertificateMutation<V, R>(fn: (v: V) => Promise<R>) {
+  const qc = useQueryClient();
+  return useMutation({ mutationFn: fn, onSuccess: () => qc.invalidateQueries({ queryKey: certificateKeys.all }) });
+}
+
+export const useIssueCertificate = () =>
+  useCertificateMutation((campaignId: string) =>
+    api<{ created: boolean; certificate: CertificateSummary }>(`/api/v1/campaigns/${campaignId}/certificates`, { method: 'POST', body: {} }),
+  );
+export const useReissueCertificate = () =>
+  useCertificateMutation((v: { number: string; reason: string }) =>
+    api<CertificateSummary>(`/api/v1/certificates/${encodeURIComponent(v.number)}/reissue`, { body: { reason: v.reason } }),
+  );
+export const useRevokeCertificate = () =>
+  useCertificateMutation((v: { number: string; reason: string }) =>
+    api<CertificateSummary>(`/api/v1/certificates/${encodeURIComponent(v.number)}/revoke`, { body: { reason: v.reason } }),
+  );
+
+// Verification is public: sent without cookies, so a signed-in visitor and a stranger get the same answer
+// and no session (or CSRF token) is involved.
+async function publicJson<T>(res: Response): Promise<T> {
+  if (res.ok) return res.json() as Promise<T>;
+  const type = res.headers.get('content-type') ?? '';
+  const problem: Problem = type.includes('json')
+    ? await res.json()
+    : { type: 'about:blank', title: res.statusText, status: res.status, detail: await res.text(), code: 'http' };
+  throw new ApiError(res.status, problem);
+}
+
+export const useVerifyFile = () =>
+  useMutation({
+    mutationFn: async (file: File) => {
+      const form = new FormData();
+      form.append('file', file);
+      return publicJson<VerificationResult>(await fetch('/api/v1/certificates/verify', { method: 'POST', body: form, credentials: 'omit', headers: { accept: 'application/json' } }));
+    },
+  });
+
+export const useVerifyNumber = () =>
+  useMutation({
+    mutationFn: async (v: { number: string; sha256: string }) =>
+      publicJson<VerificationResult>(await fetch(`/api/v1/certificates/verify?${queryString(v)}`, { credentials: 'omit', headers: { accept: 'application/json' } })),
+  });

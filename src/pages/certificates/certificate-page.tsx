@@ -1,0 +1,95 @@
+import { useState } from 'react';
+import { Link, useParams } from 'react-router';
+import { useMe } from '../../api/account';
+import { certificatePdfUrl, certificateSnapshotUrl, useCertificate, useCertificateSnapshot } from '../../api/certificates';
+import { Button, Caution, EmptyState, Panel } from '../../components/ui';
+import { describeError } from '../../lib/api-client';
+import { CertificateActions } from './certificate-actions';
+import { CertificateStateBadge, formatExpanded } from './certificate-state';
+
+const groupHex = (hex: string) => hex.replace(/(.{8})(?=.)/g, '$1 ');
+
+export function CertificatePage() {
+  const { number = '' } = useParams();
+  const me = useMe();
+  const cert = useCertificate(number);
+  const [showSnapshot, setShowSnapshot] = useState(false);
+  const snapshot = useCertificateSnapshot(number, showSnapshot);
+  if (cert.isPending) return <p className="text-ink-500">Loading…</p>;
+  if (cert.isError) return <EmptyState title={`Certificate ${number} cannot be shown`}>{describeError(cert.error)}</EmptyState>;
+  const c = cert.data;
+  const role = me.data?.role;
+  return (
+    <>
+      <header className="flex flex-wrap items-start justify-between gap-4">
+        <div>
+          <p className="text-sm text-ink-500"><Link to="/certificates">Certificates</Link> / {c.campaignLabel}</p>
+          <h1 className="font-mono" data-testid="certificate-number">{c.number}</h1>
+          <p className="mt-1 flex items-center gap-2 text-sm" data-testid="certificate-state"><CertificateStateBadge state={c.state} /> issued {c.issuedAt.replace('T', ' ').slice(0, 16)} UTC by {c.issuedBy.replace(/ <.*$/, '')}</p>
+        </div>
+        <div className="flex flex-wrap gap-2">
+          <a href={certificatePdfUrl(c.number)} download={`${c.number}.pdf`} className="rounded-md bg-ink-700 px-3 py-1.5 text-sm font-medium text-paper-50 no-underline hover:bg-ink-600" data-testid="download-pdf">Download signed PDF</a>
+          <a href={certificateSnapshotUrl(c.number)} download={`${c.number}.json`} className="rounded-md border border-ink-200 bg-white px-3 py-1.5 text-sm font-medium text-ink-700 no-underline hover:bg-ink-50">Snapshot (JSON)</a>
+        </div>
+      </header>
+
+      {c.state === 'superseded' && (
+        <div role="status" className="rounded-md border-l-4 border-brass-500 bg-paper-100 px-4 py-3 text-sm">
+          Replaced by <Link to={`/certificates/${c.supersededByNumber}`} className="font-mono">{c.supersededByNumber}</Link> on {c.supersededAt?.slice(0, 10)}.
+          {c.latestNumber && c.latestNumber !== c.supersededByNumber && <> The newest revision is <Link to={`/certificates/${c.latestNumber}`} className="font-mono">{c.latestNumber}</Link>.</>}
+        </div>
+      )}
+      {c.state === 'revoked' && (
+        <div role="status" className="rounded-md border-l-4 border-disagree-600 bg-disagree-100 px-4 py-3 text-sm text-disagree-800" data-testid="revocation">
+          <strong>Withdrawn</strong> on {c.revokedAt?.replace('T', ' ').slice(0, 16)} UTC. Reason: {c.revocationReason}
+        </div>
+      )}
+
+      <div className="grid gap-5 md:grid-cols-2">
+        <Panel title="Result">
+          <dl className="grid grid-cols-[max-content_1fr] gap-x-4 gap-y-1.5 text-sm">
+            <dt className="text-ink-500">Geopotential difference ΔC</dt><dd>{formatExpanded(c.deltaC_m2s2, 'm²/s²')}</dd>
+            <dt className="text-ink-500">Height difference Δh</dt><dd>{formatExpanded(c.deltaH_m, 'm')}</dd>
+            <dt className="text-ink-500">E<sub>n</sub> against levelling</dt><dd>{c.En.toFixed(2)} {c.agreed ? '(|Eₙ| ≤ 1: agrees)' : '(|Eₙ| > 1: does not agree)'}</dd>
+            <dt className="text-ink-500">Measurement period</dt><dd>{c.measurementPeriod.start.slice(0, 10)} to {c.measurementPeriod.end.slice(0, 10)}</dd>
+            <dt className="text-ink-500">Institutes</dt><dd>{[c.instituteA?.name, c.instituteB?.name].filter(Boolean).join(' and ')}</dd>
+          </dl>
+        </Panel>
+        <Panel title="File and trail">
+          <dl className="grid grid-cols-[max-content_1fr] gap-x-4 gap-y-1.5 text-sm">
+            <dt className="text-ink-500">SHA-256 of the PDF</dt><dd className="break-all font-mono text-xs" data-testid="certificate-sha">{groupHex(c.pdfSha256)}</dd>
+            <dt className="text-ink-500">Size</dt><dd>{(c.pdfBytes / 1024).toFixed(1)} KiB</dd>
+            <dt className="text-ink-500">Audit-trail head at issue</dt><dd className="break-all font-mono text-xs">{groupHex(c.auditChainHead)}</dd>
+          </dl>
+          <p className="mt-3 text-sm">
+            {role !== 'operator' && <><Link to={`/audit/campaigns/${c.campaignId}`}>Audit trail of the campaign</Link> · </>}
+            <Link to={`/verify?number=${encodeURIComponent(c.number)}&sha256=${c.pdfSha256}`}>Public check</Link>
+          </p>
+        </Panel>
+      </div>
+
+      <Panel title="Revisions">
+        <ol className="space-y-1 text-sm">
+          {c.revisions.map((r) => (
+            <li key={r.number} className="flex items-center gap-3">
+              {r.number === c.number ? <span className="font-mono font-semibold">{r.number}</span> : <Link to={`/certificates/${r.number}`} className="font-mono">{r.number}</Link>}
+              <CertificateStateBadge state={r.state} />
+              <span className="text-ink-500">{r.issuedAt.slice(0, 10)}</span>
+            </li>
+          ))}
+        </ol>
+        {role === 'coordinator' && c.state === 'valid' && <div className="mt-4"><CertificateActions number={c.number} /></div>}
+      </Panel>
+
+      <Panel title="Snapshot" actions={<Button variant="quiet" onClick={() => setShowSnapshot((s) => !s)} aria-expanded={showSnapshot}>{showSnapshot ? 'Hide' : 'Show'}</Button>}>
+        <p className="text-sm text-ink-600">The frozen data the PDF was rendered from: every number with its uncertainty and unit, the budget, constants, software version and input-file hashes.</p>
+        {showSnapshot && (
+          <pre className="mt-3 max-h-[28rem] overflow-auto rounded-md bg-ink-900 p-3 text-xs text-ink-50" data-testid="snapshot-json">
+            {snapshot.data ? JSON.stringify({ ...snapshot.data, timeSeries: `[${snapshot.data.timeSeries.length} points]` }, null, 2) : 'Loading…'}
+          </pre>
+        )}
+      </Panel>
+      <Caution />
+    </>
+  );
+}

@@ -1,0 +1,24 @@
+import { certificateStateLabels, type CertificateState } from '../../../shared/certificate-registry';
+
+const styles: Record<CertificateState, { mark: string; cls: string }> = {
+  valid: { mark: '✓', cls: 'bg-agree-100 text-agree-800' },
+  superseded: { mark: '↻', cls: 'bg-paper-200 text-ink-700' },
+  revoked: { mark: '⊘', cls: 'bg-disagree-100 text-disagree-800' },
+};
+
+/** State badge: a mark and a word, so colour is never the only cue. */
+export function CertificateStateBadge({ state }: { state: CertificateState }) {
+  const s = styles[state];
+  return (
+    <span className={`inline-flex items-center gap-1 rounded px-1.5 py-0.5 text-xs font-medium ${s.cls}`} data-state={state}>
+      <span aria-hidden>{s.mark}</span>
+      {certificateStateLabels[state]}
+    </span>
+  );
+}
+
+/** Expanded quantity as the certificate prints it: value ± U (k = 2) unit. */
+export function formatExpanded(q: { value: number; expandedUncertainty: number; coverageFactor: number }, unit: string): string {
+  const decimals = q.expandedUncertainty > 0 ? Math.max(0, 1 - Math.floor(Math.log10(q.expandedUncertainty))) : 3;
+  return `${q.value.toFixed(decimals)} ± ${q.expandedUncertainty.toFixed(decimals)} ${unit} (k = ${q.coverageFactor})`;
+}

@@ -1,0 +1,71 @@
+import { createColumnHelper } from '@tanstack/react-table';
+import { useState } from 'react';
+import { Link } from 'react-router';
+import { certificateStateLabels, certificateStates, type CertificateState, type CertificateSummary } from '../../../shared/certificate-registry';
+import { useInstitutes } from '../../api/account';
+import { useCertificates } from '../../api/certificates';
+import { DataTable, type TableState } from '../../components/data-table';
+import { Caution, Field, inputClass, Panel } from '../../components/ui';
+import { CertificateStateBadge } from './certificate-state';
+
+const col = createColumnHelper<CertificateSummary>();
+const columns = [
+  col.accessor('number', { header: 'Number', cell: (c) => <Link to={`/certificates/${c.getValue()}`} className="font-mono">{c.getValue()}</Link> }),
+  col.accessor('campaignLabel', { header: 'Campaign' }),
+  col.accessor((r) => [r.instituteA?.code, r.instituteB?.code].filter(Boolean).join(' – '), { id: 'institutes', header: 'Institutes', enableSorting: false }),
+  col.accessor('state', {
+    header: 'State',
+    cell: (c) => (
+      <span className="space-y-0.5">
+        <CertificateStateBadge state={c.getValue()} />
+        {c.row.original.supersededByNumber && <span className="block text-xs text-ink-500">by {c.row.original.supersededByNumber}</span>}
+      </span>
+    ),
+  }),
+  col.accessor('issuedAt', { header: 'Issued (UTC)', cell: (c) => c.getValue().replace('T', ' ').slice(0, 16) }),
+  col.accessor('issuedBy', { header: 'Issued by', enableSorting: false, cell: (c) => c.getValue().replace(/ <.*$/, '') }),
+];
+
+export function CertificatesPage() {
+  const institutes = useInstitutes();
+  const [table, setTable] = useState<TableState>({ page: 1, pageSize: 20, sort: 'issuedAt', order: 'desc', q: '' });
+  const [state, setState] = useState<CertificateState | ''>('');
+  const [instituteId, setInstituteId] = useState('');
+  const [issuedFrom, setIssuedFrom] = useState('');
+  const [issuedTo, setIssuedTo] = useState('');
+  const list = useCertificates({
+    page: table.page, pageSize: table.pageSize, sort: table.sort as never, order: table.order, q: table.q || undefined,
+    state: state || undefined, instituteId: instituteId || undefined, issuedFrom: issuedFrom || undefined, issuedTo: issuedTo || undefined,
+  });
+  const reset = <T,>(set: (v: T) => void) => (v: T) => { set(v); setTable((t) => ({ ...t, page: 1 })); };
+  return (
+    <>
+      <header>
+        <h1>Certificates</h1>
+        <p className="text-sm text-ink-500">Every certificate issued by the coordinating institute, with its revisions and withdrawals. Nothing is ever deleted.</p>
+      </header>
+      <Panel>
+        <div className="mb-4 grid gap-3 md:grid-cols-4">
+          <Field label="State">
+            <select className={inputClass} value={state} onChange={(e) => reset(setState)(e.target.value as CertificateState | '')} aria-label="State">
+              <option value="">any</option>
+              {certificateStates.map((s) => <option key={s} value={s}>{certificateStateLabels[s]}</option>)}
+            </select>
+          </Field>
+          <Field label="Institute">
+            <select className={inputClass} value={instituteId} onChange={(e) => reset(setInstituteId)(e.target.value)} aria-label="Institute">
+              <option value="">any</option>
+              {institutes.data?.filter((i) => i.kind === 'laboratory').map((i) => <option key={i.id} value={i.id}>{i.code} · {i.name}</option>)}
+            </select>
+          </Field>
+          <Field label="Issued from"><input type="date" className={inputClass} value={issuedFrom} onChange={(e) => reset(setIssuedFrom)(e.target.value)} /></Field>
+          <Field label="Issued to"><input type="date" className={inputClass} value={issuedTo} onChange={(e) => reset(setIssuedTo)(e.target.value)} /></Field>
+        </div>
+        <DataTable columns={columns as never} rows={list.data?.items ?? []} total={list.data?.total ?? 0} state={table} onState={setTable}
+          loading={list.isFetching} filterLabel="Filter by number, campaign or SHA-256" />
+      </Panel>
+      <p className="text-sm text-ink-600">Someone sent you a certificate file? <Link to="/verify">Check it on the public verification page</Link>.</p>
+      <Caution />
+    </>
+  );
+}

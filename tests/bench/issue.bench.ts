@@ -1,0 +1,71 @@
+// Benchmark: issuing a certificate end to end inside one PostgreSQL transaction — serial number, snapshot,
+// render, RSA-3072 signature, INSERT of PDF + snapshot, audit event and participant mail — as the API does it.
+// The campaign/result part of the snapshot comes from the unit-test fixture so the figure isolates the
+// certificate work. Run with `npx tsx tests/bench/issue.bench.ts`; prints figures, never fails on time.
+import { randomUUID } from 'node:crypto';
+import { mkdtempSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import path from 'node:path';
+// @ts-expect-error plain ESM helper shared with `npm start`
+import { freePort, startCluster } from '../../scripts/lib/postgres.mjs';
+import { loadConfig } from '../../server/config';
+import { openDatabase } from '../../server/db/data-source';
+import { UserEntity } from '../../server/db/entities/core.entities';
+import type { CertificateSource } from '../../server/certificates/certificate-source.types';
+import { instituteSigningIdentity } from '../../server/certificates/institute-identity';
+import { issueCertificate } from '../../server/certificates/issue';
+import { seedDemo } from '../../seeds/demo';
+import { sampleSnapshot } from '../unit/certificates/fixtures/sample-snapshot';
+
+const tmp = mkdtempSync(path.join(tmpdir(), 'chronolevel-issue-bench-'));
+process.env.PG_FSYNC = 'on';
+const cluster = await startCluster({ dataDir: path.join(tmp, 'pg'), port: await freePort(), database: 'bench', log: () => {} });
+try {
+  const config = loadConfig({ DATABASE_URL: cluster.url, SECRETS_DIR: path.join(tmp, 'secrets'), SESSION_SECRET: 'bench-session-secret-0123456789', LOG_LEVEL: 'silent' });
+  process.env.SECRETS_DIR = config.secretsDir;
+  const ds = await openDatabase(cluster.url);
+  await seedDemo(ds);
+  const coordinator = await ds.getRepository(UserEntity).findOneByOrFail({ role: 'coordinator' });
+  const actor = { userId: coordinator.id, email: coordinator.email, displayName: coordinator.displayName, role: coordinator.role, instituteId: coordinator.instituteId, via: 'token' as const };
+  const institutes = await ds.query(`SELECT id FROM institute WHERE kind = 'laboratory' ORDER BY code`);
+
+  const {
+    certificateNumber: _n, revision: _r, issueDate: _d, issuingInstitute: _i, auditChainHead: _h, signer: _s, verificationUrl: _v, ...body
+  } = sampleSnapshot();
+  void [_n, _r, _d, _i, _h, _s, _v];
+  const sourceFor = (campaignId: string): CertificateSource => ({
+    campaignId, campaignLabel: 'Bench campaign', campaignState: 'accepted', instituteAId: institutes[0].id, instituteBId: institutes[1].id, resultId: null, body,
+  });
+
+  const t0 = performance.now();
+  await instituteSigningIdentity(config, { commonName: 'Bench signing', organization: 'Bench' });
+  const keyMs = performance.now() - t0;
+
+  const issueOnce = async () => {
+    const campaignId = randomUUID();
+    const start = performance.now();
+    const out = await ds.transaction((manager) =>
+      issueCertificate({ manager, config, actor, loadSource: async () => sourceFor(campaignId), markCertified: async () => undefined }, campaignId));
+    if (!out.created) throw new Error('bench issue did not create a certificate');
+    return { ms: performance.now() - start, bytes: out.row.pdfBytes };
+  };
+  for (let i = 0; i < 3; i++) await issueOnce(); // warm-up: fonts, JIT, connection pool
+
+  const runs = 20;
+  const times: number[] = [];
+  let bytes = 0;
+  for (let i = 0; i < runs; i++) {
+    const r = await issueOnce();
+    times.push(r.ms);
+    bytes = r.bytes;
+  }
+  const sorted = [...times].sort((a, b) => a - b);
+  const median = sorted[Math.floor(runs / 2)];
+  console.log(`signing identity (first use, RSA-3072 key generation or load): ${keyMs.toFixed(0)} ms`);
+  console.log(`issue certificate (serial + snapshot + render + sign + store + audit + mail, one transaction): median ${median.toFixed(1)} ms, min ${sorted[0].toFixed(1)} ms, max ${sorted[runs - 1].toFixed(1)} ms (${runs} runs; target < 1000 ms)`);
+  console.log(`signed file ${(bytes / 1024).toFixed(1)} KiB`);
+  await ds.destroy();
+} finally {
+  cluster.stop();
+  rmSync(tmp, { recursive: true, force: true });
+}
