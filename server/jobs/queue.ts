@@ -1,0 +1,43 @@
+import PgBoss from 'pg-boss';
+
+// The job queue: pg-boss keeps jobs in PostgreSQL (schema "pgboss", created on first start), so any number of
+// worker processes on any machine can share the work by pointing at the same database.
+
+export const ADJUSTMENT_QUEUE = 'adjustment-run';
+export type AdjustmentJob = { runId: string };
+
+export async function startBoss(databaseUrl: string, opts: { supervise?: boolean } = {}): Promise<PgBoss> {
+  const boss = new PgBoss({ connectionString: databaseUrl, max: 4, supervise: opts.supervise ?? true, schedule: false, application_name: 'chronolevel-jobs' });
+  boss.on('error', () => undefined); // transient errors are retried by pg-boss itself; job failures are stored on the run
+  await boss.start();
+  await boss.createQueue(ADJUSTMENT_QUEUE, { name: ADJUSTMENT_QUEUE, retryLimit: 2, retryDelay: 5, expireInMinutes: 60 });
+  return boss;
+}
+
+const senders = new Map<string, Promise<PgBoss>>();
+
+/** One sending connection per database, opened on first use by the HTTP process. */
+export function queueFor(databaseUrl: string): Promise<PgBoss> {
+  let p = senders.get(databaseUrl);
+  if (!p) {
+    p = startBoss(databaseUrl, { supervise: false });
+    p.catch(() => senders.delete(databaseUrl));
+    senders.set(databaseUrl, p);
+  }
+  return p;
+}
+
+export async function enqueueAdjustment(databaseUrl: string, runId: string): Promise<void> {
+  const boss = await queueFor(databaseUrl);
+  await boss.send(ADJUSTMENT_QUEUE, { runId } satisfies AdjustmentJob);
+}
+
+/** Closes the sending connection(s); tests call this in teardown so the process can exit. */
+export async function stopQueues(): Promise<void> {
+  const all = [...senders.values()];
+  senders.clear();
+  for (const p of all) {
+    const boss = await p.catch(() => null);
+    await boss?.stop({ graceful: false, wait: true });
+  }
+}

@@ -1,0 +1,382 @@
+import crypto from 'node:crypto';
+import type { DataSource, EntityManager } from 'typeorm';
+import type { PageQuery } from '../../shared/http';
+import {
+  adjustmentOptionsSchema, type AdjustmentOptionsInput, type AdjustmentRun, type AdjustmentRunDetail, type AdjustmentRunOptions,
+  type CalcAdjustBody, type CalcAdjustResult, type NetworkMap, type Reconciliation, type RunResult,
+} from '../../shared/network';
+import { recordAudit } from '../audit/audit.service';
+import type { Actor } from '../auth/actor';
+import { authorize } from '../auth/permissions';
+import { AdjustmentRunEntity, BenchmarkEntity, type AdjustmentRunRow } from '../db/entities/network.entities';
+import { AppError, Invalid, NotFound } from '../http/errors';
+import { adjustNetwork, AdjustmentInputError, type AdjustmentInput, type AdjustmentStage, type NetworkObservation, type NetworkPoint } from '../science/adjustment/gauss-markov';
+import { normalisedError } from '../science/agreement';
+import { meanNormalGravity, normalGravityAtHeight, normalHeightFromC } from '../science/normal-gravity';
+import { loadSectionsWithBenchmarks } from './network.service';
+import { clockDeltaCFor, loadAcceptedCampaigns, loadLinks, loadSites } from './registry-bridge';
+
+// Adjustment runs: gather the inputs (sections, site ties, accepted clock comparisons), store them with the options in
+// an immutable run row, let a pg-boss worker adjust them (server/jobs/worker.ts), and read the results back for the
+// run pages, the reconciliation of clocks with levelling and the map.
+
+export class NetworkNotConnected extends AppError {
+  constructor(message: string, parts: { codes: string[]; count: number }[]) {
+    super(422, 'network-not-connected', 'Part of the network has no datum', message, { parts });
+  }
+}
+
+/** Floor for a local tie entered with zero uncertainty: 0.1 mm (common practice; a weight needs σ > 0). */
+const TIE_SIGMA_FLOOR_M = 1e-4;
+
+type PointMeta = { kind: 'benchmark' | 'site'; label: string; datumName: string | null; latitudeDeg: number };
+type ObservationMeta = { label: string };
+export type StoredInputs = {
+  adjustment: AdjustmentInput;
+  pointMeta: Record<string, PointMeta>;
+  observationMeta: Record<string, ObservationMeta>;
+  clockCampaigns: { campaignId: string; observationId: string; crossesDatums: boolean }[];
+};
+
+export const sitePoint = (siteId: string) => `site:${siteId}`;
+
+/** Gathers the network as it is now into adjustment input (pure data, stored with the run). */
+export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptions): Promise<StoredInputs> {
+  const benchmarks = await m.getRepository(BenchmarkEntity).find({ where: { state: 'in-use' }, relations: { datum: true }, order: { code: 'ASC' } });
+  const inUse = new Map(benchmarks.map((b) => [b.code, b]));
+  const sections = (await loadSectionsWithBenchmarks(m)).filter((s) => inUse.has(s.fromBenchmark!.code) && inUse.has(s.toBenchmark!.code));
+  const pointMeta: Record<string, PointMeta> = {};
+  const observationMeta: Record<string, ObservationMeta> = {};
+  // Fixed benchmarks first, so the 'minimum' constraint holds a fixed benchmark.
+  const ordered = [...benchmarks].sort((a, b) => Number(b.fixed) - Number(a.fixed) || a.code.localeCompare(b.code));
+  const points: NetworkPoint[] = ordered.map((b) => {
+    pointMeta[b.code] = { kind: 'benchmark', label: `${b.code} ${b.name}`, datumName: b.datum?.name ?? null, latitudeDeg: b.latitudeDeg };
+    return b.fixed && b.knownC_m2s2 !== null ? { code: b.code, fixedC: b.knownC_m2s2 } : { code: b.code };
+  });
+  const sigmaPerSqrtKm_m = options.sigmaMmPerSqrtKm / 1000;
+  const observations: NetworkObservation[] = sections.map((s) => {
+    const id = `section:${s.id}`;
+    observationMeta[id] = { label: `${s.lineName ? `${s.lineName}: ` : ''}${s.fromBenchmark!.code} → ${s.toBenchmark!.code}` };
+    return {
+      id, kind: 'levelling', from: s.fromBenchmark!.code, to: s.toBenchmark!.code,
+      deltaC: s.meanGravity_ms2 * s.deltaHeightM, sigma: sigmaPerSqrtKm_m * Math.sqrt(s.lengthKm) * s.meanGravity_ms2,
+    };
+  });
+
+  // Sites enter as pseudo-points tied to their benchmark: C_site − C_bm = γ·Δh_tie (the tie is metres of height).
+  const sites = await loadSites(m);
+  const siteDatum = new Map<string, string | null>();
+  for (const site of sites) {
+    const bm = site.benchmarkCode ? inUse.get(site.benchmarkCode) : undefined;
+    if (!bm || site.tieHeightDifferenceM === null) continue;
+    const code = sitePoint(site.id);
+    const g = normalGravityAtHeight(site.latitudeDeg, bm.knownNormalHeightM ?? bm.ellipsoidalHeightM);
+    points.push({ code });
+    pointMeta[code] = { kind: 'site', label: `${site.instituteCode} ${site.name}`, datumName: bm.datum?.name ?? null, latitudeDeg: site.latitudeDeg };
+    siteDatum.set(site.id, bm.datum?.name ?? null);
+    const id = `tie:${site.id}`;
+    observationMeta[id] = { label: `local tie ${bm.code} → ${site.instituteCode} ${site.name}` };
+    observations.push({ id, kind: 'tie', from: bm.code, to: code, deltaC: g * site.tieHeightDifferenceM, sigma: g * Math.max(site.tieUncertaintyM ?? 0, TIE_SIGMA_FLOOR_M) });
+  }
+
+  const clockCampaigns: StoredInputs['clockCampaigns'] = [];
+  const offsets = new Set<string>();
+  if (options.includeClocks) {
+    for (const c of await loadAcceptedCampaigns(m)) {
+      if (!siteDatum.has(c.siteAId) || !siteDatum.has(c.siteBId)) continue;
+      if (clockCampaigns.some((x) => x.campaignId === c.id)) continue;
+      const dc = await clockDeltaCFor(m, c.id);
+      if (!dc) continue;
+      const da = siteDatum.get(c.siteAId);
+      const db = siteDatum.get(c.siteBId);
+      const crosses = da !== db;
+      const id = `clock:${c.id}`;
+      const ob: NetworkObservation = { id, kind: 'clock', from: sitePoint(c.siteAId), to: sitePoint(c.siteBId), deltaC: dc.deltaC_m2s2, sigma: dc.standardUncertainty_m2s2 };
+      if (crosses && options.datumOffsets) {
+        // Offset parameter: the clock sees true potential; the two datums' C differ by a constant the levelling cannot see.
+        ob.datumOffset = `${da} − ${db}`;
+        offsets.add(ob.datumOffset);
+      }
+      observationMeta[id] = { label: `clock comparison ${c.name}` };
+      observations.push(ob);
+      clockCampaigns.push({ campaignId: c.id, observationId: id, crossesDatums: crosses });
+    }
+  }
+  return {
+    adjustment: {
+      points, observations,
+      options: { alpha: options.alpha, alphaSnooping: options.alphaSnooping, constraint: options.constraint, datumOffsets: [...offsets] },
+    },
+    pointMeta, observationMeta, clockCampaigns,
+  };
+}
+
+/** Parts of the network that no datum point reaches (union–find); checked before a run is queued. */
+export function partsWithoutDatum(input: AdjustmentInput): { codes: string[]; count: number }[] {
+  const idx = new Map(input.points.map((p, i) => [p.code, i]));
+  const parent = input.points.map((_, i) => i);
+  const find = (i: number): number => {
+    while (parent[i] !== i) i = parent[i] = parent[parent[i]];
+    return i;
+  };
+  for (const o of input.observations) {
+    const a = idx.get(o.from);
+    const b = idx.get(o.to);
+    if (a !== undefined && b !== undefined) parent[find(a)] = find(b);
+  }
+  const minimum = input.options?.constraint === 'minimum';
+  const firstFixed = input.points.findIndex((p) => p.fixedC !== undefined);
+  const anchored = new Set<number>();
+  input.points.forEach((p, i) => {
+    if (minimum ? i === firstFixed : p.fixedC !== undefined) anchored.add(find(i));
+  });
+  // Datum offsets tie two parts together only through the offset itself, which they also estimate: no help.
+  const parts = new Map<number, string[]>();
+  input.points.forEach((p, i) => {
+    const r = find(i);
+    if (anchored.has(r)) return;
+    const list = parts.get(r) ?? [];
+    list.push(p.code);
+    parts.set(r, list);
+  });
+  return [...parts.values()].map((codes) => ({ codes: codes.slice(0, 8), count: codes.length }));
+}
+
+function describeParts(parts: { codes: string[]; count: number }[]) {
+  return parts.map((p) => `${p.codes.join(', ')}${p.count > p.codes.length ? ` (+${p.count - p.codes.length} more)` : ''}`).join('; ');
+}
+
+export function toRunDto(r: AdjustmentRunRow): AdjustmentRun {
+  return {
+    id: r.id, state: r.state, progress: r.progress, stage: r.stage,
+    options: adjustmentOptionsSchema.parse(r.options),
+    inputSummary: r.inputSummary as AdjustmentRun['inputSummary'],
+    error: (r.error as AdjustmentRun['error']) ?? null,
+    createdBy: r.createdBy, createdAt: r.createdAt.toISOString(),
+    startedAt: r.startedAt?.toISOString() ?? null, finishedAt: r.finishedAt?.toISOString() ?? null,
+    sigma0: r.sigma0, degreesOfFreedom: r.degreesOfFreedom, globalTestPassed: r.globalTestPassed, suspects: r.suspects,
+  };
+}
+
+/** Runs the adjustment on stored inputs and shapes the result for storage (pure apart from the clock). */
+export function computeRunResult(inputs: StoredInputs, onProgress?: (fraction: number, stage: AdjustmentStage) => void): RunResult {
+  const t0 = performance.now();
+  const res = adjustNetwork({ ...inputs.adjustment, options: { ...inputs.adjustment.options, onProgress } });
+  const points = res.points.map((p) => {
+    const meta = inputs.pointMeta[p.code];
+    const h = normalHeightFromC(p.c, meta.latitudeDeg);
+    return {
+      code: p.code, kind: meta.kind, label: meta.label, datumName: meta.datumName, latitudeDeg: meta.latitudeDeg,
+      c_m2s2: p.c, sigmaC_m2s2: p.sigma, normalHeightM: h, sigmaHeightM: p.sigma / meanNormalGravity(meta.latitudeDeg, h),
+      datum: p.datum, knownC_m2s2: p.knownC ?? null,
+    };
+  });
+  const observations = res.observations.map((o) => ({
+    id: o.id ?? String(o.index), kind: o.kind, from: o.from, to: o.to, label: inputs.observationMeta[o.id ?? '']?.label ?? `${o.from} → ${o.to}`,
+    deltaC_m2s2: o.deltaC, sigma_m2s2: inputs.adjustment.observations[o.index].sigma, residual_m2s2: o.residual, redundancy: o.redundancy,
+    standardizedResidual: o.standardizedResidual, suspected: o.suspected,
+  }));
+  const g = 9.81;
+  return {
+    points, observations,
+    datumOffsets: res.datumOffsets.map((d) => ({ name: d.name, value_m2s2: d.value, sigma_m2s2: d.sigma, valueMm: (d.value / g) * 1000, sigmaMm: (d.sigma / g) * 1000 })),
+    unknowns: res.unknowns, degreesOfFreedom: res.degreesOfFreedom, vtpv: res.vtpv, sigma0: res.sigma0,
+    globalTest: res.globalTest ? { statistic: res.globalTest.statistic, lower: res.globalTest.lower, critical: res.globalTest.critical, alpha: res.globalTest.alpha, passed: res.globalTest.passed } : null,
+    snooping: {
+      alpha0: res.snooping.alpha0, criticalValue: res.snooping.criticalValue,
+      suspects: res.snooping.suspects.map((s) => ({
+        id: s.id ?? s.code ?? String(s.index),
+        label: s.source === 'observation' ? inputs.observationMeta[s.id ?? '']?.label ?? `${s.from} → ${s.to}` : `fixed point ${s.code}`,
+        standardizedResidual: s.standardizedResidual,
+      })),
+    },
+    redundancySum: res.observations.reduce((a, o) => a + o.redundancy, 0) + res.fixedPointObservations.reduce((a, o) => a + o.redundancy, 0),
+    elapsedMs: performance.now() - t0,
+  };
+}
+
+/** The job body: executes one queued run and stores its result or its failure; never leaves it 'running'. */
+export async function executeRun(dataSource: DataSource, runId: string, onProgress?: (fraction: number, stage: string) => Promise<void> | void) {
+  const repo = dataSource.getRepository(AdjustmentRunEntity);
+  const run = await repo.findOneBy({ id: runId });
+  if (!run || run.state === 'done' || run.state === 'failed') return;
+  await repo.update({ id: runId }, { state: 'running', startedAt: new Date(), progress: 0.02, stage: 'loading inputs' });
+  await onProgress?.(0.02, 'loading inputs');
+  let lastWrite = 0;
+  const pending: Promise<unknown>[] = [];
+  try {
+    const result = computeRunResult(run.inputs as unknown as StoredInputs, (fraction, stage) => {
+      // adjustNetwork is synchronous: these writes are queued and land as it yields; the last stage wins.
+      if (fraction - lastWrite < 0.1 && fraction < 1) return;
+      lastWrite = fraction;
+      pending.push(Promise.resolve(onProgress?.(0.05 + 0.85 * fraction, stage)));
+      pending.push(repo.update({ id: runId, state: 'running' }, { progress: 0.05 + 0.85 * fraction, stage }));
+    });
+    await Promise.all(pending);
+    await repo.update({ id: runId }, { progress: 0.95, stage: 'storing results' });
+    await onProgress?.(0.95, 'storing results');
+    await repo.update({ id: runId }, {
+      state: 'done', progress: 1, stage: 'finished', result: result as never, finishedAt: new Date(),
+      sigma0: result.sigma0, degreesOfFreedom: result.degreesOfFreedom, globalTestPassed: result.globalTest?.passed ?? null,
+      suspects: result.snooping.suspects.length,
+    });
+  } catch (e) {
+    await Promise.allSettled(pending);
+    const error = e instanceof AdjustmentInputError
+      ? { message: e.message, reason: e.detail.reason, ...(e.detail.parts ? { parts: e.detail.parts } : {}) }
+      : { message: e instanceof Error ? e.message : String(e) };
+    await repo.update({ id: runId }, { state: 'failed', stage: 'failed', error: error as never, finishedAt: new Date() });
+  }
+}
+
+export type Enqueue = (runId: string) => Promise<void>;
+
+export function createAdjustmentService(dataSource: DataSource) {
+  async function latestDone(m: EntityManager, withClocks: boolean | null): Promise<AdjustmentRunRow | null> {
+    const qb = m.getRepository(AdjustmentRunEntity).createQueryBuilder('r').where("r.state = 'done'").orderBy('r.finished_at', 'DESC').addOrderBy('r.created_at', 'DESC');
+    if (withClocks !== null) qb.andWhere(`(r.options->>'includeClocks')::boolean = :w`, { w: withClocks });
+    return qb.getOne();
+  }
+
+  return {
+    /** Stores a queued run with its inputs and options and hands it to the queue; returns at once (202). */
+    async createRun(actor: Actor, optionsIn: AdjustmentOptionsInput, enqueue: Enqueue): Promise<AdjustmentRun> {
+      authorize(actor, 'network:write');
+      const options = adjustmentOptionsSchema.parse(optionsIn);
+      const row = await dataSource.transaction(async (m) => {
+        const inputs = await gatherInputs(m, options);
+        if (inputs.adjustment.observations.length === 0) throw new Invalid('There are no levelling sections to adjust.', [{ path: 'body', message: 'no observations' }]);
+        const parts = partsWithoutDatum(inputs.adjustment);
+        if (parts.length) {
+          throw new NetworkNotConnected(`These parts of the network reach no fixed benchmark: ${describeParts(parts)}. Fix a benchmark in each part or connect it.`, parts);
+        }
+        const json = JSON.stringify(inputs);
+        const count = (k: string) => inputs.adjustment.observations.filter((o) => o.kind === k).length;
+        const saved = await m.getRepository(AdjustmentRunEntity).save({
+          state: 'queued', progress: 0, stage: 'queued', options: options as never, inputs: inputs as never,
+          inputSummary: {
+            benchmarks: Object.values(inputs.pointMeta).filter((p) => p.kind === 'benchmark').length,
+            sections: count('levelling'), ties: count('tie'), clocks: count('clock'),
+            inputSha256: crypto.createHash('sha256').update(json).digest('hex'),
+          },
+          createdBy: actor.userId,
+        });
+        await recordAudit(m, actor, { action: 'adjustment-run.queued', entityType: 'adjustment-run', entityId: saved.id, details: { options, inputSha256: saved.inputSummary.inputSha256 } });
+        return saved;
+      });
+      await enqueue(row.id);
+      return toRunDto(row);
+    },
+    async listRuns(actor: Actor, q: PageQuery) {
+      authorize(actor, 'network:read');
+      const [rows, total] = await dataSource.getRepository(AdjustmentRunEntity).findAndCount({
+        select: { id: true, state: true, progress: true, stage: true, options: true, inputSummary: true, error: true, createdBy: true, createdAt: true, startedAt: true, finishedAt: true, sigma0: true, degreesOfFreedom: true, globalTestPassed: true, suspects: true },
+        order: { createdAt: 'DESC' }, skip: (q.page - 1) * q.pageSize, take: q.pageSize,
+      });
+      return { items: rows.map(toRunDto), total, page: q.page, pageSize: q.pageSize };
+    },
+    async getRun(actor: Actor, id: string): Promise<AdjustmentRunDetail> {
+      authorize(actor, 'network:read');
+      const r = await dataSource.getRepository(AdjustmentRunEntity).findOneBy({ id });
+      if (!r) throw new NotFound('Adjustment run');
+      return { ...toRunDto(r), result: (r.result as RunResult | null) ?? null };
+    },
+
+    async reconciliation(actor: Actor): Promise<Reconciliation> {
+      authorize(actor, 'network:read');
+      const m = dataSource.manager;
+      const levelling = await latestDone(m, false);
+      const withClocks = await latestDone(m, true);
+      const campaigns = await loadAcceptedCampaigns(m);
+      const links = new Map((await loadLinks(m)).map((l) => [l.id, l]));
+      const sites = new Map((await loadSites(m)).map((s) => [s.id, s]));
+      const lv = levelling?.result as RunResult | null;
+      const byCode = new Map(lv?.points.map((p) => [p.code, p]) ?? []);
+      const rows: Reconciliation['rows'] = [];
+      for (const c of campaigns) {
+        const dc = await clockDeltaCFor(m, c.id);
+        if (!dc) continue;
+        const a = byCode.get(sitePoint(c.siteAId));
+        const b = byCode.get(sitePoint(c.siteBId));
+        const siteA = sites.get(c.siteAId);
+        const siteB = sites.get(c.siteBId);
+        const clockU = 2 * dc.standardUncertainty_m2s2;
+        let levellingDeltaC: number | null = null;
+        let levellingU: number | null = null;
+        let note: string | null = null;
+        if (a && b) {
+          levellingDeltaC = b.c_m2s2 - a.c_m2s2;
+          // Covariance between the two sites is not stored; the root-sum-square is conservative when they share a datum path.
+          levellingU = 2 * Math.hypot(a.sigmaC_m2s2, b.sigmaC_m2s2);
+        } else note = lv ? 'a site of this link has no local tie to a benchmark of the adjusted network' : 'no levelling-only adjustment run yet';
+        const crosses = !!(a && b && a.datumName !== b.datumName);
+        const agreement = levellingDeltaC !== null && levellingU !== null && clockU + levellingU > 0 ? normalisedError(dc.deltaC_m2s2, clockU, levellingDeltaC, levellingU) : null;
+        if (crosses) note = `the link joins ${a!.datumName} and ${b!.datumName}: the difference includes the offset between the two datums`;
+        rows.push({
+          linkId: c.linkId, linkLabel: links.get(c.linkId)?.name ?? c.linkId, campaignId: c.id, campaignLabel: c.name,
+          fromSite: siteA ? `${siteA.instituteCode} ${siteA.name}` : c.siteAId, toSite: siteB ? `${siteB.instituteCode} ${siteB.name}` : c.siteBId,
+          crossesDatums: crosses, clockDeltaC_m2s2: dc.deltaC_m2s2, clockExpandedU_m2s2: clockU,
+          levellingDeltaC_m2s2: levellingDeltaC, levellingExpandedU_m2s2: levellingU,
+          difference_m2s2: agreement?.difference ?? null, en: agreement?.en ?? null, agreed: agreement?.agreed ?? null, note,
+        });
+      }
+      const message = rows.length === 0
+        ? campaigns.length === 0
+          ? 'No campaign has been accepted yet, so there is nothing to reconcile.'
+          : 'Accepted campaigns exist, but none has a computed result yet: nothing to compare with the levelling.'
+        : lv ? null : 'No adjustment run without clock observations has finished yet: start one to get the levelling side.';
+      return {
+        levellingRunId: levelling?.id ?? null, levellingRunAt: levelling?.finishedAt?.toISOString() ?? null, clockRunId: withClocks?.id ?? null,
+        rows, datumOffsets: (withClocks?.result as RunResult | null)?.datumOffsets ?? [], message,
+      };
+    },
+
+    async map(actor: Actor): Promise<NetworkMap> {
+      authorize(actor, 'network:read');
+      const m = dataSource.manager;
+      const benchmarks = await m.getRepository(BenchmarkEntity).find({ relations: { datum: true }, order: { code: 'ASC' } });
+      const sections = await loadSectionsWithBenchmarks(m);
+      const run = await latestDone(m, null);
+      const result = run?.result as RunResult | null;
+      const obs = new Map(result?.observations.map((o) => [o.id, o]) ?? []);
+      const sites = await loadSites(m);
+      const links = await loadLinks(m);
+      const recon = await this.reconciliation(actor);
+      const enByLink = new Map(recon.rows.map((r) => [r.linkId, r.en]));
+      return {
+        benchmarks: benchmarks.map((b) => ({ id: b.id, code: b.code, name: b.name, latitudeDeg: b.latitudeDeg, longitudeDeg: b.longitudeDeg, fixed: b.fixed, destroyed: b.state === 'destroyed', datumName: b.datum?.name ?? '' })),
+        sections: sections.map((s) => {
+          const o = obs.get(`section:${s.id}`);
+          return { id: s.id, fromCode: s.fromBenchmark!.code, toCode: s.toBenchmark!.code, lineName: s.lineName, standardizedResidual: o?.standardizedResidual ?? null, suspected: o?.suspected ?? false };
+        }),
+        sites: sites.map((s) => ({ id: s.id, code: s.instituteCode, name: s.name, latitudeDeg: s.latitudeDeg, longitudeDeg: s.longitudeDeg, benchmarkCode: s.benchmarkCode })),
+        links: links.map((l) => ({ id: l.id, label: l.name, fromSiteId: l.siteAId, toSiteId: l.siteBId, en: enByLink.get(l.id) ?? null })),
+        runId: run?.id ?? null,
+      };
+    },
+  };
+}
+
+/** The stateless calculator: adjusts what the caller sends, stores nothing. */
+export function calcAdjust(actor: Actor, body: CalcAdjustBody): CalcAdjustResult {
+  authorize(actor, 'calc:use');
+  let res;
+  try {
+    res = adjustNetwork({ points: body.points, observations: body.observations.map((o, i) => ({ ...o, id: String(i) })) });
+  } catch (e) {
+    if (e instanceof AdjustmentInputError) {
+      if (e.detail.reason === 'disconnected') {
+        const parts = e.detail.parts ?? [];
+        throw new NetworkNotConnected(`These parts of the network reach no fixed point: ${describeParts(parts)}.`, parts);
+      }
+      throw new Invalid(e.message, [{ path: `body.${e.detail.path ?? e.detail.unknown ?? 'points'}`, message: e.message }]);
+    }
+    throw e;
+  }
+  return {
+    points: res.points.map((p) => ({ code: p.code, c: p.c, sigma: p.sigma })),
+    observations: res.observations.map((o) => ({ from: o.from, to: o.to, residual: o.residual, redundancy: o.redundancy, standardizedResidual: o.standardizedResidual })),
+    sigma0: res.sigma0, degreesOfFreedom: res.degreesOfFreedom,
+    globalTest: res.globalTest ? { statistic: res.globalTest.statistic, critical: res.globalTest.critical, passed: res.globalTest.passed } : null,
+  };
+}

@@ -1,0 +1,257 @@
+import { inverse, Matrix } from 'ml-matrix';
+import request from 'supertest';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { stopQueues } from '../../server/jobs/queue';
+import { startWorker, type Worker } from '../../server/jobs/worker';
+import { chiSquareQuantile } from '../../server/science/adjustment/distributions';
+import { createTestApp, tokenFor, type TestApp } from '../helpers/test-app';
+
+// The levelling network API against a real PostgreSQL with the demo network seeded, and a pg-boss worker on the
+// same test database (the HTTP route only enqueues; the worker adjusts).
+
+let t: TestApp;
+let worker: Worker;
+let coordinator: string;
+let operator: string;
+let auditor: string;
+const bearer = (tok: string) => ({ authorization: `Bearer ${tok}` });
+
+beforeAll(async () => {
+  t = await createTestApp();
+  worker = await startWorker({ dataSource: t.ds, databaseUrl: t.databaseUrl, pollingIntervalSeconds: 0.5 });
+  coordinator = await tokenFor(t, 'ansel.brandt@geopotential-office.invalid');
+  operator = await tokenFor(t, 'ines.varga@saltmarsh-lab.invalid');
+  auditor = await tokenFor(t, 'petra.lind@audit-bureau.invalid');
+});
+afterAll(async () => {
+  await worker?.stop();
+  await stopQueues();
+  await t?.close();
+});
+
+async function datumId(name: string): Promise<string> {
+  const res = await request(t.app).get('/api/v1/network/datums').set(bearer(auditor));
+  return res.body.find((d: { name: string }) => d.name === name).id;
+}
+
+describe('datums and benchmarks', () => {
+  it('lists the two invented datums with their tide systems', async () => {
+    const res = await request(t.app).get('/api/v1/network/datums').set(bearer(auditor));
+    expect(res.status).toBe(200);
+    expect(res.body.map((d: { name: string; tideSystem: string }) => `${d.name}/${d.tideSystem}`).sort()).toEqual(['Coastal Datum 1987/zero-tide', 'Highland Datum 2004/mean-tide']);
+  });
+
+  it('creates a datum and a benchmark entered as normal height in UTM, stores entered and GRS80 values', async () => {
+    const d = await request(t.app).post('/api/v1/network/datums').set(bearer(coordinator)).send({ name: 'Test Datum', tideSystem: 'tide-free', realisationEpoch: '2020.0' });
+    expect(d.status).toBe(201);
+    expect(d.body.loopToleranceMmPerSqrtKm).toBe(4);
+    // EPSG Guidance Note 7-2 style: E 500000 on the central meridian (9°E for zone 32) — the longitude must come back as 9°.
+    const b = await request(t.app).post('/api/v1/network/benchmarks').set(bearer(coordinator)).send({
+      code: 'T-1', name: 'Test bolt', datumId: d.body.id, crs: 'EPSG:25832', coordinates: [500000, 6000000], known: { kind: 'H', value: 100, uncertainty: 0.002 }, fixed: true,
+    });
+    expect(b.status).toBe(201);
+    expect(b.body.longitudeDeg).toBeCloseTo(9, 9); // UTM central meridian of zone 32 (definition of UTM)
+    // C = H·γ̄ with γ̄ between GRS80 equatorial and polar normal gravity, 9.7803–9.8322 m/s² (Moritz 2000, J Geod 74).
+    expect(b.body.knownC_m2s2 / 100).toBeGreaterThan(9.7803);
+    expect(b.body.knownC_m2s2 / 100).toBeLessThan(9.8322);
+    const [row] = await t.ds.query('SELECT crs, coordinates_entered, known_entered_as, fixed FROM benchmark WHERE code = $1', ['T-1']);
+    expect(row).toEqual({ crs: 'EPSG:25832', coordinates_entered: [500000, 6000000], known_entered_as: 'H', fixed: true });
+    const dup = await request(t.app).post('/api/v1/network/benchmarks').set(bearer(coordinator)).send({ code: 'T-1', name: 'again', datumId: d.body.id, crs: 'EPSG:4937', coordinates: [9, 54] });
+    expect(dup.status).toBe(409);
+    const bad = await request(t.app).post('/api/v1/network/benchmarks').set(bearer(coordinator)).send({ code: 'T-2', name: 'x', datumId: d.body.id, crs: 'EPSG:99999', coordinates: [9, 54] });
+    expect(bad.status).toBe(400);
+    expect(bad.body.issues[0].path).toBe('body.crs');
+  });
+
+  it('refuses writes by lab staff and auditors', async () => {
+    for (const tok of [operator, auditor]) {
+      const res = await request(t.app).post('/api/v1/network/datums').set(bearer(tok)).send({ name: 'X', tideSystem: 'mean-tide' });
+      expect(res.status).toBe(403);
+    }
+  });
+
+  it('pages, sorts and filters benchmarks on the server', async () => {
+    const res = await request(t.app).get('/api/v1/network/benchmarks?pageSize=5&sort=code&order=desc&q=HD-').set(bearer(auditor));
+    expect(res.status).toBe(200);
+    expect(res.body.items).toHaveLength(5);
+    expect(res.body.total).toBe(14);
+    const codes = res.body.items.map((b: { code: string }) => b.code);
+    expect(codes).toEqual([...codes].sort().reverse());
+  });
+});
+
+describe('levelling sections CSV', () => {
+  const upload = (csv: string, preview = false) =>
+    request(t.app).post(`/api/v1/network/sections/upload?preview=${preview}`).set(bearer(coordinator)).attach('file', Buffer.from(csv), 'sections.csv');
+
+  it('names the first bad line and column and stores nothing', async () => {
+    const before = (await t.ds.query('SELECT count(*)::int AS n FROM levelling_section'))[0].n;
+    const csv = 'line,from,to,delta_h_m,length_km\nTest,CD-01,CD-05,1.234,3.1\nTest,CD-05,CD-09,2.5x,3.3\nTest,CD-09,CD-10,0.5,2\n';
+    const res = await upload(csv);
+    expect(res.status).toBe(400);
+    expect(res.body.issues[0]).toMatchObject({ line: 3, column: 'delta_h_m' });
+    expect(res.body.detail).toContain('Line 3, column delta_h_m');
+    const unknown = await upload('line,from,to,delta_h_m,length_km\nTest,CD-01,CD-05,1.234,3.1\nTest,CD-05,NOPE-1,2.5,3.3\n');
+    expect(unknown.status).toBe(400);
+    expect(unknown.body.issues[0]).toMatchObject({ line: 3, column: 'to' });
+    const missing = await upload('line,from,delta_h_m,length_km\nT,CD-01,1,2\n');
+    expect(missing.status).toBe(400);
+    expect(missing.body.issues[0]).toMatchObject({ line: 1, column: 'to' });
+    expect((await t.ds.query('SELECT count(*)::int AS n FROM levelling_section'))[0].n).toBe(before);
+  });
+
+  it('previews without storing, then stores in one go, flags run differences and refuses the same file twice', async () => {
+    const before = (await t.ds.query('SELECT count(*)::int AS n FROM levelling_section'))[0].n;
+    // forward + backward = 12 mm on 4 km against 4 mm·√4 = 8 mm (FGCC 1984 first-order class II section, from memory).
+    const csv = '# test upload\nline,from,to,delta_h_m,length_km,mean_gravity_ms2,observed_on,forward_m,backward_m\nDiagonal,CD-01,CD-06,,4,,2024-05-01,3.010,-2.998\nDiagonal,CD-06,CD-11,0.7,5.5,9.8141,2024-05-02,,\n';
+    const pre = await upload(csv, true);
+    expect(pre.status).toBe(200);
+    expect(pre.body.stored).toBe(false);
+    expect(pre.body.rows[0]).toMatchObject({ line: 3, gravityFromNormal: true, runCheckPassed: false, deltaHeightM: 3.004 });
+    expect(pre.body.warnings[0].line).toBe(3);
+    expect((await t.ds.query('SELECT count(*)::int AS n FROM levelling_section'))[0].n).toBe(before);
+    const res = await upload(csv);
+    expect(res.status).toBe(201);
+    const rows = await t.ds.query('SELECT line_name, gravity_from_normal, mean_gravity_ms2, upload_sha256 FROM levelling_section WHERE line_name = $1 ORDER BY created_at', ['Diagonal']);
+    expect(rows).toHaveLength(2);
+    expect(rows[0].gravity_from_normal).toBe(true);
+    expect(rows[1].mean_gravity_ms2).toBe(9.8141);
+    expect(rows[0].upload_sha256).toBe(res.body.sha256);
+    expect((await upload(csv)).status).toBe(409);
+    // clean up so the loop and run tests see the demo network only
+    await t.ds.query("DELETE FROM levelling_section WHERE line_name = 'Diagonal'");
+  });
+});
+
+describe('loops', () => {
+  it('reports the loops through the planted blunder as failing, failing loops first', async () => {
+    const id = await datumId('Coastal Datum 1987');
+    const res = await request(t.app).get(`/api/v1/network/loops?datumId=${id}`).set(bearer(auditor));
+    expect(res.status).toBe(200);
+    expect(res.body.failing).toBeGreaterThan(0);
+    expect(res.body.loops[0].passed).toBe(false);
+    expect(res.body.loops[0].sections.some((s: { lineName: string }) => s.lineName === 'Dune road')).toBe(true);
+    // tolerance k·√L (FGCC 1984 §3.5), k = 4 mm/√km set on the datum
+    const l = res.body.loops[0];
+    expect(l.toleranceMm).toBeCloseTo(4 * Math.sqrt(l.lengthKm), 9);
+    const firstPassing = res.body.loops.findIndex((x: { passed: boolean }) => x.passed);
+    expect(res.body.loops.slice(firstPassing).every((x: { passed: boolean }) => x.passed)).toBe(true);
+    // independent loops = sections − points + parts (Euler's formula for graphs; Paton 1969):
+    // 17 lattice sections + 4 to the lab benchmark and the southern line; 12 + 1 + 2 points; one part
+    expect(res.body.independentLoops).toBe(21 - 15 + 1);
+  });
+});
+
+describe('adjustment runs through the job queue', () => {
+  it('enqueues (202), the worker adjusts, results are stored and the blunder is suspected', async () => {
+    const start = await request(t.app).post('/api/v1/network/runs').set(bearer(coordinator)).send({ sigmaMmPerSqrtKm: 1 });
+    expect(start.status).toBe(202);
+    expect(start.body.state).toBe('queued');
+    let run = start.body;
+    for (let i = 0; i < 120 && !['done', 'failed'].includes(run.state); i++) {
+      await new Promise((r) => setTimeout(r, 250));
+      run = (await request(t.app).get(`/api/v1/network/runs/${start.body.id}`).set(bearer(auditor))).body;
+    }
+    expect(run.state).toBe('done');
+    expect(run.progress).toBe(1);
+    const r = run.result;
+    // Σ redundancy numbers = degrees of freedom (trace of the redundancy matrix; Ghilani 2017 ch. 21)
+    expect(r.redundancySum).toBeCloseTo(r.degreesOfFreedom, 8);
+    expect(r.degreesOfFreedom).toBe(r.observations.length - r.unknowns);
+    // Baarda's w-test critical value for α0 = 0.001 two-sided: 3.29 (normal quantile, standard table)
+    expect(r.snooping.criticalValue).toBeCloseTo(3.29, 2);
+    const worst = [...r.observations].sort((a, b) => Math.abs(b.standardizedResidual ?? 0) - Math.abs(a.standardizedResidual ?? 0))[0];
+    expect(worst.label).toContain('Dune road');
+    expect(worst.suspected).toBe(true);
+    // Global test, α = 0.05: upper bound is the χ² quantile at 0.975 with dof (common statistical table)
+    expect(r.globalTest.critical).toBeCloseTo(chiSquareQuantile(0.975, r.degreesOfFreedom), 9);
+    const [row] = await t.ds.query('SELECT state, degrees_of_freedom, suspects, result IS NOT NULL AS has FROM adjustment_run WHERE id = $1', [run.id]);
+    expect(row).toEqual({ state: 'done', degrees_of_freedom: r.degreesOfFreedom, suspects: r.snooping.suspects.length, has: true });
+    await expect(t.ds.query("UPDATE adjustment_run SET stage = 'x' WHERE id = $1", [run.id])).rejects.toThrow(/cannot be changed/);
+    await expect(t.ds.query('DELETE FROM adjustment_run WHERE id = $1', [run.id])).rejects.toThrow(/kept for good/);
+  });
+
+  it('answers 422 naming the part of the network that reaches no fixed benchmark', async () => {
+    const d = await datumId('Highland Datum 2004');
+    for (const code of ['ISO-1', 'ISO-2']) {
+      const b = await request(t.app).post('/api/v1/network/benchmarks').set(bearer(coordinator)).send({ code, name: code, datumId: d, crs: 'EPSG:4937', coordinates: [10.9, 51.1, 400] });
+      expect(b.status).toBe(201);
+    }
+    const s = await request(t.app).post('/api/v1/network/sections').set(bearer(coordinator)).send({ fromCode: 'ISO-1', toCode: 'ISO-2', deltaHeightM: 1.5, lengthKm: 2 });
+    expect(s.status).toBe(201);
+    const runsBefore = (await t.ds.query('SELECT count(*)::int AS n FROM adjustment_run'))[0].n;
+    const res = await request(t.app).post('/api/v1/network/runs').set(bearer(coordinator)).send({});
+    expect(res.status).toBe(422);
+    expect(res.headers['content-type']).toContain('application/problem+json');
+    expect(res.body.parts[0].codes.sort()).toEqual(['ISO-1', 'ISO-2']);
+    expect(res.body.detail).toContain('ISO-1');
+    expect((await t.ds.query('SELECT count(*)::int AS n FROM adjustment_run'))[0].n).toBe(runsBefore);
+    await request(t.app).delete(`/api/v1/network/sections/${s.body.id}`).set(bearer(coordinator)).expect(204);
+  });
+});
+
+describe('POST /api/v1/calc/adjust', () => {
+  // Small network: A held at 100, B, C, D free; six observations with different σ.
+  const points = [{ code: 'A', fixedC: 100 }, { code: 'B' }, { code: 'C' }, { code: 'D' }];
+  const observations = [
+    { from: 'A', to: 'B', deltaC: 10.012, sigma: 0.01 },
+    { from: 'B', to: 'C', deltaC: 5.004, sigma: 0.012 },
+    { from: 'C', to: 'D', deltaC: -3.001, sigma: 0.01 },
+    { from: 'D', to: 'A', deltaC: -12.02, sigma: 0.015 },
+    { from: 'A', to: 'C', deltaC: 15.0, sigma: 0.02 },
+    { from: 'B', to: 'D', deltaC: 1.995, sigma: 0.014 },
+  ];
+
+  it('agrees with a dense least-squares solution computed with ml-matrix', async () => {
+    const res = await request(t.app).post('/api/v1/calc/adjust').set(bearer(operator)).send({ points, observations });
+    expect(res.status).toBe(200);
+    // Reference: ml-matrix (npm, general linear algebra), normal equations N = AᵀPA, x = N⁻¹AᵀPl (Ghilani 2017 ch. 12).
+    const unknowns = ['B', 'C', 'D'];
+    const A = new Matrix(observations.length, 3);
+    const l: number[] = [];
+    const P = Matrix.zeros(observations.length, observations.length);
+    observations.forEach((o, i) => {
+      const j = unknowns.indexOf(o.to);
+      const k = unknowns.indexOf(o.from);
+      if (j >= 0) A.set(i, j, 1);
+      if (k >= 0) A.set(i, k, -1);
+      l.push(o.deltaC + (o.from === 'A' ? 100 : 0) - (o.to === 'A' ? 100 : 0));
+      P.set(i, i, 1 / o.sigma ** 2);
+    });
+    const L = Matrix.columnVector(l);
+    const Qxx = inverse(A.transpose().mmul(P).mmul(A));
+    const x = Qxx.mmul(A.transpose().mmul(P).mmul(L));
+    const v = A.mmul(x).sub(L);
+    const vtpv = v.transpose().mmul(P).mmul(v).get(0, 0);
+    unknowns.forEach((u, j) => {
+      const p = res.body.points.find((q: { code: string }) => q.code === u);
+      expect(p.c).toBeCloseTo(x.get(j, 0), 9);
+      expect(p.sigma).toBeCloseTo(Math.sqrt(Qxx.get(j, j)), 9);
+    });
+    const Qll = A.mmul(Qxx).mmul(A.transpose());
+    observations.forEach((o, i) => {
+      const got = res.body.observations[i];
+      expect(got.residual).toBeCloseTo(v.get(i, 0), 9);
+      const r = 1 - Qll.get(i, i) / o.sigma ** 2;
+      expect(got.redundancy).toBeCloseTo(r, 9);
+      expect(got.standardizedResidual).toBeCloseTo(v.get(i, 0) / (o.sigma * Math.sqrt(r)), 6);
+    });
+    expect(res.body.degreesOfFreedom).toBe(3);
+    expect(res.body.sigma0).toBeCloseTo(Math.sqrt(vtpv / 3), 9);
+    expect(res.body.globalTest.statistic).toBeCloseTo(vtpv, 9);
+  });
+
+  it('answers 400 with field paths for bad input and 422 for a disconnected part', async () => {
+    const bad = await request(t.app).post('/api/v1/calc/adjust').set(bearer(operator)).send({ points, observations: [{ from: 'A', to: 'B', deltaC: 'x', sigma: -1 }] });
+    expect(bad.status).toBe(400);
+    expect(bad.body.issues.map((i: { path: string }) => i.path)).toEqual(expect.arrayContaining(['body.observations.0.deltaC', 'body.observations.0.sigma']));
+    const unknown = await request(t.app).post('/api/v1/calc/adjust').set(bearer(operator)).send({ points, observations: [{ from: 'A', to: 'Z', deltaC: 1, sigma: 1 }] });
+    expect(unknown.status).toBe(400);
+    expect(unknown.body.issues[0].path).toBe('body.observations[0].to');
+    const cut = await request(t.app).post('/api/v1/calc/adjust').set(bearer(operator)).send({
+      points: [...points, { code: 'E' }, { code: 'F' }], observations: [...observations, { from: 'E', to: 'F', deltaC: 1, sigma: 0.01 }],
+    });
+    expect(cut.status).toBe(422);
+    expect(cut.body.parts[0].codes.sort()).toEqual(['E', 'F']);
+  });
+});
