@@ -2,6 +2,7 @@ import type { DataSource, EntityManager } from 'typeorm';
 import { recordAudit } from '../server/audit/audit.service';
 import { InstituteEntity, UserEntity } from '../server/db/entities/core.entities';
 import { demoInstitutes, demoPeople } from './people';
+import { networkSeeder } from './network.seed';
 
 // Loads the invented demo scenario into an empty database. Every name, place and number here is made up.
 // Feature seeders run after the people, in order; each receives the transaction and the institutes by code.
@@ -40,3 +41,4 @@ export async function seedDemo(ds: DataSource, log: (msg: string) => void = () =
   });
   return true;
 }
+featureSeeders.push(networkSeeder);

@@ -8,6 +8,8 @@ import { startFakeSmtp } from './dev/fake-smtp';
 import { createLogger } from './logger';
 import { createMailSender } from './mail/outbox';
 import { seedDemo } from '../seeds/demo';
+import { startWorker } from './jobs/worker';
+import { stopQueues } from './jobs/queue';
 
 // The server process: configuration, local stand-ins (identity provider, mail catcher), database, HTTP.
 const withDevServices = process.env.CHRONOLEVEL_DEV_SERVICES !== '0';
@@ -30,6 +32,9 @@ async function main() {
     const seeded = await seedDemo(dataSource, (m) => logger.info(m));
     logger.info(seeded ? 'demo scenario loaded into the empty database' : 'database already holds data; demo scenario not reloaded');
   }
+  // One job worker inside this process (adjustment runs); more can run elsewhere with `tsx server/jobs/worker.ts`.
+  const worker = await startWorker({ dataSource, databaseUrl: config.databaseUrl, logger });
+  closers.push(() => worker.stop(), () => stopQueues());
   const mail = createMailSender({ dataSource, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
   mail.start();
   closers.push(() => mail.stop());

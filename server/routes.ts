@@ -2,7 +2,9 @@ import type { RouteSpec } from './http/route';
 import { healthRoutes } from './health/health.routes';
 import { foundationRoutes } from './me/me.routes';
 import { calcRoutes } from './calc/calc.routes';
+import { networkRoutes } from './network/network.routes';
+import { adjustCalcRoutes } from './network/adjust.routes';
 
 // Every API route of the product, in one list: Express, OpenAPI and the access tests read it.
 // Feature folders export their own arrays; add them here.
-export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes, ...calcRoutes];
+export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes, ...calcRoutes, ...networkRoutes, ...adjustCalcRoutes];

@@ -1,5 +1,6 @@
 import { ApiTokenEntity, AuditEventEntity, InstituteEntity, MailOutboxEntity, UserEntity } from './core.entities';
 import { CertificateEntity } from './certificates.entities';
+import { networkEntities } from './network.entities';
 
 // Every entity the data source knows. Feature entities are added here.
-export const entities = [InstituteEntity, UserEntity, ApiTokenEntity, AuditEventEntity, MailOutboxEntity, CertificateEntity];
+export const entities = [InstituteEntity, UserEntity, ApiTokenEntity, AuditEventEntity, MailOutboxEntity, CertificateEntity, ...networkEntities];
