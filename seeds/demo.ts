@@ -3,6 +3,7 @@ import { recordAudit } from '../server/audit/audit.service';
 import { InstituteEntity, UserEntity } from '../server/db/entities/core.entities';
 import { demoInstitutes, demoPeople } from './people';
 import { networkSeeder } from './network.seed';
+import { registrySeeder } from './registry.seed';
 
 // Loads the invented demo scenario into an empty database. Every name, place and number here is made up.
 // Feature seeders run after the people, in order; each receives the transaction and the institutes by code.
@@ -41,4 +42,7 @@ export async function seedDemo(ds: DataSource, log: (msg: string) => void = () =
   });
   return true;
 }
+
+featureSeeders.push(registrySeeder);
+// The levelling network goes last: its stored demo adjustment run includes the sites' ties when the registry is seeded.
 featureSeeders.push(networkSeeder);

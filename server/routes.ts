@@ -4,7 +4,9 @@ import { foundationRoutes } from './me/me.routes';
 import { calcRoutes } from './calc/calc.routes';
 import { networkRoutes } from './network/network.routes';
 import { adjustCalcRoutes } from './network/adjust.routes';
+import { registryRoutes } from './registry/registry.routes';
+import { campaignRoutes } from './campaigns/campaigns.routes';
 
 // Every API route of the product, in one list: Express, OpenAPI and the access tests read it.
 // Feature folders export their own arrays; add them here.
-export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes, ...calcRoutes, ...networkRoutes, ...adjustCalcRoutes];
+export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes, ...calcRoutes, ...networkRoutes, ...adjustCalcRoutes, ...registryRoutes, ...campaignRoutes];

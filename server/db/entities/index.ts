@@ -1,6 +1,7 @@
 import { ApiTokenEntity, AuditEventEntity, InstituteEntity, MailOutboxEntity, UserEntity } from './core.entities';
 import { CertificateEntity } from './certificates.entities';
 import { networkEntities } from './network.entities';
+import { registryEntities } from './registry.entities';
 
 // Every entity the data source knows. Feature entities are added here.
-export const entities = [InstituteEntity, UserEntity, ApiTokenEntity, AuditEventEntity, MailOutboxEntity, CertificateEntity, ...networkEntities];
+export const entities = [InstituteEntity, UserEntity, ApiTokenEntity, AuditEventEntity, MailOutboxEntity, CertificateEntity, ...networkEntities, ...registryEntities];

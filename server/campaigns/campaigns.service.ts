@@ -1,0 +1,461 @@
+import type { DataSource, EntityManager } from 'typeorm';
+import {
+  createCampaignSchema,
+  editableStates,
+  type CampaignListQuery,
+  type CampaignState,
+  type CreateCampaign,
+  type ReferenceRatioOverride,
+  type UpdateCampaign,
+  updateCampaignSchema,
+} from '../../shared/campaigns';
+import { speciesLabels, type BudgetRow, type SpeciesCode } from '../../shared/registry';
+import { actorLabel, type Actor } from '../auth/actor';
+import { authorize, can } from '../auth/permissions';
+import { recordAudit } from '../audit/audit.service';
+import type { AppConfig } from '../config';
+import {
+  CampaignEntity,
+  CampaignEventEntity,
+  ClockBudgetVersionEntity,
+  ClockEntity,
+  FibreLinkEntity,
+  ReferenceFrequencyEntity,
+  type CampaignRow,
+  type ClockRow,
+  type SiteRow,
+} from '../db/entities/registry.entities';
+import { Conflict, Forbidden, Invalid, NotFound } from '../http/errors';
+import { enqueueMail } from '../mail/outbox';
+import { ScienceInputError } from '../science/errors';
+import { parsePositiveDecimal, ratioOfFrequencies, MAX_REFERENCE_SIGNIFICANT_DIGITS } from '../science/fractional-offset';
+import { rss } from '../science/uncertainty';
+import { currentBudget, linkDistances, normalHeightOf, toBudgetDto } from '../registry/registry.service';
+
+// Campaign rules: owning institute = clock A's institute; the lab edits only while draft or returned; the
+// coordinating institute reviews; every change is audited and every state change lands on the timeline.
+
+const transitions: Record<'submit' | 'startReview' | 'accept' | 'return' | 'certify', { from: readonly CampaignState[]; to: CampaignState }> = {
+  submit: { from: ['draft', 'returned'], to: 'submitted' },
+  startReview: { from: ['submitted'], to: 'in_review' },
+  accept: { from: ['in_review'], to: 'accepted' },
+  return: { from: ['submitted', 'in_review'], to: 'returned' },
+  certify: { from: ['accepted'], to: 'certified' },
+};
+
+// ---------- reference ratio ----------
+
+export type DefaultReferenceRatio = { value: string; relativeUncertainty: number; source: string };
+
+/** ν_B/ν_A from the reference frequencies in use; same species → exactly 1. */
+export async function defaultReferenceRatio(m: EntityManager, speciesA: SpeciesCode, speciesB: SpeciesCode): Promise<DefaultReferenceRatio> {
+  if (speciesA === speciesB) return { value: '1', relativeUncertainty: 0, source: `same species (${speciesLabels[speciesA]}): reference ratio 1` };
+  const refs = await m.getRepository(ReferenceFrequencyEntity).find({ where: [{ species: speciesA, inUse: true }, { species: speciesB, inUse: true }] });
+  const a = refs.find((r) => r.species === speciesA);
+  const b = refs.find((r) => r.species === speciesB);
+  const missing = [a ? null : speciesA, b ? null : speciesB].filter(Boolean) as SpeciesCode[];
+  if (missing.length) {
+    throw new Invalid(`No reference frequency is in use for ${missing.map((s) => speciesLabels[s]).join(' and ')}; give a reference ratio with a justification.`, [
+      { path: 'body.referenceRatio', message: 'required: no default available for these species' },
+    ]);
+  }
+  return {
+    value: ratioOfFrequencies(a!.frequencyHz, b!.frequencyHz),
+    relativeUncertainty: rss([a!.relativeUncertainty, b!.relativeUncertainty]),
+    source: `ν(${speciesLabels[speciesB]}) / ν(${speciesLabels[speciesA]}) from the reference-frequency table — B: ${b!.frequencyHz} Hz, u_r ${b!.relativeUncertainty}, ${b!.source}; A: ${a!.frequencyHz} Hz, u_r ${a!.relativeUncertainty}, ${a!.source}; u_r of the ratio = RSS of both`,
+  };
+}
+
+function overrideRatio(o: ReferenceRatioOverride) {
+  try {
+    parsePositiveDecimal(o.value, 'value', MAX_REFERENCE_SIGNIFICANT_DIGITS);
+  } catch (e) {
+    if (e instanceof ScienceInputError) throw new Invalid(e.message, [{ path: 'body.referenceRatio.value', message: e.message }]);
+    throw e;
+  }
+  return { referenceRatio: o.value, referenceRatioRelativeUncertainty: o.relativeUncertainty, referenceRatioSource: 'entered by the lab (replaces the default)', referenceRatioJustification: o.justification };
+}
+
+// ---------- access ----------
+
+/** Operators read campaigns of their institute (clock A) or of clock B's institute; other roles read all. */
+function canRead(actor: Actor, c: CampaignRow): boolean {
+  if (actor.role !== 'operator') return true;
+  return actor.instituteId === c.instituteId || actor.instituteId === c.clockB?.instituteId;
+}
+function requireOwner(actor: Actor, c: CampaignRow) {
+  if (actor.role !== 'operator' || actor.instituteId !== c.instituteId) throw new Forbidden('Only lab staff of the owning institute (clock A) change this campaign.');
+}
+function requireState(c: CampaignRow, allowed: readonly CampaignState[], action: string) {
+  if (!allowed.includes(c.state)) throw new Conflict(`Cannot ${action} a campaign that is ${c.state.replace('_', ' ')}.`, { state: c.state, allowedFrom: allowed });
+}
+
+const relations = { institute: true, clockA: { site: true, institute: true }, clockB: { site: true, institute: true }, link: { siteA: true, siteB: true }, budgetVersionA: true, budgetVersionB: true } as const;
+
+async function loadCampaign(m: EntityManager, id: string, lock = false): Promise<CampaignRow> {
+  if (lock) {
+    const locked = await m.getRepository(CampaignEntity).createQueryBuilder('c').setLock('pessimistic_write').where('c.id = :id', { id }).getOne();
+    if (!locked) throw new NotFound('Campaign');
+  }
+  const c = await m.getRepository(CampaignEntity).findOne({ where: { id }, relations });
+  if (!c) throw new NotFound('Campaign');
+  return c;
+}
+
+async function addEvent(m: EntityManager, actor: Actor | null, campaignId: string, fromState: CampaignState | null, toState: CampaignState, note: string | null) {
+  await m.getRepository(CampaignEventEntity).insert({ campaignId, fromState, toState, actorUserId: actor?.userId ?? null, actorLabel: actor ? actor.displayName : 'system', note });
+}
+
+// ---------- DTOs ----------
+
+function clockRef(c: ClockRow) {
+  return {
+    id: c.id,
+    name: c.name,
+    species: c.species,
+    speciesLabel: speciesLabels[c.species],
+    nominalFrequencyHz: c.nominalFrequencyHz,
+    site: { id: c.siteId, name: c.site?.name ?? '' },
+    institute: { id: c.instituteId, code: c.institute?.code ?? '' },
+  };
+}
+
+function toSummary(c: CampaignRow) {
+  return {
+    id: c.id,
+    name: c.name,
+    state: c.state,
+    institute: { id: c.instituteId, code: c.institute?.code ?? '' },
+    clockA: clockRef(c.clockA!),
+    clockB: clockRef(c.clockB!),
+    link: { id: c.linkId, name: c.link?.name ?? '' },
+    periodStart: c.periodStart.toISOString(),
+    periodEnd: c.periodEnd.toISOString(),
+    updatedAt: c.updatedAt.toISOString(),
+  };
+}
+
+async function toDetail(m: EntityManager, actor: Actor, c: CampaignRow) {
+  const events = await m.getRepository(CampaignEventEntity).find({ where: { campaignId: c.id }, order: { id: 'ASC' } });
+  const owner = actor.role === 'operator' && actor.instituteId === c.instituteId;
+  const review = can(actor, 'campaigns:review');
+  return {
+    ...toSummary(c),
+    operatorNotes: c.operatorNotes,
+    referenceRatio: {
+      value: c.referenceRatio,
+      relativeUncertainty: c.referenceRatioRelativeUncertainty,
+      source: c.referenceRatioSource,
+      isDefault: c.referenceRatioJustification === null,
+      justification: c.referenceRatioJustification,
+    },
+    budgetA: toBudgetDto(c.budgetVersionA!),
+    budgetB: toBudgetDto(c.budgetVersionB!),
+    currentBudgetVersionA: c.clockA!.currentBudgetVersion,
+    currentBudgetVersionB: c.clockB!.currentBudgetVersion,
+    returnReason: c.returnReason,
+    createdBy: c.createdBy,
+    createdAt: c.createdAt.toISOString(),
+    timeline: events.map((e) => ({ at: e.at.toISOString(), fromState: e.fromState, toState: e.toState, actor: e.actorLabel, note: e.note })),
+    allowed: {
+      edit: owner && editableStates.includes(c.state),
+      submit: owner && transitions.submit.from.includes(c.state),
+      startReview: review && transitions.startReview.from.includes(c.state),
+      accept: review && transitions.accept.from.includes(c.state),
+      return: review && transitions.return.from.includes(c.state),
+    },
+  };
+}
+
+// ---------- for the results and certificate engineers ----------
+
+export type SiteForResult = {
+  id: string;
+  name: string;
+  instituteId: string;
+  latitudeDeg: number;
+  longitudeDeg: number;
+  ellipsoidalHeightM: number;
+  ellipsoidalHeightUncertaintyM: number;
+  xM: number;
+  yM: number;
+  zM: number;
+  quasigeoidHeightM: number;
+  quasigeoidUncertaintyM: number;
+  quasigeoidSource: 'entered' | 'grid';
+  normalHeightM: number;
+  normalHeightUncertaintyM: number;
+  benchmarkTie: { benchmarkCode: string; heightDifferenceM: number; uncertaintyM: number } | null;
+};
+export type ClockForResult = {
+  id: string;
+  name: string;
+  kind: ClockRow['kind'];
+  species: SpeciesCode;
+  speciesLabel: string;
+  nominalFrequencyHz: string;
+  instituteId: string;
+  instituteCode: string;
+  site: SiteForResult;
+  budget: { id: string; version: number; rows: BudgetRow[]; totalCorrection: number; totalUncertainty: number; createdAt: string };
+};
+export type CampaignForResult = {
+  id: string;
+  name: string;
+  state: CampaignState;
+  instituteId: string;
+  periodStart: string;
+  periodEnd: string;
+  clockA: ClockForResult;
+  clockB: ClockForResult;
+  link: { id: string; name: string; fibreLengthKm: number; fractionalUncertainty: number; geodesicDistanceKm: number; chordDistanceKm: number; siteAId: string; siteBId: string };
+  referenceRatio: { value: string; relativeUncertainty: number; source: string; justification: string | null };
+};
+
+function siteForResult(s: SiteRow): SiteForResult {
+  const h = normalHeightOf(s);
+  return {
+    id: s.id,
+    name: s.name,
+    instituteId: s.instituteId,
+    latitudeDeg: s.latitudeDeg,
+    longitudeDeg: s.longitudeDeg,
+    ellipsoidalHeightM: s.ellipsoidalHeightM,
+    ellipsoidalHeightUncertaintyM: s.ellipsoidalHeightUncertaintyM,
+    xM: s.xM,
+    yM: s.yM,
+    zM: s.zM,
+    quasigeoidHeightM: s.quasigeoidHeightM,
+    quasigeoidUncertaintyM: s.quasigeoidUncertaintyM,
+    quasigeoidSource: s.quasigeoidSource,
+    normalHeightM: h.valueM,
+    normalHeightUncertaintyM: h.uncertaintyM,
+    benchmarkTie: s.benchmarkCode !== null ? { benchmarkCode: s.benchmarkCode, heightDifferenceM: s.tieHeightDifferenceM ?? 0, uncertaintyM: s.tieUncertaintyM ?? 0 } : null,
+  };
+}
+
+/**
+ * Everything a comparison result needs about a campaign: both clocks (species, nominal frequency, site with
+ * GRS80 position, heights and ζ), the pinned budget versions, the link and the reference ratio. No access check:
+ * the caller has authorised already and passes its transaction.
+ */
+export async function getCampaignForResult(manager: EntityManager, id: string): Promise<CampaignForResult> {
+  const c = await loadCampaign(manager, id);
+  const clock = (k: ClockRow, b: NonNullable<CampaignRow['budgetVersionA']>): ClockForResult => ({
+    id: k.id,
+    name: k.name,
+    kind: k.kind,
+    species: k.species,
+    speciesLabel: speciesLabels[k.species],
+    nominalFrequencyHz: k.nominalFrequencyHz,
+    instituteId: k.instituteId,
+    instituteCode: k.institute?.code ?? '',
+    site: siteForResult(k.site!),
+    budget: { id: b.id, version: b.version, rows: b.rows, totalCorrection: b.totalCorrection, totalUncertainty: b.totalUncertainty, createdAt: b.createdAt.toISOString() },
+  });
+  const l = c.link!;
+  return {
+    id: c.id,
+    name: c.name,
+    state: c.state,
+    instituteId: c.instituteId,
+    periodStart: c.periodStart.toISOString(),
+    periodEnd: c.periodEnd.toISOString(),
+    clockA: clock(c.clockA!, c.budgetVersionA!),
+    clockB: clock(c.clockB!, c.budgetVersionB!),
+    link: { id: l.id, name: l.name, fibreLengthKm: l.fibreLengthKm, fractionalUncertainty: l.fractionalUncertainty, siteAId: l.siteAId, siteBId: l.siteBId, ...linkDistances(l.siteA!, l.siteB!) },
+    referenceRatio: { value: c.referenceRatio, relativeUncertainty: c.referenceRatioRelativeUncertainty, source: c.referenceRatioSource, justification: c.referenceRatioJustification },
+  };
+}
+
+/** accepted → certified, inside the certificate's transaction; audited and put on the timeline. */
+export async function markCampaignCertified(manager: EntityManager, campaignId: string, actor: Actor): Promise<void> {
+  authorize(actor, 'certificates:issue');
+  const c = await loadCampaign(manager, campaignId, true);
+  requireState(c, transitions.certify.from, 'certify');
+  await manager.getRepository(CampaignEntity).update({ id: c.id }, { state: 'certified' });
+  await addEvent(manager, actor, c.id, c.state, 'certified', null);
+  await recordAudit(manager, actor, { action: 'campaign.certified', entityType: 'campaign', entityId: c.id, instituteId: c.instituteId, details: { from: c.state } });
+}
+
+// ---------- service ----------
+
+const sortColumns: Record<string, string> = { name: 'c.name', state: 'c.state', periodStart: 'c.period_start', periodEnd: 'c.period_end', updatedAt: 'c.updated_at', institute: 'i.code' };
+
+export function createCampaignsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'coordinatorMail' | 'publicUrl'> }) {
+  const { dataSource, config } = deps;
+
+  async function checkLinkJoinsClocks(m: EntityManager, linkId: string, a: ClockRow, b: ClockRow) {
+    const link = await m.getRepository(FibreLinkEntity).findOneBy({ id: linkId });
+    if (!link) throw new Invalid('Unknown fibre link.', [{ path: 'body.linkId', message: 'no such link' }]);
+    const ends = new Set([link.siteAId, link.siteBId]);
+    const joins = a.siteId === b.siteId ? ends.has(a.siteId) : ends.has(a.siteId) && ends.has(b.siteId);
+    if (!joins) throw new Invalid('The link must join the sites of clock A and clock B.', [{ path: 'body.linkId', message: 'does not join the two clocks’ sites' }]);
+    return link;
+  }
+  async function clockOrInvalid(m: EntityManager, id: string, path: string) {
+    const c = await m.getRepository(ClockEntity).findOne({ where: { id }, relations: { site: true } });
+    if (!c) throw new Invalid('Unknown clock.', [{ path, message: 'no such clock' }]);
+    return c;
+  }
+  async function budgetByVersion(m: EntityManager, clockId: string, version: number, path: string) {
+    const b = await m.getRepository(ClockBudgetVersionEntity).findOneBy({ clockId, version });
+    if (!b) throw new Invalid('No such budget version.', [{ path, message: `version ${version} does not exist` }]);
+    return b;
+  }
+  async function transition(actor: Actor, id: string, kind: 'submit' | 'startReview' | 'accept' | 'return', note: string | null) {
+    authorize(actor, kind === 'submit' ? 'campaigns:write' : 'campaigns:review');
+    return dataSource.transaction(async (m) => {
+      const c = await loadCampaign(m, id, true);
+      if (!canRead(actor, c)) throw new NotFound('Campaign');
+      if (kind === 'submit') requireOwner(actor, c);
+      const t = transitions[kind];
+      requireState(c, t.from, kind === 'startReview' ? 'start the review of' : kind);
+      const patch: Partial<CampaignRow> = { state: t.to };
+      if (kind === 'return') patch.returnReason = note;
+      await m.getRepository(CampaignEntity).update({ id }, patch);
+      await addEvent(m, actor, id, c.state, t.to, note);
+      await recordAudit(m, actor, { action: `campaign.${t.to}`, entityType: 'campaign', entityId: id, instituteId: c.instituteId, details: { from: c.state, to: t.to, note } });
+      if (kind === 'submit') {
+        await enqueueMail(m, {
+          to: config.coordinatorMail,
+          subject: `Campaign submitted for review: ${c.name}`,
+          text: [
+            `${actorLabel(actor)} submitted the campaign "${c.name}" for review.`,
+            `Clock A: ${c.clockA!.name} (${speciesLabels[c.clockA!.species]}), ${c.institute?.code ?? ''}`,
+            `Clock B: ${c.clockB!.name} (${speciesLabels[c.clockB!.species]}), ${c.clockB!.institute?.code ?? ''}`,
+            `Period: ${c.periodStart.toISOString()} – ${c.periodEnd.toISOString()}`,
+            `Open it: ${config.publicUrl}/campaigns/${c.id}`,
+          ].join('\n'),
+        });
+      }
+      return toDetail(m, actor, await loadCampaign(m, id));
+    });
+  }
+
+  return {
+    async list(actor: Actor, q: CampaignListQuery) {
+      authorize(actor, 'campaigns:read');
+      const qb = dataSource
+        .getRepository(CampaignEntity)
+        .createQueryBuilder('c')
+        .leftJoinAndSelect('c.institute', 'i')
+        .leftJoinAndSelect('c.clockA', 'ca')
+        .leftJoinAndSelect('ca.site', 'sa')
+        .leftJoinAndSelect('ca.institute', 'ia')
+        .leftJoinAndSelect('c.clockB', 'cb')
+        .leftJoinAndSelect('cb.site', 'sb')
+        .leftJoinAndSelect('cb.institute', 'ib')
+        .leftJoinAndSelect('c.link', 'l');
+      if (actor.role === 'operator') qb.andWhere('(c.institute_id = :inst OR cb.institute_id = :inst)', { inst: actor.instituteId });
+      if (q.q) qb.andWhere('(c.name ILIKE :q OR ca.name ILIKE :q OR cb.name ILIKE :q OR i.code ILIKE :q)', { q: `%${q.q}%` });
+      if (q.state) qb.andWhere('c.state = :state', { state: q.state });
+      qb.orderBy(sortColumns[q.sort ?? 'updatedAt'] ?? 'c.updated_at', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('c.id');
+      const [rows, total] = await qb.skip((q.page - 1) * q.pageSize).take(q.pageSize).getManyAndCount();
+      return { items: rows.map(toSummary), total, page: q.page, pageSize: q.pageSize };
+    },
+
+    async get(actor: Actor, id: string) {
+      authorize(actor, 'campaigns:read');
+      return dataSource.transaction(async (m) => {
+        const c = await loadCampaign(m, id);
+        if (!canRead(actor, c)) throw new NotFound('Campaign');
+        return toDetail(m, actor, c);
+      });
+    },
+
+    async defaultRatio(actor: Actor, clockAId: string, clockBId: string) {
+      authorize(actor, 'campaigns:read');
+      return dataSource.transaction(async (m) => {
+        const a = await clockOrInvalid(m, clockAId, 'query.clockAId');
+        const b = await clockOrInvalid(m, clockBId, 'query.clockBId');
+        return defaultReferenceRatio(m, a.species, b.species);
+      });
+    },
+
+    async create(actor: Actor, input: CreateCampaign) {
+      authorize(actor, 'campaigns:write');
+      const body = createCampaignSchema.parse(input);
+      return dataSource.transaction(async (m) => {
+        const a = await clockOrInvalid(m, body.clockAId, 'body.clockAId');
+        const b = await clockOrInvalid(m, body.clockBId, 'body.clockBId');
+        if (a.instituteId !== actor.instituteId) throw new Forbidden('Clock A must belong to your institute: the owning institute is clock A’s.');
+        await checkLinkJoinsClocks(m, body.linkId, a, b);
+        const ratio = body.referenceRatio
+          ? overrideRatio(body.referenceRatio)
+          : await defaultReferenceRatio(m, a.species, b.species).then((d) => ({ referenceRatio: d.value, referenceRatioRelativeUncertainty: d.relativeUncertainty, referenceRatioSource: d.source, referenceRatioJustification: null }));
+        const [budgetA, budgetB] = [await currentBudget(m, a), await currentBudget(m, b)];
+        const repo = m.getRepository(CampaignEntity);
+        const saved = await repo.save(
+          repo.create({
+            name: body.name,
+            instituteId: a.instituteId,
+            clockAId: a.id,
+            clockBId: b.id,
+            linkId: body.linkId,
+            periodStart: new Date(body.periodStart),
+            periodEnd: new Date(body.periodEnd),
+            operatorNotes: body.operatorNotes,
+            ...ratio,
+            budgetVersionAId: budgetA.id,
+            budgetVersionBId: budgetB.id,
+            state: 'draft',
+            returnReason: null,
+            createdByUserId: actor.userId,
+            createdBy: actor.displayName,
+          }),
+        );
+        await addEvent(m, actor, saved.id, null, 'draft', 'created');
+        await recordAudit(m, actor, {
+          action: 'campaign.created', entityType: 'campaign', entityId: saved.id, instituteId: a.instituteId,
+          details: { name: body.name, clockA: a.name, clockB: b.name, referenceRatio: ratio.referenceRatio, budgetVersionA: budgetA.version, budgetVersionB: budgetB.version },
+        });
+        return toDetail(m, actor, await loadCampaign(m, saved.id));
+      });
+    },
+
+    async update(actor: Actor, id: string, input: UpdateCampaign) {
+      authorize(actor, 'campaigns:write');
+      const body = updateCampaignSchema.parse(input);
+      return dataSource.transaction(async (m) => {
+        const c = await loadCampaign(m, id, true);
+        if (!canRead(actor, c)) throw new NotFound('Campaign');
+        requireOwner(actor, c);
+        requireState(c, editableStates, 'change');
+        const patch: Partial<CampaignRow> = {};
+        if (body.name !== undefined) patch.name = body.name;
+        if (body.operatorNotes !== undefined) patch.operatorNotes = body.operatorNotes;
+        if (body.periodStart !== undefined) patch.periodStart = new Date(body.periodStart);
+        if (body.periodEnd !== undefined) patch.periodEnd = new Date(body.periodEnd);
+        const start = patch.periodStart ?? c.periodStart;
+        const end = patch.periodEnd ?? c.periodEnd;
+        if (end <= start) throw new Invalid('The period must end after it starts.', [{ path: 'body.periodEnd', message: 'must be after the period start' }]);
+        if (body.linkId !== undefined) {
+          await checkLinkJoinsClocks(m, body.linkId, c.clockA!, c.clockB!);
+          patch.linkId = body.linkId;
+        }
+        if (body.referenceRatio !== undefined) {
+          Object.assign(
+            patch,
+            body.referenceRatio
+              ? overrideRatio(body.referenceRatio)
+              : await defaultReferenceRatio(m, c.clockA!.species, c.clockB!.species).then((d) => ({ referenceRatio: d.value, referenceRatioRelativeUncertainty: d.relativeUncertainty, referenceRatioSource: d.source, referenceRatioJustification: null })),
+          );
+        }
+        if (body.budgetVersionA !== undefined) patch.budgetVersionAId = (await budgetByVersion(m, c.clockAId, body.budgetVersionA, 'body.budgetVersionA')).id;
+        if (body.budgetVersionB !== undefined) patch.budgetVersionBId = (await budgetByVersion(m, c.clockBId, body.budgetVersionB, 'body.budgetVersionB')).id;
+        if (Object.keys(patch).length) await m.getRepository(CampaignEntity).update({ id }, patch);
+        await recordAudit(m, actor, {
+          action: 'campaign.updated', entityType: 'campaign', entityId: id, instituteId: c.instituteId,
+          details: { changed: Object.keys(body), before: { name: c.name, linkId: c.linkId, referenceRatio: c.referenceRatio, budgetVersionA: c.budgetVersionA!.version, budgetVersionB: c.budgetVersionB!.version }, after: body },
+        });
+        return toDetail(m, actor, await loadCampaign(m, id));
+      });
+    },
+
+    submit: (actor: Actor, id: string, note?: string) => transition(actor, id, 'submit', note ?? null),
+    startReview: (actor: Actor, id: string, note?: string) => transition(actor, id, 'startReview', note ?? null),
+    accept: (actor: Actor, id: string, note?: string) => transition(actor, id, 'accept', note ?? null),
+    returnToLab: (actor: Actor, id: string, reason: string) => transition(actor, id, 'return', reason),
+  };
+}

@@ -1,0 +1,320 @@
+import { EntitySchema } from 'typeorm';
+import type { BudgetRow, SpeciesCode } from '../../../shared/registry';
+import type { CampaignState } from '../../../shared/campaigns';
+import type { InstituteRow } from './core.entities';
+
+// Registry and campaign tables: sites, quasigeoid grids, clocks, immutable budget versions, reference
+// frequencies, fibre links, campaigns and their state timeline.
+
+// Postgres returns float8 as number already; numeric/bigint stay strings and are not used for measured values here.
+
+export interface SiteRow {
+  id: string;
+  instituteId: string;
+  institute?: InstituteRow;
+  name: string;
+  referencePoint: string;
+  crs: string;
+  coordinates: number[];
+  latitudeDeg: number;
+  longitudeDeg: number;
+  ellipsoidalHeightM: number;
+  ellipsoidalHeightUncertaintyM: number;
+  xM: number;
+  yM: number;
+  zM: number;
+  assumptions: string[];
+  quasigeoidSource: 'entered' | 'grid';
+  quasigeoidGridId: string | null;
+  quasigeoidHeightM: number;
+  quasigeoidUncertaintyM: number;
+  benchmarkCode: string | null;
+  tieHeightDifferenceM: number | null;
+  tieUncertaintyM: number | null;
+  createdAt: Date;
+  updatedAt: Date;
+}
+export const SiteEntity = new EntitySchema<SiteRow>({
+  name: 'Site',
+  tableName: 'site',
+  columns: {
+    id: { type: 'uuid', primary: true, generated: 'uuid' },
+    instituteId: { name: 'institute_id', type: 'uuid' },
+    name: { type: 'text' },
+    referencePoint: { name: 'reference_point', type: 'text' },
+    crs: { type: 'text' },
+    coordinates: { type: 'jsonb' },
+    latitudeDeg: { name: 'latitude_deg', type: 'float8' },
+    longitudeDeg: { name: 'longitude_deg', type: 'float8' },
+    ellipsoidalHeightM: { name: 'ellipsoidal_height_m', type: 'float8' },
+    ellipsoidalHeightUncertaintyM: { name: 'ellipsoidal_height_u_m', type: 'float8' },
+    xM: { name: 'x_m', type: 'float8' },
+    yM: { name: 'y_m', type: 'float8' },
+    zM: { name: 'z_m', type: 'float8' },
+    assumptions: { type: 'jsonb' },
+    quasigeoidSource: { name: 'quasigeoid_source', type: 'text' },
+    quasigeoidGridId: { name: 'quasigeoid_grid_id', type: 'uuid', nullable: true },
+    quasigeoidHeightM: { name: 'quasigeoid_height_m', type: 'float8' },
+    quasigeoidUncertaintyM: { name: 'quasigeoid_u_m', type: 'float8' },
+    benchmarkCode: { name: 'benchmark_code', type: 'text', nullable: true },
+    tieHeightDifferenceM: { name: 'tie_height_difference_m', type: 'float8', nullable: true },
+    tieUncertaintyM: { name: 'tie_u_m', type: 'float8', nullable: true },
+    createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
+    updatedAt: { name: 'updated_at', type: 'timestamptz', updateDate: true },
+  },
+  relations: {
+    institute: { type: 'many-to-one', target: 'Institute', joinColumn: { name: 'institute_id' } },
+  },
+});
+
+export interface QuasigeoidGridRow {
+  id: string;
+  name: string;
+  fileName: string | null;
+  sha256: string;
+  latitudeMinDeg: number;
+  longitudeMinDeg: number;
+  latitudeStepDeg: number;
+  longitudeStepDeg: number;
+  latitudeCount: number;
+  longitudeCount: number;
+  /** Row-major heights (latitude ascending, then longitude ascending), metres. */
+  heightsM: number[];
+  uncertaintyM: number;
+  uploadedBy: string;
+  createdAt: Date;
+}
+export const QuasigeoidGridEntity = new EntitySchema<QuasigeoidGridRow>({
+  name: 'QuasigeoidGrid',
+  tableName: 'quasigeoid_grid',
+  columns: {
+    id: { type: 'uuid', primary: true, generated: 'uuid' },
+    name: { type: 'text' },
+    fileName: { name: 'file_name', type: 'text', nullable: true },
+    sha256: { type: 'text', unique: true },
+    latitudeMinDeg: { name: 'latitude_min_deg', type: 'float8' },
+    longitudeMinDeg: { name: 'longitude_min_deg', type: 'float8' },
+    latitudeStepDeg: { name: 'latitude_step_deg', type: 'float8' },
+    longitudeStepDeg: { name: 'longitude_step_deg', type: 'float8' },
+    latitudeCount: { name: 'latitude_count', type: 'int' },
+    longitudeCount: { name: 'longitude_count', type: 'int' },
+    heightsM: { name: 'heights_m', type: 'float8', array: true },
+    uncertaintyM: { name: 'uncertainty_m', type: 'float8' },
+    uploadedBy: { name: 'uploaded_by', type: 'text' },
+    createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
+  },
+});
+
+export interface ClockRow {
+  id: string;
+  siteId: string;
+  site?: SiteRow;
+  instituteId: string;
+  institute?: InstituteRow;
+  name: string;
+  kind: 'optical_lattice' | 'single_ion' | 'microwave_fountain' | 'hydrogen_maser';
+  species: SpeciesCode;
+  nominalFrequencyHz: string;
+  notes: string;
+  currentBudgetVersion: number;
+  createdAt: Date;
+  updatedAt: Date;
+}
+export const ClockEntity = new EntitySchema<ClockRow>({
+  name: 'Clock',
+  tableName: 'clock',
+  columns: {
+    id: { type: 'uuid', primary: true, generated: 'uuid' },
+    siteId: { name: 'site_id', type: 'uuid' },
+    instituteId: { name: 'institute_id', type: 'uuid' },
+    name: { type: 'text' },
+    kind: { type: 'text' },
+    species: { type: 'text' },
+    nominalFrequencyHz: { name: 'nominal_frequency_hz', type: 'text' },
+    notes: { type: 'text', default: '' },
+    currentBudgetVersion: { name: 'current_budget_version', type: 'int' },
+    createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
+    updatedAt: { name: 'updated_at', type: 'timestamptz', updateDate: true },
+  },
+  relations: {
+    site: { type: 'many-to-one', target: 'Site', joinColumn: { name: 'site_id' } },
+    institute: { type: 'many-to-one', target: 'Institute', joinColumn: { name: 'institute_id' } },
+  },
+});
+
+export interface ClockBudgetVersionRow {
+  id: string;
+  clockId: string;
+  version: number;
+  rows: BudgetRow[];
+  totalCorrection: number;
+  totalUncertainty: number;
+  comment: string | null;
+  createdByUserId: string | null;
+  createdBy: string;
+  createdAt: Date;
+}
+export const ClockBudgetVersionEntity = new EntitySchema<ClockBudgetVersionRow>({
+  name: 'ClockBudgetVersion',
+  tableName: 'clock_budget_version',
+  columns: {
+    id: { type: 'uuid', primary: true, generated: 'uuid' },
+    clockId: { name: 'clock_id', type: 'uuid' },
+    version: { type: 'int' },
+    rows: { type: 'jsonb' },
+    totalCorrection: { name: 'total_correction', type: 'float8' },
+    totalUncertainty: { name: 'total_uncertainty', type: 'float8' },
+    comment: { type: 'text', nullable: true },
+    createdByUserId: { name: 'created_by_user_id', type: 'uuid', nullable: true },
+    createdBy: { name: 'created_by', type: 'text' },
+    createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
+  },
+});
+
+export interface ReferenceFrequencyRow {
+  id: string;
+  species: SpeciesCode;
+  frequencyHz: string;
+  relativeUncertainty: number;
+  source: string;
+  inUse: boolean;
+  updatedAt: Date;
+}
+export const ReferenceFrequencyEntity = new EntitySchema<ReferenceFrequencyRow>({
+  name: 'ReferenceFrequency',
+  tableName: 'reference_frequency',
+  columns: {
+    id: { type: 'uuid', primary: true, generated: 'uuid' },
+    species: { type: 'text' },
+    frequencyHz: { name: 'frequency_hz', type: 'text' },
+    relativeUncertainty: { name: 'relative_uncertainty', type: 'float8' },
+    source: { type: 'text' },
+    inUse: { name: 'in_use', type: 'boolean' },
+    updatedAt: { name: 'updated_at', type: 'timestamptz', updateDate: true },
+  },
+});
+
+export interface FibreLinkRow {
+  id: string;
+  name: string;
+  siteAId: string;
+  siteA?: SiteRow;
+  siteBId: string;
+  siteB?: SiteRow;
+  fibreLengthKm: number;
+  fractionalUncertainty: number;
+  notes: string;
+  createdAt: Date;
+  updatedAt: Date;
+}
+export const FibreLinkEntity = new EntitySchema<FibreLinkRow>({
+  name: 'FibreLink',
+  tableName: 'fibre_link',
+  columns: {
+    id: { type: 'uuid', primary: true, generated: 'uuid' },
+    name: { type: 'text' },
+    siteAId: { name: 'site_a_id', type: 'uuid' },
+    siteBId: { name: 'site_b_id', type: 'uuid' },
+    fibreLengthKm: { name: 'fibre_length_km', type: 'float8' },
+    fractionalUncertainty: { name: 'fractional_uncertainty', type: 'float8' },
+    notes: { type: 'text', default: '' },
+    createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
+    updatedAt: { name: 'updated_at', type: 'timestamptz', updateDate: true },
+  },
+  relations: {
+    siteA: { type: 'many-to-one', target: 'Site', joinColumn: { name: 'site_a_id' } },
+    siteB: { type: 'many-to-one', target: 'Site', joinColumn: { name: 'site_b_id' } },
+  },
+});
+
+export interface CampaignRow {
+  id: string;
+  name: string;
+  instituteId: string;
+  institute?: InstituteRow;
+  clockAId: string;
+  clockA?: ClockRow;
+  clockBId: string;
+  clockB?: ClockRow;
+  linkId: string;
+  link?: FibreLinkRow;
+  periodStart: Date;
+  periodEnd: Date;
+  referenceRatio: string;
+  referenceRatioRelativeUncertainty: number;
+  referenceRatioSource: string;
+  referenceRatioJustification: string | null;
+  operatorNotes: string;
+  budgetVersionAId: string;
+  budgetVersionA?: ClockBudgetVersionRow;
+  budgetVersionBId: string;
+  budgetVersionB?: ClockBudgetVersionRow;
+  state: CampaignState;
+  returnReason: string | null;
+  createdByUserId: string | null;
+  createdBy: string;
+  createdAt: Date;
+  updatedAt: Date;
+}
+export const CampaignEntity = new EntitySchema<CampaignRow>({
+  name: 'Campaign',
+  tableName: 'campaign',
+  columns: {
+    id: { type: 'uuid', primary: true, generated: 'uuid' },
+    name: { type: 'text' },
+    instituteId: { name: 'institute_id', type: 'uuid' },
+    clockAId: { name: 'clock_a_id', type: 'uuid' },
+    clockBId: { name: 'clock_b_id', type: 'uuid' },
+    linkId: { name: 'link_id', type: 'uuid' },
+    periodStart: { name: 'period_start', type: 'timestamptz' },
+    periodEnd: { name: 'period_end', type: 'timestamptz' },
+    referenceRatio: { name: 'reference_ratio', type: 'text' },
+    referenceRatioRelativeUncertainty: { name: 'reference_ratio_u_rel', type: 'float8' },
+    referenceRatioSource: { name: 'reference_ratio_source', type: 'text' },
+    referenceRatioJustification: { name: 'reference_ratio_justification', type: 'text', nullable: true },
+    operatorNotes: { name: 'operator_notes', type: 'text', default: '' },
+    budgetVersionAId: { name: 'budget_version_a_id', type: 'uuid' },
+    budgetVersionBId: { name: 'budget_version_b_id', type: 'uuid' },
+    state: { type: 'text' },
+    returnReason: { name: 'return_reason', type: 'text', nullable: true },
+    createdByUserId: { name: 'created_by_user_id', type: 'uuid', nullable: true },
+    createdBy: { name: 'created_by', type: 'text' },
+    createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
+    updatedAt: { name: 'updated_at', type: 'timestamptz', updateDate: true },
+  },
+  relations: {
+    institute: { type: 'many-to-one', target: 'Institute', joinColumn: { name: 'institute_id' } },
+    clockA: { type: 'many-to-one', target: 'Clock', joinColumn: { name: 'clock_a_id' } },
+    clockB: { type: 'many-to-one', target: 'Clock', joinColumn: { name: 'clock_b_id' } },
+    link: { type: 'many-to-one', target: 'FibreLink', joinColumn: { name: 'link_id' } },
+    budgetVersionA: { type: 'many-to-one', target: 'ClockBudgetVersion', joinColumn: { name: 'budget_version_a_id' } },
+    budgetVersionB: { type: 'many-to-one', target: 'ClockBudgetVersion', joinColumn: { name: 'budget_version_b_id' } },
+  },
+});
+
+export interface CampaignEventRow {
+  id: string;
+  campaignId: string;
+  at: Date;
+  fromState: CampaignState | null;
+  toState: CampaignState;
+  actorUserId: string | null;
+  actorLabel: string;
+  note: string | null;
+}
+export const CampaignEventEntity = new EntitySchema<CampaignEventRow>({
+  name: 'CampaignEvent',
+  tableName: 'campaign_event',
+  columns: {
+    id: { type: 'bigint', primary: true, generated: 'increment' },
+    campaignId: { name: 'campaign_id', type: 'uuid' },
+    at: { type: 'timestamptz', default: () => 'now()' },
+    fromState: { name: 'from_state', type: 'text', nullable: true },
+    toState: { name: 'to_state', type: 'text' },
+    actorUserId: { name: 'actor_user_id', type: 'uuid', nullable: true },
+    actorLabel: { name: 'actor_label', type: 'text' },
+    note: { type: 'text', nullable: true },
+  },
+});
+
+export const registryEntities = [SiteEntity, QuasigeoidGridEntity, ClockEntity, ClockBudgetVersionEntity, ReferenceFrequencyEntity, FibreLinkEntity, CampaignEntity, CampaignEventEntity];

@@ -1,0 +1,131 @@
+import { z } from 'zod';
+import { budgetVersionSchema, decimalString, speciesSchema } from './registry';
+
+// The campaign contract: two clocks compared over one fibre link during a period, with a reference ratio,
+// pinned budget versions and a review state machine.
+
+export const campaignStates = ['draft', 'submitted', 'in_review', 'accepted', 'returned', 'certified'] as const;
+export type CampaignState = (typeof campaignStates)[number];
+export const campaignStateLabels: Record<CampaignState, string> = {
+  draft: 'Draft',
+  submitted: 'Submitted',
+  in_review: 'In review',
+  accepted: 'Accepted',
+  returned: 'Returned',
+  certified: 'Certified',
+};
+/** States in which the owning lab may still change the campaign. */
+export const editableStates: readonly CampaignState[] = ['draft', 'returned'];
+
+const isoDate = z.string().datetime({ offset: true });
+
+export const referenceRatioOverride = z.object({
+  value: decimalString(40),
+  relativeUncertainty: z.number().refine((v) => Number.isFinite(v) && v >= 0 && v < 1e-6, 'a relative uncertainty ≥ 0 and far below 1e-6'),
+  justification: z.string().trim().min(10, 'explain in at least 10 characters why the default is replaced').max(2000),
+});
+export type ReferenceRatioOverride = z.infer<typeof referenceRatioOverride>;
+
+const campaignFields = {
+  name: z.string().trim().min(2).max(120),
+  clockAId: z.string().uuid(),
+  clockBId: z.string().uuid(),
+  linkId: z.string().uuid(),
+  periodStart: isoDate,
+  periodEnd: isoDate,
+  operatorNotes: z.string().trim().max(4000).default(''),
+  /** Omit (or null) for the default: ν_B/ν_A from the reference-frequency table. */
+  referenceRatio: referenceRatioOverride.nullable().default(null),
+};
+
+export const createCampaignSchema = z
+  .object(campaignFields)
+  .refine((c) => Date.parse(c.periodEnd) > Date.parse(c.periodStart), { path: ['periodEnd'], message: 'must be after the period start' })
+  .refine((c) => c.clockAId !== c.clockBId, { path: ['clockBId'], message: 'clock B must differ from clock A' });
+export type CreateCampaign = z.input<typeof createCampaignSchema>;
+
+export const updateCampaignSchema = z.object({
+  name: campaignFields.name.optional(),
+  linkId: campaignFields.linkId.optional(),
+  periodStart: isoDate.optional(),
+  periodEnd: isoDate.optional(),
+  operatorNotes: z.string().trim().max(4000).optional(),
+  referenceRatio: referenceRatioOverride.nullable().optional(),
+  /** Re-pin the budgets to these versions (numbers); only while the campaign is editable. */
+  budgetVersionA: z.number().int().min(1).optional(),
+  budgetVersionB: z.number().int().min(1).optional(),
+});
+export type UpdateCampaign = z.infer<typeof updateCampaignSchema>;
+
+export const returnCampaignSchema = z.object({ reason: z.string().trim().min(5, 'give the lab a reason').max(4000) });
+export const transitionNoteSchema = z.object({ note: z.string().trim().max(2000).optional() });
+
+export const referenceRatioSchema = z.object({
+  value: z.string(),
+  relativeUncertainty: z.number(),
+  source: z.string(),
+  isDefault: z.boolean(),
+  justification: z.string().nullable(),
+});
+export type ReferenceRatio = z.infer<typeof referenceRatioSchema>;
+
+const clockRef = z.object({
+  id: z.string().uuid(),
+  name: z.string(),
+  species: speciesSchema,
+  speciesLabel: z.string(),
+  nominalFrequencyHz: z.string(),
+  site: z.object({ id: z.string().uuid(), name: z.string() }),
+  institute: z.object({ id: z.string().uuid(), code: z.string() }),
+});
+
+export const campaignEventSchema = z.object({
+  at: z.string(),
+  fromState: z.enum(campaignStates).nullable(),
+  toState: z.enum(campaignStates),
+  actor: z.string(),
+  note: z.string().nullable(),
+});
+export type CampaignEvent = z.infer<typeof campaignEventSchema>;
+
+export const campaignSummarySchema = z.object({
+  id: z.string().uuid(),
+  name: z.string(),
+  state: z.enum(campaignStates),
+  institute: z.object({ id: z.string().uuid(), code: z.string() }),
+  clockA: clockRef,
+  clockB: clockRef,
+  link: z.object({ id: z.string().uuid(), name: z.string() }),
+  periodStart: z.string(),
+  periodEnd: z.string(),
+  updatedAt: z.string(),
+});
+export type CampaignSummary = z.infer<typeof campaignSummarySchema>;
+
+export const campaignSchema = campaignSummarySchema.extend({
+  operatorNotes: z.string(),
+  referenceRatio: referenceRatioSchema,
+  budgetA: budgetVersionSchema,
+  budgetB: budgetVersionSchema,
+  currentBudgetVersionA: z.number().int(),
+  currentBudgetVersionB: z.number().int(),
+  returnReason: z.string().nullable(),
+  createdBy: z.string(),
+  createdAt: z.string(),
+  timeline: z.array(campaignEventSchema),
+  /** What the caller may do now (drives the buttons; the server checks again). */
+  allowed: z.object({ edit: z.boolean(), submit: z.boolean(), startReview: z.boolean(), accept: z.boolean(), return: z.boolean() }),
+});
+export type Campaign = z.infer<typeof campaignSchema>;
+
+export const campaignListQuery = z.object({
+  page: z.coerce.number().int().min(1).default(1),
+  pageSize: z.coerce.number().int().min(1).max(500).default(25),
+  sort: z.string().max(60).optional(),
+  order: z.enum(['asc', 'desc']).default('asc'),
+  q: z.string().max(200).optional(),
+  state: z.enum(campaignStates).optional(),
+});
+export type CampaignListQuery = z.infer<typeof campaignListQuery>;
+
+export const defaultRatioQuery = z.object({ clockAId: z.string().uuid(), clockBId: z.string().uuid() });
