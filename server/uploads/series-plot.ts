@@ -1,0 +1,39 @@
+import type { DataSource } from 'typeorm';
+import type { SeriesBucket, SeriesPlot } from '../../shared/uploads';
+
+// Plot data for a series: the span cut into equal time buckets, each giving the smallest and largest valid y, so a
+// single outlier survives any zoom level (min/max decimation, common practice for time-series plotting); a bucket
+// without valid samples comes back with nulls so the plot shows a break.
+
+export type BucketRow = { k: number; lo: number | null; hi: number | null; n: number };
+
+/** Lays the aggregated rows onto all `count` buckets; buckets PostgreSQL did not return are gaps. */
+export function fillBuckets(rows: BucketRow[], fromMjd: number, bucketDays: number, count: number): SeriesBucket[] {
+  const out: SeriesBucket[] = Array.from({ length: count }, (_, k) => ({ mjd: fromMjd + (k + 0.5) * bucketDays, min: null, max: null, count: 0 }));
+  for (const r of rows) {
+    const k = Number(r.k);
+    if (k < 0 || k >= count || Number(r.n) === 0) continue;
+    out[k] = { mjd: out[k].mjd, min: r.lo, max: r.hi, count: Number(r.n) };
+  }
+  return out;
+}
+
+export async function decimateSeries(
+  ds: DataSource,
+  s: { id: string; firstMjd: number; lastMjd: number; rowCount: number },
+  q: { points: number; fromMjd?: number; toMjd?: number },
+): Promise<SeriesPlot> {
+  const fromMjd = Math.max(q.fromMjd ?? s.firstMjd, s.firstMjd);
+  let toMjd = Math.min(q.toMjd ?? s.lastMjd, s.lastMjd);
+  if (!(toMjd > fromMjd)) toMjd = fromMjd + 1 / 86_400;
+  const count = q.points;
+  const bucketDays = (toMjd - fromMjd) / count;
+  const rows = (await ds.query(
+    `SELECT least(floor((mjd - $2) / $4)::int, $5 - 1) AS k,
+            min(y) FILTER (WHERE valid) AS lo, max(y) FILTER (WHERE valid) AS hi, count(*) FILTER (WHERE valid)::int AS n
+       FROM ratio_sample WHERE series_id = $1 AND mjd >= $2 AND mjd <= $3
+      GROUP BY 1`,
+    [s.id, fromMjd, toMjd, bucketDays, count],
+  )) as BucketRow[];
+  return { seriesId: s.id, fromMjd, toMjd, bucketDays, sampleCount: s.rowCount, unit: '1', buckets: fillBuckets(rows, fromMjd, bucketDays, count) };
+}

@@ -1,0 +1,40 @@
+import { z } from 'zod';
+import { idParamsSchema } from '../../shared/http';
+import { campaignIdParamsSchema, ratioSeriesSchema, seriesPlotSchema, seriesQuerySchema, uploadPreviewSchema, uploadProgressSchema, uploadQuerySchema } from '../../shared/uploads';
+import { route } from '../http/route';
+import { createUploadsService } from './uploads.service';
+
+// Routes for ratio-series uploads: preview (first 64 KiB), upload (streamed, one transaction), progress, list, plot data.
+export const uploadRoutes = [
+  route({
+    method: 'post', path: '/api/v1/campaigns/:id/uploads/preview', summary: 'Preview the start of a ratio-series file: delimiter, header, first rows, suggested columns',
+    tag: 'uploads', permission: 'campaigns:write', params: campaignIdParamsSchema, multipart: true, response: uploadPreviewSchema,
+    handler: ({ actor, params, req, deps }) => createUploadsService(deps).preview(actor, params.id, req),
+  }),
+  route({
+    method: 'post', path: '/api/v1/campaigns/:id/uploads', summary: 'Upload a ratio series (multipart: mapping fields, then the file); ?uploadId= lets the client poll progress',
+    tag: 'uploads', permission: 'campaigns:write', params: campaignIdParamsSchema, query: uploadQuerySchema, multipart: true,
+    response: ratioSeriesSchema, successStatus: 201,
+    handler: ({ actor, params, query, req, deps }) => createUploadsService(deps).upload(actor, params.id, req, query.uploadId),
+  }),
+  route({
+    method: 'get', path: '/api/v1/campaigns/:id/uploads', summary: 'Series uploaded to a campaign', tag: 'uploads', permission: 'campaigns:read',
+    params: campaignIdParamsSchema, response: z.array(ratioSeriesSchema),
+    handler: ({ actor, params, deps }) => createUploadsService(deps).list(actor, params.id),
+  }),
+  route({
+    method: 'get', path: '/api/v1/uploads/:id/progress', summary: 'Progress of an upload in flight (id chosen by the client)', tag: 'uploads', permission: 'campaigns:write',
+    params: idParamsSchema, response: uploadProgressSchema,
+    handler: async ({ actor, params, deps }) => createUploadsService(deps).progress(actor, params.id),
+  }),
+  route({
+    method: 'get', path: '/api/v1/uploads/:id', summary: 'One uploaded series', tag: 'uploads', permission: 'campaigns:read',
+    params: idParamsSchema, response: ratioSeriesSchema,
+    handler: ({ actor, params, deps }) => createUploadsService(deps).get(actor, params.id),
+  }),
+  route({
+    method: 'get', path: '/api/v1/uploads/:id/series', summary: 'Plot data: min/max of y per time bucket (gaps as nulls)', tag: 'uploads', permission: 'campaigns:read',
+    params: idParamsSchema, query: seriesQuerySchema, response: seriesPlotSchema,
+    handler: ({ actor, params, query, deps }) => createUploadsService(deps).plot(actor, params.id, query),
+  }),
+];

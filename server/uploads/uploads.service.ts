@@ -1,0 +1,265 @@
+import crypto from 'node:crypto';
+import type { Request } from 'express';
+import type pg from 'pg';
+import { from as copyFrom } from 'pg-copy-streams';
+import type { DataSource } from 'typeorm';
+import { columnMappingSchema, type RatioSeries, type SeriesPlot, type UploadPreview } from '../../shared/uploads';
+import { recordAudit } from '../audit/audit.service';
+import { actorLabel, type Actor } from '../auth/actor';
+import { authorize } from '../auth/permissions';
+import type { AppConfig } from '../config';
+import { Conflict, Forbidden, Invalid, NotFound, PayloadTooLarge } from '../http/errors';
+import { COPY_SAMPLES_SQL, finishCopy, ingestRatioSeries, type IngestSummary } from './ingest';
+import { receiveMultipart } from './multipart';
+import { openSpool } from './raw-file-spool';
+import { buildPreview } from './ratio-series-format';
+import { decimateSeries } from './series-plot';
+import { uploadProgress } from './upload-progress';
+
+// Uploads of frequency-ratio series: who may upload (lab staff of the campaign's owning institute, campaign draft or
+// returned), the one transaction (COPY rows + raw file + series row + audit event), previews, lists and plot data.
+
+export const PREVIEW_BYTES = 64 * 1024;
+const MS_PER_DAY = 86_400_000;
+const toMjd = (d: Date) => d.getTime() / MS_PER_DAY + 40587;
+
+type CampaignForUpload = {
+  id: string;
+  instituteId: string;
+  clockBInstituteId: string | null;
+  state: string;
+  referenceRatio: string;
+  periodStartMjd: number;
+  periodEndMjd: number;
+};
+
+export async function loadCampaignForUpload(q: { query: (sql: string, params?: unknown[]) => Promise<unknown> }, id: string): Promise<CampaignForUpload | null> {
+  const rows = (await q.query(
+    `SELECT c.id, c.institute_id, c.state, c.reference_ratio, c.period_start, c.period_end, cb.institute_id AS clock_b_institute_id
+       FROM campaign c LEFT JOIN clock cb ON cb.id = c.clock_b_id WHERE c.id = $1`,
+    [id],
+  )) as { id: string; institute_id: string; state: string; reference_ratio: string; period_start: Date; period_end: Date; clock_b_institute_id: string | null }[];
+  const r = rows[0];
+  if (!r) return null;
+  return {
+    id: r.id, instituteId: r.institute_id, clockBInstituteId: r.clock_b_institute_id, state: r.state, referenceRatio: r.reference_ratio,
+    periodStartMjd: toMjd(new Date(r.period_start)), periodEndMjd: toMjd(new Date(r.period_end)),
+  };
+}
+
+/** Same reading rule as campaigns: lab staff see their institute's campaigns (clock A or clock B); others see all. */
+function canRead(actor: Actor, c: CampaignForUpload) {
+  return actor.role !== 'operator' || actor.instituteId === c.instituteId || actor.instituteId === c.clockBInstituteId;
+}
+
+function requireUploader(actor: Actor, c: CampaignForUpload) {
+  if (actor.role !== 'operator' || actor.instituteId !== c.instituteId) {
+    throw new Forbidden('Only lab staff of the institute that owns the campaign (clock A) upload its series.');
+  }
+  if (c.state !== 'draft' && c.state !== 'returned') {
+    throw new Conflict(`Series can be added only while the campaign is a draft or returned; it is ${c.state.replace('_', ' ')}.`, { state: c.state });
+  }
+}
+
+type SeriesDbRow = {
+  id: string; campaign_id: string; file_name: string; sha256: string; byte_size: string; row_count: number; valid_count: number;
+  first_mjd: number; last_mjd: number; uptime_fraction: number; tau0_seconds: number; mapping: Record<string, unknown>;
+  invented: boolean; created_by: string; created_at: Date;
+};
+
+export function toSeriesDto(r: SeriesDbRow): RatioSeries {
+  return {
+    id: r.id, campaignId: r.campaign_id, fileName: r.file_name, sha256: r.sha256, byteSize: Number(r.byte_size),
+    rowCount: r.row_count, validCount: r.valid_count, firstMjd: r.first_mjd, lastMjd: r.last_mjd,
+    uptimeFraction: r.uptime_fraction, tau0Seconds: r.tau0_seconds, mapping: r.mapping, invented: r.invented,
+    createdBy: r.created_by, createdAt: new Date(r.created_at).toISOString(),
+  };
+}
+
+const SERIES_COLUMNS = 'id, campaign_id, file_name, sha256, byte_size, row_count, valid_count, first_mjd, last_mjd, uptime_fraction, tau0_seconds, mapping, invented, created_by, created_at';
+
+function problemMessage(s: IngestSummary): string {
+  const first = s.issues[0];
+  const more = s.issues.length - 1 + s.furtherProblems;
+  const where = `line ${first.line}${first.column ? `, column ${first.column}` : ''}`;
+  return `The file was not stored: ${where}: ${first.message}.${more > 0 ? ` ${more} further problem(s) found; the whole file was checked.` : ' No further problems found in the rest of the file.'}`;
+}
+
+export type StoreSeriesInput = {
+  campaign: CampaignForUpload;
+  fileName: string;
+  source: NodeJS.ReadableStream & import('node:stream').Readable;
+  fields: Record<string, string>;
+  limitBytes: number;
+  uploadId?: string;
+  invented?: boolean;
+};
+
+/**
+ * The one write path for a series (HTTP uploads and the demo seeder): inside the caller's transaction on `client`,
+ * COPY the rows, keep the raw file, insert the series row. Throws Invalid/PayloadTooLarge/Conflict; the caller
+ * rolls back on any error.
+ */
+export async function storeSeries(client: pg.ClientBase, actor: Actor | null, input: StoreSeriesInput): Promise<SeriesDbRow> {
+  const parsed = columnMappingSchema.safeParse(input.fields);
+  if (!parsed.success) {
+    input.source.resume();
+    throw new Invalid('The column mapping is not valid.', parsed.error.issues.map((i) => ({ path: `body.${i.path.map(String).join('.')}`, message: i.message })));
+  }
+  const mapping = parsed.data;
+  const seriesId = crypto.randomUUID();
+  const spool = openSpool();
+  try {
+    const copy = client.query(copyFrom(COPY_SAMPLES_SQL));
+    let summary: IngestSummary;
+    try {
+      summary = await ingestRatioSeries(input.source, copy, {
+        seriesId, mapping, referenceRatio: input.campaign.referenceRatio,
+        periodStartMjd: input.campaign.periodStartMjd, periodEndMjd: input.campaign.periodEndMjd,
+        limitBytes: input.limitBytes,
+        onRawChunk: (c) => spool.write(c),
+        onProgress: (p) => uploadProgress.update(input.uploadId, p),
+      });
+      await finishCopy(copy);
+    } catch (e) {
+      copy.destroy(e as Error);
+      throw e;
+    }
+    if (summary.tooLarge) throw new PayloadTooLarge(input.limitBytes);
+    if (summary.issues.length > 0) throw new Invalid(problemMessage(summary), summary.issues, { furtherProblems: summary.furtherProblems });
+    const existing = await client.query<{ id: string }>('SELECT id FROM ratio_series WHERE campaign_id = $1 AND sha256 = $2', [input.campaign.id, summary.sha256]);
+    if (existing.rows[0]) {
+      const id = existing.rows[0].id;
+      throw new Conflict('This file was already uploaded to this campaign.', { existingUploadId: id, existingUpload: `/api/v1/uploads/${id}` });
+    }
+    uploadProgress.update(input.uploadId, { phase: 'storing' });
+    const oid = await spool.toLargeObject(client);
+    const storedMapping = { ...mapping, delimiter: summary.delimiter, hasHeader: summary.hasHeader, header: summary.header };
+    const { rows } = await client.query<SeriesDbRow>(
+      `INSERT INTO ratio_series (id, campaign_id, file_name, sha256, byte_size, row_count, valid_count, first_mjd, last_mjd,
+         uptime_fraction, tau0_seconds, mapping, raw_file_oid, invented, created_by_user_id, created_by)
+       VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12,$13,$14,$15,$16) RETURNING ${SERIES_COLUMNS}`,
+      [seriesId, input.campaign.id, input.fileName.slice(0, 250), summary.sha256, summary.byteSize, summary.rowCount, summary.validCount,
+        summary.firstMjd, summary.lastMjd, summary.uptimeFraction, summary.tau0Seconds, JSON.stringify(storedMapping), oid,
+        input.invented ?? false, actor?.userId ?? null, actorLabel(actor)],
+    );
+    return rows[0];
+  } finally {
+    spool.close();
+  }
+}
+
+function isUniqueViolation(e: unknown) {
+  return (e as { code?: string })?.code === '23505';
+}
+
+export function createUploadsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'uploadLimitBytes'> }) {
+  const { dataSource, config } = deps;
+
+  async function campaignOr404(actor: Actor, id: string) {
+    const c = await loadCampaignForUpload(dataSource, id);
+    if (!c || !canRead(actor, c)) throw new NotFound('Campaign');
+    return c;
+  }
+  async function seriesOr404(actor: Actor, id: string) {
+    const rows = (await dataSource.query(`SELECT ${SERIES_COLUMNS} FROM ratio_series WHERE id = $1`, [id])) as SeriesDbRow[];
+    if (!rows[0]) throw new NotFound('Upload');
+    await campaignOr404(actor, rows[0].campaign_id);
+    return rows[0];
+  }
+  function checkDeclaredSize(req: Request) {
+    const declared = Number(req.headers['content-length']);
+    // multipart framing and the mapping fields add a few kilobytes around the file itself
+    if (Number.isFinite(declared) && declared > config.uploadLimitBytes + 64 * 1024) throw new PayloadTooLarge(config.uploadLimitBytes);
+  }
+
+  return {
+    async preview(actor: Actor, campaignId: string, req: Request): Promise<UploadPreview> {
+      authorize(actor, 'campaigns:write');
+      requireUploader(actor, await campaignOr404(actor, campaignId));
+      const { result } = await receiveMultipart(req, { fileBytes: config.uploadLimitBytes }, async (file, info) => {
+        const parts: Buffer[] = [];
+        let size = 0;
+        for await (const chunk of file) {
+          if (size >= PREVIEW_BYTES) continue; // the rest of the part is read and dropped
+          const c = chunk as Buffer;
+          parts.push(c.subarray(0, PREVIEW_BYTES - size));
+          size += Math.min(c.length, PREVIEW_BYTES - size);
+        }
+        const head = Buffer.concat(parts);
+        if (head.length === 0) throw new Invalid('The file is empty.', [{ path: 'file', line: 1, column: '1', message: 'the file is empty' }]);
+        const text = new TextDecoder('utf-8').decode(head);
+        const nul = text.indexOf('\0');
+        const bad = text.indexOf('\uFFFD');
+        const at = nul >= 0 ? nul : bad;
+        // a multi-byte character cut at the 64 KiB edge is not an encoding fault
+        if (at >= 0 && !(nul < 0 && at >= text.length - 2 && head.length >= PREVIEW_BYTES)) {
+          const line = text.slice(0, at).split('\n').length;
+          throw new Invalid('The file is not CSV text.', [{ path: 'file', line, message: nul >= 0 ? 'the file holds NUL bytes: it is a binary file' : 'the file is not valid UTF-8 text' }]);
+        }
+        return buildPreview(text, info.filename, head.length, size >= PREVIEW_BYTES);
+      });
+      if (!result) throw new Invalid('No file was sent.', [{ path: 'file', message: 'attach the file as the part named "file"' }]);
+      return result;
+    },
+
+    async upload(actor: Actor, campaignId: string, req: Request, uploadId?: string): Promise<RatioSeries> {
+      authorize(actor, 'campaigns:write');
+      const campaign = await campaignOr404(actor, campaignId);
+      requireUploader(actor, campaign);
+      checkDeclaredSize(req);
+      const declared = Number(req.headers['content-length']);
+      if (uploadId) uploadProgress.start(uploadId, actor.userId, Number.isFinite(declared) ? declared : null);
+      const qr = dataSource.createQueryRunner();
+      await qr.connect();
+      const client = (qr as unknown as { databaseConnection: pg.PoolClient }).databaseConnection;
+      try {
+        await qr.startTransaction();
+        const { result } = await receiveMultipart(req, { fileBytes: config.uploadLimitBytes }, async (file, info, fields) => {
+          const row = await storeSeries(client, actor, { campaign, fileName: info.filename, source: file, fields, limitBytes: config.uploadLimitBytes, uploadId });
+          await recordAudit(qr.manager, actor, {
+            action: 'campaign.series-uploaded', entityType: 'ratio_series', entityId: row.id, instituteId: campaign.instituteId,
+            details: { campaignId, fileName: row.file_name, sha256: row.sha256, rows: row.row_count, valid: row.valid_count },
+          });
+          return row;
+        });
+        if (!result) throw new Invalid('No file was sent.', [{ path: 'file', message: 'attach the file as the part named "file"' }]);
+        await qr.commitTransaction();
+        uploadProgress.update(uploadId, { phase: 'done', seriesId: result.id });
+        return toSeriesDto(result);
+      } catch (e) {
+        uploadProgress.update(uploadId, { phase: 'failed' });
+        if (qr.isTransactionActive) await qr.rollbackTransaction().catch(() => undefined);
+        if (isUniqueViolation(e)) throw new Conflict('This file was already uploaded to this campaign (at the same moment).');
+        throw e;
+      } finally {
+        await qr.release();
+      }
+    },
+
+    async list(actor: Actor, campaignId: string): Promise<RatioSeries[]> {
+      authorize(actor, 'campaigns:read');
+      await campaignOr404(actor, campaignId);
+      const rows = (await dataSource.query(`SELECT ${SERIES_COLUMNS} FROM ratio_series WHERE campaign_id = $1 ORDER BY created_at, id`, [campaignId])) as SeriesDbRow[];
+      return rows.map(toSeriesDto);
+    },
+
+    async get(actor: Actor, id: string): Promise<RatioSeries> {
+      authorize(actor, 'campaigns:read');
+      return toSeriesDto(await seriesOr404(actor, id));
+    },
+
+    async plot(actor: Actor, id: string, q: { points: number; fromMjd?: number; toMjd?: number }): Promise<SeriesPlot> {
+      authorize(actor, 'campaigns:read');
+      const s = await seriesOr404(actor, id);
+      return decimateSeries(dataSource, { id: s.id, firstMjd: s.first_mjd, lastMjd: s.last_mjd, rowCount: s.row_count }, q);
+    },
+
+    progress(actor: Actor, uploadId: string) {
+      authorize(actor, 'campaigns:write');
+      const p = uploadProgress.get(uploadId, actor.userId);
+      if (!p) throw new NotFound('Upload progress');
+      return p;
+    },
+  };
+}
