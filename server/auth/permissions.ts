@@ -27,6 +27,7 @@ export const permissionTable = {
   'network:read': everyone,
   'network:write': ['coordinator'],
   'certificates:read': everyone,
+  'results:recompute': ['operator', 'coordinator'],
   'certificates:issue': ['coordinator'],
 } as const satisfies Record<string, readonly Role[]>;
 

@@ -2,6 +2,7 @@ import { ApiTokenEntity, AuditEventEntity, InstituteEntity, MailOutboxEntity, Us
 import { CertificateEntity } from './certificates.entities';
 import { networkEntities } from './network.entities';
 import { registryEntities } from './registry.entities';
+import { resultsEntities } from './results.entities';
 
 // Every entity the data source knows. Feature entities are added here.
-export const entities = [InstituteEntity, UserEntity, ApiTokenEntity, AuditEventEntity, MailOutboxEntity, CertificateEntity, ...networkEntities, ...registryEntities];
+export const entities = [InstituteEntity, UserEntity, ApiTokenEntity, AuditEventEntity, MailOutboxEntity, CertificateEntity, ...networkEntities, ...registryEntities, ...resultsEntities];

@@ -1,0 +1,346 @@
+import crypto from 'node:crypto';
+import fs from 'node:fs';
+import Decimal from 'decimal.js';
+import type { BudgetLineDto, ResultBody } from '../../shared/results';
+import type { CampaignForResult, ClockForResult } from '../campaigns/campaigns.service';
+import { combineBudget, type BudgetComponent } from '../science/uncertainty';
+import { C2_M2_PER_S2, L_G, W0_IHRS_M2_PER_S2, W0_LG_M2_PER_S2 } from '../science/constants';
+import { normalisedError } from '../science/agreement';
+import { cFromNormalHeight, meanNormalGravity, normalHeightFromC } from '../science/normal-gravity';
+import { potentialDifferenceFromY } from '../science/redshift';
+import { gridFromEpochs, meanWithStatisticalUncertainty, stabilityAnalysis, type RegularGrid } from '../science/stability';
+import { convertPotentialDifference, tidePotentialSeries, type TideSystem } from '../science/tides';
+import { ScienceInputError } from '../science/errors';
+
+// The comparison result as a function of its inputs (campaign metadata + samples): no database, no clock reads
+// (computedAt is the caller's). The service loads the inputs, hashes them and stores what this returns.
+
+export const SOFTWARE_VERSION: string = (JSON.parse(fs.readFileSync(new URL('../../package.json', import.meta.url), 'utf8')) as { version: string }).version;
+
+export interface SampleArrays {
+  /** Ascending MJD (UTC). */
+  epochMjd: Float64Array;
+  y: Float64Array;
+  /** 1 = valid, 0 = flagged. */
+  valid: Uint8Array;
+}
+
+export interface InputFile {
+  seriesId: string;
+  name: string;
+  sha256: string;
+  sampleCount: number;
+}
+
+export interface ResultInputs {
+  campaign: CampaignForResult;
+  files: InputFile[];
+  samples: SampleArrays;
+}
+
+/** The tide model's own uncertainty: 1 % of the correction's peak-to-peak, at least 1e-19 (our assumption; Love-number and ephemeris errors are well below 1 %). */
+export const TIDE_MODEL_RELATIVE = 0.01;
+export const TIDE_MODEL_FLOOR = 1e-19;
+const MAX_SERIES_POINTS = 1500;
+
+/** SHA-256 over everything the result depends on except the sample values themselves (those enter through their files' SHA-256). */
+export function inputHashOf(campaign: CampaignForResult, files: readonly InputFile[], softwareVersion = SOFTWARE_VERSION): string {
+  const site = (c: ClockForResult) => {
+    const s = c.site;
+    return [s.id, s.latitudeDeg, s.longitudeDeg, s.ellipsoidalHeightM, s.quasigeoidHeightM, s.quasigeoidUncertaintyM, s.normalHeightM, s.normalHeightUncertaintyM];
+  };
+  const canonical = {
+    series: files.map((f) => f.sha256).sort(),
+    budgetVersionIds: [campaign.clockA.budget.id, campaign.clockB.budget.id],
+    referenceRatio: [campaign.referenceRatio.value, campaign.referenceRatio.relativeUncertainty],
+    link: [campaign.link.id, campaign.link.fractionalUncertainty],
+    sites: [site(campaign.clockA), site(campaign.clockB)],
+    period: [campaign.periodStart, campaign.periodEnd],
+    softwareVersion,
+  };
+  return crypto.createHash('sha256').update(JSON.stringify(canonical)).digest('hex');
+}
+
+/** Drops a sample that repeats the previous epoch (two uploads covering the same second): the first one stays. */
+function dropRepeatedEpochs(s: SampleArrays): { samples: SampleArrays; dropped: number } {
+  let keep = 0;
+  const n = s.epochMjd.length;
+  const e = new Float64Array(n);
+  const y = new Float64Array(n);
+  const v = new Uint8Array(n);
+  for (let i = 0; i < n; i++) {
+    if (keep > 0 && Math.abs(s.epochMjd[i] - e[keep - 1]) < 1e-9) continue;
+    e[keep] = s.epochMjd[i];
+    y[keep] = s.y[i];
+    v[keep] = s.valid[i];
+    keep++;
+  }
+  return { samples: { epochMjd: e.subarray(0, keep), y: y.subarray(0, keep), valid: v.subarray(0, keep) }, dropped: n - keep };
+}
+
+function siteDto(c: ClockForResult) {
+  const s = c.site;
+  return {
+    id: s.id, name: s.name, latitudeDeg: s.latitudeDeg, longitudeDeg: s.longitudeDeg, ellipsoidalHeightM: s.ellipsoidalHeightM,
+    quasigeoidHeightM: s.quasigeoidHeightM, normalHeightM: s.normalHeightM, normalHeightUncertaintyM: s.normalHeightUncertaintyM,
+  };
+}
+
+function clockDto(c: ClockForResult) {
+  return {
+    id: c.id, name: c.name, institute: c.instituteCode, species: c.species, speciesLabel: c.speciesLabel, nominalFrequencyHz: c.nominalFrequencyHz,
+    site: siteDto(c),
+    budget: { id: c.budget.id, version: c.budget.version, totalCorrection: c.budget.totalCorrection, totalUncertainty: c.budget.totalUncertainty },
+  };
+}
+
+/** Normal-height difference for a potential difference between two sites, each with its own latitude. */
+function heightDifference(deltaC_m2s2: number, a: ClockForResult, b: ClockForResult): { deltaH_m: number; gammaBarB: number } {
+  const cA = cFromNormalHeight(a.site.normalHeightM, a.site.latitudeDeg);
+  const hB = normalHeightFromC(cA + deltaC_m2s2, b.site.latitudeDeg);
+  return { deltaH_m: hB - a.site.normalHeightM, gammaBarB: meanNormalGravity(b.site.latitudeDeg, hB) };
+}
+
+function decimate(epochs: Float64Array, y: Float64Array, valid: Uint8Array, tideY: Float64Array): ResultBody['timeSeries'] {
+  const n = epochs.length;
+  if (n === 0) return [];
+  const start = epochs[0];
+  const span = Math.max(epochs[n - 1] - start, 1e-9);
+  const buckets = Math.min(MAX_SERIES_POINTS, n);
+  const sum = new Float64Array(buckets);
+  const tide = new Float64Array(buckets);
+  const tmid = new Float64Array(buckets);
+  const min = new Float64Array(buckets).fill(Infinity);
+  const max = new Float64Array(buckets).fill(-Infinity);
+  const count = new Int32Array(buckets);
+  for (let i = 0; i < n; i++) {
+    if (valid[i] !== 1) continue;
+    const b = Math.min(buckets - 1, Math.floor(((epochs[i] - start) / span) * buckets));
+    sum[b] += y[i];
+    tide[b] += tideY[i];
+    tmid[b] += epochs[i] - start;
+    if (y[i] < min[b]) min[b] = y[i];
+    if (y[i] > max[b]) max[b] = y[i];
+    count[b]++;
+  }
+  const out: ResultBody['timeSeries'] = [];
+  for (let b = 0; b < buckets; b++) {
+    if (count[b] === 0) continue;
+    out.push({ mjd: start + tmid[b] / count[b], y: sum[b] / count[b], yMin: min[b], yMax: max[b], tideY: tide[b] / count[b], count: count[b] });
+  }
+  return out;
+}
+
+export function computeResultBody(inputs: ResultInputs): ResultBody {
+  const { campaign, files } = inputs;
+  const { samples, dropped } = dropRepeatedEpochs(inputs.samples);
+  const { epochMjd, y, valid } = samples;
+  const n = epochMjd.length;
+  const a = campaign.clockA;
+  const b = campaign.clockB;
+
+  // Tidal part of each clock's y is −δW/c² (C = W0 − W); the comparison sees y_tide(B) − y_tide(A).
+  const siteOf = (c: ClockForResult) => ({ latitudeDeg: c.site.latitudeDeg, longitudeDeg: c.site.longitudeDeg, ellipsoidalHeightM: c.site.ellipsoidalHeightM });
+  const wA = tidePotentialSeries(siteOf(a), epochMjd, { removePermanent: true });
+  const wB = tidePotentialSeries(siteOf(b), epochMjd, { removePermanent: true });
+  const tideY = new Float64Array(n);
+  const corrected = new Float64Array(n);
+  let tideMin = Infinity;
+  let tideMax = -Infinity;
+  let tideSum = 0;
+  let ySum = 0;
+  let validCount = 0;
+  for (let i = 0; i < n; i++) {
+    const t = (wA[i] - wB[i]) / C2_M2_PER_S2;
+    tideY[i] = t;
+    corrected[i] = y[i] - t;
+    if (valid[i] === 1 && Number.isFinite(y[i])) {
+      if (t < tideMin) tideMin = t;
+      if (t > tideMax) tideMax = t;
+      tideSum += t;
+      ySum += y[i];
+      validCount++;
+    }
+  }
+  if (validCount < 3) throw new ScienceInputError('samples', 'the campaign needs at least three valid samples for a result');
+
+  let grid: RegularGrid;
+  let gridNote = 'Samples placed on a regular τ0 grid; missing epochs and flagged samples are gaps that no statistic bridges.';
+  try {
+    grid = gridFromEpochs(epochMjd, corrected, valid);
+  } catch (e) {
+    if (!(e instanceof ScienceInputError)) throw e;
+    // Irregular epochs: the statistics then treat the valid samples as contiguous at the median spacing.
+    const spacings = Float64Array.from({ length: n - 1 }, (_, i) => (epochMjd[i + 1] - epochMjd[i]) * 86_400).sort();
+    grid = { y: corrected, valid, tau0Seconds: spacings[Math.floor((n - 1) / 2)], startMjd: epochMjd[0], missingEpochs: 0, invalidSamples: n - validCount };
+    gridNote = `Epochs are not on a regular grid (${e.message}); the valid samples are treated as contiguous at the median spacing, which hides dead time from the stability analysis.`;
+  }
+  if (dropped > 0) gridNote += ` ${dropped} sample(s) repeating an epoch already present (overlapping uploads) were left out.`;
+  const tau0 = grid.tau0Seconds;
+  const points = stabilityAnalysis({ y: grid.y, valid: grid.valid, tau0Seconds: tau0 });
+  const mean = meanWithStatisticalUncertainty({ y: grid.y, valid: grid.valid, tau0Seconds: tau0, points });
+  const yMean = mean.mean;
+  const yUncorrected = ySum / validCount;
+
+  const tidePeakToPeak = tideMax - tideMin;
+  const tideModelU = Math.max(TIDE_MODEL_RELATIVE * tidePeakToPeak, TIDE_MODEL_FLOOR);
+  const fitPoint = points.find((p) => p.tauSeconds === mean.tauFitSeconds);
+  const components: (BudgetComponent & { note: string })[] = [
+    {
+      name: 'Statistical (frequency instability)', type: 'A', standardUncertainty: mean.statisticalUncertainty ?? 0, sensitivity: 1, unit: '1',
+      degreesOfFreedom: fitPoint?.edf ?? undefined, note: mean.method,
+    },
+    {
+      name: `Clock A systematic (${a.name}, budget v${a.budget.version})`, type: 'B', standardUncertainty: a.budget.totalUncertainty, sensitivity: -1, unit: '1',
+      note: 'y = ν_B/ν_A·(1/R0) − 1 falls as clock A’s frequency rises',
+    },
+    {
+      name: `Clock B systematic (${b.name}, budget v${b.budget.version})`, type: 'B', standardUncertainty: b.budget.totalUncertainty, sensitivity: 1, unit: '1',
+      note: 'total uncertainty of the pinned budget version',
+    },
+    { name: `Fibre link (${campaign.link.name})`, type: 'B', standardUncertainty: campaign.link.fractionalUncertainty, sensitivity: 1, unit: '1', note: 'registered link uncertainty' },
+    {
+      name: 'Reference ratio R0', type: 'B', standardUncertainty: campaign.referenceRatio.relativeUncertainty, sensitivity: -(1 + yMean), unit: '1 (relative)',
+      note: `${campaign.referenceRatio.source}; ∂y/∂(ln R0) = −(1 + y)`,
+    },
+    {
+      name: 'Tide model', type: 'B', standardUncertainty: tideModelU, sensitivity: 1, unit: '1',
+      note: `max(${TIDE_MODEL_RELATIVE * 100} % of the correction’s peak-to-peak, ${TIDE_MODEL_FLOOR}) — our assumption`,
+    },
+  ];
+  const budget = combineBudget(components, 2);
+  const uY = budget.combinedStandardUncertainty;
+  const lines: BudgetLineDto[] = components.map((c, i) => ({
+    component: c.name, type: c.type, standardUncertainty: c.standardUncertainty, sensitivity: c.sensitivity,
+    contribution: budget.lines[i].contribution, varianceShare: budget.lines[i].varianceShare, unit: c.unit, note: c.note,
+  }));
+
+  const dc = potentialDifferenceFromY(yMean, uY);
+  const uDc = dc.uDeltaC_m2s2 ?? 0;
+  const h = heightDifference(dc.deltaC_m2s2, a, b);
+  const uDh = uDc / h.gammaBarB;
+
+  const geoDh = b.site.normalHeightM - a.site.normalHeightM;
+  const uGeo = Math.hypot(a.site.normalHeightUncertaintyM, b.site.normalHeightUncertaintyM);
+  let geodesy: ResultBody['geodesy'] = null;
+  if (uGeo > 0 || uDh > 0) {
+    const agreement = normalisedError(h.deltaH_m, 2 * uDh, geoDh, 2 * uGeo);
+    geodesy = {
+      deltaH_m: { value: geoDh, standardUncertainty: uGeo, expandedUncertainty: 2 * uGeo, coverageFactor: 2 },
+      source: 'registered normal heights of the two sites (h − ζ or as entered), taken as mean-tide',
+      en: agreement.en,
+      agreed: agreement.agreed,
+      differenceM: agreement.difference,
+      statement: agreement.agreed
+        ? `Agreed: |E_n| = ${Math.abs(agreement.en).toFixed(2)} ≤ 1 — the clock and the geodetic height differences agree within their expanded uncertainties (k = 2).`
+        : `Not agreed: |E_n| = ${Math.abs(agreement.en).toFixed(2)} > 1 — the clock and the geodetic height differences differ by more than their combined expanded uncertainty (k = 2).`,
+    };
+  }
+
+  const otherTideSystems = (['zero-tide', 'tide-free'] as const).map((system: Exclude<TideSystem, 'mean-tide'>) => {
+    const c = convertPotentialDifference(dc.deltaC_m2s2, a.site.latitudeDeg, b.site.latitudeDeg, 'mean-tide', system);
+    return { system, deltaC_m2s2: c, deltaH_m: heightDifference(c, a, b).deltaH_m };
+  });
+
+  const periodSeconds = (Date.parse(campaign.periodEnd) - Date.parse(campaign.periodStart)) / 1000;
+  const spanSeconds = n > 0 ? (epochMjd[n - 1] - epochMjd[0]) * 86_400 + tau0 : 0;
+  const averagingTimeSeconds = validCount * tau0;
+  const r0 = new Decimal(campaign.referenceRatio.value);
+  const measuredRatio = r0.times(new Decimal(1).plus(new Decimal(yUncorrected))).toSignificantDigits(21).toFixed();
+
+  const cautions: string[] = [];
+  if (mean.statisticalUncertainty === null) cautions.push('Too few samples for an Allan deviation: no statistical uncertainty is included.');
+  if (!gridNote.startsWith('Samples placed')) cautions.push(gridNote);
+  if (campaign.referenceRatio.justification) cautions.push(`Reference ratio chosen with justification: ${campaign.referenceRatio.justification}`);
+  if (averagingTimeSeconds / Math.max(periodSeconds, 1) < 0.5) cautions.push(`Uptime is ${((100 * averagingTimeSeconds) / periodSeconds).toFixed(1)} % of the campaign period.`);
+  if (geodesy && !geodesy.agreed) cautions.push('The clock result does not agree with the geodetic height difference (|E_n| > 1): check both before using either.');
+
+  return {
+    campaign: { id: campaign.id, name: campaign.name, periodStart: campaign.periodStart, periodEnd: campaign.periodEnd },
+    clockA: clockDto(a),
+    clockB: clockDto(b),
+    link: { id: campaign.link.id, name: campaign.link.name, fibreLengthKm: campaign.link.fibreLengthKm, geodesicDistanceKm: campaign.link.geodesicDistanceKm, fractionalUncertainty: campaign.link.fractionalUncertainty },
+    referenceRatio: { value: campaign.referenceRatio.value, relativeUncertainty: campaign.referenceRatio.relativeUncertainty, source: campaign.referenceRatio.source },
+    inputFiles: files,
+    samples: {
+      total: n + dropped,
+      valid: validCount,
+      flaggedInvalid: n - validCount,
+      missingEpochs: grid.missingEpochs,
+      tau0Seconds: tau0,
+      firstEpochMjd: n > 0 ? epochMjd[0] : null,
+      lastEpochMjd: n > 0 ? epochMjd[n - 1] : null,
+      averagingTimeSeconds,
+      uptimeFraction: periodSeconds > 0 ? Math.min(1, averagingTimeSeconds / periodSeconds) : 0,
+      uptimeOfSpanFraction: spanSeconds > 0 ? Math.min(1, averagingTimeSeconds / spanSeconds) : 0,
+      note: gridNote,
+    },
+    measuredRatio,
+    fractionalOffset: {
+      y: yMean,
+      yUncorrected,
+      standardUncertainty: uY,
+      statisticalUncertainty: mean.statisticalUncertainty,
+      statisticalMethod: mean.method,
+      tauFitSeconds: mean.tauFitSeconds,
+      meanMethod: 'Arithmetic mean of the valid tide-corrected samples: every sample stands for the same τ0, so equal weights are the weighted mean.',
+    },
+    tide: {
+      system: 'mean-tide',
+      model:
+        'Periodic solid-Earth tide at each clock: degree-2 Moon and Sun potential × (1 + k2 − h2) = 0.68745 (IERS Conventions 2010 ch. 6–7), permanent part left in (mean-tide, as the IHRS); the tidal part of y, y_tide(B) − y_tide(A) with y_tide = −δW/c², is subtracted sample by sample before averaging.',
+      meanCorrectionY: tideSum / validCount,
+      peakToPeakY: tidePeakToPeak,
+      modelUncertaintyY: tideModelU,
+      uncertaintyRule: `u = max(${TIDE_MODEL_RELATIVE * 100} % of the peak-to-peak correction, ${TIDE_MODEL_FLOOR}) (our assumption; ocean loading and atmospheric effects are not modelled)`,
+    },
+    budget: {
+      outputQuantity: 'fractional frequency offset y (dimensionless)',
+      lines,
+      combinedStandardUncertainty: uY,
+      coverageFactor: 2,
+      expandedUncertainty: budget.expandedUncertainty,
+      effectiveDegreesOfFreedom: Number.isFinite(budget.effectiveDegreesOfFreedom) ? budget.effectiveDegreesOfFreedom : null,
+      correlation: budget.correlation,
+      systematicCorrections:
+        'Uploaded ratios are taken as reported by the labs, i.e. with each clock’s systematic corrections already applied (common practice); the budget totals enter as uncertainties only and the correction totals are listed for traceability.',
+    },
+    deltaC_m2s2: { value: dc.deltaC_m2s2, standardUncertainty: uDc, expandedUncertainty: 2 * uDc, coverageFactor: 2 },
+    deltaH_m: {
+      value: h.deltaH_m, standardUncertainty: uDh, expandedUncertainty: 2 * uDh, coverageFactor: 2,
+      method: 'H_B = C_B/γ̄_B with C_B = C_A + ΔC and C_A = H_A·γ̄_A (GRS80 mean normal gravity along each normal plumb line, Heiskanen & Moritz 1967 eq. 4-42); Δh = H_B − H_A.',
+    },
+    geodesy,
+    otherTideSystems,
+    w0Convention: {
+      name: 'IHRS W0 (heights)',
+      value_m2s2: W0_IHRS_M2_PER_S2,
+      source: 'IAG Resolution No. 1 (2015)',
+      note: `ΔC = C_B − C_A does not depend on W0; the normal heights use the IHRS W0. Time scales use L_G = ${L_G} (IAU 2000 B1.9), i.e. W0 = c²·L_G = ${W0_LG_M2_PER_S2.toFixed(1)} m²/s², which is not used here.`,
+    },
+    stability: {
+      tau0Seconds: tau0,
+      points: points.map((p) => ({
+        tauSeconds: p.tauSeconds, n: p.n, adev: p.adev, adevLow: p.adevLow, adevHigh: p.adevHigh, mdev: p.mdev, tdev: p.tdev,
+        edf: p.edf, noiseType: p.noiseType, noiseIdentified: p.noiseIdentified,
+      })),
+      note: `Tide-corrected y on the τ0 grid with gaps (NIST SP 1065 §5.2, overlapping estimators; 68.3 % intervals). ${gridNote}`,
+    },
+    timeSeries: decimate(epochMjd, y, valid, tideY),
+    method: {
+      statement:
+        'y = R/R0 − 1 per sample (decimal arithmetic), periodic tide removed per sample, mean over valid samples, statistical uncertainty from the Allan deviation at the full averaging time, GUM budget with uncorrelated inputs, ΔC = c²·y (first order), Δh via GRS80 mean normal gravity, E_n against the geodetic normal heights.',
+      sources: [
+        'IEEE Std 1139-2008; NIST SP 1065 (Riley 2008)',
+        'JCGM 100:2008 (GUM)',
+        'IERS Conventions 2010 (TN 36), ch. 6–7',
+        'Moritz 2000, Geodetic Reference System 1980, J Geod 74',
+        'Heiskanen & Moritz 1967, Physical Geodesy, ch. 4',
+        'ISO 13528 / ISO/IEC 17043 (E_n)',
+        'IAG Resolution No. 1 (2015), IHRS',
+      ],
+    },
+    cautions,
+  };
+}
+

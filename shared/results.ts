@@ -1,0 +1,153 @@
+import { z } from 'zod';
+import { stabilityPointSchema } from './calc';
+
+// The comparison result of a campaign: every number with its uncertainty, the inputs' hash, the constants and the
+// software version that produced it. Fractional quantities are dimensionless; units sit in the field names.
+
+const expanded = z.object({
+  value: z.number(),
+  standardUncertainty: z.number().nonnegative(),
+  expandedUncertainty: z.number().nonnegative(),
+  coverageFactor: z.literal(2),
+});
+
+const siteSchema = z.object({
+  id: z.string(),
+  name: z.string(),
+  latitudeDeg: z.number(),
+  longitudeDeg: z.number(),
+  ellipsoidalHeightM: z.number(),
+  quasigeoidHeightM: z.number(),
+  /** Normal height H_N = h − ζ (or as registered), metres, with its standard uncertainty. */
+  normalHeightM: z.number(),
+  normalHeightUncertaintyM: z.number(),
+});
+
+const clockSchema = z.object({
+  id: z.string(),
+  name: z.string(),
+  institute: z.string(),
+  species: z.string(),
+  speciesLabel: z.string(),
+  nominalFrequencyHz: z.string(),
+  site: siteSchema,
+  budget: z.object({ id: z.string(), version: z.number().int(), totalCorrection: z.number(), totalUncertainty: z.number() }),
+});
+
+export const budgetLineSchema = z.object({
+  component: z.string(),
+  type: z.enum(['A', 'B']),
+  /** Standard uncertainty u(x_i) of the input, in `unit`. */
+  standardUncertainty: z.number().nonnegative(),
+  /** GUM sensitivity coefficient c_i = ∂y/∂x_i. */
+  sensitivity: z.number(),
+  /** |c_i|·u(x_i), fractional frequency. */
+  contribution: z.number().nonnegative(),
+  /** Share of u_c² (0…1). */
+  varianceShare: z.number(),
+  unit: z.string(),
+  note: z.string(),
+});
+export type BudgetLineDto = z.infer<typeof budgetLineSchema>;
+
+export const seriesPointSchema = z.object({
+  /** Bucket centre, MJD (UTC). */
+  mjd: z.number(),
+  /** Mean measured y in the bucket (before the tide correction). */
+  y: z.number(),
+  yMin: z.number(),
+  yMax: z.number(),
+  /** Mean tidal part of y in the bucket, y_tide(B) − y_tide(A); the corrected series is y − tideY. */
+  tideY: z.number(),
+  count: z.number().int(),
+});
+
+export const resultBodySchema = z.object({
+  campaign: z.object({ id: z.string(), name: z.string(), periodStart: z.string(), periodEnd: z.string() }),
+  clockA: clockSchema,
+  clockB: clockSchema,
+  link: z.object({ id: z.string(), name: z.string(), fibreLengthKm: z.number(), geodesicDistanceKm: z.number(), fractionalUncertainty: z.number() }),
+  referenceRatio: z.object({ value: z.string(), relativeUncertainty: z.number(), source: z.string() }),
+  inputFiles: z.array(z.object({ seriesId: z.string(), name: z.string(), sha256: z.string(), sampleCount: z.number().int() })),
+  samples: z.object({
+    total: z.number().int(),
+    valid: z.number().int(),
+    flaggedInvalid: z.number().int(),
+    /** Grid slots without any sample (dead time between and inside uploads). */
+    missingEpochs: z.number().int(),
+    tau0Seconds: z.number(),
+    firstEpochMjd: z.number().nullable(),
+    lastEpochMjd: z.number().nullable(),
+    averagingTimeSeconds: z.number(),
+    /** Valid averaging time over the campaign period. */
+    uptimeFraction: z.number(),
+    /** Valid averaging time over the span from the first to the last sample. */
+    uptimeOfSpanFraction: z.number(),
+    note: z.string(),
+  }),
+  /** Mean of the measured ratio before the tide correction, R0·(1 + ȳ), 21 significant digits. */
+  measuredRatio: z.string(),
+  fractionalOffset: z.object({
+    /** Mean y after the tide correction (the result). */
+    y: z.number(),
+    /** Mean y as measured (no tide correction). */
+    yUncorrected: z.number(),
+    standardUncertainty: z.number(),
+    statisticalUncertainty: z.number().nullable(),
+    statisticalMethod: z.string(),
+    tauFitSeconds: z.number().nullable(),
+    meanMethod: z.string(),
+  }),
+  tide: z.object({
+    system: z.enum(['mean-tide', 'zero-tide', 'tide-free']),
+    model: z.string(),
+    /** Mean tidal part of y that was removed. */
+    meanCorrectionY: z.number(),
+    peakToPeakY: z.number(),
+    modelUncertaintyY: z.number(),
+    uncertaintyRule: z.string(),
+  }),
+  budget: z.object({
+    outputQuantity: z.string(),
+    lines: z.array(budgetLineSchema),
+    combinedStandardUncertainty: z.number(),
+    coverageFactor: z.literal(2),
+    expandedUncertainty: z.number(),
+    effectiveDegreesOfFreedom: z.number().nullable(),
+    correlation: z.string(),
+    systematicCorrections: z.string(),
+  }),
+  deltaC_m2s2: expanded,
+  deltaH_m: expanded.extend({ method: z.string() }),
+  geodesy: z.object({
+    deltaH_m: expanded,
+    source: z.string(),
+    en: z.number(),
+    agreed: z.boolean(),
+    differenceM: z.number(),
+    statement: z.string(),
+  }).nullable(),
+  otherTideSystems: z.array(z.object({ system: z.enum(['zero-tide', 'tide-free']), deltaC_m2s2: z.number(), deltaH_m: z.number() })),
+  w0Convention: z.object({ name: z.string(), value_m2s2: z.number(), source: z.string(), note: z.string() }),
+  stability: z.object({ tau0Seconds: z.number(), points: z.array(stabilityPointSchema), note: z.string() }),
+  timeSeries: z.array(seriesPointSchema),
+  method: z.object({ statement: z.string(), sources: z.array(z.string()) }),
+  cautions: z.array(z.string()),
+});
+export type ResultBody = z.infer<typeof resultBodySchema>;
+
+export const comparisonResultSchema = z.object({
+  id: z.string().uuid(),
+  campaignId: z.string().uuid(),
+  inputHash: z.string(),
+  softwareVersion: z.string(),
+  constants: z.record(z.string(), z.unknown()),
+  computedAt: z.string(),
+  computedBy: z.string(),
+  /** True when this answer was computed for this request (inputs changed or recomputation asked for). */
+  fresh: z.boolean(),
+  result: resultBodySchema,
+});
+export type ComparisonResultDto = z.infer<typeof comparisonResultSchema>;
+
+export const resultCsvColumns = ['section', 'quantity', 'value', 'standard_uncertainty', 'expanded_uncertainty_k2', 'unit', 'note'] as const;
