@@ -1,0 +1,77 @@
+import { useState } from 'react';
+import { Link } from 'react-router';
+import { useNetworkMap } from '../../api/network';
+import { NetworkMapLegend, NetworkMapSvg, type MapSelection } from '../../components/plots/network-map';
+import { Panel } from '../../components/ui';
+import { fmt } from './format';
+import { NetworkNav } from './network-nav';
+
+export function MapPage() {
+  const map = useNetworkMap();
+  const [selected, setSelected] = useState<MapSelection | null>(null);
+  const d = map.data;
+  return (
+    <>
+      <h1>Network map</h1>
+      <NetworkNav />
+      <div className="grid gap-4 lg:grid-cols-[1fr_260px]">
+        <Panel>
+          {d ? <NetworkMapSvg data={d} selected={selected} onSelect={setSelected} /> : <p>Loading…</p>}
+          <p className="mt-1 text-xs text-ink-500">Coastline: Natural Earth 1:50m (public domain) via world-atlas. Section colours come from the latest finished adjustment run.</p>
+        </Panel>
+        <div className="space-y-4">
+          <Panel title="Selected">{d && <SelectionDetail data={d} selected={selected} />}</Panel>
+          <Panel title="Legend"><NetworkMapLegend /></Panel>
+        </div>
+      </div>
+    </>
+  );
+}
+
+function SelectionDetail({ data, selected }: { data: NonNullable<ReturnType<typeof useNetworkMap>['data']>; selected: MapSelection | null }) {
+  if (!selected) return <p className="text-sm text-ink-500">Click or press Enter on a benchmark, section, site or link.</p>;
+  if (selected.kind === 'benchmark') {
+    const b = data.benchmarks.find((x) => x.id === selected.id);
+    if (!b) return null;
+    return (
+      <div className="text-sm" data-testid="map-selection">
+        <p className="font-semibold">{b.code} · {b.name}</p>
+        <p>{b.datumName} · {b.fixed ? 'fixed' : 'free'}{b.destroyed ? ' · destroyed' : ''}</p>
+        <p>{fmt(b.latitudeDeg, 5)}° N, {fmt(b.longitudeDeg, 5)}° E</p>
+        <Link to={`/network/benchmarks/${b.id}`}>Open the benchmark →</Link>
+      </div>
+    );
+  }
+  if (selected.kind === 'section') {
+    const s = data.sections.find((x) => x.id === selected.id);
+    if (!s) return null;
+    return (
+      <div className="text-sm" data-testid="map-selection">
+        <p className="font-semibold">Section {s.fromCode} → {s.toCode}</p>
+        <p>{s.lineName ?? 'no line name'}</p>
+        <p>standardised residual w = {fmt(s.standardizedResidual, 2)}{s.suspected ? ' · ✕ suspected' : ''}</p>
+        {data.runId && <Link to={`/network/runs/${data.runId}`}>Open the adjustment run →</Link>}
+      </div>
+    );
+  }
+  if (selected.kind === 'site') {
+    const s = data.sites.find((x) => x.id === selected.id);
+    if (!s) return null;
+    return (
+      <div className="text-sm" data-testid="map-selection">
+        <p className="font-semibold">{s.code} · {s.name}</p>
+        <p>tied to benchmark {s.benchmarkCode ?? '— (no tie)'}</p>
+        <p>{fmt(s.latitudeDeg, 5)}° N, {fmt(s.longitudeDeg, 5)}° E</p>
+      </div>
+    );
+  }
+  const l = data.links.find((x) => x.id === selected.id);
+  if (!l) return null;
+  return (
+    <div className="text-sm" data-testid="map-selection">
+      <p className="font-semibold">Fibre link {l.label}</p>
+      <p>E_n = {fmt(l.en, 2)}</p>
+      <Link to="/network/reconciliation">Open the reconciliation →</Link>
+    </div>
+  );
+}

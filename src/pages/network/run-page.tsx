@@ -1,0 +1,98 @@
+import { useState } from 'react';
+import { useNavigate, useParams } from 'react-router';
+import { useRun } from '../../api/network';
+import { ResidualPlot } from '../../components/plots/residual-plot';
+import { Caution, Panel } from '../../components/ui';
+import { fmt, when } from './format';
+import { NetworkNav } from './network-nav';
+
+export function RunPage() {
+  const { id = '' } = useParams();
+  const run = useRun(id);
+  const navigate = useNavigate();
+  const [showAll, setShowAll] = useState(false);
+  const r = run.data;
+  if (!r) return <p>Loading…</p>;
+  const res = r.result;
+  const obs = res ? [...res.observations].sort((a, b) => Math.abs(b.standardizedResidual ?? 0) - Math.abs(a.standardizedResidual ?? 0)) : [];
+  return (
+    <>
+      <h1>Adjustment run of {when(r.createdAt)}</h1>
+      <NetworkNav />
+      <Panel title="Progress">
+        <div className="flex items-center gap-3 text-sm">
+          <div className="h-3 w-72 overflow-hidden rounded bg-paper-200" role="progressbar" aria-valuenow={Math.round(r.progress * 100)} aria-valuemin={0} aria-valuemax={100}>
+            <div className={`h-3 ${r.state === 'failed' ? 'bg-disagree-600' : 'bg-ink-600'}`} style={{ width: `${Math.round(r.progress * 100)}%` }} />
+          </div>
+          <span data-testid="run-state">{r.state === 'done' ? '✓ finished' : r.state === 'failed' ? '✕ failed' : `${r.state}: ${r.stage ?? ''} (${Math.round(r.progress * 100)} %)`}</span>
+        </div>
+        {r.error && <p role="alert" className="mt-2 text-sm text-disagree-800">{r.error.message}</p>}
+        <p className="mt-2 text-xs text-ink-500">
+          Inputs: {r.inputSummary.benchmarks} benchmarks, {r.inputSummary.sections} sections, {r.inputSummary.ties} local ties, {r.inputSummary.clocks} clock comparisons ·
+          σ = {r.options.sigmaMmPerSqrtKm} mm/√km · datum: {r.options.constraint === 'fixed' ? 'fixed benchmarks' : 'minimum constraint'} · input SHA-256 {r.inputSummary.inputSha256.slice(0, 12)}…
+        </p>
+      </Panel>
+      {res && (
+        <>
+          <Panel title="Statistics">
+            <dl className="grid grid-cols-2 gap-x-6 gap-y-1 text-sm md:grid-cols-4">
+              <dt className="text-ink-500">Unknowns</dt><dd>{res.unknowns}</dd>
+              <dt className="text-ink-500">Degrees of freedom</dt><dd>{res.degreesOfFreedom} (Σr = {fmt(res.redundancySum, 3)})</dd>
+              <dt className="text-ink-500">σ̂0</dt><dd>{fmt(res.sigma0, 3)}</dd>
+              <dt className="text-ink-500">vᵀPv</dt><dd>{fmt(res.vtpv, 2)}</dd>
+              <dt className="text-ink-500">Global χ² test (α = {res.globalTest?.alpha ?? 0.05})</dt>
+              <dd data-testid="global-test">{res.globalTest ? `${res.globalTest.passed ? '✓ passed' : '✕ rejected'}: ${fmt(res.globalTest.statistic, 2)} in [${fmt(res.globalTest.lower, 2)}, ${fmt(res.globalTest.critical, 2)}]` : 'no redundancy'}</dd>
+              <dt className="text-ink-500">Data snooping</dt><dd>critical |w| = {fmt(res.snooping.criticalValue, 2)} (α0 = {res.snooping.alpha0}, Baarda)</dd>
+            </dl>
+            {res.snooping.suspects.length > 0 && (
+              <div className="mt-3 rounded-md border border-disagree-600 bg-disagree-100 px-3 py-2 text-sm" data-testid="suspects">
+                <p className="font-semibold text-disagree-800">✕ Suspected observations (largest |w| first; remove one at a time and re-run):</p>
+                <ul className="list-disc pl-5">{res.snooping.suspects.map((s) => <li key={s.id}>{s.label}: w = {fmt(s.standardizedResidual, 2)}</li>)}</ul>
+              </div>
+            )}
+            {res.datumOffsets.length > 0 && (
+              <p className="mt-2 text-sm">Datum offsets: {res.datumOffsets.map((d) => `${d.name}: ${fmt(d.value_m2s2, 3)} ± ${fmt(d.sigma_m2s2, 3)} m²/s² (${fmt(d.valueMm, 0)} ± ${fmt(d.sigmaMm, 0)} mm)`).join('; ')}</p>
+            )}
+          </Panel>
+          <Panel title="Standardised residuals">
+            <ResidualPlot title="Standardised residuals of the observations" axisLabel="standardised residual w (dashed: critical value)" critical={res.snooping.criticalValue}
+              items={obs.slice(0, showAll ? obs.length : 25).map((o) => ({ id: o.id, label: o.label, value: o.standardizedResidual, onClick: o.kind === 'levelling' ? () => navigate('/network/sections') : undefined }))} />
+            {obs.length > 25 && <button className="text-sm underline" onClick={() => setShowAll(!showAll)}>{showAll ? 'Show the 25 largest' : `Show all ${obs.length}`}</button>}
+          </Panel>
+          <Panel title="Adjusted points">
+            <div className="max-h-96 overflow-auto">
+              <table className="min-w-full text-sm">
+                <thead className="text-left text-ink-600"><tr><th>Point</th><th>Datum</th><th>C (m²/s²)</th><th>σ_C (m²/s²)</th><th>Normal height H (m)</th><th>σ_H (mm)</th><th>Role</th></tr></thead>
+                <tbody>
+                  {res.points.map((p) => (
+                    <tr key={p.code} className="border-t border-paper-200">
+                      <td>{p.label}</td><td>{p.datumName ?? '—'}</td><td>{fmt(p.c_m2s2, 4)}</td><td>{fmt(p.sigmaC_m2s2, 4)}</td><td>{fmt(p.normalHeightM, 4)}</td><td>{fmt(p.sigmaHeightM * 1000, 1)}</td>
+                      <td>{p.datum === 'held' ? '■ held' : p.datum}</td>
+                    </tr>
+                  ))}
+                </tbody>
+              </table>
+            </div>
+            <p className="mt-2 text-xs text-ink-500">σ with a-priori σ0 = 1 (standard uncertainties, k = 1); H from C with the GRS80 mean normal gravity.</p>
+          </Panel>
+          <Panel title="Observations">
+            <div className="max-h-96 overflow-auto">
+              <table className="min-w-full text-sm">
+                <thead className="text-left text-ink-600"><tr><th>Observation</th><th>Kind</th><th>ΔC (m²/s²)</th><th>σ (m²/s²)</th><th>Residual (m²/s²)</th><th>Redundancy r</th><th>w</th></tr></thead>
+                <tbody>
+                  {obs.map((o) => (
+                    <tr key={o.id} className={`border-t border-paper-200 ${o.suspected ? 'bg-disagree-100' : ''}`}>
+                      <td>{o.suspected ? '✕ ' : ''}{o.label}</td><td>{o.kind}</td><td>{fmt(o.deltaC_m2s2, 4)}</td><td>{fmt(o.sigma_m2s2, 4)}</td>
+                      <td>{fmt(o.residual_m2s2, 4)}</td><td>{fmt(o.redundancy, 3)}</td><td className={o.suspected ? 'font-semibold text-disagree-800' : ''}>{fmt(o.standardizedResidual, 2)}</td>
+                    </tr>
+                  ))}
+                </tbody>
+              </table>
+            </div>
+          </Panel>
+          <Caution />
+        </>
+      )}
+    </>
+  );
+}

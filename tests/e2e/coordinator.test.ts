@@ -1,0 +1,82 @@
+import type { Browser } from 'playwright-core';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { stopQueues } from '../../server/jobs/queue';
+import { startWorker, type Worker } from '../../server/jobs/worker';
+import { launchBrowser, screenshot, signInWithBrowser, startE2eServer, type E2eServer } from '../helpers/browser';
+
+// The coordinator's journey through the levelling network: upload sections, see the failing loop, run an adjustment
+// (queued, executed by the worker, progress shown), open the reconciliation and the map.
+
+let srv: E2eServer;
+let browser: Browser;
+let worker: Worker;
+beforeAll(async () => {
+  srv = await startE2eServer();
+  worker = await startWorker({ dataSource: srv.ds, databaseUrl: srv.databaseUrl, pollingIntervalSeconds: 0.5 });
+  browser = await launchBrowser();
+});
+afterAll(async () => {
+  await browser?.close();
+  await worker?.stop();
+  await stopQueues();
+  await srv?.stop();
+});
+
+const coordinator = 'ansel.brandt@geopotential-office.invalid';
+const csv = [
+  'line,from,to,delta_h_m,length_km,mean_gravity_ms2,observed_on,forward_m,backward_m',
+  'Harbour spur,CD-01,CD-06,,9.8,,2025-04-02,4.8012,-4.7990',
+  'Harbour spur,CD-06,SCL-BM1,0.0021,6.1,9.81452,2025-04-03,,',
+].join('\n');
+
+describe('coordinator journey', () => {
+  it('uploads sections, sees the failing loop, adjusts, reconciles and maps', async () => {
+    const context = await browser.newContext({ viewport: { width: 1400, height: 1000 } });
+    const page = await context.newPage();
+    await signInWithBrowser(page, srv.baseUrl, coordinator, '/network/sections');
+
+    // A bad file first: the line and column are named and nothing is stored.
+    await page.getByLabel('Sections file').setInputFiles({ name: 'bad.csv', mimeType: 'text/csv', buffer: Buffer.from(csv.replace('6.1,9.81452', '6.1,nine')) });
+    await page.getByRole('button', { name: 'Check and preview' }).click();
+    await expect(page.getByRole('alert').first().textContent()).resolves.toContain('Line 3, column mean_gravity_ms2');
+    await screenshot(page, 'coordinator-upload-error');
+
+    // The first line has no Δn (the mean of the two runs is used) and no gravity (normal gravity is used).
+    await page.getByLabel('Sections file').setInputFiles({ name: 'harbour.csv', mimeType: 'text/csv', buffer: Buffer.from(csv) });
+    await page.getByRole('button', { name: 'Check and preview' }).click();
+    await page.getByText('2 sections read, nothing stored yet').waitFor();
+    await screenshot(page, 'coordinator-upload-preview');
+    await page.getByRole('button', { name: 'Store 2 sections' }).click();
+    await page.getByText('2 sections stored.').waitFor();
+    await page.getByLabel('Filter by line or benchmark').fill('Harbour');
+    await page.getByRole('cell', { name: 'Harbour spur' }).first().waitFor();
+    await screenshot(page, 'coordinator-sections');
+
+    await page.getByRole('link', { name: 'Loops' }).click();
+    const firstLoop = page.getByTestId('loop').first();
+    await firstLoop.waitFor();
+    await expect(firstLoop.textContent()).resolves.toContain('over tolerance');
+    await expect(firstLoop.textContent()).resolves.toContain('Dune road');
+    await screenshot(page, 'coordinator-loops');
+
+    await page.getByRole('link', { name: 'Adjustment runs' }).click();
+    await page.getByRole('button', { name: 'Run adjustment' }).click();
+    await page.waitForURL(/\/network\/runs\/[0-9a-f-]{36}$/);
+    await page.getByTestId('run-state').filter({ hasText: 'finished' }).waitFor({ timeout: 30_000 });
+    await expect(page.getByTestId('suspects').textContent()).resolves.toContain('Dune road');
+    await screenshot(page, 'coordinator-run');
+
+    await page.getByRole('link', { name: 'Reconciliation' }).click();
+    await page.getByText('scientific comparison').waitFor();
+    await screenshot(page, 'coordinator-reconciliation');
+
+    await page.getByRole('link', { name: 'Map', exact: true }).click();
+    await page.getByRole('button', { name: 'Benchmark SCL-BM1' }).click();
+    await expect(page.getByTestId('map-selection').textContent()).resolves.toContain('Saltmarsh laboratory pillar');
+    await page.waitForTimeout(500);
+    await screenshot(page, 'coordinator-map');
+    await page.getByRole('link', { name: 'Open the benchmark →' }).click();
+    await page.getByRole('heading', { name: 'Benchmark SCL-BM1' }).waitFor();
+    await context.close();
+  });
+});
