@@ -6,6 +6,7 @@ export type NavItem = { to: string; label: string; roles: readonly Role[]; group
 const all: readonly Role[] = ['operator', 'coordinator', 'auditor', 'admin'];
 export const navItems: NavItem[] = [
   { to: '/', label: 'Overview', roles: all, group: 'work' },
+  { to: '/network', label: 'Levelling network', roles: all, group: 'work' },
   { to: '/certificates', label: 'Certificates', roles: all, group: 'work' },
   { to: '/admin', label: 'Institutes and people', roles: ['admin'], group: 'admin' },
   { to: '/admin/mailbox', label: 'Mail catcher', roles: ['admin'], group: 'admin' },

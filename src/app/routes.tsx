@@ -8,6 +8,14 @@ import { NotFoundPage } from '../pages/not-found-page';
 import { CampaignAuditPage } from '../pages/audit/campaign-audit-page';
 import { CertificatePage } from '../pages/certificates/certificate-page';
 import { CertificatesPage } from '../pages/certificates/certificates-page';
+import { NetworkPage } from '../pages/network/network-page';
+import { SectionsPage } from '../pages/network/sections-page';
+import { LoopsPage } from '../pages/network/loops-page';
+import { RunsPage } from '../pages/network/runs-page';
+import { RunPage } from '../pages/network/run-page';
+import { ReconciliationPage } from '../pages/network/reconciliation-page';
+import { MapPage } from '../pages/network/map-page';
+import { BenchmarkPage } from '../pages/network/benchmark-page';
 
 /** Client routes; features add theirs here (and a nav entry in nav.ts). */
 export const featureRoutes: RouteObject[] = [
@@ -19,5 +27,13 @@ export const featureRoutes: RouteObject[] = [
   { path: 'certificates/:number', element: <CertificatePage /> },
   { path: 'audit/campaigns/:id', element: <CampaignAuditPage /> },
   { path: 'calculator', element: <CalculatorPage /> },
+  { path: 'network', element: <NetworkPage /> },
+  { path: 'network/sections', element: <SectionsPage /> },
+  { path: 'network/loops', element: <LoopsPage /> },
+  { path: 'network/runs', element: <RunsPage /> },
+  { path: 'network/runs/:id', element: <RunPage /> },
+  { path: 'network/reconciliation', element: <ReconciliationPage /> },
+  { path: 'network/map', element: <MapPage /> },
+  { path: 'network/benchmarks/:id', element: <BenchmarkPage /> },
   { path: '*', element: <NotFoundPage /> },
 ];
