@@ -2,6 +2,7 @@ import type { DataSource, EntityManager } from 'typeorm';
 import { recordAudit } from '../server/audit/audit.service';
 import { InstituteEntity, UserEntity } from '../server/db/entities/core.entities';
 import { demoInstitutes, demoPeople } from './people';
+import { certificatesSeeder } from './certificates.seed';
 import { networkSeeder } from './network.seed';
 import { registrySeeder } from './registry.seed';
 
@@ -46,3 +47,5 @@ export async function seedDemo(ds: DataSource, log: (msg: string) => void = () =
 featureSeeders.push(registrySeeder);
 // The levelling network goes last: its stored demo adjustment run includes the sites' ties when the registry is seeded.
 featureSeeders.push(networkSeeder);
+// The demo certificate needs accepted campaigns with uploaded series (and their results): after every other seed.
+featureSeeders.push(certificatesSeeder);

@@ -16,7 +16,7 @@ import { signPdf } from './pdf/signing';
 // Issuing, reissuing and revoking inside the caller's transaction: number, snapshot, render, sign, store,
 // audit and mail commit together or not at all.
 
-export type LoadSource = (manager: EntityManager, campaignId: string) => Promise<CertificateSource>;
+export type LoadSource = (manager: EntityManager, campaignId: string, actor: Actor, now: Date) => Promise<CertificateSource>;
 export type MarkCertified = (manager: EntityManager, campaignId: string, actor: Actor) => Promise<unknown>;
 
 export interface IssueContext {
@@ -116,7 +116,8 @@ export type IssueOutcome = { created: boolean; row: CertificateRow };
 export async function issueCertificate(ctx: IssueContext, campaignId: string): Promise<IssueOutcome> {
   const { manager, actor } = ctx;
   await lockCampaign(manager, campaignId);
-  const source = await ctx.loadSource(manager, campaignId);
+  const issuedAt = ctx.now ?? new Date();
+  const source = await ctx.loadSource(manager, campaignId, actor, issuedAt);
   const fingerprint = fingerprintOf(source);
   const repo = manager.getRepository(CertificateEntity);
   const current = await repo.findOneBy({ campaignId, state: 'valid' });
@@ -127,7 +128,6 @@ export async function issueCertificate(ctx: IssueContext, campaignId: string): P
   if (source.campaignState !== 'accepted' && source.campaignState !== 'certified') {
     throw new Conflict(`Only an accepted campaign can be certified; this one is '${source.campaignState}'.`, { state: source.campaignState });
   }
-  const issuedAt = ctx.now ?? new Date();
   const year = issuedAt.getUTCFullYear();
   const serial = await nextSerial(manager, year);
   const number = formatCertificateNumber(year, serial, 1);
@@ -179,11 +179,11 @@ export async function reissueCertificate(ctx: IssueContext, number: string, reas
   }
   if (previous.state === 'revoked') throw new Conflict(`Certificate ${number} was withdrawn and cannot be reissued; issue a new certificate for the campaign.`);
   await lockCampaign(manager, previous.campaignId);
-  const source = await ctx.loadSource(manager, previous.campaignId);
+  const issuedAt = ctx.now ?? new Date();
+  const source = await ctx.loadSource(manager, previous.campaignId, actor, issuedAt);
   if (source.campaignState !== 'accepted' && source.campaignState !== 'certified') {
     throw new Conflict(`The campaign is '${source.campaignState}'; a certificate can be reissued only for an accepted or certified campaign.`, { state: source.campaignState });
   }
-  const issuedAt = ctx.now ?? new Date();
   const revision = previous.revision + 1;
   const newNumber = formatCertificateNumber(previous.year, previous.serial, revision);
   const { snapshot, pdf, pdfSha256 } = await renderAndSign(ctx, source.body, newNumber, revision, issuedAt);

@@ -15,12 +15,13 @@ export function IssueCertificateButton({ campaignId }: { campaignId: string }) {
   const navigate = useNavigate();
   return (
     <span className="inline-flex flex-col gap-1">
-      <Button disabled={issue.isPending} onClick={() => issue.mutate(campaignId, {
-        onSuccess: (r) => {
+      <Button disabled={issue.isPending} onClick={() => {
+        // mutateAsync: the button unmounts once the list shows the new certificate, and we still navigate.
+        issue.mutateAsync(campaignId).then((r) => {
           notify({ kind: 'info', text: r.created ? `Certificate ${r.certificate.number} issued and signed.` : `Nothing changed: ${r.certificate.number} is still the valid certificate.` });
           void navigate(`/certificates/${r.certificate.number}`);
-        },
-      })}>
+        }, () => undefined);
+      }}>
         {issue.isPending ? 'Rendering and signing…' : 'Issue certificate'}
       </Button>
       {issue.isError && <span role="alert" className="text-xs text-disagree-600">{describeError(issue.error)}</span>}
@@ -35,7 +36,7 @@ function ReasonForm({ kind, number, onDone }: { kind: 'reissue' | 'revoke'; numb
   const form = useForm({ resolver: zodResolver(kind === 'reissue' ? reissueCertificateSchema : revokeCertificateSchema), defaultValues: { reason: '' } });
   return (
     <form className="space-y-2 rounded-md border border-paper-200 bg-paper-50 p-3"
-      onSubmit={form.handleSubmit((v) => mutation.mutate({ number, reason: v.reason }, { onSuccess: onDone }))}>
+      onSubmit={form.handleSubmit((v) => mutation.mutateAsync({ number, reason: v.reason }).then(onDone, () => undefined))}>
       <Field label={kind === 'reissue' ? 'What was corrected?' : 'Why is the certificate withdrawn?'} error={form.formState.errors.reason?.message}
         hint={kind === 'reissue' ? 'The next revision is rendered from the campaign’s current result; this one is marked replaced.' : 'The reason is shown to anyone who checks the certificate, and mailed to the participants.'}>
         <textarea rows={3} className={inputClass} {...form.register('reason')} />

@@ -1,0 +1,36 @@
+import path from 'node:path';
+import type { Actor } from '../server/auth/actor';
+import { loadConfig } from '../server/config';
+import { UserEntity } from '../server/db/entities/core.entities';
+import { loadCertificateSource, markCertified } from '../server/certificates/certificate-source';
+import { issueCertificate } from '../server/certificates/issue';
+import type { Seeder } from './demo';
+
+// Demo certificate: the coordinator of the invented scenario certifies one accepted campaign with uploaded series, so an
+// auditor finds a signed PDF to download and verify. Its result is the stored one, or is computed here through the
+// results service when no seed stored it. Runs after the campaign, upload and result seeds.
+
+const DEMO_COORDINATOR = 'ansel.brandt@geopotential-office.invalid';
+
+export const certificatesSeeder: Seeder = {
+  name: 'certificates',
+  run: async ({ manager }) => {
+    // The first accepted campaign with uploaded series; its result is computed now if the results seed did not.
+    const [candidate]: { id: string }[] = await manager.query(
+      `SELECT c.id FROM campaign c WHERE c.state = 'accepted' AND EXISTS (SELECT 1 FROM ratio_series s WHERE s.campaign_id = c.id) ORDER BY c.period_start, c.id LIMIT 1`,
+    );
+    if (!candidate) return;
+    const campaignId = candidate.id;
+    const user = await manager.getRepository(UserEntity).findOneByOrFail({ email: DEMO_COORDINATOR });
+    const actor: Actor = { userId: user.id, email: user.email, displayName: user.displayName, role: user.role, instituteId: user.instituteId, via: 'token' };
+    // The seed runs in the server process (npm start) or a test process; both name the secrets folder in SECRETS_DIR,
+    // so the demo certificate is signed by the same institute key the app later pins.
+    const config = loadConfig({
+      ...process.env,
+      DATABASE_URL: process.env.DATABASE_URL ?? 'postgres://unused-by-the-seed',
+      SESSION_SECRET: process.env.SESSION_SECRET ?? 'unused-by-the-certificate-seed',
+      SECRETS_DIR: path.resolve(process.env.SECRETS_DIR ?? '.secrets'),
+    });
+    await issueCertificate({ manager, config, actor, loadSource: loadCertificateSource, markCertified }, campaignId);
+  },
+};
