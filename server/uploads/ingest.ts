@@ -1,7 +1,7 @@
 import crypto from 'node:crypto';
 import { once } from 'node:events';
 import type { Readable, Writable } from 'node:stream';
-import { parse as csvParse } from 'csv-parse';
+import { parse as parseCsvSync } from 'csv-parse/sync';
 import type { FieldIssue } from '../http/errors';
 import { createRatioConverter } from './ratio-to-offset';
 import {
@@ -9,7 +9,7 @@ import {
 } from './ratio-series-format';
 import type { ColumnMapping } from '../../shared/uploads';
 
-// Streaming ingest of one ratio-series file: bytes → SHA-256 + raw copy → UTF-8 check → csv-parse → rows checked
+// Streaming ingest of one ratio-series file: bytes → SHA-256 + raw copy → UTF-8 check → lines split into cells → rows checked
 // and converted to y → PostgreSQL binary COPY rows. Nothing is buffered beyond a chunk; the caller owns the
 // transaction and rolls it back when `issues` is not empty.
 
@@ -42,6 +42,8 @@ export type IngestSummary = {
   /** problems found after the ones listed in `issues` */
   furtherProblems: number;
   tooLarge: boolean;
+  /** block summaries for plots: [firstMjd, lastMjd, minY, maxY, validCount] × blocks (see series-plot.ts) */
+  overview: Float64Array;
 };
 
 const MAX_LISTED_ISSUES = 10;
@@ -55,30 +57,6 @@ export const COPY_SAMPLES_SQL = 'COPY ratio_sample (series_id, mjd, y, valid) FR
 
 function uuidBytes(uuid: string): Buffer {
   return Buffer.from(uuid.replace(/-/g, ''), 'hex');
-}
-
-/** Line queue: the file line number of each record handed to the CSV parser, stored as runs [start, count]. */
-class LineRuns {
-  private runs: number[] = [];
-  private head = 0;
-  push(start: number, count: number) {
-    const n = this.runs.length;
-    if (n > this.head && this.runs[n - 2] + this.runs[n - 1] === start) this.runs[n - 1] += count;
-    else this.runs.push(start, count);
-  }
-  shift(): number {
-    const line = this.runs[this.head];
-    if (--this.runs[this.head + 1] === 0) {
-      this.head += 2;
-      if (this.head > 4096) {
-        this.runs = this.runs.slice(this.head);
-        this.head = 0;
-      }
-    } else {
-      this.runs[this.head] = line + 1;
-    }
-    return line;
-  }
 }
 
 export async function ingestRatioSeries(file: Readable, sink: Writable, opts: IngestOptions): Promise<IngestSummary> {
@@ -112,10 +90,42 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
   let lastMjd = NaN;
   let lastLine = 0;
   const spacingCounts = new Map<number, number>();
+  // Plot overview: consecutive samples summarised in blocks of ≤ 64, a new block after any spacing over twice the
+  // previous one so no block bridges a gap.
+  let overview = new Float64Array(5 * 1024);
+  let blocks = 0;
+  let bFirst = 0, bLast = 0, bMin = Infinity, bMax = -Infinity, bValid = 0, bCount = 0, prevSpacing = Infinity;
+  const closeBlock = () => {
+    if (bCount === 0) return;
+    if ((blocks + 1) * 5 > overview.length) {
+      const grown = new Float64Array(overview.length * 2);
+      grown.set(overview);
+      overview = grown;
+    }
+    overview.set([bFirst, bLast, bValid ? bMin : NaN, bValid ? bMax : NaN, bValid], blocks * 5);
+    blocks++;
+    bCount = 0; bValid = 0; bMin = Infinity; bMax = -Infinity;
+  };
+  const addToOverview = (mjd: number, y: number, valid: boolean) => {
+    if (bCount > 0) {
+      const spacing = mjd - bLast;
+      if (bCount >= 64 || spacing > 2 * prevSpacing) closeBlock();
+      prevSpacing = spacing;
+    }
+    if (bCount === 0) bFirst = mjd;
+    bLast = mjd;
+    bCount++;
+    if (valid) {
+      bValid++;
+      if (y < bMin) bMin = y;
+      if (y > bMax) bMax = y;
+    }
+  };
   const colName = (c: number) => (header?.[c - 1] ? ` (${header[c - 1]})` : '');
 
   // Binary COPY batching with back-pressure from the sink.
   let batch = Buffer.allocUnsafe(BATCH_BYTES);
+  let view = new DataView(batch.buffer, batch.byteOffset, batch.byteLength);
   let off = 0;
   let sinkFull = false;
   let sinkError: Error | null = null;
@@ -124,14 +134,13 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     if (off === 0) return;
     if (!sink.write(batch.subarray(0, off))) sinkFull = true;
     batch = Buffer.allocUnsafe(BATCH_BYTES);
+    view = new DataView(batch.buffer, batch.byteOffset, batch.byteLength);
     off = 0;
   };
   if (!sink.write(COPY_HEADER)) sinkFull = true;
 
-  const lines = new LineRuns();
   let headerPending = true;
-  const onRecord = (rec: string[]) => {
-    const line = lines.shift();
+  const onRecord = (rec: string[], line: number) => {
     if (headerPending) {
       headerPending = false;
       if (hasHeader === null) hasHeader = looksLikeHeader(rec);
@@ -211,29 +220,18 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     rowCount++;
     if (valid) validCount++;
     if (failed) return;
+    addToOverview(mjd, y, valid);
     if (off + ROW_BYTES > BATCH_BYTES) flush();
-    batch.writeInt16BE(4, off);
-    batch.writeInt32BE(16, off + 2);
-    seriesUuid.copy(batch, off + 6);
-    batch.writeInt32BE(8, off + 22);
-    batch.writeDoubleBE(mjd, off + 26);
-    batch.writeInt32BE(8, off + 34);
-    batch.writeDoubleBE(y, off + 38);
-    batch.writeInt32BE(1, off + 46);
+    view.setInt16(off, 4);
+    view.setInt32(off + 2, 16);
+    batch.set(seriesUuid, off + 6);
+    view.setInt32(off + 22, 8);
+    view.setFloat64(off + 26, mjd);
+    view.setInt32(off + 34, 8);
+    view.setFloat64(off + 38, y);
+    view.setInt32(off + 46, 1);
     batch[off + 50] = valid ? 1 : 0;
     off += ROW_BYTES;
-  };
-
-  let parser: ReturnType<typeof csvParse> | null = null;
-  let parserFailed = false;
-  const startParser = (d: ',' | ';' | '\t') => {
-    const p = csvParse({ delimiter: d, relax_column_count: true, relax_quotes: true });
-    p.on('data', onRecord);
-    p.on('error', (err: Error & { lines?: number }) => {
-      parserFailed = true;
-      report({ path: 'file', line: err.lines ?? lineNo, column: '1', message: `the CSV parser stopped: ${err.message}` });
-    });
-    return p;
   };
 
   let bytesRead = 0;
@@ -256,41 +254,35 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     return { line: l, column: String(col) };
   };
 
-  // Hands complete lines to the parser, recording line numbers; comment and blank lines are dropped here.
-  const feed = async (text: string) => {
-    if (!parser) {
-      delimiter ??= detectDelimiter(text.split('\n').map((l) => l.replace(/\r$/, ''))) ?? ',';
-      parser = startParser(delimiter);
-    }
+  // Splits complete lines into cells. Plain lines are split on the delimiter directly; a line holding a quote goes
+  // through csv-parse (quoted cells, doubled quotes). Splitting plain lines here instead of streaming every line
+  // through csv-parse keeps a million rows within the ingest budget (csv-parse alone measured ~2 µs per row).
+  const feed = (text: string) => {
+    if (delimiter === null) delimiter = detectDelimiter(text.split('\n').map((l) => l.replace(/\r$/, ''))) ?? ',';
+    const d = delimiter;
     if (text.includes('\r')) text = text.replaceAll('\r\n', '\n');
-    const simple = !text.includes('#') && !text.includes('"') && !text.includes('\n\n') && text.charCodeAt(0) !== 10;
-    let out: string;
-    if (simple) {
-      let count = 0;
-      for (let i = text.indexOf('\n'); i >= 0; i = text.indexOf('\n', i + 1)) count++;
-      lines.push(lineNo + 1, count);
-      lineNo += count;
-      out = text;
-    } else {
-      const parts: string[] = [];
-      let start = 0;
-      while (start < text.length) {
-        const nl = text.indexOf('\n', start);
-        const end = nl < 0 ? text.length : nl;
-        const l = text.slice(start, end);
-        lineNo++;
-        start = end + 1;
-        if (isCommentOrBlank(l)) continue;
-        if (l.includes('"') && (l.split('"').length - 1) % 2 === 1) {
-          report({ path: 'file', line: lineNo, column: String(delimiter ? l.slice(0, l.indexOf('"')).split(delimiter).length : 1), message: 'a quoted cell is not closed on its line (cells may not span lines)' });
+    let start = 0;
+    while (start < text.length) {
+      const nl = text.indexOf('\n', start);
+      const end = nl < 0 ? text.length : nl;
+      const l = text.slice(start, end);
+      lineNo++;
+      start = end + 1;
+      const c0 = l.charCodeAt(0);
+      if (l.length === 0 || ((c0 === 35 || c0 === 32 || c0 === 9) && isCommentOrBlank(l))) continue;
+      if (l.includes('"')) {
+        let rec: string[];
+        try {
+          rec = (parseCsvSync(l, { delimiter: d, relax_column_count: true }) as string[][])[0] ?? [''];
+        } catch (e) {
+          report({ path: 'file', line: lineNo, column: String(l.slice(0, l.indexOf('"')).split(d).length), message: `a quoted cell is malformed (${(e as Error).message.split(':')[0]}); cells may not span lines` });
           continue;
         }
-        parts.push(l);
-        lines.push(lineNo, 1);
+        onRecord(rec, lineNo);
+      } else {
+        onRecord(l.split(d), lineNo);
       }
-      out = parts.length ? `${parts.join('\n')}\n` : '';
     }
-    if (out && !parserFailed && !parser.write(out)) await once(parser, 'drain').catch(() => undefined);
   };
 
   for await (const raw of file) {
@@ -319,7 +311,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     if (lastNl >= 0) {
       const complete = pending.slice(0, lastNl + 1);
       pending = pending.slice(lastNl + 1);
-      await feed(complete);
+      feed(complete);
     }
     if (sinkFull) {
       sinkFull = false;
@@ -330,13 +322,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
   }
   if (!tooLarge && !binaryProblem) {
     const rest = pending + decoder.decode();
-    if (rest.length > 0) await feed(rest.endsWith('\n') ? rest : `${rest}\n`);
-  }
-  if (parser && !parserFailed) {
-    const p = parser as ReturnType<typeof csvParse>;
-    const ended = once(p, 'end');
-    p.end();
-    await ended;
+    if (rest.length > 0) feed(rest);
   }
   flush();
   if (!tooLarge && !binaryProblem && rowCount === 0 && !failed) {
@@ -366,6 +352,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     firstMjd, lastMjd, tau0Seconds, uptimeFraction,
     delimiter: delimiter ?? ',', hasHeader: hasHeader ?? false, header,
     issues, furtherProblems, tooLarge,
+    overview: (closeBlock(), overview.slice(0, blocks * 5)),
   };
 }
 

@@ -7,7 +7,7 @@ import { MAX_RATIO_SIGNIFICANT_DIGITS, parsePositiveDecimal, MAX_REFERENCE_SIGNI
 
 const DECIMAL = /^\+?(\d*)(?:\.(\d*))?(?:[eE]([+-]?\d{1,4}))?$/;
 
-type Scaled = { mantissa: bigint; scale: number; digits: number };
+type Scaled = { digits: string; scale: number; sig: number };
 
 function scaledDecimal(text: string): Scaled | null {
   const m = DECIMAL.exec(text);
@@ -26,15 +26,14 @@ function scaledDecimal(text: string): Scaled | null {
     sig = end - lead;
   }
   const exp = m[3] ? Number(m[3]) : 0;
-  return { mantissa: sig === 0 ? 0n : BigInt(all.slice(lead)), scale: frac.length - exp, digits: Math.max(sig, 1) };
-}
-
-const pow10Cache: bigint[] = [];
-function pow10(n: number): bigint {
-  return (pow10Cache[n] ??= 10n ** BigInt(n));
+  return { digits: all.slice(lead), scale: frac.length - exp, sig: Math.max(sig, 1) };
 }
 
 export type RatioConversion = { ok: true; y: number } | { ok: false; message: string };
+
+const SPLIT = 15; // digits per half: integers below 1e15 are exact in float64
+// Literals are read correctly rounded, so these powers of ten are exact.
+const POW10 = [1, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22];
 
 /** Parses ratios against one reference ratio; returns a function from the ratio text to y (or a reason). */
 export function createRatioConverter(referenceRatio: string): (ratioText: string) => RatioConversion {
@@ -42,16 +41,35 @@ export function createRatioConverter(referenceRatio: string): (ratioText: string
   const r0Dec = parsePositiveDecimal(referenceRatio, 'referenceRatio', MAX_REFERENCE_SIGNIFICANT_DIGITS);
   const r0 = scaledDecimal(r0Dec.toFixed())!;
   const r0Double = r0Dec.toNumber();
+  const r0Padded = new Map<number, { hi: number; lo: number; big: bigint; len: number }>();
+  const r0At = (s: number) => {
+    let v = r0Padded.get(s);
+    if (!v) {
+      const d = r0.digits + '0'.repeat(s - r0.scale);
+      v = { hi: Number(d.slice(0, -SPLIT) || '0'), lo: Number(d.slice(-SPLIT)), big: BigInt(d || '0'), len: d.length };
+      r0Padded.set(s, v);
+    }
+    return v;
+  };
   return (text: string): RatioConversion => {
     const r = scaledDecimal(text);
     if (!r) return { ok: false, message: 'is not a decimal number' };
-    if (r.digits > MAX_RATIO_SIGNIFICANT_DIGITS) return { ok: false, message: `has ${r.digits} significant digits; at most ${MAX_RATIO_SIGNIFICANT_DIGITS} are accepted` };
-    if (r.mantissa === 0n) return { ok: false, message: 'must be a positive ratio' };
+    if (r.sig > MAX_RATIO_SIGNIFICANT_DIGITS) return { ok: false, message: `has ${r.sig} significant digits; at most ${MAX_RATIO_SIGNIFICANT_DIGITS} are accepted` };
+    if (r.digits.length === 0 || /^0+$/.test(r.digits)) return { ok: false, message: 'must be a positive ratio' };
     if (r.scale > 60 || r.scale < -60) return { ok: false, message: 'order of magnitude is out of range' };
     const s = Math.max(r.scale, r0.scale);
-    const diff = r.mantissa * pow10(s - r.scale) - r0.mantissa * pow10(s - r0.scale);
-    // Decimal → double conversion of the exact difference is correctly rounded by the JS number parser.
-    const diffDouble = diff === 0n ? 0 : Number.parseFloat(`${diff}e${-s}`);
-    return { ok: true, y: diffDouble / r0Double };
+    const a = r.digits + '0'.repeat(s - r.scale);
+    const b = r0At(s);
+    let diff: number;
+    if (a.length <= 2 * SPLIT && b.len <= 2 * SPLIT) {
+      // Both halves subtract exactly; the sum rounds once, like converting the exact difference.
+      diff = (Number(a.slice(0, -SPLIT) || '0') - b.hi) * 1e15 + (Number(a.slice(-SPLIT)) - b.lo);
+    } else {
+      const big = BigInt(a) - b.big;
+      diff = big === 0n ? 0 : Number.parseFloat(big.toString());
+    }
+    // 10^s is exact in float64 up to s = 22; beyond, one more rounding of ≤ ½ ulp.
+    const y = diff === 0 ? 0 : s >= 0 && s <= 22 ? diff / POW10[s] / r0Double : Number.parseFloat(`${diff}e${-s}`) / r0Double;
+    return { ok: true, y };
   };
 }

@@ -18,6 +18,30 @@ export function fillBuckets(rows: BucketRow[], fromMjd: number, bucketDays: numb
   return out;
 }
 
+/**
+ * Buckets from the stored block summaries (ingest.ts): each block lands in the bucket of its middle epoch. Exact enough
+ * when blocks are much narrower than buckets; returns null when too few blocks fall in the range to say so.
+ */
+export function bucketsFromOverview(overview: Float64Array, fromMjd: number, bucketDays: number, count: number): SeriesBucket[] | null {
+  const out: SeriesBucket[] = Array.from({ length: count }, (_, k) => ({ mjd: fromMjd + (k + 0.5) * bucketDays, min: null, max: null, count: 0 }));
+  const toMjd = fromMjd + bucketDays * count;
+  let inRange = 0;
+  for (let i = 0; i + 4 < overview.length; i += 5) {
+    const first = overview[i];
+    const last = overview[i + 1];
+    if (last < fromMjd || first > toMjd) continue;
+    inRange++;
+    const n = overview[i + 4];
+    if (n === 0) continue;
+    const k = Math.min(count - 1, Math.max(0, Math.floor(((first + last) / 2 - fromMjd) / bucketDays)));
+    const b = out[k];
+    b.min = b.min === null ? overview[i + 2] : Math.min(b.min, overview[i + 2]);
+    b.max = b.max === null ? overview[i + 3] : Math.max(b.max, overview[i + 3]);
+    b.count += n;
+  }
+  return inRange >= 4 * count ? out : null;
+}
+
 export async function decimateSeries(
   ds: DataSource,
   s: { id: string; firstMjd: number; lastMjd: number; rowCount: number },
@@ -28,6 +52,10 @@ export async function decimateSeries(
   if (!(toMjd > fromMjd)) toMjd = fromMjd + 1 / 86_400;
   const count = q.points;
   const bucketDays = (toMjd - fromMjd) / count;
+  const [{ overview }] = (await ds.query('SELECT overview FROM ratio_series WHERE id = $1', [s.id])) as { overview: Buffer }[];
+  const blocks = new Float64Array(overview.buffer.slice(overview.byteOffset, overview.byteOffset + overview.byteLength));
+  const fromOverview = bucketsFromOverview(blocks, fromMjd, bucketDays, count);
+  if (fromOverview) return { seriesId: s.id, fromMjd, toMjd, bucketDays, sampleCount: s.rowCount, unit: '1', buckets: fromOverview };
   const rows = (await ds.query(
     `SELECT least(floor((mjd - $2) / $4)::int, $5 - 1) AS k,
             min(y) FILTER (WHERE valid) AS lo, max(y) FILTER (WHERE valid) AS hi, count(*) FILTER (WHERE valid)::int AS n

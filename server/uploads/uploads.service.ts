@@ -137,11 +137,11 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
     const storedMapping = { ...mapping, delimiter: summary.delimiter, hasHeader: summary.hasHeader, header: summary.header };
     const { rows } = await client.query<SeriesDbRow>(
       `INSERT INTO ratio_series (id, campaign_id, file_name, sha256, byte_size, row_count, valid_count, first_mjd, last_mjd,
-         uptime_fraction, tau0_seconds, mapping, raw_file_oid, invented, created_by_user_id, created_by)
-       VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12,$13,$14,$15,$16) RETURNING ${SERIES_COLUMNS}`,
+         uptime_fraction, tau0_seconds, mapping, raw_file_oid, invented, created_by_user_id, created_by, overview)
+       VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12,$13,$14,$15,$16,$17) RETURNING ${SERIES_COLUMNS}`,
       [seriesId, input.campaign.id, input.fileName.slice(0, 250), summary.sha256, summary.byteSize, summary.rowCount, summary.validCount,
         summary.firstMjd, summary.lastMjd, summary.uptimeFraction, summary.tau0Seconds, JSON.stringify(storedMapping), oid,
-        input.invented ?? false, actor?.userId ?? null, actorLabel(actor)],
+        input.invented ?? false, actor?.userId ?? null, actorLabel(actor), Buffer.from(summary.overview.buffer, summary.overview.byteOffset, summary.overview.byteLength)],
     );
     return rows[0];
   } finally {

@@ -21,6 +21,8 @@ export class RatioSeries1764670000000 implements MigrationInterface {
         tau0_seconds float8 NOT NULL CHECK (tau0_seconds >= 0),
         mapping jsonb NOT NULL,
         raw_file_oid oid NOT NULL,
+        -- block summaries for plots (float64 little-endian: first mjd, last mjd, min y, max y, valid count per block)
+        overview bytea NOT NULL,
         invented boolean NOT NULL DEFAULT false,
         created_by_user_id uuid,
         created_by text NOT NULL,
@@ -29,10 +31,11 @@ export class RatioSeries1764670000000 implements MigrationInterface {
       );
       CREATE INDEX ratio_series_campaign ON ratio_series(campaign_id, created_at);
 
-      -- The sample rows are written by COPY before the series row exists (its statistics are known only at the end
-      -- of the file), hence the deferred foreign key.
+      -- Samples are written by COPY in the same transaction as their series row, before it (the statistics are known
+      -- only at the end of the file). No foreign key: a per-row referential check costs seconds per million rows;
+      -- the upload transaction guarantees the pairing and the trigger below removes samples with their series.
       CREATE TABLE ratio_sample (
-        series_id uuid NOT NULL REFERENCES ratio_series(id) ON DELETE CASCADE DEFERRABLE INITIALLY DEFERRED,
+        series_id uuid NOT NULL,
         mjd float8 NOT NULL,
         y float8 NOT NULL,
         valid boolean NOT NULL,
@@ -42,6 +45,7 @@ export class RatioSeries1764670000000 implements MigrationInterface {
       CREATE FUNCTION ratio_series_drop_raw_file() RETURNS trigger LANGUAGE plpgsql AS $$
       BEGIN
         PERFORM lo_unlink(OLD.raw_file_oid);
+        DELETE FROM ratio_sample WHERE series_id = OLD.id;
         RETURN OLD;
       END $$;
       CREATE TRIGGER ratio_series_raw_file_gone AFTER DELETE ON ratio_series

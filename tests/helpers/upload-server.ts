@@ -1,0 +1,19 @@
+import pino from 'pino';
+import { createApp } from '../../server/app';
+import { loadConfig } from '../../server/config';
+import { openDatabase } from '../../server/db/data-source';
+import { createMailSender } from '../../server/mail/outbox';
+
+// The app alone in its own process, for tests that kill the server mid-upload and for the ingest benchmark
+// (which reads this process's peak RSS). Configuration comes as JSON in CHRONOLEVEL_CHILD_ENV; prints "LISTENING <port>".
+const env = JSON.parse(process.env.CHRONOLEVEL_CHILD_ENV ?? '{}') as Record<string, string>;
+const config = loadConfig(env);
+const ds = await openDatabase(config.databaseUrl, { migrate: false });
+const logger = pino({ level: 'silent' });
+const mail = createMailSender({ dataSource: ds, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
+const app = createApp({ config, dataSource: ds, logger, mail });
+const server = app.listen(0, '127.0.0.1', () => {
+  const addr = server.address();
+  process.stdout.write(`LISTENING ${typeof addr === 'object' && addr ? addr.port : 0}\n`);
+});
+process.on('SIGTERM', () => process.exit(0));
