@@ -30,7 +30,7 @@ function lattice(prefix: string, names: string[], lat0: number, lon0: number, ba
   for (let r = 0; r < 3; r++) {
     for (let c = 0; c < 4; c++) {
       k++;
-      out.push({ code: `${prefix}-${String(k).padStart(2, '0')}`, name: names[k - 1], lat: lat0 - r * 0.07, lon: lon0 + c * 0.12, h: baseH + slope(r, c) });
+      out.push({ code: `${prefix}-${String(k).padStart(2, '0')}`, name: names[k - 1], lat: lat0 - r * 0.04, lon: lon0 + c * 0.07, h: baseH + slope(r, c) });
     }
   }
   return out;
@@ -129,7 +129,7 @@ export const networkSeeder: Seeder = {
         const withRuns = n % 2 === 0;
         const halfRunMm = (gauss() * sigmaMm) / 2;
         await sections.save({
-          lineName: blunder ? 'Dune road' : `${line} ${n % 4 === 0 ? 'north–south' : 'east–west'} ${Math.ceil(n / 4)}`,
+          lineName: blunder ? 'Dune road' : `${line} ${Math.abs(dLatKm) > Math.abs(dLonKm) ? 'north–south' : 'east–west'} ${Math.ceil(n / 4)}`,
           fromBenchmarkId: from.id, toBenchmarkId: to.id, deltaHeightM: round(deltaHeightM, 5), lengthKm, meanGravity_ms2: round(gMean, 6),
           gravityFromNormal: !measured, observedOn: `20${line === 'Coastal' ? '19' : '21'}-0${1 + (n % 8)}-1${n % 9}`,
           forwardM: withRuns ? round(deltaHeightM + halfRunMm / 1000, 5) : null, backwardM: withRuns ? round(-deltaHeightM + halfRunMm / 1000, 5) : null,

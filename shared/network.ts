@@ -259,7 +259,7 @@ export type Reconciliation = z.infer<typeof reconciliationSchema>;
 
 export const networkMapSchema = z.object({
   benchmarks: z.array(z.object({ id: z.string(), code: z.string(), name: z.string(), latitudeDeg: z.number(), longitudeDeg: z.number(), fixed: z.boolean(), destroyed: z.boolean(), datumName: z.string() })),
-  sections: z.array(z.object({ id: z.string(), fromCode: z.string(), toCode: z.string(), lineName: z.string().nullable(), standardizedResidual: z.number().nullable(), suspected: z.boolean() })),
+  sections: z.array(z.object({ id: z.string(), fromCode: z.string(), toCode: z.string(), lineName: z.string().nullable(), adjusted: z.boolean(), standardizedResidual: z.number().nullable(), suspected: z.boolean() })),
   sites: z.array(z.object({ id: z.string(), code: z.string(), name: z.string(), latitudeDeg: z.number(), longitudeDeg: z.number(), benchmarkCode: z.string().nullable() })),
   links: z.array(z.object({ id: z.string(), label: z.string(), fromSiteId: z.string(), toSiteId: z.string(), en: z.number().nullable() })),
   runId: z.string().nullable(),

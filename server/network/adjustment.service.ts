@@ -347,7 +347,7 @@ export function createAdjustmentService(dataSource: DataSource) {
         benchmarks: benchmarks.map((b) => ({ id: b.id, code: b.code, name: b.name, latitudeDeg: b.latitudeDeg, longitudeDeg: b.longitudeDeg, fixed: b.fixed, destroyed: b.state === 'destroyed', datumName: b.datum?.name ?? '' })),
         sections: sections.map((s) => {
           const o = obs.get(`section:${s.id}`);
-          return { id: s.id, fromCode: s.fromBenchmark!.code, toCode: s.toBenchmark!.code, lineName: s.lineName, standardizedResidual: o?.standardizedResidual ?? null, suspected: o?.suspected ?? false };
+          return { id: s.id, fromCode: s.fromBenchmark!.code, toCode: s.toBenchmark!.code, lineName: s.lineName, adjusted: !!o, standardizedResidual: o?.standardizedResidual ?? null, suspected: o?.suspected ?? false };
         }),
         sites: sites.map((s) => ({ id: s.id, code: s.instituteCode, name: s.name, latitudeDeg: s.latitudeDeg, longitudeDeg: s.longitudeDeg, benchmarkCode: s.benchmarkCode })),
         links: links.map((l) => ({ id: l.id, label: l.name, fromSiteId: l.siteAId, toSiteId: l.siteBId, en: enByLink.get(l.id) ?? null })),

@@ -83,7 +83,7 @@ function scienceIssue(e: unknown, prefix: string): never {
 export async function loadSectionsWithBenchmarks(m: EntityManager, datumId?: string) {
   const qb = m.getRepository(LevellingSectionEntity).createQueryBuilder('s')
     .innerJoinAndSelect('s.fromBenchmark', 'f').innerJoinAndSelect('s.toBenchmark', 't').innerJoinAndSelect('f.datum', 'd')
-    .orderBy('s.created_at', 'ASC').addOrderBy('s.id', 'ASC');
+    .orderBy('s.created_at', 'ASC').addOrderBy('f.code', 'ASC').addOrderBy('t.code', 'ASC').addOrderBy('s.id', 'ASC');
   if (datumId) qb.where('f.datum_id = :datumId', { datumId });
   return qb.getMany();
 }

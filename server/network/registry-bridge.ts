@@ -1,11 +1,9 @@
-import fs from 'node:fs';
-import path from 'node:path';
-import { fileURLToPath, pathToFileURL } from 'node:url';
 import type { EntityManager } from 'typeorm';
+import { latestResultForCampaign } from '../results/results.service';
 
 // Reads what the network needs from the registry (sites with their benchmark ties, fibre links, accepted campaigns)
-// and from comparison results. Those tables belong to other features; each read is guarded so the network works
-// (without clocks) on a database where they are absent.
+// and from comparison results (latestResultForCampaign). Those tables belong to other features; each read is guarded
+// so the network still works, without clocks, on a database where they are absent.
 
 export type SiteTie = {
   id: string; name: string; instituteCode: string; latitudeDeg: number; longitudeDeg: number;
@@ -45,51 +43,12 @@ export async function loadAcceptedCampaigns(m: EntityManager): Promise<AcceptedC
   return rows.map((r) => ({ id: r.id, name: r.name, linkId: r.link, siteAId: r.a, siteBId: r.b, state: r.state }));
 }
 
-type LatestFn = (m: EntityManager, campaignId: string) => Promise<unknown>;
-let latestFn: LatestFn | null | undefined;
-
-/** Finds `latestResultForCampaign` exported by a module of server/results (the results feature), once. */
-async function findLatestResultFn(): Promise<LatestFn | null> {
-  if (latestFn !== undefined) return latestFn;
-  latestFn = null;
-  const dir = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../results');
-  if (!fs.existsSync(dir)) return null;
-  for (const f of fs.readdirSync(dir).filter((n) => /\.ts$|\.js$/.test(n) && !n.endsWith('.d.ts')).sort()) {
-    const mod = (await import(pathToFileURL(path.join(dir, f)).href)) as Record<string, unknown>;
-    if (typeof mod.latestResultForCampaign === 'function') {
-      latestFn = mod.latestResultForCampaign as LatestFn;
-      break;
-    }
-  }
-  return latestFn;
-}
-
-function numberIn(o: unknown, keys: string[]): number | null {
-  if (!o || typeof o !== 'object') return null;
-  const rec = o as Record<string, unknown>;
-  for (const k of keys) {
-    const v = rec[k];
-    if (typeof v === 'number' && Number.isFinite(v)) return v;
-    if (typeof v === 'string' && v.trim() !== '' && Number.isFinite(Number(v))) return Number(v);
-  }
-  return null;
-}
-
-/**
- * The clock-derived ΔC of a campaign's latest result, when the results feature provides one. The result's own
- * field names are read tolerantly: a ΔC value (or { value, uncertainty }) and its combined standard uncertainty.
- */
+/** The clock-derived ΔC = C_B − C_A of a campaign's latest comparison result, with its combined standard uncertainty. */
 export async function clockDeltaCFor(m: EntityManager, campaignId: string): Promise<ClockDeltaC | null> {
-  const fn = await findLatestResultFn();
-  if (!fn) return null;
-  const r = (await fn(m, campaignId)) as Record<string, unknown> | null;
-  if (!r) return null;
-  const dc = r.deltaC_m2s2 ?? r.deltaC ?? r.potentialDifference;
-  let value = typeof dc === 'number' ? dc : numberIn(dc, ['value', 'value_m2s2', 'deltaC_m2s2']);
-  let u = numberIn(dc, ['uncertainty', 'standardUncertainty', 'combinedStandardUncertainty', 'u']);
-  value ??= numberIn(r, ['deltaC_m2s2', 'deltaCValue_m2s2']);
-  u ??= numberIn(r, ['deltaCUncertainty_m2s2', 'uDeltaC_m2s2', 'deltaC_u_m2s2', 'combinedStandardUncertainty_m2s2']);
-  const k = numberIn(dc, ['k', 'coverageFactor']);
-  if (value === null || u === null || !(u > 0)) return null;
-  return { campaignId, deltaC_m2s2: value, standardUncertainty_m2s2: k && k !== 1 ? u / k : u };
+  if (!(await tableExists(m, 'comparison_result'))) return null;
+  const latest = await latestResultForCampaign(m, campaignId);
+  if (!latest) return null;
+  const dc = latest.result.deltaC_m2s2;
+  if (!(dc.standardUncertainty > 0)) return null;
+  return { campaignId, deltaC_m2s2: dc.value, standardUncertainty_m2s2: dc.standardUncertainty };
 }

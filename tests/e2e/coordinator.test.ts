@@ -71,6 +71,10 @@ describe('coordinator journey', () => {
     await screenshot(page, 'coordinator-reconciliation');
 
     await page.getByRole('link', { name: 'Map', exact: true }).click();
+    await page.getByRole('button', { name: 'Benchmark SCL-BM1' }).waitFor();
+    await page.waitForTimeout(500);
+    await screenshot(page, 'coordinator-map-whole');
+    await page.getByLabel('Show').selectOption('Coastal Datum 1987');
     await page.getByRole('button', { name: 'Benchmark SCL-BM1' }).click();
     await expect(page.getByTestId('map-selection').textContent()).resolves.toContain('Saltmarsh laboratory pillar');
     await page.waitForTimeout(500);

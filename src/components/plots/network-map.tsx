@@ -24,18 +24,25 @@ const useLand = () =>
     staleTime: Infinity,
   });
 
-export function sectionStyle(w: number | null, suspected: boolean) {
-  if (w === null) return { cls: 'stroke-ink-300', width: 1.5, dash: '2 3', label: 'not adjusted yet' };
+export function sectionStyle(w: number | null, suspected: boolean, adjusted = true) {
+  if (!adjusted) return { cls: 'stroke-ink-300', width: 1.5, dash: '2 3', label: 'not in an adjustment yet' };
+  if (w === null) return { cls: 'stroke-ink-400', width: 1.5, dash: '1 4', label: 'not controlled (redundancy 0)' };
   if (suspected) return { cls: 'stroke-disagree-600', width: 4, dash: '8 3', label: '|w| above the critical value (suspected)' };
   if (Math.abs(w) > 2) return { cls: 'stroke-brass-500', width: 2.5, dash: undefined, label: '2 < |w| ≤ critical' };
   return { cls: 'stroke-ink-500', width: 1.5, dash: undefined, label: '|w| ≤ 2' };
 }
 
-export function NetworkMapSvg({ data, selected, onSelect }: { data: NetworkMap; selected: MapSelection | null; onSelect: (s: MapSelection) => void }) {
+export function NetworkMapSvg({ data, selected, onSelect, focusDatum }: { data: NetworkMap; selected: MapSelection | null; onSelect: (s: MapSelection) => void; focusDatum?: string }) {
   const land = useLand();
   const width = 900;
   const height = 620;
-  const coords: [number, number][] = [...data.benchmarks.map((b) => [b.longitudeDeg, b.latitudeDeg] as [number, number]), ...data.sites.map((s) => [s.longitudeDeg, s.latitudeDeg] as [number, number])];
+  // The projection is fitted to the whole network, or to one datum's benchmarks (and the sites tied to them).
+  const focus = focusDatum ? data.benchmarks.filter((b) => b.datumName === focusDatum) : data.benchmarks;
+  const focusCodes = new Set(focus.map((b) => b.code));
+  const coords: [number, number][] = [
+    ...focus.map((b) => [b.longitudeDeg, b.latitudeDeg] as [number, number]),
+    ...data.sites.filter((s) => !focusDatum || (s.benchmarkCode && focusCodes.has(s.benchmarkCode))).map((s) => [s.longitudeDeg, s.latitudeDeg] as [number, number]),
+  ];
   if (coords.length === 0) return <p className="text-sm text-ink-500">Nothing to draw yet.</p>;
   const projection = geoMercator().fitExtent([[60, 40], [width - 60, height - 40]], { type: 'MultiPoint', coordinates: coords });
   const path = geoPath(projection);
@@ -71,7 +78,7 @@ export function NetworkMapSvg({ data, selected, onSelect }: { data: NetworkMap; 
           if (!a || !b) return null;
           const [x1, y1] = p(a.longitudeDeg, a.latitudeDeg);
           const [x2, y2] = p(b.longitudeDeg, b.latitudeDeg);
-          const st = sectionStyle(s.standardizedResidual, s.suspected);
+          const st = sectionStyle(s.standardizedResidual, s.suspected, s.adjusted);
           return (
             <g key={s.id} tabIndex={0} role="button" aria-label={`Section ${s.fromCode} to ${s.toCode}`} onClick={() => onSelect({ kind: 'section', id: s.id })} onKeyDown={(e) => key(e, { kind: 'section', id: s.id })} className="cursor-pointer">
               <line x1={x1} y1={y1} x2={x2} y2={y2} stroke="transparent" strokeWidth={10} />
@@ -117,8 +124,8 @@ export function NetworkMapLegend() {
     [<circle key="c" cx={9} cy={7} r={4} className="fill-white stroke-ink-700" strokeWidth={1.5} />, 'free benchmark'],
     [<path key="x" d="M5,3 L13,11 M5,11 L13,3" className="stroke-disagree-800" strokeWidth={2} />, 'destroyed benchmark'],
     [<path key="t" d="M9,1 L16,13 L2,13 Z" className="fill-brass-400 stroke-ink-800" />, 'clock site'],
-    ...(['ink', 'brass', 'disagree', 'none'] as const).map((k): [React.ReactNode, string] => {
-      const st = k === 'ink' ? sectionStyle(0.5, false) : k === 'brass' ? sectionStyle(2.5, false) : k === 'disagree' ? sectionStyle(5, true) : sectionStyle(null, false);
+    ...(['ink', 'brass', 'disagree', 'uncontrolled', 'none'] as const).map((k): [React.ReactNode, string] => {
+      const st = k === 'ink' ? sectionStyle(0.5, false) : k === 'brass' ? sectionStyle(2.5, false) : k === 'disagree' ? sectionStyle(5, true) : k === 'uncontrolled' ? sectionStyle(null, false) : sectionStyle(null, false, false);
       return [<line key={k} x1={0} y1={7} x2={18} y2={7} className={st.cls} strokeWidth={st.width} strokeDasharray={st.dash} />, `section: ${st.label}`];
     }),
     [<line key="a" x1={0} y1={7} x2={18} y2={7} className="stroke-agree-600" strokeWidth={3} strokeDasharray="10 4 2 4" />, 'fibre link, clock and levelling agree (|E_n| ≤ 1)'],

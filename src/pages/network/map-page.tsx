@@ -1,22 +1,31 @@
 import { useState } from 'react';
 import { Link } from 'react-router';
-import { useNetworkMap } from '../../api/network';
+import { useDatums, useNetworkMap } from '../../api/network';
 import { NetworkMapLegend, NetworkMapSvg, type MapSelection } from '../../components/plots/network-map';
-import { Panel } from '../../components/ui';
+import { inputClass, Panel } from '../../components/ui';
 import { fmt } from './format';
 import { NetworkNav } from './network-nav';
 
 export function MapPage() {
   const map = useNetworkMap();
+  const datums = useDatums();
   const [selected, setSelected] = useState<MapSelection | null>(null);
+  const [focus, setFocus] = useState('');
   const d = map.data;
   return (
     <>
       <h1>Network map</h1>
       <NetworkNav />
       <div className="grid gap-4 lg:grid-cols-[1fr_260px]">
-        <Panel>
-          {d ? <NetworkMapSvg data={d} selected={selected} onSelect={setSelected} /> : <p>Loading…</p>}
+        <Panel actions={
+          <label className="flex items-center gap-2 text-sm">Show
+            <select aria-label="Show" className={`${inputClass} w-56`} value={focus} onChange={(e) => setFocus(e.target.value)}>
+              <option value="">the whole network</option>
+              {datums.data?.map((x) => <option key={x.id} value={x.name}>{x.name}</option>)}
+            </select>
+          </label>
+        }>
+          {d ? <NetworkMapSvg data={d} selected={selected} onSelect={setSelected} focusDatum={focus || undefined} /> : <p>Loading…</p>}
           <p className="mt-1 text-xs text-ink-500">Coastline: Natural Earth 1:50m (public domain) via world-atlas. Section colours come from the latest finished adjustment run.</p>
         </Panel>
         <div className="space-y-4">
