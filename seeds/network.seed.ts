@@ -20,6 +20,7 @@ function noise(seed: number) {
 
 type Bm = { code: string; name: string; lat: number; lon: number; h: number; fixed?: boolean; known?: boolean; utm?: boolean; destroyed?: boolean };
 const QUASIGEOID_M = 39.4; // invented, for ellipsoidal heights only
+export const HIGHLAND_DATUM_EXCESS_M = 0.15;
 
 const coastalNames = ['Harbour Light', 'Salt Quay', 'Reed Bank', 'Gull Point', 'Marram Dyke', 'Dune Chapel', 'Tern Meadow', 'Old Sluice', 'Brine Farm', 'Eelgrass Mill', 'Heron Gate', 'Sandpiper Cross'];
 const highlandNames = ['Kestrel Pass', 'Granite Saddle', 'Larch Hollow', 'Cairn Top', 'Scree Bridge', 'Pine Terrace', 'Ridge Chapel', 'Fern Shelf', 'Quarry Bend', 'Lynx Col', 'Tarn Steps', 'Eagle Spur'];
@@ -92,14 +93,16 @@ export const networkSeeder: Seeder = {
     const rows = new Map<string, Awaited<ReturnType<typeof repo.save>>>();
     for (const [list, datum] of [[net.coastal, coastalDatum], [net.highland, highlandDatum]] as const) {
       for (const b of list) {
-        const c = cFromNormalHeight(b.h, b.lat);
+        // The highland datum was (in this invented story) realised 0.15 m above the coastal one: its known heights carry
+        // that offset, which levelling cannot see (the regions are not joined) but the clocks can.
+        const c = cFromNormalHeight(b.h + (datum === highlandDatum ? HIGHLAND_DATUM_EXCESS_M : 0), b.lat);
         const h = b.h + QUASIGEOID_M;
         // One benchmark is entered in UTM zone 32N to show that any supported CRS works; the GRS80 values are derived.
         const [crs, coords] = b.utm ? ['EPSG:25832', utmOf(b.lat, b.lon)] : ['EPSG:4937', [b.lon, b.lat, h]];
         const row = await repo.save({
           code: b.code, name: b.name, datumId: datum.id, crs, coordinatesEntered: coords,
           latitudeDeg: b.lat, longitudeDeg: b.lon, ellipsoidalHeightM: h,
-          knownEnteredAs: b.known ? 'H' : null, knownC_m2s2: b.known ? c : null, knownNormalHeightM: b.known ? b.h : null,
+          knownEnteredAs: b.known ? 'H' : null, knownC_m2s2: b.known ? c : null, knownNormalHeightM: b.known ? b.h + (datum === highlandDatum ? HIGHLAND_DATUM_EXCESS_M : 0) : null,
           knownUncertaintyC_m2s2: b.known ? (b.fixed ? 0 : 0.02) : null, fixed: !!b.fixed,
           monumentation: b.fixed ? 'Bronze bolt in bedrock, protected by a cast-iron cover (invented).' : 'Stainless bolt in a concrete pillar (invented).',
           state: b.destroyed ? 'destroyed' : 'in-use',

@@ -93,8 +93,9 @@ export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptio
       const id = `clock:${c.id}`;
       const ob: NetworkObservation = { id, kind: 'clock', from: sitePoint(c.siteAId), to: sitePoint(c.siteBId), deltaC: dc.deltaC_m2s2, sigma: dc.standardUncertainty_m2s2 };
       if (crosses && options.datumOffsets) {
-        // Offset parameter: the clock sees true potential; the two datums' C differ by a constant the levelling cannot see.
-        ob.datumOffset = `${da} − ${db}`;
+        // Offset parameter: the clock sees the true potential difference; C in the two datums differ by a constant the
+        // levelling cannot see. Its estimate is clock ΔC − levelled ΔC: negative when datum B's numbers are too large.
+        ob.datumOffset = `${db} relative to ${da}`;
         offsets.add(ob.datumOffset);
       }
       observationMeta[id] = { label: `clock comparison ${c.name}` };
@@ -102,9 +103,13 @@ export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptio
       clockCampaigns.push({ campaignId: c.id, observationId: id, crossesDatums: crosses });
     }
   }
+  // A benchmark no section reaches carries no information; leaving it out keeps it from counting as a datum-less part.
+  const used = new Set(observations.flatMap((o) => [o.from, o.to]));
+  const kept = points.filter((p) => used.has(p.code));
+  for (const code of Object.keys(pointMeta)) if (!used.has(code)) delete pointMeta[code];
   return {
     adjustment: {
-      points, observations,
+      points: kept, observations,
       options: { alpha: options.alpha, alphaSnooping: options.alphaSnooping, constraint: options.constraint, datumOffsets: [...offsets] },
     },
     pointMeta, observationMeta, clockCampaigns,

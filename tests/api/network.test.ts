@@ -255,3 +255,56 @@ describe('POST /api/v1/calc/adjust', () => {
     expect(cut.body.parts[0].codes.sort()).toEqual(['E', 'F']);
   });
 });
+
+describe('clocks in the network: reconciliation and datum offsets', () => {
+  it('compares a clock ΔC with the levelling-only run (E_n) and estimates the offset between the datums', async () => {
+    const [campaign] = await t.ds.query(`
+      SELECT c.id, ca.site_id AS a, cb.site_id AS b FROM campaign c JOIN clock ca ON ca.id = c.clock_a_id JOIN clock cb ON cb.id = c.clock_b_id
+      WHERE c.state IN ('accepted','certified') ORDER BY c.period_end DESC LIMIT 1`);
+    expect(campaign).toBeDefined();
+    // A levelling-only run to compare with.
+    const lev = await request(t.app).post('/api/v1/network/runs').set(bearer(coordinator)).send({ includeClocks: false });
+    expect(lev.status).toBe(202);
+    let run = lev.body;
+    for (let i = 0; i < 120 && run.state !== 'done'; i++) {
+      await new Promise((r) => setTimeout(r, 250));
+      run = (await request(t.app).get(`/api/v1/network/runs/${lev.body.id}`).set(bearer(auditor))).body;
+    }
+    const ca = run.result.points.find((p: { code: string }) => p.code === `site:${campaign.a}`);
+    const cb = run.result.points.find((p: { code: string }) => p.code === `site:${campaign.b}`);
+    expect(ca && cb).toBeTruthy();
+    const levelled = cb.c_m2s2 - ca.c_m2s2;
+    // An invented clock result: the levelled ΔC less 1.5 m²/s² (about the planted 0.15 m datum excess), u = 0.05 m²/s².
+    const clockDeltaC = levelled - 1.5;
+    await t.ds.query(
+      `INSERT INTO comparison_result (campaign_id, input_hash, constants, software_version, computed_at, computed_by, result)
+       VALUES ($1, $2, '{}'::jsonb, 'test', now(), 'test', $3::jsonb)`,
+      [campaign.id, 'a'.repeat(64), JSON.stringify({ deltaC_m2s2: { value: clockDeltaC, standardUncertainty: 0.05, expandedUncertainty: 0.1, coverageFactor: 2 } })],
+    );
+    const rec = (await request(t.app).get('/api/v1/network/reconciliation').set(bearer(auditor))).body;
+    const row = rec.rows.find((r: { campaignId: string }) => r.campaignId === campaign.id);
+    expect(row.levellingDeltaC_m2s2).toBeCloseTo(levelled, 9);
+    expect(row.clockExpandedU_m2s2).toBeCloseTo(0.1, 12);
+    // E_n = (x_clock − x_lev) / √(U_clock² + U_lev²), expanded uncertainties k = 2 (ISO 13528:2015 §9.7, references.md §9)
+    const expectedEn = (clockDeltaC - levelled) / Math.sqrt(0.1 ** 2 + row.levellingExpandedU_m2s2 ** 2);
+    expect(row.en).toBeCloseTo(expectedEn, 9);
+    expect(row.agreed).toBe(Math.abs(expectedEn) <= 1);
+    expect(row.crossesDatums).toBe(true);
+
+    // With the clock as an observation and an offset parameter, the offset takes up the whole discrepancy (one clock
+    // link between two otherwise separate datums has redundancy 0), so it equals clock − levelled ΔC.
+    const withClocks = await request(t.app).post('/api/v1/network/runs').set(bearer(coordinator)).send({ includeClocks: true });
+    expect(withClocks.status).toBe(202);
+    let run2 = withClocks.body;
+    for (let i = 0; i < 120 && run2.state !== 'done' && run2.state !== 'failed'; i++) {
+      await new Promise((r) => setTimeout(r, 250));
+      run2 = (await request(t.app).get(`/api/v1/network/runs/${withClocks.body.id}`).set(bearer(auditor))).body;
+    }
+    expect(run2.state).toBe('done');
+    expect(run2.inputSummary.clocks).toBe(1);
+    expect(run2.result.datumOffsets).toHaveLength(1);
+    expect(run2.result.datumOffsets[0].value_m2s2).toBeCloseTo(-1.5, 6);
+    const rec2 = (await request(t.app).get('/api/v1/network/reconciliation').set(bearer(auditor))).body;
+    expect(rec2.datumOffsets[0].value_m2s2).toBeCloseTo(-1.5, 6);
+  });
+});

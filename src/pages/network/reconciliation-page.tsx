@@ -55,6 +55,7 @@ export function ReconciliationPage() {
           </Panel>
           {r.datumOffsets.length > 0 && (
             <Panel title="Datum offsets estimated from clocks">
+              <p className="mb-1 text-xs text-ink-500">From the latest run with clock observations: offset = clock ΔC − levelled ΔC across the two datums (negative: the second datum's numbers are too large).</p>
               <ul className="text-sm">{r.datumOffsets.map((d) => <li key={d.name}>{d.name}: {fmt(d.value_m2s2, 3)} ± {fmt(2 * d.sigma_m2s2, 3)} m²/s² (k = 2), about {fmt(d.valueMm, 0)} ± {fmt(2 * d.sigmaMm, 0)} mm</li>)}</ul>
             </Panel>
           )}

@@ -51,7 +51,7 @@ export function RunPage() {
               </div>
             )}
             {res.datumOffsets.length > 0 && (
-              <p className="mt-2 text-sm">Datum offsets: {res.datumOffsets.map((d) => `${d.name}: ${fmt(d.value_m2s2, 3)} ± ${fmt(d.sigma_m2s2, 3)} m²/s² (${fmt(d.valueMm, 0)} ± ${fmt(d.sigmaMm, 0)} mm)`).join('; ')}</p>
+              <p className="mt-2 text-sm">Datum offsets (clock ΔC − levelled ΔC): {res.datumOffsets.map((d) => `${d.name}: ${fmt(d.value_m2s2, 3)} ± ${fmt(d.sigma_m2s2, 3)} m²/s² (${fmt(d.valueMm, 0)} ± ${fmt(d.sigmaMm, 0)} mm)`).join('; ')}</p>
             )}
           </Panel>
           <Panel title="Standardised residuals">
