@@ -4,6 +4,7 @@ import { AdminPage } from '../pages/admin/admin-page';
 import { MailboxPage } from '../pages/admin/mailbox-page';
 import { HomePage } from '../pages/home-page';
 import { CalculatorPage } from '../pages/calculator/calculator-page';
+import { ResultsPage } from '../pages/results/results-page';
 import { NotFoundPage } from '../pages/not-found-page';
 import { CampaignAuditPage } from '../pages/audit/campaign-audit-page';
 import { CertificatePage } from '../pages/certificates/certificate-page';
@@ -27,6 +28,7 @@ export const featureRoutes: RouteObject[] = [
   { path: 'certificates/:number', element: <CertificatePage /> },
   { path: 'audit/campaigns/:id', element: <CampaignAuditPage /> },
   { path: 'calculator', element: <CalculatorPage /> },
+  { path: 'campaigns/:id/results', element: <ResultsPage /> },
   { path: 'network', element: <NetworkPage /> },
   { path: 'network/sections', element: <SectionsPage /> },
   { path: 'network/loops', element: <LoopsPage /> },
