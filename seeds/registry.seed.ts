@@ -1,5 +1,4 @@
 import crypto from 'node:crypto';
-import type { EntityManager } from 'typeorm';
 import type { CampaignState } from '../shared/campaigns';
 import type { BudgetRow } from '../shared/registry';
 import { recordAudit } from '../server/audit/audit.service';

@@ -6,6 +6,11 @@ export type NavItem = { to: string; label: string; roles: readonly Role[]; group
 const all: readonly Role[] = ['operator', 'coordinator', 'auditor', 'admin'];
 export const navItems: NavItem[] = [
   { to: '/', label: 'Overview', roles: all, group: 'work' },
+  { to: '/campaigns', label: 'Campaigns', roles: ['operator', 'coordinator', 'auditor'], group: 'work' },
+  { to: '/sites', label: 'Sites', roles: ['operator', 'coordinator', 'auditor'], group: 'work' },
+  { to: '/clocks', label: 'Clocks', roles: ['operator', 'coordinator', 'auditor'], group: 'work' },
+  { to: '/links', label: 'Fibre links', roles: ['operator', 'coordinator', 'auditor'], group: 'work' },
+  { to: '/reference-data', label: 'Reference data', roles: ['coordinator'], group: 'work' },
   { to: '/network', label: 'Levelling network', roles: all, group: 'work' },
   { to: '/certificates', label: 'Certificates', roles: all, group: 'work' },
   { to: '/admin', label: 'Institutes and people', roles: ['admin'], group: 'admin' },

@@ -17,6 +17,14 @@ import { RunPage } from '../pages/network/run-page';
 import { ReconciliationPage } from '../pages/network/reconciliation-page';
 import { MapPage } from '../pages/network/map-page';
 import { BenchmarkPage } from '../pages/network/benchmark-page';
+import { SitesPage } from '../pages/registry/sites-page';
+import { SitePage } from '../pages/registry/site-page';
+import { ClocksPage } from '../pages/registry/clocks-page';
+import { ClockPage } from '../pages/registry/clock-page';
+import { LinkPage, LinksPage } from '../pages/registry/links-page';
+import { ReferenceDataPage } from '../pages/registry/reference-data-page';
+import { CampaignsPage } from '../pages/campaigns/campaigns-page';
+import { CampaignPage } from '../pages/campaigns/campaign-page';
 
 /** Client routes; features add theirs here (and a nav entry in nav.ts). */
 export const featureRoutes: RouteObject[] = [
@@ -37,5 +45,14 @@ export const featureRoutes: RouteObject[] = [
   { path: 'network/reconciliation', element: <ReconciliationPage /> },
   { path: 'network/map', element: <MapPage /> },
   { path: 'network/benchmarks/:id', element: <BenchmarkPage /> },
+  { path: 'sites', element: <SitesPage /> },
+  { path: 'sites/:id', element: <SitePage /> },
+  { path: 'clocks', element: <ClocksPage /> },
+  { path: 'clocks/:id', element: <ClockPage /> },
+  { path: 'links', element: <LinksPage /> },
+  { path: 'links/:id', element: <LinkPage /> },
+  { path: 'reference-data', element: <ReferenceDataPage /> },
+  { path: 'campaigns', element: <CampaignsPage /> },
+  { path: 'campaigns/:id', element: <CampaignPage /> },
   { path: '*', element: <NotFoundPage /> },
 ];

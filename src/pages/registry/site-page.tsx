@@ -1,0 +1,70 @@
+import { Link, useParams } from 'react-router';
+import { useClocks, useLinks, useSite } from '../../api/registry';
+import { Caution, EmptyState, Panel } from '../../components/ui';
+import { describeError } from '../../lib/api-client';
+import { Facts, fixed } from './registry-ui';
+
+export function SitePage() {
+  const { id = '' } = useParams();
+  const site = useSite(id);
+  const clocks = useClocks({ page: 1, pageSize: 50, order: 'asc', q: '', siteId: id });
+  const links = useLinks({ page: 1, pageSize: 50, order: 'asc', q: '', siteId: id });
+  if (site.isPending) return <p className="text-ink-500">Loading…</p>;
+  if (site.isError) return <EmptyState title="This site could not be loaded">{describeError(site.error)}</EmptyState>;
+  const s = site.data;
+  const entered = s.entered.coordinates;
+  return (
+    <>
+      <header>
+        <p className="text-sm text-ink-500"><Link to="/sites">Sites</Link> / {s.institute.code}</p>
+        <h1 data-testid="site-title">{s.name}</h1>
+        <p className="text-sm text-ink-600">{s.referencePoint}</p>
+      </header>
+      <div className="grid gap-5 md:grid-cols-2">
+        <Panel title="As entered">
+          <Facts items={[
+            ['Coordinate system', <span key="c">{s.entered.crsLabel} <code className="text-xs">{s.entered.crs}</code></span>],
+            ['Values', <code key="v" data-testid="entered-coordinates">{entered.map((v) => v.toString()).join(', ')}</code>],
+          ]} />
+        </Panel>
+        <Panel title="Converted: GRS80">
+          <Facts items={[
+            ['Latitude φ', <span key="la" data-testid="grs80-lat">{fixed(s.grs80.latitudeDeg, 9)}°</span>],
+            ['Longitude λ', <span key="lo" data-testid="grs80-lon">{fixed(s.grs80.longitudeDeg, 9)}°</span>],
+            ['Ellipsoidal height h', `${fixed(s.grs80.ellipsoidalHeightM, 4)} m ± ${fixed(s.grs80.ellipsoidalHeightUncertaintyM, 4)} m (k = 1)`],
+            ['Geocentric X', `${fixed(s.grs80.xM, 4)} m`],
+            ['Geocentric Y', `${fixed(s.grs80.yM, 4)} m`],
+            ['Geocentric Z', `${fixed(s.grs80.zM, 4)} m`],
+          ]} />
+          <ul className="mt-3 list-disc pl-5 text-xs text-ink-500">{s.assumptions.map((a) => <li key={a}>{a}</li>)}</ul>
+        </Panel>
+        <Panel title="Heights">
+          <Facts items={[
+            ['Quasigeoid height ζ', `${fixed(s.quasigeoid.heightM, 4)} m ± ${fixed(s.quasigeoid.uncertaintyM, 4)} m (k = 1)`],
+            ['ζ from', s.quasigeoid.source === 'grid' ? `bilinear interpolation in “${s.quasigeoid.gridName ?? s.quasigeoid.gridId}”` : 'entered by the lab'],
+            ['Normal height H = h − ζ', <span key="h" data-testid="normal-height">{fixed(s.normalHeight.valueM, 4)} m ± {fixed(s.normalHeight.uncertaintyM, 4)} m (k = 1)</span>],
+            ['Uncertainty', s.normalHeight.formula],
+          ]} />
+        </Panel>
+        <Panel title="Local tie to a benchmark">
+          {s.benchmarkTie ? (
+            <Facts items={[
+              ['Benchmark', s.benchmarkTie.benchmarkCode],
+              ['Height difference site − benchmark', `${fixed(s.benchmarkTie.heightDifferenceM, 4)} m`],
+              ['Uncertainty', `${fixed(s.benchmarkTie.uncertaintyM, 4)} m (k = 1)`],
+            ]} />
+          ) : <p className="text-sm text-ink-500">No tie recorded.</p>}
+        </Panel>
+      </div>
+      <Panel title="Clocks at this site">
+        <ul className="text-sm">{clocks.data?.items.map((c) => <li key={c.id}><Link to={`/clocks/${c.id}`}>{c.name}</Link> · {c.speciesLabel}</li>)}</ul>
+        {clocks.data?.items.length === 0 && <p className="text-sm text-ink-500">None yet.</p>}
+      </Panel>
+      <Panel title="Fibre links">
+        <ul className="text-sm">{links.data?.items.map((l) => <li key={l.id}><Link to={`/links/${l.id}`}>{l.name}</Link> · {l.siteA.name} – {l.siteB.name}</li>)}</ul>
+        {links.data?.items.length === 0 && <p className="text-sm text-ink-500">None yet.</p>}
+      </Panel>
+      <Caution />
+    </>
+  );
+}
