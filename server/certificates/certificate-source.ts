@@ -24,18 +24,50 @@ function clockPart(clock: ClockForResult, instituteName: string): SnapshotBody['
   };
 }
 
+/** Readable names, units and sources for the constants the results engine stores (server/science/constants.ts). */
+const KNOWN_CONSTANTS: Record<string, { name: string; unit: string; source: string } | null> = {
+  c_m_per_s: null, // printed first, with its source
+  c2_m2_per_s2: { name: 'c²', unit: 'm²/s²', source: 'exact, from the defining value of c' },
+  ellipsoid: { name: 'Reference ellipsoid', unit: '', source: 'H. Moritz, J Geod 74 (2000) 128–133' },
+  'grs80.a_m': { name: 'GRS80 semi-major axis a', unit: 'm', source: 'GRS80 defining constant (Moritz 2000)' },
+  'grs80.gm_m3_per_s2': { name: 'GRS80 GM', unit: 'm³/s²', source: 'GRS80 defining constant (Moritz 2000)' },
+  'grs80.j2': { name: 'GRS80 J₂', unit: '', source: 'GRS80 defining constant (Moritz 2000)' },
+  'grs80.omega_rad_per_s': { name: 'GRS80 ω', unit: 'rad/s', source: 'GRS80 defining constant (Moritz 2000)' },
+  'grs80.gammaE_m_per_s2': { name: 'Normal gravity at the equator γₑ', unit: 'm/s²', source: 'GRS80 derived constant (Moritz 2000)' },
+  'grs80.gammaP_m_per_s2': { name: 'Normal gravity at the pole γₚ', unit: 'm/s²', source: 'GRS80 derived constant (Moritz 2000)' },
+  w0_ihrs_m2_per_s2: { name: 'W₀ of the IHRS', unit: 'm²/s²', source: 'IAG Resolution No. 1 (2015)' },
+  l_g: { name: 'L_G (TT–TCG rate)', unit: '', source: 'IAU 2000 Resolution B1.9' },
+  normalGravity: { name: 'Normal gravity model', unit: '', source: 'Heiskanen & Moritz, Physical Geodesy (1967)' },
+};
+
+const UNIT_SUFFIXES: [RegExp, string][] = [[/_m2_per_s2$/, 'm²/s²'], [/_m3_per_s2$/, 'm³/s²'], [/_m_per_s2$/, 'm/s²'], [/_m_per_s$/, 'm/s'], [/_rad_per_s$/, 'rad/s'], [/_m$/, 'm']];
+
+/** Nested constants become one row each ("grs80.a_m"), named readably where we know them. */
+function flattenConstants(value: unknown, key: string, out: (SnapshotBody['constants'][number] & { key: string })[]): void {
+  if (value === null || value === undefined) return;
+  if (typeof value === 'object' && !Array.isArray(value)) {
+    for (const [k, v] of Object.entries(value as Record<string, unknown>)) flattenConstants(v, key ? `${key}.${k}` : k, out);
+    return;
+  }
+  const known = KNOWN_CONSTANTS[key];
+  if (known === null) return;
+  const text = Array.isArray(value) ? value.join(', ') : String(value);
+  out.push(known
+    ? { key, name: known.name, value: text, unit: known.unit, source: known.source }
+    : { key, name: key, value: text, unit: UNIT_SUFFIXES.find(([re]) => re.test(key))?.[1] ?? '', source: 'as stored with the result' });
+}
+
 function constantRows(result: ComparisonResultDto): SnapshotBody['constants'] {
   const rows: SnapshotBody['constants'] = [
     { name: 'Speed of light c', value: String(C_M_PER_S), unit: 'm/s', source: 'SI Brochure, 9th ed. (2019), defining constant' },
   ];
-  for (const [name, value] of Object.entries(result.constants)) {
-    if (value && typeof value === 'object' && 'value' in value) {
-      const v = value as { value: unknown; unit?: unknown; source?: unknown };
-      rows.push({ name, value: String(v.value), unit: typeof v.unit === 'string' ? v.unit : '', source: typeof v.source === 'string' && v.source ? v.source : 'as stored with the result' });
-    } else if (value !== null && value !== undefined) {
-      rows.push({ name, value: typeof value === 'object' ? JSON.stringify(value) : String(value), unit: '', source: 'as stored with the result' });
-    }
-  }
+  // The stored JSON loses key order; print the known constants in our order, others after them.
+  const stored: (SnapshotBody['constants'][number] & { key: string })[] = [];
+  flattenConstants(result.constants, '', stored);
+  const order = Object.keys(KNOWN_CONSTANTS);
+  const rank = (key: string) => (order.includes(key) ? order.indexOf(key) : order.length);
+  stored.sort((a, b) => rank(a.key) - rank(b.key) || a.key.localeCompare(b.key));
+  rows.push(...stored.map(({ name, value, unit, source }) => ({ name, value, unit, source })));
   const r = result.result;
   rows.push({ name: 'Tide model', value: r.tide.model, unit: '', source: r.tide.uncertaintyRule });
   return rows.filter((row) => row.name && row.value && row.source);
@@ -63,7 +95,12 @@ export function snapshotBodyFrom(campaign: CampaignForResult, result: Comparison
     measurementPeriod: { start: isoUtc(r.campaign.periodStart), end: isoUtc(r.campaign.periodEnd) },
     uptimeFraction: Math.min(1, Math.max(0, r.samples.uptimeFraction)),
     measuredRatio: r.measuredRatio,
-    referenceRatio: { value: r.referenceRatio.value, source: `${r.referenceRatio.source} (relative standard uncertainty ${r.referenceRatio.relativeUncertainty.toExponential(1)})` },
+    referenceRatio: {
+      value: r.referenceRatio.value,
+      source: r.referenceRatio.relativeUncertainty > 0
+        ? `${r.referenceRatio.source} (relative standard uncertainty ${r.referenceRatio.relativeUncertainty.toExponential(1)})`
+        : `${r.referenceRatio.source} (exact by definition)`,
+    },
     fractionalOffset: { y: r.fractionalOffset.y, standardUncertainty: r.fractionalOffset.standardUncertainty },
     deltaC_m2s2: { value: r.deltaC_m2s2.value, expandedUncertainty: r.deltaC_m2s2.expandedUncertainty, coverageFactor: 2 },
     deltaH_m: { value: r.deltaH_m.value, expandedUncertainty: r.deltaH_m.expandedUncertainty, coverageFactor: 2 },
@@ -78,7 +115,8 @@ export function snapshotBodyFrom(campaign: CampaignForResult, result: Comparison
       outputUnit: 'm²/s²',
       rows: r.budget.lines.map((l) => ({
         component: l.component, type: l.type, standardUncertainty: l.standardUncertainty, sensitivity: l.sensitivity * C2_M2_PER_S2,
-        contribution: l.contribution * C2_M2_PER_S2, unit: l.unit || '1',
+        // "1 (relative)" and the like are all dimensionless inputs; the table column is narrow.
+        contribution: l.contribution * C2_M2_PER_S2, unit: /^1\b/.test(l.unit) || !l.unit ? '1' : l.unit,
       })),
       combinedStandardUncertainty: r.budget.combinedStandardUncertainty * C2_M2_PER_S2,
     },
@@ -87,7 +125,7 @@ export function snapshotBodyFrom(campaign: CampaignForResult, result: Comparison
     tideSystem: r.tide.system,
     w0Convention: { name: r.w0Convention.name, value_m2s2: r.w0Convention.value_m2s2, source: r.w0Convention.source },
     constants: constantRows(result),
-    softwareVersion: result.softwareVersion,
+    softwareVersion: /chronolevel/i.test(result.softwareVersion) ? result.softwareVersion : `Chronolevel ${result.softwareVersion}`,
     inputFiles: r.inputFiles.map((f) => ({ name: f.name, sha256: f.sha256 })),
     method: r.method,
     cautions: r.cautions,

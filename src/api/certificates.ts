@@ -1,5 +1,6 @@
 import { keepPreviousData, useMutation, useQuery, useQueryClient } from '@tanstack/react-query';
 import type { AuditEvent } from '../../shared/auth';
+import type { CampaignSummary } from '../../shared/campaigns';
 import type { CertificateDetail, CertificateListQuery, CertificateSummary, VerificationResult } from '../../shared/certificate-registry';
 import type { CertificateSnapshot } from '../../shared/certificates';
 import type { Page, Problem } from '../../shared/http';
@@ -12,6 +13,7 @@ export const certificateKeys = {
   snapshot: (number: string) => [...certificateKeys.all, 'snapshot', number] as const,
   forCampaign: (campaignId: string) => [...certificateKeys.all, 'campaign', campaignId] as const,
   audit: (campaignId: string, numbers: readonly string[]) => [...certificateKeys.all, 'audit', campaignId, numbers] as const,
+  awaiting: () => [...certificateKeys.all, 'awaiting'] as const,
 };
 
 function queryString(params: object): string {
@@ -35,6 +37,14 @@ export const useCampaignCertificates = (campaignId: string) =>
   useQuery({
     queryKey: certificateKeys.forCampaign(campaignId),
     queryFn: () => api<Page<CertificateSummary>>(`/api/v1/certificates?${queryString({ campaignId, page: 1, pageSize: 50, sort: 'issuedAt', order: 'asc' })}`),
+  });
+
+/** Accepted campaigns: the ones a coordinator may certify (kept under the certificate keys so issuing refreshes it). */
+export const useCampaignsAwaitingCertificate = (enabled: boolean) =>
+  useQuery({
+    queryKey: certificateKeys.awaiting(),
+    enabled,
+    queryFn: () => api<Page<CampaignSummary>>(`/api/v1/campaigns?${queryString({ state: 'accepted', page: 1, pageSize: 100, sort: 'periodStart', order: 'asc' })}`),
   });
 
 export const useCertificate = (number: string) =>

@@ -99,7 +99,7 @@ describe('issuing', () => {
     expect(snapshot.auditChainHead).toBe(head.hash);
     const result = await latestResultForCampaign(t.ds.manager, campaignId);
     expect(snapshot.inputFiles.map((f) => f.sha256).sort()).toEqual(result!.result.inputFiles.map((f) => f.sha256).sort());
-    expect(snapshot.softwareVersion).toBe(result!.softwareVersion);
+    expect(snapshot.softwareVersion).toBe(`Chronolevel ${result!.softwareVersion}`);
     expect(snapshot.deltaC_m2s2.value).toBe(result!.result.deltaC_m2s2.value);
     expect(snapshot.geodeticComparison.En).toBe(result!.result.geodesy!.en);
     // ΔC = c²·y (SI Brochure 2019: c exact): the budget in m²/s² is the fractional budget times c².

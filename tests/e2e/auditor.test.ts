@@ -10,6 +10,7 @@ import { launchBrowser, screenshot, signInWithBrowser, startE2eServer, type E2eS
 
 const COORDINATOR = 'ansel.brandt@geopotential-office.invalid';
 const AUDITOR = 'petra.lind@audit-bureau.invalid';
+const CAMPAIGN = 'Coastal–mountain comparison, August';
 
 let srv: E2eServer;
 let browser: Browser;
@@ -21,7 +22,7 @@ beforeAll(async () => {
   process.env.SECRETS_DIR = inject('secretsDir'); // the demo seed signs with the key this server pins
   srv = await startE2eServer();
   browser = await launchBrowser();
-  campaignId = await acceptedCampaign(srv, 'Coastal–mountain comparison, August', '2026-08-03T00:00:00Z');
+  campaignId = await acceptedCampaign(srv, CAMPAIGN, '2026-08-03T00:00:00Z');
 });
 afterAll(async () => {
   await browser?.close();
@@ -37,8 +38,10 @@ async function as(email: string, path: string): Promise<Page> {
 
 describe('auditor journey', () => {
   it('the coordinator issues the certificate of the accepted campaign', async () => {
-    const page = await as(COORDINATOR, `/audit/campaigns/${campaignId}`);
-    await page.getByRole('button', { name: 'Issue certificate' }).click();
+    const page = await as(COORDINATOR, '/certificates');
+    const row = page.getByTestId('awaiting-certificate').locator('li', { hasText: CAMPAIGN });
+    await screenshot(page, 'certificates-awaiting-coordinator');
+    await row.getByRole('button', { name: 'Issue certificate' }).click();
     await page.getByTestId('certificate-number').waitFor({ timeout: 60_000 });
     number = (await page.getByTestId('certificate-number').textContent())!.trim();
     expect(number).toMatch(/^CL-\d{4}-\d{5}-r1$/);

@@ -2,10 +2,11 @@ import { createColumnHelper } from '@tanstack/react-table';
 import { useState } from 'react';
 import { Link } from 'react-router';
 import { certificateStateLabels, certificateStates, type CertificateState, type CertificateSummary } from '../../../shared/certificate-registry';
-import { useInstitutes } from '../../api/account';
-import { useCertificates } from '../../api/certificates';
+import { useInstitutes, useMe } from '../../api/account';
+import { useCampaignsAwaitingCertificate, useCertificates } from '../../api/certificates';
 import { DataTable, type TableState } from '../../components/data-table';
 import { Caution, Field, inputClass, Panel } from '../../components/ui';
+import { IssueCertificateButton } from './certificate-actions';
 import { CertificateStateBadge } from './certificate-state';
 
 const col = createColumnHelper<CertificateSummary>();
@@ -26,7 +27,33 @@ const columns = [
   col.accessor('issuedBy', { header: 'Issued by', enableSorting: false, cell: (c) => c.getValue().replace(/ <.*$/, '') }),
 ];
 
+/** The coordinator's queue: accepted campaigns that have no certificate yet. */
+function AwaitingPanel() {
+  const awaiting = useCampaignsAwaitingCertificate(true);
+  const items = awaiting.data?.items ?? [];
+  return (
+    <Panel title="Accepted campaigns waiting for a certificate">
+      {items.length === 0 ? (
+        <p className="text-sm text-ink-500">{awaiting.isPending ? 'Loading…' : 'None: every accepted campaign is certified.'}</p>
+      ) : (
+        <ul className="divide-y divide-paper-200 text-sm" data-testid="awaiting-certificate">
+          {items.map((c) => (
+            <li key={c.id} className="flex flex-wrap items-center justify-between gap-3 py-2">
+              <span>
+                <Link to={`/audit/campaigns/${c.id}`} className="font-medium">{c.name}</Link>
+                <span className="block text-xs text-ink-500">{c.clockA.name} ({c.clockA.institute.code}) – {c.clockB.name} ({c.clockB.institute.code}) · {c.periodStart.slice(0, 10)} to {c.periodEnd.slice(0, 10)}</span>
+              </span>
+              <IssueCertificateButton campaignId={c.id} />
+            </li>
+          ))}
+        </ul>
+      )}
+    </Panel>
+  );
+}
+
 export function CertificatesPage() {
+  const me = useMe();
   const institutes = useInstitutes();
   const [table, setTable] = useState<TableState>({ page: 1, pageSize: 20, sort: 'issuedAt', order: 'desc', q: '' });
   const [state, setState] = useState<CertificateState | ''>('');
@@ -44,6 +71,7 @@ export function CertificatesPage() {
         <h1>Certificates</h1>
         <p className="text-sm text-ink-500">Every certificate issued by the coordinating institute, with its revisions and withdrawals. Nothing is ever deleted.</p>
       </header>
+      {me.data?.role === 'coordinator' && <AwaitingPanel />}
       <Panel>
         <div className="mb-4 grid gap-3 md:grid-cols-4">
           <Field label="State">
