@@ -37,6 +37,9 @@ describe('server killed during an upload', () => {
       if (m) resolve(Number(m[1]));
     }));
     const spoolsBefore = spoolFiles();
+    const countsSql = `SELECT (SELECT count(*)::int FROM ratio_series) AS series, (SELECT count(*)::int FROM ratio_sample) AS samples,
+      (SELECT count(*)::int FROM pg_largeobject_metadata) AS files`;
+    const [before] = await t.ds.query(countsSql);
     const uploadId = crypto.randomUUID();
     const boundary = `----kill${uploadId}`;
     const head = ['epochColumn=1', 'epochKind=mjd', 'valueColumn=2', 'valueKind=offset'].map((f) => {
@@ -80,9 +83,10 @@ describe('server killed during an upload', () => {
     }
     const [{ n: backends }] = await t.ds.query('SELECT count(*)::int AS n FROM pg_stat_activity WHERE application_name = $1', [appName]);
     expect(backends).toBe(0);
-    const [counts] = await t.ds.query(`SELECT (SELECT count(*)::int FROM ratio_series) AS series, (SELECT count(*)::int FROM ratio_sample) AS samples,
-      (SELECT count(*)::int FROM pg_largeobject_metadata) AS files`);
-    expect(counts).toEqual({ series: 0, samples: 0, files: 0 });
+    const [after] = await t.ds.query(countsSql);
+    expect(after).toEqual(before);
+    const [{ n: ofCampaign }] = await t.ds.query('SELECT count(*)::int AS n FROM ratio_series WHERE campaign_id = $1', [campaignId]);
+    expect(ofCampaign).toBe(0);
     expect(spoolFiles()).toEqual(spoolsBefore);
   });
 });

@@ -1,0 +1,74 @@
+import { Readable } from 'node:stream';
+import type pg from 'pg';
+import { recordAudit } from '../server/audit/audit.service';
+import { C2_M2_PER_S2 } from '../server/science/constants';
+import { normalGravityOnEllipsoid } from '../server/science/normal-gravity';
+import { loadCampaignForUpload, storeSeries } from '../server/uploads/uploads.service';
+import type { Seeder } from './demo';
+
+// INVENTED demo ratio series for the seeded campaigns that are past the draft stage: 10 s spacing, white frequency
+// noise of 3e-16/√τ, the gravitational redshift of the invented height difference between the two clocks' sites
+// (y = γ·ΔH/c², B above A gives y > 0, as in server/science/redshift.ts), a few invalid flags and one gap.
+// Stored through the same code path as uploads (storeSeries), so each keeps its generated CSV and SHA-256.
+
+const SAMPLES = 6000;
+const TAU0_S = 10;
+const SIGMA_Y_1S = 3e-16;
+
+/** Park–Miller minimal standard generator: seeded, repeatable. */
+function rng(seed: number) {
+  let s = seed % 2147483647 || 1;
+  return () => (s = (s * 16807) % 2147483647) / 2147483647;
+}
+
+export function inventedSeriesCsv(opts: { startMjd: number; yGrav: number; asRatio: boolean; seed: number; label: string }): string {
+  const rnd = rng(opts.seed);
+  const gapStart = Math.floor(SAMPLES * 0.55);
+  const gapLength = 360; // one hour without data
+  const invalid = new Set([Math.floor(SAMPLES * 0.1), Math.floor(SAMPLES * 0.3), Math.floor(SAMPLES * 0.3) + 1, Math.floor(SAMPLES * 0.8)]);
+  const sigma = SIGMA_Y_1S / Math.sqrt(TAU0_S);
+  const lines = [`# INVENTED demo series (${opts.label}); not a measurement`, opts.asRatio ? 'mjd,ratio,flag' : 'mjd,offset,flag'];
+  for (let i = 0; i < SAMPLES; i++) {
+    if (i >= gapStart && i < gapStart + gapLength) continue;
+    const g = Math.sqrt(-2 * Math.log(rnd())) * Math.cos(2 * Math.PI * rnd());
+    const y = opts.yGrav + sigma * g;
+    const mjd = (opts.startMjd + (i * TAU0_S) / 86_400).toFixed(8);
+    let value: string;
+    if (opts.asRatio) {
+      // reference ratio 1: write 1 + y with 20 decimals (21 significant digits)
+      const units = BigInt(Math.round(y * 1e20));
+      value = units >= 0n ? `1.${units.toString().padStart(20, '0')}` : `0.${(10n ** 20n + units).toString().padStart(20, '0')}`;
+    } else {
+      value = y.toExponential(6);
+    }
+    lines.push(`${mjd},${value},${invalid.has(i) ? 'invalid' : 'valid'}`);
+  }
+  return `${lines.join('\n')}\n`;
+}
+
+export const uploadsSeeder: Seeder = {
+  name: 'ratio series (invented)',
+  run: async ({ manager }) => {
+    const client = (manager.queryRunner as unknown as { databaseConnection: pg.PoolClient }).databaseConnection;
+    const campaigns = (await manager.query(`
+      SELECT c.id, c.name, c.state, sa.latitude_deg AS lat_a, sb.latitude_deg AS lat_b,
+             sa.ellipsoidal_height_m - sa.quasigeoid_height_m AS h_a, sb.ellipsoidal_height_m - sb.quasigeoid_height_m AS h_b
+        FROM campaign c JOIN clock ca ON ca.id = c.clock_a_id JOIN clock cb ON cb.id = c.clock_b_id
+        JOIN site sa ON sa.id = ca.site_id JOIN site sb ON sb.id = cb.site_id
+       WHERE c.state <> 'draft' ORDER BY c.period_start`)) as { id: string; name: string; state: string; lat_a: number; lat_b: number; h_a: number; h_b: number }[];
+    let n = 0;
+    for (const c of campaigns) {
+      const campaign = (await loadCampaignForUpload(manager, c.id))!;
+      const gamma = normalGravityOnEllipsoid((c.lat_a + c.lat_b) / 2);
+      const yGrav = (gamma * (c.h_b - c.h_a)) / C2_M2_PER_S2;
+      const csv = inventedSeriesCsv({ startMjd: Math.ceil(campaign.periodStartMjd) + 0.25, yGrav, asRatio: campaign.referenceRatio === '1', seed: 1000 + n, label: c.name });
+      await storeSeries(client, null, {
+        campaign, fileName: `invented-${c.name.replace(/[^A-Za-z0-9]+/g, '-').toLowerCase()}.csv`, source: Readable.from([Buffer.from(csv)]),
+        fields: { epochColumn: '1', epochKind: 'mjd', valueColumn: '2', valueKind: campaign.referenceRatio === '1' ? 'ratio' : 'offset', flagColumn: '3' },
+        limitBytes: 64 * 1024 * 1024, invented: true,
+      });
+      n++;
+    }
+    await recordAudit(manager, null, { action: 'demo.series-seeded', entityType: 'database', details: { scenario: `invented ratio series for ${n} campaigns`, samplesPerSeries: SAMPLES, tau0Seconds: TAU0_S } });
+  },
+};
