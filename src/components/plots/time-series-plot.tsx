@@ -57,7 +57,7 @@ export function TimeSeriesPlot({ buckets, timeAxis = 'mjd', title, yName = 'Frac
           </g>
         ))}
         <rect x={MARGIN.left} y={MARGIN.top} width={width - MARGIN.left - MARGIN.right} height={height - MARGIN.top - MARGIN.bottom} className="fill-none stroke-ink-200" />
-        <path d={band(buckets) ?? ''} className="fill-ink-600 stroke-ink-700" strokeWidth={0.8} data-testid="series-band" />
+        <path d={band(buckets) ?? ''} className="fill-ink-300 stroke-ink-700" strokeWidth={0.8} data-testid="series-band" />
         <text x={(MARGIN.left + width - MARGIN.right) / 2} y={height - 8} textAnchor="middle" className="fill-ink-700 text-[12px]">{xLabel}</text>
         <text transform={`translate(16 ${(MARGIN.top + height - MARGIN.bottom) / 2}) rotate(-90)`} textAnchor="middle" className="fill-ink-700 text-[12px]">{yLabel}</text>
       </svg>
