@@ -108,7 +108,7 @@ export function NetworkMapSvg({ data, selected, onSelect, focusDatum }: { data: 
           return (
             <g key={s.id} tabIndex={0} role="button" aria-label={`Clock site ${s.code} ${s.name}`} onClick={() => onSelect({ kind: 'site', id: s.id })} onKeyDown={(e) => key(e, { kind: 'site', id: s.id })} className="cursor-pointer">
               <path d={`M${x},${y - 9} L${x + 8},${y + 6} L${x - 8},${y + 6} Z`} className="fill-brass-400 stroke-ink-800" strokeWidth={isSel('site', s.id) ? 2.5 : 1} />
-              <text x={x + 10} y={y - 6} className="fill-ink-900 font-semibold">{s.code} {s.name}</text>
+              <text x={x} y={y - 13} textAnchor="middle" className="fill-ink-900 font-semibold">{s.name}</text>
             </g>
           );
         })}

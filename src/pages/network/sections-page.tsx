@@ -24,8 +24,8 @@ export function SectionsPage() {
   const remove = useDeleteSection();
   const columns = [
     col.accessor('lineName', { header: 'Line', cell: (c) => c.getValue() ?? '—' }),
-    col.accessor('fromCode', { header: 'From' }),
-    col.accessor('toCode', { header: 'To' }),
+    col.accessor('fromCode', { header: 'From', cell: (c) => <span className="whitespace-nowrap">{c.getValue()}</span> }),
+    col.accessor('toCode', { header: 'To', cell: (c) => <span className="whitespace-nowrap">{c.getValue()}</span> }),
     col.accessor('deltaHeightM', { header: 'Δn (m)', cell: (c) => fmt(c.getValue(), 5) }),
     col.accessor('lengthKm', { header: 'Length (km)', cell: (c) => fmt(c.getValue(), 2) }),
     col.accessor('meanGravity_ms2', {
