@@ -140,7 +140,7 @@ export function ResultsPage() {
       <section className="grid gap-3 md:grid-cols-3" aria-label="Main figures">
         <div className="rounded-lg border border-paper-200 bg-white p-4">
           <p className="text-xs uppercase tracking-wide text-ink-500">Fractional offset y (tide-corrected)</p>
-          <p className="mt-1 font-mono text-lg text-ink-900" data-testid="result-y">{e(r.fractionalOffset.y, 6)} ± {e(r.budget.expandedUncertainty, 2)}</p>
+          <p className="mt-1 font-mono text-base text-ink-900" data-testid="result-y">{e(r.fractionalOffset.y, 6)} ± {e(r.budget.expandedUncertainty, 2)}</p>
           <p className="text-xs text-ink-500">expanded uncertainty, k = 2; measured mean ratio {r.measuredRatio}</p>
         </div>
         <Quantity label="Potential difference ΔC = C_B − C_A" value={r.deltaC_m2s2.value} unit="m²/s²" expanded={r.deltaC_m2s2.expandedUncertainty} testId="result-dc" />
