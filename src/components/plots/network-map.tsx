@@ -49,6 +49,16 @@ export function NetworkMapSvg({ data, selected, onSelect, focusDatum }: { data: 
   const bm = new Map(data.benchmarks.map((b) => [b.code, b]));
   const sites = new Map(data.sites.map((s) => [s.id, s]));
   const p = (lon: number, lat: number) => projection([lon, lat]) ?? [0, 0];
+  // Labels only where they do not collide: a benchmark is named when its nearest neighbour is more than 30 px away.
+  const xy = data.benchmarks.map((b) => p(b.longitudeDeg, b.latitudeDeg));
+  const labelled = new Set<string>();
+  if (xy.length <= 400) {
+    xy.forEach(([x0, y0], i) => {
+      let nearest = Infinity;
+      xy.forEach(([x1, y1], j) => { if (i !== j) nearest = Math.min(nearest, Math.hypot(x1 - x0, y1 - y0)); });
+      if (nearest > 30) labelled.add(data.benchmarks[i].id);
+    });
+  }
   const isSel = (kind: MapSelection['kind'], id: string) => selected?.kind === kind && selected.id === id;
   const key = (e: React.KeyboardEvent, s: MapSelection) => { if (e.key === 'Enter' || e.key === ' ') { e.preventDefault(); onSelect(s); } };
   return (
@@ -99,7 +109,8 @@ export function NetworkMapSvg({ data, selected, onSelect, focusDatum }: { data: 
               ) : (
                 <circle cx={x} cy={y} r={sel ? 6 : 4} className="fill-white stroke-ink-700" strokeWidth={1.5} />
               )}
-              <text x={x + 7} y={y + 3} className="fill-ink-700">{b.code}</text>
+              {(labelled.has(b.id) || sel) && <text x={x + 7} y={y + 3} className="fill-ink-700">{b.code}</text>}
+              <title>{`${b.code} ${b.name}`}</title>
             </g>
           );
         })}

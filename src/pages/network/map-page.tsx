@@ -26,7 +26,7 @@ export function MapPage() {
           </label>
         }>
           {d ? <NetworkMapSvg data={d} selected={selected} onSelect={setSelected} focusDatum={focus || undefined} /> : <p>Loading…</p>}
-          <p className="mt-1 text-xs text-ink-500">Coastline: Natural Earth 1:50m (public domain) via world-atlas. Section colours come from the latest finished adjustment run.</p>
+          <p className="mt-1 text-xs text-ink-500">Coastline: Natural Earth 1:50m (public domain) via world-atlas. Section colours come from the latest finished adjustment run. Crowded benchmarks are named when you choose one datum to show.</p>
         </Panel>
         <div className="space-y-4">
           <Panel title="Selected">{d && <SelectionDetail data={d} selected={selected} />}</Panel>
