@@ -50,10 +50,11 @@ const newCampaign = (name: string) => ({
 });
 
 describe('the demo scenario', () => {
-  it('holds campaigns in every state but certified', async () => {
+  it('holds campaigns in every state (two accepted; the certificate seeder may have certified one of them)', async () => {
     const rows: { state: string; n: number }[] = await t.ds.query('SELECT state, count(*)::int AS n FROM campaign GROUP BY state');
-    const by = Object.fromEntries(rows.map((r) => [r.state, r.n]));
-    expect(by).toMatchObject({ draft: 2, submitted: 1, in_review: 1, accepted: 2, returned: 1 });
+    const by: Record<string, number> = Object.fromEntries(rows.map((r) => [r.state, r.n]));
+    expect(by).toMatchObject({ draft: 2, submitted: 1, in_review: 1, returned: 1 });
+    expect((by.accepted ?? 0) + (by.certified ?? 0)).toBe(2);
   });
 });
 
@@ -135,7 +136,10 @@ describe('institute scoping', () => {
     expect(list.body.total).toBeGreaterThanOrEqual(7);
     const names = list.body.items.map((c: { name: string }) => c.name);
     expect([...names].sort((a: string, b: string) => (a < b ? -1 : a > b ? 1 : 0))).toEqual(names);
-    expect((await as('auditor').get('/api/v1/campaigns?state=accepted')).body.items).toHaveLength(2);
+    const accepted = (await as('auditor').get('/api/v1/campaigns?state=accepted')).body.items;
+    const inDb = await t.ds.query("SELECT count(*)::int AS n FROM campaign WHERE state = 'accepted'");
+    expect(accepted).toHaveLength(inDb[0].n);
+    expect(accepted.every((c: { state: string }) => c.state === 'accepted')).toBe(true);
   });
 });
 

@@ -157,7 +157,7 @@ function CampaignEditor({ campaign: c }: { campaign: Campaign }) {
 function CampaignBudgets({ campaign: c }: { campaign: Campaign }) {
   return (
     <Panel title="Pinned systematic budgets (fractional)">
-      <div className="grid gap-5 lg:grid-cols-2">
+      <div className="grid gap-5">
         <div><h3 className="mb-1 text-sm font-semibold">{c.clockA.name}, version {c.budgetA.version}</h3><BudgetTable {...c.budgetA} /></div>
         <div><h3 className="mb-1 text-sm font-semibold">{c.clockB.name}, version {c.budgetB.version}</h3><BudgetTable {...c.budgetB} /></div>
       </div>

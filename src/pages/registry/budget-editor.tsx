@@ -61,13 +61,13 @@ export function BudgetEditor<F extends AnyForm>({ name, control, register: regis
 export function BudgetTable({ rows, totalCorrection, totalUncertainty }: { rows: BudgetRow[]; totalCorrection: number; totalUncertainty: number }) {
   return (
     <table className="min-w-full text-sm">
-      <thead className="text-left text-ink-500"><tr><th className="py-1">Effect</th><th>Correction</th><th>Uncertainty (k = 1)</th><th>Type</th><th>Note</th></tr></thead>
+      <thead className="text-left text-ink-500"><tr><th className="py-1 pr-3">Effect</th><th className="pr-3">Correction</th><th className="pr-3">Uncertainty (k = 1)</th><th className="pr-3">Type</th><th>Note</th></tr></thead>
       <tbody>
         {rows.map((r, i) => (
-          <tr key={i} className="border-t border-paper-200"><td className="py-1">{r.effect}</td><td className="font-mono">{sci(r.correction, 4)}</td><td className="font-mono">{sci(r.uncertainty, 3)}</td><td>{r.type}</td><td className="text-ink-500">{r.note}</td></tr>
+          <tr key={i} className="border-t border-paper-200"><td className="py-1 pr-3">{r.effect}</td><td className="whitespace-nowrap pr-3 font-mono">{sci(r.correction, 4)}</td><td className="whitespace-nowrap pr-3 font-mono">{sci(r.uncertainty, 3)}</td><td>{r.type}</td><td className="text-ink-500">{r.note}</td></tr>
         ))}
       </tbody>
-      <tfoot><tr className="border-t-2 border-ink-200 font-semibold"><td className="py-1">Total</td><td className="font-mono">{sci(totalCorrection, 4)}</td><td className="font-mono">{sci(totalUncertainty, 3)}</td><td colSpan={2} /></tr></tfoot>
+      <tfoot><tr className="border-t-2 border-ink-200 font-semibold"><td className="py-1">Total</td><td className="whitespace-nowrap font-mono">{sci(totalCorrection, 4)}</td><td className="whitespace-nowrap font-mono">{sci(totalUncertainty, 3)}</td><td colSpan={2} /></tr></tfoot>
     </table>
   );
 }

@@ -24,14 +24,14 @@ export function ReferenceDataPage() {
       </header>
       <Panel title="Reference frequencies">
         <table className="min-w-full text-sm" data-testid="reference-frequencies">
-          <thead className="text-left text-ink-500"><tr><th className="py-1">Species / transition</th><th>Frequency (Hz)</th><th>u_r (k = 1)</th><th>Source</th><th>Used for defaults</th>{coordinator && <th />}</tr></thead>
+          <thead className="text-left text-ink-500"><tr><th className="py-1 pr-4">Species / transition</th><th className="pr-4">Frequency (Hz)</th><th className="whitespace-nowrap pr-4">u_r (k = 1)</th><th className="pr-4">Source</th><th>Used for defaults</th>{coordinator && <th />}</tr></thead>
           <tbody>
             {refs.data?.map((r) => (
               <tr key={r.id} className={`border-t border-paper-200 align-top ${r.inUse ? '' : 'text-ink-500'}`}>
-                <td className="py-1.5">{r.speciesLabel}</td>
-                <td className="font-mono">{r.frequencyHz}</td>
-                <td className="font-mono">{sci(r.relativeUncertainty, 2)}</td>
-                <td className={/from memory/.test(r.source) ? 'text-brass-600' : ''}>{r.source}</td>
+                <td className="py-1.5 pr-4">{r.speciesLabel}</td>
+                <td className="whitespace-nowrap pr-4 font-mono">{r.frequencyHz}</td>
+                <td className="whitespace-nowrap pr-4 font-mono">{sci(r.relativeUncertainty, 2)}</td>
+                <td className={`pr-4 ${/from memory/.test(r.source) ? 'text-brass-600' : ''}`}>{r.source}</td>
                 <td>{r.inUse ? 'yes' : 'no'}</td>
                 {coordinator && <td>{!r.inUse && <Button variant="quiet" onClick={() => update.mutate({ id: r.id, body: { inUse: true } })}>Use this value</Button>}</td>}
               </tr>
