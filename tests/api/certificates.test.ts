@@ -6,6 +6,7 @@ import path from 'node:path';
 import request from 'supertest';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { inject } from 'vitest';
+import { VERIFY_UPLOAD_LIMIT_BYTES } from '../../shared/certificate-registry';
 import { certificateSnapshotSchema } from '../../shared/certificates';
 import { renderCertificatePdf } from '../../server/certificates/pdf/render-certificate';
 import { ensureInstituteSigningIdentity, signPdf } from '../../server/certificates/pdf/signing';
@@ -68,6 +69,17 @@ beforeAll(async () => {
 afterAll(async () => {
   await t?.close();
   rmSync(work, { recursive: true, force: true });
+});
+
+describe('demo scenario', () => {
+  it('the seed certified one accepted demo campaign, signed with the key this app pins', async () => {
+    const seeded: { number: string; campaign_id: string }[] = await t.ds.query(`SELECT number, campaign_id FROM certificate ORDER BY number`);
+    expect(seeded).toHaveLength(1);
+    const [campaign] = await t.ds.query(`SELECT state FROM campaign WHERE id = $1`, [seeded[0].campaign_id]);
+    expect(campaign.state).toBe('certified');
+    const res = await verifyFile(await download(seeded[0].number));
+    expect(res.body.verdict).toBe('valid');
+  });
 });
 
 describe('issuing', () => {
@@ -188,13 +200,15 @@ describe('issuing', () => {
     expect(JSON.stringify(wrongDigest.body)).not.toContain(sha256(pdf));
   });
 
-  it('refuses a malformed query and an empty upload with field paths', async () => {
+  it('refuses a malformed query, an empty upload and an oversized one', async () => {
     const bad = await request(t.app).get('/api/v1/certificates/verify').query({ number: 'XYZ', sha256: '12' });
     expect(bad.status).toBe(400);
     expect(bad.body.issues.map((i: { path: string }) => i.path).sort()).toEqual(['query.number', 'query.sha256']);
     const empty = await request(t.app).post('/api/v1/certificates/verify').field('note', 'no file');
     expect(empty.status).toBe(400);
     expect(empty.body.issues[0].path).toBe('body.file');
+    const huge = await verifyFile(Buffer.alloc(VERIFY_UPLOAD_LIMIT_BYTES + 1024, 0x20));
+    expect(huge.status).toBe(413);
   });
 
   it('pdfsig (poppler-utils) reports the downloaded file as validly signed over the whole document', () => {
