@@ -63,8 +63,15 @@ function science<T>(fn: () => T, fieldMap: Record<string, string>, fallback: str
   }
 }
 
-function isUniqueViolation(e: unknown): boolean {
-  return (e as { code?: string })?.code === '23505' || (e as { driverError?: { code?: string } })?.driverError?.code === '23505';
+/** Turns PostgreSQL's unique violation (23505) on a name into a 400 on body.name. */
+async function uniqueName<T>(work: Promise<T>, message: string): Promise<T> {
+  try {
+    return await work;
+  } catch (e) {
+    const code = (e as { code?: string })?.code ?? (e as { driverError?: { code?: string } })?.driverError?.code;
+    if (code === '23505') throw new Invalid(message, [{ path: 'body.name', message: 'already used' }]);
+    throw e;
+  }
 }
 
 // ---------- DTOs ----------
@@ -298,27 +305,21 @@ export function createRegistryService(dataSource: DataSource) {
         const pos = converted(body.crs, body.coordinates);
         const zeta = await quasigeoidFor(m, body.quasigeoid, pos.latitudeDeg, pos.longitudeDeg);
         const repo = m.getRepository(SiteEntity);
-        let saved: SiteRow;
-        try {
-          saved = await repo.save(
-            repo.create({
-              instituteId,
-              name: body.name,
-              referencePoint: body.referencePoint,
-              crs: resolveCrs(body.crs).code,
-              coordinates: body.coordinates,
-              ellipsoidalHeightUncertaintyM: body.ellipsoidalHeightUncertaintyM,
-              ...pos,
-              ...zeta,
-              benchmarkCode: body.benchmarkTie?.benchmarkCode ?? null,
-              tieHeightDifferenceM: body.benchmarkTie?.heightDifferenceM ?? null,
-              tieUncertaintyM: body.benchmarkTie?.uncertaintyM ?? null,
-            }),
-          );
-        } catch (e) {
-          if (isUniqueViolation(e)) throw new Invalid('A site of this institute already has that name.', [{ path: 'body.name', message: 'already used in this institute' }]);
-          throw e;
-        }
+        const saved = await uniqueName(repo.save(
+          repo.create({
+            instituteId,
+            name: body.name,
+            referencePoint: body.referencePoint,
+            crs: resolveCrs(body.crs).code,
+            coordinates: body.coordinates,
+            ellipsoidalHeightUncertaintyM: body.ellipsoidalHeightUncertaintyM,
+            ...pos,
+            ...zeta,
+            benchmarkCode: body.benchmarkTie?.benchmarkCode ?? null,
+            tieHeightDifferenceM: body.benchmarkTie?.heightDifferenceM ?? null,
+            tieUncertaintyM: body.benchmarkTie?.uncertaintyM ?? null,
+          }),
+        ), 'A site of this institute already has that name.');
         await recordAudit(m, actor, { action: 'site.created', entityType: 'site', entityId: saved.id, instituteId, details: { name: body.name, crs: body.crs, coordinates: body.coordinates } });
         return siteDto(m, await loadSite(m, saved.id));
       });
@@ -346,12 +347,7 @@ export function createRegistryService(dataSource: DataSource) {
           s.tieHeightDifferenceM = body.benchmarkTie?.heightDifferenceM ?? null;
           s.tieUncertaintyM = body.benchmarkTie?.uncertaintyM ?? null;
         }
-        try {
-          await m.getRepository(SiteEntity).save(s);
-        } catch (e) {
-          if (isUniqueViolation(e)) throw new Invalid('A site of this institute already has that name.', [{ path: 'body.name', message: 'already used in this institute' }]);
-          throw e;
-        }
+        await uniqueName(m.getRepository(SiteEntity).save(s), 'A site of this institute already has that name.');
         const after = await siteDto(m, await loadSite(m, id));
         await recordAudit(m, actor, { action: 'site.updated', entityType: 'site', entityId: id, instituteId: s.instituteId, details: { changed: Object.keys(body), before: { grs80: before.grs80, quasigeoid: before.quasigeoid }, after: { grs80: after.grs80, quasigeoid: after.quasigeoid } } });
         return after;
@@ -410,13 +406,7 @@ export function createRegistryService(dataSource: DataSource) {
         if (!site) throw new Invalid('Unknown site.', [{ path: 'body.siteId', message: 'no such site' }]);
         requireSameInstitute(actor, site.instituteId);
         const repo = m.getRepository(ClockEntity);
-        let clock: ClockRow;
-        try {
-          clock = await repo.save(repo.create({ siteId: site.id, instituteId: site.instituteId, name: body.name, kind: body.kind, species: body.species, nominalFrequencyHz: body.nominalFrequencyHz, notes: body.notes, currentBudgetVersion: 1 }));
-        } catch (e) {
-          if (isUniqueViolation(e)) throw new Invalid('A clock with this name exists.', [{ path: 'body.name', message: 'already used' }]);
-          throw e;
-        }
+        const clock = await uniqueName(repo.save(repo.create({ siteId: site.id, instituteId: site.instituteId, name: body.name, kind: body.kind, species: body.species, nominalFrequencyHz: body.nominalFrequencyHz, notes: body.notes, currentBudgetVersion: 1 })), 'A clock with this name exists.');
         await m.getRepository(ClockBudgetVersionEntity).insert({ clockId: clock.id, version: 1, rows: body.budget, ...budgetTotals(body.budget), comment: 'first version', createdByUserId: actor.userId, createdBy: actor.displayName });
         await recordAudit(m, actor, { action: 'clock.created', entityType: 'clock', entityId: clock.id, instituteId: site.instituteId, details: { name: body.name, species: body.species, nominalFrequencyHz: body.nominalFrequencyHz, budgetRows: body.budget.length } });
         const fresh = await loadClock(m, clock.id);
@@ -434,12 +424,7 @@ export function createRegistryService(dataSource: DataSource) {
         requireSameInstitute(actor, c.instituteId);
         const before = { name: c.name, kind: c.kind, species: c.species, nominalFrequencyHz: c.nominalFrequencyHz, notes: c.notes };
         const patch = Object.fromEntries(Object.entries(body).filter(([, v]) => v !== undefined));
-        try {
-          await m.getRepository(ClockEntity).update({ id }, patch);
-        } catch (e) {
-          if (isUniqueViolation(e)) throw new Invalid('A clock with this name exists.', [{ path: 'body.name', message: 'already used' }]);
-          throw e;
-        }
+        await uniqueName(m.getRepository(ClockEntity).update({ id }, patch), 'A clock with this name exists.');
         await recordAudit(m, actor, { action: 'clock.updated', entityType: 'clock', entityId: id, instituteId: c.instituteId, details: { before, after: patch } });
         const fresh = await loadClock(m, id);
         return toClockDto(fresh, await currentBudget(m, fresh));
@@ -533,13 +518,7 @@ export function createRegistryService(dataSource: DataSource) {
         if (!b) throw new Invalid('Unknown site.', [{ path: 'body.siteBId', message: 'no such site' }]);
         requireLinkInstitute(actor, a, b);
         const repo = m.getRepository(FibreLinkEntity);
-        let saved: FibreLinkRow;
-        try {
-          saved = await repo.save(repo.create({ name: body.name, siteAId: a.id, siteBId: b.id, fibreLengthKm: body.fibreLengthKm, fractionalUncertainty: body.fractionalUncertainty, notes: body.notes }));
-        } catch (e) {
-          if (isUniqueViolation(e)) throw new Invalid('A link with this name exists.', [{ path: 'body.name', message: 'already used' }]);
-          throw e;
-        }
+        const saved = await uniqueName(repo.save(repo.create({ name: body.name, siteAId: a.id, siteBId: b.id, fibreLengthKm: body.fibreLengthKm, fractionalUncertainty: body.fractionalUncertainty, notes: body.notes })), 'A link with this name exists.');
         await recordAudit(m, actor, { action: 'link.created', entityType: 'fibre-link', entityId: saved.id, instituteId: actor.instituteId, details: { ...body } });
         return toLinkDto(await loadLink(m, saved.id));
       });
@@ -552,12 +531,7 @@ export function createRegistryService(dataSource: DataSource) {
         requireLinkInstitute(actor, l.siteA!, l.siteB!);
         const before = { name: l.name, fibreLengthKm: l.fibreLengthKm, fractionalUncertainty: l.fractionalUncertainty, notes: l.notes };
         const patch = Object.fromEntries(Object.entries(body).filter(([, v]) => v !== undefined));
-        try {
-          await m.getRepository(FibreLinkEntity).update({ id }, patch);
-        } catch (e) {
-          if (isUniqueViolation(e)) throw new Invalid('A link with this name exists.', [{ path: 'body.name', message: 'already used' }]);
-          throw e;
-        }
+        await uniqueName(m.getRepository(FibreLinkEntity).update({ id }, patch), 'A link with this name exists.');
         await recordAudit(m, actor, { action: 'link.updated', entityType: 'fibre-link', entityId: id, instituteId: actor.instituteId, details: { before, after: patch } });
         return toLinkDto(await loadLink(m, id));
       });

@@ -159,6 +159,9 @@ describe('clocks and budget versions', () => {
     expect(paths(tooLong)).toEqual(['body.nominalFrequencyHz']);
     const badRow = await as('scl').post('/api/v1/clocks', { siteId, name: 'Bad3', kind: 'sundial', species: 'Sr87', nominalFrequencyHz: '1', budget: [{ effect: '', correction: 0, uncertainty: -1, type: 'C' }] });
     expect(paths(badRow)).toEqual(expect.arrayContaining(['body.kind', 'body.budget.0.effect', 'body.budget.0.uncertainty', 'body.budget.0.type']));
+    const taken = await as('scl').post('/api/v1/clocks', { siteId, name: 'SCL-Sr1', kind: 'optical_lattice', species: 'Sr87', nominalFrequencyHz: '1' });
+    expect(taken.status).toBe(400);
+    expect(paths(taken)).toEqual(['body.name']);
   });
 
   it('every budget change is a new immutable version; the history keeps them all', async () => {
