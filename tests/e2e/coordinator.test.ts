@@ -75,7 +75,9 @@ describe('coordinator journey', () => {
     await page.waitForTimeout(500);
     await screenshot(page, 'coordinator-map-whole');
     await page.getByLabel('Show').selectOption('Coastal Datum 1987');
-    await page.getByRole('button', { name: 'Benchmark SCL-BM1' }).click();
+    // Keyboard selection: every map feature is focusable and opens with Enter.
+    await page.getByRole('button', { name: 'Benchmark SCL-BM1' }).focus();
+    await page.keyboard.press('Enter');
     await expect(page.getByTestId('map-selection').textContent()).resolves.toContain('Saltmarsh laboratory pillar');
     await page.waitForTimeout(500);
     await screenshot(page, 'coordinator-map');
