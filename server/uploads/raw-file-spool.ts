@@ -3,14 +3,17 @@ import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import type pg from 'pg';
+import { from as copyFrom } from 'pg-copy-streams';
+import { finishCopy } from './ingest';
 
-// The raw file is kept as a PostgreSQL large object written in the upload's transaction, so a rejected or
-// interrupted upload leaves nothing behind. While the rows stream into COPY (which occupies the connection), the
-// raw bytes go to a temporary file that is unlinked at once: the open descriptor is its only name, so even a
+// The raw file is kept in ratio_series_file, written by COPY in the upload's transaction, so a rejected or
+// interrupted upload leaves nothing behind. While the rows stream into their COPY (which occupies the connection),
+// the raw bytes go to a temporary file that is unlinked at once: the open descriptor is its only name, so even a
 // killed process leaves no file.
-const LO_CHUNK = 4 << 20;
+const PART_BYTES = 1 << 20;
+const COPY_FILE_SQL = 'COPY ratio_series_file (series_id, part, bytes) FROM STDIN (FORMAT binary)';
 
-export type Spool = { write(chunk: Buffer): void; size(): number; toLargeObject(client: pg.ClientBase): Promise<number>; close(): void };
+export type Spool = { write(chunk: Buffer): void; size(): number; copyInto(client: pg.ClientBase, seriesId: string): Promise<number>; close(): void };
 
 export function openSpool(): Spool {
   const file = path.join(os.tmpdir(), `chronolevel-upload-${crypto.randomUUID()}`);
@@ -25,16 +28,28 @@ export function openSpool(): Spool {
       size += chunk.length;
     },
     size: () => size,
-    async toLargeObject(client) {
-      const { rows } = await client.query<{ oid: number }>('SELECT lo_create(0) AS oid');
-      const oid = Number(rows[0].oid);
-      const buf = Buffer.allocUnsafe(Math.min(LO_CHUNK, Math.max(size, 1)));
-      for (let pos = 0; pos < size; ) {
-        const n = fs.readSync(fd, buf, 0, Math.min(buf.length, size - pos), pos);
-        await client.query('SELECT lo_put($1::oid, $2::bigint, $3::bytea)', [oid, pos, buf.subarray(0, n)]);
+    /** Copies the spooled bytes into ratio_series_file as binary COPY rows of ≤ 1 MiB; returns the number of parts. */
+    async copyInto(client, seriesId) {
+      const copy = client.query(copyFrom(COPY_FILE_SQL));
+      const uuid = Buffer.from(seriesId.replace(/-/g, ''), 'hex');
+      copy.write(Buffer.concat([Buffer.from('PGCOPY\n\xff\r\n\0', 'latin1'), Buffer.alloc(8)]));
+      let part = 0;
+      for (let pos = 0; pos < size; part++) {
+        const n = Math.min(PART_BYTES, size - pos);
+        const row = Buffer.allocUnsafe(2 + 4 + 16 + 4 + 4 + 4 + n);
+        row.writeInt16BE(3, 0);
+        row.writeInt32BE(16, 2);
+        uuid.copy(row, 6);
+        row.writeInt32BE(4, 22);
+        row.writeInt32BE(part, 26);
+        row.writeInt32BE(n, 30);
+        let read = 0;
+        while (read < n) read += fs.readSync(fd, row, 34 + read, n - read, pos + read);
         pos += n;
+        if (!copy.write(row)) await new Promise((r) => copy.once('drain', r));
       }
-      return oid;
+      await finishCopy(copy);
+      return part;
     },
     close() {
       if (!closed) fs.closeSync(fd);

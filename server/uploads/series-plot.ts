@@ -42,6 +42,18 @@ export function bucketsFromOverview(overview: Float64Array, fromMjd: number, buc
   return inRange >= 4 * count ? out : null;
 }
 
+// A series never changes once stored, so its overview can be kept in memory (the few most recently plotted).
+const overviewCache = new Map<string, Float64Array>();
+async function overviewOf(ds: DataSource, id: string): Promise<Float64Array> {
+  const hit = overviewCache.get(id);
+  if (hit) return hit;
+  const [{ overview }] = (await ds.query('SELECT overview FROM ratio_series WHERE id = $1', [id])) as { overview: Buffer }[];
+  const blocks = new Float64Array(overview.buffer.slice(overview.byteOffset, overview.byteOffset + overview.byteLength));
+  overviewCache.set(id, blocks);
+  if (overviewCache.size > 16) overviewCache.delete(overviewCache.keys().next().value!);
+  return blocks;
+}
+
 export async function decimateSeries(
   ds: DataSource,
   s: { id: string; firstMjd: number; lastMjd: number; rowCount: number },
@@ -52,8 +64,7 @@ export async function decimateSeries(
   if (!(toMjd > fromMjd)) toMjd = fromMjd + 1 / 86_400;
   const count = q.points;
   const bucketDays = (toMjd - fromMjd) / count;
-  const [{ overview }] = (await ds.query('SELECT overview FROM ratio_series WHERE id = $1', [s.id])) as { overview: Buffer }[];
-  const blocks = new Float64Array(overview.buffer.slice(overview.byteOffset, overview.byteOffset + overview.byteLength));
+  const blocks = await overviewOf(ds, s.id);
   const fromOverview = bucketsFromOverview(blocks, fromMjd, bucketDays, count);
   if (fromOverview) return { seriesId: s.id, fromMjd, toMjd, bucketDays, sampleCount: s.rowCount, unit: '1', buckets: fromOverview };
   const rows = (await ds.query(

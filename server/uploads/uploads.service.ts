@@ -133,16 +133,16 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
       throw new Conflict('This file was already uploaded to this campaign.', { existingUploadId: id, existingUpload: `/api/v1/uploads/${id}` });
     }
     uploadProgress.update(input.uploadId, { phase: 'storing' });
-    const oid = await spool.toLargeObject(client);
     const storedMapping = { ...mapping, delimiter: summary.delimiter, hasHeader: summary.hasHeader, header: summary.header };
     const { rows } = await client.query<SeriesDbRow>(
       `INSERT INTO ratio_series (id, campaign_id, file_name, sha256, byte_size, row_count, valid_count, first_mjd, last_mjd,
-         uptime_fraction, tau0_seconds, mapping, raw_file_oid, invented, created_by_user_id, created_by, overview)
-       VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12,$13,$14,$15,$16,$17) RETURNING ${SERIES_COLUMNS}`,
+         uptime_fraction, tau0_seconds, mapping, invented, created_by_user_id, created_by, overview)
+       VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12,$13,$14,$15,$16) RETURNING ${SERIES_COLUMNS}`,
       [seriesId, input.campaign.id, input.fileName.slice(0, 250), summary.sha256, summary.byteSize, summary.rowCount, summary.validCount,
-        summary.firstMjd, summary.lastMjd, summary.uptimeFraction, summary.tau0Seconds, JSON.stringify(storedMapping), oid,
+        summary.firstMjd, summary.lastMjd, summary.uptimeFraction, summary.tau0Seconds, JSON.stringify(storedMapping),
         input.invented ?? false, actor?.userId ?? null, actorLabel(actor), Buffer.from(summary.overview.buffer, summary.overview.byteOffset, summary.overview.byteLength)],
     );
+    await spool.copyInto(client, seriesId);
     return rows[0];
   } finally {
     spool.close();

@@ -7,8 +7,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { createTestApp, tokenFor, type TestApp } from '../helpers/test-app';
 import { insertUploadCampaign } from '../helpers/uploads-campaign';
 
-// The server process dies (SIGKILL) in the middle of a large upload: afterwards no series, no sample, no raw file
-// (large object) and no spool file of that upload may exist.
+// The server process dies (SIGKILL) in the middle of a large upload: afterwards no series, no sample, no raw file and no spool file of that upload may exist.
 let t: TestApp;
 let child: ChildProcess | null = null;
 
@@ -38,7 +37,7 @@ describe('server killed during an upload', () => {
     }));
     const spoolsBefore = spoolFiles();
     const countsSql = `SELECT (SELECT count(*)::int FROM ratio_series) AS series, (SELECT count(*)::int FROM ratio_sample) AS samples,
-      (SELECT count(*)::int FROM pg_largeobject_metadata) AS files`;
+      (SELECT count(*)::int FROM ratio_series_file) AS files`;
     const [before] = await t.ds.query(countsSql);
     const uploadId = crypto.randomUUID();
     const boundary = `----kill${uploadId}`;

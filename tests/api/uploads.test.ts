@@ -24,7 +24,7 @@ function upload(csv: string | Buffer, fields: Record<string, string> = mapping, 
 async function stored() {
   const [s] = await t.ds.query('SELECT count(*)::int AS n FROM ratio_series');
   const [r] = await t.ds.query('SELECT count(*)::int AS n FROM ratio_sample');
-  const [lo] = await t.ds.query('SELECT count(*)::int AS n FROM pg_largeobject_metadata');
+  const [lo] = await t.ds.query('SELECT count(DISTINCT series_id)::int AS n FROM ratio_series_file');
   return { series: s.n as number, samples: r.n as number, files: lo.n as number };
 }
 
@@ -85,7 +85,7 @@ describe('upload', () => {
     expect(rows.map((r) => r.y)).toEqual([new Decimal(ratio21).minus(1).toNumber(), 0, new Decimal('0.99999999999999998766').minus(1).toNumber()]);
     expect(rows[0].y).toBe(1.234e-17);
     expect(rows.map((r) => r.valid)).toEqual([true, false, true]);
-    const [{ raw }] = await t.ds.query('SELECT lo_get(raw_file_oid) AS raw FROM ratio_series WHERE id = $1', [res.body.id]);
+    const [{ raw }] = await t.ds.query('SELECT string_agg(bytes, \'\' ORDER BY part) AS raw FROM ratio_series_file WHERE series_id = $1', [res.body.id]);
     expect(Buffer.from(raw).toString('utf8')).toBe(csv);
     const audit = await t.ds.query("SELECT details FROM audit_event WHERE action = 'campaign.series-uploaded' AND entity_id = $1", [res.body.id]);
     expect(audit[0].details).toMatchObject({ campaignId, sha256: sha, rows: 3 });
@@ -199,7 +199,7 @@ describe('size limit', () => {
     try {
       const token = await tokenFor(small, 'ines.varga@saltmarsh-lab.invalid');
       const id = await insertUploadCampaign(small.ds);
-      const count = async () => (await small.ds.query('SELECT (SELECT count(*)::int FROM ratio_sample) AS n, (SELECT count(*)::int FROM pg_largeobject_metadata) AS f'))[0];
+      const count = async () => (await small.ds.query('SELECT (SELECT count(*)::int FROM ratio_sample) AS n, (SELECT count(*)::int FROM ratio_series_file) AS f'))[0];
       const before = await count();
       const res = await request(small.app).post(`/api/v1/campaigns/${id}/uploads`).set('authorization', `Bearer ${token}`)
         .field(mapping).attach('file', Buffer.from(goodCsv(100)), 'big.csv');

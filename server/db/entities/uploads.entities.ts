@@ -1,6 +1,6 @@
 import { EntitySchema } from 'typeorm';
 
-// Uploaded ratio series (the samples live in ratio_sample and are read and written with SQL/COPY only).
+// Uploaded ratio series (samples in ratio_sample and the raw file in ratio_series_file are read and written with SQL/COPY only).
 export interface RatioSeriesRow {
   id: string;
   campaignId: string;
@@ -14,7 +14,6 @@ export interface RatioSeriesRow {
   uptimeFraction: number;
   tau0Seconds: number;
   mapping: Record<string, unknown>;
-  rawFileOid: string;
   invented: boolean;
   createdByUserId: string | null;
   createdBy: string;
@@ -37,7 +36,6 @@ export const RatioSeriesEntity = new EntitySchema<RatioSeriesRow>({
     uptimeFraction: { name: 'uptime_fraction', type: 'float8' },
     tau0Seconds: { name: 'tau0_seconds', type: 'float8' },
     mapping: { type: 'jsonb' },
-    rawFileOid: { name: 'raw_file_oid', type: 'bigint' },
     invented: { type: 'boolean', default: false },
     createdByUserId: { name: 'created_by_user_id', type: 'uuid', nullable: true },
     createdBy: { name: 'created_by', type: 'text' },
