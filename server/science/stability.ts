@@ -353,7 +353,19 @@ export function gridFromEpochs(epochsMjd: Float64Array, y: Float64Array, valid?:
     const spacings = new Float64Array(n - 1);
     for (let i = 1; i < n; i++) spacings[i - 1] = (epochsMjd[i] - epochsMjd[i - 1]) * 86_400;
     spacings.sort();
-    tau0 = spacings[Math.floor((n - 1) / 2)];
+    const median = spacings[Math.floor((n - 1) / 2)];
+    // Epochs in files are rounded (MJD to 1e-9 d ≈ 86 µs), so one spacing is biased and the bias grows with the slot
+    // index; the mean of the near-regular spacings telescopes to the span of each run and is unbiased.
+    let sum = 0;
+    let count = 0;
+    for (let i = 1; i < n; i++) {
+      const d = (epochsMjd[i] - epochsMjd[i - 1]) * 86_400;
+      if (Math.abs(d - median) <= 0.25 * median) {
+        sum += d;
+        count++;
+      }
+    }
+    tau0 = count > 0 ? sum / count : median;
   }
   if (!(tau0 > 0)) throw new ScienceInputError('tau0Seconds', 'must be positive (are there repeated epochs?)');
   const startMjd = epochsMjd[0];

@@ -4,6 +4,8 @@
 import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
+import { Readable } from 'node:stream';
+import type pg from 'pg';
 // @ts-expect-error plain ESM helper shared with `npm start`
 import { freePort, startCluster } from '../../scripts/lib/postgres.mjs';
 import { openDatabase } from '../../server/db/data-source';
@@ -11,12 +13,30 @@ import { getCampaignForResult } from '../../server/campaigns/campaigns.service';
 import { computeResultBody } from '../../server/results/compute-result';
 import { computeCampaignResult, loadCampaignSamples } from '../../server/results/results.service';
 import { seedDemo } from '../../seeds/demo';
+import { loadCampaignForUpload, storeSeries } from '../../server/uploads/uploads.service';
 
 const ROWS = Number(process.env.RECOMPUTE_ROWS ?? 1_000_000);
 const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'chronolevel-recompute-bench-'));
 process.env.PG_FSYNC ??= 'off';
 
 const seconds = (t0: number) => ((performance.now() - t0) / 1000).toFixed(3);
+
+/** Invented series: an offset plus white FM (σ = 3e-16 at 1 s, Park–Miller + Box–Muller), every 997th sample flagged, every 50 000th missing. */
+function* csvRows(): Generator<Buffer> {
+  let seed = 424_242;
+  const rnd = () => (seed = (seed * 16_807) % 2_147_483_647) / 2_147_483_647;
+  let chunk = 'mjd,y,flag\n';
+  for (let i = 0; i < ROWS; i++) {
+    if (i % 50_000 === 49_999) continue;
+    const y = 6.4321e-14 + 3e-16 * Math.sqrt(-2 * Math.log(rnd())) * Math.cos(2 * Math.PI * rnd());
+    chunk += `${(61_416 + (i + 0.5) / 86_400).toFixed(9)},${y.toExponential(12)},${i % 997 === 0 ? 0 : 1}\n`;
+    if (chunk.length > 1 << 16) {
+      yield Buffer.from(chunk);
+      chunk = '';
+    }
+  }
+  yield Buffer.from(chunk);
+}
 
 async function main() {
   const port = await freePort();
@@ -26,18 +46,23 @@ async function main() {
     await seedDemo(ds);
     const [{ id: campaignId }] = await ds.query("SELECT id FROM campaign WHERE state = 'draft' AND name LIKE 'SCL–HMO%' LIMIT 1");
     let t = performance.now();
-    const [{ id: seriesId }] = await ds.query(
-      `INSERT INTO ratio_series (id, campaign_id, file_name, sha256, byte_size, row_count, valid_count, first_mjd, last_mjd, uptime_fraction, tau0_seconds, mapping, raw_file_oid, invented, created_by)
-       VALUES (gen_random_uuid(), $1, 'bench.csv', repeat('ab', 32), 1, $2, $2, 61416, 61416 + ($2 - 1) / 86400.0, 1, 1, '{}', lo_from_bytea(0, '\\x00'::bytea), true, 'bench') RETURNING id`,
-      [campaignId, ROWS],
-    );
-    // White FM (uniform noise scaled to σ = 3e-16) on an invented offset; every 997th sample flagged, every 50 000th missing.
-    await ds.query(
-      `INSERT INTO ratio_sample (series_id, mjd, y, valid)
-       SELECT $1, 61416 + i / 86400.0, 6.4321e-14 + 3e-16 * sqrt(12) * (random() - 0.5), i % 997 <> 0
-         FROM generate_series(0, $2 - 1) AS i WHERE i % 50000 <> 49999`,
-      [seriesId, ROWS],
-    );
+    // Stored through the uploads' own write path (COPY + raw file + series row in one transaction), as a lab upload would be.
+    const campaignForUpload = (await loadCampaignForUpload(ds, campaignId))!;
+    const qr = ds.createQueryRunner();
+    await qr.connect();
+    const client = (qr as unknown as { databaseConnection: pg.PoolClient }).databaseConnection;
+    let seriesId = '';
+    try {
+      await client.query('BEGIN');
+      const row = await storeSeries(client, null, {
+        campaign: campaignForUpload, fileName: 'bench-series.csv', source: Readable.from(csvRows()), limitBytes: 1 << 30, invented: true,
+        fields: { epochColumn: '1', epochKind: 'mjd', valueColumn: '2', valueKind: 'offset', flagColumn: '3', hasHeader: 'true' },
+      });
+      seriesId = row.id;
+      await client.query('COMMIT');
+    } finally {
+      await qr.release();
+    }
     await ds.query('ANALYZE ratio_sample');
     console.log(`stored ${ROWS} samples in ${seconds(t)} s (set-up, not part of the figure)`);
 
@@ -47,8 +72,9 @@ async function main() {
     console.log(`load ${samples.y.length} samples from PostgreSQL: ${seconds(t)} s`);
     const campaign = await getCampaignForResult(ds.manager, campaignId);
     t = performance.now();
-    const body = computeResultBody({ campaign, files: [{ seriesId, name: 'bench.csv', sha256: 'ab'.repeat(32), sampleCount: ROWS }], samples });
+    const body = computeResultBody({ campaign, files: [{ seriesId, name: 'bench-series.csv', sha256: 'ab'.repeat(32), sampleCount: ROWS }], samples });
     console.log(`compute (tides at both sites, grid, stability, mean, budget, decimation): ${seconds(t)} s — ${body.stability.points.length} τ values, y = ${body.fractionalOffset.y.toExponential(6)} ± ${body.fractionalOffset.standardUncertainty.toExponential(2)}`);
+    console.log(`grid: ${body.samples.note}`);
 
     for (let run = 1; run <= 3; run++) {
       t = performance.now();

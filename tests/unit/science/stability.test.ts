@@ -259,3 +259,15 @@ describe('mean with statistical uncertainty', () => {
     expect(r.validSamples).toBe(11);
   });
 });
+
+describe('gridFromEpochs with rounded epochs', () => {
+  it('infers τ0 without bias when epochs are written as MJD with 9 decimals (≈ 86 µs steps)', () => {
+    // Common practice in lab files; a single rounded spacing is off by up to 86 µs, which over 2e5 slots would exceed τ0/4.
+    const n = 200_000;
+    const epochs = Float64Array.from({ length: n }, (_, i) => Number((61_416 + (i + 0.5) / 86_400).toFixed(9)));
+    const grid = gridFromEpochs(epochs, new Float64Array(n));
+    expect(Math.abs(grid.tau0Seconds - 1)).toBeLessThan(1e-8);
+    expect(grid.missingEpochs).toBe(0);
+    expect(grid.y.length).toBe(n);
+  });
+});
