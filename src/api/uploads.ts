@@ -84,7 +84,7 @@ export function sendUpload(qc: QueryClient, campaignId: string, file: File, mapp
     };
     xhr.onload = () => {
       polling = false;
-      let body: unknown = null;
+      let body: unknown;
       try {
         body = JSON.parse(xhr.responseText);
       } catch {
