@@ -23,8 +23,11 @@ const cluster = await startCluster({ dataDir: path.join(tmp, 'pg'), port: await 
 try {
   const config = loadConfig({ DATABASE_URL: cluster.url, SECRETS_DIR: path.join(tmp, 'secrets'), SESSION_SECRET: 'bench-session-secret-0123456789', LOG_LEVEL: 'silent' });
   process.env.SECRETS_DIR = config.secretsDir;
+  const t0 = performance.now();
+  await instituteSigningIdentity(config, { commonName: 'Bench signing', organization: 'Bench' });
+  const keyMs = performance.now() - t0;
   const ds = await openDatabase(cluster.url);
-  await seedDemo(ds);
+  await seedDemo(ds); // also issues the demo certificate when the seeds hold an accepted campaign with series
   const coordinator = await ds.getRepository(UserEntity).findOneByOrFail({ role: 'coordinator' });
   const actor = { userId: coordinator.id, email: coordinator.email, displayName: coordinator.displayName, role: coordinator.role, instituteId: coordinator.instituteId, via: 'token' as const };
   const institutes = await ds.query(`SELECT id FROM institute WHERE kind = 'laboratory' ORDER BY code`);
@@ -36,10 +39,6 @@ try {
   const sourceFor = (campaignId: string): CertificateSource => ({
     campaignId, campaignLabel: 'Bench campaign', campaignState: 'accepted', instituteAId: institutes[0].id, instituteBId: institutes[1].id, resultId: null, body,
   });
-
-  const t0 = performance.now();
-  await instituteSigningIdentity(config, { commonName: 'Bench signing', organization: 'Bench' });
-  const keyMs = performance.now() - t0;
 
   const issueOnce = async () => {
     const campaignId = randomUUID();
@@ -61,7 +60,7 @@ try {
   }
   const sorted = [...times].sort((a, b) => a - b);
   const median = sorted[Math.floor(runs / 2)];
-  console.log(`signing identity (first use, RSA-3072 key generation or load): ${keyMs.toFixed(0)} ms`);
+  console.log(`signing identity (first use: RSA-3072 key generation and self-signed certificate): ${keyMs.toFixed(0)} ms`);
   console.log(`issue certificate (serial + snapshot + render + sign + store + audit + mail, one transaction): median ${median.toFixed(1)} ms, min ${sorted[0].toFixed(1)} ms, max ${sorted[runs - 1].toFixed(1)} ms (${runs} runs; target < 1000 ms)`);
   console.log(`signed file ${(bytes / 1024).toFixed(1)} KiB`);
   await ds.destroy();
