@@ -5,6 +5,7 @@ import { demoInstitutes, demoPeople } from './people';
 import { certificatesSeeder } from './certificates.seed';
 import { networkSeeder } from './network.seed';
 import { registrySeeder } from './registry.seed';
+import { uploadsSeeder } from './uploads.seed';
 
 // Loads the invented demo scenario into an empty database. Every name, place and number here is made up.
 // Feature seeders run after the people, in order; each receives the transaction and the institutes by code.
@@ -45,6 +46,7 @@ export async function seedDemo(ds: DataSource, log: (msg: string) => void = () =
 }
 
 featureSeeders.push(registrySeeder);
+featureSeeders.push(uploadsSeeder);
 // The levelling network goes last: its stored demo adjustment run includes the sites' ties when the registry is seeded.
 featureSeeders.push(networkSeeder);
 // The demo certificate needs accepted campaigns with uploaded series (and their results): after every other seed.

@@ -2,7 +2,8 @@ import { ApiTokenEntity, AuditEventEntity, InstituteEntity, MailOutboxEntity, Us
 import { CertificateEntity } from './certificates.entities';
 import { networkEntities } from './network.entities';
 import { registryEntities } from './registry.entities';
+import { RatioSeriesEntity } from './uploads.entities';
 import { resultsEntities } from './results.entities';
 
 // Every entity the data source knows. Feature entities are added here.
-export const entities = [InstituteEntity, UserEntity, ApiTokenEntity, AuditEventEntity, MailOutboxEntity, CertificateEntity, ...networkEntities, ...registryEntities, ...resultsEntities];
+export const entities = [InstituteEntity, UserEntity, ApiTokenEntity, AuditEventEntity, MailOutboxEntity, ...networkEntities, ...registryEntities, RatioSeriesEntity, ...resultsEntities, CertificateEntity];
