@@ -261,16 +261,16 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     if (delimiter === null) delimiter = detectDelimiter(text.split('\n').map((l) => l.replace(/\r$/, ''))) ?? ',';
     const d = delimiter;
     if (text.includes('\r')) text = text.replaceAll('\r\n', '\n');
-    let start = 0;
-    while (start < text.length) {
-      const nl = text.indexOf('\n', start);
-      const end = nl < 0 ? text.length : nl;
-      const l = text.slice(start, end);
+    const lines = text.split('\n');
+    // a chunk of complete lines ends with a newline: the empty piece after it is no line
+    const count = text.charCodeAt(text.length - 1) === 10 ? lines.length - 1 : lines.length;
+    const quotes = text.includes('"');
+    for (let i = 0; i < count; i++) {
+      const l = lines[i];
       lineNo++;
-      start = end + 1;
       const c0 = l.charCodeAt(0);
       if (l.length === 0 || ((c0 === 35 || c0 === 32 || c0 === 9) && isCommentOrBlank(l))) continue;
-      if (l.includes('"')) {
+      if (quotes && l.includes('"')) {
         let rec: string[];
         try {
           rec = (parseCsvSync(l, { delimiter: d, relax_column_count: true }) as string[][])[0] ?? [''];

@@ -104,6 +104,15 @@ describe('upload', () => {
     expect(res.body.tau0Seconds).toBeCloseTo(10.5, 5);
   });
 
+  it('reads quoted cells (through csv-parse) and refuses a quote left open', async () => {
+    const ok = await upload('"mjd";"ratio"\n"61102.0";"1.000000000000000001"\n61102.5;1.0\n', { epochColumn: '1', epochKind: 'mjd', valueColumn: '2', valueKind: 'ratio' });
+    expect(ok.status).toBe(201);
+    expect(ok.body).toMatchObject({ rowCount: 2, mapping: { delimiter: ';', hasHeader: true, header: ['mjd', 'ratio'] } });
+    const open = await upload('61103.0,"1.0\n61103.5,1.0"\n', { epochColumn: '1', epochKind: 'mjd', valueColumn: '2', valueKind: 'ratio' });
+    expect(open.status).toBe(400);
+    expect(open.body.issues[0]).toMatchObject({ line: 1, column: '2', message: expect.stringMatching(/quoted cell is malformed/) });
+  });
+
   it('answers the same file again with 409 and a pointer to the earlier upload', async () => {
     const csv = goodCsv(10, { start: 61200 });
     const first = await upload(csv);
