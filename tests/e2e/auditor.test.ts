@@ -93,6 +93,9 @@ describe('auditor journey', () => {
     await screenshot(page, 'certificates-list-withdrawn');
     await page.getByRole('link', { name: number }).click();
     await expect(page.getByTestId('revocation').textContent()).resolves.toContain('Link delay calibration found wrong after issue');
+    // The certificate page links to the public check with the number and SHA-256, which runs at once.
+    await page.getByRole('link', { name: 'Public check' }).click();
+    await expect(page.getByTestId('verify-result').getAttribute('data-verdict')).resolves.toBe('revoked');
 
     // The public page, as anyone who was sent the file would use it: no sign-in.
     const stranger = await (await browser.newContext()).newPage();

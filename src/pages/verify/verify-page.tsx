@@ -1,5 +1,5 @@
 import { zodResolver } from '@hookform/resolvers/zod';
-import { useState } from 'react';
+import { useEffect, useRef, useState } from 'react';
 import { useForm } from 'react-hook-form';
 import { Link, useSearchParams } from 'react-router';
 import { z } from 'zod';
@@ -86,6 +86,19 @@ export function VerifyPage() {
     defaultValues: { number: params.get('number') ?? '', sha256: params.get('sha256') ?? '' },
   });
   const current = last === 'file' ? verifyFile : last === 'number' ? verifyNumber : null;
+
+  // A link that carries both the number and the SHA-256 (from a certificate page) is checked straight away.
+  const autoChecked = useRef(false);
+  const { mutate: checkNumber } = verifyNumber;
+  useEffect(() => {
+    if (autoChecked.current) return;
+    autoChecked.current = true;
+    const parsed = verifyByNumberQuerySchema.safeParse({ number: params.get('number') ?? '', sha256: params.get('sha256') ?? '' });
+    if (parsed.success) {
+      setLast('number');
+      checkNumber(parsed.data);
+    }
+  }, [params, checkNumber]);
 
   return (
     <div className="min-h-screen bg-paper-50">
