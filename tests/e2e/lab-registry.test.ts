@@ -90,6 +90,8 @@ describe('lab staff registry journey', () => {
     await screenshot(page, 'lab-campaign-form');
     await page.getByRole('button', { name: 'Create draft' }).click();
     await page.getByTestId('campaign-title').waitFor();
+    await page.getByRole('button', { name: 'Save this reference ratio' }).waitFor();
+    await screenshot(page, 'lab-campaign-draft');
     await page.getByRole('button', { name: 'Submit for review' }).click();
     await page.getByTestId('campaign-timeline').getByText('Submitted').waitFor();
     expect(await page.getByTestId('campaign-state').first().textContent()).toBe('Submitted');

@@ -2,7 +2,7 @@ import { zodResolver } from '@hookform/resolvers/zod';
 import { useState } from 'react';
 import { useForm } from 'react-hook-form';
 import { Link, useParams } from 'react-router';
-import { campaignStateLabels, updateCampaignSchema, type Campaign, type UpdateCampaign } from '../../../shared/campaigns';
+import { campaignStateLabels, referenceRatioOverride, updateCampaignSchema, type Campaign, type ReferenceRatioOverride, type UpdateCampaign } from '../../../shared/campaigns';
 import { useCampaign, useCampaignAction, useUpdateCampaign, type CampaignAction } from '../../api/campaigns';
 import { Button, Caution, EmptyState, Field, inputClass, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
@@ -150,7 +150,33 @@ function CampaignEditor({ campaign: c }: { campaign: Campaign }) {
         </div>
         <div className="md:col-span-2"><FormError text={formError} /></div>
       </form>
+      <RatioOverrideForm campaign={c} />
     </Panel>
+  );
+}
+
+/** Replaces the default reference ratio; the justification is required and kept with the campaign. */
+function RatioOverrideForm({ campaign: c }: { campaign: Campaign }) {
+  const update = useUpdateCampaign();
+  const [formError, setFormError] = useState<string | null>(null);
+  const { register, handleSubmit, setError, formState: { errors } } = useForm<ReferenceRatioOverride>({
+    resolver: zodResolver(referenceRatioOverride) as never,
+    defaultValues: { value: c.referenceRatio.value, relativeUncertainty: c.referenceRatio.relativeUncertainty, justification: c.referenceRatio.justification ?? '' },
+  });
+  return (
+    <form className="mt-4 grid gap-3 border-t border-paper-200 pt-4 md:grid-cols-3" onSubmit={handleSubmit((body) => {
+      setFormError(null);
+      update.mutate({ id: c.id, body: { referenceRatio: body } }, {
+        onError: (e) => setFormError(applyServerErrors(e, (path, opt) => setError(String(path).replace(/^referenceRatio\./, '') as keyof ReferenceRatioOverride, opt), ['referenceRatio'])),
+      });
+    })}>
+      <p className="text-sm font-semibold text-ink-700 md:col-span-3">Use a different reference ratio ν_B/ν_A</p>
+      <Field label="Ratio (decimal)" error={errors.value?.message}><input className={`${inputClass} font-mono`} {...register('value')} /></Field>
+      <Field label="Relative uncertainty (k = 1)" error={errors.relativeUncertainty?.message}><input className={`${inputClass} font-mono`} {...register('relativeUncertainty', { setValueAs: (v: string) => (v === '' ? undefined : Number(v)) })} /></Field>
+      <Field label="Justification (required)" error={errors.justification?.message}><input className={inputClass} {...register('justification')} /></Field>
+      <div className="md:col-span-3"><FormError text={formError} /></div>
+      <div className="md:col-span-3"><Button type="submit" variant="quiet" disabled={update.isPending}>Save this reference ratio</Button></div>
+    </form>
   );
 }
 
