@@ -257,8 +257,18 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
   // Splits complete lines into cells. Plain lines are split on the delimiter directly; a line holding a quote goes
   // through csv-parse (quoted cells, doubled quotes). Splitting plain lines here instead of streaming every line
   // through csv-parse keeps a million rows within the ingest budget (csv-parse alone measured ~2 µs per row).
-  const feed = (text: string) => {
-    if (delimiter === null) delimiter = detectDelimiter(text.split('\n').map((l) => l.replace(/\r$/, ''))) ?? ',';
+  let held = '';
+  const feed = (input: string, final = false) => {
+    let text = input;
+    if (delimiter === null) {
+      // Wait for a few data lines (or the end of the file) before choosing the delimiter.
+      held += input;
+      const sample = held.split('\n').map((l) => l.replace(/\r$/, '')).filter((l) => !isCommentOrBlank(l));
+      if (!final && sample.length < 6 && held.length < 65_536) return;
+      delimiter = detectDelimiter(sample) ?? ',';
+      text = held;
+      held = '';
+    }
     const d = delimiter;
     if (text.includes('\r')) text = text.replaceAll('\r\n', '\n');
     const lines = text.split('\n');
@@ -301,7 +311,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     const bad = text.indexOf('\uFFFD');
     if (nul >= 0 || bad >= 0) {
       const at = nul >= 0 && (bad < 0 || nul < bad) ? nul : bad;
-      const where = locateInText(pending + text, pending.length + at);
+      const where = locateInText(held + pending + text, held.length + pending.length + at);
       report({ path: 'file', ...where, message: nul === at ? 'the file holds NUL bytes: it is a binary file, not CSV text' : 'the file is not valid UTF-8 text' });
       binaryProblem = true;
       continue;
@@ -322,7 +332,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
   }
   if (!tooLarge && !binaryProblem) {
     const rest = pending + decoder.decode();
-    if (rest.length > 0) feed(rest);
+    if (rest.length > 0 || held.length > 0) feed(rest, true);
   }
   flush();
   if (!tooLarge && !binaryProblem && rowCount === 0 && !failed) {
