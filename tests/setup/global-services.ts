@@ -5,6 +5,7 @@ import type { TestProject } from 'vitest/node';
 // @ts-expect-error plain ESM helper shared with `npm start`
 import { freePort, startCluster } from '../../scripts/lib/postgres.mjs';
 import { openDatabase } from '../../server/db/data-source';
+import { seedDemo } from '../../seeds/demo';
 import { startFakeIdp } from '../../server/dev/fake-idp';
 import { startFakeSmtp } from '../../server/dev/fake-smtp';
 
@@ -39,7 +40,11 @@ export default async function setup(project: TestProject) {
   await admin.query(`DROP DATABASE IF EXISTS ${templateDb}`);
   await admin.query(`CREATE DATABASE ${templateDb}`);
   const templateUrl = pgUrl!.replace(/\/[^/]*$/, `/${templateDb}`);
+  // The template carries the migrations and the invented demo scenario, so each test file's clone starts
+  // seeded without paying for it (the certificate seeder signs with the test secrets folder's key).
+  process.env.SECRETS_DIR = secretsDir;
   const tpl = await openDatabase(templateUrl);
+  await seedDemo(tpl);
   await tpl.destroy();
   await admin.destroy();
 
