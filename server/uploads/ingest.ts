@@ -349,8 +349,8 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     for (const k of keys) {
       acc += spacingCounts.get(k)!;
       if (acc * 2 >= total) {
-        // MJD written with 8–9 decimals resolves 0.9–0.09 ms: state τ0 to the millisecond once it exceeds 1 s.
-        tau0Seconds = k >= 1e6 ? Math.round(k / 1e3) / 1e3 : k / 1e6;
+        // MJD written with 8–9 decimals resolves 0.9–0.09 ms: state τ0 to the millisecond from 0.1 s up.
+        tau0Seconds = k >= 1e5 ? Math.round(k / 1e3) / 1e3 : k / 1e6;
         break;
       }
     }

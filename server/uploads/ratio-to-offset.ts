@@ -51,7 +51,50 @@ export function createRatioConverter(referenceRatio: string): (ratioText: string
     }
     return v;
   };
+  // Fast path for the usual plain form "ddd.ddd" (no sign, no exponent): digits go straight into the two exact
+  // halves without building strings. Anything else takes the general path below.
+  const plain = (text: string): RatioConversion | null => {
+    const n = text.length;
+    let dot = -1;
+    let first = -1; // index of the first non-zero digit
+    for (let i = 0; i < n; i++) {
+      const c = text.charCodeAt(i);
+      if (c === 46) {
+        if (dot >= 0) return null;
+        dot = i;
+      } else if (c < 48 || c > 57) return null;
+      else if (first < 0 && c !== 48) first = i;
+    }
+    if (dot <= 0 || dot === n - 1 || first < 0) return null;
+    const fracDigits = n - dot - 1;
+    const sig = n - first - (first < dot ? 1 : 0);
+    if (sig > MAX_RATIO_SIGNIFICANT_DIGITS) return { ok: false, message: `has ${sig} significant digits; at most ${MAX_RATIO_SIGNIFICANT_DIGITS} are accepted` };
+    const s = Math.max(fracDigits, r0.scale);
+    const pad = s - fracDigits;
+    const total = n - 1 + pad; // digits of the scaled integer, leading zeros included
+    const b = r0At(s);
+    if (total > 2 * SPLIT || b.len > 2 * SPLIT) return null;
+    let hi = 0;
+    let lo = 0;
+    let j = 0;
+    for (let i = 0; i < n; i++) {
+      if (i === dot) continue;
+      const digit = text.charCodeAt(i) - 48;
+      if (j < total - SPLIT) hi = hi * 10 + digit;
+      else lo = lo * 10 + digit;
+      j++;
+    }
+    for (let k = 0; k < pad; k++, j++) {
+      if (j < total - SPLIT) hi *= 10;
+      else lo *= 10;
+    }
+    const diff = (hi - b.hi) * 1e15 + (lo - b.lo);
+    const y = diff === 0 ? 0 : s <= 22 ? diff / POW10[s] / r0Double : Number.parseFloat(`${diff}e${-s}`) / r0Double;
+    return { ok: true, y };
+  };
   return (text: string): RatioConversion => {
+    const fast = plain(text);
+    if (fast) return fast;
     const r = scaledDecimal(text);
     if (!r) return { ok: false, message: 'is not a decimal number' };
     if (r.sig > MAX_RATIO_SIGNIFICANT_DIGITS) return { ok: false, message: `has ${r.sig} significant digits; at most ${MAX_RATIO_SIGNIFICANT_DIGITS} are accepted` };

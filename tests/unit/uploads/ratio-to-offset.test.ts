@@ -37,6 +37,19 @@ describe('createRatioConverter', () => {
     }
   });
 
+  it('agrees with decimal.js within 2 ulp for a short reference ratio (plain-digit fast path)', () => {
+    const r0 = '1.2345678';
+    const toY = createRatioConverter(r0);
+    let seed = 4242;
+    for (let i = 0; i < 2000; i++) {
+      seed = (seed * 16807) % 2147483647;
+      const r = new D(r0).times(new D(1).plus((seed / 2147483647 - 0.5) * 4e-15)).toSignificantDigits(21).toFixed();
+      const got = toY(r);
+      const want = exact(r, r0);
+      expect(got.ok && Math.abs(got.y - want)).toBeLessThanOrEqual(2 * ulp(want));
+    }
+  });
+
   it('matches the science module fractionalOffset on exponent notation and integers', () => {
     const toY = createRatioConverter('1.5');
     for (const r of ['1.5000000000000001e0', '15000000000000000002e-19', '1.50000000000000000']) {
