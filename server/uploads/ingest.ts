@@ -49,7 +49,7 @@ export type IngestSummary = {
 const MAX_LISTED_ISSUES = 10;
 const BATCH_BYTES = 1 << 20;
 const ROW_BYTES = 2 + 4 + 16 + 4 + 8 + 4 + 8 + 4 + 1;
-const COPY_HEADER = Buffer.concat([Buffer.from('PGCOPY\n\xff\r\n\0', 'latin1'), Buffer.alloc(8)]);
+export const COPY_BINARY_HEADER = Buffer.concat([Buffer.from('PGCOPY\n\xff\r\n\0', 'latin1'), Buffer.alloc(8)]);
 const COPY_TRAILER = Buffer.from([0xff, 0xff]);
 
 /** The COPY statement matching the binary rows this module writes. */
@@ -137,7 +137,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     view = new DataView(batch.buffer, batch.byteOffset, batch.byteLength);
     off = 0;
   };
-  if (!sink.write(COPY_HEADER)) sinkFull = true;
+  if (!sink.write(COPY_BINARY_HEADER)) sinkFull = true;
 
   let headerPending = true;
   const onRecord = (rec: string[], line: number) => {

@@ -4,7 +4,7 @@ import os from 'node:os';
 import path from 'node:path';
 import type pg from 'pg';
 import { from as copyFrom } from 'pg-copy-streams';
-import { finishCopy } from './ingest';
+import { COPY_BINARY_HEADER, finishCopy } from './ingest';
 
 // The raw file is kept in ratio_series_file, written by COPY in the upload's transaction, so a rejected or
 // interrupted upload leaves nothing behind. While the rows stream into their COPY (which occupies the connection),
@@ -32,7 +32,7 @@ export function openSpool(): Spool {
     async copyInto(client, seriesId) {
       const copy = client.query(copyFrom(COPY_FILE_SQL));
       const uuid = Buffer.from(seriesId.replace(/-/g, ''), 'hex');
-      copy.write(Buffer.concat([Buffer.from('PGCOPY\n\xff\r\n\0', 'latin1'), Buffer.alloc(8)]));
+      copy.write(COPY_BINARY_HEADER);
       let part = 0;
       for (let pos = 0; pos < size; part++) {
         const n = Math.min(PART_BYTES, size - pos);
