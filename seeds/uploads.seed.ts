@@ -2,13 +2,15 @@ import { Readable } from 'node:stream';
 import type pg from 'pg';
 import { recordAudit } from '../server/audit/audit.service';
 import { C2_M2_PER_S2 } from '../server/science/constants';
-import { normalGravityOnEllipsoid } from '../server/science/normal-gravity';
+import { meanNormalGravity } from '../server/science/normal-gravity';
+import { tidePotentialSeries, type TideSite } from '../server/science/tides';
 import { loadCampaignForUpload, storeSeries } from '../server/uploads/uploads.service';
 import type { Seeder } from './demo';
 
 // INVENTED demo ratio series for the seeded campaigns that are past the draft stage: 10 s spacing, white frequency
 // noise of 3e-16/√τ, the gravitational redshift of the invented height difference between the two clocks' sites
-// (y = γ·ΔH/c², B above A gives y > 0, as in server/science/redshift.ts), a few invalid flags and one gap.
+// (y = γ̄·ΔH/c², B above A gives y > 0, as in server/science/redshift.ts), the periodic solid-Earth tide that
+// real clocks on the two sites would see (y_tide = −δW/c², server/science/tides.ts), a few invalid flags and one gap.
 // Stored through the same code path as uploads (storeSeries), so each keeps its generated CSV and SHA-256.
 
 const SAMPLES = 6000;
@@ -21,17 +23,23 @@ function rng(seed: number) {
   return () => (s = (s * 16807) % 2147483647) / 2147483647;
 }
 
-export function inventedSeriesCsv(opts: { startMjd: number; yGrav: number; asRatio: boolean; seed: number; label: string }): string {
+export function inventedSeriesCsv(opts: {
+  startMjd: number; yGrav: number; asRatio: boolean; seed: number; label: string; sites?: { a: TideSite; b: TideSite };
+}): string {
   const rnd = rng(opts.seed);
   const gapStart = Math.floor(SAMPLES * 0.55);
   const gapLength = 360; // one hour without data
   const invalid = new Set([Math.floor(SAMPLES * 0.1), Math.floor(SAMPLES * 0.3), Math.floor(SAMPLES * 0.3) + 1, Math.floor(SAMPLES * 0.8)]);
   const sigma = SIGMA_Y_1S / Math.sqrt(TAU0_S);
+  const epochs = Float64Array.from({ length: SAMPLES }, (_, i) => opts.startMjd + (i * TAU0_S) / 86_400);
+  const wA = opts.sites ? tidePotentialSeries(opts.sites.a, epochs, { removePermanent: true }) : null;
+  const wB = opts.sites ? tidePotentialSeries(opts.sites.b, epochs, { removePermanent: true }) : null;
   const lines = [`# INVENTED demo series (${opts.label}); not a measurement`, opts.asRatio ? 'mjd,ratio,flag' : 'mjd,offset,flag'];
   for (let i = 0; i < SAMPLES; i++) {
     if (i >= gapStart && i < gapStart + gapLength) continue;
     const g = Math.sqrt(-2 * Math.log(rnd())) * Math.cos(2 * Math.PI * rnd());
-    const y = opts.yGrav + sigma * g;
+    const yTide = wA && wB ? -(wB[i] - wA[i]) / C2_M2_PER_S2 : 0;
+    const y = opts.yGrav + yTide + sigma * g;
     const mjd = (opts.startMjd + (i * TAU0_S) / 86_400).toFixed(8);
     let value: string;
     if (opts.asRatio) {
@@ -52,16 +60,22 @@ export const uploadsSeeder: Seeder = {
     const client = (manager.queryRunner as unknown as { databaseConnection: pg.PoolClient }).databaseConnection;
     const campaigns = (await manager.query(`
       SELECT c.id, c.name, c.state, sa.latitude_deg AS lat_a, sb.latitude_deg AS lat_b,
+             sa.longitude_deg AS lon_a, sb.longitude_deg AS lon_b, sa.ellipsoidal_height_m AS eh_a, sb.ellipsoidal_height_m AS eh_b,
              sa.ellipsoidal_height_m - sa.quasigeoid_height_m AS h_a, sb.ellipsoidal_height_m - sb.quasigeoid_height_m AS h_b
         FROM campaign c JOIN clock ca ON ca.id = c.clock_a_id JOIN clock cb ON cb.id = c.clock_b_id
         JOIN site sa ON sa.id = ca.site_id JOIN site sb ON sb.id = cb.site_id
-       WHERE c.state <> 'draft' ORDER BY c.period_start`)) as { id: string; name: string; state: string; lat_a: number; lat_b: number; h_a: number; h_b: number }[];
+       WHERE c.state <> 'draft' ORDER BY c.period_start`)) as { id: string; name: string; state: string; lat_a: number; lat_b: number; lon_a: number; lon_b: number; eh_a: number; eh_b: number; h_a: number; h_b: number }[];
     let n = 0;
     for (const c of campaigns) {
       const campaign = (await loadCampaignForUpload(manager, c.id))!;
-      const gamma = normalGravityOnEllipsoid((c.lat_a + c.lat_b) / 2);
-      const yGrav = (gamma * (c.h_b - c.h_a)) / C2_M2_PER_S2;
-      const csv = inventedSeriesCsv({ startMjd: Math.ceil(campaign.periodStartMjd) + 0.25, yGrav, asRatio: campaign.referenceRatio === '1', seed: 1000 + n, label: c.name });
+      // ΔC = C_B − C_A with C = γ̄·H at each site (mean normal gravity along the plumb line), so the invented
+      // series agrees with the sites' registered normal heights.
+      const yGrav = (meanNormalGravity(c.lat_b, c.h_b) * c.h_b - meanNormalGravity(c.lat_a, c.h_a) * c.h_a) / C2_M2_PER_S2;
+      const sites = {
+        a: { latitudeDeg: c.lat_a, longitudeDeg: c.lon_a, ellipsoidalHeightM: c.eh_a },
+        b: { latitudeDeg: c.lat_b, longitudeDeg: c.lon_b, ellipsoidalHeightM: c.eh_b },
+      };
+      const csv = inventedSeriesCsv({ startMjd: Math.ceil(campaign.periodStartMjd) + 0.25, yGrav, asRatio: campaign.referenceRatio === '1', seed: 1000 + n, label: c.name, sites });
       await storeSeries(client, null, {
         campaign, fileName: `invented-${c.name.replace(/[^A-Za-z0-9]+/g, '-').toLowerCase()}.csv`, source: Readable.from([Buffer.from(csv)]),
         fields: { epochColumn: '1', epochKind: 'mjd', valueColumn: '2', valueKind: campaign.referenceRatio === '1' ? 'ratio' : 'offset', flagColumn: '3' },
