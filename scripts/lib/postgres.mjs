@@ -28,8 +28,8 @@ export function ensurePostgresBinaries(log = console.log) {
   }
   log('Installing PostgreSQL server from Debian packages (apt-get install postgresql)…');
   const env = { ...process.env, DEBIAN_FRONTEND: 'noninteractive' };
-  let r = spawnSync('apt-get', ['update', '-q'], { stdio: 'inherit', env });
-  r = spawnSync('apt-get', ['install', '-y', '-q', 'postgresql'], { stdio: 'inherit', env });
+  spawnSync('apt-get', ['update', '-q'], { stdio: 'inherit', env });
+  const r = spawnSync('apt-get', ['install', '-y', '-q', 'postgresql'], { stdio: 'inherit', env });
   bin = findBinDir();
   if (r.status !== 0 || !bin) {
     throw new Error("Could not install Debian's PostgreSQL server with apt-get; install 'postgresql' or set DATABASE_URL.");
