@@ -11,7 +11,7 @@
 //   every term whose window touches a gap is skipped (never joined across the gap); the variance is the mean of the
 //   remaining terms. MDEV inner sums come from prefix sums of the second differences and need y valid on j … j+3m−2.
 
-import { chiSquareQuantile } from './chi-square';
+import { chiSquareQuantile } from './distributions';
 import { ScienceInputError } from './errors';
 
 export type NoiseType = 'WPM' | 'FPM' | 'WFM' | 'FFM' | 'RWFM';

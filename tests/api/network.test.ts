@@ -3,7 +3,7 @@ import request from 'supertest';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { stopQueues } from '../../server/jobs/queue';
 import { startWorker, type Worker } from '../../server/jobs/worker';
-import { chiSquareQuantile } from '../../server/science/adjustment/distributions';
+import { chiSquareQuantile } from '../../server/science/distributions';
 import { createTestApp, tokenFor, type TestApp } from '../helpers/test-app';
 
 // The levelling network API against a real PostgreSQL with the demo network seeded, and a pg-boss worker on the

@@ -2,7 +2,7 @@
 // Model and statistics: Ghilani, "Adjustment Computations", 6th ed., Wiley 2017, ch. 12 (level nets) and ch. 21 (blunder detection);
 // Baarda, "A testing procedure for use in geodetic networks", Netherlands Geodetic Commission, Publ. on Geodesy 2(5), 1968 (w-test).
 
-import { chiSquareQuantile, normalQuantile } from './distributions';
+import { chiSquareQuantile, normalQuantile } from '../distributions';
 import {
   factorize,
   inverseEntry,

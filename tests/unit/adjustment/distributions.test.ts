@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { chiSquareCdf, chiSquareQuantile, chiSquareSurvival, normalCdf, normalQuantile } from '../../../server/science/adjustment/distributions';
+import { chiSquareCdf, chiSquareQuantile, chiSquareSurvival, normalCdf, normalQuantile } from '../../../server/science/distributions';
 
 // NIST/SEMATECH e-Handbook of Statistical Methods, §1.3.6.7.4 "Critical Values of the Chi-Square Distribution"
 // (3 decimals). The table values are from memory; each one agrees with a public 5-decimal χ² table

@@ -7,7 +7,7 @@ import {
   type NetworkObservation,
   type NetworkPoint,
 } from '../../../server/science/adjustment/gauss-markov';
-import { chiSquareQuantile } from '../../../server/science/adjustment/distributions';
+import { chiSquareQuantile } from '../../../server/science/distributions';
 import { smallRandomNetwork } from './network-fixtures';
 
 /**

@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { chiSquareCdf, chiSquareQuantile, logGamma } from '../../../server/science/chi-square';
+import { chiSquareCdf, chiSquareQuantile, logGamma } from '../../../server/science/distributions';
 
 // Critical values of the chi-square distribution: NIST/SEMATECH e-Handbook of Statistical Methods, §1.3.6.7.4
 // (values from memory; the 5-decimal entries agree with a public reprint of the standard table found with the search tool).
