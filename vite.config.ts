@@ -14,7 +14,7 @@ export default defineConfig({
     projects: [
       {
         extends: true,
-        test: { name: 'unit', include: ['tests/unit/**/*.test.ts'], environment: 'node', testTimeout: 60_000 },
+        test: { name: 'unit', include: ['tests/unit/**/*.test.ts'], environment: 'node', testTimeout: 60_000, sequence: { groupOrder: 0 } },
       },
       {
         extends: true,
@@ -26,6 +26,7 @@ export default defineConfig({
           testTimeout: 120_000,
           hookTimeout: 120_000,
           maxWorkers: 2,
+          sequence: { groupOrder: 1 },
         },
       },
       {
@@ -38,6 +39,7 @@ export default defineConfig({
           testTimeout: 300_000,
           hookTimeout: 300_000,
           fileParallelism: false,
+          sequence: { groupOrder: 2 },
         },
       },
     ],
