@@ -15,6 +15,9 @@ export function Layout() {
   if (!me.data) return <SignInPage />;
   const user = me.data;
   const items = navItems.filter((n) => n.roles.includes(user.role));
+  // An entry whose path prefixes another entry's path (/, /admin) highlights only on its own page, so that
+  // /admin/mailbox lights up "Mail catcher" alone; detail pages (/campaigns/<id>) still light up their list entry.
+  const exact = (to: string) => to === '/' || navItems.some((o) => o.to !== to && o.to.startsWith(`${to}/`));
   return (
     <div className="flex min-h-screen">
       <nav className="flex w-60 shrink-0 flex-col bg-ink-800 text-ink-100" aria-label="Main">
@@ -31,7 +34,7 @@ export function Layout() {
             <div key={g} className="px-3 py-2">
               <p className="px-2 pb-1 text-[11px] uppercase tracking-wider text-ink-300">{groupTitles[g]}</p>
               {list.map((i) => (
-                <NavLink key={i.to} to={i.to} end={i.to === '/'}
+                <NavLink key={i.to} to={i.to} end={exact(i.to)}
                   className={({ isActive }) => `block rounded-md px-2 py-1.5 text-sm no-underline ${isActive ? 'bg-ink-600 text-paper-50' : 'text-ink-100 hover:bg-ink-700'}`}>
                   {i.label}
                 </NavLink>
