@@ -43,7 +43,7 @@ export function EmptyState({ title, children }: { title: string; children?: Reac
   );
 }
 
-export function Field({ label, error, children, hint }: { label: string; error?: string; hint?: string; children: ReactNode }) {
+export function Field({ label, error, children, hint }: { label: string; error?: string; hint?: ReactNode; children: ReactNode }) {
   return (
     <label className="block text-sm">
       <span className="mb-1 block font-medium text-ink-700">{label}</span>

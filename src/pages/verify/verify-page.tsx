@@ -138,7 +138,7 @@ export function VerifyPage() {
               <Field label="Certificate number" error={form.formState.errors.number?.message}>
                 <input className={inputClass} placeholder="CL-2026-00001-r1" {...form.register('number')} />
               </Field>
-              <Field label="SHA-256 of the file" error={form.formState.errors.sha256?.message} hint="64 hex digits, e.g. from `sha256sum certificate.pdf`; spaces are ignored.">
+              <Field label="SHA-256 of the file" error={form.formState.errors.sha256?.message} hint={<>64 hex digits, e.g. from <code>sha256sum certificate.pdf</code>; spaces are ignored.</>}>
                 <input className={`${inputClass} font-mono text-xs`} {...form.register('sha256')} />
               </Field>
               <Button type="submit" disabled={verifyNumber.isPending}>Look it up</Button>
