@@ -230,6 +230,9 @@ export type AdjustmentRunDetail = z.infer<typeof adjustmentRunDetailSchema>;
 
 // ---- reconciliation and map ----
 
+export const reconciliationVerdicts = ['agreed', 'not-agreed', 'not-comparable', 'no-levelling'] as const;
+export const reconciliationVerdictSchema = z.enum(reconciliationVerdicts);
+export type ReconciliationVerdict = z.infer<typeof reconciliationVerdictSchema>;
 export const reconciliationRowSchema = z.object({
   linkId: z.string(),
   linkLabel: z.string(),
@@ -237,7 +240,13 @@ export const reconciliationRowSchema = z.object({
   campaignLabel: z.string(),
   fromSite: z.string(),
   toSite: z.string(),
+  /** Datums of the two sites' tie benchmarks in the levelling-only run (null: the site has no tie in it). */
+  fromDatum: z.string().nullable(),
+  toDatum: z.string().nullable(),
   crossesDatums: z.boolean(),
+  /** False when there is no levelled ΔC, or the sites sit in two datums that no levelling connects (unknown datum offset). */
+  comparable: z.boolean(),
+  verdict: reconciliationVerdictSchema,
   clockDeltaC_m2s2: z.number(),
   clockExpandedU_m2s2: z.number(),
   levellingDeltaC_m2s2: z.number().nullable(),
@@ -261,7 +270,12 @@ export const networkMapSchema = z.object({
   benchmarks: z.array(z.object({ id: z.string(), code: z.string(), name: z.string(), latitudeDeg: z.number(), longitudeDeg: z.number(), fixed: z.boolean(), destroyed: z.boolean(), datumName: z.string() })),
   sections: z.array(z.object({ id: z.string(), fromCode: z.string(), toCode: z.string(), lineName: z.string().nullable(), adjusted: z.boolean(), standardizedResidual: z.number().nullable(), suspected: z.boolean() })),
   sites: z.array(z.object({ id: z.string(), code: z.string(), name: z.string(), latitudeDeg: z.number(), longitudeDeg: z.number(), benchmarkCode: z.string().nullable() })),
-  links: z.array(z.object({ id: z.string(), label: z.string(), fromSiteId: z.string(), toSiteId: z.string(), en: z.number().nullable() })),
+  links: z.array(z.object({
+    id: z.string(), label: z.string(), fromSiteId: z.string(), toSiteId: z.string(),
+    /** The largest |E_n| among the link's comparable campaigns. */
+    en: z.number().nullable(),
+    comparisons: z.array(z.object({ campaignLabel: z.string(), en: z.number().nullable(), verdict: reconciliationVerdictSchema })),
+  })),
   runId: z.string().nullable(),
 });
 export type NetworkMap = z.infer<typeof networkMapSchema>;

@@ -40,6 +40,32 @@ export type StoredInputs = {
 
 export const sitePoint = (siteId: string) => `site:${siteId}`;
 
+/** A site's display name, with its institute code in front unless the name already starts with it. */
+export const siteLabel = (site: { name: string; instituteCode: string }) =>
+  site.name.toLowerCase().startsWith(site.instituteCode.toLowerCase()) ? site.name : `${site.instituteCode} ${site.name}`;
+
+/**
+ * Which points the levelling itself joins (sections and local ties, union–find over a run's observations). Two sites in
+ * different datums that no levelling joins have a levelled ΔC holding the unknown offset between the datums.
+ */
+export function levellingComponents(observations: RunResult['observations']): (a: string, b: string) => boolean {
+  const parent = new Map<string, string>();
+  const find = (x: string): string => {
+    let r = x;
+    while (parent.has(r) && parent.get(r) !== r) r = parent.get(r)!;
+    let c = x;
+    while (c !== r) { const n = parent.get(c) ?? r; parent.set(c, r); c = n; }
+    return r;
+  };
+  for (const o of observations) {
+    if (o.kind === 'clock') continue;
+    if (!parent.has(o.from)) parent.set(o.from, o.from);
+    if (!parent.has(o.to)) parent.set(o.to, o.to);
+    parent.set(find(o.from), find(o.to));
+  }
+  return (a, b) => parent.has(a) && parent.has(b) && find(a) === find(b);
+}
+
 /** Gathers the network as it is now into adjustment input (pure data, stored with the run). */
 export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptions): Promise<StoredInputs> {
   const benchmarks = await m.getRepository(BenchmarkEntity).find({ where: { state: 'in-use' }, relations: { datum: true }, order: { code: 'ASC' } });
@@ -72,10 +98,10 @@ export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptio
     const code = sitePoint(site.id);
     const g = normalGravityAtHeight(site.latitudeDeg, bm.knownNormalHeightM ?? bm.ellipsoidalHeightM);
     points.push({ code });
-    pointMeta[code] = { kind: 'site', label: `${site.instituteCode} ${site.name}`, datumName: bm.datum?.name ?? null, latitudeDeg: site.latitudeDeg };
+    pointMeta[code] = { kind: 'site', label: siteLabel(site), datumName: bm.datum?.name ?? null, latitudeDeg: site.latitudeDeg };
     siteDatum.set(site.id, bm.datum?.name ?? null);
     const id = `tie:${site.id}`;
-    observationMeta[id] = { label: `local tie ${bm.code} → ${site.instituteCode} ${site.name}` };
+    observationMeta[id] = { label: `local tie ${bm.code} → ${siteLabel(site)}` };
     observations.push({ id, kind: 'tie', from: bm.code, to: code, deltaC: g * site.tieHeightDifferenceM, sigma: g * Math.max(site.tieUncertaintyM ?? 0, TIE_SIGMA_FLOOR_M) });
   }
 
@@ -297,6 +323,7 @@ export function createAdjustmentService(dataSource: DataSource) {
       const sites = new Map((await loadSites(m)).map((s) => [s.id, s]));
       const lv = levelling?.result as RunResult | null;
       const byCode = new Map(lv?.points.map((p) => [p.code, p]) ?? []);
+      const connected = levellingComponents(lv?.observations ?? []);
       const rows: Reconciliation['rows'] = [];
       for (const c of campaigns) {
         const dc = await clockDeltaCFor(m, c.id);
@@ -315,14 +342,28 @@ export function createAdjustmentService(dataSource: DataSource) {
           levellingU = 2 * Math.hypot(a.sigmaC_m2s2, b.sigmaC_m2s2);
         } else note = lv ? 'a site of this link has no local tie to a benchmark of the adjusted network' : 'no levelling-only adjustment run yet';
         const crosses = !!(a && b && a.datumName !== b.datumName);
-        const agreement = levellingDeltaC !== null && levellingU !== null && clockU + levellingU > 0 ? normalisedError(dc.deltaC_m2s2, clockU, levellingDeltaC, levellingU) : null;
-        if (crosses) note = `the link joins ${a!.datumName} and ${b!.datumName}: the difference includes the offset between the two datums`;
+        // Across two datums that no levelling joins, the levelled ΔC carries the unknown datum offset: E_n would test
+        // that offset, not the clocks, so no verdict of agreement is given.
+        const comparable = !!(a && b) && (!crosses || connected(a.code, b.code));
+        const agreement = comparable && levellingDeltaC !== null && levellingU !== null && clockU + levellingU > 0
+          ? normalisedError(dc.deltaC_m2s2, clockU, levellingDeltaC, levellingU) : null;
+        let verdict: Reconciliation['rows'][number]['verdict'] = 'no-levelling';
+        if (a && b && !comparable) {
+          verdict = 'not-comparable';
+          note = `${a.datumName} and ${b.datumName} are not connected by levelling: the levelled ΔC contains the unknown offset between the two datums. `
+            + 'Its estimate comes from an adjustment run that includes the clocks with a datum-offset parameter.';
+        } else if (agreement) {
+          verdict = agreement.agreed ? 'agreed' : 'not-agreed';
+          if (crosses) note = `${a!.datumName} and ${b!.datumName} are joined by levelling, so the levelled ΔC spans both datums`;
+        }
         rows.push({
           linkId: c.linkId, linkLabel: links.get(c.linkId)?.name ?? c.linkId, campaignId: c.id, campaignLabel: c.name,
-          fromSite: siteA ? `${siteA.instituteCode} ${siteA.name}` : c.siteAId, toSite: siteB ? `${siteB.instituteCode} ${siteB.name}` : c.siteBId,
-          crossesDatums: crosses, clockDeltaC_m2s2: dc.deltaC_m2s2, clockExpandedU_m2s2: clockU,
+          fromSite: siteA ? siteLabel(siteA) : c.siteAId, toSite: siteB ? siteLabel(siteB) : c.siteBId,
+          fromDatum: a?.datumName ?? null, toDatum: b?.datumName ?? null,
+          crossesDatums: crosses, comparable, verdict, clockDeltaC_m2s2: dc.deltaC_m2s2, clockExpandedU_m2s2: clockU,
           levellingDeltaC_m2s2: levellingDeltaC, levellingExpandedU_m2s2: levellingU,
-          difference_m2s2: agreement?.difference ?? null, en: agreement?.en ?? null, agreed: agreement?.agreed ?? null, note,
+          difference_m2s2: levellingDeltaC === null ? null : dc.deltaC_m2s2 - levellingDeltaC,
+          en: agreement?.en ?? null, agreed: agreement?.agreed ?? null, note,
         });
       }
       const message = rows.length === 0
@@ -347,7 +388,8 @@ export function createAdjustmentService(dataSource: DataSource) {
       const sites = await loadSites(m);
       const links = await loadLinks(m);
       const recon = await this.reconciliation(actor);
-      const enByLink = new Map(recon.rows.map((r) => [r.linkId, r.en]));
+      const byLink = new Map<string, NetworkMap['links'][number]['comparisons']>();
+      for (const r of recon.rows) byLink.set(r.linkId, [...(byLink.get(r.linkId) ?? []), { campaignLabel: r.campaignLabel, en: r.en, verdict: r.verdict }]);
       return {
         benchmarks: benchmarks.map((b) => ({ id: b.id, code: b.code, name: b.name, latitudeDeg: b.latitudeDeg, longitudeDeg: b.longitudeDeg, fixed: b.fixed, destroyed: b.state === 'destroyed', datumName: b.datum?.name ?? '' })),
         sections: sections.map((s) => {
@@ -355,7 +397,13 @@ export function createAdjustmentService(dataSource: DataSource) {
           return { id: s.id, fromCode: s.fromBenchmark!.code, toCode: s.toBenchmark!.code, lineName: s.lineName, adjusted: !!o, standardizedResidual: o?.standardizedResidual ?? null, suspected: o?.suspected ?? false };
         }),
         sites: sites.map((s) => ({ id: s.id, code: s.instituteCode, name: s.name, latitudeDeg: s.latitudeDeg, longitudeDeg: s.longitudeDeg, benchmarkCode: s.benchmarkCode })),
-        links: links.map((l) => ({ id: l.id, label: l.name, fromSiteId: l.siteAId, toSiteId: l.siteBId, en: enByLink.get(l.id) ?? null })),
+        links: links.map((l) => {
+          const comparisons = byLink.get(l.id) ?? [];
+          // The link's headline E_n is the largest in magnitude of its campaigns; each campaign is listed as well.
+          const ens = comparisons.map((c) => c.en).filter((e): e is number => e !== null);
+          const en = ens.length ? ens.reduce((x, y) => (Math.abs(y) > Math.abs(x) ? y : x)) : null;
+          return { id: l.id, label: l.name, fromSiteId: l.siteAId, toSiteId: l.siteBId, en, comparisons };
+        }),
         runId: run?.id ?? null,
       };
     },
