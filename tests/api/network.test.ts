@@ -257,7 +257,7 @@ describe('POST /api/v1/calc/adjust', () => {
 });
 
 describe('clocks in the network: reconciliation and datum offsets', () => {
-  it('compares a clock ΔC with the levelling-only run (E_n) and estimates the offset between the datums', async () => {
+  it('gives no E_n across datums no levelling connects, estimates their offset, and compares (E_n) once levelling joins them', async () => {
     const [campaign] = await t.ds.query(`
       SELECT c.id, ca.site_id AS a, cb.site_id AS b FROM campaign c JOIN clock ca ON ca.id = c.clock_a_id JOIN clock cb ON cb.id = c.clock_b_id
       WHERE c.state IN ('accepted','certified') ORDER BY c.period_end DESC LIMIT 1`);
@@ -288,11 +288,19 @@ describe('clocks in the network: reconciliation and datum offsets', () => {
     const row = rec.rows.find((r: { campaignId: string }) => r.campaignId === campaign.id);
     expect(row.levellingDeltaC_m2s2).toBeCloseTo(levelled, 9);
     expect(row.clockExpandedU_m2s2).toBeCloseTo(0.1, 12);
-    // E_n = (x_clock − x_lev) / √(U_clock² + U_lev²), expanded uncertainties k = 2 (ISO 13528:2015 §9.7, references.md §9)
-    const expectedEn = (clockDeltaC - levelled) / Math.sqrt(0.1 ** 2 + row.levellingExpandedU_m2s2 ** 2);
-    expect(row.en).toBeCloseTo(expectedEn, 9);
-    expect(row.agreed).toBe(Math.abs(expectedEn) <= 1);
+    // The demo's two datums are joined by no levelling section: the levelled ΔC holds the unknown datum offset, so
+    // E_n would test that offset, not the clocks (common practice: a comparison needs a common reference).
     expect(row.crossesDatums).toBe(true);
+    expect(row.fromDatum).not.toBe(row.toDatum);
+    expect(row.comparable).toBe(false);
+    expect(row.verdict).toBe('not-comparable');
+    expect(row.en).toBeNull();
+    expect(row.agreed).toBeNull();
+    expect(row.difference_m2s2).toBeCloseTo(-1.5, 9);
+    expect(row.note).toContain('not connected by levelling');
+    // The site name is shown once (it already carries the institute code in the demo).
+    expect(row.fromSite).not.toMatch(/^(\w+) \1 /);
+    expect(row.toSite).not.toMatch(/^(\w+) \1 /);
 
     // With the clock as an observation and an offset parameter, the offset takes up the whole discrepancy (one clock
     // link between two otherwise separate datums has redundancy 0), so it equals clock − levelled ΔC.
@@ -309,5 +317,36 @@ describe('clocks in the network: reconciliation and datum offsets', () => {
     expect(run2.result.datumOffsets[0].value_m2s2).toBeCloseTo(-1.5, 6);
     const rec2 = (await request(t.app).get('/api/v1/network/reconciliation').set(bearer(auditor))).body;
     expect(rec2.datumOffsets[0].value_m2s2).toBeCloseTo(-1.5, 6);
+
+    // Once a section joins the two sites' tie benchmarks, the levelling connects the datums: E_n becomes meaningful.
+    const tieFrom = (site: string) => run.result.observations.find((o: { kind: string; to: string }) => o.kind === 'tie' && o.to === `site:${site}`).from;
+    const joined = await request(t.app).post('/api/v1/network/sections').set(bearer(coordinator))
+      .send({ lineName: 'Datum junction', fromCode: tieFrom(campaign.a), toCode: tieFrom(campaign.b), deltaHeightM: levelled / 9.81, lengthKm: 300 });
+    expect(joined.status).toBe(201);
+    const lev2 = await request(t.app).post('/api/v1/network/runs').set(bearer(coordinator)).send({ includeClocks: false });
+    let run3 = lev2.body;
+    for (let i = 0; i < 120 && run3.state !== 'done' && run3.state !== 'failed'; i++) {
+      await new Promise((r) => setTimeout(r, 250));
+      run3 = (await request(t.app).get(`/api/v1/network/runs/${lev2.body.id}`).set(bearer(auditor))).body;
+    }
+    expect(run3.state).toBe('done');
+    const c3a = run3.result.points.find((p: { code: string }) => p.code === `site:${campaign.a}`);
+    const c3b = run3.result.points.find((p: { code: string }) => p.code === `site:${campaign.b}`);
+    const levelled3 = c3b.c_m2s2 - c3a.c_m2s2;
+    const rec3 = (await request(t.app).get('/api/v1/network/reconciliation').set(bearer(auditor))).body;
+    const row3 = rec3.rows.find((r: { campaignId: string }) => r.campaignId === campaign.id);
+    expect(row3.comparable).toBe(true);
+    expect(row3.levellingDeltaC_m2s2).toBeCloseTo(levelled3, 9);
+    // Levelling U (k = 2) from the run's σ of the two sites, root-sum-square (GUM 5.1.2 with no covariance)
+    expect(row3.levellingExpandedU_m2s2).toBeCloseTo(2 * Math.hypot(c3a.sigmaC_m2s2, c3b.sigmaC_m2s2), 9);
+    // E_n = (x_clock − x_lev) / √(U_clock² + U_lev²), expanded uncertainties k = 2 (ISO 13528:2015 §9.7, references.md §9)
+    const expectedEn = (clockDeltaC - levelled3) / Math.sqrt(0.1 ** 2 + row3.levellingExpandedU_m2s2 ** 2);
+    expect(row3.en).toBeCloseTo(expectedEn, 9);
+    expect(row3.agreed).toBe(Math.abs(expectedEn) <= 1);
+    expect(row3.verdict).toBe(Math.abs(expectedEn) <= 1 ? 'agreed' : 'not-agreed');
+    // The map's link carries the campaign's comparison.
+    const map = (await request(t.app).get('/api/v1/network/map').set(bearer(auditor))).body;
+    const link = map.links.find((l: { id: string }) => l.id === row3.linkId);
+    expect(link.comparisons).toContainEqual({ campaignLabel: row3.campaignLabel, en: row3.en, verdict: row3.verdict });
   });
 });
