@@ -342,6 +342,18 @@ const MAX_GRID_POINTS = 100_000_000;
  * and each sample flagged invalid, becomes a gap (valid = 0). τ0 defaults to the median epoch spacing.
  * Epochs must ascend and sit within ±τ0/4 of a grid slot; two samples in one slot are refused.
  */
+/**
+ * The mean spacing carries the rounding of the MJD epochs (≈ 1e-8 relative), which would show as τ = 5119.99995 s.
+ * Snap to the nearest microsecond when that changes τ0 by at most 1e-6 relative and moves the last epoch by less
+ * than 1 % of a slot, so the grid assignment is unchanged.
+ */
+function snapTau0(tau0Seconds: number, spanSeconds: number): number {
+  const snapped = Math.round(tau0Seconds * 1e6) / 1e6;
+  if (!(snapped > 0) || Math.abs(snapped - tau0Seconds) > 1e-6 * tau0Seconds) return tau0Seconds;
+  const driftSlots = Math.abs(spanSeconds / snapped - spanSeconds / tau0Seconds);
+  return driftSlots < 0.01 ? snapped : tau0Seconds;
+}
+
 export function gridFromEpochs(epochsMjd: Float64Array, y: Float64Array, valid?: Uint8Array, tau0Seconds?: number): RegularGrid {
   const n = epochsMjd.length;
   if (y.length !== n) throw new ScienceInputError('y', 'must have the same length as epochsMjd');
@@ -365,7 +377,7 @@ export function gridFromEpochs(epochsMjd: Float64Array, y: Float64Array, valid?:
         count++;
       }
     }
-    tau0 = count > 0 ? sum / count : median;
+    tau0 = snapTau0(count > 0 ? sum / count : median, (epochsMjd[n - 1] - epochsMjd[0]) * 86_400);
   }
   if (!(tau0 > 0)) throw new ScienceInputError('tau0Seconds', 'must be positive (are there repeated epochs?)');
   const startMjd = epochsMjd[0];
@@ -447,7 +459,7 @@ export function meanWithStatisticalUncertainty(input: {
       validSamples: count,
       totalAveragingTimeSeconds: totalSeconds,
       tauFitSeconds: anchor.tauSeconds,
-      method: `white-FM extrapolation σ_y(τ_total) = ADEV(τ_fit)·√(τ_fit/τ_total) from τ_fit = ${anchor.tauSeconds} s (noise ${anchor.noiseType})${weak}`,
+      method: `white-FM extrapolation σ_y(τ_total) = ADEV(τ_fit)·√(τ_fit/τ_total) from τ_fit = ${Number(anchor.tauSeconds.toPrecision(6))} s (noise ${anchor.noiseType})${weak}`,
     };
   }
   return {

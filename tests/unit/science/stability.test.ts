@@ -270,4 +270,21 @@ describe('gridFromEpochs with rounded epochs', () => {
     expect(grid.missingEpochs).toBe(0);
     expect(grid.y.length).toBe(n);
   });
+
+  it('snaps τ0 to the whole microsecond when the rounded epochs are regular (so τ reads 5120 s, not 5119.99995 s)', () => {
+    // Common practice: a 10 s grid written as MJD with 9 decimals; the mean spacing is 10 s within ~1e-8 relative.
+    const n = 5_000;
+    const epochs = Float64Array.from({ length: n }, (_, i) => Number((61_416.123456789 + (10 * i) / 86_400).toFixed(9)));
+    const grid = gridFromEpochs(epochs, new Float64Array(n));
+    expect(grid.tau0Seconds).toBe(10);
+    expect(grid.y.length).toBe(n);
+  });
+
+  it('does not snap when the rounding would move the last epoch off its slot (long run, τ0 off by 4e-7 relative)', () => {
+    // Common practice: the grid must keep every epoch on its own slot; 2e5 slots × 4e-7 = 0.08 slot of drift.
+    const tau0 = 1.0000004;
+    const n = 200_000;
+    const epochs = Float64Array.from({ length: n }, (_, i) => 61_416 + (i * tau0) / 86_400);
+    expect(gridFromEpochs(epochs, new Float64Array(n)).tau0Seconds).toBeCloseTo(tau0, 9);
+  });
 });
