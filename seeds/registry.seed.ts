@@ -1,7 +1,8 @@
 import crypto from 'node:crypto';
 import type { CampaignState } from '../shared/campaigns';
 import type { BudgetRow } from '../shared/registry';
-import { recordAudit } from '../server/audit/audit.service';
+import { recordAudit, type AuditInput } from '../server/audit/audit.service';
+import type { Actor } from '../server/auth/actor';
 import { defaultReferenceRatio } from '../server/campaigns/campaigns.service';
 import {
   CampaignEntity,
@@ -19,6 +20,7 @@ import { budgetTotals } from '../server/registry/registry.service';
 import { toGrs80Geodetic, transform } from '../server/science/geodesy';
 import { interpolateQuasigeoidHeight, parseQuasigeoidGrid } from '../server/science/quasigeoid-grid';
 import type { Seeder } from './demo';
+import { demoPeople } from './people';
 
 // INVENTED demo registry: the coastal lab SCL and the mountain lab HMO (two sites), an invented quasigeoid grid,
 // two ⁸⁷Sr lattice clocks and one ¹⁷¹Yb⁺ ion clock with 1e-18-level budgets, two fibre links and campaigns in
@@ -57,18 +59,27 @@ const ybBudget: BudgetRow[] = [
 export const registrySeeder: Seeder = {
   name: 'registry and campaigns',
   run: async ({ manager, instituteIds, userIds }) => {
-    const ines = { id: userIds['ines.varga@saltmarsh-lab.invalid'], name: 'Ines Varga' };
-    const mira = { id: userIds['mira.ostrowe@highridge-obs.invalid'], name: 'Mira Ostrowe' };
-    const ansel = { id: userIds['ansel.brandt@geopotential-office.invalid'], name: 'Ansel Brandt' };
+    // Each seeded person also as the Actor the services would see, so the seeded audit events read like real ones.
+    const person = (email: string) => {
+      const p = demoPeople.find((d) => d.email === email)!;
+      const actor: Actor = { userId: userIds[email], email, displayName: p.displayName, role: p.role as Actor['role'], instituteId: p.instituteCode ? instituteIds[p.instituteCode] : null, via: 'session' };
+      return { id: userIds[email], name: p.displayName, actor };
+    };
+    const ines = person('ines.varga@saltmarsh-lab.invalid');
+    const mira = person('mira.ostrowe@highridge-obs.invalid');
+    const ansel = person('ansel.brandt@geopotential-office.invalid');
+    const tomas = userIds['tomas.reyland@saltmarsh-lab.invalid'] ? person('tomas.reyland@saltmarsh-lab.invalid') : ines;
+    // Invented history: registry records carry creation dates before the campaigns that use them.
+    const day = (iso: string) => new Date(iso);
 
     const gridText = inventedGridText();
     const grid = parseQuasigeoidGrid(gridText);
     const gridRow = await manager.getRepository(QuasigeoidGridEntity).save({
       name: 'Demo quasigeoid 2026 (invented)', fileName: 'demo-quasigeoid-2026.txt', sha256: crypto.createHash('sha256').update(gridText).digest('hex'),
-      ...grid, heightsM: Array.from(grid.heightsM), uncertaintyM: 0.03, uploadedBy: ansel.name,
+      ...grid, heightsM: Array.from(grid.heightsM), uncertaintyM: 0.03, uploadedBy: ansel.name, createdAt: day('2026-01-08T10:00:00Z'),
     });
 
-    const site = async (s: { institute: string; name: string; ref: string; crs: string; coords: number[]; uH: number; zeta: { heightM: number; u: number } | 'grid'; tie: [string, number, number] }) => {
+    const site = async (s: { institute: string; name: string; ref: string; crs: string; coords: number[]; uH: number; zeta: { heightM: number; u: number } | 'grid'; tie: [string, number, number]; at: string }) => {
       const p = toGrs80Geodetic(s.crs, s.coords);
       const zetaM = s.zeta === 'grid' ? interpolateQuasigeoidHeight(grid, p.latitudeDeg, p.longitudeDeg) : s.zeta.heightM;
       return manager.getRepository(SiteEntity).save({
@@ -77,35 +88,43 @@ export const registrySeeder: Seeder = {
         xM: p.x, yM: p.y, zM: p.z, assumptions: p.assumptions,
         quasigeoidSource: s.zeta === 'grid' ? 'grid' : 'entered', quasigeoidGridId: s.zeta === 'grid' ? gridRow.id : null,
         quasigeoidHeightM: zetaM, quasigeoidUncertaintyM: s.zeta === 'grid' ? gridRow.uncertaintyM : s.zeta.u,
-        benchmarkCode: s.tie[0], tieHeightDifferenceM: s.tie[1], tieUncertaintyM: s.tie[2],
+        benchmarkCode: s.tie[0], tieHeightDifferenceM: s.tie[1], tieUncertaintyM: s.tie[2], createdAt: day(s.at), updatedAt: day(s.at),
       } as SiteRow);
     };
     // SCL is entered in ETRS89 / UTM 32N (E, N, h), HMO in ETRS89 geocentric X, Y, Z: both CRS kinds appear in the demo.
     const sclUtm = transform('EPSG:4937', 'EPSG:25832', [10.9004, 54.2003, 48.2]).map((v) => Math.round(v * 1000) / 1000);
-    const scl = await site({ institute: 'SCL', name: 'SCL clock hall', ref: 'Top of the brass reference mark on the optical table of lab 2, 1.10 m below the atoms', crs: 'EPSG:25832', coords: sclUtm, uH: 0.01, zeta: { heightM: 39.4, u: 0.02 }, tie: ['SCL-BM1', 1.8, 0.002] });
+    const scl = await site({ institute: 'SCL', name: 'SCL clock hall', ref: 'Top of the brass reference mark on the optical table of lab 2, 1.10 m below the atoms', crs: 'EPSG:25832', coords: sclUtm, uH: 0.01, zeta: { heightM: 39.4, u: 0.02 }, tie: ['SCL-BM1', 1.8, 0.002], at: '2026-01-12T09:30:00Z' });
     const hmoXyz = transform('EPSG:4937', 'EPSG:4936', [10.4008, 51.6005, 549.45 + inventedZeta(51.6005, 10.4008)]).map((v) => Math.round(v * 1000) / 1000);
-    const hmo = await site({ institute: 'HMO', name: 'HMO clock hall', ref: 'Centre of the steel pier plate under the lattice-clock vacuum chamber', crs: 'EPSG:4936', coords: hmoXyz, uH: 0.015, zeta: 'grid', tie: ['HMO-BM1', 1.25, 0.003] });
-    const hmoIon = await site({ institute: 'HMO', name: 'HMO ion lab', ref: 'Engraved cross on the ion-trap breadboard, ground floor of the east wing', crs: 'EPSG:4937', coords: [10.4029, 51.6014, 546.9 + inventedZeta(51.6014, 10.4029)], uH: 0.015, zeta: 'grid', tie: ['HMO-BM1', -1.3, 0.003] });
+    const hmo = await site({ institute: 'HMO', name: 'HMO clock hall', ref: 'Centre of the steel pier plate under the lattice-clock vacuum chamber', crs: 'EPSG:4936', coords: hmoXyz, uH: 0.015, zeta: 'grid', tie: ['HMO-BM1', 1.25, 0.003], at: '2026-01-13T14:00:00Z' });
+    const hmoIon = await site({ institute: 'HMO', name: 'HMO ion lab', ref: 'Engraved cross on the ion-trap breadboard, ground floor of the east wing', crs: 'EPSG:4937', coords: [10.4029, 51.6014, 546.9 + inventedZeta(51.6014, 10.4029)], uH: 0.015, zeta: 'grid', tie: ['HMO-BM1', -1.3, 0.003], at: '2026-01-13T14:20:00Z' });
 
-    const clock = async (c: { site: SiteRow; name: string; kind: ClockRow['kind']; species: ClockRow['species']; nu: string; notes: string; budgets: [BudgetRow[], string, typeof ines][] }) => {
-      const row = await manager.getRepository(ClockEntity).save({ siteId: c.site.id, instituteId: c.site.instituteId, name: c.name, kind: c.kind, species: c.species, nominalFrequencyHz: c.nu, notes: c.notes, currentBudgetVersion: c.budgets.length } as ClockRow);
+    const clock = async (c: { site: SiteRow; name: string; kind: ClockRow['kind']; species: ClockRow['species']; nu: string; notes: string; budgets: [BudgetRow[], string, typeof ines, string][] }) => {
+      const [created, last] = [day(c.budgets[0][3]), day(c.budgets[c.budgets.length - 1][3])];
+      const row = await manager.getRepository(ClockEntity).save({ siteId: c.site.id, instituteId: c.site.instituteId, name: c.name, kind: c.kind, species: c.species, nominalFrequencyHz: c.nu, notes: c.notes, currentBudgetVersion: c.budgets.length, createdAt: created, updatedAt: last } as ClockRow);
       const versions = [];
-      for (const [i, [rows, comment, by]] of c.budgets.entries()) {
-        versions.push(await manager.getRepository(ClockBudgetVersionEntity).save({ clockId: row.id, version: i + 1, rows, ...budgetTotals(rows), comment, createdByUserId: by.id, createdBy: by.name }));
+      for (const [i, [rows, comment, by, at]] of c.budgets.entries()) {
+        versions.push(await manager.getRepository(ClockBudgetVersionEntity).save({ clockId: row.id, version: i + 1, rows, ...budgetTotals(rows), comment, createdByUserId: by.id, createdBy: by.name, createdAt: day(at) }));
       }
       return { row, versions };
     };
-    const sr1 = await clock({ site: scl, name: 'SCL-Sr1', kind: 'optical_lattice', species: 'Sr87', nu: '429228004229873.0', notes: 'Invented demo clock: 1D lattice, cryogenic shield planned.', budgets: [[srBudget(1.1e-18, 1.5e-18, 0.8e-18), 'first version', ines]] });
-    const sr2 = await clock({ site: hmo, name: 'HMO-Sr2', kind: 'optical_lattice', species: 'Sr87', nu: '429228004229873.0', notes: 'Invented demo clock: transportable design on a fixed pier.', budgets: [[srBudget(2.4e-18, 1.9e-18, 1.0e-18), 'first version', mira], [srBudget(1.4e-18, 1.7e-18, 0.9e-18), 'new temperature sensors calibrated', mira]] });
-    const yb = await clock({ site: hmoIon, name: 'HMO-YbIon', kind: 'single_ion', species: 'Yb171+E3', nu: '642121496772645.0', notes: 'Invented demo clock: single ion, E3 transition.', budgets: [[ybBudget, 'first version', mira]] });
+    // Nominal frequencies are the in-use reference-table values of each species (CIPM 2009 list, registry migration),
+    // so the demo clocks and the reference-data page show the same number.
+    const sr87Hz = '429228004229873.7';
+    const yb171E3Hz = '642121496772657';
+    const sr1 = await clock({ site: scl, name: 'SCL-Sr1', kind: 'optical_lattice', species: 'Sr87', nu: sr87Hz, notes: 'Invented demo clock: 1D lattice, cryogenic shield planned.', budgets: [[srBudget(1.1e-18, 1.5e-18, 0.8e-18), 'first version', ines, '2026-01-14T10:05:00Z']] });
+    const sr2 = await clock({ site: hmo, name: 'HMO-Sr2', kind: 'optical_lattice', species: 'Sr87', nu: sr87Hz, notes: 'Invented demo clock: transportable design on a fixed pier.', budgets: [[srBudget(2.4e-18, 1.9e-18, 1.0e-18), 'first version', mira, '2026-01-15T11:00:00Z'], [srBudget(1.4e-18, 1.7e-18, 0.9e-18), 'new temperature sensors calibrated', mira, '2026-02-11T16:40:00Z']] });
+    const yb = await clock({ site: hmoIon, name: 'HMO-YbIon', kind: 'single_ion', species: 'Yb171+E3', nu: yb171E3Hz, notes: 'Invented demo clock: single ion, E3 transition.', budgets: [[ybBudget, 'first version', mira, '2026-01-16T09:20:00Z']] });
 
     const links = manager.getRepository(FibreLinkEntity);
-    const longLink = await links.save({ name: 'SCL–HMO long-haul', siteAId: scl.id, siteBId: hmo.id, fibreLengthKm: 420.6, fractionalUncertainty: 3e-19, notes: 'Invented: shared telecom fibre with two bidirectional amplifiers.' });
-    const localLink = await links.save({ name: 'HMO local', siteAId: hmo.id, siteBId: hmoIon.id, fibreLengthKm: 0.42, fractionalUncertainty: 1e-20, notes: 'Invented: noise-cancelled campus fibre.' });
+    const longLink = await links.save({ name: 'SCL–HMO long-haul', siteAId: scl.id, siteBId: hmo.id, fibreLengthKm: 420.6, fractionalUncertainty: 3e-19, notes: 'Invented: shared telecom fibre with two bidirectional amplifiers.', createdAt: day('2026-01-19T13:00:00Z'), updatedAt: day('2026-01-19T13:00:00Z') });
+    const localLink = await links.save({ name: 'HMO local', siteAId: hmo.id, siteBId: hmoIon.id, fibreLengthKm: 0.42, fractionalUncertainty: 1e-20, notes: 'Invented: noise-cancelled campus fibre.', createdAt: day('2026-01-19T13:10:00Z'), updatedAt: day('2026-01-19T13:10:00Z') });
 
     const srRatio = await defaultReferenceRatio(manager, 'Sr87', 'Sr87');
     const ybRatio = await defaultReferenceRatio(manager, 'Sr87', 'Yb171+E3');
     type Step = [CampaignState, string, typeof ines, string | null];
+    // The audit events the campaign service records for the same steps (campaign.created, campaign.<state>), written
+    // after all campaigns in time order so the hash chain runs forward in time.
+    const history: { at: Date; actor: Actor; input: AuditInput }[] = [];
     const campaign = async (name: string, a: typeof sr1, b: typeof sr1, link: { id: string }, start: string, end: string, notes: string, steps: Step[]) => {
       const ratio = a.row.species === b.row.species ? srRatio : ybRatio;
       const final = steps[steps.length - 1];
@@ -114,10 +133,16 @@ export const registrySeeder: Seeder = {
         referenceRatio: ratio.value, referenceRatioRelativeUncertainty: ratio.relativeUncertainty, referenceRatioSource: ratio.source, referenceRatioJustification: null,
         operatorNotes: notes, budgetVersionAId: a.versions[a.versions.length - 1].id, budgetVersionBId: b.versions[b.versions.length - 1].id,
         state: final[0], returnReason: final[0] === 'returned' ? final[3] : null, createdByUserId: steps[0][2].id, createdBy: steps[0][2].name,
+        createdAt: day(steps[0][1]), updatedAt: day(final[1]),
       } as CampaignRow);
       let prev: CampaignState | null = null;
       for (const [state, at, who, note] of steps) {
-        await manager.getRepository(CampaignEventEntity).insert({ campaignId: row.id, at: new Date(at), fromState: prev, toState: state, actorUserId: who.id, actorLabel: who.name, note });
+        await manager.getRepository(CampaignEventEntity).insert({ campaignId: row.id, at: day(at), fromState: prev, toState: state, actorUserId: who.id, actorLabel: who.name, note });
+        const details =
+          prev === null
+            ? { name, clockA: a.row.name, clockB: b.row.name, referenceRatio: ratio.value, budgetVersionA: a.versions.length, budgetVersionB: b.versions.length }
+            : { from: prev, to: state, note };
+        history.push({ at: day(at), actor: who.actor, input: { action: prev === null ? 'campaign.created' : `campaign.${state}`, entityType: 'campaign', entityId: row.id, instituteId: row.instituteId, details, at: day(at) } });
         prev = state;
       }
       return row;
@@ -136,16 +161,13 @@ export const registrySeeder: Seeder = {
       ev('draft', '2026-09-01T07:50:00Z', ines, 'created'), ev('submitted', '2026-11-24T10:15:00Z', ines),
     ]);
     await campaign('SCL–HMO Sr winter run 2026', sr1, sr2, longLink, '2026-11-02T00:00:00Z', '2026-11-20T00:00:00Z', 'Invented demo campaign.', [
-      ev('draft', '2026-10-27T13:00:00Z', tomasOr(ines, userIds), 'created'), ev('submitted', '2026-11-23T09:00:00Z', ines), ev('in_review', '2026-11-25T08:30:00Z', ansel),
+      ev('draft', '2026-10-27T13:00:00Z', tomas, 'created'), ev('submitted', '2026-11-23T09:00:00Z', ines), ev('in_review', '2026-11-25T08:30:00Z', ansel),
       ev('returned', '2026-11-27T15:05:00Z', ansel, 'The operator notes do not say how the link noise was checked during the run; please add the amplifier log summary and resubmit.'),
     ]);
     await campaign('SCL–HMO Sr run January 2027', sr1, sr2, longLink, '2027-01-11T00:00:00Z', '2027-01-29T00:00:00Z', 'Invented demo campaign, being prepared.', [ev('draft', '2026-11-30T10:00:00Z', ines, 'created')]);
     await campaign('HMO Yb⁺/Sr local ratio, December 2026', sr2, yb, localLink, '2026-12-07T00:00:00Z', '2026-12-18T00:00:00Z', 'Invented demo campaign, being prepared.', [ev('draft', '2026-11-29T09:00:00Z', mira, 'created')]);
+    history.sort((x, y) => x.at.getTime() - y.at.getTime());
+    for (const h of history) await recordAudit(manager, h.actor, h.input);
     await recordAudit(manager, null, { action: 'demo.registry-seeded', entityType: 'database', details: { scenario: 'invented demo registry: 3 sites, 3 clocks, 2 links, 7 campaigns' } });
   },
 };
-
-function tomasOr(fallback: { id: string; name: string }, userIds: Record<string, string>) {
-  const id = userIds['tomas.reyland@saltmarsh-lab.invalid'];
-  return id ? { id, name: 'Tomas Reyland' } : fallback;
-}

@@ -8,6 +8,8 @@ export type AuditInput = {
   entityId?: string | null;
   instituteId?: string | null;
   details?: Record<string, unknown>;
+  /** Only for the demo seed's invented history; real events take the database's now(). */
+  at?: Date;
 };
 
 /** Appends one event to the hash-chained audit trail, inside the caller's transaction. */
@@ -20,6 +22,7 @@ export async function recordAudit(manager: EntityManager, actor: Actor | null, i
     entityId: input.entityId ?? null,
     instituteId: input.instituteId ?? null,
     details: (input.details ?? {}) as never,
+    ...(input.at ? { at: input.at } : {}),
   });
 }
 

@@ -58,6 +58,37 @@ describe('the demo scenario', () => {
   });
 });
 
+describe('audit trail of campaigns', () => {
+  type Ev = { action: string; at: string; entityType: string; entityId: string; actorLabel: string };
+  const trail = async (id: string): Promise<Ev[]> => {
+    const res = await as('auditor').get(`/api/v1/audit-events?entityType=campaign&entityId=${id}&pageSize=100`);
+    expect(res.status).toBe(200);
+    return [...res.body.items].reverse(); // the API lists newest first
+  };
+
+  it('the seeded spring run has one audit event per timeline step, same actions and times as the service would record', async () => {
+    const id = ids['SCL–HMO Sr spring run 2026'];
+    const events = (await trail(id)).filter((e) => e.action.startsWith('campaign.') && e.action !== 'campaign.certified'); // later seeders add result/certificate steps
+    expect(events.map((e) => e.action)).toEqual(['campaign.created', 'campaign.submitted', 'campaign.in_review', 'campaign.accepted']);
+    const timeline = (await as('coord').get(`/api/v1/campaigns/${id}`)).body.timeline.slice(0, 4);
+    expect(events.map((e) => e.at)).toEqual(timeline.map((e: { at: string }) => e.at));
+    expect(events[0].actorLabel).toMatch(/^Ines Varga </);
+    expect(events[3].actorLabel).toMatch(/^Ansel Brandt </);
+    const [camp] = await t.ds.query('SELECT created_at FROM campaign WHERE id = $1', [id]);
+    expect(new Date(camp.created_at).toISOString()).toBe(timeline[0].at);
+  });
+
+  it('create → submit → start-review → accept through the API lists all four events', async () => {
+    const id = (await as('scl').post('/api/v1/campaigns', newCampaign('Audit trail check 91c2'))).body.id;
+    expect((await as('scl').post(`/api/v1/campaigns/${id}/submit`)).status).toBe(200);
+    expect((await as('coord').post(`/api/v1/campaigns/${id}/start-review`)).status).toBe(200);
+    expect((await as('coord').post(`/api/v1/campaigns/${id}/accept`)).status).toBe(200);
+    const events = await trail(id);
+    expect(events.map((e) => e.action)).toEqual(['campaign.created', 'campaign.submitted', 'campaign.in_review', 'campaign.accepted']);
+    expect(events.every((e) => e.entityType === 'campaign' && e.entityId === id)).toBe(true);
+  });
+});
+
 describe('creating and editing', () => {
   let id = '';
   it('opens a draft with budgets pinned to the current versions and ratio 1 for the same species', async () => {
@@ -199,7 +230,8 @@ describe('review state machine', () => {
     expect(detail.body.timeline.at(-1)).toMatchObject({ fromState: 'accepted', toState: 'certified' });
 
     const r = await t.ds.transaction((m) => getCampaignForResult(m, id));
-    expect(r.clockA).toMatchObject({ name: 'SCL-Sr1', species: 'Sr87', nominalFrequencyHz: '429228004229873.0', instituteCode: 'SCL' });
+    // The demo clock's nominal frequency is the in-use ⁸⁷Sr reference value, 429 228 004 229 873.7 Hz (CIPM 2009, references.md §7)
+    expect(r.clockA).toMatchObject({ name: 'SCL-Sr1', species: 'Sr87', nominalFrequencyHz: '429228004229873.7', instituteCode: 'SCL' });
     expect(r.clockB.site.name).toBe('HMO clock hall');
     expect(r.clockA.budget.version).toBe(2); // pinned at creation, after the test above added version 2
     expect(r.clockA.site.normalHeightM).toBeCloseTo(r.clockA.site.ellipsoidalHeightM - r.clockA.site.quasigeoidHeightM, 12);
