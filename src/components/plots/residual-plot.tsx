@@ -6,17 +6,35 @@ import { scaleLinear } from 'd3-scale';
 
 export type ResidualItem = { id: string; label: string; value: number | null; onClick?: () => void };
 
+/** About 6.2 px per character at 11 px sans-serif (common practice for a fixed estimate without measuring text). */
+const CHAR_PX = 6.2;
+const MAX_LABEL_CHARS = 64;
+
+/** Splits a label that is too long for one line at the space nearest its middle (two lines at most, never cut). */
+export function wrapLabel(label: string, maxChars: number): string[] {
+  if (label.length <= maxChars) return [label];
+  const mid = label.length / 2;
+  let best = -1;
+  for (let i = 0; i < label.length; i++) if (label[i] === ' ' && (best < 0 || Math.abs(i - mid) < Math.abs(best - mid))) best = i;
+  return best < 0 ? [label] : [label.slice(0, best), label.slice(best + 1)];
+}
+
 export function ResidualPlot({ items, critical, axisLabel, title }: { items: ResidualItem[]; critical: number; axisLabel: string; title: string }) {
-  const rowH = 18;
-  const margin = { top: 28, right: 24, bottom: 40, left: 220 };
-  const width = 760;
   const shown = items.filter((i) => i.value !== null);
+  // The label column grows with the longest label; longer ones wrap onto a second line instead of being cut.
+  const longest = Math.min(MAX_LABEL_CHARS, Math.max(8, ...shown.map((i) => i.label.length)));
+  const lines = shown.map((i) => wrapLabel(i.label, MAX_LABEL_CHARS));
+  const wrapped = lines.some((l) => l.length > 1);
+  const rowH = wrapped ? 30 : 18;
+  const labelW = Math.max(...lines.flat().map((l) => l.length), longest) * CHAR_PX + 16;
+  const margin = { top: 28, right: 24, bottom: 40, left: Math.round(labelW) };
+  const width = margin.left + 560;
   const height = margin.top + margin.bottom + Math.max(1, shown.length) * rowH;
   const maxAbs = Math.max(critical * 1.3, ...shown.map((i) => Math.abs(i.value!)));
   const x = scaleLinear().domain([-maxAbs, maxAbs]).range([margin.left, width - margin.right]).nice();
   const ticks = x.ticks(8);
   return (
-    <svg role="img" aria-label={title} viewBox={`0 0 ${width} ${height}`} className="w-full max-w-3xl font-sans text-[11px]">
+    <svg role="img" aria-label={title} viewBox={`0 0 ${width} ${height}`} className="w-full max-w-5xl font-sans text-[11px]">
       <title>{title}</title>
       {ticks.map((t) => (
         <g key={t}>
@@ -37,7 +55,10 @@ export function ResidualPlot({ items, critical, axisLabel, title }: { items: Res
         const cx = x(item.value!);
         return (
           <g key={item.id} onClick={item.onClick} className={item.onClick ? 'cursor-pointer' : undefined}>
-            <text x={margin.left - 8} y={y + 4} textAnchor="end" className={out ? 'fill-disagree-800 font-semibold' : 'fill-ink-700'}>{item.label.length > 34 ? `${item.label.slice(0, 33)}…` : item.label}</text>
+            <title>{`${item.label}: ${item.value!.toFixed(2)}`}</title>
+            <text x={margin.left - 8} y={y + 4 - (lines[i].length - 1) * 6} textAnchor="end" className={out ? 'fill-disagree-800 font-semibold' : 'fill-ink-700'}>
+              {lines[i].map((l, k) => <tspan key={k} x={margin.left - 8} dy={k === 0 ? 0 : 12}>{l}</tspan>)}
+            </text>
             <line x1={x(0)} x2={cx} y1={y} y2={y} className={out ? 'stroke-disagree-600' : 'stroke-ink-300'} strokeWidth={2} />
             {out
               ? <path d={`M${cx},${y - 6} L${cx + 6},${y} L${cx},${y + 6} L${cx - 6},${y} Z`} className="fill-disagree-600" />

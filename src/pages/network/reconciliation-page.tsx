@@ -4,6 +4,7 @@ import { ResidualPlot } from '../../components/plots/residual-plot';
 import { Caution, EmptyState, Panel } from '../../components/ui';
 import { fmt, when } from './format';
 import { NetworkNav } from './network-nav';
+import type { ReconciliationVerdict } from '../../../shared/network';
 
 export function ReconciliationPage() {
   const rec = useReconciliation();
@@ -22,26 +23,35 @@ export function ReconciliationPage() {
           <Panel title="Potential differences per clock link">
             <p className="mb-2 text-xs text-ink-500">
               Levelling side: adjustment run {r.levellingRunId ? <Link to={`/network/runs/${r.levellingRunId}`}>of {when(r.levellingRunAt)}</Link> : '—'} without clock observations.
-              E_n = (ΔC_clock − ΔC_levelling) / √(U_clock² + U_levelling²) (ISO 13528); |E_n| ≤ 1 means agreement.
+              E_n = (ΔC_clock − ΔC_levelling) / √(U_clock² + U_levelling²) (ISO 13528); |E_n| ≤ 1 means agreement. E_n is given only where both sites' heights are in one datum or levelling connects their datums; otherwise the levelled ΔC contains the unknown offset between the datums.
             </p>
             <div className="overflow-x-auto">
               <table className="min-w-full text-sm">
-                <thead className="text-left text-ink-600">
-                  <tr><th>Link / campaign</th><th>From → to</th><th>Clock ΔC ± U (m²/s²)</th><th>Levelling ΔC ± U (m²/s²)</th><th>Difference (m²/s²)</th><th>E_n</th><th>Verdict</th></tr>
+                <thead className="text-left align-bottom text-ink-600">
+                  <tr>
+                    <th className="py-1 pr-4">Link / campaign</th><th className="pr-4">From → to</th>
+                    <th className="pr-4 text-right">Clock ΔC<span className="block text-xs font-normal">m²/s², ± U (k = 2)</span></th>
+                    <th className="pr-4 text-right">Levelling ΔC<span className="block text-xs font-normal">m²/s², ± U (k = 2)</span></th>
+                    <th className="pr-4 text-right">Clock − levelling<span className="block text-xs font-normal">m²/s²</span></th>
+                    <th className="pr-4 text-right">E_n</th><th>Verdict</th>
+                  </tr>
                 </thead>
                 <tbody>
                   {r.rows.map((row) => (
-                    <tr key={row.campaignId} className="border-t border-paper-200 align-top">
-                      <td>{row.linkLabel}<span className="block text-xs text-ink-500">{row.campaignLabel}</span></td>
-                      <td>{row.fromSite} → {row.toSite}</td>
-                      <td>{fmt(row.clockDeltaC_m2s2, 3)} ± {fmt(row.clockExpandedU_m2s2, 3)}</td>
-                      <td>{row.levellingDeltaC_m2s2 === null ? '—' : `${fmt(row.levellingDeltaC_m2s2, 3)} ± ${fmt(row.levellingExpandedU_m2s2, 3)}`}</td>
-                      <td>{fmt(row.difference_m2s2, 3)}</td>
-                      <td>{fmt(row.en, 2)}</td>
-                      <td>{row.agreed === null ? '—' : row.agreed
-                        ? <span className="rounded bg-agree-100 px-2 py-0.5 font-semibold text-agree-800">✓ agreed</span>
-                        : <span className="rounded bg-disagree-100 px-2 py-0.5 font-semibold text-disagree-800">✕ not agreed</span>}
+                    <tr key={row.campaignId} className="border-t border-paper-200 align-top" data-testid="reconciliation-row">
+                      <td className="py-1 pr-4">{row.linkLabel}<span className="block text-xs text-ink-500">{row.campaignLabel}</span></td>
+                      <td className="pr-4">{row.fromSite} → {row.toSite}
+                        {row.fromDatum && row.toDatum && <span className="block text-xs text-ink-500">{row.fromDatum === row.toDatum ? row.fromDatum : `${row.fromDatum} → ${row.toDatum}`}</span>}
+                      </td>
+                      <td className="whitespace-nowrap pr-4 text-right tabular-nums">{fmt(row.clockDeltaC_m2s2, 3)} ± {fmt(row.clockExpandedU_m2s2, 3)}</td>
+                      <td className="whitespace-nowrap pr-4 text-right tabular-nums">{row.levellingDeltaC_m2s2 === null ? '—' : `${fmt(row.levellingDeltaC_m2s2, 3)} ± ${fmt(row.levellingExpandedU_m2s2, 3)}`}</td>
+                      <td className="whitespace-nowrap pr-4 text-right tabular-nums">{fmt(row.difference_m2s2, 3)}{row.verdict === 'not-comparable' && <span className="block text-xs text-ink-500">includes the datum offset</span>}</td>
+                      <td className="whitespace-nowrap pr-4 text-right tabular-nums">{row.comparable ? fmt(row.en, 2) : <span className="text-ink-400" title="E_n is not meaningful here">n/a</span>}</td>
+                      <td className="max-w-sm"><Verdict verdict={row.verdict} />
                         {row.note && <span className="mt-1 block text-xs text-ink-500">{row.note}</span>}
+                        {row.verdict === 'not-comparable' && (
+                          <span className="mt-1 block text-xs">{r.datumOffsets.length > 0 ? <a href="#datum-offsets">See the datum-offset estimate below ↓</a> : <Link to="/network/runs">Start a run that includes the clocks (with the datum-offset parameter) →</Link>}</span>
+                        )}
                       </td>
                     </tr>
                   ))}
@@ -49,12 +59,26 @@ export function ReconciliationPage() {
               </table>
             </div>
           </Panel>
-          <Panel title="E_n per link">
-            <ResidualPlot title="Normalised error E_n per clock link" axisLabel="E_n (dashed: ±1)" critical={1}
-              items={r.rows.map((row) => ({ id: row.campaignId, label: row.linkLabel, value: row.en }))} />
+          <Panel title="E_n per campaign">
+            {r.rows.some((row) => row.comparable)
+              ? <ResidualPlot title="Normalised error E_n per clock campaign" axisLabel="E_n (dashed: ±1)" critical={1}
+                items={r.rows.filter((row) => row.comparable).map((row) => ({ id: row.campaignId, label: `${row.campaignLabel} (${row.linkLabel})`, value: row.en }))} />
+              : <p className="text-sm text-ink-500">No campaign can be compared with the levelling yet.</p>}
+            {r.rows.some((row) => row.verdict === 'not-comparable') && (
+              <p className="mt-1 text-xs text-ink-500">Campaigns whose sites lie in two datums that no levelling connects are left out: their E_n would test the datum offset, not the clocks.</p>
+            )}
           </Panel>
+          {r.datumOffsets.length === 0 && r.rows.some((row) => row.verdict === 'not-comparable') && (
+            <Panel title="Datum offsets estimated from clocks">
+              <p className="text-sm text-ink-600">
+                No finished adjustment run includes the clocks yet. A run with “include clock comparisons” and the datum-offset parameter estimates
+                the offset between datums that levelling does not connect: <Link to="/network/runs">start one on the adjustment runs page</Link>.
+              </p>
+            </Panel>
+          )}
           {r.datumOffsets.length > 0 && (
             <Panel title="Datum offsets estimated from clocks">
+              <span id="datum-offsets" />
               <p className="mb-1 text-xs text-ink-500">From the latest run with clock observations: offset = clock ΔC − levelled ΔC across the two datums (negative: the second datum's numbers are too large).</p>
               <ul className="text-sm">{r.datumOffsets.map((d) => <li key={d.name}>{d.name}: {fmt(d.value_m2s2, 3)} ± {fmt(2 * d.sigma_m2s2, 3)} m²/s² (k = 2), about {fmt(d.valueMm, 0)} ± {fmt(2 * d.sigmaMm, 0)} mm</li>)}</ul>
             </Panel>
@@ -63,4 +87,17 @@ export function ReconciliationPage() {
       )}
     </>
   );
+}
+
+const verdictText: Record<ReconciliationVerdict, string> = {
+  'agreed': '✓ agreed',
+  'not-agreed': '✕ not agreed',
+  'not-comparable': '○ not comparable — datums not connected by levelling',
+  'no-levelling': '— no levelled ΔC',
+};
+
+/** Shape and words carry the verdict; only the two real verdicts get the agree/disagree colours. */
+function Verdict({ verdict }: { verdict: ReconciliationVerdict }) {
+  const cls = verdict === 'agreed' ? 'bg-agree-100 text-agree-800' : verdict === 'not-agreed' ? 'bg-disagree-100 text-disagree-800' : 'bg-paper-100 text-ink-700';
+  return <span data-testid="verdict" className={`inline-block rounded px-2 py-0.5 font-semibold ${cls}`}>{verdictText[verdict]}</span>;
 }
