@@ -2,9 +2,9 @@ import type { ButtonHTMLAttributes, ReactNode } from 'react';
 
 export function Button({ variant = 'primary', className = '', ...rest }: ButtonHTMLAttributes<HTMLButtonElement> & { variant?: 'primary' | 'quiet' | 'danger' }) {
   const styles = {
-    primary: 'bg-ink-700 text-paper-50 hover:bg-ink-600 disabled:bg-ink-300',
-    quiet: 'bg-white text-ink-700 border border-ink-200 hover:bg-ink-50',
-    danger: 'bg-disagree-600 text-white hover:bg-disagree-800',
+    primary: 'bg-ink-700 text-paper-50 hover:bg-ink-600 disabled:bg-ink-300 disabled:hover:bg-ink-300',
+    quiet: 'bg-white text-ink-700 border border-ink-200 hover:bg-ink-50 disabled:border-dashed disabled:bg-paper-100 disabled:text-ink-300 disabled:hover:bg-paper-100',
+    danger: 'bg-disagree-600 text-white hover:bg-disagree-800 disabled:bg-disagree-100 disabled:text-disagree-600 disabled:hover:bg-disagree-100',
   }[variant];
   return <button className={`rounded-md px-3 py-1.5 text-sm font-medium transition-colors disabled:cursor-not-allowed ${styles} ${className}`} {...rest} />;
 }

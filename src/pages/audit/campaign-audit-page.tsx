@@ -1,8 +1,12 @@
+import type { ReactNode } from 'react';
 import { Link, useParams } from 'react-router';
+import { campaignStateLabels, type CampaignState } from '../../../shared/campaigns';
+import { useCampaign } from '../../api/campaigns';
 import { useCampaignAuditTrail, useCampaignCertificates } from '../../api/certificates';
 import { EmptyState, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { CampaignCertificatesPanel } from '../certificates/campaign-certificates-panel';
+import { sci } from '../registry/registry-ui';
 
 // The campaign's audit trail as a timeline: its own events and those of its certificates, oldest first.
 
@@ -10,23 +14,90 @@ function actionLabel(action: string): string {
   return action.replace(/^[a-z]+\./, '').replace(/[-_.]/g, ' ');
 }
 
-function detailLine(details: Record<string, unknown>): string | null {
-  const keep = ['reason', 'note', 'supersedes', 'supersededBy', 'from', 'to', 'fromState', 'toState', 'pdfSha256'];
-  const parts = keep.filter((k) => details[k] !== undefined && details[k] !== null).map((k) => `${k}: ${String(details[k])}`);
-  return parts.length ? parts.join(' · ') : null;
+/** Human labels for the detail fields the services record; unknown fields fall back to a spelled-out key. */
+const detailLabels: Record<string, string> = {
+  name: 'Name',
+  clockA: 'Clock A',
+  clockB: 'Clock B',
+  referenceRatio: 'Reference ratio ν_B/ν_A',
+  budgetVersionA: 'Budget version, clock A',
+  budgetVersionB: 'Budget version, clock B',
+  from: 'From',
+  to: 'To',
+  fromState: 'From',
+  toState: 'To',
+  note: 'Note',
+  reason: 'Reason',
+  changed: 'Changed',
+  before: 'Before',
+  after: 'After',
+  resultId: 'Result record',
+  inputHash: 'Input fingerprint (SHA-256)',
+  forced: 'Recomputed on request',
+  softwareVersion: 'Software version',
+  y: 'Fractional offset y',
+  uY: 'Standard uncertainty of y (k = 1)',
+  pdfSha256: 'PDF fingerprint (SHA-256)',
+  auditChainHead: 'Audit chain head at signing',
+  supersedes: 'Replaces certificate',
+  supersededBy: 'Replaced by certificate',
+  linkId: 'Fibre link record',
+  operatorNotes: 'Operator notes',
+  periodStart: 'Period start',
+  periodEnd: 'Period end',
+};
+/** Already shown by the page itself. */
+const hiddenKeys = new Set(['campaignId']);
+
+const spellOut = (key: string) => key.replace(/([a-z])([A-Z])/g, '$1 $2').replace(/^./, (c) => c.toUpperCase()).replace(/ ([A-Z])(?=[a-z])/g, (_, c: string) => ` ${c.toLowerCase()}`);
+const labelOf = (key: string) => detailLabels[key] ?? spellOut(key);
+const isState = (v: unknown): v is CampaignState => typeof v === 'string' && v in campaignStateLabels;
+
+function valueOf(key: string, v: unknown): ReactNode {
+  if (v === null || v === undefined || v === '') return '—';
+  if (typeof v === 'boolean') return v ? 'yes' : 'no';
+  if (typeof v === 'number') return key === 'y' || key === 'uY' ? sci(v, 3) : String(v);
+  if (Array.isArray(v)) return v.map((x) => (typeof x === 'string' ? labelOf(x) : JSON.stringify(x))).join(', ');
+  if (typeof v === 'object') {
+    const entries = Object.entries(v as Record<string, unknown>).filter(([, x]) => x !== undefined);
+    return entries.length ? entries.map(([k, x]) => `${labelOf(k)}: ${typeof x === 'object' && x !== null ? JSON.stringify(x) : String(x)}`).join(' · ') : '—';
+  }
+  if (['from', 'to', 'fromState', 'toState'].includes(key) && isState(v)) return campaignStateLabels[v];
+  if (/sha256|hash|chainhead/i.test(key)) return <span className="break-all font-mono">{String(v)}</span>;
+  return String(v);
+}
+
+function Details({ details }: { details: Record<string, unknown> }) {
+  const entries = Object.entries(details ?? {}).filter(([k, v]) => !hiddenKeys.has(k) && v !== undefined && !(k === 'note' && v === null));
+  if (!entries.length) return null;
+  return (
+    <dl className="mt-1 grid grid-cols-[max-content_1fr] gap-x-4 gap-y-0.5 text-xs" data-testid="audit-details">
+      {entries.map(([k, v]) => (
+        <div key={k} className="contents">
+          <dt className="text-ink-500">{labelOf(k)}</dt>
+          <dd className="min-w-0 text-ink-700">{valueOf(k, v)}</dd>
+        </div>
+      ))}
+    </dl>
+  );
 }
 
 export function CampaignAuditPage() {
   const { id = '' } = useParams();
+  const campaign = useCampaign(id);
   const certificates = useCampaignCertificates(id);
   const numbers = (certificates.data?.items ?? []).map((c) => c.number);
   const trail = useCampaignAuditTrail(id, numbers, certificates.isSuccess);
+  const name = campaign.data?.name ?? (campaign.isError ? 'campaign' : '…');
   return (
     <>
       <header>
-        <p className="text-sm text-ink-500"><Link to="/certificates">Certificates</Link> / audit trail</p>
-        <h1>Audit trail of the campaign</h1>
-        <p className="font-mono text-xs text-ink-500">{id}</p>
+        <p className="text-sm text-ink-500">
+          <Link to="/campaigns">Campaigns</Link> / {campaign.data ? <Link to={`/campaigns/${id}`}>{campaign.data.name}</Link> : name} / audit trail
+        </p>
+        <h1>Audit trail: {name}</h1>
+        {campaign.data && <p className="text-sm text-ink-500">{campaignStateLabels[campaign.data.state]} · {campaign.data.clockA.name} – {campaign.data.clockB.name}</p>}
+        {campaign.isError && <p className="text-sm text-ink-500">{describeError(campaign.error)}</p>}
       </header>
       <CampaignCertificatesPanel campaignId={id} />
       <Panel title="Timeline">
@@ -40,8 +111,8 @@ export function CampaignAuditPage() {
                 <span className="font-medium">{actionLabel(e.action)}</span>
                 <span className="text-ink-500"> · {e.entityType === 'certificate' ? <Link to={`/certificates/${e.entityId}`} className="font-mono">{e.entityId}</Link> : 'campaign'}</span>
               </p>
-              <p className="text-xs text-ink-500">{e.at.replace('T', ' ').slice(0, 19)} UTC · {e.actorLabel}</p>
-              {detailLine(e.details) && <p className="mt-0.5 text-xs text-ink-700">{detailLine(e.details)}</p>}
+              <p className="text-xs text-ink-500">{e.at.replace('T', ' ').slice(0, 16)} UTC · {e.actorLabel}</p>
+              <Details details={e.details} />
               <p className="font-mono text-[10px] text-ink-400" title="hash of this event in the chain">#{e.id} · {e.hash.slice(0, 16)}…</p>
             </li>
           ))}

@@ -9,7 +9,7 @@ import { describeError } from '../../lib/api-client';
 import { CampaignCertificatesPanel } from '../certificates/campaign-certificates-panel';
 import { CampaignUploadsPanel } from '../uploads/campaign-uploads-panel';
 import { BudgetTable } from '../registry/budget-editor';
-import { applyServerErrors, Facts, FormError, sci } from '../registry/registry-ui';
+import { applyServerErrors, Facts, FormError, groupDigits, sci } from '../registry/registry-ui';
 import { CampaignStateBadge } from './campaign-state';
 
 // The campaign page is a stack of sections; other features insert theirs as one line each (uploads, results).
@@ -95,9 +95,9 @@ function ClockFacts({ label, clock, budget, current }: { label: string; clock: C
         ['Clock', <Link key="c" to={`/clocks/${clock.id}`}>{clock.name}</Link>],
         ['Institute', clock.institute.code],
         ['Species', clock.speciesLabel],
-        ['Nominal frequency', <span key="f" className="font-mono">{clock.nominalFrequencyHz} Hz</span>],
+        ['Nominal frequency', <span key="f" className="font-mono" title={clock.nominalFrequencyHz}>{groupDigits(clock.nominalFrequencyHz)} Hz</span>],
         ['Site', <Link key="s" to={`/sites/${clock.site.id}`}>{clock.site.name}</Link>],
-        ['Budget', <span key="b">version {budget.version}{current !== budget.version ? <span className="text-brass-600"> (version {current} is newer)</span> : ''}, u = {sci(budget.totalUncertainty)}</span>],
+        ['Budget', <span key="b">version {budget.version}{current !== budget.version ? <span className="text-brass-600"> (version {current} is newer)</span> : ''}, standard uncertainty u = {sci(budget.totalUncertainty)} (k = 1)</span>],
       ]} />
     </div>
   );
@@ -115,7 +115,7 @@ function CampaignOverview({ campaign: c }: { campaign: Campaign }) {
           ['Link', <Link key="l" to={`/links/${c.link.id}`}>{c.link.name}</Link>],
           ['Period', `${c.periodStart.slice(0, 16).replace('T', ' ')} – ${c.periodEnd.slice(0, 16).replace('T', ' ')} UTC`],
           ['Reference ratio ν_B/ν_A', <span key="r" className="font-mono" data-testid="reference-ratio">{c.referenceRatio.value}</span>],
-          ['Its relative uncertainty', `${sci(c.referenceRatio.relativeUncertainty, 2)} (k = 1)`],
+          ['Its relative uncertainty', c.clockA.species === c.clockB.species && c.referenceRatio.value === '1' && c.referenceRatio.relativeUncertainty === 0 ? 'exact (same species: R₀ = 1)' : `${sci(c.referenceRatio.relativeUncertainty, 2)} (standard, k = 1)`],
           ['Source', c.referenceRatio.source],
           ...(c.referenceRatio.justification ? [['Why not the default', c.referenceRatio.justification] as [string, string]] : []),
           ['Operator notes', c.operatorNotes || '—'],

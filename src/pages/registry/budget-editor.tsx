@@ -47,7 +47,7 @@ export function BudgetEditor<F extends AnyForm>({ name, control, register: regis
             <tr className="border-t-2 border-ink-200 font-semibold">
               <td className="py-1.5">Total</td>
               <td className="font-mono" data-testid="budget-total-correction">{sci(totalCorrection, 4)}</td>
-              <td className="font-mono" data-testid="budget-total-uncertainty">{sci(totalU, 3)} (RSS)</td>
+              <td className="font-mono" data-testid="budget-total-uncertainty">{sci(totalU, 3)} (RSS, k = 1)</td>
               <td colSpan={3} />
             </tr>
           </tfoot>

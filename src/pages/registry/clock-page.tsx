@@ -8,7 +8,7 @@ import { useAddBudgetVersion, useBudgetVersions, useClock } from '../../api/regi
 import { Button, EmptyState, Field, inputClass, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { BudgetEditor, BudgetTable } from './budget-editor';
-import { applyServerErrors, Facts, FormError, sci } from './registry-ui';
+import { applyServerErrors, Facts, FormError, groupDigits, sci } from './registry-ui';
 
 export function ClockPage() {
   const { id = '' } = useParams();
@@ -31,7 +31,7 @@ export function ClockPage() {
         <Facts items={[
           ['Kind', clockKindLabels[c.kind]],
           ['Species / transition', c.speciesLabel],
-          ['Nominal frequency', <span key="f" className="font-mono">{c.nominalFrequencyHz} Hz</span>],
+          ['Nominal frequency', <span key="f" className="font-mono" title={c.nominalFrequencyHz}>{groupDigits(c.nominalFrequencyHz)} Hz</span>],
           ['Site', <Link key="s" to={`/sites/${c.site.id}`}>{c.site.name}</Link>],
           ['Notes', c.notes || '—'],
         ]} />

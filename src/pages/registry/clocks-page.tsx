@@ -9,7 +9,7 @@ import { useClocks, useCreateClock, useSites } from '../../api/registry';
 import { DataTable, type TableState } from '../../components/data-table';
 import { Button, Field, inputClass, Panel } from '../../components/ui';
 import { BudgetEditor } from './budget-editor';
-import { applyServerErrors, FormError, sci, selectClass } from './registry-ui';
+import { applyServerErrors, FormError, groupDigits, sci, selectClass } from './registry-ui';
 
 const col = createColumnHelper<Clock>();
 const columns = [
@@ -18,7 +18,7 @@ const columns = [
   col.accessor('kind', { header: 'Kind', cell: (c) => clockKindLabels[c.getValue()] }),
   col.accessor((c) => c.site.name, { id: 'site', header: 'Site' }),
   col.accessor((c) => c.institute.code, { id: 'institute', header: 'Institute' }),
-  col.accessor('nominalFrequencyHz', { header: 'Nominal frequency (Hz)', enableSorting: false, cell: (c) => <span className="font-mono">{c.getValue()}</span> }),
+  col.accessor('nominalFrequencyHz', { header: 'Nominal frequency (Hz)', enableSorting: false, cell: (c) => <span className="whitespace-nowrap font-mono">{groupDigits(c.getValue())}</span> }),
   col.accessor((c) => c.currentBudget?.totalUncertainty ?? null, { id: 'budget', header: 'Systematic u (k = 1)', enableSorting: false, cell: (c) => `${sci(c.getValue())} (v${c.row.original.currentBudget?.version ?? '—'})` }),
 ];
 

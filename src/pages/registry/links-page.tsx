@@ -16,10 +16,10 @@ const col = createColumnHelper<FibreLink>();
 const columns = [
   col.accessor('name', { header: 'Link', cell: (c) => <Link to={`/links/${c.row.original.id}`}>{c.getValue()}</Link> }),
   col.accessor((l) => `${l.siteA.name} (${l.siteA.instituteCode}) – ${l.siteB.name} (${l.siteB.instituteCode})`, { id: 'ends', header: 'Sites', enableSorting: false }),
-  col.accessor('fibreLengthKm', { header: 'Fibre (km)', cell: (c) => fixed(c.getValue(), 2) }),
+  col.accessor('fibreLengthKm', { header: 'Fibre (km)', cell: (c) => fixed(c.getValue(), 3) }),
   col.accessor('geodesicDistanceKm', { header: 'Geodesic (km)', enableSorting: false, cell: (c) => fixed(c.getValue(), 3) }),
   col.accessor('chordDistanceKm', { header: 'Chord (km)', enableSorting: false, cell: (c) => fixed(c.getValue(), 3) }),
-  col.accessor('fractionalUncertainty', { header: 'Link u (fractional)', cell: (c) => sci(c.getValue()) }),
+  col.accessor('fractionalUncertainty', { header: 'Link u, fractional (k = 1)', cell: (c) => sci(c.getValue()) }),
 ];
 
 export function LinksPage() {

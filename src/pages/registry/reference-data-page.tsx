@@ -6,7 +6,7 @@ import { useMe } from '../../api/account';
 import { useCreateReference, useGrids, useReferences, useUpdateReference, useUploadGrid } from '../../api/registry';
 import { Button, Field, inputClass, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
-import { applyServerErrors, fixed, FormError, sci, selectClass } from './registry-ui';
+import { applyServerErrors, fixed, FormError, groupDigits, sci, selectClass } from './registry-ui';
 
 // Reference frequencies (default reference ratios of campaigns) and quasigeoid grids; the coordinating institute keeps both.
 
@@ -29,7 +29,7 @@ export function ReferenceDataPage() {
             {refs.data?.map((r) => (
               <tr key={r.id} className={`border-t border-paper-200 align-top ${r.inUse ? '' : 'text-ink-500'}`}>
                 <td className="py-1.5 pr-4">{r.speciesLabel}</td>
-                <td className="whitespace-nowrap pr-4 font-mono">{r.frequencyHz}</td>
+                <td className="whitespace-nowrap pr-4 font-mono" title={r.frequencyHz}>{groupDigits(r.frequencyHz)}</td>
                 <td className="whitespace-nowrap pr-4 font-mono">{sci(r.relativeUncertainty, 2)}</td>
                 <td className={`pr-4 ${/from memory/.test(r.source) ? 'text-brass-600' : ''}`}>{r.source}</td>
                 <td>{r.inUse ? 'yes' : 'no'}</td>
@@ -43,7 +43,7 @@ export function ReferenceDataPage() {
       </Panel>
       <Panel title="Quasigeoid grids">
         <table className="min-w-full text-sm">
-          <thead className="text-left text-ink-500"><tr><th className="py-1">Name</th><th>Latitude (°)</th><th>Longitude (°)</th><th>Spacing (°)</th><th>Nodes</th><th>u(ζ) (m)</th><th>SHA-256</th><th>Uploaded</th></tr></thead>
+          <thead className="text-left text-ink-500"><tr><th className="py-1">Name</th><th>Latitude (°)</th><th>Longitude (°)</th><th>Spacing (°)</th><th>Nodes</th><th>u(ζ), k = 1 (m)</th><th>SHA-256</th><th>Uploaded</th></tr></thead>
           <tbody>
             {grids.data?.map((g) => (
               <tr key={g.id} className="border-t border-paper-200">
@@ -97,7 +97,7 @@ function GridUpload() {
       upload.mutate({ name, uncertaintyM: Number(uncertainty), fileName: file.name, content: await file.text() });
     }}>
       <div className="w-64"><Field label="Grid name"><input className={inputClass} value={name} onChange={(e) => setName(e.target.value)} /></Field></div>
-      <div className="w-32"><Field label="u(ζ) (m)"><input className={inputClass} value={uncertainty} onChange={(e) => setUncertainty(e.target.value)} /></Field></div>
+      <div className="w-32"><Field label="u(ζ), k = 1 (m)"><input className={inputClass} value={uncertainty} onChange={(e) => setUncertainty(e.target.value)} /></Field></div>
       <input aria-label="Grid file" type="file" accept=".txt,text/plain" onChange={(e) => setFile(e.target.files?.[0] ?? null)} />
       <Button type="submit" disabled={!file || !name || upload.isPending}>Upload grid</Button>
       <p className="w-full text-xs text-ink-500">Plain text: <code># comment</code> lines, then one row per node <code>latitude longitude height</code> (degrees, degrees, metres) on a complete regular grid. See docs/formats/quasigeoid-grid.md.</p>

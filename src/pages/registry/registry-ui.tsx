@@ -16,6 +16,19 @@ export function sci(v: number | null | undefined, digits = 3): string {
   return `${m} × 10${String(exp).split('').map((c) => SUP[c] ?? c).join('')}`;
 }
 
+/**
+ * Groups a plain decimal string in threes for reading, "429228004229873.7" → "429 228 004 229 873.7" (narrow
+ * no-break spaces, SI Brochure §5.4.4 style). Display only: the API and copy-paste inputs keep the plain string.
+ */
+export function groupDigits(decimal: string): string {
+  const m = /^([+-]?)(\d+)(?:\.(\d+))?$/.exec(decimal.trim());
+  if (!m) return decimal;
+  const NNBSP = '\u202f';
+  const int = m[2].replace(/\B(?=(\d{3})+(?!\d))/g, NNBSP);
+  const frac = m[3] ? `.${m[3].replace(/(\d{3})(?=\d)/g, `$1${NNBSP}`)}` : '';
+  return `${m[1]}${int}${frac}`;
+}
+
 export const fixed = (v: number | null | undefined, decimals: number) => (v === null || v === undefined || !Number.isFinite(v) ? '—' : v.toFixed(decimals));
 
 /** Puts the API's field issues next to the form's fields; returns what could not be placed. */

@@ -18,7 +18,7 @@ const columns = [
   col.accessor((s) => s.grs80.latitudeDeg, { id: 'latitudeDeg', header: 'Latitude (°)', cell: (c) => fixed(c.getValue(), 6) }),
   col.accessor((s) => s.grs80.longitudeDeg, { id: 'longitudeDeg', header: 'Longitude (°)', cell: (c) => fixed(c.getValue(), 6) }),
   col.accessor((s) => s.grs80.ellipsoidalHeightM, { id: 'ellipsoidalHeightM', header: 'h (m)', cell: (c) => fixed(c.getValue(), 3) }),
-  col.accessor((s) => s.normalHeight.valueM, { id: 'normalHeight', header: 'H = h − ζ (m)', enableSorting: false, cell: (c) => `${fixed(c.getValue(), 3)} ± ${fixed(c.row.original.normalHeight.uncertaintyM, 3)}` }),
+  col.accessor((s) => s.normalHeight.valueM, { id: 'normalHeight', header: 'H = h − ζ ± standard uncertainty, k = 1 (m)', enableSorting: false, cell: (c) => `${fixed(c.getValue(), 3)} ± ${fixed(c.row.original.normalHeight.uncertaintyM, 3)}` }),
   col.accessor((s) => s.entered.crs, { id: 'crs', header: 'Entered in', enableSorting: false }),
 ];
 
@@ -132,7 +132,7 @@ function NewSiteForm({ onDone }: { onDone: () => void }) {
             <Field label="Grid" error={e.quasigeoid?.gridId?.message ?? e.quasigeoid?.message}>
               <select className={selectClass} {...register('quasigeoid.gridId')}>
                 <option value="">choose…</option>
-                {grids.data?.map((g) => <option key={g.id} value={g.id}>{g.name} (u {g.uncertaintyM} m)</option>)}
+                {grids.data?.map((g) => <option key={g.id} value={g.id}>{g.name} (u {g.uncertaintyM} m, k = 1)</option>)}
               </select>
             </Field>
           ) : (
