@@ -65,6 +65,9 @@ export const benchmarkSchema = z.object({
   datumId: z.string().uuid(),
   datumName: z.string(),
   crs: z.string(),
+  /** How the entered coordinates read (proj4 order: lon, lat[, h]; E, N; X, Y, Z); null if the CRS no longer resolves. */
+  crsKind: z.enum(['geographic2D', 'geographic3D', 'geocentric', 'projected']).nullable(),
+  crsLabel: z.string().nullable(),
   coordinates: z.array(z.number()),
   latitudeDeg: z.number(),
   longitudeDeg: z.number(),

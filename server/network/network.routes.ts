@@ -83,7 +83,7 @@ export const networkRoutes = [
     },
   }),
   route({
-    method: 'get', path: '/api/v1/network/loops', summary: 'Loop misclosures against the tolerance k·√L', tag: 'network', permission: 'network:read',
+    method: 'get', path: '/api/v1/network/loops', summary: 'Loop misclosures against the tolerance t·√L (t: tolerance coefficient, mm/√km)', tag: 'network', permission: 'network:read',
     query: loopsQuerySchema, response: loopReportSchema,
     handler: ({ actor, query, deps }) => createNetworkService(deps.dataSource).loops(actor, query.datumId),
   }),

@@ -12,7 +12,7 @@ import {
 import { Conflict, Invalid, NotFound, type FieldIssue } from '../http/errors';
 import { loopMisclosures } from '../science/adjustment/loops';
 import { ScienceInputError } from '../science/errors';
-import { toGrs80Geodetic } from '../science/geodesy';
+import { resolveCrs, toGrs80Geodetic } from '../science/geodesy';
 import { cFromNormalHeight, meanNormalGravity, normalGravityAtHeight, normalHeightFromC } from '../science/normal-gravity';
 
 // Height datums, benchmarks, levelling sections and loop misclosures: rules, transactions, audit, DTOs.
@@ -28,9 +28,14 @@ export function toDatumDto(d: HeightDatumRow, benchmarkCount = 0): HeightDatum {
 export function toBenchmarkDto(b: BenchmarkRow): Benchmark {
   // Standard uncertainty of C carried into metres with the mean normal gravity of the point (γ̄ ≈ 9.81, so ~1:1 in mm).
   const gBar = meanNormalGravity(b.latitudeDeg, b.knownNormalHeightM ?? 0);
+  let crs: { kind: Benchmark['crsKind']; label: string | null } = { kind: null, label: null };
+  try {
+    const e = resolveCrs(b.crs);
+    crs = { kind: e.kind, label: e.label };
+  } catch { /* a CRS string that stopped resolving still shows as entered */ }
   return {
     id: b.id, code: b.code, name: b.name, datumId: b.datumId, datumName: b.datum?.name ?? '',
-    crs: b.crs, coordinates: b.coordinatesEntered, latitudeDeg: b.latitudeDeg, longitudeDeg: b.longitudeDeg,
+    crs: b.crs, crsKind: crs.kind, crsLabel: crs.label, coordinates: b.coordinatesEntered, latitudeDeg: b.latitudeDeg, longitudeDeg: b.longitudeDeg,
     ellipsoidalHeightM: b.ellipsoidalHeightM, knownEnteredAs: b.knownEnteredAs, knownC_m2s2: b.knownC_m2s2,
     knownNormalHeightM: b.knownNormalHeightM, knownUncertaintyC_m2s2: b.knownUncertaintyC_m2s2,
     knownUncertaintyM: b.knownUncertaintyC_m2s2 === null ? null : b.knownUncertaintyC_m2s2 / gBar,
@@ -302,8 +307,8 @@ export function createNetworkService(dataSource: DataSource) {
       return {
         toleranceMmPerSqrtKm: k,
         toleranceSource: datum
-          ? `k = ${k} mm/√km set on ${datum.name}`
-          : 'k = 4 mm/√km: FGCC 1984 §3.5 first-order levelling (value from memory); choose a datum to use its own k',
+          ? `tolerance coefficient t = ${k} mm/√km set on ${datum.name}`
+          : 'tolerance coefficient t = 4 mm/√km: FGCC 1984 §3.5 first-order levelling (value from memory); choose a datum to use its own t',
         meanGravity_ms2: meanG, independentLoops: report.independentLoops, failing: loops.filter((l) => !l.passed).length, loops,
       };
     },

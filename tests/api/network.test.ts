@@ -131,7 +131,7 @@ describe('loops', () => {
     expect(res.body.failing).toBeGreaterThan(0);
     expect(res.body.loops[0].passed).toBe(false);
     expect(res.body.loops[0].sections.some((s: { lineName: string }) => s.lineName === 'Dune road')).toBe(true);
-    // tolerance k·√L (FGCC 1984 §3.5), k = 4 mm/√km set on the datum
+    // tolerance t·√L (FGCC 1984 §3.5), tolerance coefficient t = 4 mm/√km set on the datum
     const l = res.body.loops[0];
     expect(l.toleranceMm).toBeCloseTo(4 * Math.sqrt(l.lengthKm), 9);
     const firstPassing = res.body.loops.findIndex((x: { passed: boolean }) => x.passed);

@@ -23,7 +23,7 @@ export function LoopsPage() {
       }>
         {r && (
           <p className="mb-3 text-sm text-ink-600">
-            {r.independentLoops} independent loops · tolerance {r.toleranceMmPerSqrtKm} mm·√L(km) ({r.toleranceSource}) ·
+            {r.independentLoops} independent loops · tolerance t·√L with L in km ({r.toleranceSource}) ·
             misclosures in mm use ḡ = {fmt(r.meanGravity_ms2, 4)} m/s² ·{' '}
             <strong className={r.failing ? 'text-disagree-600' : 'text-agree-800'}>{r.failing ? `${r.failing} over tolerance` : 'all within tolerance'}</strong>
           </p>

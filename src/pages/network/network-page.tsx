@@ -22,8 +22,8 @@ const columns = [
   col.accessor('latitudeDeg', { header: 'Latitude (GRS80)', cell: (c) => `${fmt(c.getValue(), 5)}°` }),
   col.accessor('longitudeDeg', { header: 'Longitude (GRS80)', cell: (c) => `${fmt(c.getValue(), 5)}°` }),
   col.accessor('knownNormalHeightM', {
-    header: 'Known height',
-    cell: (c) => (c.getValue() === null ? '—' : `H = ${fmt(c.getValue(), 4)} m ± ${fmt((c.row.original.knownUncertaintyM ?? 0) * 1000, 1)} mm`),
+    header: 'Known height H ± u (m, k = 1)',
+    cell: (c) => (c.getValue() === null ? '—' : `${fmt(c.getValue(), 4)} ± ${fmt(c.row.original.knownUncertaintyM ?? 0, 4)} m`),
   }),
   col.accessor('fixed', { header: 'Datum role', cell: (c) => (c.getValue() ? <span className="font-semibold text-ink-800">■ fixed</span> : 'free') }),
   col.accessor('state', { header: 'State', cell: (c) => (c.getValue() === 'destroyed' ? <span className="text-disagree-600">✕ destroyed</span> : 'in use') }),
@@ -45,7 +45,7 @@ export function NetworkPage() {
             <div key={d.id} className="rounded-md border border-paper-200 p-3 text-sm">
               <p className="font-semibold">{d.name}</p>
               <p className="text-ink-600">{d.tideSystem} · realised {d.realisationEpoch ?? '—'} · {d.benchmarkCount} benchmarks</p>
-              <p className="text-ink-600">loop tolerance {d.loopToleranceMmPerSqrtKm} mm·√L(km) · forward/backward tolerance {d.sectionToleranceMmPerSqrtKm} mm·√L(km)</p>
+              <p className="text-ink-600">loop tolerance coefficient t = {d.loopToleranceMmPerSqrtKm} mm/√km · forward/backward t = {d.sectionToleranceMmPerSqrtKm} mm/√km (tolerance t·√L, L in km)</p>
               {d.notes && <p className="mt-1 text-xs text-ink-500">{d.notes}</p>}
             </div>
           ))}
@@ -75,7 +75,7 @@ function DatumForm() {
           <select className={inputClass} {...register('tideSystem')}>{tideSystems.map((t) => <option key={t}>{t}</option>)}</select>
         </Field>
         <Field label="Realisation epoch" error={errors.realisationEpoch?.message}><input className={inputClass} placeholder="e.g. 2004.0" {...register('realisationEpoch')} /></Field>
-        <Field label="Loop tolerance k (mm/√km)" hint="4: FGCC 1984 first-order (from memory)" error={errors.loopToleranceMmPerSqrtKm?.message}>
+        <Field label="Loop tolerance coefficient t (mm/√km)" hint="tolerance t·√L; 4: FGCC 1984 first-order (from memory)" error={errors.loopToleranceMmPerSqrtKm?.message}>
           <input className={inputClass} type="number" step="any" {...register('loopToleranceMmPerSqrtKm', { valueAsNumber: true })} />
         </Field>
         <Field label="Forward/backward tolerance (mm/√km)" error={errors.sectionToleranceMmPerSqrtKm?.message}>
