@@ -97,7 +97,13 @@ export const transformRequestSchema = z.object({
   coordinates: z.array(finite).min(2).max(3),
 });
 export type TransformRequest = z.input<typeof transformRequestSchema>;
-export const transformResponseSchema = z.object({ coordinates: z.array(z.number()), assumptions: z.array(z.string()) });
+export const transformResponseSchema = z.object({
+  coordinates: z.array(z.number()),
+  /** Name and unit of each output value, by the target CRS's kind: lon/lat (deg) and h (m), E/N (m) or X/Y/Z (m). */
+  axes: z.array(z.object({ name: z.string(), unit: z.string() })),
+  targetCrs: z.string(),
+  assumptions: z.array(z.string()),
+});
 export type TransformResponse = z.infer<typeof transformResponseSchema>;
 
 export const tideRequestSchema = z.object({

@@ -6,7 +6,7 @@ import { redshiftRequestSchema, stabilityRequestSchema, tideRequestSchema, trans
 import type { z } from 'zod';
 import { Invalid } from '../http/errors';
 import { ScienceInputError } from '../science/errors';
-import { geodesicInverse, toGrs80Geodetic, transform } from '../science/geodesy';
+import { geodesicInverse, resolveCrs, toGrs80Geodetic, transform } from '../science/geodesy';
 import { meanNormalGravity, normalGravityAtHeight } from '../science/normal-gravity';
 import { redshiftCalculator } from '../science/redshift';
 import { stabilityAnalysis } from '../science/stability';
@@ -86,11 +86,18 @@ export function geodesic(body: GeodesicRequest): GeodesicResponse {
   return { distanceM: r.distanceM, azimuthFromDeg: r.azimuth1Deg, azimuthToDeg: r.azimuth2Deg, ellipsoid: 'GRS80' };
 }
 
+function axesOf(kind: ReturnType<typeof resolveCrs>['kind']): { name: string; unit: string }[] {
+  if (kind === 'geocentric') return [{ name: 'X', unit: 'm' }, { name: 'Y', unit: 'm' }, { name: 'Z', unit: 'm' }];
+  if (kind === 'projected') return [{ name: 'Easting E', unit: 'm' }, { name: 'Northing N', unit: 'm' }, { name: 'Ellipsoidal height h', unit: 'm' }];
+  return [{ name: 'Longitude λ', unit: '°' }, { name: 'Latitude φ', unit: '°' }, { name: 'Ellipsoidal height h', unit: 'm' }];
+}
+
 export function coordinateTransform(body: z.output<typeof transformRequestSchema>): TransformResponse {
   const coordinates = withFieldMap(() => transform(body.from, body.to, body.coordinates), { coords: 'coordinates' });
   // The frame assumptions (which datums are taken as coincident) travel with the numbers.
   const assumptions = withFieldMap(() => toGrs80Geodetic(body.from, body.coordinates).assumptions, { crs: 'from', coords: 'coordinates' });
-  return { coordinates, assumptions };
+  const target = withFieldMap(() => resolveCrs(body.to, 'to'));
+  return { coordinates, axes: axesOf(target.kind).slice(0, coordinates.length), targetCrs: target.label, assumptions };
 }
 
 const MJD_UNIX_EPOCH = 40_587;

@@ -180,6 +180,8 @@ describe('POST /api/v1/calc/transform', () => {
     expect(Math.abs(x - 3_771_793.968)).toBeLessThan(0.002);
     expect(Math.abs(y - 140_253.342)).toBeLessThan(0.002);
     expect(Math.abs(z - 5_124_304.349)).toBeLessThan(0.002);
+    // Geocentric CRSs have axes X, Y, Z in metres (EPSG GN 7-2 §4.1.1).
+    expect(res.body.axes).toEqual([{ name: 'X', unit: 'm' }, { name: 'Y', unit: 'm' }, { name: 'Z', unit: 'm' }]);
   });
 
   it('transverse Mercator: EPSG GN 7-2 method 9807 example (OSGB 1936 / British National Grid, k0 as printed 0.9996013)', async () => {
@@ -191,6 +193,9 @@ describe('POST /api/v1/calc/transform', () => {
     expect(res.body.coordinates).toHaveLength(2);
     expect(Math.abs(res.body.coordinates[0] - 577_274.99)).toBeLessThan(0.01);
     expect(Math.abs(res.body.coordinates[1] - 69_740.5)).toBeLessThan(0.01);
+    // A projected CRS gives easting and northing in metres (EPSG GN 7-2 method 9807).
+    expect(res.body.axes.map((a: { name: string; unit: string }) => a.unit)).toEqual(['m', 'm']);
+    expect(res.body.axes[0].name).toMatch(/^Easting/);
   });
 
   it('refuses an unknown CRS naming body.from', async () => {

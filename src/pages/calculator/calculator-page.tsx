@@ -10,11 +10,13 @@ import { useGeodesic, useNormalGravity, useNormalGravityCalc, useRedshift, useTr
 import { LogLogPlot } from '../../components/plots/allan-plot';
 import { Button, Caution, Field, inputClass, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
+import { fixed, sci, sig } from '../../lib/format';
 
 const C2 = 299_792_458 ** 2;
 const num = (v: unknown) => (v === '' || v === null || v === undefined ? undefined : Number(v));
-const fmt = (v: number | null | undefined, digits = 6) => (v === null || v === undefined ? '—' : Number(v.toPrecision(digits)).toString());
-const fmtExp = (v: number | null | undefined, digits = 4) => (v === null || v === undefined ? '—' : v.toExponential(digits - 1));
+const fmt = (v: number | null | undefined, digits = 6) => sig(v, digits);
+/** A calculator value in full, its standard uncertainty to two significant digits beside it. */
+const withU = (value: string, u: string | null, unit = '') => (u === null ? `${value}${unit}` : `${value}${unit}, u = ${u}${unit}`);
 
 function NumberField<T extends FieldValues>({ label, name, register, error, hint, step = 'any' }: {
   label: string; name: Path<T>; register: UseFormRegister<T>; error?: string; hint?: string; step?: string;
@@ -57,10 +59,10 @@ function RedshiftPanel() {
       {calc.error && <p className="mt-3 text-sm text-disagree-600" role="alert">{describeError(calc.error)}</p>}
       {r && (
         <dl className="mt-4">
-          <ResultRow label="Fractional offset y = R/R₀ − 1" value={`${fmtExp(r.fractionalOffset, 6)}${r.potentialDifference.uncertainty !== null ? ` ± ${fmtExp(r.potentialDifference.uncertainty / C2, 2)}` : ''}`} testId="calc-y" />
-          <ResultRow label="Potential difference ΔC = C_B − C_A" value={`${fmt(r.potentialDifference.value)}${r.potentialDifference.uncertainty !== null ? ` ± ${fmt(r.potentialDifference.uncertainty, 3)}` : ''} m²/s²`} testId="calc-dc" />
-          <ResultRow label="Height difference Δh = H_B − H_A" value={`${fmt(r.heightDifference.value)}${r.heightDifference.uncertainty !== null ? ` ± ${fmt(r.heightDifference.uncertainty, 3)}` : ''} m`} testId="calc-dh" />
-          <p className="mt-2 text-xs text-ink-500">Uncertainties standard (k = 1). {r.method}</p>
+          <ResultRow label="Fractional offset y = R/R₀ − 1" value={withU(sci(r.fractionalOffset, 6), r.potentialDifference.uncertainty !== null ? sci(r.potentialDifference.uncertainty / C2, 2) : null)} testId="calc-y" />
+          <ResultRow label="Potential difference ΔC = C_B − C_A" value={withU(fmt(r.potentialDifference.value), r.potentialDifference.uncertainty !== null ? fmt(r.potentialDifference.uncertainty, 2) : null, ' m²/s²')} testId="calc-dc" />
+          <ResultRow label="Normal-height difference ΔH = H_B − H_A" value={withU(fmt(r.heightDifference.value), r.heightDifference.uncertainty !== null ? fmt(r.heightDifference.uncertainty, 2) : null, ' m')} testId="calc-dh" />
+          <p className="mt-2 text-xs text-ink-500">u: standard uncertainty (k = 1), propagated from u(y). {r.method}</p>
         </dl>
       )}
     </Panel>
@@ -111,8 +113,8 @@ function GeodesicPanel() {
       {calc.data && (
         <dl className="mt-4">
           <ResultRow label="Distance" value={`${calc.data.distanceM.toFixed(3)} m`} testId="calc-distance" />
-          <ResultRow label="Azimuth at the start" value={`${calc.data.azimuthFromDeg.toFixed(6)}°`} />
-          <ResultRow label="Azimuth at the end (direction of travel)" value={`${calc.data.azimuthToDeg.toFixed(6)}°`} />
+          <ResultRow label="Azimuth at the start" value={`${fixed(calc.data.azimuthFromDeg, 6)}°`} />
+          <ResultRow label="Azimuth at the end (direction of travel)" value={`${fixed(calc.data.azimuthToDeg, 6)}°`} />
         </dl>
       )}
     </Panel>
@@ -148,7 +150,15 @@ function TransformPanel() {
       {calc.error && <p className="mt-3 text-sm text-disagree-600" role="alert">{describeError(calc.error)}</p>}
       {calc.data && (
         <div className="mt-4 text-sm">
-          <p className="font-mono" data-testid="calc-transformed">{calc.data.coordinates.map((c) => c.toFixed(Math.abs(c) > 1000 ? 4 : 9)).join(', ')}</p>
+          <p className="text-xs text-ink-500">In {calc.data.targetCrs}:</p>
+          <dl data-testid="calc-transformed">
+            {calc.data.coordinates.map((c, i) => {
+              const axis = calc.data.axes[i] ?? { name: `value ${i + 1}`, unit: '' };
+              // Degrees to 1e-9 (≈ 0.1 mm on the ground) and metres to 0.1 mm.
+              const text = axis.unit === '°' ? `${fixed(c, 9)}°` : `${fixed(c, 4)} ${axis.unit}`;
+              return <ResultRow key={axis.name} label={axis.name} value={text} />;
+            })}
+          </dl>
           <ul className="mt-2 list-disc pl-5 text-xs text-ink-500">{calc.data.assumptions.map((a) => <li key={a}>{a}</li>)}</ul>
         </div>
       )}
@@ -204,16 +214,16 @@ function PlanningPanel() {
           <LogLogPlot
             title="Expanded height uncertainty against averaging time"
             xLabel="Averaging time τ (s)"
-            yLabel="U(Δh), k = 2 (m)"
-            series={[{ label: 'U(Δh), k = 2', kind: 'line', colour: 'stroke-ink-700 fill-none', points: curve }]}
+            yLabel="U(ΔH), k = 2 (m)"
+            series={[{ label: 'U(ΔH), k = 2', kind: 'line', colour: 'stroke-ink-700 fill-none', points: curve }]}
           />
           <dl className="mt-2">
-            <ResultRow label="Expected y for these heights (≈ Δh·γ̄/c²)" value={fmtExp(expectedY, 3)} />
-            <ResultRow label="Systematic floor U(Δh), k = 2" value={`${fmt(floor, 3)} m`} testId="plan-floor" />
+            <ResultRow label="Expected y for these heights (≈ ΔH·γ̄/c²)" value={sci(expectedY, 3)} />
+            <ResultRow label="Systematic floor U(ΔH), k = 2" value={`${fmt(floor, 3)} m`} testId="plan-floor" />
             <ResultRow label="Averaging time where statistics equal the systematics" value={crossing ? `${fmt(crossing, 3)} s (${fmt(crossing / 86_400, 3)} d)` : '—'} />
-            <ResultRow label="Averaging time for U(Δh) ≤ 1 cm" value={target1cm ? `${fmt(target1cm.x, 2)} s` : 'not reached within 10⁶ s'} />
+            <ResultRow label="Averaging time for U(ΔH) ≤ 1 cm" value={target1cm ? `${fmt(target1cm.x, 2)} s` : 'not reached within 10⁶ s'} />
           </dl>
-          <p className="mt-2 text-xs text-ink-500">u(y)² = u_A² + u_B² + u_link² + u_ref² + σ_y(1 s)²/τ (white frequency noise, no dead time); U(Δh) = 2·c²·u(y)/γ̄ with GRS80 mean normal gravity at the mid-point ({g?.toFixed(5)} m/s²).</p>
+          <p className="mt-2 text-xs text-ink-500">u(y)² = u_A² + u_B² + u_link² + u_ref² + σ_y(1 s)²/τ (white frequency noise, no dead time); U(ΔH) = 2·c²·u(y)/γ̄ with GRS80 mean normal gravity at the mid-point ({g?.toFixed(5)} m/s²).</p>
         </div>
       )}
     </Panel>
