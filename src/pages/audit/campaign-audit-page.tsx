@@ -46,6 +46,7 @@ const detailLabels: Record<string, string> = {
   periodStart: 'Period start',
   periodEnd: 'Period end',
 };
+const labelOrder = Object.keys(detailLabels);
 /** Already shown by the page itself. */
 const hiddenKeys = new Set(['campaignId']);
 
@@ -68,7 +69,11 @@ function valueOf(key: string, v: unknown): ReactNode {
 }
 
 function Details({ details }: { details: Record<string, unknown> }) {
-  const entries = Object.entries(details ?? {}).filter(([k, v]) => !hiddenKeys.has(k) && v !== undefined && !(k === 'note' && v === null));
+  // jsonb hands keys back in its own order (shortest first): put them in the reading order of detailLabels.
+  const rank = (k: string) => (k in detailLabels ? labelOrder.indexOf(k) : labelOrder.length);
+  const entries = Object.entries(details ?? {})
+    .filter(([k, v]) => !hiddenKeys.has(k) && v !== undefined && !(k === 'note' && v === null))
+    .sort(([x], [y]) => rank(x) - rank(y));
   if (!entries.length) return null;
   return (
     <dl className="mt-1 grid grid-cols-[max-content_1fr] gap-x-4 gap-y-0.5 text-xs" data-testid="audit-details">

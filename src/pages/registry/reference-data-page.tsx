@@ -43,10 +43,10 @@ export function ReferenceDataPage() {
       </Panel>
       <Panel title="Quasigeoid grids">
         <table className="min-w-full text-sm">
-          <thead className="text-left text-ink-500"><tr><th className="py-1">Name</th><th>Latitude (°)</th><th>Longitude (°)</th><th>Spacing (°)</th><th>Nodes</th><th>u(ζ), k = 1 (m)</th><th>SHA-256</th><th>Uploaded</th></tr></thead>
+          <thead className="text-left text-ink-500 [&_th]:pr-4"><tr><th className="py-1">Name</th><th>Latitude (°)</th><th>Longitude (°)</th><th>Spacing (°)</th><th>Nodes</th><th>u(ζ), k = 1 (m)</th><th>SHA-256</th><th>Uploaded</th></tr></thead>
           <tbody>
             {grids.data?.map((g) => (
-              <tr key={g.id} className="border-t border-paper-200">
+              <tr key={g.id} className="border-t border-paper-200 [&_td]:pr-4">
                 <td className="py-1.5">{g.name}</td>
                 <td>{fixed(g.latitudeMinDeg, 3)} … {fixed(g.latitudeMaxDeg, 3)}</td>
                 <td>{fixed(g.longitudeMinDeg, 3)} … {fixed(g.longitudeMaxDeg, 3)}</td>
