@@ -34,11 +34,23 @@ export function RunPage() {
       </Panel>
       {res && (
         <>
+          {res.globalTest && !res.globalTest.passed && (
+            <div role="alert" data-testid="global-test-failed" className="my-4 rounded-md border-2 border-disagree-600 bg-disagree-100 px-4 py-3 text-sm text-disagree-800">
+              <p className="text-base font-semibold">✕ This adjustment failed its global test: the heights below are provisional.</p>
+              <p className="mt-1">
+                σ̂0 = {fmt(res.sigma0, 3)} (expected about 1): the test statistic {fmt(res.globalTest.statistic, 2)} lies outside [{fmt(res.globalTest.lower, 2)}, {fmt(res.globalTest.critical, 2)}] (χ², α = {res.globalTest.alpha}).
+                The observations do not fit their stated uncertainties.{' '}
+                {res.snooping.suspects.length > 0
+                  ? <>Examine the suspected observations listed under Statistics ({res.snooping.suspects.map((x) => x.label).slice(0, 3).join('; ')}{res.snooping.suspects.length > 3 ? '; …' : ''}), correct or remove one at a time and run again.</>
+                  : 'No single observation stands out: check the a-priori σ per km and the fixed benchmarks, then run again.'}
+              </p>
+            </div>
+          )}
           <Panel title="Statistics">
             <dl className="grid grid-cols-2 gap-x-6 gap-y-1 text-sm md:grid-cols-4">
               <dt className="text-ink-500">Unknowns</dt><dd>{res.unknowns}</dd>
               <dt className="text-ink-500">Degrees of freedom</dt><dd>{res.degreesOfFreedom} (Σr = {fmt(res.redundancySum, 3)})</dd>
-              <dt className="text-ink-500">σ̂0</dt><dd>{fmt(res.sigma0, 3)}</dd>
+              <dt className="text-ink-500">σ̂0 (a-posteriori, a-priori 1)</dt><dd>{fmt(res.sigma0, 3)}</dd>
               <dt className="text-ink-500">vᵀPv</dt><dd>{fmt(res.vtpv, 2)}</dd>
               <dt className="text-ink-500">Global χ² test (α = {res.globalTest?.alpha ?? 0.05})</dt>
               <dd data-testid="global-test">{res.globalTest ? `${res.globalTest.passed ? '✓ passed' : '✕ rejected'}: ${fmt(res.globalTest.statistic, 2)} in [${fmt(res.globalTest.lower, 2)}, ${fmt(res.globalTest.critical, 2)}]` : 'no redundancy'}</dd>
@@ -51,7 +63,7 @@ export function RunPage() {
               </div>
             )}
             {res.datumOffsets.length > 0 && (
-              <p className="mt-2 text-sm">Datum offsets (clock ΔC − levelled ΔC): {res.datumOffsets.map((d) => `${d.name}: ${fmt(d.value_m2s2, 3)} ± ${fmt(d.sigma_m2s2, 3)} m²/s² (${fmt(d.valueMm, 0)} ± ${fmt(d.sigmaMm, 0)} mm)`).join('; ')}</p>
+              <p className="mt-2 text-sm">Datum offsets (clock ΔC − levelled ΔC; ± standard deviation, k = 1): {res.datumOffsets.map((d) => `${d.name}: ${fmt(d.value_m2s2, 3)} ± ${fmt(d.sigma_m2s2, 3)} m²/s² (${fmt(d.valueMm, 0)} ± ${fmt(d.sigmaMm, 0)} mm)`).join('; ')}</p>
             )}
           </Panel>
           <Panel title="Standardised residuals">
@@ -59,10 +71,10 @@ export function RunPage() {
               items={obs.slice(0, showAll ? obs.length : 25).map((o) => ({ id: o.id, label: o.label, value: o.standardizedResidual, onClick: o.kind === 'levelling' ? () => navigate('/network/sections') : undefined }))} />
             {obs.length > 25 && <button className="text-sm underline" onClick={() => setShowAll(!showAll)}>{showAll ? 'Show the 25 largest' : `Show all ${obs.length}`}</button>}
           </Panel>
-          <Panel title="Adjusted points">
+          <Panel title={res.globalTest && !res.globalTest.passed ? 'Adjusted points (provisional: global test failed)' : 'Adjusted points'}>
             <div className="max-h-96 overflow-auto">
               <table className="min-w-full text-sm">
-                <thead className="text-left text-ink-600"><tr><th>Point</th><th>Datum</th><th>C (m²/s²)</th><th>σ_C (m²/s²)</th><th>Normal height H (m)</th><th>σ_H (mm)</th><th>Role</th></tr></thead>
+                <thead className="text-left text-ink-600"><tr><th>Point</th><th>Datum</th><th>C (m²/s²)</th><th>σ_C (m²/s², k = 1)</th><th>Normal height H (m)</th><th>σ_H (mm, k = 1)</th><th>Role</th></tr></thead>
                 <tbody>
                   {res.points.map((p) => (
                     <tr key={p.code} className="border-t border-paper-200">
@@ -73,12 +85,12 @@ export function RunPage() {
                 </tbody>
               </table>
             </div>
-            <p className="mt-2 text-xs text-ink-500">σ with a-priori σ0 = 1 (standard uncertainties, k = 1); H from C with the GRS80 mean normal gravity.</p>
+            <p className="mt-2 text-xs text-ink-500">σ are standard deviations (k = 1) with a-priori σ0 = 1, not scaled by σ̂0; H from C with the GRS80 mean normal gravity.</p>
           </Panel>
           <Panel title="Observations">
             <div className="max-h-96 overflow-auto">
               <table className="min-w-full text-sm">
-                <thead className="text-left text-ink-600"><tr><th>Observation</th><th>Kind</th><th>ΔC (m²/s²)</th><th>σ (m²/s²)</th><th>Residual (m²/s²)</th><th>Redundancy r</th><th>w</th></tr></thead>
+                <thead className="text-left text-ink-600"><tr><th>Observation</th><th>Kind</th><th>ΔC (m²/s²)</th><th>σ (m²/s², k = 1)</th><th>Residual (m²/s²)</th><th>Redundancy r</th><th>w</th></tr></thead>
                 <tbody>
                   {obs.map((o) => (
                     <tr key={o.id} className={`border-t border-paper-200 ${o.suspected ? 'bg-disagree-100' : ''}`}>
