@@ -51,14 +51,14 @@ export const budgetLineSchema = z.object({
 export type BudgetLineDto = z.infer<typeof budgetLineSchema>;
 
 export const seriesPointSchema = z.object({
-  /** Bucket centre, MJD (UTC). */
+  /** Mean epoch of the bucket's valid samples, MJD (UTC); the bucket's middle when it holds none. */
   mjd: z.number(),
-  /** Mean measured y in the bucket (before the tide correction). */
-  y: z.number(),
-  yMin: z.number(),
-  yMax: z.number(),
-  /** Mean tidal part of y in the bucket, y_tide(B) − y_tide(A); the corrected series is y − tideY. */
-  tideY: z.number(),
+  /** Mean measured y in the bucket (before the tide correction); null where the bucket holds no valid sample (a gap). */
+  y: z.number().nullable(),
+  yMin: z.number().nullable(),
+  yMax: z.number().nullable(),
+  /** Mean tidal part of y in the bucket, y_tide(B) − y_tide(A); the corrected series is y − tideY. Null in a gap. */
+  tideY: z.number().nullable(),
   count: z.number().int(),
 });
 

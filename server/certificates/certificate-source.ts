@@ -83,9 +83,10 @@ export function snapshotBodyFrom(campaign: CampaignForResult, result: Comparison
     .filter((p) => p.adev !== null && p.adevLow !== null && p.adevHigh !== null && p.adev > 0 && p.adevLow > 0 && p.adevLow <= p.adev && p.adev <= p.adevHigh)
     .map((p) => ({ tauSeconds: p.tauSeconds, adev: p.adev!, low: p.adevLow!, high: p.adevHigh! }));
   if (allan.length < 2) throw new Conflict('The result has fewer than two Allan-deviation points with confidence intervals; a certificate needs the stability plot.');
-  if (r.timeSeries.length < 2) throw new Conflict('The result has fewer than two time-series points; a certificate needs the series.');
+  const filledSeries = r.timeSeries.flatMap((p) => (p.y === null || p.tideY === null ? [] : [{ mjd: p.mjd, y: p.y - p.tideY }]));
+  if (filledSeries.length < 2) throw new Conflict('The result has fewer than two time-series points; a certificate needs the series.');
   if (r.inputFiles.length === 0) throw new Conflict('The result names no input file; a certificate lists the SHA-256 of every uploaded series.');
-  const mjd0 = Math.min(...r.timeSeries.map((p) => p.mjd));
+  const mjd0 = Math.min(...filledSeries.map((p) => p.mjd));
   const participants = [...new Set([nameOf(campaign.clockA.instituteId, r.clockA.institute), nameOf(campaign.clockB.instituteId, r.clockB.institute)])];
   return {
     participants,
@@ -121,7 +122,7 @@ export function snapshotBodyFrom(campaign: CampaignForResult, result: Comparison
       combinedStandardUncertainty: r.budget.combinedStandardUncertainty * C2_M2_PER_S2,
     },
     allanDeviation: allan,
-    timeSeries: r.timeSeries.map((p) => ({ tSeconds: (p.mjd - mjd0) * 86_400, y: p.y - p.tideY })),
+    timeSeries: filledSeries.map((p) => ({ tSeconds: (p.mjd - mjd0) * 86_400, y: p.y })),
     tideSystem: r.tide.system,
     w0Convention: { name: r.w0Convention.name, value_m2s2: r.w0Convention.value_m2s2, source: r.w0Convention.source },
     constants: constantRows(result),

@@ -11,6 +11,7 @@ import { potentialDifferenceFromY } from '../science/redshift';
 import { gridFromEpochs, meanWithStatisticalUncertainty, stabilityAnalysis, type RegularGrid } from '../science/stability';
 import { convertPotentialDifference, tidePotentialSeries, type TideSystem } from '../science/tides';
 import { ScienceInputError } from '../science/errors';
+import { formatScientific } from '../certificates/pdf/number-format';
 
 // The comparison result as a function of its inputs (campaign metadata + samples): no database, no clock reads
 // (computedAt is the caller's). The service loads the inputs, hashes them and stores what this returns.
@@ -125,7 +126,11 @@ function decimate(epochs: Float64Array, y: Float64Array, valid: Uint8Array, tide
   }
   const out: ResultBody['timeSeries'] = [];
   for (let b = 0; b < buckets; b++) {
-    if (count[b] === 0) continue;
+    // Empty buckets stay in the series as nulls so that plots break there instead of bridging the gap.
+    if (count[b] === 0) {
+      out.push({ mjd: start + ((b + 0.5) * span) / buckets, y: null, yMin: null, yMax: null, tideY: null, count: 0 });
+      continue;
+    }
     out.push({ mjd: start + tmid[b] / count[b], y: sum[b] / count[b], yMin: min[b], yMax: max[b], tideY: tide[b] / count[b], count: count[b] });
   }
   return out;
@@ -205,7 +210,7 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
     },
     {
       name: 'Tide model', type: 'B', standardUncertainty: tideModelU, sensitivity: 1, unit: '1',
-      note: `max(${TIDE_MODEL_RELATIVE * 100} % of the correction’s peak-to-peak, ${TIDE_MODEL_FLOOR}) — our assumption`,
+      note: `max(${TIDE_MODEL_RELATIVE * 100} % of the correction’s peak-to-peak, ${formatScientific(TIDE_MODEL_FLOOR, 1)}) — our assumption`,
     },
   ];
   const budget = combineBudget(components, 2);
@@ -292,7 +297,7 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
       meanCorrectionY: tideSum / validCount,
       peakToPeakY: tidePeakToPeak,
       modelUncertaintyY: tideModelU,
-      uncertaintyRule: `u = max(${TIDE_MODEL_RELATIVE * 100} % of the peak-to-peak correction, ${TIDE_MODEL_FLOOR}) (our assumption; ocean loading and atmospheric effects are not modelled)`,
+      uncertaintyRule: `u = max(${TIDE_MODEL_RELATIVE * 100} % of the peak-to-peak correction, ${formatScientific(TIDE_MODEL_FLOOR, 1)}) (our assumption; ocean loading and atmospheric effects are not modelled)`,
     },
     budget: {
       outputQuantity: 'fractional frequency offset y (dimensionless)',
@@ -308,7 +313,7 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
     deltaC_m2s2: { value: dc.deltaC_m2s2, standardUncertainty: uDc, expandedUncertainty: 2 * uDc, coverageFactor: 2 },
     deltaH_m: {
       value: h.deltaH_m, standardUncertainty: uDh, expandedUncertainty: 2 * uDh, coverageFactor: 2,
-      method: 'H_B = C_B/γ̄_B with C_B = C_A + ΔC and C_A = H_A·γ̄_A (GRS80 mean normal gravity along each normal plumb line, Heiskanen & Moritz 1967 eq. 4-42); Δh = H_B − H_A.',
+      method: 'H_B = C_B/γ̄_B with C_B = C_A + ΔC and C_A = H_A·γ̄_A (GRS80 mean normal gravity along each normal plumb line, Heiskanen & Moritz 1967 eq. 4-42); ΔH = H_B − H_A (normal heights).',
     },
     geodesy,
     otherTideSystems,
@@ -316,7 +321,7 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
       name: 'IHRS W0 (heights)',
       value_m2s2: W0_IHRS_M2_PER_S2,
       source: 'IAG Resolution No. 1 (2015)',
-      note: `ΔC = C_B − C_A does not depend on W0; the normal heights use the IHRS W0. Time scales use L_G = ${L_G} (IAU 2000 B1.9), i.e. W0 = c²·L_G = ${W0_LG_M2_PER_S2.toFixed(1)} m²/s², which is not used here.`,
+      note: `ΔC = C_B − C_A does not depend on W0; the normal heights use the IHRS W0. Time scales use L_G = ${formatScientific(L_G, 10)} (IAU 2000 B1.9), i.e. W0 = c²·L_G = ${W0_LG_M2_PER_S2.toFixed(1)} m²/s², which is not used here.`,
     },
     stability: {
       tau0Seconds: tau0,
@@ -329,7 +334,7 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
     timeSeries: decimate(epochMjd, y, valid, tideY),
     method: {
       statement:
-        'y = R/R0 − 1 per sample (decimal arithmetic), periodic tide removed per sample, mean over valid samples, statistical uncertainty from the Allan deviation at the full averaging time, GUM budget with uncorrelated inputs, ΔC = c²·y (first order), Δh via GRS80 mean normal gravity, E_n against the geodetic normal heights.',
+        'y = R/R0 − 1 per sample (decimal arithmetic), periodic tide removed per sample, mean over valid samples, statistical uncertainty from the Allan deviation at the full averaging time, GUM budget with uncorrelated inputs, ΔC = c²·y (first order), ΔH via GRS80 mean normal gravity, E_n against the sites’ registered normal heights (geodesy).',
       sources: [
         'IEEE Std 1139-2008; NIST SP 1065 (Riley 2008)',
         'JCGM 100:2008 (GUM)',

@@ -318,10 +318,13 @@ function drawTimeSeries(doc: Doc, snapshot: CertificateSnapshot, outer: PlotBox)
   doc.moveTo(box.x, sy(0)).lineTo(box.x + box.width, sy(0)).lineWidth(0.5).dash(2, { space: 2 }).strokeColor(COLOUR.slate).stroke();
   doc.undash();
   plotFrame(doc, box);
+  // The snapshot holds only buckets with data; a step well above the usual one is a gap, and the line breaks there.
+  const steps = series.slice(1).map((p, i) => p.tSeconds - series[i].tSeconds).sort((u, v) => u - v);
+  const gapSeconds = 2 * (steps[Math.floor(steps.length / 2)] ?? Infinity);
   series.forEach((p, i) => {
     const x = sx(p.tSeconds / timeUnit.seconds);
     const y = sy(scaled[i]);
-    if (i === 0) doc.moveTo(x, y);
+    if (i === 0 || p.tSeconds - series[i - 1].tSeconds > gapSeconds) doc.moveTo(x, y);
     else doc.lineTo(x, y);
   });
   doc.lineWidth(0.5).strokeColor(COLOUR.teal).stroke();
@@ -399,7 +402,7 @@ function resultPanel(flow: Flow, s: CertificateSnapshot): void {
       note: `expanded uncertainty U, k = ${s.deltaC_m2s2.coverageFactor}`,
     },
     {
-      label: 'Height difference Δh (normal heights)',
+      label: 'Normal-height difference ΔH = H(B) − H(A)',
       value: `${formatValueWithUncertainty(s.deltaH_m.value, s.deltaH_m.expandedUncertainty)} m`,
       note: `expanded uncertainty U, k = ${s.deltaH_m.coverageFactor}`,
     },
@@ -409,9 +412,9 @@ function resultPanel(flow: Flow, s: CertificateSnapshot): void {
       note: `standard uncertainty u(y) = ${formatScientific(s.fractionalOffset.standardUncertainty, 2)}`,
     },
     {
-      label: 'Comparison with geodetic levelling',
+      label: 'Eₙ against the sites’ registered normal heights (geodesy)',
       value: `Eₙ = ${formatFixed(g.En, 2)}  ·  ${g.agreed ? 'agreed' : 'NOT agreed'}`,
-      note: `Δh geodesy = ${formatValueWithUncertainty(g.deltaHGeodesy_m.value, g.deltaHGeodesy_m.expandedUncertainty)} m (k = ${g.deltaHGeodesy_m.coverageFactor}); criterion |Eₙ| not above 1`,
+      note: `ΔH from the registered normal heights = ${formatValueWithUncertainty(g.deltaHGeodesy_m.value, g.deltaHGeodesy_m.expandedUncertainty)} m (k = ${g.deltaHGeodesy_m.coverageFactor}); criterion |Eₙ| not above 1`,
       alert: !g.agreed,
     },
   ];

@@ -15,48 +15,58 @@ export type LogLogSeries = {
 
 const MARGIN = { top: 12, right: 16, bottom: 44, left: 72 };
 
-function decadeTicks(lo: number, hi: number): number[] {
-  const ticks: number[] = [];
-  for (let e = Math.floor(Math.log10(lo)); e <= Math.ceil(Math.log10(hi)); e++) {
-    const v = 10 ** e;
-    if (v >= lo * 0.999 && v <= hi * 1.001) ticks.push(v);
-  }
-  return ticks;
+/** Ticks at the decades inside [lo, hi]; on a short range also at 2 and 5 times them (the 1–2–5 rule, common practice). */
+function logTicks(lo: number, hi: number): number[] {
+  const inside = (v: number) => v >= lo * 0.999 && v <= hi * 1.001;
+  const decades: number[] = [];
+  for (let e = Math.floor(Math.log10(lo)); e <= Math.ceil(Math.log10(hi)); e++) decades.push(10 ** e);
+  const ones = decades.filter(inside);
+  if (ones.length >= 2) return ones;
+  const fine = decades.flatMap((d) => [d, 2 * d, 5 * d]).filter(inside);
+  return fine.length >= 2 ? fine : decades.flatMap((d) => [1, 2, 3, 4, 5, 6, 7, 8, 9].map((m) => m * d)).filter(inside);
 }
 
-function superscript(v: number): string {
-  const e = Math.round(Math.log10(v));
-  const map: Record<string, string> = { '-': '⁻', 0: '⁰', 1: '¹', 2: '²', 3: '³', 4: '⁴', 5: '⁵', 6: '⁶', 7: '⁷', 8: '⁸', 9: '⁹' };
-  return `10${String(e).split('').map((c) => map[c] ?? c).join('')}`;
+const SUPERSCRIPT: Record<string, string> = { '-': '⁻', 0: '⁰', 1: '¹', 2: '²', 3: '³', 4: '⁴', 5: '⁵', 6: '⁶', 7: '⁷', 8: '⁸', 9: '⁹' };
+
+/** 10⁻¹⁶, or 2×10⁻¹⁶ between the decades. */
+function powerLabel(v: number): string {
+  const e = Math.floor(Math.log10(v) + 1e-9);
+  const mantissa = Math.round(v / 10 ** e);
+  const power = `10${String(e).split('').map((c) => SUPERSCRIPT[c] ?? c).join('')}`;
+  return mantissa === 1 ? power : `${mantissa}×${power}`;
 }
 
-export function LogLogPlot({ series, xLabel, yLabel, title, width = 640, height = 340 }: {
+/** The data range widened by a small margin in log space, so points and error bars sit inside the frame. */
+function fitLog(values: number[]): [number, number] {
+  const lo = Math.min(...values);
+  const hi = Math.max(...values);
+  const margin = Math.max(0.06 * Math.log10(hi / lo), 0.05);
+  return [lo / 10 ** margin, hi * 10 ** margin];
+}
+
+export function LogLogPlot({ series, xLabel, yLabel, title, width = 900, height = 340 }: {
   series: LogLogSeries[]; xLabel: string; yLabel: string; title: string; width?: number; height?: number;
 }) {
   const all = series.flatMap((s) => s.points.flatMap((p) => [p.y, p.low ?? p.y, p.high ?? p.y]).filter((v) => v > 0 && Number.isFinite(v)));
   const xs = series.flatMap((s) => s.points.map((p) => p.x)).filter((v) => v > 0);
   if (all.length === 0 || xs.length === 0) return <p className="text-sm text-ink-500">Nothing to plot yet.</p>;
-  const x0 = 10 ** Math.floor(Math.log10(Math.min(...xs)));
-  const x1 = 10 ** Math.ceil(Math.log10(Math.max(...xs)));
-  const y0 = 10 ** Math.floor(Math.log10(Math.min(...all)));
-  const y1 = 10 ** Math.ceil(Math.log10(Math.max(...all)));
-  const x = scaleLog().domain([x0, x1 === x0 ? x0 * 10 : x1]).range([MARGIN.left, width - MARGIN.right]);
-  const y = scaleLog().domain([y0, y1 === y0 ? y0 * 10 : y1]).range([height - MARGIN.bottom, MARGIN.top]);
+  const x = scaleLog().domain(fitLog(xs)).range([MARGIN.left, width - MARGIN.right]);
+  const y = scaleLog().domain(fitLog(all)).range([height - MARGIN.bottom, MARGIN.top]);
   const path = line<{ x: number; y: number }>().x((p) => x(p.x)).y((p) => y(p.y));
   return (
     <figure>
-      <svg viewBox={`0 0 ${width} ${height}`} className="w-full max-w-3xl" role="img" aria-label={title}>
+      <svg viewBox={`0 0 ${width} ${height}`} className="w-full" role="img" aria-label={title}>
         <title>{title}</title>
-        {decadeTicks(...(x.domain() as [number, number])).map((t) => (
+        {logTicks(...(x.domain() as [number, number])).map((t) => (
           <g key={`x${t}`}>
             <line x1={x(t)} x2={x(t)} y1={MARGIN.top} y2={height - MARGIN.bottom} className="stroke-paper-200" />
-            <text x={x(t)} y={height - MARGIN.bottom + 16} textAnchor="middle" className="fill-ink-500 text-[11px]">{superscript(t)}</text>
+            <text x={x(t)} y={height - MARGIN.bottom + 16} textAnchor="middle" className="fill-ink-500 text-[11px]">{powerLabel(t)}</text>
           </g>
         ))}
-        {decadeTicks(...(y.domain() as [number, number])).map((t) => (
+        {logTicks(...(y.domain() as [number, number])).map((t) => (
           <g key={`y${t}`}>
             <line x1={MARGIN.left} x2={width - MARGIN.right} y1={y(t)} y2={y(t)} className="stroke-paper-200" />
-            <text x={MARGIN.left - 6} y={y(t) + 4} textAnchor="end" className="fill-ink-500 text-[11px]">{superscript(t)}</text>
+            <text x={MARGIN.left - 6} y={y(t) + 4} textAnchor="end" className="fill-ink-500 text-[11px]">{powerLabel(t)}</text>
           </g>
         ))}
         <rect x={MARGIN.left} y={MARGIN.top} width={width - MARGIN.left - MARGIN.right} height={height - MARGIN.top - MARGIN.bottom} className="fill-none stroke-ink-200" />

@@ -4,6 +4,7 @@ import { useMe } from '../../api/account';
 import { certificatePdfUrl, certificateSnapshotUrl, useCertificate, useCertificateSnapshot } from '../../api/certificates';
 import { Button, Caution, EmptyState, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
+import { fixed } from '../../lib/format';
 import { CertificateActions } from './certificate-actions';
 import { CertificateStateBadge, formatExpanded } from './certificate-state';
 
@@ -49,8 +50,8 @@ export function CertificatePage() {
         <Panel title="Result">
           <dl className="grid grid-cols-[max-content_1fr] gap-x-4 gap-y-1.5 text-sm">
             <dt className="text-ink-500">Geopotential difference ΔC</dt><dd>{formatExpanded(c.deltaC_m2s2, 'm²/s²')}</dd>
-            <dt className="text-ink-500">Height difference Δh</dt><dd>{formatExpanded(c.deltaH_m, 'm')}</dd>
-            <dt className="text-ink-500">E<sub>n</sub> against levelling</dt><dd>{c.En.toFixed(2)} {c.agreed ? '(|Eₙ| ≤ 1: agrees)' : '(|Eₙ| > 1: does not agree)'}</dd>
+            <dt className="text-ink-500">Normal-height difference ΔH</dt><dd>{formatExpanded(c.deltaH_m, 'm')}</dd>
+            <dt className="text-ink-500">E<sub>n</sub> against the sites’ registered normal heights (geodesy)</dt><dd>{fixed(c.En, 2)} {c.agreed ? '(|Eₙ| ≤ 1: agrees)' : '(|Eₙ| > 1: does not agree)'}</dd>
             <dt className="text-ink-500">Measurement period</dt><dd>{c.measurementPeriod.start.slice(0, 10)} to {c.measurementPeriod.end.slice(0, 10)}</dd>
             <dt className="text-ink-500">Institutes</dt><dd>{[c.instituteA?.name, c.instituteB?.name].filter(Boolean).join(' and ')}</dd>
           </dl>

@@ -20,5 +20,5 @@ export function CertificateStateBadge({ state }: { state: CertificateState }) {
 /** Expanded quantity as the certificate prints it: value ± U (k = 2) unit. */
 export function formatExpanded(q: { value: number; expandedUncertainty: number; coverageFactor: number }, unit: string): string {
   const decimals = q.expandedUncertainty > 0 ? Math.max(0, 1 - Math.floor(Math.log10(q.expandedUncertainty))) : 3;
-  return `${q.value.toFixed(decimals)} ± ${q.expandedUncertainty.toFixed(decimals)} ${unit} (k = ${q.coverageFactor})`;
+  return `${q.value.toFixed(decimals).replace(/^-/, '−')} ± ${q.expandedUncertainty.toFixed(decimals)} ${unit} (k = ${q.coverageFactor})`;
 }

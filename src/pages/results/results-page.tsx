@@ -5,19 +5,13 @@ import { resultCsvUrl, useCampaignResult, useRecomputeResult } from '../../api/r
 import { AllanPlot } from '../../components/plots/allan-plot';
 import { Button, Caution, EmptyState, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
+import { fixed, sci, sig } from '../../lib/format';
 import { TidePlot, YSeriesPlot } from './y-series-plot';
 
 // The comparison result of one campaign: what was measured, how uncertain, and whether it agrees with geodesy.
 
-const SUP: Record<string, string> = { '-': '⁻', '0': '⁰', '1': '¹', '2': '²', '3': '³', '4': '⁴', '5': '⁵', '6': '⁶', '7': '⁷', '8': '⁸', '9': '⁹' };
-/** Scientific notation with a superscript exponent: 1.49 × 10⁻¹⁸; zero stays 0. */
-const e = (v: number | null | undefined, digits = 3) => {
-  if (v === null || v === undefined) return '—';
-  if (v === 0) return '0';
-  const [m, x] = v.toExponential(digits - 1).split('e');
-  return `${m} × 10${x.replace('+', '').split('').map((c) => SUP[c] ?? c).join('')}`;
-};
-const f = (v: number, decimals: number) => v.toFixed(decimals);
+const e = (v: number | null | undefined, digits = 3) => sci(v, digits);
+const f = (v: number, decimals: number) => fixed(v, decimals);
 /** Decimals so that the expanded uncertainty shows two significant digits (GUM 7.2.6 practice). */
 const decimalsFor = (u: number) => Math.max(0, Math.min(9, 1 - Math.floor(Math.log10(u || 1))));
 
@@ -41,16 +35,16 @@ function Agreement({ r }: { r: ResultBody }) {
       <div className={`flex items-start gap-3 rounded-md border-l-4 px-4 py-3 ${ok ? 'border-agree-600 bg-agree-100 text-agree-800' : 'border-disagree-600 bg-disagree-100 text-disagree-800'}`} data-testid="agreement" role="status">
         <span aria-hidden className="text-2xl leading-none">{ok ? '✓' : '✗'}</span>
         <div>
-          <p className="font-semibold">{ok ? 'Agreed' : 'Not agreed'} — E_n = {g.en.toFixed(2)}</p>
+          <p className="font-semibold">{ok ? 'Agreed' : 'Not agreed'} — E_n = {f(g.en, 2)}</p>
           <p className="text-sm">{g.statement}</p>
         </div>
       </div>
       <table className="mt-3 min-w-full text-sm">
         <tbody>
-          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Δh from the clocks (H_B − H_A)</td><td className="text-right font-mono">{f(r.deltaH_m.value, 4)} ± {f(r.deltaH_m.expandedUncertainty, 4)} m (k = 2)</td></tr>
-          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Δh from geodesy ({g.source})</td><td className="text-right font-mono">{f(g.deltaH_m.value, 4)} ± {f(g.deltaH_m.expandedUncertainty, 4)} m (k = 2)</td></tr>
-          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Difference (clocks − geodesy)</td><td className="text-right font-mono">{f(g.differenceM, 4)} m</td></tr>
-          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">E_n = difference / √(U_clocks² + U_geodesy²)</td><td className="text-right font-mono">{g.en.toFixed(3)} ({Math.abs(g.en) <= 1 ? '|E_n| ≤ 1' : '|E_n| > 1'})</td></tr>
+          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">ΔH from the clocks (H_B − H_A)</td><td className="text-right font-mono">{f(r.deltaH_m.value, 4)} ± {f(r.deltaH_m.expandedUncertainty, 4)} m (k = 2)</td></tr>
+          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">ΔH from geodesy ({g.source})</td><td className="text-right font-mono">{f(g.deltaH_m.value, 4)} ± {f(g.deltaH_m.expandedUncertainty, 4)} m (k = 2)</td></tr>
+          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Difference (clocks − geodesy)</td><td className="text-right font-mono">{f(g.differenceM, 4)} ± {f(Math.hypot(r.deltaH_m.expandedUncertainty, g.deltaH_m.expandedUncertainty), 4)} m (k = 2)</td></tr>
+          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">E_n = difference / √(U_clocks² + U_geodesy²)</td><td className="text-right font-mono">{f(g.en, 3)} ({Math.abs(g.en) <= 1 ? '|E_n| ≤ 1' : '|E_n| > 1'})</td></tr>
         </tbody>
       </table>
     </Panel>
@@ -144,7 +138,7 @@ export function ResultsPage() {
           <p className="text-xs text-ink-500">expanded uncertainty, k = 2; measured mean ratio {r.measuredRatio}</p>
         </div>
         <Quantity label="Potential difference ΔC = C_B − C_A" value={r.deltaC_m2s2.value} unit="m²/s²" expanded={r.deltaC_m2s2.expandedUncertainty} testId="result-dc" />
-        <Quantity label="Height difference Δh = H_B − H_A" value={r.deltaH_m.value} unit="m" expanded={r.deltaH_m.expandedUncertainty} testId="result-dh" />
+        <Quantity label="Normal-height difference ΔH = H_B − H_A" value={r.deltaH_m.value} unit="m" expanded={r.deltaH_m.expandedUncertainty} testId="result-dh" />
       </section>
 
       <Agreement r={r} />
@@ -170,14 +164,14 @@ export function ResultsPage() {
           <ul className="space-y-1 text-sm">
             <li>Results are stated in the <strong>{r.tide.system}</strong> system (as the IHRS).</li>
             {r.otherTideSystems.map((o) => (
-              <li key={o.system}>In the {o.system} system: ΔC = {o.deltaC_m2s2.toFixed(3)} m²/s², Δh = {o.deltaH_m.toFixed(4)} m.</li>
+              <li key={o.system}>In the {o.system} system: ΔC = {f(o.deltaC_m2s2, 3)} m²/s², ΔH = {f(o.deltaH_m, 4)} m.</li>
             ))}
             <li>{r.w0Convention.name}: W0 = {r.w0Convention.value_m2s2} m²/s² ({r.w0Convention.source}). {r.w0Convention.note}</li>
           </ul>
         </Panel>
         <Panel title="Data">
           <ul className="space-y-1 text-sm">
-            <li>{r.samples.valid.toLocaleString('en')} valid samples of {r.samples.total.toLocaleString('en')} ({r.samples.flaggedInvalid} flagged, {r.samples.missingEpochs} missing epochs), τ0 = {r.samples.tau0Seconds.toFixed(3)} s.</li>
+            <li>{r.samples.valid.toLocaleString('en')} valid samples of {r.samples.total.toLocaleString('en')} ({r.samples.flaggedInvalid} flagged, {r.samples.missingEpochs} missing epochs), τ0 = {sig(r.samples.tau0Seconds, 6)} s.</li>
             <li>Uptime {(100 * r.samples.uptimeFraction).toFixed(1)} % of the campaign period ({(100 * r.samples.uptimeOfSpanFraction).toFixed(1)} % of the span of the data).</li>
             <li>Reference ratio R0 = {r.referenceRatio.value} (u_rel = {e(r.referenceRatio.relativeUncertainty, 2)}; {r.referenceRatio.source}).</li>
             {r.inputFiles.map((file) => <li key={file.seriesId}>File {file.name}: {file.sampleCount.toLocaleString('en')} rows, SHA-256 <code className="break-all text-xs">{file.sha256}</code></li>)}
