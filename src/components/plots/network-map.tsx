@@ -1,4 +1,4 @@
-import { geoMercator, geoPath, type GeoPermissibleObjects } from 'd3-geo';
+import { geoDistance, geoGraticule, geoMercator, geoPath, type GeoPermissibleObjects } from 'd3-geo';
 import { useQuery } from '@tanstack/react-query';
 import { feature } from 'topojson-client';
 import type { Topology, GeometryObject } from 'topojson-specification';
@@ -23,6 +23,78 @@ const useLand = () =>
     },
     staleTime: Infinity,
   });
+
+type Box = { x: number; y: number; w: number; h: number };
+type Placed = { x: number; y: number; anchor: 'start' | 'middle' | 'end' };
+/** About 5.8 px per character at the map's 10 px sans-serif (common practice: an estimate instead of measuring text). */
+const CHAR_PX = 5.8;
+const LINE_PX = 11;
+const overlaps = (a: Box, b: Box) => a.x < b.x + b.w && b.x < a.x + a.w && a.y < b.y + b.h && b.y < a.y + a.h;
+
+/**
+ * Greedy label placement: each label tries a few spots around its point in turn and takes the first that overlaps
+ * neither a label placed before it nor another point's symbol; with no free spot it is left out (its name stays in the
+ * symbol's <title>, shown on hover, and in the accessible name). Labels come in priority order.
+ */
+export function placeLabels(
+  labels: { id: string; x: number; y: number; text: string; lines?: number; offset?: number }[],
+  obstacles: (Box & { id?: string })[],
+  bounds: { width: number; height: number },
+): Map<string, Placed> {
+  const placed: Box[] = [];
+  const out = new Map<string, Placed>();
+  for (const l of labels) {
+    const w = l.text.length * CHAR_PX;
+    const h = (l.lines ?? 1) * LINE_PX;
+    const d = l.offset ?? 7;
+    // Candidates: right, left, above, below, then the four diagonals (text baseline = top + 9 px).
+    const candidates: (Placed & { box: Box })[] = [
+      { x: l.x + d, y: l.y + 3, anchor: 'start', box: { x: l.x + d, y: l.y - 6, w, h } },
+      { x: l.x - d, y: l.y + 3, anchor: 'end', box: { x: l.x - d - w, y: l.y - 6, w, h } },
+      { x: l.x, y: l.y - d - 2 - (h - LINE_PX), anchor: 'middle', box: { x: l.x - w / 2, y: l.y - d - h - 1, w, h } },
+      { x: l.x, y: l.y + d + 9, anchor: 'middle', box: { x: l.x - w / 2, y: l.y + d, w, h } },
+      { x: l.x + d, y: l.y - d - (h - LINE_PX), anchor: 'start', box: { x: l.x + d, y: l.y - d - h + 2, w, h } },
+      { x: l.x - d, y: l.y - d - (h - LINE_PX), anchor: 'end', box: { x: l.x - d - w, y: l.y - d - h + 2, w, h } },
+      { x: l.x + d, y: l.y + d + 9, anchor: 'start', box: { x: l.x + d, y: l.y + d, w, h } },
+      { x: l.x - d, y: l.y + d + 9, anchor: 'end', box: { x: l.x - d - w, y: l.y + d, w, h } },
+    ];
+    const free = candidates.find((c) =>
+      c.box.x >= 0 && c.box.y >= 0 && c.box.x + c.box.w <= bounds.width && c.box.y + c.box.h <= bounds.height
+      && !placed.some((b) => overlaps(b, c.box)) && !obstacles.some((o) => o.id !== l.id && overlaps(o, c.box)));
+    if (!free) continue;
+    placed.push(free.box);
+    out.set(l.id, { x: free.x, y: free.y, anchor: free.anchor });
+  }
+  return out;
+}
+
+/** A round length (1, 2 or 5 × 10ⁿ km) whose bar is at most maxPx long. */
+export function scaleBarKm(kmPerPx: number, maxPx = 120): { km: number; px: number } {
+  const target = kmPerPx * maxPx;
+  const p = 10 ** Math.floor(Math.log10(target));
+  const km = [5, 2, 1].map((m) => m * p).find((v) => v <= target) ?? p;
+  return { km, px: km / kmPerPx };
+}
+
+/** A graticule step (degrees) that draws about three to eight lines across a span. */
+function graticuleStepDeg(spanDeg: number) {
+  const steps = [0.05, 0.1, 0.2, 0.25, 0.5, 1, 2, 5, 10, 15, 30];
+  return steps.find((st) => spanDeg / st <= 8) ?? 30;
+}
+
+function linkNote(l: NetworkMap['links'][number]) {
+  const cs = l.comparisons;
+  if (cs.length === 0) return '';
+  if (cs.every((c) => c.verdict === 'not-comparable')) return cs.length > 1 ? `${cs.length} campaigns · not comparable` : 'not comparable';
+  const ens = cs.map((c) => (c.en === null ? '—' : c.en.toFixed(2)));
+  return cs.length > 1 ? `${cs.length} campaigns · E_n ${ens.join(' / ')}` : `E_n ${ens[0]}`;
+}
+
+export function linkClass(l: NetworkMap['links'][number]) {
+  const comparable = l.comparisons.filter((c) => c.en !== null);
+  if (comparable.length === 0) return 'stroke-ink-400';
+  return comparable.every((c) => Math.abs(c.en!) <= 1) ? 'stroke-agree-600' : 'stroke-disagree-600';
+}
 
 export function sectionStyle(w: number | null, suspected: boolean, adjusted = true) {
   if (!adjusted) return { cls: 'stroke-ink-300', width: 1.5, dash: '2 3', label: 'not in an adjustment yet' };
@@ -49,16 +121,36 @@ export function NetworkMapSvg({ data, selected, onSelect, focusDatum }: { data: 
   const bm = new Map(data.benchmarks.map((b) => [b.code, b]));
   const sites = new Map(data.sites.map((s) => [s.id, s]));
   const p = (lon: number, lat: number) => projection([lon, lat]) ?? [0, 0];
-  // Labels only where they do not collide: a benchmark is named when its nearest neighbour is more than 30 px away.
-  const xy = data.benchmarks.map((b) => p(b.longitudeDeg, b.latitudeDeg));
-  const labelled = new Set<string>();
-  if (xy.length <= 400) {
-    xy.forEach(([x0, y0], i) => {
-      let nearest = Infinity;
-      xy.forEach(([x1, y1], j) => { if (i !== j) nearest = Math.min(nearest, Math.hypot(x1 - x0, y1 - y0)); });
-      if (nearest > 30) labelled.add(data.benchmarks[i].id);
-    });
+  const xy = new Map(data.benchmarks.map((b) => [b.id, p(b.longitudeDeg, b.latitudeDeg)]));
+  const siteXy = new Map(data.sites.map((s) => [s.id, p(s.longitudeDeg, s.latitudeDeg)]));
+  // Symbols are obstacles, so no label hides a point; sites get their names first, then fixed, then free benchmarks.
+  const obstacles = [
+    ...[...xy].map(([id, [x, y]]) => ({ id, x: x - 5, y: y - 5, w: 10, h: 10 })),
+    ...[...siteXy].map(([id, [x, y]]) => ({ id, x: x - 8, y: y - 9, w: 16, h: 15 })),
+  ];
+  const ranked = [...data.benchmarks].filter((b) => !b.destroyed).sort((a, b) => Number(b.fixed) - Number(a.fixed) || a.code.localeCompare(b.code));
+  const labels = placeLabels([
+    ...data.sites.map((s) => ({ id: s.id, x: siteXy.get(s.id)![0], y: siteXy.get(s.id)![1], text: s.name, offset: 11 })),
+    ...(ranked.length <= 400 ? ranked.map((b) => ({ id: b.id, x: xy.get(b.id)![0], y: xy.get(b.id)![1], text: b.code })) : []),
+  ], obstacles, { width, height });
+  // Scale: the ground distance of 100 px across the map's centre (spherical, R = 6371 km: enough for a scale bar).
+  const [cx0, cy0] = [width / 2 - 50, height / 2];
+  const west = projection.invert?.([cx0, cy0]);
+  const east = projection.invert?.([cx0 + 100, cy0]);
+  const bar = west && east ? scaleBarKm((geoDistance(west, east) * 6371) / 100) : null;
+  const nw = projection.invert?.([0, 0]);
+  const se = projection.invert?.([width, height]);
+  const step = nw && se ? graticuleStepDeg(Math.max(se[0] - nw[0], nw[1] - se[1])) : null;
+  const graticule = nw && se && step
+    ? geoGraticule().extent([[Math.floor(nw[0] / step) * step - step, Math.floor(se[1] / step) * step - step], [Math.ceil(se[0] / step) * step + step, Math.ceil(nw[1] / step) * step + step]]).step([step, step])()
+    : null;
+  const meridians: number[] = [];
+  const parallels: number[] = [];
+  if (nw && se && step) {
+    for (let lon = Math.ceil(nw[0] / step) * step; lon <= se[0]; lon += step) meridians.push(lon);
+    for (let lat = Math.ceil(se[1] / step) * step; lat <= nw[1]; lat += step) parallels.push(lat);
   }
+  const deg = (v: number) => `${+v.toFixed(2)}°`;
   const isSel = (kind: MapSelection['kind'], id: string) => selected?.kind === kind && selected.id === id;
   const key = (e: React.KeyboardEvent, s: MapSelection) => { if (e.key === 'Enter' || e.key === ' ') { e.preventDefault(); onSelect(s); } };
   return (
@@ -66,19 +158,27 @@ export function NetworkMapSvg({ data, selected, onSelect, focusDatum }: { data: 
       <defs><clipPath id="map-clip"><rect width={width} height={height} /></clipPath></defs>
       <g clipPath="url(#map-clip)">
         {land.data && <path d={path(land.data) ?? ''} className="fill-paper-100 stroke-paper-200" />}
+        {graticule && <path d={path(graticule) ?? ''} fill="none" className="stroke-ink-300" strokeWidth={0.5} strokeOpacity={0.5} data-testid="graticule" />}
+        <g aria-hidden className="fill-ink-500 text-[9px]">
+          {meridians.map((lon) => <text key={`m${lon}`} x={p(lon, parallels[0] ?? 0)[0] + 2} y={10}>{deg(lon)} E</text>)}
+          {parallels.map((lat) => <text key={`p${lat}`} x={2} y={p(meridians[0] ?? 0, lat)[1] - 2}>{deg(lat)} N</text>)}
+        </g>
         {data.links.map((l) => {
           const a = sites.get(l.fromSiteId);
           const b = sites.get(l.toSiteId);
           if (!a || !b) return null;
           const [x1, y1] = p(a.longitudeDeg, a.latitudeDeg);
           const [x2, y2] = p(b.longitudeDeg, b.latitudeDeg);
-          const cls = l.en === null ? 'stroke-ink-400' : Math.abs(l.en) <= 1 ? 'stroke-agree-600' : 'stroke-disagree-600';
+          const cls = linkClass(l);
+          const note = linkNote(l);
           const mx = (x1 + x2) / 2 + (y2 - y1) * 0.15;
           const my = (y1 + y2) / 2 - (x2 - x1) * 0.15;
           return (
             <g key={l.id} tabIndex={0} role="button" aria-label={`Fibre link ${l.label}`} onClick={() => onSelect({ kind: 'link', id: l.id })} onKeyDown={(e) => key(e, { kind: 'link', id: l.id })} className="cursor-pointer">
               <path d={`M${x1},${y1} Q${mx},${my} ${x2},${y2}`} fill="none" className={cls} strokeWidth={isSel('link', l.id) ? 5 : 3} strokeDasharray="10 4 2 4" />
-              <text x={mx} y={my - 4} textAnchor="middle" className="fill-ink-800">{l.label}{l.en !== null ? ` · E_n ${l.en.toFixed(2)}` : ''}</text>
+              <text x={mx} y={my - (note ? 14 : 4)} textAnchor="middle" className="fill-ink-800">{l.label}</text>
+              {note && <text x={mx} y={my - 3} textAnchor="middle" className="fill-ink-700" data-testid="link-note">{note}</text>}
+              <title>{[`Fibre link ${l.label}`, ...l.comparisons.map((c) => `${c.campaignLabel}: ${c.en === null ? (c.verdict === 'not-comparable' ? 'not comparable (datums not connected by levelling)' : 'no E_n') : `E_n ${c.en.toFixed(2)}`}`)].join('\n')}</title>
             </g>
           );
         })}
@@ -109,8 +209,10 @@ export function NetworkMapSvg({ data, selected, onSelect, focusDatum }: { data: 
               ) : (
                 <circle cx={x} cy={y} r={sel ? 6 : 4} className="fill-white stroke-ink-700" strokeWidth={1.5} />
               )}
-              {(labelled.has(b.id) || sel) && <text x={x + 7} y={y + 3} className="fill-ink-700">{b.code}</text>}
-              <title>{`${b.code} ${b.name}`}</title>
+              <title>{`${b.code} ${b.name} (${b.datumName})`}</title>
+              {labels.has(b.id)
+                ? <text x={labels.get(b.id)!.x} y={labels.get(b.id)!.y} textAnchor={labels.get(b.id)!.anchor} className={sel ? 'fill-ink-900 font-semibold' : 'fill-ink-700'}>{b.code}</text>
+                : sel && <text x={x + 7} y={y + 3} className="fill-ink-900 font-semibold" paintOrder="stroke" stroke="white" strokeWidth={3}>{b.code}</text>}
             </g>
           );
         })}
@@ -119,11 +221,19 @@ export function NetworkMapSvg({ data, selected, onSelect, focusDatum }: { data: 
           return (
             <g key={s.id} tabIndex={0} role="button" aria-label={`Clock site ${s.code} ${s.name}`} onClick={() => onSelect({ kind: 'site', id: s.id })} onKeyDown={(e) => key(e, { kind: 'site', id: s.id })} className="cursor-pointer">
               <path d={`M${x},${y - 9} L${x + 8},${y + 6} L${x - 8},${y + 6} Z`} className="fill-brass-400 stroke-ink-800" strokeWidth={isSel('site', s.id) ? 2.5 : 1} />
-              <text x={x} y={y - 13} textAnchor="middle" className="fill-ink-900 font-semibold">{s.name}</text>
+              <title>{`${s.code} · ${s.name}${s.benchmarkCode ? ` (tied to ${s.benchmarkCode})` : ''}`}</title>
+              {labels.has(s.id) && <text x={labels.get(s.id)!.x} y={labels.get(s.id)!.y} textAnchor={labels.get(s.id)!.anchor} className="fill-ink-900 font-semibold">{s.name}</text>}
             </g>
           );
         })}
       </g>
+      {bar && (
+        <g aria-label={`Scale bar: ${bar.km} km`} data-testid="scale-bar" transform={`translate(16, ${height - 22})`}>
+          <rect x={-6} y={-14} width={bar.px + 52} height={26} rx={3} className="fill-white" fillOpacity={0.8} />
+          <path d={`M0,0 L${bar.px},0 M0,-5 L0,5 M${bar.px},-5 L${bar.px},5 M${bar.px / 2},-3 L${bar.px / 2},3`} className="stroke-ink-800" strokeWidth={1.5} />
+          <text x={bar.px + 6} y={4} className="fill-ink-800">{bar.km} km</text>
+        </g>
+      )}
     </svg>
   );
 }
@@ -141,7 +251,8 @@ export function NetworkMapLegend() {
     }),
     [<line key="a" x1={0} y1={7} x2={18} y2={7} className="stroke-agree-600" strokeWidth={3} strokeDasharray="10 4 2 4" />, 'fibre link, clock and levelling agree (|E_n| ≤ 1)'],
     [<line key="d" x1={0} y1={7} x2={18} y2={7} className="stroke-disagree-600" strokeWidth={3} strokeDasharray="10 4 2 4" />, 'fibre link, |E_n| > 1'],
-    [<line key="n" x1={0} y1={7} x2={18} y2={7} className="stroke-ink-400" strokeWidth={3} strokeDasharray="10 4 2 4" />, 'fibre link, no comparison yet'],
+    [<line key="n" x1={0} y1={7} x2={18} y2={7} className="stroke-ink-400" strokeWidth={3} strokeDasharray="10 4 2 4" />, 'fibre link, no comparison yet, or not comparable (datums not connected by levelling)'],
+    [<path key="g" d="M0,4 L18,4 M0,11 L18,11 M6,0 L6,14" className="stroke-ink-300" strokeWidth={0.7} />, 'graticule (degrees, GRS80/ETRS89)'],
   ];
   return (
     <ul className="space-y-1 text-xs" aria-label="Map legend">

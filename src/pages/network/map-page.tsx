@@ -26,7 +26,7 @@ export function MapPage() {
           </label>
         }>
           {d ? <NetworkMapSvg data={d} selected={selected} onSelect={setSelected} focusDatum={focus || undefined} /> : <p>Loading…</p>}
-          <p className="mt-1 text-xs text-ink-500">Coastline: Natural Earth 1:50m (public domain) via world-atlas. Section colours come from the latest finished adjustment run. Crowded benchmarks are named when you choose one datum to show.</p>
+          <p className="mt-1 text-xs text-ink-500">Coastline: Natural Earth 1:50m (public domain) via world-atlas. Section colours come from the latest finished adjustment run. Labels that would overlap are left out: hover or focus a symbol for its full name, or choose one datum to show. Graticule in degrees; the scale bar holds near the map's centre (Mercator).</p>
         </Panel>
         <div className="space-y-4">
           <Panel title="Selected">{d && <SelectionDetail data={d} selected={selected} />}</Panel>
@@ -79,7 +79,12 @@ function SelectionDetail({ data, selected }: { data: NonNullable<ReturnType<type
   return (
     <div className="text-sm" data-testid="map-selection">
       <p className="font-semibold">Fibre link {l.label}</p>
-      <p>E_n = {fmt(l.en, 2)}</p>
+      {l.comparisons.length === 0 && <p>No compared campaign yet.</p>}
+      <ul>
+        {l.comparisons.map((c) => (
+          <li key={c.campaignLabel}>{c.campaignLabel}: {c.verdict === 'not-comparable' ? 'not comparable — datums not connected by levelling' : c.en === null ? 'no E_n' : `E_n = ${fmt(c.en, 2)}`}</li>
+        ))}
+      </ul>
       <Link to="/network/reconciliation">Open the reconciliation →</Link>
     </div>
   );
