@@ -103,7 +103,8 @@ describe.skipIf(!hasPoppler)(popplerSuite, () => {
     const required = [
       s.certificateNumber,
       'ΔC',
-      'Δh',
+      'ΔH',
+      'Eₙ against the sites’ registered normal heights (geodesy)',
       'k = 2',
       'Eₙ',
       '5886.13 ± 0.71 m²/s²',
