@@ -57,6 +57,7 @@ describe('coordinator journey', () => {
     await firstLoop.waitFor();
     await expect(firstLoop.textContent()).resolves.toContain('over tolerance');
     await expect(firstLoop.textContent()).resolves.toContain('Dune road');
+    await page.getByText('tolerance coefficient t = ').first().waitFor();
     await screenshot(page, 'coordinator-loops');
 
     await page.getByRole('link', { name: 'Adjustment runs' }).click();
@@ -64,15 +65,36 @@ describe('coordinator journey', () => {
     await page.waitForURL(/\/network\/runs\/[0-9a-f-]{36}$/);
     await page.getByTestId('run-state').filter({ hasText: 'finished' }).waitFor({ timeout: 30_000 });
     await expect(page.getByTestId('suspects').textContent()).resolves.toContain('Dune road');
+    // A rejected global test is announced before the heights (the Dune road blunder makes σ̂0 well above 1).
+    if ((await page.getByTestId('global-test').textContent())?.includes('rejected')) {
+      await expect(page.getByTestId('global-test-failed').textContent()).resolves.toContain('provisional');
+    }
     await screenshot(page, 'coordinator-run');
 
+    // Give one accepted campaign a computed clock result (invented values) unless the demo already has one.
+    const [campaign] = await srv.ds.query(`SELECT c.id FROM campaign c WHERE c.state IN ('accepted','certified') ORDER BY c.period_end DESC LIMIT 1`);
+    const [has] = await srv.ds.query('SELECT count(*)::int AS n FROM comparison_result WHERE campaign_id = $1', [campaign.id]);
+    if (has.n === 0) {
+      await srv.ds.query(
+        `INSERT INTO comparison_result (campaign_id, input_hash, constants, software_version, computed_at, computed_by, result)
+         VALUES ($1, $2, '{}'::jsonb, 'test', now(), 'test', $3::jsonb)`,
+        [campaign.id, 'b'.repeat(64), JSON.stringify({ deltaC_m2s2: { value: 5307.8, standardUncertainty: 0.05, expandedUncertainty: 0.1, coverageFactor: 2 } })],
+      );
+    }
     await page.getByRole('link', { name: 'Reconciliation' }).click();
     await page.getByText('scientific comparison').waitFor();
+    await page.getByTestId('verdict').first().waitFor();
+    // The demo's clock link joins two datums no levelling connects: no agree/disagree verdict, and no doubled code.
+    const verdicts = await page.getByTestId('verdict').allTextContents();
+    expect(verdicts.length).toBeGreaterThan(0);
+    expect(verdicts.every((v) => v.includes('not comparable'))).toBe(true);
+    await expect(page.getByTestId('reconciliation-row').first().textContent()).resolves.not.toContain('SCL SCL');
     await screenshot(page, 'coordinator-reconciliation');
 
     await page.getByRole('link', { name: 'Map', exact: true }).click();
     await page.getByRole('button', { name: 'Benchmark SCL-BM1' }).waitFor();
     await page.waitForTimeout(500);
+    await page.getByTestId('scale-bar').waitFor();
     await screenshot(page, 'coordinator-map-whole');
     await page.getByLabel('Show').selectOption('Coastal Datum 1987');
     // Keyboard selection: every map feature is focusable and opens with Enter.
@@ -83,6 +105,11 @@ describe('coordinator journey', () => {
     await screenshot(page, 'coordinator-map');
     await page.getByRole('link', { name: 'Open the benchmark →' }).click();
     await page.getByRole('heading', { name: 'Benchmark SCL-BM1' }).waitFor();
+    await expect(page.getByTestId('entered-position').textContent()).resolves.toMatch(/longitude|easting|X /);
+    await expect(page.getByTestId('known-height').textContent()).resolves.toContain('k = 1');
+    await page.getByTestId('benchmark-sections').waitFor();
+    await page.getByTestId('adjusted-height').filter({ hasText: 'm²/s²' }).waitFor();
+    await screenshot(page, 'coordinator-benchmark');
     await context.close();
   });
 });

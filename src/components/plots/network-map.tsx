@@ -37,14 +37,14 @@ const overlaps = (a: Box, b: Box) => a.x < b.x + b.w && b.x < a.x + a.w && a.y <
  * symbol's <title>, shown on hover, and in the accessible name). Labels come in priority order.
  */
 export function placeLabels(
-  labels: { id: string; x: number; y: number; text: string; lines?: number; offset?: number }[],
+  labels: { id: string; x: number; y: number; text: string; lines?: number; offset?: number; bold?: boolean }[],
   obstacles: (Box & { id?: string })[],
   bounds: { width: number; height: number },
 ): Map<string, Placed> {
   const placed: Box[] = [];
   const out = new Map<string, Placed>();
   for (const l of labels) {
-    const w = l.text.length * CHAR_PX;
+    const w = l.text.length * CHAR_PX * (l.bold ? 1.12 : 1);
     const h = (l.lines ?? 1) * LINE_PX;
     const d = l.offset ?? 7;
     // Candidates: right, left, above, below, then the four diagonals (text baseline = top + 9 px).
@@ -128,9 +128,19 @@ export function NetworkMapSvg({ data, selected, onSelect, focusDatum }: { data: 
     ...[...xy].map(([id, [x, y]]) => ({ id, x: x - 5, y: y - 5, w: 10, h: 10 })),
     ...[...siteXy].map(([id, [x, y]]) => ({ id, x: x - 8, y: y - 9, w: 16, h: 15 })),
   ];
-  const ranked = [...data.benchmarks].filter((b) => !b.destroyed).sort((a, b) => Number(b.fixed) - Number(a.fixed) || a.code.localeCompare(b.code));
+  const rank = (b: NetworkMap['benchmarks'][number]) => (selected?.kind === 'benchmark' && selected.id === b.id ? 0 : b.destroyed ? 3 : b.fixed ? 1 : 2);
+  const ranked = [...data.benchmarks].sort((a, b) => rank(a) - rank(b) || a.code.localeCompare(b.code));
+  const suspects = data.sections.flatMap((s) => {
+    const a = bm.get(s.fromCode);
+    const b = bm.get(s.toCode);
+    if (!s.suspected || !a || !b) return [];
+    const [x1, y1] = p(a.longitudeDeg, a.latitudeDeg);
+    const [x2, y2] = p(b.longitudeDeg, b.latitudeDeg);
+    return [{ id: `w:${s.id}`, x: (x1 + x2) / 2, y: (y1 + y2) / 2, text: `✕ w = ${s.standardizedResidual?.toFixed(1)}`, offset: 3, bold: true }];
+  });
   const labels = placeLabels([
-    ...data.sites.map((s) => ({ id: s.id, x: siteXy.get(s.id)![0], y: siteXy.get(s.id)![1], text: s.name, offset: 11 })),
+    ...data.sites.map((s) => ({ id: s.id, x: siteXy.get(s.id)![0], y: siteXy.get(s.id)![1], text: s.name, offset: 11, bold: true })),
+    ...suspects,
     ...(ranked.length <= 400 ? ranked.map((b) => ({ id: b.id, x: xy.get(b.id)![0], y: xy.get(b.id)![1], text: b.code })) : []),
   ], obstacles, { width, height });
   // Scale: the ground distance of 100 px across the map's centre (spherical, R = 6371 km: enough for a scale bar).
@@ -193,7 +203,10 @@ export function NetworkMapSvg({ data, selected, onSelect, focusDatum }: { data: 
             <g key={s.id} tabIndex={0} role="button" aria-label={`Section ${s.fromCode} to ${s.toCode}`} onClick={() => onSelect({ kind: 'section', id: s.id })} onKeyDown={(e) => key(e, { kind: 'section', id: s.id })} className="cursor-pointer">
               <line x1={x1} y1={y1} x2={x2} y2={y2} stroke="transparent" strokeWidth={10} />
               <line x1={x1} y1={y1} x2={x2} y2={y2} className={st.cls} strokeWidth={isSel('section', s.id) ? st.width + 2 : st.width} strokeDasharray={st.dash} />
-              {s.suspected && <text x={(x1 + x2) / 2} y={(y1 + y2) / 2 - 6} textAnchor="middle" className="fill-disagree-800 font-semibold">✕ w = {s.standardizedResidual?.toFixed(1)}</text>}
+              <title>{`Section ${s.fromCode} → ${s.toCode}${s.lineName ? ` (${s.lineName})` : ''}: ${st.label}${s.standardizedResidual !== null ? `, w = ${s.standardizedResidual.toFixed(2)}` : ''}`}</title>
+              {labels.has(`w:${s.id}`) && (
+                <text x={labels.get(`w:${s.id}`)!.x} y={labels.get(`w:${s.id}`)!.y} textAnchor={labels.get(`w:${s.id}`)!.anchor} className="fill-disagree-800 font-semibold">✕ w = {s.standardizedResidual?.toFixed(1)}</text>
+              )}
             </g>
           );
         })}
@@ -212,7 +225,7 @@ export function NetworkMapSvg({ data, selected, onSelect, focusDatum }: { data: 
               <title>{`${b.code} ${b.name} (${b.datumName})`}</title>
               {labels.has(b.id)
                 ? <text x={labels.get(b.id)!.x} y={labels.get(b.id)!.y} textAnchor={labels.get(b.id)!.anchor} className={sel ? 'fill-ink-900 font-semibold' : 'fill-ink-700'}>{b.code}</text>
-                : sel && <text x={x + 7} y={y + 3} className="fill-ink-900 font-semibold" paintOrder="stroke" stroke="white" strokeWidth={3}>{b.code}</text>}
+                : null}
             </g>
           );
         })}
