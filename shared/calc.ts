@@ -14,7 +14,7 @@ export const redshiftRequestSchema = z.object({
   /** Standard uncertainty of y (k = 1). */
   fractionalUncertainty: z.number().min(0).max(1).optional(),
   latitudeDeg: latitude,
-  /** Normal height of clock A (m); Δh is computed at A's height. */
+  /** Normal height of clock A (m); ΔH is computed at A's height. */
   normalHeightM: z.number().min(-1000).max(10_000).default(0),
 });
 export type RedshiftRequest = z.input<typeof redshiftRequestSchema>;

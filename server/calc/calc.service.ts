@@ -39,7 +39,7 @@ export function redshift(body: z.output<typeof redshiftRequestSchema>): Redshift
     heightDifference: r.heightDifference,
     coverageFactor: 1,
     method:
-      'y = R/R0 − 1 in 50-digit decimal arithmetic; ΔC = c²·y (first order in 1/c²); Δh = H_N(C_A + ΔC) − H_A with GRS80 mean normal gravity along the normal plumb line at the given latitude. Uncertainties are standard (k = 1), propagated from the given u(y).',
+      'y = R/R0 − 1 in 50-digit decimal arithmetic; ΔC = c²·y (first order in 1/c²); ΔH = H_N(C_A + ΔC) − H_A (normal heights) with GRS80 mean normal gravity along the normal plumb line at the given latitude. Uncertainties are standard (k = 1), propagated from the given u(y).',
   };
 }
 

@@ -67,7 +67,7 @@ afterAll(async () => {
 });
 
 describe('results page', () => {
-  it('shows the coordinator the plots, the budget, ΔC, Δh and the E_n verdict', async () => {
+  it('shows the coordinator the plots, the budget, ΔC, ΔH and the E_n verdict', async () => {
     const context = await browser.newContext({ viewport: { width: 1280, height: 900 } });
     const page = await context.newPage();
     await signInWithBrowser(page, srv.baseUrl, 'ansel.brandt@geopotential-office.invalid', `/campaigns/${campaignId}`);
@@ -79,6 +79,10 @@ describe('results page', () => {
     expect(verdict).toMatch(/(Agreed|Not agreed) — E_n = -?\d/);
     expect(await page.getByTestId('budget-table').locator('tbody tr').count()).toBe(8); // six components, u_c and U
     await page.getByRole('img', { name: 'Fractional offset y against time, with the tide correction' }).waitFor();
+    // The one-hour gap in the data breaks the mean line and the band (common practice: never draw across missing data).
+    const meanPath = await page.getByTestId('y-series-mean').getAttribute('d');
+    expect((meanPath ?? '').match(/M/g)?.length ?? 0).toBeGreaterThanOrEqual(2);
+    await expect(page.getByTestId('agreement-difference').textContent()).resolves.toMatch(/± [\d.]+ m \(k = 2\)$/);
     await page.getByRole('img', { name: 'Allan deviation of the tide-corrected comparison' }).waitFor();
     expect(await page.locator('[data-series="White frequency noise τ^−1/2 guide"] path').count()).toBe(1);
     await expect(page.getByRole('note').first().textContent()).resolves.toContain('Caution');
@@ -95,6 +99,10 @@ describe('results page', () => {
     await page.getByTestId('calc-dc').waitFor();
     // Default ratio 1 + 6.5e-17: ΔC = c²·y = 5.842 m²/s² (c exact, SI).
     await expect(page.getByTestId('calc-dc').textContent()).resolves.toContain('5.84191');
+    // y = 6.5e-17 exactly for R = 1.000000000000000065 and R0 = 1; shown as ×10⁻ⁿ with its standard uncertainty.
+    await expect(page.getByTestId('calc-y').textContent()).resolves.toBe('6.50000 × 10⁻¹⁷, u = 2.0 × 10⁻¹⁸');
+    await page.getByRole('form', { name: 'Coordinate transformation' }).getByRole('button', { name: 'Transform' }).click();
+    await expect(page.getByTestId('calc-transformed').textContent()).resolves.toMatch(/^X.* m.*Y.* m.*Z.* m$/);
     await page.getByTestId('plan-floor').waitFor();
     await page.getByRole('img', { name: 'Expanded height uncertainty against averaging time' }).waitFor();
     await screenshot(page, 'calculator-operator');

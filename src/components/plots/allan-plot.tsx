@@ -21,7 +21,7 @@ function logTicks(lo: number, hi: number): number[] {
   const decades: number[] = [];
   for (let e = Math.floor(Math.log10(lo)); e <= Math.ceil(Math.log10(hi)); e++) decades.push(10 ** e);
   const ones = decades.filter(inside);
-  if (ones.length >= 2) return ones;
+  if (ones.length >= 3) return ones;
   const fine = decades.flatMap((d) => [d, 2 * d, 5 * d]).filter(inside);
   return fine.length >= 2 ? fine : decades.flatMap((d) => [1, 2, 3, 4, 5, 6, 7, 8, 9].map((m) => m * d)).filter(inside);
 }

@@ -32,7 +32,7 @@ function ResultRow({ label, value, testId }: { label: string; value: string; tes
   return (
     <div className="flex justify-between gap-4 border-t border-paper-200 py-1.5 text-sm">
       <dt className="text-ink-600">{label}</dt>
-      <dd className="font-mono" data-testid={testId}>{value}</dd>
+      <dd className="text-right font-mono" data-testid={testId}>{value}</dd>
     </div>
   );
 }
@@ -58,12 +58,15 @@ function RedshiftPanel() {
       </form>
       {calc.error && <p className="mt-3 text-sm text-disagree-600" role="alert">{describeError(calc.error)}</p>}
       {r && (
-        <dl className="mt-4">
-          <ResultRow label="Fractional offset y = R/R₀ − 1" value={withU(sci(r.fractionalOffset, 6), r.potentialDifference.uncertainty !== null ? sci(r.potentialDifference.uncertainty / C2, 2) : null)} testId="calc-y" />
-          <ResultRow label="Potential difference ΔC = C_B − C_A" value={withU(fmt(r.potentialDifference.value), r.potentialDifference.uncertainty !== null ? fmt(r.potentialDifference.uncertainty, 2) : null, ' m²/s²')} testId="calc-dc" />
-          <ResultRow label="Normal-height difference ΔH = H_B − H_A" value={withU(fmt(r.heightDifference.value), r.heightDifference.uncertainty !== null ? fmt(r.heightDifference.uncertainty, 2) : null, ' m')} testId="calc-dh" />
-          <p className="mt-2 text-xs text-ink-500">u: standard uncertainty (k = 1), propagated from u(y). {r.method}</p>
-        </dl>
+        <>
+          <p className="mb-1 mt-4 text-xs text-ink-500">Each value with its standard uncertainty u (standard, k = 1).</p>
+          <dl>
+            <ResultRow label="Fractional offset y = R/R₀ − 1" value={withU(sci(r.fractionalOffset, 6), r.potentialDifference.uncertainty !== null ? sci(r.potentialDifference.uncertainty / C2, 2) : null)} testId="calc-y" />
+            <ResultRow label="Potential difference ΔC = C_B − C_A" value={withU(fmt(r.potentialDifference.value), r.potentialDifference.uncertainty !== null ? fmt(r.potentialDifference.uncertainty, 2) : null, ' m²/s²')} testId="calc-dc" />
+            <ResultRow label="Normal-height difference ΔH = H_B − H_A" value={withU(fmt(r.heightDifference.value), r.heightDifference.uncertainty !== null ? fmt(r.heightDifference.uncertainty, 2) : null, ' m')} testId="calc-dh" />
+          </dl>
+          <p className="mt-2 text-xs text-ink-500">{r.method}</p>
+        </>
       )}
     </Panel>
   );

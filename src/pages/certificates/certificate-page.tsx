@@ -48,7 +48,7 @@ export function CertificatePage() {
 
       <div className="grid gap-5 md:grid-cols-2">
         <Panel title="Result">
-          <dl className="grid grid-cols-[max-content_1fr] gap-x-4 gap-y-1.5 text-sm">
+          <dl className="grid grid-cols-[minmax(0,15rem)_1fr] gap-x-4 gap-y-1.5 text-sm">
             <dt className="text-ink-500">Geopotential difference ΔC</dt><dd>{formatExpanded(c.deltaC_m2s2, 'm²/s²')}</dd>
             <dt className="text-ink-500">Normal-height difference ΔH</dt><dd>{formatExpanded(c.deltaH_m, 'm')}</dd>
             <dt className="text-ink-500">E<sub>n</sub> against the sites’ registered normal heights (geodesy)</dt><dd>{fixed(c.En, 2)} {c.agreed ? '(|Eₙ| ≤ 1: agrees)' : '(|Eₙ| > 1: does not agree)'}</dd>

@@ -28,10 +28,10 @@ function Quantity({ label, value, unit, expanded, testId }: { label: string; val
 
 function Agreement({ r }: { r: ResultBody }) {
   const g = r.geodesy;
-  if (!g) return <Panel title="Agreement with geodesy"><p className="text-sm">No geodetic uncertainty is registered for the sites, so E_n cannot be formed.</p></Panel>;
+  if (!g) return <Panel title="Agreement with the sites’ registered normal heights (geodesy)"><p className="text-sm">No geodetic uncertainty is registered for the sites, so E_n cannot be formed.</p></Panel>;
   const ok = g.agreed;
   return (
-    <Panel title="Agreement with geodesy">
+    <Panel title="Agreement with the sites’ registered normal heights (geodesy)">
       <div className={`flex items-start gap-3 rounded-md border-l-4 px-4 py-3 ${ok ? 'border-agree-600 bg-agree-100 text-agree-800' : 'border-disagree-600 bg-disagree-100 text-disagree-800'}`} data-testid="agreement" role="status">
         <span aria-hidden className="text-2xl leading-none">{ok ? '✓' : '✗'}</span>
         <div>
@@ -43,7 +43,7 @@ function Agreement({ r }: { r: ResultBody }) {
         <tbody>
           <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">ΔH from the clocks (H_B − H_A)</td><td className="text-right font-mono">{f(r.deltaH_m.value, 4)} ± {f(r.deltaH_m.expandedUncertainty, 4)} m (k = 2)</td></tr>
           <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">ΔH from geodesy ({g.source})</td><td className="text-right font-mono">{f(g.deltaH_m.value, 4)} ± {f(g.deltaH_m.expandedUncertainty, 4)} m (k = 2)</td></tr>
-          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Difference (clocks − geodesy)</td><td className="text-right font-mono">{f(g.differenceM, 4)} ± {f(Math.hypot(r.deltaH_m.expandedUncertainty, g.deltaH_m.expandedUncertainty), 4)} m (k = 2)</td></tr>
+          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Difference (clocks − geodesy)</td><td className="text-right font-mono" data-testid="agreement-difference">{f(g.differenceM, 4)} ± {f(Math.hypot(r.deltaH_m.expandedUncertainty, g.deltaH_m.expandedUncertainty), 4)} m (k = 2)</td></tr>
           <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">E_n = difference / √(U_clocks² + U_geodesy²)</td><td className="text-right font-mono">{f(g.en, 3)} ({Math.abs(g.en) <= 1 ? '|E_n| ≤ 1' : '|E_n| > 1'})</td></tr>
         </tbody>
       </table>
