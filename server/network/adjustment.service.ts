@@ -350,8 +350,7 @@ export function createAdjustmentService(dataSource: DataSource) {
         let verdict: Reconciliation['rows'][number]['verdict'] = 'no-levelling';
         if (a && b && !comparable) {
           verdict = 'not-comparable';
-          note = `${a.datumName} and ${b.datumName} are not connected by levelling: the levelled ΔC contains the unknown offset between the two datums. `
-            + 'Its estimate comes from an adjustment run that includes the clocks with a datum-offset parameter.';
+          note = `${a.datumName} and ${b.datumName} are not connected by levelling: the levelled ΔC contains the unknown offset between them.`;
         } else if (agreement) {
           verdict = agreement.agreed ? 'agreed' : 'not-agreed';
           if (crosses) note = `${a!.datumName} and ${b!.datumName} are joined by levelling, so the levelled ΔC spans both datums`;

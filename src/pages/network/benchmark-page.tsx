@@ -50,9 +50,9 @@ export function BenchmarkPage() {
         </dl>
         {me.data?.role === 'coordinator' && (
           <BenchmarkForm id={b.id} initial={{
-            code: b.code, name: b.name, datumId: b.datumId, crs: b.crs, coordinates: b.coordinates.join(', '),
+            code: b.code, name: b.name, datumId: b.datumId, crs: b.crs, coordinates: b.coordinates.map(typed).join(', '),
             knownKind: b.knownEnteredAs ?? '', knownValue: b.knownEnteredAs === 'C' ? String(b.knownC_m2s2) : b.knownEnteredAs === 'H' ? String(b.knownNormalHeightM) : '',
-            knownUncertainty: b.knownEnteredAs === 'C' ? String(b.knownUncertaintyC_m2s2) : b.knownEnteredAs === 'H' ? String(b.knownUncertaintyM) : '',
+            knownUncertainty: b.knownEnteredAs === 'C' && b.knownUncertaintyC_m2s2 !== null ? typed(b.knownUncertaintyC_m2s2) : b.knownEnteredAs === 'H' && b.knownUncertaintyM !== null ? typed(b.knownUncertaintyM) : '',
             fixed: b.fixed, monumentation: b.monumentation ?? '', state: b.state,
           }} />
         )}
@@ -81,8 +81,11 @@ export function BenchmarkPage() {
 }
 
 /** Each entered value with its axis and unit, in the order it was entered (proj4's order: longitude first). */
+/** Twelve significant digits: what was typed, without binary floating-point tails such as 46.199999999999996. */
+const typed = (v: number) => String(+v.toPrecision(12));
+
 function enteredPosition(b: Pick<Benchmark, 'coordinates' | 'crs' | 'crsKind' | 'crsLabel'>): string {
-  const c = b.coordinates;
+  const c = b.coordinates.map(typed);
   const crs = b.crsLabel ? `${b.crs}, ${b.crsLabel}` : b.crs;
   switch (b.crsKind) {
     case 'geographic2D':

@@ -50,7 +50,7 @@ export function ReconciliationPage() {
                       <td className="max-w-sm"><Verdict verdict={row.verdict} />
                         {row.note && <span className="mt-1 block text-xs text-ink-500">{row.note}</span>}
                         {row.verdict === 'not-comparable' && (
-                          <span className="mt-1 block text-xs">{r.datumOffsets.length > 0 ? <a href="#datum-offsets">See the datum-offset estimate below ↓</a> : <Link to="/network/runs">Start a run that includes the clocks (with the datum-offset parameter) →</Link>}</span>
+                          <span className="mt-1 block text-xs"><a href="#datum-offsets">Datum-offset estimate ↓</a></span>
                         )}
                       </td>
                     </tr>
@@ -70,6 +70,7 @@ export function ReconciliationPage() {
           </Panel>
           {r.datumOffsets.length === 0 && r.rows.some((row) => row.verdict === 'not-comparable') && (
             <Panel title="Datum offsets estimated from clocks">
+              <span id="datum-offsets" />
               <p className="text-sm text-ink-600">
                 No finished adjustment run includes the clocks yet. A run with “include clock comparisons” and the datum-offset parameter estimates
                 the offset between datums that levelling does not connect: <Link to="/network/runs">start one on the adjustment runs page</Link>.
