@@ -30,9 +30,9 @@ function NumberField<T extends FieldValues>({ label, name, register, error, hint
 
 function ResultRow({ label, value, testId }: { label: string; value: string; testId?: string }) {
   return (
-    <div className="flex justify-between gap-4 border-t border-paper-200 py-1.5 text-sm">
+    <div className="flex flex-wrap justify-between gap-x-4 border-t border-paper-200 py-1.5 text-sm">
       <dt className="text-ink-600">{label}</dt>
-      <dd className="text-right font-mono" data-testid={testId}>{value}</dd>
+      <dd className="ml-auto text-right font-mono" data-testid={testId}>{value}</dd>
     </div>
   );
 }
