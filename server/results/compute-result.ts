@@ -44,6 +44,12 @@ export const TIDE_MODEL_RELATIVE = 0.01;
 export const TIDE_MODEL_FLOOR = 1e-19;
 const MAX_SERIES_POINTS = 1500;
 
+/**
+ * Revision of the computation and of the stored result's shape within one software version; a stored result of an
+ * older revision is recomputed. 2: τ0 snapped to the microsecond, empty series buckets kept as nulls.
+ */
+const RESULT_REVISION = 2;
+
 /** SHA-256 over everything the result depends on except the sample values themselves (those enter through their files' SHA-256). */
 export function inputHashOf(campaign: CampaignForResult, files: readonly InputFile[], softwareVersion = SOFTWARE_VERSION): string {
   const site = (c: ClockForResult) => {
@@ -58,6 +64,7 @@ export function inputHashOf(campaign: CampaignForResult, files: readonly InputFi
     sites: [site(campaign.clockA), site(campaign.clockB)],
     period: [campaign.periodStart, campaign.periodEnd],
     softwareVersion,
+    resultRevision: RESULT_REVISION,
   };
   return crypto.createHash('sha256').update(JSON.stringify(canonical)).digest('hex');
 }
