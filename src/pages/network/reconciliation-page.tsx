@@ -72,7 +72,7 @@ export function ReconciliationPage() {
             <Panel title="Datum offsets estimated from clocks">
               <span id="datum-offsets" />
               <p className="text-sm text-ink-600">
-                No finished adjustment run includes the clocks yet. A run with “include clock comparisons” and the datum-offset parameter estimates
+                No finished adjustment run includes the clocks yet. A run with “include clocks” (it adds a datum-offset parameter for each pair of datums a clock link joins) estimates
                 the offset between datums that levelling does not connect: <Link to="/network/runs">start one on the adjustment runs page</Link>.
               </p>
             </Panel>
