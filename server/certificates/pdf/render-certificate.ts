@@ -522,11 +522,11 @@ function renderBody(doc: Doc, s: CertificateSnapshot): void {
     flow,
     [
       { header: 'Component', width: 203 },
-      { header: 'Type', width: 36 },
-      { header: 'u(xᵢ)', width: 70, align: 'right' },
-      { header: 'Unit', width: 40 },
-      { header: 'cᵢ', width: 58, align: 'right' },
-      { header: `|cᵢ|·u(xᵢ) (${s.budget.outputUnit})`, width: CONTENT_WIDTH - 203 - 36 - 70 - 40 - 58, align: 'right' },
+      { header: 'Type', width: 30 },
+      { header: 'u(xᵢ)', width: 62, align: 'right' },
+      { header: 'Unit', width: 28 },
+      { header: 'cᵢ', width: 80, align: 'right' },
+      { header: `|cᵢ|·u(xᵢ) (${s.budget.outputUnit})`, width: CONTENT_WIDTH - 203 - 30 - 62 - 28 - 80, align: 'right' },
     ],
     [
       ...s.budget.rows.map((r) => [
