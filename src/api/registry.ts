@@ -4,7 +4,12 @@ import type {
   BudgetVersion, Clock, CreateClock, CreateLink, CreateSite, CrsEntry, Link, NewBudgetVersion, QuasigeoidGrid, ReferenceFrequency,
   ReferenceFrequencyInput, Site, UpdateSite, UploadQuasigeoidGrid,
 } from '../../shared/registry';
+import type { z } from 'zod';
+import type { updateClockSchema, updateLinkSchema } from '../../shared/registry';
 import { api } from '../lib/api-client';
+
+type UpdateClock = z.input<typeof updateClockSchema>;
+type UpdateLink = z.input<typeof updateLinkSchema>;
 
 export type RegistryListParams = { page: number; pageSize: number; sort?: string; order: 'asc' | 'desc'; q: string; instituteId?: string; siteId?: string };
 
@@ -53,6 +58,10 @@ export const useUploadGrid = () => useRegistryMutation((body: UploadQuasigeoidGr
 export const useCreateClock = () => useRegistryMutation((body: CreateClock) => api<Clock>('/api/v1/clocks', { body }));
 export const useAddBudgetVersion = () =>
   useRegistryMutation(({ clockId, body }: { clockId: string; body: NewBudgetVersion }) => api<BudgetVersion>(`/api/v1/clocks/${clockId}/budget-versions`, { body }));
+export const useUpdateClock = () =>
+  useRegistryMutation(({ id, body }: { id: string; body: UpdateClock }) => api<Clock>(`/api/v1/clocks/${id}`, { method: 'PATCH', body }));
+export const useUpdateLink = () =>
+  useRegistryMutation(({ id, body }: { id: string; body: UpdateLink }) => api<Link>(`/api/v1/links/${id}`, { method: 'PATCH', body }));
 export const useCreateLink = () => useRegistryMutation((body: CreateLink) => api<Link>('/api/v1/links', { body }));
 export const useCreateReference = () => useRegistryMutation((body: ReferenceFrequencyInput) => api<ReferenceFrequency>('/api/v1/reference-frequencies', { body }));
 export const useUpdateReference = () =>

@@ -1,4 +1,5 @@
 import type { Browser, Page } from 'playwright-core';
+import proj4 from 'proj4';
 import request from 'supertest';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { launchBrowser, screenshot, signInWithBrowser, startE2eServer, type E2eServer } from '../helpers/browser';
@@ -78,6 +79,52 @@ describe('registry and campaign pages', () => {
     await page.goto(`${srv.baseUrl}/links/${ids['HMO local']}`);
     await page.getByText('0.420 km', { exact: true }).waitFor();
     expect(await activeNav(page)).toEqual(['Fibre links']);
+  });
+
+  it('an operator edits her site: new name and coordinates, the converted GRS80 latitude follows; no edit section elsewhere', async () => {
+    // A site of her own made for this check, so the seeded sites other checks read stay as they are.
+    const token = await tokenFor(srv, INES);
+    const created = await request(srv.app).post('/api/v1/sites').set('authorization', `Bearer ${token}`).send({
+      name: 'SCL roof test pillar', referencePoint: 'Top of the roof pillar bolt', crs: 'EPSG:25832', coordinates: [500000, 5930000, 45],
+      ellipsoidalHeightUncertaintyM: 0.01, quasigeoid: { source: 'entered', heightM: 39.4, uncertaintyM: 0.02 }, benchmarkTie: null,
+    });
+    expect(created.status).toBe(201);
+    const { page, errors } = await as(INES, `/sites/${created.body.id}`);
+    const before = Number((await page.getByTestId('grs80-lat').textContent())!.replace('°', ''));
+    await page.getByRole('button', { name: 'Edit site' }).click();
+    const form = page.getByTestId('edit-site-form');
+    await form.getByLabel('Site name').fill('SCL roof pillar north');
+    await form.getByLabel('Easting E (m)').fill('501000');
+    await form.getByLabel('Northing N (m)').fill('5931000');
+    await form.getByRole('button', { name: 'Save changes' }).click();
+    await page.getByTestId('site-title').getByText('SCL roof pillar north').waitFor();
+    await page.getByTestId('entered-coordinates').getByText('501000, 5931000, 45').waitFor();
+    const after = Number((await page.getByTestId('grs80-lat').textContent())!.replace('°', ''));
+    // Expected values from proj4 (npm reference library) with the EPSG:25832 definition, ETRS89 / UTM zone 32N
+    // (GRS80 ellipsoid, central meridian 9° E, k0 = 0.9996, false easting 500 km; EPSG Geodetic Parameter Dataset).
+    const utm32 = '+proj=utm +zone=32 +ellps=GRS80 +units=m +no_defs';
+    const [, latBefore] = proj4(utm32, 'WGS84', [500000, 5930000]);
+    const [, latAfter] = proj4(utm32, 'WGS84', [501000, 5931000]);
+    expect(Math.abs(before - latBefore)).toBeLessThan(1e-8);
+    expect(Math.abs(after - latAfter)).toBeLessThan(1e-8);
+    // 1 km of northing is about 0.009° of latitude (one degree of meridian ≈ 111.3 km, common practice).
+    expect(after - before).toBeGreaterThan(0.0085);
+    expect(after - before).toBeLessThan(0.0095);
+    expect(await page.getByTestId('edit-site-form').count()).toBe(0);
+    await page.goto(`${srv.baseUrl}/sites`);
+    await page.getByRole('link', { name: 'SCL roof pillar north' }).waitFor();
+    expect(errors).toEqual([]);
+    await page.goto(`${srv.baseUrl}/sites/${created.body.id}`);
+    await page.getByRole('button', { name: 'Edit site' }).click();
+    await screenshot(page, 'site-edit-form');
+    // The section mirrors the server's rule: not on another institute's site, not for an auditor.
+    const [hmo] = await srv.ds.query(`SELECT id FROM site WHERE name = 'HMO clock hall'`);
+    await page.goto(`${srv.baseUrl}/sites/${hmo.id}`);
+    await page.getByTestId('grs80-lat').waitFor();
+    expect(await page.getByRole('button', { name: 'Edit site' }).count()).toBe(0);
+    const auditor = await as(PETRA, `/sites/${hmo.id}`);
+    await auditor.page.getByTestId('grs80-lat').waitFor();
+    expect(await auditor.page.getByRole('button', { name: 'Edit site' }).count()).toBe(0);
   });
 
   it('the reference-data page groups the digits of the frequencies', async () => {

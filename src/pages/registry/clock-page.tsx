@@ -8,6 +8,7 @@ import { useAddBudgetVersion, useBudgetVersions, useClock } from '../../api/regi
 import { Button, EmptyState, Field, inputClass, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { BudgetEditor, BudgetTable } from './budget-editor';
+import { canChangeInstituteRecord, EditClockPanel } from './registry-forms';
 import { applyServerErrors, Facts, FormError, groupDigits, sci } from './registry-ui';
 
 export function ClockPage() {
@@ -19,7 +20,7 @@ export function ClockPage() {
   if (clock.isPending) return <p className="text-ink-500">Loading…</p>;
   if (clock.isError) return <EmptyState title="This clock could not be loaded">{describeError(clock.error)}</EmptyState>;
   const c = clock.data;
-  const canEdit = (me.data?.role === 'operator' && me.data.institute?.id === c.institute.id) || me.data?.role === 'coordinator';
+  const canEdit = canChangeInstituteRecord(me.data, c.institute.id);
   const current = c.currentBudget;
   return (
     <>
@@ -49,6 +50,7 @@ export function ClockPage() {
           </>
         ) : null}
       </Panel>
+      {canEdit && <EditClockPanel clock={c} />}
       <Panel title="Version history">
         <VersionHistory versions={versions.data ?? []} />
       </Panel>

@@ -1,14 +1,15 @@
 import { zodResolver } from '@hookform/resolvers/zod';
 import { createColumnHelper } from '@tanstack/react-table';
 import { useState } from 'react';
-import { useForm } from 'react-hook-form';
+import { useForm, type UseFormRegister } from 'react-hook-form';
 import { Link, useNavigate } from 'react-router';
-import { clockKindLabels, clockKinds, createClockSchema, speciesCodes, speciesLabels, type Clock, type CreateClock } from '../../../shared/registry';
+import { clockKindLabels, createClockSchema, type Clock, type CreateClock } from '../../../shared/registry';
 import { useMe } from '../../api/account';
 import { useClocks, useCreateClock, useSites } from '../../api/registry';
 import { DataTable, type TableState } from '../../components/data-table';
-import { Button, Field, inputClass, Panel } from '../../components/ui';
+import { Button, Field, Panel } from '../../components/ui';
 import { BudgetEditor } from './budget-editor';
+import { clockFieldNames, ClockFields, type ClockFieldValues } from './registry-forms';
 import { applyServerErrors, FormError, groupDigits, sci, selectClass } from './registry-ui';
 
 const col = createColumnHelper<Clock>();
@@ -62,28 +63,17 @@ function NewClockForm({ onDone }: { onDone: () => void }) {
         setFormError(null);
         create.mutate(body, {
           onSuccess: (c) => { onDone(); navigate(`/clocks/${c.id}`); },
-          onError: (e) => setFormError(applyServerErrors(e, setError, ['siteId', 'name', 'kind', 'species', 'nominalFrequencyHz', 'notes', 'budget'])),
+          onError: (e) => setFormError(applyServerErrors(e, setError, ['siteId', ...clockFieldNames, 'budget'])),
         });
       })}>
-        <div className="grid gap-3 md:grid-cols-3">
-          <Field label="Clock name" error={errors.name?.message}><input className={inputClass} {...register('name')} /></Field>
+        <ClockFields register={register as unknown as UseFormRegister<ClockFieldValues>} errors={errors} siteField={(
           <Field label="Site" error={errors.siteId?.message}>
             <select className={selectClass} {...register('siteId')}>
               <option value="">choose…</option>
               {sites.data?.items.map((s) => <option key={s.id} value={s.id}>{s.name} ({s.institute.code})</option>)}
             </select>
           </Field>
-          <Field label="Kind" error={errors.kind?.message}>
-            <select className={selectClass} {...register('kind')}>{clockKinds.map((k) => <option key={k} value={k}>{clockKindLabels[k]}</option>)}</select>
-          </Field>
-          <Field label="Species / transition" error={errors.species?.message}>
-            <select className={selectClass} {...register('species')}>{speciesCodes.map((s) => <option key={s} value={s}>{speciesLabels[s]}</option>)}</select>
-          </Field>
-          <Field label="Nominal frequency (Hz, decimal)" hint="up to 20 significant digits, e.g. 429228004229873.0" error={errors.nominalFrequencyHz?.message}>
-            <input className={`${inputClass} font-mono`} inputMode="decimal" {...register('nominalFrequencyHz')} />
-          </Field>
-          <Field label="Notes" error={errors.notes?.message}><input className={inputClass} {...register('notes')} /></Field>
-        </div>
+        )} />
         <div>
           <h3 className="mb-1 text-sm font-semibold text-ink-700">Systematic uncertainty budget (version 1)</h3>
           <BudgetEditor name="budget" control={control} register={register} errors={errors.budget} rows={rows as never} />

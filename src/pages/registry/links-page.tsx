@@ -1,15 +1,16 @@
 import { zodResolver } from '@hookform/resolvers/zod';
 import { createColumnHelper } from '@tanstack/react-table';
 import { useState } from 'react';
-import { useForm } from 'react-hook-form';
+import { useForm, type UseFormRegister } from 'react-hook-form';
 import { Link, useNavigate, useParams } from 'react-router';
 import { createLinkSchema, type CreateLink, type Link as FibreLink } from '../../../shared/registry';
 import { useMe } from '../../api/account';
 import { useCreateLink, useLink, useSites } from '../../api/registry';
 import { DataTable, type TableState } from '../../components/data-table';
-import { Button, EmptyState, Field, inputClass, Panel } from '../../components/ui';
+import { Button, EmptyState, Field, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { useLinks } from '../../api/registry';
+import { canChangeLink, EditLinkPanel, linkFieldNames, LinkFields, type LinkFieldValues } from './registry-forms';
 import { applyServerErrors, Facts, fixed, FormError, sci, selectClass } from './registry-ui';
 
 const col = createColumnHelper<FibreLink>();
@@ -45,8 +46,6 @@ export function LinksPage() {
   );
 }
 
-const num = { setValueAs: (v: string) => (v === '' ? undefined : Number(v)) };
-
 function NewLinkForm({ onDone }: { onDone: () => void }) {
   const sites = useSites({ page: 1, pageSize: 200, order: 'asc', sort: 'name', q: '' });
   const create = useCreateLink();
@@ -60,15 +59,15 @@ function NewLinkForm({ onDone }: { onDone: () => void }) {
         setFormError(null);
         create.mutate(body, {
           onSuccess: (l) => { onDone(); navigate(`/links/${l.id}`); },
-          onError: (e) => setFormError(applyServerErrors(e, setError, ['name', 'siteAId', 'siteBId', 'fibreLengthKm', 'fractionalUncertainty', 'notes'])),
+          onError: (e) => setFormError(applyServerErrors(e, setError, ['siteAId', 'siteBId', ...linkFieldNames])),
         });
       })}>
-        <Field label="Link name" error={errors.name?.message}><input className={inputClass} {...register('name')} /></Field>
-        <Field label="Site A" error={errors.siteAId?.message}><select className={selectClass} {...register('siteAId')}><option value="">choose…</option>{options}</select></Field>
-        <Field label="Site B" error={errors.siteBId?.message}><select className={selectClass} {...register('siteBId')}><option value="">choose…</option>{options}</select></Field>
-        <Field label="Fibre length (km)" error={errors.fibreLengthKm?.message}><input className={inputClass} inputMode="decimal" {...register('fibreLengthKm', num)} /></Field>
-        <Field label="Link fractional uncertainty (k = 1)" hint="e.g. 3e-19" error={errors.fractionalUncertainty?.message}><input className={`${inputClass} font-mono`} {...register('fractionalUncertainty', num)} /></Field>
-        <Field label="Notes" error={errors.notes?.message}><input className={inputClass} {...register('notes')} /></Field>
+        <LinkFields register={register as unknown as UseFormRegister<LinkFieldValues>} errors={errors} siteFields={(
+          <>
+            <Field label="Site A" error={errors.siteAId?.message}><select className={selectClass} {...register('siteAId')}><option value="">choose…</option>{options}</select></Field>
+            <Field label="Site B" error={errors.siteBId?.message}><select className={selectClass} {...register('siteBId')}><option value="">choose…</option>{options}</select></Field>
+          </>
+        )} />
         <div className="md:col-span-3"><FormError text={formError} /></div>
         <div className="flex gap-2 md:col-span-3">
           <Button type="submit" disabled={create.isPending}>Save link</Button>
@@ -81,6 +80,7 @@ function NewLinkForm({ onDone }: { onDone: () => void }) {
 
 export function LinkPage() {
   const { id = '' } = useParams();
+  const me = useMe();
   const link = useLink(id);
   if (link.isPending) return <p className="text-ink-500">Loading…</p>;
   if (link.isError) return <EmptyState title="This link could not be loaded">{describeError(link.error)}</EmptyState>;
@@ -104,6 +104,7 @@ export function LinkPage() {
           ['Notes', l.notes || '—'],
         ]} />
       </Panel>
+      {canChangeLink(me.data, l) && <EditLinkPanel link={l} />}
     </>
   );
 }

@@ -1,11 +1,14 @@
 import { Link, useParams } from 'react-router';
+import { useMe } from '../../api/account';
 import { useClocks, useLinks, useSite } from '../../api/registry';
 import { Caution, EmptyState, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
+import { canChangeInstituteRecord, EditSitePanel } from './registry-forms';
 import { Facts, fixed } from './registry-ui';
 
 export function SitePage() {
   const { id = '' } = useParams();
+  const me = useMe();
   const site = useSite(id);
   const clocks = useClocks({ page: 1, pageSize: 50, order: 'asc', q: '', siteId: id });
   const links = useLinks({ page: 1, pageSize: 50, order: 'asc', q: '', siteId: id });
@@ -56,6 +59,7 @@ export function SitePage() {
           ) : <p className="text-sm text-ink-500">No tie recorded.</p>}
         </Panel>
       </div>
+      {canChangeInstituteRecord(me.data, s.institute.id) && <EditSitePanel site={s} />}
       <Panel title="Clocks at this site">
         <ul className="text-sm">{clocks.data?.items.map((c) => <li key={c.id}><Link to={`/clocks/${c.id}`}>{c.name}</Link> · {c.speciesLabel}</li>)}</ul>
         {clocks.data?.items.length === 0 && <p className="text-sm text-ink-500">None yet.</p>}
