@@ -30,3 +30,14 @@ export function pageOf<T extends z.ZodTypeAny>(item: T) {
 export type Page<T> = { items: T[]; total: number; page: number; pageSize: number };
 
 export const idParamsSchema = z.object({ id: z.string().uuid() });
+
+/**
+ * PATCH bodies: every field optional and no default filled in, so a field the caller leaves out stays unchanged
+ * (zod's `.partial()` would still apply the create schema's defaults and overwrite stored values).
+ */
+export function patchOf<T extends z.ZodRawShape>(schema: z.ZodObject<T>) {
+  const shape = Object.fromEntries(
+    Object.entries(schema.shape).map(([key, field]) => [key, ((field instanceof z.ZodDefault ? field.unwrap() : field) as z.ZodTypeAny).optional()]),
+  );
+  return z.object(shape) as unknown as ReturnType<z.ZodObject<T>['partial']>;
+}

@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { patchOf } from './http';
 
 // The registry contract: sites, quasigeoid grids, clocks with versioned systematic budgets, reference
 // frequencies and fibre links. Frequencies travel as decimal strings, never JSON numbers.
@@ -53,7 +54,7 @@ export const createSiteSchema = z.object({
   benchmarkTie: benchmarkTieInput,
 });
 export type CreateSite = z.input<typeof createSiteSchema>;
-export const updateSiteSchema = createSiteSchema.omit({ instituteId: true }).partial();
+export const updateSiteSchema = patchOf(createSiteSchema.omit({ instituteId: true }));
 export type UpdateSite = z.input<typeof updateSiteSchema>;
 
 export const siteSchema = z.object({
@@ -166,7 +167,7 @@ export const createClockSchema = z.object({
   budget: budgetRowsSchema.default([]),
 });
 export type CreateClock = z.input<typeof createClockSchema>;
-export const updateClockSchema = createClockSchema.omit({ siteId: true, budget: true }).partial();
+export const updateClockSchema = patchOf(createClockSchema.omit({ siteId: true, budget: true }));
 export const newBudgetVersionSchema = z.object({ rows: budgetRowsSchema, comment: optionalText(500) });
 export type NewBudgetVersion = z.input<typeof newBudgetVersionSchema>;
 
@@ -195,7 +196,7 @@ export const referenceFrequencyInput = z.object({
   inUse: z.boolean().default(true),
 });
 export type ReferenceFrequencyInput = z.input<typeof referenceFrequencyInput>;
-export const updateReferenceFrequencySchema = referenceFrequencyInput.partial();
+export const updateReferenceFrequencySchema = patchOf(referenceFrequencyInput);
 export const referenceFrequencySchema = z.object({
   id: z.string().uuid(),
   species: speciesSchema,
@@ -219,7 +220,7 @@ export const createLinkSchema = z.object({
   notes: z.string().trim().max(2000).default(''),
 });
 export type CreateLink = z.input<typeof createLinkSchema>;
-export const updateLinkSchema = createLinkSchema.omit({ siteAId: true, siteBId: true }).partial();
+export const updateLinkSchema = patchOf(createLinkSchema.omit({ siteAId: true, siteBId: true }));
 
 export const linkSchema = z.object({
   id: z.string().uuid(),
