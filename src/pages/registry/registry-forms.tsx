@@ -158,12 +158,21 @@ function EditSiteForm({ site, onDone }: { site: Site; onDone: () => void }) {
       });
     })}>
       <SiteFields register={register} watch={watch} errors={errors} />
-      <FormError text={formError} />
-      <div className="flex gap-2">
-        <Button type="submit" disabled={update.isPending}>Save changes</Button>
-        <Button type="button" variant="quiet" onClick={onDone}>Cancel</Button>
-      </div>
+      <EditFormFooter error={formError} saving={update.isPending} onCancel={onDone} />
     </form>
+  );
+}
+
+/** Shared foot of the edit forms: the form-level error, save and cancel. */
+function EditFormFooter({ error, saving, onCancel }: { error: string | null; saving: boolean; onCancel: () => void }) {
+  return (
+    <>
+      <FormError text={error} />
+      <div className="flex gap-2">
+        <Button type="submit" disabled={saving}>Save changes</Button>
+        <Button type="button" variant="quiet" onClick={onCancel}>Cancel</Button>
+      </div>
+    </>
   );
 }
 
@@ -186,7 +195,7 @@ export function ClockFields({ register, errors, siteField }: { register: UseForm
       <Field label="Species / transition" error={errors.species?.message}>
         <select className={selectClass} {...register('species')}>{speciesCodes.map((s) => <option key={s} value={s}>{speciesLabels[s]}</option>)}</select>
       </Field>
-      <Field label="Nominal frequency (Hz, decimal)" hint="up to 20 significant digits, e.g. 429228004229873.0" error={errors.nominalFrequencyHz?.message}>
+      <Field label="Nominal frequency (Hz, decimal)" hint="up to 20 significant digits, e.g. 429228004229873.7" error={errors.nominalFrequencyHz?.message}>
         <input className={`${inputClass} font-mono`} inputMode="decimal" {...register('nominalFrequencyHz')} />
       </Field>
       <Field label="Notes" error={errors.notes?.message}><input className={inputClass} {...register('notes')} /></Field>
@@ -216,11 +225,7 @@ function EditClockForm({ clock, onDone }: { clock: Clock; onDone: () => void }) 
       update.mutate({ id: clock.id, body }, { onSuccess: onDone, onError: (err) => setFormError(applyServerErrors(err, setError, clockFieldNames)) });
     })}>
       <ClockFields register={register} errors={errors} />
-      <FormError text={formError} />
-      <div className="flex gap-2">
-        <Button type="submit" disabled={update.isPending}>Save changes</Button>
-        <Button type="button" variant="quiet" onClick={onDone}>Cancel</Button>
-      </div>
+      <EditFormFooter error={formError} saving={update.isPending} onCancel={onDone} />
     </form>
   );
 }
