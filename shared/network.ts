@@ -7,11 +7,11 @@ import { pageQuerySchema } from './http';
 export const tideSystems = ['mean-tide', 'zero-tide', 'tide-free'] as const;
 export const tideSystemSchema = z.enum(tideSystems);
 
-/** Loop tolerance 4 mm/√km: FGCC 1984 §3.5, first-order levelling (value from memory, references.md §8). */
+/** Loop tolerance 4 mm/√km: FGCC (1984), Standards and Specifications for Geodetic Control Networks, §3.5, loop closure of first-order class I levelling (value from memory). */
 export const DEFAULT_LOOP_TOLERANCE_MM_PER_SQRT_KM = 4;
-/** Section (forward − backward) tolerance 4 mm/√km: FGCC 1984 §3.5, first-order class II (from memory, references.md §8). */
+/** Section (forward − backward) tolerance 4 mm/√km: FGCC (1984) §3.5, section closure of first-order class II levelling (value from memory). */
 export const DEFAULT_SECTION_TOLERANCE_MM_PER_SQRT_KM = 4;
-/** σ per km of levelling, 1 mm/√km: common practice for precise levelling (references.md §8, from memory). */
+/** σ per km of levelling, 1 mm/√km: common practice for precise levelling (from memory). */
 export const DEFAULT_SIGMA_MM_PER_SQRT_KM = 1;
 
 export const heightDatumInputSchema = z.object({

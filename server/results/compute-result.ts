@@ -348,7 +348,7 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
         'IERS Conventions 2010 (TN 36), ch. 6–7',
         'Moritz 2000, Geodetic Reference System 1980, J Geod 74',
         'Heiskanen & Moritz 1967, Physical Geodesy, ch. 4',
-        'ISO 13528 / ISO/IEC 17043 (E_n)',
+        'ISO 13528:2015 §9.7 / ISO/IEC 17043:2010 Annex B (E_n)',
         'IAG Resolution No. 1 (2015), IHRS',
       ],
     },

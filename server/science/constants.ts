@@ -14,7 +14,7 @@ export const GRS80_GM_M3_PER_S2 = 3_986_005e8;
 export const GRS80_J2 = 108_263e-8;
 export const GRS80_OMEGA_RAD_PER_S = 7_292_115e-11;
 
-/** GRS80 derived constants (Moritz 2000, published digits; recomputed values of references.md §1, rounded to the nearest double). */
+/** GRS80 derived constants: published digits of Moritz (2000); computed from the defining constants with Moritz's closed formulas (mpmath, 40 digits), rounded to the nearest double. */
 export const GRS80_F = 1 / 298.257222100883;
 export const GRS80_B_M = 6_356_752.31414035;
 export const GRS80_E2 = 0.006694380022903416;

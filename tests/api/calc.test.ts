@@ -14,7 +14,7 @@ afterAll(() => t.close());
 const post = (path: string, body: unknown) => request(t.app).post(`/api/v1/calc/${path}`).set('authorization', `Bearer ${token}`).send(body as object);
 const rel = (actual: number, expected: number) => Math.abs(actual / expected - 1);
 
-/** NBS/NIST 1000-point set: NIST SP 1065 (Riley 2008) p. 107–108; generator in references.md §3.2. */
+/** NBS/NIST 1000-point set: NIST SP 1065 (Riley 2008) p. 107–108 (Park–Miller generator, n0 = 1 234 567 890). */
 function nbs1000(): number[] {
   const y: number[] = [];
   let n = 1_234_567_890;
@@ -27,7 +27,7 @@ function nbs1000(): number[] {
 
 describe('POST /api/v1/calc/redshift', () => {
   it('turns a 21-digit ratio into y, ΔC and Δh without losing the last digits', async () => {
-    // 1e-18 ↔ 0.0898755 m²/s² (c² exact, SI Brochure 9th ed. Table 1; references.md §1 [computed]).
+    // 1e-18 ↔ 0.0898755 m²/s² (c² exact, SI Brochure 9th ed. Table 1; computed from c² with decimal arithmetic).
     const res = await post('redshift', { ratio: '1.00000000000000000100', latitudeDeg: 45, fractionalUncertainty: 1e-18 });
     expect(res.status).toBe(200);
     expect(res.body.fractionalOffset).toBe(1e-18);
@@ -35,7 +35,7 @@ describe('POST /api/v1/calc/redshift', () => {
     expect(res.body.potentialDifference.unit).toBe('m2/s2');
     expect(rel(res.body.potentialDifference.value, 0.0898755178736818)).toBeLessThan(1e-12);
     expect(rel(res.body.potentialDifference.uncertainty, 0.0898755178736818)).toBeLessThan(1e-12);
-    // γ(45°)/c² = 1.091087e-16 per metre (references.md §1 [computed], GRS80) → Δh = 1e-18 / 1.091087e-16 m.
+    // γ(45°)/c² = 1.091087e-16 per metre (computed from Somigliana's formula with GRS80, Moritz 2000, mpmath) → Δh = 1e-18 / 1.091087e-16 m.
     expect(res.body.heightDifference.unit).toBe('m');
     expect(rel(res.body.heightDifference.value, 1e-18 / 1.091087e-16)).toBeLessThan(2e-6);
   });
@@ -65,7 +65,7 @@ describe('POST /api/v1/calc/redshift', () => {
 });
 
 describe('POST /api/v1/calc/stability', () => {
-  it('reproduces the NIST SP 1065 1000-point OADEV, MDEV and TDEV table (p. 107–108; references.md §3.2)', async () => {
+  it('reproduces the NIST SP 1065 1000-point OADEV, MDEV and TDEV table (p. 107–108)', async () => {
     const res = await post('stability', { tau0Seconds: 1, fractionalFrequency: nbs1000(), tauSeconds: [1, 10, 100] });
     expect(res.status).toBe(200);
     const [p1, p10, p100] = res.body.points;
@@ -85,7 +85,7 @@ describe('POST /api/v1/calc/stability', () => {
     expect(p1.n).toBe(999); // N − 2m overlapping terms with N = 1001 phase points (SP 1065 §5.2.4)
   });
 
-  it('accepts phase data: the SP 1065 10-point phase set (references.md §3.3)', async () => {
+  it('accepts phase data: the SP 1065 10-point phase set (NIST SP 1065 p. 107)', async () => {
     const x = [0, 103.11111, 123.22222, 157.33333, 166.44444, 48.55555, -96.33333, -2.22222, 111.88889, 0];
     const res = await post('stability', { tau0Seconds: 1, phaseSeconds: x, tauSeconds: [1, 2] });
     expect(res.status).toBe(200);
@@ -116,7 +116,7 @@ describe('POST /api/v1/calc/stability', () => {
 });
 
 describe('POST /api/v1/calc/normal-gravity', () => {
-  it('matches Somigliana on GRS80 at 0°, 45° and 90° (Moritz 2000; references.md §2 [computed])', async () => {
+  it('matches Somigliana on GRS80 at 0°, 45° and 90° (Moritz 2000; computed from the closed formula with mpmath at 40 digits)', async () => {
     for (const [lat, gamma] of [[0, 9.78032677153], [45, 9.80619920252], [90, 9.83218636852]]) {
       const res = await post('normal-gravity', { latitudeDeg: lat });
       expect(res.status).toBe(200);
@@ -125,7 +125,7 @@ describe('POST /api/v1/calc/normal-gravity', () => {
     }
   });
 
-  it('applies the second-order height formula (H&M 1967 eq. 2-124; references.md §2: 45°, 1000 m)', async () => {
+  it('applies the second-order height formula (H&M 1967 eq. 2-124, equation number from memory; 45°, 1000 m computed with mpmath)', async () => {
     const res = await post('normal-gravity', { latitudeDeg: 45, heightM: 1000 });
     expect(Math.abs(res.body.gravity - 9.80311437625)).toBeLessThan(1e-10);
     // The mean along the plumb line lies half-way in the (nearly linear) free-air decrease: common practice.
@@ -136,7 +136,7 @@ describe('POST /api/v1/calc/normal-gravity', () => {
 describe('POST /api/v1/calc/geodesic', () => {
   const grs80 = new geodesicLib.Geodesic.Geodesic(6_378_137, 1 / 298.257222100883);
   it('agrees with GeographicLib (geographiclib-geodesic, Karney 2013) run on GRS80, and with the published WGS84 cases to their rounding', async () => {
-    // GeodSolve0 (GeographicLib test suite, WGS84): s = 5 853 226 m ± 0.5 m, α1 = 53.47022°, α2 = 111.59367°; references.md §4.1.
+    // GeodSolve0 (GeographicLib test suite, WGS84): s = 5 853 226 m ± 0.5 m, α1 = 53.47022°, α2 = 111.59367° (Karney 2013, J Geod 87:43).
     // GRS80 and WGS84 differ by 1.6e-11 in f, i.e. < 0.1 mm over this line, far below the published rounding.
     const res = await post('geodesic', { from: { latitudeDeg: 40.6, longitudeDeg: -73.8 }, to: { latitudeDeg: 49.01666667, longitudeDeg: 2.55 } });
     expect(res.status).toBe(200);
@@ -185,7 +185,7 @@ describe('POST /api/v1/calc/transform', () => {
   });
 
   it('transverse Mercator: EPSG GN 7-2 method 9807 example (OSGB 1936 / British National Grid, k0 as printed 0.9996013)', async () => {
-    // φ = 50°30′N, λ = 0°30′E → E = 577 274.99 m, N = 69 740.50 m (references.md §4.2).
+    // φ = 50°30′N, λ = 0°30′E → E = 577 274.99 m, N = 69 740.50 m (EPSG Guidance Note 7-2, method 9807 example).
     const airy = '+proj=longlat +a=6377563.396 +rf=299.3249646 +no_defs';
     const bng = '+proj=tmerc +lat_0=49 +lon_0=-2 +k=0.9996013 +x_0=400000 +y_0=-100000 +a=6377563.396 +rf=299.3249646 +units=m +no_defs';
     const res = await post('transform', { from: airy, to: bng, coordinates: [0.5, 50.5] });
@@ -208,7 +208,7 @@ describe('POST /api/v1/calc/transform', () => {
 describe('POST /api/v1/calc/tide', () => {
   it('returns the clock tidal potential: sizes as published, and tide-free − mean-tide = (1 + k2 − h2)·W_perm', async () => {
     const epochs = Array.from({ length: 30 * 24 }, (_, i) => new Date(Date.UTC(2026, 0, 1) + i * 3_600_000).toISOString());
-    const site = { latitudeDeg: 52.3, longitudeDeg: 10.5, heightM: 100 };
+    const site = { latitudeDeg: 52.3, longitudeDeg: 7.4, heightM: 100 };
     const mean = await post('tide', { site, epochs });
     expect(mean.status).toBe(200);
     expect(mean.body.tideSystem).toBe('mean-tide');
@@ -221,7 +221,8 @@ describe('POST /api/v1/calc/tide', () => {
     expect(mean.body.fractionalFrequency[0]).toBeCloseTo(-w[0] / 299_792_458 ** 2, 30);
 
     const free = await post('tide', { site, epochs: epochs.slice(0, 3), tideSystem: 'tide-free' });
-    // W_perm(52.3°) ≈ −0.85 m²/s² (Ekman 1989 via references.md §5.2 [computed]); 1 + k2 − h2 = 0.68745 (IERS 2010, §5.3).
+    // W_perm(52.3°) ≈ −0.85 m²/s², computed from Ekman (1989, Bull. Géod. 63:281) γ·(0.099 − 0.296 sin²φ) m;
+    // 1 + k2 − h2 = 0.68745 with elastic k2 = 0.29525 (IERS Conventions 2010, Table 6.3) and h2 = 0.6078 (§7.1.1).
     const shift = free.body.potential[0] - w[0];
     expect(Math.abs(shift - 0.68745 * -0.85)).toBeLessThan(0.01);
   });

@@ -230,7 +230,7 @@ describe('review state machine', () => {
     expect(detail.body.timeline.at(-1)).toMatchObject({ fromState: 'accepted', toState: 'certified' });
 
     const r = await t.ds.transaction((m) => getCampaignForResult(m, id));
-    // The demo clock's nominal frequency is the in-use ⁸⁷Sr reference value, 429 228 004 229 873.7 Hz (CIPM 2009, references.md §7)
+    // The demo clock's nominal frequency is the in-use ⁸⁷Sr reference value, 429 228 004 229 873.7 Hz (CIPM 2009, Recommendation 2 (CI-2009), list of standard frequencies)
     expect(r.clockA).toMatchObject({ name: 'SCL-Sr1', species: 'Sr87', nominalFrequencyHz: '429228004229873.7', instituteCode: 'SCL' });
     expect(r.clockB.site.name).toBe('HMO clock hall');
     expect(r.clockA.budget.version).toBe(2); // pinned at creation, after the test above added version 2
@@ -243,7 +243,7 @@ describe('review state machine', () => {
   it('an inter-species campaign gets ν_B/ν_A by default and names its source', async () => {
     const res = await as('hmo').post('/api/v1/campaigns', { ...newCampaign('Inter-species test'), clockAId: ids['HMO-Sr2'], clockBId: ids['HMO-YbIon'], linkId: ids['HMO local'] });
     expect(res.status).toBe(201);
-    // 642121496772657 / 429228004229873.7 (CIPM 2009, references.md §7), evaluated with decimal.js at 60 digits
+    // 642121496772657 / 429228004229873.7 (CIPM 2009 Recommendation 2 values), evaluated with decimal.js at 60 digits
     const D = Decimal.clone({ precision: 60 });
     const expected = new D('642121496772657').div('429228004229873.7');
     expect(new D(res.body.referenceRatio.value).div(expected).minus(1).abs().toNumber()).toBeLessThan(1e-32);

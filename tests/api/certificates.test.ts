@@ -102,7 +102,7 @@ describe('issuing', () => {
     const [campaign] = await t.ds.query(`SELECT state FROM campaign WHERE id = $1`, [campaignId]);
     expect(campaign.state).toBe('certified');
 
-    // The snapshot is complete by the shared schema and carries what the brief lists.
+    // The snapshot is complete by the shared schema and carries every part a certificate needs.
     const snapshot = certificateSnapshotSchema.parse(row.snapshot);
     expect(snapshot.certificateNumber).toBe(number);
     // The chain head is the last event before the issue itself (the result computation may precede it).

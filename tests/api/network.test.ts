@@ -339,7 +339,7 @@ describe('clocks in the network: reconciliation and datum offsets', () => {
     expect(row3.levellingDeltaC_m2s2).toBeCloseTo(levelled3, 9);
     // Levelling U (k = 2) from the run's σ of the two sites, root-sum-square (GUM 5.1.2 with no covariance)
     expect(row3.levellingExpandedU_m2s2).toBeCloseTo(2 * Math.hypot(c3a.sigmaC_m2s2, c3b.sigmaC_m2s2), 9);
-    // E_n = (x_clock − x_lev) / √(U_clock² + U_lev²), expanded uncertainties k = 2 (ISO 13528:2015 §9.7, references.md §9)
+    // E_n = (x_clock − x_lev) / √(U_clock² + U_lev²), expanded uncertainties k = 2 (ISO 13528:2015 §9.7 'E_n numbers', clause number from memory)
     const expectedEn = (clockDeltaC - levelled3) / Math.sqrt(0.1 ** 2 + row3.levellingExpandedU_m2s2 ** 2);
     expect(row3.en).toBeCloseTo(expectedEn, 9);
     expect(row3.agreed).toBe(Math.abs(expectedEn) <= 1);

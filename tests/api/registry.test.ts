@@ -34,17 +34,18 @@ const baseSite = {
 };
 
 describe('sites', () => {
-  it('converts UTM (EPSG:25832) input to GRS80 latitude/longitude — references.md §4.2 UTM example 52.3°N 10.5°E zone 32N', async () => {
-    // §4.2 [computed] with the GN 7-2 series: 52.3°N, 10.5°E → E 602 283.0987 m, N 5 795 465.3821 m (WGS 84 UTM).
+  it('converts UTM (EPSG:25832) input to GRS80 latitude/longitude — UTM zone 32N example at 52.3°N 7.4°E (an arbitrary point)', async () => {
+    // Computed from the Krüger n⁴ series of EPSG Guidance Note 7-2 (IOGP 373-7-2) §3.5.3.1 with Python mpmath at 40 digits:
+    // 52.3°N, 7.4°E → E 390 898.4597 m, N 5 795 611.3641 m (GRS80, ETRS89 / UTM 32N).
     // ETRS89/UTM uses GRS80, whose flattening differs from WGS 84 by 1.6e-11 relative: below 0.1 mm here.
-    const res = await as('scl').post('/api/v1/sites', { ...baseSite, name: 'UTM test site', crs: 'EPSG:25832', coordinates: [602283.0987, 5795465.3821, 100], ellipsoidalHeightUncertaintyM: 0.01 });
+    const res = await as('scl').post('/api/v1/sites', { ...baseSite, name: 'UTM test site', crs: 'EPSG:25832', coordinates: [390898.4597, 5795611.3641, 100], ellipsoidalHeightUncertaintyM: 0.01 });
     expect(res.status).toBe(201);
-    expect(res.body.entered).toMatchObject({ crs: 'EPSG:25832', coordinates: [602283.0987, 5795465.3821, 100] });
+    expect(res.body.entered).toMatchObject({ crs: 'EPSG:25832', coordinates: [390898.4597, 5795611.3641, 100] });
     expect(res.body.grs80.latitudeDeg).toBeCloseTo(52.3, 8);
-    expect(res.body.grs80.longitudeDeg).toBeCloseTo(10.5, 8);
+    expect(res.body.grs80.longitudeDeg).toBeCloseTo(7.4, 8);
     expect(res.body.grs80.ellipsoidalHeightM).toBeCloseTo(100, 6);
     expect(res.body.assumptions.join(' ')).toMatch(/coincident/);
-    // H = h − ζ (design.md §4.3), u(H) = √(u_h² + u_ζ²) (GUM eq. 10, uncorrelated inputs)
+    // H = h − ζ (Heiskanen & Moritz, Physical Geodesy, 1967, §8-13, normal heights and the quasigeoid; section from memory), u(H) = √(u_h² + u_ζ²) (GUM eq. 10, uncorrelated inputs)
     expect(res.body.normalHeight.valueM).toBeCloseTo(60, 6);
     expect(res.body.normalHeight.uncertaintyM).toBeCloseTo(Math.sqrt(0.01 ** 2 + 0.02 ** 2), 12);
     const [row] = await t.ds.query('SELECT crs, latitude_deg, longitude_deg, x_m, benchmark_code, quasigeoid_source FROM site WHERE id = $1', [res.body.id]);
@@ -52,8 +53,8 @@ describe('sites', () => {
     expect(row.latitude_deg).toBeCloseTo(52.3, 8);
   });
 
-  it('stores geocentric X/Y/Z on GRS80 — references.md §4.3 GRS80 check (45°, 45°, 100 m)', async () => {
-    // §4.3 [computed]: (45°, 45°, 100 m) → (3 194 469.1451, 3 194 469.1451, 4 487 419.1194) m. Geographic input is lon, lat, h.
+  it('stores geocentric X/Y/Z on GRS80 — GRS80 check (45°, 45°, 100 m), EPSG method 9602', async () => {
+    // Computed from the EPSG method 9602 formulas (GN 7-2 §4.1.1) with GRS80 (Moritz 2000), Python mpmath: (45°, 45°, 100 m) → (3 194 469.1451, 3 194 469.1451, 4 487 419.1194) m. Geographic input is lon, lat, h.
     const res = await as('scl').post('/api/v1/sites', { ...baseSite, name: 'XYZ test site', crs: 'EPSG:4937', coordinates: [45, 45, 100] });
     expect(res.status).toBe(201);
     expect(res.body.grs80.xM).toBeCloseTo(3194469.1451, 3);
@@ -187,10 +188,10 @@ describe('clocks and budget versions', () => {
 });
 
 describe('reference frequencies', () => {
-  it('holds the CIPM 2009 values in use and the 2021 values marked as from memory — references.md §7', async () => {
+  it('holds the CIPM 2009 values in use and the 2021 values marked as from memory — CIPM 2009 Recommendation 2', async () => {
     const res = await as('auditor').get('/api/v1/reference-frequencies');
     const inUse = (s: string) => res.body.find((r: { species: string; inUse: boolean }) => r.species === s && r.inUse);
-    // §7 [pub]: CIPM 2009 Rec. 2 — ⁸⁷Sr 429 228 004 229 873.7 Hz (u_r 1e-15); ¹⁷¹Yb⁺ E3 642 121 496 772 657 Hz (6e-14); Cs exact.
+    // CIPM 2009 Recommendation 2 (list of standard frequencies) — ⁸⁷Sr 429 228 004 229 873.7 Hz (u_r 1e-15); ¹⁷¹Yb⁺ E3 642 121 496 772 657 Hz (6e-14); Cs exact.
     expect(inUse('Sr87')).toMatchObject({ frequencyHz: '429228004229873.7', relativeUncertainty: 1e-15 });
     expect(inUse('Yb171+E3')).toMatchObject({ frequencyHz: '642121496772657', relativeUncertainty: 6e-14 });
     expect(inUse('Cs133')).toMatchObject({ frequencyHz: '9192631770', relativeUncertainty: 0 });
@@ -214,8 +215,8 @@ describe('reference frequencies', () => {
 });
 
 describe('fibre links', () => {
-  it('computes the geodesic and chord distance beside the fibre length — GeographicLib GeodSolve0 (references.md §4.1)', async () => {
-    // §4.1 [pub-excerpt]: (40.6, −73.8) → (49.01666667, 2.55): s = 5 853 226 m ± 0.5 m (WGS 84; GRS80 differs by < 1 mm).
+  it('computes the geodesic and chord distance beside the fibre length — GeographicLib GeodSolve0 (Karney 2013, J Geod 87:43; GeographicLib test suite)', async () => {
+    // GeodSolve0 of the GeographicLib test suite: (40.6, −73.8) → (49.01666667, 2.55): s = 5 853 226 m ± 0.5 m (WGS 84; GRS80 differs by < 1 mm).
     const a = await as('scl').post('/api/v1/sites', { ...baseSite, name: 'Link end A', crs: 'EPSG:4326', coordinates: [-73.8, 40.6] });
     const b = await as('scl').post('/api/v1/sites', { ...baseSite, name: 'Link end B', crs: 'EPSG:4326', coordinates: [2.55, 49.01666667] });
     const res = await as('scl').post('/api/v1/links', { name: 'Transatlantic test link', siteAId: a.body.id, siteBId: b.body.id, fibreLengthKm: 6500, fractionalUncertainty: 1e-18 });
@@ -225,7 +226,7 @@ describe('fibre links', () => {
     expect(res.body.fibreLengthKm).toBe(6500);
   });
 
-  it('chord distance equator–pole on the ellipsoid is √(a² + b²) — GRS80 a, b (references.md §1)', async () => {
+  it('chord distance equator–pole on the ellipsoid is √(a² + b²) — GRS80 a, b (Moritz 2000)', async () => {
     const a = await as('scl').post('/api/v1/sites', { ...baseSite, name: 'Equator', crs: 'EPSG:4937', coordinates: [0, 0, 0] });
     const b = await as('scl').post('/api/v1/sites', { ...baseSite, name: 'Pole', crs: 'EPSG:4937', coordinates: [0, 90, 0] });
     const res = await as('scl').post('/api/v1/links', { name: 'Chord test', siteAId: a.body.id, siteBId: b.body.id, fibreLengthKm: 12000, fractionalUncertainty: 0 });

@@ -128,7 +128,7 @@ describe('campaign result', () => {
     expect(lines[2].standardUncertainty).toBe(campaign.clockB.budget.totalUncertainty);
     expect(lines[3].standardUncertainty).toBe(campaign.link.fractionalUncertainty);
 
-    // E_n = (x1 − x2)/√(U1² + U2²) (ISO 13528 §9.7; references.md §9).
+    // E_n = (x1 − x2)/√(U1² + U2²) (ISO 13528:2015 §9.7, clause number from memory).
     const geo = r.geodesy;
     expect(geo.en).toBeCloseTo((r.deltaH_m.value - geo.deltaH_m.value) / Math.hypot(r.deltaH_m.expandedUncertainty, geo.deltaH_m.expandedUncertainty), 12);
     expect(geo.agreed).toBe(Math.abs(geo.en) <= 1);

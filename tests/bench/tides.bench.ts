@@ -2,7 +2,7 @@
 // Run with `npx tsx tests/bench/tides.bench.ts`; prints figures, never fails on time.
 import { tidePotentialAt, tidePotentialSeries } from '../../server/science/tides';
 
-const site = { latitudeDeg: 52.3, longitudeDeg: 10.5, ellipsoidalHeightM: 80 };
+const site = { latitudeDeg: 52.3, longitudeDeg: 7.4, ellipsoidalHeightM: 80 };
 const points = 1_000_000;
 const epochs = Float64Array.from({ length: points }, (_, i) => 60_000 + i / 86_400);
 tidePotentialSeries(site, epochs.subarray(0, 10_000)); // warm-up (JIT)

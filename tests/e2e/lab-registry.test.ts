@@ -24,12 +24,13 @@ describe('lab staff registry journey', () => {
     await page.getByRole('cell', { name: 'SCL clock hall' }).waitFor();
     await screenshot(page, 'lab-sites');
 
-    // Site from ETRS89 / UTM 32N: 52.3°N 10.5°E ↔ E 602 283.0987, N 5 795 465.3821 (references.md §4.2, computed).
+    // Site from ETRS89 / UTM 32N at an arbitrary point: 52.3°N 7.4°E ↔ E 390 898.4597, N 5 795 611.3641 (computed from the
+    // Krüger n⁴ series of EPSG GN 7-2 §3.5.3.1 with Python mpmath).
     await page.getByRole('button', { name: 'New site' }).click();
     await page.getByLabel('Site name').fill('SCL field annex');
     await page.getByRole('textbox', { name: /^Reference point/ }).fill('Brass bolt on the annex pier');
-    await page.getByLabel('Easting E (m)').fill('602283.0987');
-    await page.getByLabel('Northing N (m)').fill('5795465.3821');
+    await page.getByLabel('Easting E (m)').fill('390898.4597');
+    await page.getByLabel('Northing N (m)').fill('5795611.3641');
     await page.getByLabel('Ellipsoidal height h (m)').fill('95.5');
     await page.getByLabel('ζ (m)').fill('39.8');
     await page.getByLabel('u(ζ) (m)').fill('0.02');
@@ -40,7 +41,7 @@ describe('lab staff registry journey', () => {
     await page.getByRole('button', { name: 'Save site' }).click();
     await page.getByTestId('site-title').waitFor();
     expect(await page.getByTestId('grs80-lat').textContent()).toContain('52.300000');
-    expect(await page.getByTestId('grs80-lon').textContent()).toContain('10.500000');
+    expect(await page.getByTestId('grs80-lon').textContent()).toContain('7.400000');
     expect(await page.getByTestId('normal-height').textContent()).toContain('55.7000 m');
     await screenshot(page, 'lab-site-detail');
 

@@ -60,7 +60,7 @@ describe('registry and campaign pages', () => {
     const { page } = await as(INES, `/campaigns/${ids['SCL–HMO Sr spring run 2026']}`);
     await page.getByText('Opened by').waitFor();
     const body = (await page.locator('main').textContent())!;
-    expect(body).toContain('429\u202f228\u202f004\u202f229\u202f873.7 Hz'); // CIPM 2009 ⁸⁷Sr value, references.md §7
+    expect(body).toContain('429\u202f228\u202f004\u202f229\u202f873.7 Hz'); // CIPM 2009 Recommendation 2 ⁸⁷Sr value
     expect(body).toContain('exact (same species: R₀ = 1)');
     expect(body).toMatch(/standard uncertainty u = [\d.]+ × 10⁻¹⁸ \(k = 1\)/);
     expect(body).toContain('Ines Varga, 2026-02-20');

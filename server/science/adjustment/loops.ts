@@ -12,7 +12,7 @@ export interface LoopSection {
 }
 
 export interface LoopOptions {
-  /** Tolerance coefficient k in mm/√km. Default 4: FGCC 1984 loop closure, first order class II (value from memory, not confirmed). */
+  /** Tolerance coefficient k in mm/√km. Default 4: FGCC (1984) §3.5 loop closure, first-order class I (value from memory, not confirmed). */
   toleranceMmPerSqrtKm?: number;
   /** Gravity used to turn ΔC into a height misclosure [m/s²]. Default 9.81, a rough conventional value. */
   meanGravity_ms2?: number;

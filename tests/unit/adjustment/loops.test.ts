@@ -3,7 +3,7 @@ import { loopMisclosures, type LoopSection } from '../../../server/science/adjus
 import { gridNetwork, smallRandomNetwork } from './network-fixtures';
 
 // Loop misclosure = Σ ± observed differences around a closed circuit (Ghilani 2017, ch. 12; common practice);
-// tolerance k·√E with E the loop length in km (FGCC 1984 §3.5; k = 4 mm for first order class II is from memory).
+// tolerance k·√E with E the loop length in km (FGCC 1984 §3.5; k = 4 mm for the loop closure of first-order class I is from memory).
 
 describe('loop misclosures', () => {
   it('triangle: misclosure, height misclosure with g = 9.81, tolerance 4 mm·√L', () => {

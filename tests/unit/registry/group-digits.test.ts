@@ -2,7 +2,7 @@ import { describe, expect, it } from 'vitest';
 import { groupDigits } from '../../../src/pages/registry/registry-ui';
 
 // Digit grouping for display: SI Brochure (9th ed., 2019) §5.4.4 — digits may be divided into groups of three by
-// a thin space on either side of the decimal marker. The examples are the CIPM 2009 list values (references.md §7).
+// a thin space on either side of the decimal marker. The examples are the CIPM 2009 list values (Recommendation 2).
 const NNBSP = '\u202f';
 const spaced = (s: string) => s.replaceAll(' ', NNBSP);
 

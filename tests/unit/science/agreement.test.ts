@@ -2,7 +2,7 @@ import { describe, expect, it } from 'vitest';
 import { normalisedError } from '../../../server/science/agreement';
 import { ScienceInputError } from '../../../server/science/errors';
 
-// ISO 13528:2015 §9.7 / ISO/IEC 17043 Annex B (clause numbers from memory); worked numbers in references.md §9.
+// ISO 13528:2015 §9.7 / ISO/IEC 17043:2010 Annex B (clause numbers from memory); the worked numbers are computed from the formula.
 describe('E_n', () => {
   it('x − X equal to the combined expanded uncertainty gives E_n = 1, which passes', () => {
     const r = normalisedError(10.5, 0.3, 10.0, 0.4);

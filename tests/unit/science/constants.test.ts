@@ -17,12 +17,12 @@ import {
 } from '../../../server/science/constants';
 
 describe('constants', () => {
-  it('c² is the exact square of the SI value (SI Brochure 2019 Table 1; references.md §1)', () => {
+  it('c² is the exact square of the SI value (SI Brochure 2019 Table 1)', () => {
     expect((BigInt(C_M_PER_S) ** 2n).toString()).toBe(C2_EXACT_STRING);
     expect(C2_EXACT_STRING).toBe('89875517873681764');
   });
 
-  it('GRS80 derived constants are consistent with the defining ones (Moritz 2000; published values in references.md §1)', () => {
+  it('GRS80 derived constants are consistent with the defining ones (Moritz 2000, published values)', () => {
     // b = a(1 − f) and e² = f(2 − f): definitions of the ellipsoid.
     expect(GRS80_A_M * (1 - GRS80_F)).toBeCloseTo(6_356_752.3141, 4);
     expect(GRS80_F * (2 - GRS80_F)).toBeCloseTo(GRS80_E2, 15);
@@ -39,7 +39,7 @@ describe('constants', () => {
     expect(GRS80_SOMIGLIANA_K).toBeCloseTo(0.001931851353, 12);
   });
 
-  it('W0 implied by L_G is 62 636 856.0 m²/s² (IAU 2000 B1.9 [from memory]; computed value in references.md §1)', () => {
+  it('W0 implied by L_G is 62 636 856.0 m²/s² (IAU 2000 Resolution B1.9, from memory; computed as c²·L_G)', () => {
     expect(W0_LG_M2_PER_S2).toBeCloseTo(62_636_856.0, 1);
     expect(SOFTWARE_CONSTANTS.w0_ihrs_m2_per_s2).toBe(62_636_853.4);
   });

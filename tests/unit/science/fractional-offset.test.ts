@@ -27,7 +27,7 @@ describe('fractionalOffset', () => {
   });
 
   it('handles an inter-species ratio against a 21-digit reference ratio', () => {
-    // CIPM 2009 Rec. 2 frequencies of 87Sr and 171Yb+ E3 (references.md §7) give a realistic reference ratio.
+    // CIPM 2009 Rec. 2 frequencies of 87Sr and 171Yb+ E3 (CIPM 2009 Recommendation 2) give a realistic reference ratio.
     const reference = ratioOfFrequencies('429228004229873.7', '642121496772657');
     const D60 = Decimal.clone({ precision: 60 });
     expect(new D60(reference).minus(new D60('642121496772657').div('429228004229873.7')).abs().lt('1e-33')).toBe(true);

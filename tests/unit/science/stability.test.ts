@@ -8,7 +8,7 @@ import {
   type StabilityPoint,
 } from '../../../server/science/stability';
 
-/** NBS/NIST 1000-point data set (NIST SP 1065 test suite; generator in references.md §3.2). */
+/** NBS/NIST 1000-point data set (NIST SP 1065 p. 107–108; Park–Miller generator, n0 = 1 234 567 890). */
 function nbs1000(): Float64Array {
   const y = new Float64Array(1000);
   let n = 1_234_567_890;
@@ -67,7 +67,7 @@ function rel(actual: number | null, expected: number): number {
 }
 
 /**
- * Direct SP 1065 §5.2 formulas on phase (references.md §3.4), O(N·m). Phase is accumulated straight through the gap
+ * Direct SP 1065 §5.2 formulas on phase, O(N·m). Phase is accumulated straight through the gap
  * samples (whatever they hold); a term is kept only if none of the frequency increments it spans is flagged bad.
  */
 function bruteForce(x: Float64Array, badIncrement: Uint8Array, m: number): { oavar: number; mvar: number } {
@@ -97,7 +97,7 @@ function bruteForce(x: Float64Array, badIncrement: Uint8Array, m: number): { oav
 }
 
 describe('stability: NIST SP 1065 test data', () => {
-  it('1000-point set: ADEV, OADEV, MDEV, TDEV at τ = 1, 10, 100 s (SP 1065 p. 107–108 via references.md §3.2)', () => {
+  it('1000-point set: ADEV, OADEV, MDEV, TDEV at τ = 1, 10, 100 s (NIST SP 1065 p. 107–108)', () => {
     const y = nbs1000();
     expect(y[0]).toBeCloseTo(0.57489047, 8);
     const points = stabilityAnalysis({ y, tau0Seconds: 1, ms: [1, 10, 100] });
@@ -116,7 +116,7 @@ describe('stability: NIST SP 1065 test data', () => {
     }
   });
 
-  it('9-point frequency set: τ = 1, 2 (references.md §3.3)', () => {
+  it('9-point frequency set: τ = 1, 2 (NIST SP 1065 p. 107)', () => {
     const y = Float64Array.from([892, 809, 823, 798, 671, 644, 883, 903, 677]);
     const points = stabilityAnalysis({ y, tau0Seconds: 1, ms: [1, 2] });
     expect(rel(at(points, 1).adev, 91.22945)).toBeLessThan(1e-6);

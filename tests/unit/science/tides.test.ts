@@ -44,7 +44,7 @@ describe('body positions (astronomy-engine, rotated to Earth-fixed)', () => {
 
 describe('degree-2 tidal potential', () => {
   it('equals the exact potential GM/|R−r| − GM/R − GM r·R/R³ up to the degree-3 remainder (Legendre expansion)', () => {
-    const siteP = geodeticToGeocentric(52.3, 10.5, 100);
+    const siteP = geodeticToGeocentric(52.3, 7.4, 100);
     const site: Vec3 = [siteP.x, siteP.y, siteP.z];
     const r = norm(site);
     for (let d = 0; d < 30; d += 0.37) {
@@ -63,7 +63,7 @@ describe('degree-2 tidal potential', () => {
     expect((GM_MOON_M3_PER_S2 * r ** 3) / 384_400e3 ** 4 / ((GM_MOON_M3_PER_S2 * r ** 2) / 384_400e3 ** 3)).toBeLessThan(0.02);
   });
 
-  it('stays within the published size: periodic clock potential up to about 3 m²/s² (references.md §5.3, ITOC)', () => {
+  it('stays within the published size: periodic clock potential up to about 3 m²/s² (Voigt, Denker & Timmen 2016, Metrologia 53:1365)', () => {
     const hourly = Float64Array.from({ length: 24 * 60 }, (_, i) => 60_400 + i / 24);
     for (const lat of [0, 30, 52.3, 70]) {
       const v = tidePotentialSeries({ latitudeDeg: lat, longitudeDeg: 7 }, hourly, { removePermanent: true });
@@ -73,8 +73,8 @@ describe('degree-2 tidal potential', () => {
     }
   });
 
-  it('time average over a lunar nodal period equals the conventional permanent tide (Ekman 1989; references.md §5.2)', () => {
-    const site = { latitudeDeg: 52.3, longitudeDeg: 10.5 };
+  it('time average over a lunar nodal period equals the conventional permanent tide (Ekman 1989, Bull. Géod. 63:281)', () => {
+    const site = { latitudeDeg: 52.3, longitudeDeg: 7.4 };
     const count = 6000;
     const golden = (Math.sqrt(5) - 1) / 2;
     let sum = 0;
@@ -102,7 +102,7 @@ describe('degree-2 tidal potential', () => {
   });
 });
 
-describe('permanent tide (references.md §5.2)', () => {
+describe('permanent tide (Ekman 1989; IERS Conventions 2010 §7.1.1.2)', () => {
   it('height differences between tide systems at 52.3° (Ekman 1989; Mäkinen & Ihde 2009, from memory)', () => {
     expect(heightMeanMinusZeroTideM(52.3) * 100).toBeCloseTo(8.63, 2);
     expect(heightMeanMinusTideFreeM(52.3) * 100).toBeCloseTo(5.87, 2);
@@ -111,7 +111,7 @@ describe('permanent tide (references.md §5.2)', () => {
   it('permanent potential: +0.97 (equator), −0.85 (52.3°), −1.93 m²/s² (pole)', () => {
     expect(permanentTidePotential(0)).toBeCloseTo(0.97, 2);
     expect(permanentTidePotential(52.3)).toBeCloseTo(-0.85, 2);
-    // references.md gives "about −1.93"; γp·0.197 m = −1.937, so allow the rounding.
+    // Ekman's formula at the pole: γp·(0.099 − 0.296) m = −1.937 m²/s², quoted as "about −1.93", so allow the rounding.
     expect(Math.abs(permanentTidePotential(90) + 1.93)).toBeLessThan(0.01);
   });
 

@@ -22,7 +22,7 @@ describe('createRatioConverter', () => {
   });
 
   it('agrees with decimal.js within 2 ulp of y for a 34-digit inter-species reference ratio', () => {
-    // ν(Yb⁺ E3)/ν(Sr) from the CIPM 2009 values (references.md §7), as ratioOfFrequencies would give it
+    // ν(Yb⁺ E3)/ν(Sr) from the CIPM 2009 values (Recommendation 2), as ratioOfFrequencies would give it
     const r0 = new D('642121496772657').div('429228004229873.7').toSignificantDigits(34).toString();
     const toY = createRatioConverter(r0);
     let seed = 99;
