@@ -68,7 +68,7 @@ async function main() {
   const port = await freePort();
   const cluster = await startCluster({ dataDir: path.join(tmp, 'pg'), port, database: 'load', log: () => {} });
   const ds = await openDatabase(cluster.url);
-  let t = performance.now();
+  const t = performance.now();
   await seedDemo(ds);
   const sizes = await scaleDemo(ds);
   console.log(`scaled demo in ${((performance.now() - t) / 1000).toFixed(1)} s: ${JSON.stringify(sizes)}`);
