@@ -1,4 +1,4 @@
-import type { DataSource, EntityManager } from 'typeorm';
+import type { DataSource, EntityManager, SelectQueryBuilder } from 'typeorm';
 import {
   createCampaignSchema,
   editableStates,
@@ -90,14 +90,32 @@ function requireState(c: CampaignRow, allowed: readonly CampaignState[], action:
   if (!allowed.includes(c.state)) throw new Conflict(`Cannot ${action} a campaign that is ${c.state.replace('_', ' ')}.`, { state: c.state, allowedFrom: allowed });
 }
 
-const relations = { institute: true, clockA: { site: true, institute: true }, clockB: { site: true, institute: true }, link: { siteA: true, siteB: true }, budgetVersionA: true, budgetVersionB: true } as const;
+/** The campaign with its institute, clocks (site, institute) and link (both sites): every join many-to-one. */
+function withCampaignJoins(qb: SelectQueryBuilder<CampaignRow>) {
+  return qb
+    .leftJoinAndSelect('c.institute', 'i')
+    .leftJoinAndSelect('c.clockA', 'ca')
+    .leftJoinAndSelect('ca.site', 'sa')
+    .leftJoinAndSelect('ca.institute', 'ia')
+    .leftJoinAndSelect('c.clockB', 'cb')
+    .leftJoinAndSelect('cb.site', 'sb')
+    .leftJoinAndSelect('cb.institute', 'ib')
+    .leftJoinAndSelect('c.link', 'l')
+    .leftJoinAndSelect('l.siteA', 'lsa')
+    .leftJoinAndSelect('l.siteB', 'lsb');
+}
 
 async function loadCampaign(m: EntityManager, id: string, lock = false): Promise<CampaignRow> {
   if (lock) {
     const locked = await m.getRepository(CampaignEntity).createQueryBuilder('c').setLock('pessimistic_write').where('c.id = :id', { id }).getOne();
     if (!locked) throw new NotFound('Campaign');
   }
-  const c = await m.getRepository(CampaignEntity).findOne({ where: { id }, relations });
+  // One SELECT with the many-to-one joins: findOne() with relations would page through a DISTINCT sub-select.
+  const c = await withCampaignJoins(m.getRepository(CampaignEntity).createQueryBuilder('c'))
+    .leftJoinAndSelect('c.budgetVersionA', 'va')
+    .leftJoinAndSelect('c.budgetVersionB', 'vb')
+    .where('c.id = :id', { id })
+    .getOne();
   if (!c) throw new NotFound('Campaign');
   return c;
 }
@@ -336,22 +354,14 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
   return {
     async list(actor: Actor, q: CampaignListQuery) {
       authorize(actor, 'campaigns:read');
-      const qb = dataSource
-        .getRepository(CampaignEntity)
-        .createQueryBuilder('c')
-        .leftJoinAndSelect('c.institute', 'i')
-        .leftJoinAndSelect('c.clockA', 'ca')
-        .leftJoinAndSelect('ca.site', 'sa')
-        .leftJoinAndSelect('ca.institute', 'ia')
-        .leftJoinAndSelect('c.clockB', 'cb')
-        .leftJoinAndSelect('cb.site', 'sb')
-        .leftJoinAndSelect('cb.institute', 'ib')
-        .leftJoinAndSelect('c.link', 'l');
+      const qb = withCampaignJoins(dataSource.getRepository(CampaignEntity).createQueryBuilder('c'));
       if (actor.role === 'operator') qb.andWhere('(c.institute_id = :inst OR cb.institute_id = :inst)', { inst: actor.instituteId });
       if (q.q) qb.andWhere('(c.name ILIKE :q OR ca.name ILIKE :q OR cb.name ILIKE :q OR i.code ILIKE :q)', { q: `%${q.q}%` });
       if (q.state) qb.andWhere('c.state = :state', { state: q.state });
       qb.orderBy(sortColumns[q.sort ?? 'updatedAt'] ?? 'c.updated_at', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('c.id');
-      const [rows, total] = await qb.skip((q.page - 1) * q.pageSize).take(q.pageSize).getManyAndCount();
+      // Every join is many-to-one, so LIMIT/OFFSET on the joined rows pages campaigns exactly: two queries per
+      // page (rows, count) whatever the page size, without TypeORM's DISTINCT sub-select of skip/take.
+      const [rows, total] = await Promise.all([qb.clone().offset((q.page - 1) * q.pageSize).limit(q.pageSize).getMany(), qb.clone().orderBy().getCount()]);
       return { items: rows.map(toSummary), total, page: q.page, pageSize: q.pageSize };
     },
 
