@@ -88,6 +88,7 @@ export interface AuditEventRow {
   details: Record<string, unknown>;
   prevHash: string | null;
   hash: string;
+  hashVersion: number;
 }
 export const AuditEventEntity = new EntitySchema<AuditEventRow>({
   name: 'AuditEvent',
@@ -104,6 +105,7 @@ export const AuditEventEntity = new EntitySchema<AuditEventRow>({
     details: { type: 'jsonb', default: () => "'{}'::jsonb" },
     prevHash: { name: 'prev_hash', type: 'text', nullable: true },
     hash: { type: 'text', default: () => "''" },
+    hashVersion: { name: 'hash_version', type: 'smallint', default: 2 },
   },
 });
 
