@@ -42,7 +42,7 @@ async function main() {
   // One job worker inside this process (adjustment runs); more can run elsewhere with `tsx server/jobs/worker.ts`.
   const worker = await startWorker({ dataSource, databaseUrl: config.databaseUrl, logger });
   closers.push(() => worker.stop(), () => stopQueues());
-  const mail = createMailSender({ dataSource, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
+  const mail = createMailSender({ dataSource, smtpUrl: config.smtpUrl, from: config.mailFrom, logger, retry: config.mailRetry });
   mail.start();
   closers.push(() => mail.stop());
   const app = createApp({ config, dataSource, logger, mail });

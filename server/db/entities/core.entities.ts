@@ -118,6 +118,11 @@ export interface MailOutboxRow {
   sentAt: Date | null;
   attempts: number;
   lastError: string | null;
+  state: 'pending' | 'sent' | 'dead';
+  nextAttemptAt: Date;
+  messageId: string | null;
+  deadAt: Date | null;
+  retriedAt: Date | null;
 }
 export const MailOutboxEntity = new EntitySchema<MailOutboxRow>({
   name: 'MailOutbox',
@@ -131,5 +136,10 @@ export const MailOutboxEntity = new EntitySchema<MailOutboxRow>({
     sentAt: { name: 'sent_at', type: 'timestamptz', nullable: true },
     attempts: { type: 'int', default: 0 },
     lastError: { name: 'last_error', type: 'text', nullable: true },
+    state: { type: 'text', default: 'pending' },
+    nextAttemptAt: { name: 'next_attempt_at', type: 'timestamptz', default: () => 'now()' },
+    messageId: { name: 'message_id', type: 'text', nullable: true },
+    deadAt: { name: 'dead_at', type: 'timestamptz', nullable: true },
+    retriedAt: { name: 'retried_at', type: 'timestamptz', nullable: true },
   },
 });
