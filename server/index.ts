@@ -11,6 +11,7 @@ import { seedDemo } from '../seeds/demo';
 import { startWorker } from './jobs/worker';
 import { stopQueues } from './jobs/queue';
 import { migrateDatabase, privilegeWarnings, roleOfUrl } from './db/roles';
+import { writeAuditCheckpoint } from './audit/verify';
 
 // The server process: configuration, local stand-ins (identity provider, mail catcher), database, HTTP.
 const withDevServices = process.env.CHRONOLEVEL_DEV_SERVICES !== '0';
@@ -42,6 +43,9 @@ async function main() {
   // One job worker inside this process (adjustment runs); more can run elsewhere with `tsx server/jobs/worker.ts`.
   const worker = await startWorker({ dataSource, databaseUrl: config.databaseUrl, logger });
   closers.push(() => worker.stop(), () => stopQueues());
+  // Besides the checkpoint every 100 events, one every 15 minutes when anything was added (no-op otherwise).
+  const checkpoints = setInterval(() => void writeAuditCheckpoint(dataSource, 'every 15 minutes').catch((e) => logger.error({ err: e }, 'audit checkpoint failed')), 15 * 60_000);
+  closers.push(() => clearInterval(checkpoints));
   const mail = createMailSender({ dataSource, smtpUrl: config.smtpUrl, from: config.mailFrom, logger, retry: config.mailRetry });
   mail.start();
   closers.push(() => mail.stop());
