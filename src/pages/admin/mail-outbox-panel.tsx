@@ -28,7 +28,7 @@ export function MailOutboxPanel() {
         ))}
       </div>
       {retry.error ? <p role="alert" className="mb-2 text-sm text-red-700">{describeError(retry.error)}</p> : null}
-      <table className="w-full text-left text-sm">
+      <table className="w-full text-left text-sm [&_td]:px-2 [&_td]:py-1.5 [&_th]:bg-paper-100 [&_th]:px-2 [&_th]:py-1.5 [&_th]:font-semibold">
         <thead>
           <tr><th>To</th><th>Subject</th><th>Queued</th><th>Tries</th><th>Last error</th><th>{state === 'pending' ? 'Next try' : state === 'sent' ? 'Sent' : 'Given up'}</th><th /></tr>
         </thead>
