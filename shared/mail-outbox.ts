@@ -1,14 +1,11 @@
 import { z } from 'zod';
+import { pageOf, pageQuerySchema } from './http';
 
 // The administrator's view of the mail outbox: every queued message by state, and a retry for dead letters.
 export const mailStateSchema = z.enum(['pending', 'sent', 'dead']);
 export type MailState = z.infer<typeof mailStateSchema>;
 
-export const mailOutboxQuerySchema = z.object({
-  state: mailStateSchema.default('dead'),
-  page: z.coerce.number().int().min(1).default(1),
-  pageSize: z.coerce.number().int().min(1).max(200).default(25),
-});
+export const mailOutboxQuerySchema = pageQuerySchema.pick({ page: true, pageSize: true }).extend({ state: mailStateSchema.default('dead') });
 
 export const mailOutboxItemSchema = z.object({
   id: z.string().uuid(),
@@ -25,11 +22,7 @@ export const mailOutboxItemSchema = z.object({
 });
 export type MailOutboxItem = z.infer<typeof mailOutboxItemSchema>;
 
-export const mailOutboxPageSchema = z.object({
-  items: z.array(mailOutboxItemSchema),
-  total: z.number().int(),
-  page: z.number().int(),
-  pageSize: z.number().int(),
+export const mailOutboxPageSchema = pageOf(mailOutboxItemSchema).extend({
   counts: z.object({ pending: z.number().int(), sent: z.number().int(), dead: z.number().int() }),
 });
 export type MailOutboxPage = z.infer<typeof mailOutboxPageSchema>;
