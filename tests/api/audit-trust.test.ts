@@ -137,6 +137,31 @@ describe('the verifier finds tampering by the owner', () => {
     }
   });
 
+  it('rewriting an event and re-chaining every later one is found through the checkpoint and the certificate anchors', async () => {
+    const c = await createTestApp({ seed: false });
+    try {
+      await c.ds.query(`SELECT audit_write_checkpoint('manual')`);
+      const [first] = await c.ds.query(`SELECT min(id)::text AS id FROM audit_event`);
+      await asOwnerTampering(c, [
+        `UPDATE audit_event SET details = '{"rewritten": true}' WHERE id = ${first.id}`,
+        `DO $$ DECLARE r record; prev text := NULL; BEGIN
+           FOR r IN SELECT id FROM audit_event ORDER BY id LOOP
+             UPDATE audit_event SET prev_hash = prev WHERE id = r.id;
+             UPDATE audit_event SET hash = audit_event_hash_v2(audit_event) WHERE id = r.id RETURNING hash INTO prev;
+           END LOOP; END $$`,
+      ]);
+      const report = await verifyAuditChain(c.ds);
+      expect(report.ok).toBe(false);
+      const problems = report.breaks.map((b) => b.problem);
+      expect(problems).not.toContain('content-altered');
+      expect(problems).not.toContain('link-broken');
+      expect(problems).toContain('checkpoint-head-changed');
+      expect(problems).toContain('certificate-anchor-missing');
+    } finally {
+      await c.close();
+    }
+  });
+
   it('deleting the newest events is found through the latest checkpoint', async () => {
     const c = await createTestApp({ seed: false });
     try {
