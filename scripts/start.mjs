@@ -10,7 +10,7 @@ const say = (m) => console.log(`[chronolevel] ${m}`);
 process.chdir(path.dirname(path.dirname(new URL(import.meta.url).pathname)));
 
 ensureNodeModules(say);
-const { startCluster } = await import('./lib/postgres.mjs');
+const { startCluster, prepareRoles } = await import('./lib/postgres.mjs');
 
 const port = Number(process.env.PORT ?? 8080);
 const env = { ...process.env, PORT: String(port), NODE_ENV: process.env.NODE_ENV ?? 'production' };
@@ -18,10 +18,26 @@ let cluster = null;
 if (!env.DATABASE_URL) {
   const pgPort = Number(process.env.PGPORT_LOCAL ?? 55432);
   cluster = await startCluster({ dataDir: path.resolve('.data/pg'), port: pgPort, database: 'chronolevel', log: say });
-  env.DATABASE_URL = cluster.url;
+  // migrations as the owner role, the server as the restricted application role (docs/operations.md, "Database roles")
+  const roles = prepareRoles({ port: pgPort, database: 'chronolevel' });
+  env.MIGRATION_DATABASE_URL = roles.migrationUrl;
+  env.DATABASE_URL = roles.appUrl;
   say(`PostgreSQL running on 127.0.0.1:${pgPort} (data in .data/pg)`);
 } else {
   say('Using the database in DATABASE_URL');
+}
+if (env.MIGRATION_DATABASE_URL) {
+  // a process of its own, so the server never holds the owner's credentials
+  say('Applying migrations as the owner role (MIGRATION_DATABASE_URL)…');
+  const m = spawnSync(process.execPath, ['--import', 'tsx', 'server/db/migrate.ts'], { stdio: 'inherit', env });
+  if (m.status !== 0) {
+    cluster?.stop();
+    process.exit(1);
+  }
+  delete env.MIGRATION_DATABASE_URL;
+  env.CHRONOLEVEL_MIGRATED = '1';
+} else {
+  say('WARNING: only DATABASE_URL is set, so migrations and the application share one role; the audit trail is protected only if that role is restricted. Set MIGRATION_DATABASE_URL for the owner role (docs/operations.md).');
 }
 
 function newestMtime(dir) {

@@ -23,6 +23,9 @@ const envSchema = z.object({
   TRUST_PROXY: z.enum(['0', '1']).default('0'),
   SIGNING_P12_FILE: z.string().optional(),
   SIGNING_P12_PASSPHRASE: z.string().optional(),
+  MAIL_RETRY_BASE_MS: z.coerce.number().int().positive().default(30_000),
+  MAIL_RETRY_CAP_MS: z.coerce.number().int().positive().default(60 * 60_000),
+  MAIL_GIVE_UP_AFTER_MS: z.coerce.number().int().positive().default(3 * 24 * 60 * 60_000),
 });
 
 export type AppConfig = {
@@ -44,6 +47,8 @@ export type AppConfig = {
   trustProxy: boolean;
   signingP12File?: string;
   signingP12Passphrase?: string;
+  /** mail outbox backoff (server/mail/outbox.ts) */
+  mailRetry: { baseMs: number; capMs: number; giveUpAfterMs: number };
 };
 
 /** A secret kept in the git-ignored secrets folder, created on first use. */
@@ -76,5 +81,6 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): AppConfig {
     trustProxy: e.TRUST_PROXY === '1',
     signingP12File: e.SIGNING_P12_FILE,
     signingP12Passphrase: e.SIGNING_P12_PASSPHRASE,
+    mailRetry: { baseMs: e.MAIL_RETRY_BASE_MS, capMs: e.MAIL_RETRY_CAP_MS, giveUpAfterMs: e.MAIL_GIVE_UP_AFTER_MS },
   };
 }

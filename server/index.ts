@@ -10,6 +10,8 @@ import { createMailSender } from './mail/outbox';
 import { seedDemo } from '../seeds/demo';
 import { startWorker } from './jobs/worker';
 import { stopQueues } from './jobs/queue';
+import { migrateDatabase, privilegeWarnings, roleOfUrl } from './db/roles';
+import { writeAuditCheckpoint } from './audit/verify';
 
 // The server process: configuration, local stand-ins (identity provider, mail catcher), database, HTTP.
 const withDevServices = process.env.CHRONOLEVEL_DEV_SERVICES !== '0';
@@ -26,8 +28,14 @@ async function main() {
     closers.push(smtp.close);
     logger.info({ idp: idp.url, smtp: smtp.smtpUrl, mailbox: smtp.mailboxUrl }, 'local identity provider and mail catcher started');
   }
-  const dataSource = await openDatabase(config.databaseUrl);
+  // Migrations as the owner role when MIGRATION_DATABASE_URL is given (`npm start` runs them in a process of their
+  // own and never passes the owner's URL here); the application itself connects with DATABASE_URL.
+  const migrationUrl = process.env.MIGRATION_DATABASE_URL;
+  delete process.env.MIGRATION_DATABASE_URL;
+  if (migrationUrl) await migrateDatabase({ migrationUrl, appRole: roleOfUrl(config.databaseUrl) });
+  const dataSource = await openDatabase(config.databaseUrl, { migrate: !migrationUrl && process.env.CHRONOLEVEL_MIGRATED !== '1' });
   closers.push(() => dataSource.destroy());
+  for (const w of await privilegeWarnings(dataSource)) logger.warn(`WARNING: ${w}`);
   if (process.env.CHRONOLEVEL_SEED !== '0') {
     const seeded = await seedDemo(dataSource, (m) => logger.info(m));
     logger.info(seeded ? 'demo scenario loaded into the empty database' : 'database already holds data; demo scenario not reloaded');
@@ -35,7 +43,10 @@ async function main() {
   // One job worker inside this process (adjustment runs); more can run elsewhere with `tsx server/jobs/worker.ts`.
   const worker = await startWorker({ dataSource, databaseUrl: config.databaseUrl, logger });
   closers.push(() => worker.stop(), () => stopQueues());
-  const mail = createMailSender({ dataSource, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
+  // Besides the checkpoint every 100 events, one every 15 minutes when anything was added (no-op otherwise).
+  const checkpoints = setInterval(() => void writeAuditCheckpoint(dataSource, 'every 15 minutes').catch((e) => logger.error({ err: e }, 'audit checkpoint failed')), 15 * 60_000);
+  closers.push(() => clearInterval(checkpoints));
+  const mail = createMailSender({ dataSource, smtpUrl: config.smtpUrl, from: config.mailFrom, logger, retry: config.mailRetry });
   mail.start();
   closers.push(() => mail.stop());
   const app = createApp({ config, dataSource, logger, mail });

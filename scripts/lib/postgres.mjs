@@ -113,3 +113,83 @@ export async function startCluster({ dataDir, port, database, log = console.log 
   };
   return { url: `postgres://chronolevel@127.0.0.1:${port}/${database}`, port, stop };
 }
+
+// Two roles instead of the superuser (see docs/operations.md, "Database roles"): the owner runs migrations and owns
+// the schema; the application role has ordinary DML, but only INSERT and SELECT on the audit tables, and as a
+// non-owner cannot ALTER the tables or DISABLE their triggers. Roles are cluster-wide, so databases cloned with
+// CREATE DATABASE … TEMPLATE keep them, and the per-table grants travel with the cloned catalogue.
+export const OWNER_ROLE = 'chronolevel_owner';
+export const APP_ROLE = 'chronolevel_app';
+
+/** Creates both roles once per cluster (idempotent). The owner may hand the job schema to the application role. */
+export const ROLES_SQL = `
+DO $$ BEGIN
+  IF NOT EXISTS (SELECT 1 FROM pg_roles WHERE rolname = '${OWNER_ROLE}') THEN
+    CREATE ROLE ${OWNER_ROLE} LOGIN NOSUPERUSER NOCREATEDB NOCREATEROLE NOREPLICATION NOBYPASSRLS;
+  END IF;
+  IF NOT EXISTS (SELECT 1 FROM pg_roles WHERE rolname = '${APP_ROLE}') THEN
+    CREATE ROLE ${APP_ROLE} LOGIN NOSUPERUSER NOCREATEDB NOCREATEROLE NOREPLICATION NOBYPASSRLS;
+  END IF;
+END $$;
+GRANT ${APP_ROLE} TO ${OWNER_ROLE};
+`;
+
+/**
+ * Run in the application's database by a superuser: makes the owner role own the database and every object an
+ * earlier version created as the superuser (an existing .data/pg from before the roles existed).
+ */
+export const ADOPT_SQL = `
+DO $$ DECLARE r record; BEGIN
+  EXECUTE format('ALTER DATABASE %I OWNER TO ${OWNER_ROLE}', current_database());
+  FOR r IN SELECT n.nspname, c.relname FROM pg_class c JOIN pg_namespace n ON n.oid = c.relnamespace
+            WHERE n.nspname = 'public' AND c.relkind IN ('r','p','v','m','f') AND pg_get_userbyid(c.relowner) <> '${OWNER_ROLE}' LOOP
+    EXECUTE format('ALTER TABLE %I.%I OWNER TO ${OWNER_ROLE}', r.nspname, r.relname);
+  END LOOP;
+  FOR r IN SELECT n.nspname, c.relname FROM pg_class c JOIN pg_namespace n ON n.oid = c.relnamespace
+            WHERE n.nspname = 'public' AND c.relkind = 'S' AND pg_get_userbyid(c.relowner) <> '${OWNER_ROLE}'
+              AND NOT EXISTS (SELECT 1 FROM pg_depend d WHERE d.objid = c.oid AND d.deptype = 'a') LOOP
+    EXECUTE format('ALTER SEQUENCE %I.%I OWNER TO ${OWNER_ROLE}', r.nspname, r.relname);
+  END LOOP;
+  FOR r IN SELECT p.oid::regprocedure AS fn FROM pg_proc p JOIN pg_namespace n ON n.oid = p.pronamespace
+            WHERE n.nspname = 'public' AND pg_get_userbyid(p.proowner) <> '${OWNER_ROLE}' LOOP
+    EXECUTE format('ALTER FUNCTION %s OWNER TO ${OWNER_ROLE}', r.fn);
+  END LOOP;
+  -- the job queue's schema belongs to the application role (pg-boss creates a table per queue)
+  IF EXISTS (SELECT 1 FROM pg_namespace WHERE nspname = 'pgboss' AND pg_get_userbyid(nspowner) <> '${APP_ROLE}') THEN
+    ALTER SCHEMA pgboss OWNER TO ${APP_ROLE};
+    FOR r IN SELECT c.relname FROM pg_class c JOIN pg_namespace n ON n.oid = c.relnamespace
+              WHERE n.nspname = 'pgboss' AND c.relkind IN ('r','p') LOOP
+      EXECUTE format('ALTER TABLE pgboss.%I OWNER TO ${APP_ROLE}', r.relname);
+    END LOOP;
+    FOR r IN SELECT p.oid::regprocedure AS fn FROM pg_proc p JOIN pg_namespace n ON n.oid = p.pronamespace WHERE n.nspname = 'pgboss' LOOP
+      EXECUTE format('ALTER FUNCTION %s OWNER TO ${APP_ROLE}', r.fn);
+    END LOOP;
+    FOR r IN SELECT t.typname FROM pg_type t JOIN pg_namespace n ON n.oid = t.typnamespace WHERE n.nspname = 'pgboss' AND t.typtype = 'e' LOOP
+      EXECUTE format('ALTER TYPE pgboss.%I OWNER TO ${APP_ROLE}', r.typname);
+    END LOOP;
+  END IF;
+END $$;
+`;
+
+/** The same URL with another user name. */
+export function urlAsRole(url, role) {
+  const u = new URL(url);
+  u.username = role;
+  u.password = '';
+  return u.toString();
+}
+
+/**
+ * Creates the two roles and hands the database to the owner (superuser connection on the local cluster).
+ * Returns { migrationUrl, appUrl }.
+ */
+export function prepareRoles({ port, database }) {
+  const psql = (db, sql) => {
+    const r = spawnSync('psql', ['-h', '127.0.0.1', '-p', String(port), '-U', 'chronolevel', '-d', db, '-v', 'ON_ERROR_STOP=1', '-qc', sql], { encoding: 'utf8' });
+    if (r.status !== 0) throw new Error(`could not set up database roles: ${r.stderr}`);
+  };
+  psql('postgres', ROLES_SQL);
+  psql(database, ADOPT_SQL);
+  const base = `postgres://chronolevel@127.0.0.1:${port}/${database}`;
+  return { migrationUrl: urlAsRole(base, OWNER_ROLE), appUrl: urlAsRole(base, APP_ROLE) };
+}

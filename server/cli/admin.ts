@@ -1,24 +1,57 @@
 // `npm run admin -- users` lists people; `npm run admin -- token --email <e-mail> [--name <what for>]` prints a new
 // API token once, on a line of its own. Uses DATABASE_URL, or the local cluster that `npm start` runs.
+//   audit-verify                      walks the audit chain; exit 1 and the first broken event when it is broken
+//   audit-checkpoint                  writes a checkpoint of the current chain head
+//   backup [--out <file>]             pg_dump -Fc of the database (as the owner role: MIGRATION_DATABASE_URL)
+//   restore <file> [--database <n>]   pg_restore into a NEW database (ADMIN_DATABASE_URL: a role that may create it)
 import { parseArgs } from 'node:util';
 import { loadConfig } from '../config';
 import { openDatabase } from '../db/data-source';
 import { UserEntity } from '../db/entities/core.entities';
 import { issueToken } from '../tokens/tokens.service';
+import { formatAuditReport, verifyAuditChain, writeAuditCheckpoint } from '../audit/verify';
+import { backupDatabase, restoreDatabase } from '../db/backup';
 
 const { positionals, values } = parseArgs({
   allowPositionals: true,
-  options: { email: { type: 'string' }, name: { type: 'string', default: 'command line' } },
+  options: {
+    email: { type: 'string' }, name: { type: 'string', default: 'command line' },
+    out: { type: 'string' }, database: { type: 'string' },
+  },
 });
-process.env.DATABASE_URL ??= 'postgres://chronolevel@127.0.0.1:55432/chronolevel';
+const LOCAL = 'postgres://chronolevel_app@127.0.0.1:55432/chronolevel';
+process.env.DATABASE_URL ||= LOCAL;
+const migrationUrl = process.env.MIGRATION_DATABASE_URL || (process.env.DATABASE_URL === LOCAL ? LOCAL.replace('chronolevel_app@', 'chronolevel_owner@') : process.env.DATABASE_URL);
 const config = loadConfig();
+const command = positionals[0];
+let code = 0;
+
+if (command === 'backup' || command === 'restore') {
+  try {
+    if (command === 'backup') {
+      const r = await backupDatabase({ databaseUrl: migrationUrl, out: values.out });
+      console.error(`backup written: ${r.file} (${r.bytes} bytes, ${r.seconds.toFixed(1)} s)`);
+      console.log(r.file);
+    } else {
+      const file = positionals[1];
+      if (!file) throw new Error('restore needs the backup file: npm run admin -- restore <file> [--database <name>]');
+      const adminUrl = process.env.ADMIN_DATABASE_URL || 'postgres://chronolevel@127.0.0.1:55432/postgres';
+      const r = await restoreDatabase({ adminUrl, file, database: values.database, owner: new URL(migrationUrl).username || undefined });
+      console.error(`restored into database ${r.database} (${r.seconds.toFixed(1)} s); point DATABASE_URL at it to use it`);
+      console.log(r.database);
+    }
+  } catch (e) {
+    console.error(`error: ${(e as Error).message}`);
+    code = 1;
+  }
+  process.exit(code);
+}
+
 const ds = await openDatabase(config.databaseUrl, { migrate: false }).catch((e: Error) => {
   console.error(`error: cannot reach the database (${e.message}). Is \`npm start\` running, or is DATABASE_URL set?`);
   process.exit(1);
 });
-let code = 0;
 try {
-  const command = positionals[0];
   if (command === 'users') {
     const users = await ds.getRepository(UserEntity).find({ relations: { institute: true }, order: { email: 'ASC' } });
     for (const u of users) console.log(`${u.email}\t${u.role}\t${u.institute?.code ?? '-'}\t${u.displayName}`);
@@ -29,8 +62,15 @@ try {
     const { secret } = await issueToken(ds, user.id, values.name!, null);
     console.error(`New API token for ${user.email} (${user.role}); it is shown only once:`);
     console.log(secret);
+  } else if (command === 'audit-verify') {
+    const report = await verifyAuditChain(ds);
+    console.log(formatAuditReport(report));
+    code = report.ok ? 0 : 1;
+  } else if (command === 'audit-checkpoint') {
+    const id = await writeAuditCheckpoint(ds, 'command line');
+    console.log(id ? `checkpoint ${id} written` : 'no new events since the last checkpoint');
   } else {
-    console.error('usage: npm run admin -- users | token --email <e-mail> [--name <what for>]');
+    console.error('usage: npm run admin -- users | token --email <e-mail> [--name <what for>] | audit-verify | audit-checkpoint | backup [--out <file>] | restore <file> [--database <name>]');
     code = 2;
   }
 } catch (e) {

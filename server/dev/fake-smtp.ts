@@ -4,15 +4,24 @@ import { SMTPServer } from 'smtp-server';
 
 // Local mail catcher for development and tests: accepts SMTP on loopback, keeps messages in memory and
 // lists them over a small HTTP endpoint (GET /messages, DELETE /messages). Nothing leaves the machine.
+// down() and up() stop and restart the SMTP side on the same port, so tests can stage a mail-server outage.
 
-export type CaughtMessage = { id: number; receivedAt: string; from: string; to: string[]; subject: string; text: string };
-export type FakeSmtp = { smtpUrl: string; mailboxUrl: string; messages: CaughtMessage[]; close: () => Promise<void> };
+export type CaughtMessage = { id: number; receivedAt: string; from: string; to: string[]; subject: string; text: string; messageId: string };
+export type FakeSmtp = {
+  smtpUrl: string; mailboxUrl: string; messages: CaughtMessage[];
+  /** stops accepting SMTP connections (connection refused) and drops the open ones */
+  down: () => Promise<void>;
+  /** listens again on the same port */
+  up: () => Promise<void>;
+  close: () => Promise<void>;
+};
 
 export async function startFakeSmtp(opts: { smtpPort: number; httpPort: number; host?: string }): Promise<FakeSmtp> {
   const host = opts.host ?? '127.0.0.1';
   const messages: CaughtMessage[] = [];
   let nextId = 1;
-  const smtp = new SMTPServer({
+  const newSmtpServer = () => new SMTPServer({
+    closeTimeout: 200,
     authOptional: true,
     disabledCommands: ['STARTTLS', 'AUTH'],
     logger: false,
@@ -26,16 +35,21 @@ export async function startFakeSmtp(opts: { smtpPort: number; httpPort: number; 
             to: session.envelope.rcptTo.map((r) => r.address),
             subject: mail.subject ?? '',
             text: mail.text ?? '',
+            messageId: mail.messageId ?? '',
           });
           callback();
         })
         .catch((e: Error) => callback(e));
     },
   });
-  await new Promise<void>((resolve, reject) => {
-    smtp.once('error', reject);
-    smtp.listen(opts.smtpPort, host, () => resolve());
-  });
+  const listen = (server: SMTPServer, port: number) =>
+    new Promise<void>((resolve, reject) => {
+      server.once('error', reject);
+      server.listen(port, host, () => resolve());
+    });
+  let smtp = newSmtpServer();
+  let smtpUp = true;
+  await listen(smtp, opts.smtpPort);
   const web = http.createServer((req, res) => {
     if (req.url === '/messages' && req.method === 'GET') {
       res.setHeader('content-type', 'application/json');
@@ -53,14 +67,26 @@ export async function startFakeSmtp(opts: { smtpPort: number; httpPort: number; 
   const smtpAddr = smtp.server.address();
   const webAddr = web.address();
   const smtpPort = typeof smtpAddr === 'object' && smtpAddr ? smtpAddr.port : opts.smtpPort;
+  const stopSmtp = () => new Promise<void>((r) => smtp.close(() => r()));
   const httpPort = typeof webAddr === 'object' && webAddr ? webAddr.port : opts.httpPort;
   return {
     smtpUrl: `smtp://${host}:${smtpPort}`,
     mailboxUrl: `http://${host}:${httpPort}`,
     messages,
+    down: async () => {
+      if (!smtpUp) return;
+      smtpUp = false;
+      await stopSmtp();
+    },
+    up: async () => {
+      if (smtpUp) return;
+      smtp = newSmtpServer();
+      await listen(smtp, smtpPort);
+      smtpUp = true;
+    },
     close: async () => {
       await new Promise<void>((r) => web.close(() => r()));
-      await new Promise<void>((r) => smtp.close(() => r()));
+      if (smtpUp) await stopSmtp();
     },
   };
 }

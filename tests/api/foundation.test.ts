@@ -60,9 +60,10 @@ describe('API tokens', () => {
 
 describe('audit trail', () => {
   it('is append-only in the database: UPDATE, DELETE and TRUNCATE fail', async () => {
-    await expect(t.ds.query("UPDATE audit_event SET action = 'x'")).rejects.toThrow(/append-only/);
-    await expect(t.ds.query('DELETE FROM audit_event')).rejects.toThrow(/append-only/);
-    await expect(t.ds.query('TRUNCATE audit_event')).rejects.toThrow(/append-only/);
+    // the application role lacks the privilege; the owner role still meets the append-only trigger
+    await expect(t.ds.query("UPDATE audit_event SET action = 'x'")).rejects.toThrow(/append-only|permission denied/);
+    await expect(t.ds.query('DELETE FROM audit_event')).rejects.toThrow(/append-only|permission denied/);
+    await expect(t.ds.query('TRUNCATE audit_event')).rejects.toThrow(/append-only|permission denied/);
   });
 
   it('chains each event to the previous one by hash', async () => {

@@ -11,13 +11,18 @@ import { createMailSender } from '../../server/mail/outbox';
 import { issueToken } from '../../server/tokens/tokens.service';
 import { UserEntity } from '../../server/db/entities/core.entities';
 import { seedDemo } from '../../seeds/demo';
+// @ts-expect-error plain ESM helper shared with `npm start`
+import { APP_ROLE, OWNER_ROLE, urlAsRole } from '../../scripts/lib/postgres.mjs';
 
 export type TestApp = {
   app: ReturnType<typeof createApp>;
   ds: DataSource;
   deps: AppDeps;
   config: AppConfig;
+  /** the restricted application role's URL (what the app under test uses) */
   databaseUrl: string;
+  /** the owner role's URL for this database (migrations; tests that tamper with the audit trail) */
+  ownerUrl: string;
   close: () => Promise<void>;
 };
 
@@ -26,9 +31,11 @@ export async function createTestApp(opts: { seed?: boolean; env?: Record<string,
   const adminUrl = inject('pgAdminUrl');
   const name = `t_${crypto.randomBytes(6).toString('hex')}`;
   const admin = await openDatabase(adminUrl, { migrate: false });
-  await admin.query(`CREATE DATABASE ${name} TEMPLATE ${inject('templateDb')}`);
+  await admin.query(`CREATE DATABASE ${name} OWNER ${OWNER_ROLE} TEMPLATE ${inject('templateDb')}`);
   await admin.destroy();
-  const databaseUrl = adminUrl.replace(/\/[^/]*$/, `/${name}`);
+  // The app under test connects as the restricted application role, never as the superuser (see roles.ts).
+  const ownerUrl = urlAsRole(adminUrl.replace(/\/[^/]*$/, `/${name}`), OWNER_ROLE) as string;
+  const databaseUrl = urlAsRole(ownerUrl, APP_ROLE) as string;
   const config = loadConfig({
     NODE_ENV: 'test',
     DATABASE_URL: databaseUrl,
@@ -42,14 +49,14 @@ export async function createTestApp(opts: { seed?: boolean; env?: Record<string,
     LOG_LEVEL: 'silent',
     ...opts.env,
   });
-  const ds = await openDatabase(databaseUrl);
+  const ds = await openDatabase(databaseUrl, { migrate: false });
   if (opts.seed !== false) await seedDemo(ds);
   const logger = pino({ level: 'silent' });
   const mail = createMailSender({ dataSource: ds, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
   const deps: AppDeps = { config, dataSource: ds, logger, mail };
   const app = createApp(deps);
   return {
-    app, ds, deps, config, databaseUrl,
+    app, ds, deps, config, databaseUrl, ownerUrl,
     close: async () => {
       mail.stop();
       await app.locals.closeSessionPool?.();

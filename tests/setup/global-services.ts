@@ -3,8 +3,9 @@ import os from 'node:os';
 import path from 'node:path';
 import type { TestProject } from 'vitest/node';
 // @ts-expect-error plain ESM helper shared with `npm start`
-import { freePort, startCluster } from '../../scripts/lib/postgres.mjs';
+import { APP_ROLE, OWNER_ROLE, ROLES_SQL, freePort, startCluster, urlAsRole } from '../../scripts/lib/postgres.mjs';
 import { openDatabase } from '../../server/db/data-source';
+import { migrateDatabase } from '../../server/db/roles';
 import { seedDemo } from '../../seeds/demo';
 import { startFakeIdp } from '../../server/dev/fake-idp';
 import { startFakeSmtp } from '../../server/dev/fake-smtp';
@@ -38,12 +39,16 @@ export default async function setup(project: TestProject) {
   const admin = await openDatabase(pgUrl!, { migrate: false });
   const templateDb = `chronolevel_template_${process.pid}`;
   await admin.query(`DROP DATABASE IF EXISTS ${templateDb}`);
-  await admin.query(`CREATE DATABASE ${templateDb}`);
+  // Database roles as in production: the template belongs to the owner role, which runs the migrations; the
+  // application role (what createTestApp connects as) gets its grants there, and clones keep them.
+  await admin.query(ROLES_SQL);
+  await admin.query(`CREATE DATABASE ${templateDb} OWNER ${OWNER_ROLE}`);
   const templateUrl = pgUrl!.replace(/\/[^/]*$/, `/${templateDb}`);
+  await migrateDatabase({ migrationUrl: urlAsRole(templateUrl, OWNER_ROLE), appRole: APP_ROLE });
   // The template carries the migrations and the invented demo scenario, so each test file's clone starts
   // seeded without paying for it (the certificate seeder signs with the test secrets folder's key).
   process.env.SECRETS_DIR = secretsDir;
-  const tpl = await openDatabase(templateUrl);
+  const tpl = await openDatabase(urlAsRole(templateUrl, APP_ROLE), { migrate: false });
   await seedDemo(tpl);
   await tpl.destroy();
   await admin.destroy();

@@ -88,6 +88,7 @@ export interface AuditEventRow {
   details: Record<string, unknown>;
   prevHash: string | null;
   hash: string;
+  hashVersion: number;
 }
 export const AuditEventEntity = new EntitySchema<AuditEventRow>({
   name: 'AuditEvent',
@@ -104,6 +105,7 @@ export const AuditEventEntity = new EntitySchema<AuditEventRow>({
     details: { type: 'jsonb', default: () => "'{}'::jsonb" },
     prevHash: { name: 'prev_hash', type: 'text', nullable: true },
     hash: { type: 'text', default: () => "''" },
+    hashVersion: { name: 'hash_version', type: 'smallint', default: 2 },
   },
 });
 
@@ -116,6 +118,11 @@ export interface MailOutboxRow {
   sentAt: Date | null;
   attempts: number;
   lastError: string | null;
+  state: 'pending' | 'sent' | 'dead';
+  nextAttemptAt: Date;
+  messageId: string | null;
+  deadAt: Date | null;
+  retriedAt: Date | null;
 }
 export const MailOutboxEntity = new EntitySchema<MailOutboxRow>({
   name: 'MailOutbox',
@@ -129,5 +136,10 @@ export const MailOutboxEntity = new EntitySchema<MailOutboxRow>({
     sentAt: { name: 'sent_at', type: 'timestamptz', nullable: true },
     attempts: { type: 'int', default: 0 },
     lastError: { name: 'last_error', type: 'text', nullable: true },
+    state: { type: 'text', default: 'pending' },
+    nextAttemptAt: { name: 'next_attempt_at', type: 'timestamptz', default: () => 'now()' },
+    messageId: { name: 'message_id', type: 'text', nullable: true },
+    deadAt: { name: 'dead_at', type: 'timestamptz', nullable: true },
+    retriedAt: { name: 'retried_at', type: 'timestamptz', nullable: true },
   },
 });

@@ -1,11 +1,24 @@
 import { Foundation1764650000000 } from './1764650000000-foundation';
-import { Certificates1764700000000 } from './1764700000000-certificates';
 import { Registry1764660000000 } from './1764660000000-registry';
-import { Network1764690000000 } from './1764690000000-network';
 import { RatioSeries1764670000000 } from './1764670000000-ratio-series';
 import { Results1764680000000 } from './1764680000000-results';
+import { Network1764690000000 } from './1764690000000-network';
+import { Certificates1764700000000 } from './1764700000000-certificates';
+import { AuditChainV21765300000000 } from './1765300000000-audit-chain-v2';
+import { MailOutboxRetry1765310000000 } from './1765310000000-mail-outbox-retry';
 import { ListIndexes1765800000000 } from './1765800000000-list-indexes';
 import { SamplePartitions1765800001000 } from './1765800001000-sample-partitions';
 
 // Every migration, in order. Add new ones at the end (file name: <timestamp>-<what>.ts).
-export const migrations = [Foundation1764650000000, Registry1764660000000, RatioSeries1764670000000, Results1764680000000, Network1764690000000, Certificates1764700000000, ListIndexes1765800000000, SamplePartitions1765800001000];
+export const migrations = [
+  Foundation1764650000000,
+  Registry1764660000000,
+  RatioSeries1764670000000,
+  Results1764680000000,
+  Network1764690000000,
+  Certificates1764700000000,
+  AuditChainV21765300000000,
+  MailOutboxRetry1765310000000,
+  ListIndexes1765800000000,
+  SamplePartitions1765800001000,
+];

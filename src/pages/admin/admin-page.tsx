@@ -4,6 +4,7 @@ import { roleLabels, type User } from '../../../shared/auth';
 import { useInstitutes, useUsers } from '../../api/account';
 import { DataTable, type TableState } from '../../components/data-table';
 import { Panel } from '../../components/ui';
+import { MailOutboxPanel } from './mail-outbox-panel';
 
 const col = createColumnHelper<User>();
 const columns = [
@@ -35,6 +36,7 @@ export function AdminPage() {
         <p className="mb-3 text-xs text-ink-500">People appear after their first sign-in; role and institute come from the identity provider.</p>
         <DataTable columns={columns as never} rows={users.data?.items ?? []} total={users.data?.total ?? 0} state={state} onState={setState} loading={users.isFetching} filterLabel="Filter by name, e-mail or institute" />
       </Panel>
+      <MailOutboxPanel />
     </>
   );
 }
