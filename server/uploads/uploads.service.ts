@@ -14,7 +14,8 @@ import { receiveMultipart } from './multipart';
 import { openSpool } from './raw-file-spool';
 import { buildPreview } from './ratio-series-format';
 import { decimateSeries } from './series-plot';
-import { uploadProgress } from './upload-progress';
+import { createUploadProgressStore } from './upload-progress';
+import type { UploadProgress } from '../../shared/uploads';
 
 // Uploads of frequency-ratio series: who may upload (lab staff of the campaign's owning institute, campaign draft or
 // returned), the one transaction (COPY rows + raw file + series row + audit event), previews, lists and plot data.
@@ -91,7 +92,8 @@ export type StoreSeriesInput = {
   source: NodeJS.ReadableStream & import('node:stream').Readable;
   fields: Record<string, string>;
   limitBytes: number;
-  uploadId?: string;
+  /** Reports progress of an HTTP upload (the shared progress store); absent for the seeder. */
+  onProgress?: (p: Partial<UploadProgress>) => void;
   invented?: boolean;
 };
 
@@ -118,7 +120,7 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
         periodStartMjd: input.campaign.periodStartMjd, periodEndMjd: input.campaign.periodEndMjd,
         limitBytes: input.limitBytes,
         onRawChunk: (c) => spool.write(c),
-        onProgress: (p) => uploadProgress.update(input.uploadId, p),
+        onProgress: (p) => input.onProgress?.(p),
       });
       await finishCopy(copy);
     } catch (e) {
@@ -132,7 +134,7 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
       const id = existing.rows[0].id;
       throw new Conflict('This file was already uploaded to this campaign.', { existingUploadId: id, existingUpload: `/api/v1/uploads/${id}` });
     }
-    uploadProgress.update(input.uploadId, { phase: 'storing' });
+    input.onProgress?.({ phase: 'storing' });
     const storedMapping = { ...mapping, delimiter: summary.delimiter, hasHeader: summary.hasHeader, header: summary.header };
     const { rows } = await client.query<SeriesDbRow>(
       `INSERT INTO ratio_series (id, campaign_id, file_name, sha256, byte_size, row_count, valid_count, first_mjd, last_mjd,
@@ -155,6 +157,7 @@ function isUniqueViolation(e: unknown) {
 
 export function createUploadsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'uploadLimitBytes'> }) {
   const { dataSource, config } = deps;
+  const uploadProgress = createUploadProgressStore(dataSource);
 
   async function campaignOr404(actor: Actor, id: string) {
     const c = await loadCampaignForUpload(dataSource, id);
@@ -209,14 +212,14 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
       requireUploader(actor, campaign);
       checkDeclaredSize(req);
       const declared = Number(req.headers['content-length']);
-      if (uploadId) uploadProgress.start(uploadId, actor.userId, Number.isFinite(declared) ? declared : null);
+      if (uploadId) await uploadProgress.start(uploadId, actor.userId, Number.isFinite(declared) ? declared : null);
       const qr = dataSource.createQueryRunner();
       await qr.connect();
       const client = (qr as unknown as { databaseConnection: pg.PoolClient }).databaseConnection;
       try {
         await qr.startTransaction();
         const { result } = await receiveMultipart(req, { fileBytes: config.uploadLimitBytes }, async (file, info, fields) => {
-          const row = await storeSeries(client, actor, { campaign, fileName: info.filename, source: file, fields, limitBytes: config.uploadLimitBytes, uploadId });
+          const row = await storeSeries(client, actor, { campaign, fileName: info.filename, source: file, fields, limitBytes: config.uploadLimitBytes, onProgress: (p) => uploadProgress.update(uploadId, p) });
           await recordAudit(qr.manager, actor, {
             action: 'campaign.series-uploaded', entityType: 'ratio_series', entityId: row.id, instituteId: campaign.instituteId,
             details: { campaignId, fileName: row.file_name, sha256: row.sha256, rows: row.row_count, valid: row.valid_count },
@@ -225,10 +228,10 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
         });
         if (!result) throw new Invalid('No file was sent.', [{ path: 'file', message: 'attach the file as the part named "file"' }]);
         await qr.commitTransaction();
-        uploadProgress.update(uploadId, { phase: 'done', seriesId: result.id });
+        await uploadProgress.finish(uploadId, { phase: 'done', seriesId: result.id });
         return toSeriesDto(result);
       } catch (e) {
-        uploadProgress.update(uploadId, { phase: 'failed' });
+        await uploadProgress.finish(uploadId, { phase: 'failed' });
         if (qr.isTransactionActive) await qr.rollbackTransaction().catch(() => undefined);
         if (isUniqueViolation(e)) throw new Conflict('This file was already uploaded to this campaign (at the same moment).');
         throw e;
@@ -255,9 +258,9 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
       return decimateSeries(dataSource, { id: s.id, firstMjd: s.first_mjd, lastMjd: s.last_mjd, rowCount: s.row_count }, q);
     },
 
-    progress(actor: Actor, uploadId: string) {
+    async progress(actor: Actor, uploadId: string) {
       authorize(actor, 'campaigns:write');
-      const p = uploadProgress.get(uploadId, actor.userId);
+      const p = await uploadProgress.get(uploadId, actor.userId);
       if (!p) throw new NotFound('Upload progress');
       return p;
     },

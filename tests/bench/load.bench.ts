@@ -2,7 +2,7 @@
 // sections), two HTTP processes behind Debian's haproxy on loopback, and autocannon (npm) at 50 and 200
 // connections on the campaign list and a campaign detail, as a signed-in operator and as a coordinator.
 // Loopback only, bounded in time (LOAD_SECONDS per cell, default 30). Figures only; nothing fails on time.
-import { spawn, spawnSync, type ChildProcess } from 'node:child_process';
+import { spawn, type ChildProcess } from 'node:child_process';
 import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
@@ -14,19 +14,11 @@ import { createSelfSignedCertificate } from '../../server/dev/self-signed';
 import { issueToken } from '../../server/tokens/tokens.service';
 import { seedDemo } from '../../seeds/demo';
 import { scaleDemo } from '../../seeds/scale.seed';
+import { startHaproxy } from '../helpers/haproxy';
 
 const SECONDS = Number(process.env.LOAD_SECONDS ?? 30);
 const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'chronolevel-load-bench-'));
 process.env.PG_FSYNC ??= 'off';
-
-function haproxyBinary(): string {
-  for (const p of ['/usr/sbin/haproxy', '/usr/bin/haproxy']) if (fs.existsSync(p)) return p;
-  if (process.getuid?.() === 0) {
-    spawnSync('apt-get', ['install', '-y', '-q', 'haproxy'], { stdio: 'inherit', env: { ...process.env, DEBIAN_FRONTEND: 'noninteractive' } });
-    for (const p of ['/usr/sbin/haproxy', '/usr/bin/haproxy']) if (fs.existsSync(p)) return p;
-  }
-  throw new Error("haproxy is missing: install Debian's haproxy package");
-}
 
 async function startHttp(env: Record<string, string>): Promise<ChildProcess> {
   const child = spawn(process.execPath, ['--import', 'tsx', 'server/index.ts'], { env: { ...process.env, ...env }, stdio: ['ignore', 'pipe', 'pipe'] });
@@ -90,20 +82,10 @@ async function main() {
     PUBLIC_URL: `http://127.0.0.1:${lbPort}`, TRUST_PROXY: '1',
   };
   const children: ChildProcess[] = [];
-  let lb: ChildProcess | null = null;
+  let lb: Awaited<ReturnType<typeof startHaproxy>> | null = null;
   try {
     for (const p of ports) children.push(await startHttp({ ...common, PORT: String(p) }));
-    const cfg = path.join(tmp, 'haproxy.cfg');
-    fs.writeFileSync(cfg, [
-      'global', '  maxconn 4096',
-      'defaults', '  mode http', '  timeout connect 5s', '  timeout client 60s', '  timeout server 60s', '  option http-keep-alive',
-      `frontend api`, `  bind 127.0.0.1:${lbPort}`, '  default_backend app',
-      'backend app', '  balance roundrobin', '  option httpchk GET /api/health',
-      ...ports.map((p, i) => `  server app${i} 127.0.0.1:${p} check`),
-      '',
-    ].join('\n'));
-    lb = spawn(haproxyBinary(), ['-f', cfg, '-db'], { stdio: ['ignore', 'ignore', 'pipe'] });
-    await new Promise((r) => setTimeout(r, 1500));
+    lb = await startHaproxy({ port: lbPort, backends: ports });
     const base = `http://127.0.0.1:${lbPort}`;
     const list = `${base}/api/v1/campaigns?page=1&pageSize=25&sort=updatedAt&order=desc`;
     const detail = `${base}/api/v1/campaigns/${campaignId}`;
@@ -122,7 +104,7 @@ async function main() {
     console.log('| --- | --- | --- | --- | --- | --- | --- | --- |');
     for (const c of cells) console.log(`| ${c.what} | ${c.connections} | ${c.rps.toFixed(0)} | ${c.p50} | ${c.p95} | ${c.p99} | ${c.errors} | ${c.non2xx} |`);
   } finally {
-    lb?.kill('SIGTERM');
+    await lb?.stop();
     for (const c of children) c.kill('SIGTERM');
     await new Promise((r) => setTimeout(r, 2000));
     cluster.stop();

@@ -1,3 +1,4 @@
+import http from 'node:http';
 import pino from 'pino';
 import { createApp } from '../../server/app';
 import { loadConfig } from '../../server/config';
@@ -12,7 +13,13 @@ const ds = await openDatabase(config.databaseUrl, { migrate: false });
 const logger = pino({ level: 'silent' });
 const mail = createMailSender({ dataSource: ds, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
 const app = createApp({ config, dataSource: ds, logger, mail });
-const server = app.listen(0, '127.0.0.1', () => {
+// Which process answered, for tests that run several behind a load balancer.
+const instance = process.env.CHRONOLEVEL_INSTANCE ?? '';
+const server = http.createServer((req, res) => {
+  if (instance) res.setHeader('x-chronolevel-instance', instance);
+  app(req, res);
+});
+server.listen(Number(process.env.CHRONOLEVEL_PORT ?? 0), '127.0.0.1', () => {
   const addr = server.address();
   process.stdout.write(`LISTENING ${typeof addr === 'object' && addr ? addr.port : 0}\n`);
 });

@@ -8,6 +8,7 @@ import { AuditChainV21765300000000 } from './1765300000000-audit-chain-v2';
 import { MailOutboxRetry1765310000000 } from './1765310000000-mail-outbox-retry';
 import { ListIndexes1765800000000 } from './1765800000000-list-indexes';
 import { SamplePartitions1765800001000 } from './1765800001000-sample-partitions';
+import { UploadProgress1765800002000 } from './1765800002000-upload-progress';
 
 // Every migration, in order. Add new ones at the end (file name: <timestamp>-<what>.ts).
 export const migrations = [
@@ -21,4 +22,5 @@ export const migrations = [
   MailOutboxRetry1765310000000,
   ListIndexes1765800000000,
   SamplePartitions1765800001000,
+  UploadProgress1765800002000,
 ];
