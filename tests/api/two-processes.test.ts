@@ -16,26 +16,31 @@ const children: ChildProcess[] = [];
 const ports: number[] = [];
 let lb: Awaited<ReturnType<typeof startHaproxy>>;
 
-async function startChild(name: string, port: number, publicUrl: string) {
+async function startChild(name: string, publicUrl: string): Promise<number> {
   const env = {
     DATABASE_URL: t.databaseUrl, SESSION_SECRET: 'two-process-session-secret-0123456789', PUBLIC_URL: publicUrl,
     IDP_URL: t.config.idpUrl, IDP_CERT_FILE: t.config.idpCertFile, SECRETS_DIR: t.config.secretsDir, LOG_LEVEL: 'silent', NODE_ENV: 'test', TRUST_PROXY: '1',
   };
   const child = spawn(process.execPath, ['--import', 'tsx', 'tests/helpers/upload-server.ts'], {
-    env: { ...process.env, CHRONOLEVEL_CHILD_ENV: JSON.stringify(env), CHRONOLEVEL_INSTANCE: name, CHRONOLEVEL_PORT: String(port) },
+    env: { ...process.env, CHRONOLEVEL_CHILD_ENV: JSON.stringify(env), CHRONOLEVEL_INSTANCE: name },
     stdio: ['ignore', 'pipe', 'inherit'],
   });
   children.push(child);
-  await new Promise<void>((resolve) => child.stdout!.on('data', (d: Buffer) => /LISTENING/.test(d.toString()) && resolve()));
+  // The child binds a free port itself and says which (no race with other processes for a port picked here).
+  return new Promise<number>((resolve, reject) => {
+    child.on('exit', (code) => reject(new Error(`HTTP process ${name} exited with ${code}`)));
+    child.stdout!.on('data', (d: Buffer) => {
+      const m = /LISTENING (\d+)/.exec(d.toString());
+      if (m) resolve(Number(m[1]));
+    });
+  });
 }
 
 beforeAll(async () => {
   t = await createTestApp();
-  ports.push(await freePort(), await freePort());
   const lbPort = await freePort();
   const publicUrl = `http://127.0.0.1:${lbPort}`;
-  await startChild('one', ports[0], publicUrl);
-  await startChild('two', ports[1], publicUrl);
+  ports.push(await startChild('one', publicUrl), await startChild('two', publicUrl));
   lb = await startHaproxy({ port: lbPort, backends: ports });
 });
 afterAll(async () => {

@@ -19,7 +19,7 @@ const server = http.createServer((req, res) => {
   if (instance) res.setHeader('x-chronolevel-instance', instance);
   app(req, res);
 });
-server.listen(Number(process.env.CHRONOLEVEL_PORT ?? 0), '127.0.0.1', () => {
+server.listen(0, '127.0.0.1', () => {
   const addr = server.address();
   process.stdout.write(`LISTENING ${typeof addr === 'object' && addr ? addr.port : 0}\n`);
 });
