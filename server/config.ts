@@ -23,6 +23,11 @@ const envSchema = z.object({
   TRUST_PROXY: z.enum(['0', '1']).default('0'),
   SIGNING_P12_FILE: z.string().optional(),
   SIGNING_P12_PASSPHRASE: z.string().optional(),
+  // Session lifetimes (OWASP ASVS 4.0.3 V3.3.2 level 2: 30 minutes idle, 12 hours absolute).
+  SESSION_IDLE_MINUTES: z.coerce.number().int().min(1).max(1440).default(30),
+  SESSION_ABSOLUTE_HOURS: z.coerce.number().int().min(1).max(168).default(12),
+  // The local identity provider and test mailbox are demo stand-ins; off loopback they start only with this set to 1.
+  DEV_SERVICES_OFF_LOOPBACK: z.enum(['0', '1']).default('0'),
 });
 
 export type AppConfig = {
@@ -44,6 +49,9 @@ export type AppConfig = {
   trustProxy: boolean;
   signingP12File?: string;
   signingP12Passphrase?: string;
+  sessionIdleMs: number;
+  sessionAbsoluteMs: number;
+  devServicesOffLoopback: boolean;
 };
 
 /** A secret kept in the git-ignored secrets folder, created on first use. */
@@ -76,5 +84,8 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): AppConfig {
     trustProxy: e.TRUST_PROXY === '1',
     signingP12File: e.SIGNING_P12_FILE,
     signingP12Passphrase: e.SIGNING_P12_PASSPHRASE,
+    sessionIdleMs: e.SESSION_IDLE_MINUTES * 60_000,
+    sessionAbsoluteMs: e.SESSION_ABSOLUTE_HOURS * 3_600_000,
+    devServicesOffLoopback: e.DEV_SERVICES_OFF_LOOPBACK === '1',
   };
 }
