@@ -4,7 +4,7 @@ import { recordAudit } from '../audit/audit.service';
 import type { Actor } from '../auth/actor';
 import { authorize } from '../auth/permissions';
 import { InstituteEntity } from '../db/entities/core.entities';
-import { Conflict, NotFound } from '../http/errors';
+import { Conflict, Invalid, NotFound } from '../http/errors';
 import { toInstituteDto } from '../users/users.service';
 
 export function createInstitutesService(dataSource: DataSource) {
@@ -32,6 +32,7 @@ export function createInstitutesService(dataSource: DataSource) {
         if (!row) throw new NotFound('Institute');
         const before = { name: row.name, city: row.city, kind: row.kind };
         const changes = Object.fromEntries(Object.entries(patch).filter(([, v]) => v !== undefined));
+        if (!Object.keys(changes).length) throw new Invalid('Nothing to change: send name, city or kind (the code cannot change).', [{ path: 'body', message: 'no editable field' }]);
         await repo.update({ id }, changes);
         await recordAudit(m, actor, { action: 'institute.updated', entityType: 'institute', entityId: id, instituteId: id, details: { before, after: changes } });
         return toInstituteDto(await repo.findOneByOrFail({ id }))!;
