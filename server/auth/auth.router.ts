@@ -39,6 +39,11 @@ export function boundRequestId(req: Request, secret: string): string | null {
   return expected.length === given.length && crypto.timingSafeEqual(expected, given) ? id : null;
 }
 
+const SIGN_IN_FAILED_PAGE = `<!doctype html><html lang="en"><head><meta charset="utf-8"><title>Sign-in failed — Chronolevel</title>
+<style>body{font-family:system-ui,sans-serif;background:#f6f2e9;color:#1d2b33;margin:0;padding:3rem 1rem}main{max-width:34rem;margin:auto;background:#fff;border:1px solid #ddd3bf;border-radius:10px;padding:1.5rem 2rem}h1{font-size:1.3rem;margin:0 0 .8rem}a{color:#2f5f73}</style>
+</head><body><main><h1>Sign-in failed.</h1><p>Chronolevel could not accept the answer from your institute's sign-in service.</p>
+<p><a href="/auth/saml/login">Try again</a> or <a href="/">return to the start page</a>. If it keeps failing, tell your administrator the time of this attempt.</p></main></body></html>`;
+
 /** Sign-in through the institute's identity provider (SAML 2.0, HTTP-Redirect out, HTTP-POST back) and sign-out. */
 export function createAuthRouter(strategy: SamlStrategy, ctx: { config: AppConfig; dataSource: DataSource }, spCertPem?: string) {
   const { config, dataSource } = ctx;
@@ -67,7 +72,14 @@ export function createAuthRouter(strategy: SamlStrategy, ctx: { config: AppConfi
     // Every refusal: a generic 401 for the browser, the reason in the security log, the pending request spent.
     const refuse = (e: SamlRefusal) => {
       req.log.warn({ securityEvent: 'saml.refused', reason: e.reason, detail: e.detail.slice(0, 300), ip: req.ip }, 'sign-in refused');
-      const done = () => next(new Unauthenticated('Sign-in failed.'));
+      const done = () => {
+        // A browser (the identity provider's auto-submitted form) gets a readable page; API clients problem+json.
+        if (req.accepts(['application/json', 'text/html']) === 'text/html') {
+          res.status(401).type('html').send(SIGN_IN_FAILED_PAGE);
+          return;
+        }
+        next(new Unauthenticated('Sign-in failed.'));
+      };
       if (bound) dataSource.query('DELETE FROM saml_request WHERE id = $1', [bound]).then(done, done);
       else done();
     };

@@ -55,7 +55,7 @@ function InstitutesPanel() {
   return (
     <Panel title="Institutes" actions={!adding && <Button variant="quiet" onClick={() => { create.reset(); setAdding(true); }}>Register an institute</Button>}>
       {adding && (
-        <div className="mb-4 rounded-md border border-paper-200 bg-paper-50 p-3">
+        <div className="mb-4 rounded-md border border-paper-200 bg-paper-50 p-3" role="region" aria-label="New institute">
           <h3 className="mb-2 text-sm font-semibold">New institute</h3>
           <InstituteForm initial={{ code: '', name: '', city: null, kind: 'laboratory' }} withCode submitLabel="Register" busy={create.isPending}
             error={create.error ? describeError(create.error) : null} onCancel={() => setAdding(false)}
@@ -68,7 +68,7 @@ function InstitutesPanel() {
           {institutes.data?.map((i) =>
             editing === i.id ? (
               <tr key={i.id} className="border-t border-paper-200">
-                <td colSpan={5} className="py-2">
+                <td colSpan={5} className="py-2" role="region" aria-label={`Editing ${i.code}`}>
                   <InstituteForm initial={{ code: i.code, name: i.name, city: i.city, kind: i.kind }} withCode={false} submitLabel="Save" busy={update.isPending}
                     error={update.error ? describeError(update.error) : null} onCancel={() => setEditing(null)}
                     onSubmit={(v) => update.mutate({ id: i.id, patch: { name: v.name, city: v.city, kind: v.kind } }, { onSuccess: () => setEditing(null) })} />
@@ -96,7 +96,7 @@ function AccountActions({ user, self }: { user: User; self: boolean }) {
   if (self) return <span className="text-xs text-ink-400">you</span>;
   if (!confirming) return <Button variant="quiet" onClick={() => setConfirming(true)}>Deactivate…</Button>;
   return (
-    <div className="max-w-xs rounded-md border border-disagree-100 bg-disagree-100/40 p-2 text-xs" role="group" aria-label={`Deactivate ${user.displayName}`}>
+    <div className="rounded-md border border-disagree-100 bg-disagree-100/40 p-2 text-xs" role="group" aria-label={`Deactivate ${user.displayName}`}>
       <p className="mb-2">Deactivate {user.displayName}? Sign-in is refused from now on; their open sessions end and all their API tokens are revoked at once.</p>
       <span className="flex gap-2">
         <Button variant="danger" disabled={setActive.isPending} onClick={() => setActive.mutate({ id: user.id, active: false }, { onSuccess: () => setConfirming(false) })}>Deactivate</Button>
@@ -111,7 +111,7 @@ function RoleSelect({ user, self }: { user: User; self: boolean }) {
   const change = useChangeRole();
   return (
     <div>
-      <select aria-label={`Role of ${user.displayName}`} className={`${inputClass} w-auto`} value={user.role} disabled={self || change.isPending || !!user.deactivatedAt}
+      <select aria-label={`Role of ${user.displayName}`} className={`${inputClass} w-52`} value={user.role} disabled={self || change.isPending || !!user.deactivatedAt}
         onChange={(e) => change.mutate({ id: user.id, role: e.target.value as Role })}>
         {roles.map((r) => <option key={r} value={r}>{roleLabels[r]}</option>)}
       </select>
@@ -124,22 +124,29 @@ const col = createColumnHelper<User>();
 
 function PeoplePanel() {
   const me = useMe();
-  const [state, setState] = useState<TableState>({ page: 1, pageSize: 20, sort: 'email', order: 'asc', q: '' });
+  const [state, setState] = useState<TableState>({ page: 1, pageSize: 20, sort: 'displayName', order: 'asc', q: '' });
   const users = useUsers(state);
   const columns = useMemo(() => [
-    col.accessor('displayName', { header: 'Name' }),
-    col.accessor('email', { header: 'E-mail' }),
+    col.accessor('displayName', {
+      header: 'Person',
+      cell: (c) => (
+        <span className="block min-w-[14rem]">
+          <span className="block font-medium">{c.getValue()}</span>
+          <span className="block text-xs text-ink-500">{c.row.original.email}</span>
+        </span>
+      ),
+    }),
     col.accessor('role', { header: 'Role', cell: (c) => <RoleSelect user={c.row.original} self={c.row.original.id === me.data?.id} /> }),
     col.accessor((u) => u.institute?.code ?? '—', { id: 'institute', header: 'Institute', enableSorting: false }),
-    col.accessor('lastSignInAt', { header: 'Last sign-in', cell: (c) => utcMinute(c.getValue()) }),
+    col.accessor('lastSignInAt', { header: 'Last sign-in', cell: (c) => <span className="whitespace-nowrap">{utcMinute(c.getValue())}</span> }),
     col.accessor('deactivatedAt', {
       header: 'Account', enableSorting: false,
-      cell: (c) => (c.getValue() ? <span className="font-medium text-disagree-600">deactivated {utcMinute(c.getValue()).slice(0, 10)}</span> : 'active'),
+      cell: (c) => (c.getValue() ? <span className="whitespace-nowrap font-medium text-disagree-600">deactivated {utcMinute(c.getValue()).slice(0, 10)}</span> : 'active'),
     }),
     col.display({
       id: 'actions', header: '',
       cell: (c) => (
-        <div className="flex flex-col items-start gap-1">
+        <div className="flex w-64 flex-col items-start gap-1">
           <AccountActions user={c.row.original} self={c.row.original.id === me.data?.id} />
           <Link className="text-xs" to={`/admin/access?userId=${c.row.original.id}`}>Sessions and tokens</Link>
         </div>
