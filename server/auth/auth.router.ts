@@ -104,11 +104,15 @@ export function createAuthRouter(strategy: SamlStrategy, ctx: { config: AppConfi
         if (err || !user) return refuse(err instanceof SamlRefusal ? err : new SamlRefusal(err ? reasonFromLibraryError(err) : 'saml-invalid', err?.message ?? 'no user'));
         req.login(user, (loginErr) => {
           if (loginErr) return next(loginErr);
+          // The absolute lifetime counts from here; stored before the browser is sent on, so its next request sees it.
           req.session.signedInAt = Date.now();
-          res.clearCookie(BINDING_COOKIE, cookieOptions);
-          req.log.info({ securityEvent: 'saml.accepted', userId: user.id }, 'signed in');
-          const relay = typeof req.body?.RelayState === 'string' && req.body.RelayState.startsWith('/') && !req.body.RelayState.startsWith('//') ? req.body.RelayState : '/';
-          res.redirect(303, relay);
+          req.session.save((saveErr) => {
+            if (saveErr) return next(saveErr);
+            res.clearCookie(BINDING_COOKIE, cookieOptions);
+            req.log.info({ securityEvent: 'saml.accepted', userId: user.id }, 'signed in');
+            const relay = typeof req.body?.RelayState === 'string' && req.body.RelayState.startsWith('/') && !req.body.RelayState.startsWith('//') ? req.body.RelayState : '/';
+            res.redirect(303, relay);
+          });
         });
       })(req, res, next);
     });

@@ -74,9 +74,10 @@ describe('administration pages', () => {
 
     const row = page.getByRole('row', { name: /Ines Varga/ });
     await row.getByRole('button', { name: 'Deactivate…' }).click();
-    await expect(row.getByRole('group', { name: 'Deactivate Ines Varga' }).textContent()).resolves.toContain('sessions end');
+    const confirm = page.getByRole('group', { name: 'Deactivate Ines Varga' });
+    await expect(confirm.textContent()).resolves.toContain('sessions end');
     await screenshot(page, 'admin-deactivate-confirm');
-    await row.getByRole('button', { name: 'Deactivate', exact: true }).click();
+    await confirm.getByRole('button', { name: 'Deactivate', exact: true }).click();
     await row.getByText(/^deactivated \d{4}-\d{2}-\d{2}$/).waitFor();
     expect((await user(INES)).deactivatedAt).toBeInstanceOf(Date);
     await screenshot(page, 'admin-people');

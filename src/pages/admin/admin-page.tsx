@@ -26,9 +26,9 @@ function InstituteForm({ initial, withCode, submitLabel, busy, error, onSubmit, 
   return (
     <form className="grid items-end gap-3 md:grid-cols-[8rem_1fr_12rem_12rem_auto]" onSubmit={(e) => { e.preventDefault(); onSubmit(v); }}>
       {withCode ? (
-        <Field label="Code" hint="A–Z, 0–9, hyphen"><input className={inputClass} value={v.code} onChange={(e) => set('code', e.target.value.toUpperCase())} required /></Field>
+        <Field label="Code"><input className={inputClass} value={v.code} onChange={(e) => set('code', e.target.value.toUpperCase())} required /></Field>
       ) : (
-        <Field label="Code" hint="fixed"><input className={`${inputClass} bg-paper-100`} value={v.code} readOnly aria-readonly /></Field>
+        <Field label="Code"><input className={`${inputClass} bg-paper-100`} value={v.code} readOnly aria-readonly /></Field>
       )}
       <Field label="Name"><input className={inputClass} value={v.name} onChange={(e) => set('name', e.target.value)} required /></Field>
       <Field label="City"><input className={inputClass} value={v.city ?? ''} onChange={(e) => set('city', e.target.value || null)} /></Field>
@@ -41,6 +41,9 @@ function InstituteForm({ initial, withCode, submitLabel, busy, error, onSubmit, 
         <Button type="submit" disabled={busy}>{submitLabel}</Button>
         {onCancel && <Button type="button" variant="quiet" onClick={onCancel}>Cancel</Button>}
       </span>
+      <p className="text-xs text-ink-500 md:col-span-5">
+        {withCode ? 'Code: upper-case letters, digits and hyphens, as the identity provider sends it; it cannot change later.' : 'The code cannot change: identity providers and certificates refer to it.'}
+      </p>
       {error && <p className="text-sm text-disagree-600 md:col-span-5" role="alert">{error}</p>}
     </form>
   );
@@ -87,20 +90,27 @@ function InstitutesPanel() {
   );
 }
 
-function AccountActions({ user, self }: { user: User; self: boolean }) {
+function AccountActions({ user, self, onDeactivate }: { user: User; self: boolean; onDeactivate: (u: User) => void }) {
   const setActive = useSetActive();
-  const [confirming, setConfirming] = useState(false);
   if (user.deactivatedAt) {
     return <Button variant="quiet" disabled={setActive.isPending} onClick={() => setActive.mutate({ id: user.id, active: true })}>Reactivate</Button>;
   }
   if (self) return <span className="text-xs text-ink-400">you</span>;
-  if (!confirming) return <Button variant="quiet" onClick={() => setConfirming(true)}>Deactivate…</Button>;
+  return <Button variant="quiet" onClick={() => onDeactivate(user)}>Deactivate…</Button>;
+}
+
+/** Asks before a deactivation and says what it does. */
+function ConfirmDeactivation({ user, onDone }: { user: User; onDone: () => void }) {
+  const setActive = useSetActive();
   return (
-    <div className="rounded-md border border-disagree-100 bg-disagree-100/40 p-2 text-xs" role="group" aria-label={`Deactivate ${user.displayName}`}>
-      <p className="mb-2">Deactivate {user.displayName}? Sign-in is refused from now on; their open sessions end and all their API tokens are revoked at once.</p>
+    <div className="mb-3 rounded-md border border-disagree-100 bg-disagree-100/40 p-3 text-sm" role="group" aria-label={`Deactivate ${user.displayName}`}>
+      <p className="mb-2">
+        Deactivate <strong>{user.displayName}</strong> ({user.email})? Sign-in is refused from now on; their open sessions end
+        and all their API tokens are revoked at once. Reactivating later restores sign-in, not the tokens.
+      </p>
       <span className="flex gap-2">
-        <Button variant="danger" disabled={setActive.isPending} onClick={() => setActive.mutate({ id: user.id, active: false }, { onSuccess: () => setConfirming(false) })}>Deactivate</Button>
-        <Button variant="quiet" onClick={() => setConfirming(false)}>Cancel</Button>
+        <Button variant="danger" disabled={setActive.isPending} onClick={() => setActive.mutate({ id: user.id, active: false }, { onSuccess: onDone })}>Deactivate</Button>
+        <Button variant="quiet" onClick={onDone}>Cancel</Button>
       </span>
       {setActive.error && <p className="mt-1 text-disagree-600" role="alert">{describeError(setActive.error)}</p>}
     </div>
@@ -110,8 +120,8 @@ function AccountActions({ user, self }: { user: User; self: boolean }) {
 function RoleSelect({ user, self }: { user: User; self: boolean }) {
   const change = useChangeRole();
   return (
-    <div>
-      <select aria-label={`Role of ${user.displayName}`} className={`${inputClass} w-52`} value={user.role} disabled={self || change.isPending || !!user.deactivatedAt}
+    <div className="w-48">
+      <select aria-label={`Role of ${user.displayName}`} className={inputClass} value={user.role} disabled={self || change.isPending || !!user.deactivatedAt}
         onChange={(e) => change.mutate({ id: user.id, role: e.target.value as Role })}>
         {roles.map((r) => <option key={r} value={r}>{roleLabels[r]}</option>)}
       </select>
@@ -126,11 +136,12 @@ function PeoplePanel() {
   const me = useMe();
   const [state, setState] = useState<TableState>({ page: 1, pageSize: 20, sort: 'displayName', order: 'asc', q: '' });
   const users = useUsers(state);
+  const [confirming, setConfirming] = useState<User | null>(null);
   const columns = useMemo(() => [
     col.accessor('displayName', {
       header: 'Person',
       cell: (c) => (
-        <span className="block min-w-[14rem]">
+        <span className="block min-w-[13rem]">
           <span className="block font-medium">{c.getValue()}</span>
           <span className="block text-xs text-ink-500">{c.row.original.email}</span>
         </span>
@@ -146,8 +157,8 @@ function PeoplePanel() {
     col.display({
       id: 'actions', header: '',
       cell: (c) => (
-        <div className="flex w-64 flex-col items-start gap-1">
-          <AccountActions user={c.row.original} self={c.row.original.id === me.data?.id} />
+        <div className="flex w-44 flex-col items-start gap-1">
+          <AccountActions user={c.row.original} self={c.row.original.id === me.data?.id} onDeactivate={setConfirming} />
           <Link className="text-xs" to={`/admin/access?userId=${c.row.original.id}`}>Sessions and tokens</Link>
         </div>
       ),
@@ -160,6 +171,7 @@ function PeoplePanel() {
         role set here is the one that counts: later sign-ins do not change it. Deactivating a person refuses their sign-in
         and ends their sessions and API tokens at once.
       </p>
+      {confirming && <ConfirmDeactivation key={confirming.id} user={confirming} onDone={() => setConfirming(null)} />}
       <DataTable columns={columns as never} rows={users.data?.items ?? []} total={users.data?.total ?? 0} state={state} onState={setState} loading={users.isFetching} filterLabel="Filter by name, e-mail or institute" />
     </Panel>
   );
