@@ -229,6 +229,13 @@ describe('hostile SAML corpus', () => {
     }
   });
 
+  it('accepts a correct response that starts with an XML declaration (not a processing instruction)', async () => {
+    const l = await startLogin();
+    const res = await post(l.agent, b64('<?xml version="1.0" encoding="UTF-8"?>\n' + good(l.requestId)));
+    expect(res.status).toBe(303);
+    expect((await l.agent.get('/api/v1/me')).body.email).toBe(person.email);
+  });
+
   it('refuses the replay of an accepted response from the same browser', async () => {
     const l = await startLogin();
     const xml = b64(good(l.requestId));
