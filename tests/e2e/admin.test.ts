@@ -128,6 +128,18 @@ describe('administration pages', () => {
     await page.getByTestId('tokens').getByText(/^revoked \d{4}-\d{2}-\d{2} \d{2}:\d{2} UTC$/).first().waitFor();
     await screenshot(page, 'admin-access-after');
 
+    // A token's lifetime is chosen when it is made.
+    await page.goto(`${srv.baseUrl}/account/tokens`);
+    await page.getByLabel('What is it for?').fill('nightly export');
+    await page.getByLabel('Valid for').selectOption('30');
+    await page.getByRole('button', { name: 'Create token' }).click();
+    await page.getByTestId('new-token').waitFor();
+    const expires = new Date(Date.now() + 30 * 86_400_000).toISOString().slice(0, 10);
+    await page.getByRole('row', { name: /nightly export/ }).getByRole('cell', { name: expires }).waitFor();
+    const [made]: { days: number }[] = await srv.ds.query("SELECT round(extract(epoch FROM expires_at - created_at) / 86400)::int AS days FROM api_token WHERE name = 'nightly export'");
+    expect(made.days).toBe(30);
+    await screenshot(page, 'account-tokens');
+
     await page.goto(`${srv.baseUrl}/`);
     await page.getByRole('link', { name: 'Open sessions and tokens' }).waitFor();
     await screenshot(page, 'home-admin-cards');
