@@ -72,6 +72,10 @@ server.on('message', (m) => {
   API documentation: ${m.url}/api/v1/openapi.json    Mail catcher: ${env.MAILBOX_URL ?? 'http://127.0.0.1:8181'}/messages
   Press Ctrl-C to stop everything started here.
 `);
+    if (env.CHRONOLEVEL_DEV_SERVICES !== '0') {
+      console.log('  Demo stand-ins: the local identity provider signs in anyone who clicks a name, and the mailbox shows every');
+      console.log('  message to anyone. They serve this machine only (loopback) and are not for production use.\n');
+    }
   }
 });
 let stopping = false;

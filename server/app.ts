@@ -11,6 +11,7 @@ import pg from 'pg';
 import { createAuthRouter } from './auth/auth.router';
 import { csrfGuard } from './auth/csrf';
 import { createSamlStrategy } from './auth/saml';
+import { absoluteSessionLifetime } from './auth/session-policy';
 import type { AppDeps } from './deps';
 import { NotFound } from './http/errors';
 import { buildOpenApi } from './http/openapi';
@@ -67,18 +68,18 @@ export function createApp(deps: AppDeps) {
         httpOnly: true,
         sameSite: 'lax',
         secure: config.publicUrl.startsWith('https://'),
-        maxAge: 12 * 60 * 60 * 1000,
+        maxAge: config.sessionIdleMs,
       },
     }),
   );
   app.locals.closeSessionPool = () => pool.end();
 
   const strategy = createSamlStrategy(config, dataSource);
-  passport.use('saml', strategy as unknown as passport.Strategy);
   passport.serializeUser((user, done) => done(null, (user as { id: string }).id));
   passport.deserializeUser((id: string, done) => done(null, { id }));
   app.use(passport.initialize());
   app.use(passport.session());
+  app.use(absoluteSessionLifetime(config.sessionAbsoluteMs));
 
   // Resolve the caller once: API token first (scripts), then the browser session.
   app.use(async (req: Request, _res: Response, next: NextFunction) => {
@@ -98,7 +99,7 @@ export function createApp(deps: AppDeps) {
   });
 
   app.use('/auth/logout', csrfGuard);
-  app.use(createAuthRouter(strategy));
+  app.use(createAuthRouter(strategy, { config, dataSource }));
 
   const api = express.Router();
   // The stability calculator takes up to ~2e6 numbers as JSON (~40 MB); every other route keeps the 20 MB limit.

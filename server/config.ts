@@ -26,6 +26,11 @@ const envSchema = z.object({
   MAIL_RETRY_BASE_MS: z.coerce.number().int().positive().default(30_000),
   MAIL_RETRY_CAP_MS: z.coerce.number().int().positive().default(60 * 60_000),
   MAIL_GIVE_UP_AFTER_MS: z.coerce.number().int().positive().default(3 * 24 * 60 * 60_000),
+  // Session lifetimes (OWASP ASVS 4.0.3 V3.3.2 level 2: 30 minutes idle, 12 hours absolute).
+  SESSION_IDLE_MINUTES: z.coerce.number().int().min(1).max(1440).default(30),
+  SESSION_ABSOLUTE_HOURS: z.coerce.number().int().min(1).max(168).default(12),
+  // The local identity provider and test mailbox are demo stand-ins; off loopback they start only with this set to 1.
+  DEV_SERVICES_OFF_LOOPBACK: z.enum(['0', '1']).default('0'),
 });
 
 export type AppConfig = {
@@ -49,6 +54,9 @@ export type AppConfig = {
   signingP12Passphrase?: string;
   /** mail outbox backoff (server/mail/outbox.ts) */
   mailRetry: { baseMs: number; capMs: number; giveUpAfterMs: number };
+  sessionIdleMs: number;
+  sessionAbsoluteMs: number;
+  devServicesOffLoopback: boolean;
 };
 
 /** A secret kept in the git-ignored secrets folder, created on first use. */
@@ -82,5 +90,8 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): AppConfig {
     signingP12File: e.SIGNING_P12_FILE,
     signingP12Passphrase: e.SIGNING_P12_PASSPHRASE,
     mailRetry: { baseMs: e.MAIL_RETRY_BASE_MS, capMs: e.MAIL_RETRY_CAP_MS, giveUpAfterMs: e.MAIL_GIVE_UP_AFTER_MS },
+    sessionIdleMs: e.SESSION_IDLE_MINUTES * 60_000,
+    sessionAbsoluteMs: e.SESSION_ABSOLUTE_HOURS * 3_600_000,
+    devServicesOffLoopback: e.DEV_SERVICES_OFF_LOOPBACK === '1',
   };
 }

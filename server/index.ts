@@ -5,6 +5,7 @@ import { loadConfig } from './config';
 import { openDatabase } from './db/data-source';
 import { startFakeIdp } from './dev/fake-idp';
 import { startFakeSmtp } from './dev/fake-smtp';
+import { assertDevServicesAllowed, DEMO_STAND_IN_NOTICE } from './dev/guard';
 import { createLogger } from './logger';
 import { createMailSender } from './mail/outbox';
 import { seedDemo } from '../seeds/demo';
@@ -21,12 +22,14 @@ const closers: (() => Promise<void> | void)[] = [];
 
 async function main() {
   if (withDevServices) {
+    assertDevServicesAllowed(config);
     const idp = await startFakeIdp({ port: new URL(config.idpUrl).port ? Number(new URL(config.idpUrl).port) : 8180, keysDir: path.dirname(config.idpCertFile) });
     closers.push(idp.close);
     const smtpPort = Number(new URL(config.smtpUrl).port || 2525);
     const smtp = await startFakeSmtp({ smtpPort, httpPort: Number(new URL(config.mailboxUrl).port || 8181) });
     closers.push(smtp.close);
     logger.info({ idp: idp.url, smtp: smtp.smtpUrl, mailbox: smtp.mailboxUrl }, 'local identity provider and mail catcher started');
+    logger.warn(DEMO_STAND_IN_NOTICE);
   }
   // Migrations as the owner role when MIGRATION_DATABASE_URL is given (`npm start` runs them in a process of their
   // own and never passes the owner's URL here); the application itself connects with DATABASE_URL.

@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { patchOf } from './http';
 
 export const roles = ['operator', 'coordinator', 'auditor', 'admin'] as const;
 export const roleSchema = z.enum(roles);
@@ -39,6 +40,8 @@ export const userSchema = z.object({
   institute: instituteSchema.nullable(),
   lastSignInAt: z.string().nullable(),
   createdAt: z.string(),
+  /** Set when an administrator deactivated the person (sign-in refused, sessions and tokens ended). */
+  deactivatedAt: z.string().nullable(),
 });
 export type User = z.infer<typeof userSchema>;
 
@@ -62,9 +65,16 @@ export const apiTokenSchema = z.object({
   createdAt: z.string(),
   lastUsedAt: z.string().nullable(),
   revokedAt: z.string().nullable(),
+  expiresAt: z.string(),
 });
 export type ApiToken = z.infer<typeof apiTokenSchema>;
-export const createApiTokenSchema = z.object({ name: z.string().trim().min(1).max(80) });
+/** API token lifetime in days: chosen at creation, 90 unless asked otherwise, at most a year. */
+export const DEFAULT_TOKEN_DAYS = 90;
+export const MAX_TOKEN_DAYS = 365;
+export const createApiTokenSchema = z.object({
+  name: z.string().trim().min(1).max(80),
+  expiresInDays: z.number().int().min(1).max(MAX_TOKEN_DAYS).default(DEFAULT_TOKEN_DAYS),
+});
 export const createdApiTokenSchema = z.object({ token: apiTokenSchema, secret: z.string() });
 
 export const auditEventSchema = z.object({
@@ -78,3 +88,26 @@ export const auditEventSchema = z.object({
   hash: z.string(),
 });
 export type AuditEvent = z.infer<typeof auditEventSchema>;
+
+// Administration of accounts, tokens and sessions.
+export const personRefSchema = z.object({ id: z.string().uuid(), email: z.string(), displayName: z.string() });
+export const adminApiTokenSchema = apiTokenSchema.extend({ owner: personRefSchema.nullable() });
+export type AdminApiToken = z.infer<typeof adminApiTokenSchema>;
+export const adminTokenQuerySchema = z.object({
+  page: z.coerce.number().int().min(1).default(1),
+  pageSize: z.coerce.number().int().min(1).max(500).default(25),
+  userId: z.string().uuid().optional(),
+  active: z.enum(['true', 'false']).optional().transform((v) => v === 'true'),
+});
+/** A browser session; `id` is the SHA-256 of the session id, so the cookie value itself is never shown. */
+export const sessionSchema = z.object({
+  id: z.string().regex(/^[0-9a-f]{64}$/),
+  person: personRefSchema,
+  signedInAt: z.string().nullable(),
+  expiresAt: z.string(),
+});
+export type SessionInfo = z.infer<typeof sessionSchema>;
+export const sessionIdParamsSchema = z.object({ id: z.string().regex(/^[0-9a-f]{64}$/) });
+/** The code is the institute's identity in assertions and certificates, so it is not editable. */
+export const updateInstituteSchema = patchOf(createInstituteSchema.omit({ code: true }));
+export type UpdateInstitute = z.infer<typeof updateInstituteSchema>;

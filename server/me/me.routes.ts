@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { apiTokenSchema, auditEventSchema, createApiTokenSchema, createdApiTokenSchema, createInstituteSchema, instituteSchema, meSchema, updateUserSchema, userSchema } from '../../shared/auth';
+import { adminApiTokenSchema, adminTokenQuerySchema, apiTokenSchema, auditEventSchema, createApiTokenSchema, createdApiTokenSchema, createInstituteSchema, instituteSchema, meSchema, sessionIdParamsSchema, sessionSchema, updateInstituteSchema, updateUserSchema, userSchema } from '../../shared/auth';
 import { idParamsSchema, pageOf, pageQuerySchema } from '../../shared/http';
 import { toAuditEventDto } from '../audit/audit.service';
 import { AuditEventEntity, InstituteEntity } from '../db/entities/core.entities';
@@ -7,6 +7,7 @@ import { route } from '../http/route';
 import { createInstitutesService } from '../institutes/institutes.service';
 import { createTokensService } from '../tokens/tokens.service';
 import { createUsersService, toInstituteDto } from '../users/users.service';
+import { createSessionsService } from '../users/sessions.service';
 import { authorize } from '../auth/permissions';
 import { Unavailable } from '../http/errors';
 import { csrfTokenFor } from '../auth/csrf';
@@ -52,7 +53,7 @@ export const foundationRoutes = [
   route({
     method: 'post', path: '/api/v1/me/tokens', summary: 'Create an API token (secret shown once)', tag: 'account', permission: 'tokens:own',
     body: createApiTokenSchema, response: createdApiTokenSchema, successStatus: 201,
-    handler: ({ actor, body, deps }) => createTokensService(deps.dataSource).createOwn(actor, body.name),
+    handler: ({ actor, body, deps }) => createTokensService(deps.dataSource).createOwn(actor, body.name, body.expiresInDays),
   }),
   route({
     method: 'delete', path: '/api/v1/me/tokens/:id', summary: 'Revoke one of my API tokens', tag: 'account', permission: 'tokens:own',
@@ -83,6 +84,48 @@ export const foundationRoutes = [
       const res = await fetch(`${deps.config.mailboxUrl}/messages`).catch(() => null);
       if (!res?.ok) throw new Unavailable('The local mail catcher is not reachable.');
       return ((await res.json()) as unknown[]).reverse();
+    },
+  }),
+  // Accounts, tokens and sessions (administrators).
+  route({
+    method: 'patch', path: '/api/v1/institutes/:id', summary: "Edit an institute's name, city or kind", tag: 'institutes', permission: 'institutes:write',
+    params: idParamsSchema, body: updateInstituteSchema, response: instituteSchema,
+    handler: ({ actor, params, body, deps }) => createInstitutesService(deps.dataSource).update(actor, params.id, body),
+  }),
+  route({
+    method: 'post', path: '/api/v1/users/:id/deactivate', summary: 'Deactivate a person: sign-in refused, sessions and tokens end', tag: 'users', permission: 'users:write',
+    params: idParamsSchema, response: userSchema,
+    handler: ({ actor, params, deps }) => createUsersService(deps.dataSource).setActive(actor, params.id, false),
+  }),
+  route({
+    method: 'post', path: '/api/v1/users/:id/reactivate', summary: 'Reactivate a person (old tokens stay revoked)', tag: 'users', permission: 'users:write',
+    params: idParamsSchema, response: userSchema,
+    handler: ({ actor, params, deps }) => createUsersService(deps.dataSource).setActive(actor, params.id, true),
+  }),
+  route({
+    method: 'get', path: '/api/v1/admin/tokens', summary: "Everyone's API tokens (newest first)", tag: 'admin', permission: 'users:read',
+    query: adminTokenQuerySchema, response: pageOf(adminApiTokenSchema),
+    handler: ({ actor, query, deps }) => createTokensService(deps.dataSource).listAll(actor, { ...query, order: 'desc' }),
+  }),
+  route({
+    method: 'delete', path: '/api/v1/admin/tokens/:id', summary: "Revoke anyone's API token", tag: 'admin', permission: 'users:write',
+    params: idParamsSchema,
+    handler: async ({ actor, params, deps }) => {
+      await createTokensService(deps.dataSource).revokeAny(actor, params.id);
+      return undefined;
+    },
+  }),
+  route({
+    method: 'get', path: '/api/v1/admin/sessions', summary: 'Open browser sessions of everyone', tag: 'admin', permission: 'users:read',
+    query: adminTokenQuerySchema.pick({ page: true, pageSize: true, userId: true }), response: pageOf(sessionSchema),
+    handler: ({ actor, query, deps }) => createSessionsService(deps.dataSource).list(actor, query),
+  }),
+  route({
+    method: 'delete', path: '/api/v1/admin/sessions/:id', summary: 'End a browser session', tag: 'admin', permission: 'users:write',
+    params: sessionIdParamsSchema,
+    handler: async ({ actor, params, deps }) => {
+      await createSessionsService(deps.dataSource).end(actor, params.id);
+      return undefined;
     },
   }),
 ];

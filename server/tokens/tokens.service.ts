@@ -1,13 +1,18 @@
 import crypto from 'node:crypto';
 import type { DataSource } from 'typeorm';
+import type { PageQuery } from '../../shared/http';
+import { DEFAULT_TOKEN_DAYS, MAX_TOKEN_DAYS } from '../../shared/auth';
 import { recordAudit } from '../audit/audit.service';
 import type { Actor } from '../auth/actor';
 import { authorize } from '../auth/permissions';
-import { ApiTokenEntity, UserEntity, type ApiTokenRow } from '../db/entities/core.entities';
-import { NotFound } from '../http/errors';
+import { ApiTokenEntity, UserEntity, type ApiTokenRow, type UserRow } from '../db/entities/core.entities';
+import { Invalid, NotFound } from '../http/errors';
 
-// Personal API tokens: the secret is shown once; only its SHA-256 is stored.
+// Personal API tokens: the secret is shown once; only its SHA-256 is stored. Every token expires (chosen at
+// creation, at most a year: OWASP ASVS 4.0.3 V3.5 token-based session management, common practice for the
+// length); a token of a deactivated person stops working at once.
 const TOKEN_PREFIX = 'clv_';
+const DAY_MS = 86_400_000;
 
 export const hashToken = (secret: string) => crypto.createHash('sha256').update(secret).digest('hex');
 
@@ -19,15 +24,21 @@ export function toTokenDto(t: ApiTokenRow) {
     createdAt: t.createdAt.toISOString(),
     lastUsedAt: t.lastUsedAt ? t.lastUsedAt.toISOString() : null,
     revokedAt: t.revokedAt ? t.revokedAt.toISOString() : null,
+    expiresAt: t.expiresAt.toISOString(),
   };
 }
 
-export async function issueToken(dataSource: DataSource, userId: string, name: string, actor: Actor | null) {
+export async function issueToken(dataSource: DataSource, userId: string, name: string, actor: Actor | null, expiresInDays: number = DEFAULT_TOKEN_DAYS) {
+  if (!Number.isInteger(expiresInDays) || expiresInDays < 1 || expiresInDays > MAX_TOKEN_DAYS) {
+    throw new Invalid(`A token lives 1 to ${MAX_TOKEN_DAYS} days.`, [{ path: 'body.expiresInDays', message: `1 to ${MAX_TOKEN_DAYS}` }]);
+  }
   const secret = TOKEN_PREFIX + crypto.randomBytes(24).toString('base64url');
   return dataSource.transaction(async (m) => {
     const repo = m.getRepository(ApiTokenEntity);
-    const row = await repo.save(repo.create({ userId, name, prefix: secret.slice(0, 10), tokenHash: hashToken(secret) }));
-    await recordAudit(m, actor, { action: 'token.created', entityType: 'api-token', entityId: row.id, details: { userId, name } });
+    const createdAt = new Date();
+    const expiresAt = new Date(createdAt.getTime() + expiresInDays * DAY_MS);
+    const row = await repo.save(repo.create({ userId, name, prefix: secret.slice(0, 10), tokenHash: hashToken(secret), createdAt, expiresAt }));
+    await recordAudit(m, actor, { action: 'token.created', entityType: 'api-token', entityId: row.id, details: { userId, name, expiresAt: expiresAt.toISOString() } });
     return { token: toTokenDto(row), secret };
   });
 }
@@ -36,35 +47,55 @@ export async function actorFromToken(dataSource: DataSource, secret: string): Pr
   if (!secret.startsWith(TOKEN_PREFIX)) return null;
   const repo = dataSource.getRepository(ApiTokenEntity);
   const token = await repo.findOneBy({ tokenHash: hashToken(secret) });
-  if (!token || token.revokedAt) return null;
+  if (!token || token.revokedAt || token.expiresAt.getTime() <= Date.now()) return null;
   const user = await dataSource.getRepository(UserEntity).findOneBy({ id: token.userId });
-  if (!user) return null;
+  if (!user || user.deactivatedAt) return null;
   if (!token.lastUsedAt || Date.now() - token.lastUsedAt.getTime() > 60_000) {
     await repo.update({ id: token.id }, { lastUsedAt: new Date() });
   }
   return { userId: user.id, email: user.email, displayName: user.displayName, role: user.role, instituteId: user.instituteId, via: 'token' };
 }
 
+const ownerOf = (u: UserRow | undefined) => (u ? { id: u.id, email: u.email, displayName: u.displayName } : null);
+
 export function createTokensService(dataSource: DataSource) {
+  async function revoke(actor: Actor, id: string, where: { id: string; userId?: string }) {
+    await dataSource.transaction(async (m) => {
+      const repo = m.getRepository(ApiTokenEntity);
+      const row = await repo.findOneBy(where);
+      if (!row) throw new NotFound('API token');
+      if (!row.revokedAt) await repo.update({ id }, { revokedAt: new Date() });
+      await recordAudit(m, actor, { action: 'token.revoked', entityType: 'api-token', entityId: id, details: { userId: row.userId } });
+    });
+  }
   return {
     async listOwn(actor: Actor) {
       authorize(actor, 'tokens:own');
       const rows = await dataSource.getRepository(ApiTokenEntity).find({ where: { userId: actor.userId }, order: { createdAt: 'DESC' } });
       return rows.map(toTokenDto);
     },
-    async createOwn(actor: Actor, name: string) {
+    async createOwn(actor: Actor, name: string, expiresInDays?: number) {
       authorize(actor, 'tokens:own');
-      return issueToken(dataSource, actor.userId, name, actor);
+      return issueToken(dataSource, actor.userId, name, actor, expiresInDays);
     },
     async revokeOwn(actor: Actor, id: string) {
       authorize(actor, 'tokens:own');
-      await dataSource.transaction(async (m) => {
-        const repo = m.getRepository(ApiTokenEntity);
-        const row = await repo.findOneBy({ id, userId: actor.userId });
-        if (!row) throw new NotFound('API token');
-        if (!row.revokedAt) await repo.update({ id }, { revokedAt: new Date() });
-        await recordAudit(m, actor, { action: 'token.revoked', entityType: 'api-token', entityId: id });
-      });
+      await revoke(actor, id, { id, userId: actor.userId });
+    },
+    /** Every person's tokens (administrators), newest first, optionally of one person; active ones only if asked. */
+    async listAll(actor: Actor, q: PageQuery & { userId?: string; active?: boolean }) {
+      authorize(actor, 'users:read');
+      const qb = dataSource.getRepository(ApiTokenEntity).createQueryBuilder('t').orderBy('t.created_at', 'DESC');
+      if (q.userId) qb.andWhere('t.user_id = :u', { u: q.userId });
+      if (q.active) qb.andWhere('t.revoked_at IS NULL AND t.expires_at > now()');
+      const [rows, total] = await qb.skip((q.page - 1) * q.pageSize).take(q.pageSize).getManyAndCount();
+      const users = rows.length ? await dataSource.getRepository(UserEntity).createQueryBuilder('u').where('u.id IN (:...ids)', { ids: [...new Set(rows.map((r) => r.userId))] }).getMany() : [];
+      const byId = new Map(users.map((u) => [u.id, u]));
+      return { items: rows.map((r) => ({ ...toTokenDto(r), owner: ownerOf(byId.get(r.userId)) })), total, page: q.page, pageSize: q.pageSize };
+    },
+    async revokeAny(actor: Actor, id: string) {
+      authorize(actor, 'users:write');
+      await revoke(actor, id, { id });
     },
   };
 }

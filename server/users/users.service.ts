@@ -5,7 +5,7 @@ import { recordAudit } from '../audit/audit.service';
 import type { Actor } from '../auth/actor';
 import { authorize } from '../auth/permissions';
 import { InstituteEntity, UserEntity, type InstituteRow, type UserRow } from '../db/entities/core.entities';
-import { Invalid, NotFound } from '../http/errors';
+import { Conflict, Invalid, NotFound } from '../http/errors';
 
 export function toInstituteDto(i: InstituteRow | null | undefined) {
   return i ? { id: i.id, code: i.code, name: i.name, city: i.city, kind: i.kind } : null;
@@ -20,39 +20,48 @@ export function toUserDto(u: UserRow) {
     institute: toInstituteDto(u.institute),
     lastSignInAt: u.lastSignInAt ? u.lastSignInAt.toISOString() : null,
     createdAt: u.createdAt.toISOString(),
+    deactivatedAt: u.deactivatedAt ? u.deactivatedAt.toISOString() : null,
   };
 }
 
-/** Just-in-time provisioning: the identity provider is authoritative for role and institute. */
+/**
+ * Just-in-time provisioning. Who is authoritative (docs/decisions/0004-role-authority.md): the identity
+ * provider for identity (e-mail, display name) and for the role and institute of a person signing in for the
+ * first time; from then on the local administrator. A later assertion with another role or institute changes
+ * nothing here (the caller logs it), so a role set in the administration page stays.
+ */
 export async function upsertUserFromSignIn(
   dataSource: DataSource,
   input: { email: string; displayName: string; role: Role; instituteCode: string | null },
-): Promise<UserRow> {
+): Promise<{ user: UserRow; assertedDiffers: boolean }> {
   return dataSource.transaction(async (m) => {
     const institute = input.instituteCode
       ? await m.getRepository(InstituteEntity).findOneBy({ code: input.instituteCode })
       : null;
-    if (input.instituteCode && !institute) throw new Error(`unknown institute '${input.instituteCode}' in the assertion`);
-    if (input.role === 'operator' && !institute) throw new Error('lab staff must belong to an institute');
     const repo = m.getRepository(UserEntity);
     let user = await repo.findOneBy({ email: input.email });
     const created = !user;
-    user = repo.merge(user ?? repo.create({ email: input.email }), {
-      displayName: input.displayName,
-      role: input.role,
-      instituteId: institute?.id ?? null,
-      lastSignInAt: new Date(),
-    });
+    if (!user) {
+      if (input.instituteCode && !institute) throw new Error(`unknown institute '${input.instituteCode}' in the assertion`);
+      if (input.role === 'operator' && !institute) throw new Error('lab staff must belong to an institute');
+      user = repo.create({ email: input.email, role: input.role, instituteId: institute?.id ?? null });
+    }
+    const assertedDiffers = !created && (user.role !== input.role || user.instituteId !== (institute?.id ?? null));
+    user.displayName = input.displayName;
+    user.lastSignInAt = new Date();
     user = await repo.save(user);
     const actor: Actor = { userId: user.id, email: user.email, displayName: user.displayName, role: user.role, instituteId: user.instituteId, via: 'session' };
-    await recordAudit(m, actor, { action: created ? 'user.provisioned' : 'user.signed-in', entityType: 'user', entityId: user.id, instituteId: user.instituteId });
-    return user;
+    await recordAudit(m, actor, {
+      action: created ? 'user.provisioned' : 'user.signed-in', entityType: 'user', entityId: user.id, instituteId: user.instituteId,
+      ...(assertedDiffers ? { details: { assertedRole: input.role, assertedInstitute: input.instituteCode, keptRole: user.role } } : {}),
+    });
+    return { user, assertedDiffers };
   });
 }
 
 export async function findActorByUserId(dataSource: DataSource, userId: string): Promise<Actor | null> {
   const u = await dataSource.getRepository(UserEntity).findOneBy({ id: userId });
-  return u ? { userId: u.id, email: u.email, displayName: u.displayName, role: u.role, instituteId: u.instituteId, via: 'session' } : null;
+  return u && !u.deactivatedAt ? { userId: u.id, email: u.email, displayName: u.displayName, role: u.role, instituteId: u.instituteId, via: 'session' } : null;
 }
 
 const userSort: Record<string, string> = { email: 'u.email', displayName: 'u.display_name', role: 'u.role', lastSignInAt: 'u.last_sign_in_at' };
@@ -84,6 +93,27 @@ export function createUsersService(dataSource: DataSource) {
         }
         await repo.save(user);
         await recordAudit(m, actor, { action: 'user.updated', entityType: 'user', entityId: id, details: { before, after: patch } });
+        const fresh = await repo.findOne({ where: { id }, relations: { institute: true } });
+        return toUserDto(fresh!);
+      });
+    },
+    /** Deactivation ends everything at once: sign-in refused, every session deleted, every token revoked. */
+    async setActive(actor: Actor, id: string, active: boolean) {
+      authorize(actor, 'users:write');
+      if (!active && id === actor.userId) throw new Conflict('You cannot deactivate yourself; ask another administrator.');
+      return dataSource.transaction(async (m) => {
+        const repo = m.getRepository(UserEntity);
+        const user = await repo.findOne({ where: { id }, relations: { institute: true } });
+        if (!user) throw new NotFound('User');
+        if (!active) {
+          if (!user.deactivatedAt) await repo.update({ id }, { deactivatedAt: new Date() });
+          const sessions: unknown[] = await m.query(`DELETE FROM "session" WHERE sess -> 'passport' ->> 'user' = $1 RETURNING sid`, [id]);
+          const tokens: unknown[] = await m.query('UPDATE api_token SET revoked_at = now() WHERE user_id = $1 AND revoked_at IS NULL RETURNING id', [id]);
+          await recordAudit(m, actor, { action: 'user.deactivated', entityType: 'user', entityId: id, instituteId: user.instituteId, details: { sessionsEnded: sessions.length, tokensRevoked: tokens.length } });
+        } else {
+          if (user.deactivatedAt) await repo.update({ id }, { deactivatedAt: null });
+          await recordAudit(m, actor, { action: 'user.reactivated', entityType: 'user', entityId: id, instituteId: user.instituteId });
+        }
         const fresh = await repo.findOne({ where: { id }, relations: { institute: true } });
         return toUserDto(fresh!);
       });

@@ -1,5 +1,5 @@
 import { queryOptions, useMutation, useQuery, useQueryClient } from '@tanstack/react-query';
-import type { ApiToken, Institute, Me, User } from '../../shared/auth';
+import type { AdminApiToken, ApiToken, CreateInstitute, Institute, Me, Role, SessionInfo, UpdateInstitute, User } from '../../shared/auth';
 import type { Page } from '../../shared/http';
 import { api, ApiError, setCsrfToken } from '../lib/api-client';
 
@@ -13,6 +13,8 @@ export const adminKeys = {
   institutes: () => [...adminKeys.all, 'institutes'] as const,
   users: (params: object) => [...adminKeys.all, 'users', params] as const,
   mailbox: () => [...adminKeys.all, 'mailbox'] as const,
+  tokens: (params: object) => [...adminKeys.all, 'tokens', params] as const,
+  sessions: (params: object) => [...adminKeys.all, 'sessions', params] as const,
 };
 
 export const meQuery = queryOptions({
@@ -47,7 +49,7 @@ export const useTokens = () => useQuery({ queryKey: accountKeys.tokens(), queryF
 export function useCreateToken() {
   const qc = useQueryClient();
   return useMutation({
-    mutationFn: (name: string) => api<{ token: ApiToken; secret: string }>('/api/v1/me/tokens', { body: { name } }),
+    mutationFn: (input: { name: string; expiresInDays: number }) => api<{ token: ApiToken; secret: string }>('/api/v1/me/tokens', { body: input }),
     onSuccess: () => qc.invalidateQueries({ queryKey: accountKeys.tokens() }),
   });
 }
@@ -72,3 +74,23 @@ export const useMailbox = () =>
     queryFn: () => api<{ id: number; receivedAt: string; from: string; to: string[]; subject: string; text: string }[]>('/api/v1/dev/mailbox'),
     refetchInterval: 5000,
   });
+
+// Administration: institutes, people, everyone's sessions and tokens.
+const query = (params: Record<string, string | number | boolean | undefined>) =>
+  new URLSearchParams(Object.entries(params).filter(([, v]) => v !== undefined && v !== '').map(([k, v]) => [k, String(v)])).toString();
+
+function useAdminMutation<A>(fn: (a: A) => Promise<unknown>) {
+  const qc = useQueryClient();
+  return useMutation({ mutationFn: fn, onSuccess: () => qc.invalidateQueries({ queryKey: adminKeys.all }) });
+}
+export const useCreateInstitute = () => useAdminMutation((body: CreateInstitute) => api<Institute>('/api/v1/institutes', { body }));
+export const useUpdateInstitute = () => useAdminMutation(({ id, patch }: { id: string; patch: UpdateInstitute }) => api<Institute>(`/api/v1/institutes/${id}`, { method: 'PATCH', body: patch }));
+export const useChangeRole = () => useAdminMutation(({ id, role }: { id: string; role: Role }) => api<User>(`/api/v1/users/${id}`, { method: 'PATCH', body: { role } }));
+export const useSetActive = () => useAdminMutation(({ id, active }: { id: string; active: boolean }) => api<User>(`/api/v1/users/${id}/${active ? 'reactivate' : 'deactivate'}`, { method: 'POST' }));
+
+export const useAllTokens = (params: { page: number; pageSize: number; userId?: string; active?: boolean }) =>
+  useQuery({ queryKey: adminKeys.tokens(params), queryFn: () => api<Page<AdminApiToken>>(`/api/v1/admin/tokens?${query(params)}`), placeholderData: (prev) => prev });
+export const useAllSessions = (params: { page: number; pageSize: number; userId?: string }) =>
+  useQuery({ queryKey: adminKeys.sessions(params), queryFn: () => api<Page<SessionInfo>>(`/api/v1/admin/sessions?${query(params)}`), placeholderData: (prev) => prev });
+export const useRevokeAnyToken = () => useAdminMutation((id: string) => api<void>(`/api/v1/admin/tokens/${id}`, { method: 'DELETE' }));
+export const useEndSession = () => useAdminMutation((id: string) => api<void>(`/api/v1/admin/sessions/${id}`, { method: 'DELETE' }));

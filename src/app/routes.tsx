@@ -2,6 +2,7 @@ import type { RouteObject } from 'react-router';
 import { TokensPage } from '../pages/account/tokens-page';
 import { AdminPage } from '../pages/admin/admin-page';
 import { MailboxPage } from '../pages/admin/mailbox-page';
+import { AccessPage } from '../pages/admin/access-page';
 import { HomePage } from '../pages/home-page';
 import { CalculatorPage } from '../pages/calculator/calculator-page';
 import { ResultsPage } from '../pages/results/results-page';
@@ -31,6 +32,7 @@ export const featureRoutes: RouteObject[] = [
   { index: true, element: <HomePage /> },
   { path: 'admin', element: <AdminPage /> },
   { path: 'admin/mailbox', element: <MailboxPage /> },
+  { path: 'admin/access', element: <AccessPage /> },
   { path: 'account/tokens', element: <TokensPage /> },
   { path: 'certificates', element: <CertificatesPage /> },
   { path: 'certificates/:number', element: <CertificatePage /> },

@@ -1,4 +1,5 @@
 import type { Server } from 'node:http';
+import pino from 'pino';
 import { chromium, type Browser, type Page } from 'playwright-core';
 // @ts-expect-error plain ESM helper shared with `npm start`
 import { freePort } from '../../scripts/lib/postgres.mjs';
@@ -17,7 +18,9 @@ export type E2eServer = TestApp & { baseUrl: string; server: Server; stop: () =>
 export async function startE2eServer(): Promise<E2eServer> {
   const port: number = await freePort();
   const baseUrl = `http://127.0.0.1:${port}`;
-  const t = await createTestApp({ env: { PUBLIC_URL: baseUrl, PORT: String(port) } });
+  // E2E_LOG=1 shows the server's log (security events included) on stderr while a browser test runs.
+  const logger = process.env.E2E_LOG === '1' ? pino({ level: 'info' }, pino.destination(2)) : undefined;
+  const t = await createTestApp({ env: { PUBLIC_URL: baseUrl, PORT: String(port) }, logger });
   t.deps.mail.start(500);
   const server: Server = await new Promise((resolve) => {
     const s = t.app.listen(port, '127.0.0.1', () => resolve(s));

@@ -27,15 +27,23 @@ export type TestApp = {
 };
 
 /** A fresh database cloned from the migrated template, with the demo people (and feature seeds when asked). */
-export async function createTestApp(opts: { seed?: boolean; env?: Record<string, string> } = {}): Promise<TestApp> {
+export async function createTestApp(
+  opts: { seed?: boolean; env?: Record<string, string>; logger?: pino.Logger; /** reuse this database (an app restart) instead of a fresh clone */ databaseUrl?: string } = {},
+): Promise<TestApp> {
   const adminUrl = inject('pgAdminUrl');
-  const name = `t_${crypto.randomBytes(6).toString('hex')}`;
-  const admin = await openDatabase(adminUrl, { migrate: false });
-  await admin.query(`CREATE DATABASE ${name} OWNER ${OWNER_ROLE} TEMPLATE ${inject('templateDb')}`);
-  await admin.destroy();
-  // The app under test connects as the restricted application role, never as the superuser (see roles.ts).
-  const ownerUrl = urlAsRole(adminUrl.replace(/\/[^/]*$/, `/${name}`), OWNER_ROLE) as string;
-  const databaseUrl = urlAsRole(ownerUrl, APP_ROLE) as string;
+  let databaseUrl = opts.databaseUrl;
+  let ownerUrl: string;
+  if (!databaseUrl) {
+    const name = `t_${crypto.randomBytes(6).toString('hex')}`;
+    const admin = await openDatabase(adminUrl, { migrate: false });
+    await admin.query(`CREATE DATABASE ${name} OWNER ${OWNER_ROLE} TEMPLATE ${inject('templateDb')}`);
+    await admin.destroy();
+    // The app under test connects as the restricted application role, never as the superuser (see roles.ts).
+    ownerUrl = urlAsRole(adminUrl.replace(/\/[^/]*$/, `/${name}`), OWNER_ROLE) as string;
+    databaseUrl = urlAsRole(ownerUrl, APP_ROLE) as string;
+  } else {
+    ownerUrl = urlAsRole(databaseUrl, OWNER_ROLE) as string;
+  }
   const config = loadConfig({
     NODE_ENV: 'test',
     DATABASE_URL: databaseUrl,
@@ -50,8 +58,8 @@ export async function createTestApp(opts: { seed?: boolean; env?: Record<string,
     ...opts.env,
   });
   const ds = await openDatabase(databaseUrl, { migrate: false });
-  if (opts.seed !== false) await seedDemo(ds);
-  const logger = pino({ level: 'silent' });
+  if (opts.seed !== false && !opts.databaseUrl) await seedDemo(ds);
+  const logger = opts.logger ?? pino({ level: 'silent' });
   const mail = createMailSender({ dataSource: ds, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
   const deps: AppDeps = { config, dataSource: ds, logger, mail };
   const app = createApp(deps);

@@ -33,6 +33,8 @@ export interface UserRow {
   institute?: InstituteRow | null;
   createdAt: Date;
   lastSignInAt: Date | null;
+  /** Set by an administrator: sign-in refused, sessions and tokens ended. */
+  deactivatedAt: Date | null;
 }
 export const UserEntity = new EntitySchema<UserRow>({
   name: 'User',
@@ -45,6 +47,7 @@ export const UserEntity = new EntitySchema<UserRow>({
     instituteId: { name: 'institute_id', type: 'uuid', nullable: true },
     createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
     lastSignInAt: { name: 'last_sign_in_at', type: 'timestamptz', nullable: true },
+    deactivatedAt: { name: 'deactivated_at', type: 'timestamptz', nullable: true },
   },
   relations: {
     institute: { type: 'many-to-one', target: 'Institute', joinColumn: { name: 'institute_id' }, nullable: true },
@@ -60,6 +63,7 @@ export interface ApiTokenRow {
   createdAt: Date;
   lastUsedAt: Date | null;
   revokedAt: Date | null;
+  expiresAt: Date;
 }
 export const ApiTokenEntity = new EntitySchema<ApiTokenRow>({
   name: 'ApiToken',
@@ -73,6 +77,7 @@ export const ApiTokenEntity = new EntitySchema<ApiTokenRow>({
     createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
     lastUsedAt: { name: 'last_used_at', type: 'timestamptz', nullable: true },
     revokedAt: { name: 'revoked_at', type: 'timestamptz', nullable: true },
+    expiresAt: { name: 'expires_at', type: 'timestamptz' },
   },
 });
 

@@ -4,6 +4,7 @@ import { RatioSeries1764670000000 } from './1764670000000-ratio-series';
 import { Results1764680000000 } from './1764680000000-results';
 import { Network1764690000000 } from './1764690000000-network';
 import { Certificates1764700000000 } from './1764700000000-certificates';
+import { SessionsAccounts1765100000000 } from './1765100000000-sessions-accounts';
 import { AuditChainV21765300000000 } from './1765300000000-audit-chain-v2';
 import { MailOutboxRetry1765310000000 } from './1765310000000-mail-outbox-retry';
 import { ListIndexes1765800000000 } from './1765800000000-list-indexes';
@@ -18,6 +19,7 @@ export const migrations = [
   Results1764680000000,
   Network1764690000000,
   Certificates1764700000000,
+  SessionsAccounts1765100000000,
   AuditChainV21765300000000,
   MailOutboxRetry1765310000000,
   ListIndexes1765800000000,
