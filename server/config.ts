@@ -23,6 +23,10 @@ const envSchema = z.object({
   TRUST_PROXY: z.enum(['0', '1']).default('0'),
   SIGNING_P12_FILE: z.string().optional(),
   SIGNING_P12_PASSPHRASE: z.string().optional(),
+  /** RFC 3161 time-stamping authority; defaults to the local stand-in that `npm start` runs. */
+  TSA_URL: z.string().url().default('http://127.0.0.1:8182'),
+  /** PEM file with the root certificate(s) of the time-stamping authority, trusted when verifying. */
+  TSA_ROOT_CERT_FILE: z.string().optional(),
 });
 
 export type AppConfig = {
@@ -44,6 +48,8 @@ export type AppConfig = {
   trustProxy: boolean;
   signingP12File?: string;
   signingP12Passphrase?: string;
+  tsaUrl: string;
+  tsaRootCertFile: string;
 };
 
 /** A secret kept in the git-ignored secrets folder, created on first use. */
@@ -76,5 +82,7 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): AppConfig {
     trustProxy: e.TRUST_PROXY === '1',
     signingP12File: e.SIGNING_P12_FILE,
     signingP12Passphrase: e.SIGNING_P12_PASSPHRASE,
+    tsaUrl: e.TSA_URL.replace(/\/$/, ''),
+    tsaRootCertFile: e.TSA_ROOT_CERT_FILE ?? path.join(secretsDir, 'tsa', 'tsa-root.pem'),
   };
 }

@@ -5,13 +5,14 @@ import { loadConfig } from './config';
 import { openDatabase } from './db/data-source';
 import { startFakeIdp } from './dev/fake-idp';
 import { startFakeSmtp } from './dev/fake-smtp';
+import { startFakeTsa } from './dev/fake-tsa';
 import { createLogger } from './logger';
 import { createMailSender } from './mail/outbox';
 import { seedDemo } from '../seeds/demo';
 import { startWorker } from './jobs/worker';
 import { stopQueues } from './jobs/queue';
 
-// The server process: configuration, local stand-ins (identity provider, mail catcher), database, HTTP.
+// The server process: configuration, local stand-ins (identity provider, mail catcher, time-stamping authority), database, HTTP.
 const withDevServices = process.env.CHRONOLEVEL_DEV_SERVICES !== '0';
 const config = loadConfig();
 const logger = createLogger(config.logLevel);
@@ -25,6 +26,12 @@ async function main() {
     const smtp = await startFakeSmtp({ smtpPort, httpPort: Number(new URL(config.mailboxUrl).port || 8181) });
     closers.push(smtp.close);
     logger.info({ idp: idp.url, smtp: smtp.smtpUrl, mailbox: smtp.mailboxUrl }, 'local identity provider and mail catcher started');
+    if (!process.env.TSA_URL) {
+      // The local time-stamping authority, unless TSA_URL names a real one.
+      const tsa = await startFakeTsa({ port: Number(new URL(config.tsaUrl).port || 8182), keysDir: path.dirname(config.tsaRootCertFile) });
+      closers.push(tsa.close);
+      logger.info({ tsa: tsa.url }, 'local time-stamping authority started');
+    }
   }
   const dataSource = await openDatabase(config.databaseUrl);
   closers.push(() => dataSource.destroy());
