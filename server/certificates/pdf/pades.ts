@@ -138,6 +138,11 @@ export async function signPades(pdf: Buffer, material: PadesMaterial, options: P
   const tsaCertificates = certificatesOfToken(signer.token!).map(certificateDer);
   const { certificates, crls } = await material.validationData(tsaCertificates);
   const unique = [...new Map(certificates.map((c) => [c.toString('base64'), c])).values()];
-  const withDss = appendDssAndTimeStampPlaceholder(signed, unique, crls, new Date());
-  return new SignPdf().sign(withDss, new DocumentTimeStampSigner(material.tsaUrl));
+  return addLongTermValidation(signed, material.tsaUrl, unique, crls);
+}
+
+/** B-LT and B-LTA: appends the DSS with `certificates` and `crls`, then the document time-stamp from `tsaUrl`. */
+export async function addLongTermValidation(signed: Buffer, tsaUrl: string, certificates: Buffer[], crls: Buffer[]): Promise<Buffer> {
+  const withDss = appendDssAndTimeStampPlaceholder(signed, certificates, crls, new Date());
+  return new SignPdf().sign(withDss, new DocumentTimeStampSigner(tsaUrl));
 }
