@@ -30,10 +30,10 @@ export async function withdrawSigningKey(manager: EntityManager, config: AppConf
   );
   const crl = await publishCrl(manager, config, subject, now);
   const affected: { number: string }[] = await manager.query(
-    `UPDATE certificate SET signing_key_revoked_at = $2 WHERE signing_key_serial = $1 AND signing_key_revoked_at IS NULL RETURNING number`,
-    [key.serialHex, now],
+    `SELECT number FROM certificate WHERE signing_key_serial = $1 AND signing_key_revoked_at IS NULL ORDER BY number FOR UPDATE`, [key.serialHex],
   );
-  const numbers = affected.map((r) => r.number).sort();
+  await manager.query(`UPDATE certificate SET signing_key_revoked_at = $2 WHERE signing_key_serial = $1 AND signing_key_revoked_at IS NULL`, [key.serialHex, now]);
+  const numbers = affected.map((r) => r.number);
   await recordAudit(manager, actor, {
     action: 'signing-key.revoked', entityType: 'signing-key', entityId: key.serialHex,
     details: { reason: input.reason, compromisedSince: compromisedSince.toISOString(), crlNumber: crl?.number ?? null, affectedCertificates: numbers },

@@ -28,11 +28,26 @@ export class SigningChain1765600000000 implements MigrationInterface {
         ADD COLUMN signing_key_serial text,
         ADD COLUMN signing_key_revoked_at timestamptz;
       CREATE INDEX certificate_signing_key_serial_idx ON certificate (signing_key_serial);
+
+      -- The key that signed a certificate is recorded once, and a withdrawal mark is never lifted.
+      CREATE FUNCTION certificate_signing_key_guard() RETURNS trigger LANGUAGE plpgsql AS $$
+      BEGIN
+        IF OLD.signing_key_serial IS NOT NULL AND NEW.signing_key_serial IS DISTINCT FROM OLD.signing_key_serial THEN
+          RAISE EXCEPTION 'the signing key of an issued certificate cannot be changed' USING ERRCODE = 'insufficient_privilege';
+        END IF;
+        IF OLD.signing_key_revoked_at IS NOT NULL AND NEW.signing_key_revoked_at IS DISTINCT FROM OLD.signing_key_revoked_at THEN
+          RAISE EXCEPTION 'a withdrawn signing key stays withdrawn' USING ERRCODE = 'insufficient_privilege';
+        END IF;
+        RETURN NEW;
+      END $$;
+      CREATE TRIGGER certificate_signing_key_guard BEFORE UPDATE ON certificate FOR EACH ROW EXECUTE FUNCTION certificate_signing_key_guard();
     `);
   }
 
   async down(q: QueryRunner): Promise<void> {
     await q.query(`
+      DROP TRIGGER certificate_signing_key_guard ON certificate;
+      DROP FUNCTION certificate_signing_key_guard();
       DROP INDEX certificate_signing_key_serial_idx;
       ALTER TABLE certificate DROP COLUMN signing_key_revoked_at, DROP COLUMN signing_key_serial;
       DROP TABLE institute_crl;

@@ -246,7 +246,7 @@ describe('PAdES signature (B-LTA)', () => {
   });
 
   it('rejects a signature made after the signing key was withdrawn, and keeps one made before', async () => {
-    const serial = new forge.pki.certificateFromPem(leaf.certPem).serialNumber;
+    const serial = forge.pki.certificateFromPem(leaf.certPem).serialNumber;
     const withdrawn = (at: Date) => createCrl({ issuer: root, crlNumber: 2, thisUpdate: new Date(), validityDays: 7, revoked: [{ serialHex: serial, revokedAt: at, reasonCode: 1 }] });
     const before = await verifySignedPdf(signed, { ...anchors, currentCrl: await withdrawn(new Date(Date.now() - 3_600_000)) });
     expect(before.status).toBe('tampered');
