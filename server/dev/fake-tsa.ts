@@ -95,10 +95,12 @@ function rejection(failBit: number, text: string): Buffer {
 
 export async function startFakeTsa(opts: { port: number; host?: string; keysDir: string }) {
   const host = opts.host ?? '127.0.0.1';
-  let keys: TsaKeys | undefined;
+  // Filled once the port is known: the TSA certificate names its CRL address on this server.
+  const state: { keys?: TsaKeys } = {};
   let crlNumber = Math.floor(Date.now() / 1000);
   const server = http.createServer((req, res) => {
     void (async () => {
+      const keys = state.keys;
       if (!keys) throw new Error('not ready');
       if (req.method === 'GET' && req.url === '/root.pem') {
         res.writeHead(200, { 'content-type': 'application/x-pem-file' }).end(keys.root.certPem);
@@ -135,7 +137,8 @@ export async function startFakeTsa(opts: { port: number; host?: string; keysDir:
     server.listen(opts.port, host, () => resolve());
   });
   const url = `http://${host}:${(server.address() as AddressInfo).port}`;
-  keys = await loadOrCreateKeys(opts.keysDir, url);
+  const keys = await loadOrCreateKeys(opts.keysDir, url);
+  state.keys = keys;
   await writeFile(path.join(opts.keysDir, 'tsa-root.pem'), keys.root.certPem);
   return {
     url,

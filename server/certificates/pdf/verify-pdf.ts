@@ -364,10 +364,9 @@ async function verifyPades(pdf: Buffer, main: SignatureField, docTs: SignatureFi
   }
   checks.push({ check: 'signing key not withdrawn at the time of signing', passed: revocation.status !== 'unknown', against: 'institute CRLs (in the file\'s DSS and this server\'s current CRL), signed by the pinned root' });
 
-  let tsaRevoked = false;
   if (token && dss) {
     const tsaCrls = await crlsIssuedBy(dss.crls, token.tsaRoot);
-    tsaRevoked = tsaCrls.some(({ crl }) => revocationOf(crl, serialHex(token.tsaCertificate)) !== undefined);
+    const tsaRevoked = tsaCrls.some(({ crl }) => revocationOf(crl, serialHex(token.tsaCertificate)) !== undefined);
     if (tsaRevoked) return fail('the TSA certificate is listed as revoked in the CRL of its root');
     checks.push({ check: 'TSA certificate not revoked', passed: tsaCrls.length > 0, against: tsaCrls.length ? 'CRL of the TSA root in the DSS' : 'no CRL of the TSA root in the DSS' });
   }
