@@ -611,7 +611,7 @@ function signatureBlock(flow: Flow, s: CertificateSnapshot): void {
     [s.signer.name, { font: FONT.semi, size: 11 }],
     [s.signer.role, { size: 9 }],
     [
-      `This file carries a digital signature (CMS detached, adbe.pkcs7.detached) made with the institute's certificate. Any change to the file breaks it. Verify the file at ${s.verificationUrl}`,
+      `This file carries a digital signature (PAdES, ETSI.CAdES.detached) made under the institute's root certificate, with a trusted time-stamp and the validation data to check it offline; the data behind it are attached as JSON and CSV. Any change to the file breaks the signature. Verify the file at ${s.verificationUrl}`,
       { size: 8, colour: COLOUR.slate },
     ],
   ];
