@@ -276,15 +276,25 @@ function checkLtvUpdate(pdf: Buffer, signedEnd: number): void {
   const after = readStructure(pdf);
   if (after.rootRef !== before.rootRef) throw new Tampered('the update after signing replaced the document catalogue');
   if (after.infoRef !== before.infoRef) throw new Tampered('the update after signing replaced the document information');
-  const newest = after.sections[0];
   const rootNumber = refNumber(before.rootRef);
-  for (const [num] of newest.entries) {
-    if (!before.offsets.has(num)) continue;
+  // Every object a reader now takes from after the signed revision, whichever update (there may be several) put it there.
+  for (const [num, offset] of after.offsets) {
+    if (offset < signedEnd || !before.offsets.has(num)) continue;
     const old = objectBody(pdf, before, num);
-    const now = objectAt(pdf, newest.entries.get(num)!).body;
+    const now = objectAt(pdf, offset).body;
     const allowed = num === rootNumber ? ['DSS', 'Extensions'] : /\/Type\s*\/AcroForm/.test(old) ? ['Fields'] : /\/Type\s*\/Page\b/.test(old) ? ['Annots'] : null;
     if (!allowed || withoutLtvEntries(old, allowed) !== withoutLtvEntries(now, allowed)) {
       throw new Tampered(`the update after signing changes object ${num}, which long-term validation data never touches`);
+    }
+    // What may be added to /Annots and /Fields: invisible signature widgets (the document time-stamp's field).
+    for (const key of ['Annots', 'Fields']) {
+      const kept = new Set(arrayRefs(old, key));
+      for (const added of arrayRefs(now, key).filter((r) => !kept.has(r))) {
+        const widget = objectBody(pdf, after, added);
+        if (!/\/Subtype\s*\/Widget/.test(widget) || !/\/FT\s*\/Sig/.test(widget) || !/\/Rect\s*\[\s*0\s+0\s+0\s+0\s*\]/.test(widget)) {
+          throw new Tampered(`the update after signing adds object ${added} to the page or form, which is not an invisible signature field`);
+        }
+      }
     }
   }
 }

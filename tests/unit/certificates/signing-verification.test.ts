@@ -6,6 +6,7 @@ import * as asn1js from 'asn1js';
 import * as pkijs from 'pkijs';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import forge from 'node-forge';
+import { appendIncrementalUpdate, appendToArray, arrayRefs, dictRef, objectBody, readStructure, refNumber } from '../../../server/certificates/pdf/incremental';
 import { addLongTermValidation, signPades, type PadesMaterial } from '../../../server/certificates/pdf/pades';
 import { renderCertificatePdf } from '../../../server/certificates/pdf/render-certificate';
 import { ensureInstituteSigningIdentity, signPdf } from '../../../server/certificates/pdf/signing';
@@ -218,6 +219,37 @@ describe('PAdES signature (B-LTA)', () => {
     const result = await verifySignedPdf(relaunched, anchors);
     expect(result.status).toBe('tampered');
     expect(result.reason).toMatch(/update after signing/);
+  });
+
+  it('reports an object redefined in an extra update between the signature and the DSS as tampered', async () => {
+    const [[, , c, d]] = ranges(signed);
+    const bt = signed.subarray(0, c + d);
+    const structure = readStructure(bt);
+    const infoNumber = refNumber(structure.infoRef!);
+    // Same object number, new content: the trailer still names the same /Info, only its text changed.
+    const edited = appendIncrementalUpdate(bt, structure, [{ number: infoNumber, body: '<< /Title (Altered after signing) /CertificateNumber (CL-2025-00042-r1) >>' }]);
+    const relaunched = await addLongTermValidation(edited, tsa.url, [pemToDer(leaf.certPem), pemToDer(root.certPem)], []);
+    const result = await verifySignedPdf(relaunched, anchors);
+    expect(result.status).toBe('tampered');
+    expect(result.reason).toMatch(new RegExp(`changes object ${infoNumber}\\b`));
+  });
+
+  it('reports a visible annotation added to the page before a genuine document time-stamp as tampered', async () => {
+    const [[, , c, d]] = ranges(signed);
+    const bt = signed.subarray(0, c + d);
+    const structure = readStructure(bt);
+    const catalog = objectBody(bt, structure, refNumber(structure.rootRef));
+    const field = objectBody(bt, structure, arrayRefs(objectBody(bt, structure, dictRef(catalog, 'AcroForm')!), 'Fields')[0]);
+    const pageNumber = Number(/\/P\s+(\d+)/.exec(field)![1]);
+    const note = structure.size;
+    const edited = appendIncrementalUpdate(bt, structure, [
+      { number: note, body: '<< /Type /Annot /Subtype /FreeText /Rect [100 100 400 140] /Contents (Value corrected to 5900 m2/s2) /DA (/Helv 12 Tf 0 g) /F 4 >>' },
+      { number: pageNumber, body: appendToArray(objectBody(bt, structure, pageNumber), 'Annots', [`${note} 0 R`]) },
+    ]);
+    const relaunched = await addLongTermValidation(edited, tsa.url, [pemToDer(leaf.certPem), pemToDer(root.certPem)], []);
+    const result = await verifySignedPdf(relaunched, anchors);
+    expect(result.status).toBe('tampered');
+    expect(result.reason).toMatch(/not an invisible signature field/);
   });
 
   it('reports bytes appended after the document time-stamp as tampered', async () => {
