@@ -66,6 +66,13 @@ function stateVerdict(row: CertificateRow): VerificationVerdict {
 }
 
 function stateReason(c: Awaited<ReturnType<typeof describe>>): string | null {
+  const reason = registryReason(c);
+  if (!c.signingKeyRevokedAt) return reason;
+  const key = `the key that signed this certificate was withdrawn on ${c.signingKeyRevokedAt} after a compromise; upload the file to check whether its time-stamp predates the compromise`;
+  return reason ? `${reason}; ${key}` : key;
+}
+
+function registryReason(c: Awaited<ReturnType<typeof describe>>): string | null {
   if (c.state === 'superseded') return `replaced by ${c.supersededByNumber}${c.latestNumber && c.latestNumber !== c.supersededByNumber ? `; the newest revision is ${c.latestNumber}` : ''}`;
   if (c.state === 'revoked') return `withdrawn on ${c.revokedAt}: ${c.revocationReason}`;
   return null;

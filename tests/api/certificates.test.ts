@@ -400,6 +400,8 @@ describe('issuing', () => {
       expect(check.body.verdict).toBe('tampered');
       expect(check.body.reason).toMatch(/signing key was withdrawn/);
       expect(check.body.certificate.signingKeyRevokedAt).not.toBeNull();
+      const byNumber = await verifyNumber(number, sha256(before));
+      expect(byNumber.body.reason).toMatch(/key that signed this certificate was withdrawn/);
       const audit = await t.ds.query(`SELECT details FROM audit_event WHERE action = 'signing-key.revoked'`);
       expect(audit).toHaveLength(1);
       // The next certificate is signed with a new key under the same root and verifies.
