@@ -1,7 +1,7 @@
 import * as asn1js from 'asn1js';
 import * as pkijs from 'pkijs';
 import { signerInfoSignatureVerifies, signingCertificateV2Hash } from '../pki/cms';
-import { certificateDer, fingerprintSha256, isIssuedBy, nameToString, OID, parseCertificate, pemToDer, serialHex, sha256, toArrayBuffer } from '../pki/der';
+import { certificateDer, chainToRoot, fingerprintSha256, nameToString, OID, parseCertificate, pemToDer, serialHex, sha256, toArrayBuffer } from '../pki/der';
 import { checkTimeStampToken, type CheckedToken } from '../pki/tsp';
 import { readAttachments, type ExtractedAttachment } from './attachments';
 import { arrayRefs, dictRef, objectAt, objectBody, readStructure, refNumber, streamObject, type PdfStructure } from './incremental';
@@ -320,18 +320,7 @@ async function verifyPades(pdf: Buffer, main: SignatureField, docTs: SignatureFi
   checks.push({ check: 'signer certificate bound by signing-certificate-v2', passed: true, against: 'SHA-256 of the signer certificate (RFC 5035)' });
   if (!signerInfoSignatureVerifies(signerInfo, signer)) return fail('the signature does not verify with the signer certificate');
   checks.push({ check: 'RSA signature over the signed attributes', passed: true, against: 'public key of the signer certificate' });
-  let root: pkijs.Certificate | undefined;
-  for (const r of roots) if (await isIssuedBy(signer, r)) root = r;
-  if (!root) {
-    return anchors.instituteRoots.length
-      ? fail('the signer certificate was not issued by the pinned institute root CA')
-      : fail('this installation has no institute root CA to check the signature against');
-  }
-  checks.push({ check: 'signer certificate issued by the institute root CA', passed: true, against: `pinned root SHA-256 ${fingerprintSha256(certificateDer(root))}` });
-  if (!hasKeyUsage(signer)) return fail('the signer certificate is not meant for signatures (key usage)');
-
-  // Signature time-stamp.
-  const tokenValue = attributeValue(signerInfo.unsignedAttrs, OID.signatureTimeStampToken);
+  const cmsCertificates = (signedData.certificates ?? []).filter((c): c is pkijs.Certificate => c instanceof pkijs.Certificate);
   const structure = readStructure(pdf);
   const dss = readDss(pdf, structure);
   const dssCerts = (dss?.certs ?? []).flatMap((c) => {
@@ -341,6 +330,18 @@ async function verifyPades(pdf: Buffer, main: SignatureField, docTs: SignatureFi
       return [];
     }
   });
+  const path = await chainToRoot(signer, roots, [...cmsCertificates, ...dssCerts]);
+  const root = path?.[path.length - 1];
+  if (!path || !root || path.length < 2) {
+    return anchors.instituteRoots.length
+      ? fail('the signer certificate was not issued by the pinned institute root CA')
+      : fail('this installation has no institute root CA to check the signature against');
+  }
+  checks.push({ check: `signer certificate chains to the institute root CA (${path.length - 1} step${path.length > 2 ? 's' : ''})`, passed: true, against: `pinned root SHA-256 ${fingerprintSha256(certificateDer(root))}` });
+  if (!hasKeyUsage(signer)) return fail('the signer certificate is not meant for signatures (key usage)');
+
+  // Signature time-stamp.
+  const tokenValue = attributeValue(signerInfo.unsignedAttrs, OID.signatureTimeStampToken);
   let token: CheckedToken | null = null;
   if (tokenValue) {
     try {
@@ -358,9 +359,11 @@ async function verifyPades(pdf: Buffer, main: SignatureField, docTs: SignatureFi
   // Revocation: the CRLs in the DSS say what was known when the file was made, the server's current CRL
   // what is known now; a withdrawal (or its invalidity date) at or before the time-stamp breaks the signature.
   const serial = serialHex(signer);
-  const dssCrls = dss ? await crlsIssuedBy(dss.crls, root) : [];
-  const currentCrls = anchors.currentCrl ? await crlsIssuedBy([anchors.currentCrl], root) : [];
-  let revocation: SignatureReport['revocation'] = { status: 'unknown', detail: 'no CRL of the institute root was found in the file or on this server' };
+  // The CRL that speaks for the signing certificate is its issuer's (the root, or an intermediate CA).
+  const issuer = path[1];
+  const dssCrls = dss ? await crlsIssuedBy(dss.crls, issuer) : [];
+  const currentCrls = anchors.currentCrl ? await crlsIssuedBy([anchors.currentCrl], issuer) : [];
+  let revocation: SignatureReport['revocation'] = { status: 'unknown', detail: "no CRL of the signing certificate's issuer was found in the file or on this server" };
   for (const { crl } of [...dssCrls, ...currentCrls]) {
     const r = revocationOf(crl, serial);
     if (!r) continue;
@@ -372,7 +375,7 @@ async function verifyPades(pdf: Buffer, main: SignatureField, docTs: SignatureFi
     const fresh = [...dssCrls, ...currentCrls].filter((c) => c.thisUpdate >= new Date(at.getTime() - 1000));
     if (fresh.length) revocation = { status: 'good', detail: `not listed in the institute CRL issued ${fresh[0].thisUpdate.toISOString()}${currentCrls.length ? ' nor in this server\'s current CRL' : ''}` };
   }
-  checks.push({ check: 'signing key not withdrawn at the time of signing', passed: revocation.status !== 'unknown', against: 'institute CRLs (in the file\'s DSS and this server\'s current CRL), signed by the pinned root' });
+  checks.push({ check: 'signing key not withdrawn at the time of signing', passed: revocation.status !== 'unknown', against: "CRLs of the signing certificate's issuer (in the file's DSS and this server's current CRL)" });
 
   if (token && dss) {
     const tsaCrls = await crlsIssuedBy(dss.crls, token.tsaRoot);
@@ -395,7 +398,7 @@ async function verifyPades(pdf: Buffer, main: SignatureField, docTs: SignatureFi
     checks.push({ check: 'the update after signing only adds validation data', passed: true, against: 'the signed revision (catalogue, AcroForm and page compared entry by entry)' });
   }
 
-  const chainOk = dss && [signer, root].every((c) => dss.certs.some((d) => d.equals(certificateDer(c)))) && dssCrls.length > 0;
+  const chainOk = dss && path.every((c) => dss.certs.some((d) => d.equals(certificateDer(c)))) && dssCrls.length > 0;
   const level: SignatureLevel = !token ? 'B-B' : !chainOk ? 'B-T' : documentTimeStamp ? 'B-LTA' : 'B-LT';
   if (dss) checks.push({ check: 'DSS holds the chain and a CRL of the root (long-term validation data)', passed: !!chainOk, against: 'the signer certificate and the pinned root' });
 
@@ -408,7 +411,7 @@ async function verifyPades(pdf: Buffer, main: SignatureField, docTs: SignatureFi
   }
 
   const report: SignatureReport = {
-    level, subFilter: main.subFilter, claimedSigningTime: main.claimedTime, signer: info(signer), chain: [info(signer), info(root)],
+    level, subFilter: main.subFilter, claimedSigningTime: main.claimedTime, signer: info(signer), chain: path.map(info),
     timeStamp: token ? { time: token.genTime.toISOString(), tsa: nameToString(token.tsaCertificate.subject), serial: token.serialHex, policy: token.policy } : null,
     documentTimeStamp, revocation, dss: dss ? { certificates: dss.certs.length, crls: dss.crls.length } : null, checks, attachments,
   };

@@ -95,3 +95,35 @@ export const OID = {
   invalidityDate: '2.5.29.24',
   authorityKeyIdentifier: '2.5.29.35',
 };
+
+/**
+ * Builds the path from `cert` up to one of `roots` through intermediates found in `pool` (RFC 5280 6.1, signatures
+ * and names only; validity and purposes are checked by the caller). Returns the path, leaf first, root last.
+ */
+export async function chainToRoot(cert: pkijs.Certificate, roots: pkijs.Certificate[], pool: pkijs.Certificate[], maxDepth = 4): Promise<pkijs.Certificate[] | undefined> {
+  const path = [cert];
+  let current = cert;
+  for (let depth = 0; depth <= maxDepth; depth++) {
+    for (const root of roots) {
+      if (certificateDer(root).equals(certificateDer(current))) return path;
+      if (await isIssuedBy(current, root)) return [...path, root];
+    }
+    let next: pkijs.Certificate | undefined;
+    for (const candidate of pool) {
+      if (path.some((p) => certificateDer(p).equals(certificateDer(candidate)))) continue;
+      if (isCa(candidate) && (await isIssuedBy(current, candidate))) {
+        next = candidate;
+        break;
+      }
+    }
+    if (!next) return undefined;
+    path.push(next);
+    current = next;
+  }
+  return undefined;
+}
+
+function isCa(cert: pkijs.Certificate): boolean {
+  const bc = cert.extensions?.find((e) => e.extnID === '2.5.29.19')?.parsedValue as pkijs.BasicConstraints | undefined;
+  return bc?.cA === true;
+}

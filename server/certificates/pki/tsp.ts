@@ -2,7 +2,7 @@ import { randomBytes } from 'node:crypto';
 import * as asn1js from 'asn1js';
 import * as pkijs from 'pkijs';
 import { signerInfoSignatureVerifies } from './cms';
-import { certificateDer, isIssuedBy, OID, parseCertificate, sha256, toArrayBuffer } from './der';
+import { certificateDer, chainToRoot, OID, parseCertificate, sha256, toArrayBuffer } from './der';
 
 // RFC 3161 time-stamp protocol: the client side (request over HTTP, 3.4) and the checks of a returned token
 // (2.4.2: the imprint, the nonce, the TSA's signature and its certificate's purpose).
@@ -126,20 +126,13 @@ export async function checkTimeStampToken(token: Uint8Array, imprint: Buffer, ro
     throw new Error('time-stamp token signature does not cover its TSTInfo');
   }
   if (!signerInfoSignatureVerifies(signerInfo, tsaCertificate)) throw new Error('the TSA signature on the time-stamp token does not verify');
-  const tsaRoot = await findIssuer(tsaCertificate, roots);
-  if (!tsaRoot) throw new Error('the TSA certificate does not chain to a trusted time-stamping root');
+  const tsaPath = await chainToRoot(tsaCertificate, roots, candidates);
+  if (!tsaPath) throw new Error('the TSA certificate does not chain to a trusted time-stamping root');
+  const tsaRoot = tsaPath[tsaPath.length - 1];
   if (info.genTime < tsaCertificate.notBefore.value || info.genTime > tsaCertificate.notAfter.value) {
     throw new Error('the TSA certificate was not valid at the time in the token');
   }
   return { ...info, tsaCertificate, tsaRoot };
-}
-
-async function findIssuer(cert: pkijs.Certificate, roots: pkijs.Certificate[]): Promise<pkijs.Certificate | undefined> {
-  for (const root of roots) {
-    if (certificateDer(root).equals(certificateDer(cert))) return root;
-    if (await isIssuedBy(cert, root)) return root;
-  }
-  return undefined;
 }
 
 export function certificatesOfToken(token: Uint8Array): pkijs.Certificate[] {

@@ -277,6 +277,28 @@ describe('PAdES signature (B-LTA)', () => {
     expect(result.reason).toMatch(/not issued by the pinned institute root/);
   });
 
+  it('follows an intermediate CA (as a configured institute P12 may have) up to the pinned root', async () => {
+    const topRoot = createCertificate({ subject: { commonName: 'Layered Root CA', organization: 'Layered' }, profile: { kind: 'root-ca', pathLength: 1 }, bits: 2048 });
+    const intermediate = createCertificate({ subject: { commonName: 'Layered Issuing CA', organization: 'Layered' }, profile: { kind: 'root-ca' }, issuer: topRoot, bits: 2048 });
+    const signer = createCertificate({ subject: { commonName: 'Layered signing', organization: 'Layered' }, profile: { kind: 'document-signing' }, issuer: intermediate, bits: 2048 });
+    const der = (k: KeyAndCertificate) => pemToDer(k.certPem);
+    const pdf = await signPades(unsigned, {
+      signer: { keyPem: signer.keyPem, certificate: der(signer), chain: [der(intermediate), der(topRoot)] },
+      tsaUrl: tsa.url,
+      validationData: async (tsaCerts) => ({
+        certificates: [der(signer), der(intermediate), der(topRoot), ...tsaCerts],
+        crls: [await createCrl({ issuer: intermediate, crlNumber: 1, thisUpdate: new Date(), validityDays: 7, revoked: [] })],
+      }),
+    }, signOptions);
+    const result = await verifySignedPdf(pdf, { ...anchors, instituteRoots: [der(topRoot)] });
+    expect(result.status).toBe('valid');
+    expect(result.report!.chain.map((c) => c.subject)).toEqual(['CN=Layered signing, O=Layered', 'CN=Layered Issuing CA, O=Layered', 'CN=Layered Root CA, O=Layered']);
+    expect(result.report!.level).toBe('B-LTA');
+    expect(result.report!.revocation.status).toBe('good');
+    // Pinned to another root, the same file is refused.
+    expect((await verifySignedPdf(pdf, anchors)).status).toBe('tampered');
+  });
+
   it('rejects a signature made after the signing key was withdrawn, and keeps one made before', async () => {
     const serial = forge.pki.certificateFromPem(leaf.certPem).serialNumber;
     const withdrawn = (at: Date) => createCrl({ issuer: root, crlNumber: 2, thisUpdate: new Date(), validityDays: 7, revoked: [{ serialHex: serial, revokedAt: at, reasonCode: 1 }] });
