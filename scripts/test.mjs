@@ -16,6 +16,9 @@ const isRoot = process.getuid?.() === 0;
 const needs = [
   ['/usr/bin/chromium', 'chromium'],
   ['/usr/bin/pdfsig', 'poppler-utils'],
+  // Certificate tests: NSS certutil gives pdfsig the institute root; openssl checks time-stamps, CMS and CRLs.
+  ['/usr/bin/certutil', 'libnss3-tools'],
+  ['/usr/bin/openssl', 'openssl'],
 ].filter(([bin]) => !fs.existsSync(bin));
 if (needs.length && isRoot) {
   const pkgs = needs.map(([, p]) => p);

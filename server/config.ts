@@ -31,6 +31,10 @@ const envSchema = z.object({
   SESSION_ABSOLUTE_HOURS: z.coerce.number().int().min(1).max(168).default(12),
   // The local identity provider and test mailbox are demo stand-ins; off loopback they start only with this set to 1.
   DEV_SERVICES_OFF_LOOPBACK: z.enum(['0', '1']).default('0'),
+  /** RFC 3161 time-stamping authority; defaults to the local stand-in that `npm start` runs. */
+  TSA_URL: z.string().url().default('http://127.0.0.1:8182'),
+  /** PEM file with the root certificate(s) of the time-stamping authority, trusted when verifying. */
+  TSA_ROOT_CERT_FILE: z.string().optional(),
 });
 
 export type AppConfig = {
@@ -57,6 +61,8 @@ export type AppConfig = {
   sessionIdleMs: number;
   sessionAbsoluteMs: number;
   devServicesOffLoopback: boolean;
+  tsaUrl: string;
+  tsaRootCertFile: string;
 };
 
 /** A secret kept in the git-ignored secrets folder, created on first use. */
@@ -93,5 +99,7 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): AppConfig {
     sessionIdleMs: e.SESSION_IDLE_MINUTES * 60_000,
     sessionAbsoluteMs: e.SESSION_ABSOLUTE_HOURS * 3_600_000,
     devServicesOffLoopback: e.DEV_SERVICES_OFF_LOOPBACK === '1',
+    tsaUrl: e.TSA_URL.replace(/\/$/, ''),
+    tsaRootCertFile: e.TSA_ROOT_CERT_FILE ?? path.join(secretsDir, 'tsa', 'tsa-root.pem'),
   };
 }

@@ -6,6 +6,7 @@ import { openDatabase } from './db/data-source';
 import { startFakeIdp } from './dev/fake-idp';
 import { startFakeSmtp } from './dev/fake-smtp';
 import { assertDevServicesAllowed, DEMO_STAND_IN_NOTICE } from './dev/guard';
+import { startFakeTsa } from './dev/fake-tsa';
 import { createLogger } from './logger';
 import { createMailSender } from './mail/outbox';
 import { seedDemo } from '../seeds/demo';
@@ -14,7 +15,7 @@ import { stopQueues } from './jobs/queue';
 import { migrateDatabase, privilegeWarnings, roleOfUrl } from './db/roles';
 import { writeAuditCheckpoint } from './audit/verify';
 
-// The server process: configuration, local stand-ins (identity provider, mail catcher), database, HTTP.
+// The server process: configuration, local stand-ins (identity provider, mail catcher, time-stamping authority), database, HTTP.
 const withDevServices = process.env.CHRONOLEVEL_DEV_SERVICES !== '0';
 const config = loadConfig();
 const logger = createLogger(config.logLevel);
@@ -30,6 +31,12 @@ async function main() {
     closers.push(smtp.close);
     logger.info({ idp: idp.url, smtp: smtp.smtpUrl, mailbox: smtp.mailboxUrl }, 'local identity provider and mail catcher started');
     logger.warn(DEMO_STAND_IN_NOTICE);
+    if (!process.env.TSA_URL) {
+      // The local time-stamping authority, unless TSA_URL names a real one.
+      const tsa = await startFakeTsa({ port: Number(new URL(config.tsaUrl).port || 8182), keysDir: path.dirname(config.tsaRootCertFile) });
+      closers.push(tsa.close);
+      logger.info({ tsa: tsa.url }, 'local time-stamping authority started');
+    }
   }
   // Migrations as the owner role when MIGRATION_DATABASE_URL is given (`npm start` runs them in a process of their
   // own and never passes the owner's URL here); the application itself connects with DATABASE_URL.

@@ -10,7 +10,8 @@ import { networkRoutes } from './network/network.routes';
 import { adjustCalcRoutes } from './network/adjust.routes';
 import { certificateRoutes } from './certificates/certificates.routes';
 import { mailOutboxRoutes } from './mail/outbox.routes';
+import { pkiRoutes } from './certificates/pki.routes';
 
 // Every API route of the product, in one list: Express, OpenAPI and the access tests read it.
 // Feature folders export their own arrays; add them here.
-export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes, ...calcRoutes, ...resultsRoutes, ...networkRoutes, ...adjustCalcRoutes, ...registryRoutes, ...campaignRoutes, ...uploadRoutes, ...certificateRoutes, ...mailOutboxRoutes];
+export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes, ...calcRoutes, ...resultsRoutes, ...networkRoutes, ...adjustCalcRoutes, ...registryRoutes, ...campaignRoutes, ...uploadRoutes, ...certificateRoutes, ...mailOutboxRoutes, ...pkiRoutes];

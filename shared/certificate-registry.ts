@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { signatureReportSchema } from './certificate-signature';
 import { certificateNumberSchema } from './certificates';
 
 // API contract of the certificate registry: issuing, supersession, revocation, verification and reading.
@@ -107,8 +108,12 @@ export const verificationResultSchema = z.object({
       latestNumber: z.string().nullable(),
       revokedAt: z.iso.datetime().nullable(),
       revocationReason: z.string().nullable(),
+      /** When the key that signed this certificate was withdrawn (compromise); null while it stands. */
+      signingKeyRevokedAt: z.iso.datetime().nullable().optional(),
     })
     .nullable(),
+  /** The signature checks of an uploaded file (absent for a check by number and SHA-256). */
+  signature: signatureReportSchema.nullable().optional(),
 });
 export type VerificationResult = z.infer<typeof verificationResultSchema>;
 

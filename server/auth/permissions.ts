@@ -29,6 +29,7 @@ export const permissionTable = {
   'certificates:read': everyone,
   'results:recompute': ['operator', 'coordinator'],
   'certificates:issue': ['coordinator'],
+  'signing-keys:revoke': ['admin'],
 } as const satisfies Record<string, readonly Role[]>;
 
 export type Permission = keyof typeof permissionTable;

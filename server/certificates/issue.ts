@@ -9,9 +9,11 @@ import { CertificateEntity, type CertificateRow } from '../db/entities/certifica
 import { Conflict, NotFound } from '../http/errors';
 import { enqueueMail } from '../mail/outbox';
 import type { CertificateSource, SnapshotBody } from './certificate-source.types';
-import { coordinatingInstitute, instituteSigningIdentity } from './institute-identity';
+import { coordinatingInstitute, currentSigningKey, instituteSubject, publishCrl, trustedTsaRoots } from './institute-identity';
+import { signPades, type PadesOptions } from './pdf/pades';
 import { renderCertificatePdf } from './pdf/render-certificate';
-import { signPdf } from './pdf/signing';
+import { parseCertificate } from './pki/der';
+import { crlUrlsOf, fetchCrl } from './pki/x509';
 
 // Issuing, reissuing and revoking inside the caller's transaction: number, snapshot, render, sign, store,
 // audit and mail commit together or not at all.
@@ -85,15 +87,36 @@ async function renderAndSign(ctx: IssueContext, body: SnapshotBody, number: stri
     signer: { name: ctx.actor.displayName, role: `Coordinator, ${issuingInstitute}` },
     verificationUrl: verificationUrlFor(ctx.config, number),
   };
-  const identity = await instituteSigningIdentity(ctx.config, { commonName: `${issuingInstitute} certificate signing`, organization: issuingInstitute });
   const unsigned = await renderCertificatePdf(snapshot);
-  const pdf = await signPdf(unsigned, identity, {
+  const { pdf, signingKeySerial } = await signCertificate(ctx.manager, ctx.config, unsigned, {
     reason: revision > 1 ? `Certificate ${number} (revision ${revision})` : `Certificate ${number}`,
     location: institute?.city ?? issuingInstitute,
     name: ctx.actor.displayName,
     signingTime: issuedAt,
   });
-  return { snapshot, pdf, pdfSha256: sha256Hex(pdf) };
+  return { snapshot, pdf, pdfSha256: sha256Hex(pdf), signingKeySerial };
+}
+
+/**
+ * Signs at PAdES B-LTA with the current signing key: the CAdES signature with its time-stamp, then a DSS
+ * with the chain, a CRL published for the occasion and the TSA's CRLs, then the document time-stamp.
+ */
+export async function signCertificate(manager: EntityManager, config: AppConfig, unsigned: Buffer, options: PadesOptions) {
+  const subject = await instituteSubject(manager);
+  const key = await currentSigningKey(manager, config, subject);
+  const tsaRoots = await trustedTsaRoots(config);
+  const pdf = await signPades(unsigned, {
+    signer: { keyPem: key.keyPem, certificate: key.certDer, chain: key.chainDer },
+    tsaUrl: config.tsaUrl,
+    validationData: async (tsaCertificates) => {
+      const crl = await publishCrl(manager, config, subject);
+      const own = crl ? [crl.der] : await Promise.all(crlUrlsOf(parseCertificate(key.certDer)).map((u) => fetchCrl(u)));
+      const tsaCrlUrls = [...new Set(tsaCertificates.flatMap((c) => crlUrlsOf(parseCertificate(c))))];
+      const tsaCrls = await Promise.all(tsaCrlUrls.map((u) => fetchCrl(u)));
+      return { certificates: [key.certDer, ...key.chainDer, ...tsaCertificates, ...tsaRoots], crls: [...own, ...tsaCrls] };
+    },
+  }, options);
+  return { pdf, signingKeySerial: key.serialHex };
 }
 
 /** The operators of both clocks' institutes and the coordinator mailbox. */
@@ -131,8 +154,8 @@ export async function issueCertificate(ctx: IssueContext, campaignId: string): P
   const year = issuedAt.getUTCFullYear();
   const serial = await nextSerial(manager, year);
   const number = formatCertificateNumber(year, serial, 1);
-  const { snapshot, pdf, pdfSha256 } = await renderAndSign(ctx, source.body, number, 1, issuedAt);
-  const row = await insertRow(manager, actor, source, fingerprint, { number, year, serial, revision: 1, issuedAt, snapshot, pdf, pdfSha256 });
+  const { snapshot, pdf, pdfSha256, signingKeySerial } = await renderAndSign(ctx, source.body, number, 1, issuedAt);
+  const row = await insertRow(manager, actor, source, fingerprint, { number, year, serial, revision: 1, issuedAt, snapshot, pdf, pdfSha256, signingKeySerial });
   await recordAudit(manager, actor, {
     action: 'certificate.issued', entityType: 'certificate', entityId: number,
     details: { campaignId, resultId: source.resultId, pdfSha256, auditChainHead: snapshot.auditChainHead },
@@ -146,7 +169,7 @@ export async function issueCertificate(ctx: IssueContext, campaignId: string): P
 
 async function insertRow(
   manager: EntityManager, actor: Actor, source: CertificateSource, fingerprint: string,
-  v: { id?: string; number: string; year: number; serial: number; revision: number; issuedAt: Date; snapshot: CertificateSnapshot; pdf: Buffer; pdfSha256: string },
+  v: { id?: string; number: string; year: number; serial: number; revision: number; issuedAt: Date; snapshot: CertificateSnapshot; pdf: Buffer; pdfSha256: string; signingKeySerial: string },
 ): Promise<CertificateRow> {
   const repo = manager.getRepository(CertificateEntity);
   const id = v.id ?? randomUUID();
@@ -157,6 +180,7 @@ async function insertRow(
     state: 'valid', issuedBy: actor.userId, issuedByLabel: actorLabel(actor), issuedAt: v.issuedAt,
     pdf: v.pdf, pdfSha256: v.pdfSha256, pdfBytes: v.pdf.length, snapshot: v.snapshot as never,
   });
+  await manager.query(`UPDATE certificate SET signing_key_serial = $1 WHERE id = $2`, [v.signingKeySerial, id]);
   return repo.findOneByOrFail({ id });
 }
 
@@ -186,11 +210,11 @@ export async function reissueCertificate(ctx: IssueContext, number: string, reas
   }
   const revision = previous.revision + 1;
   const newNumber = formatCertificateNumber(previous.year, previous.serial, revision);
-  const { snapshot, pdf, pdfSha256 } = await renderAndSign(ctx, source.body, newNumber, revision, issuedAt);
+  const { snapshot, pdf, pdfSha256, signingKeySerial } = await renderAndSign(ctx, source.body, newNumber, revision, issuedAt);
   const id = randomUUID();
   // The pointer's foreign key is deferred, so the old row can step aside before the new valid one arrives.
   await manager.getRepository(CertificateEntity).update({ id: previous.id }, { state: 'superseded', supersededBy: id, supersededAt: issuedAt });
-  const row = await insertRow(manager, actor, source, fingerprintOf(source), { id, number: newNumber, year: previous.year, serial: previous.serial, revision, issuedAt, snapshot, pdf, pdfSha256 });
+  const row = await insertRow(manager, actor, source, fingerprintOf(source), { id, number: newNumber, year: previous.year, serial: previous.serial, revision, issuedAt, snapshot, pdf, pdfSha256, signingKeySerial });
   await recordAudit(manager, actor, { action: 'certificate.superseded', entityType: 'certificate', entityId: number, details: { campaignId: previous.campaignId, supersededBy: newNumber, reason } });
   await recordAudit(manager, actor, {
     action: 'certificate.reissued', entityType: 'certificate', entityId: newNumber,

@@ -3,11 +3,12 @@ import type { VerificationResult, VerificationVerdict } from '../../shared/certi
 import type { CertificateSnapshot } from '../../shared/certificates';
 import type { AppConfig } from '../config';
 import { CertificateEntity, type CertificateRow } from '../db/entities/certificates.entities';
-import { coordinatingInstitute, instituteSigningIdentity } from './institute-identity';
+import { instituteCa, instituteSubject, latestCrl, legacyCertificatePem, trustedTsaRoots } from './institute-identity';
 import { sha256Hex } from './issue';
-import { verifySignedPdf } from './pdf/verify-pdf';
+import { verifySignedPdf, type TrustAnchors } from './pdf/verify-pdf';
 
-// Public verification: the signature is checked against the pinned institute certificate, then the file's
+// Public verification: the signature is checked against the pinned institute root CA and the trusted TSA roots
+// (and, for files of the first releases, the pinned self-signed certificate), then the file's
 // SHA-256 (or the number and SHA-256 someone read off a file) is looked up in the registry.
 
 const headlines: Record<VerificationVerdict, string> = {
@@ -38,6 +39,25 @@ async function describe(manager: EntityManager, row: CertificateRow) {
     latestNumber: await newestNumber(manager, row),
     revokedAt: row.revokedAt?.toISOString() ?? null,
     revocationReason: row.revocationReason,
+    signingKeyRevokedAt: await signingKeyRevokedAt(manager, row.id),
+  };
+}
+
+async function signingKeyRevokedAt(manager: EntityManager, id: string): Promise<string | null> {
+  const rows: { at: Date | null }[] = await manager.query(`SELECT signing_key_revoked_at AS at FROM certificate WHERE id = $1`, [id]);
+  return rows[0]?.at?.toISOString() ?? null;
+}
+
+/** The pinned trust anchors: the institute root, the TSA roots, the legacy certificate and the newest CRL. */
+export async function trustAnchors(manager: EntityManager, config: AppConfig): Promise<TrustAnchors> {
+  const ca = await instituteCa(config, await instituteSubject(manager));
+  const crl = await latestCrl(manager);
+  const legacy = await legacyCertificatePem(config);
+  return {
+    instituteRoots: [ca.rootDer],
+    tsaRoots: await trustedTsaRoots(config),
+    ...(legacy ? { legacyCertificatePem: legacy } : {}),
+    ...(crl ? { currentCrl: crl.der } : {}),
   };
 }
 
@@ -46,24 +66,25 @@ function stateVerdict(row: CertificateRow): VerificationVerdict {
 }
 
 function stateReason(c: Awaited<ReturnType<typeof describe>>): string | null {
+  const reason = registryReason(c);
+  if (!c.signingKeyRevokedAt) return reason;
+  const key = `the key that signed this certificate was withdrawn on ${c.signingKeyRevokedAt} after a compromise; upload the file to check whether its time-stamp predates the compromise`;
+  return reason ? `${reason}; ${key}` : key;
+}
+
+function registryReason(c: Awaited<ReturnType<typeof describe>>): string | null {
   if (c.state === 'superseded') return `replaced by ${c.supersededByNumber}${c.latestNumber && c.latestNumber !== c.supersededByNumber ? `; the newest revision is ${c.latestNumber}` : ''}`;
   if (c.state === 'revoked') return `withdrawn on ${c.revokedAt}: ${c.revocationReason}`;
   return null;
 }
 
 export function createVerificationService(dataSource: DataSource, config: AppConfig) {
-  async function pinnedCertificatePem(): Promise<string> {
-    const institute = await coordinatingInstitute(dataSource.manager);
-    const name = institute?.name ?? 'Coordinating institute';
-    return (await instituteSigningIdentity(config, { commonName: `${name} certificate signing`, organization: name })).certificatePem;
-  }
-
   return {
     async verifyFile(pdf: Buffer): Promise<VerificationResult> {
       const manager = dataSource.manager;
-      const signature = await verifySignedPdf(pdf, await pinnedCertificatePem());
+      const signature = await verifySignedPdf(pdf, await trustAnchors(manager, config));
       const file = { sha256: sha256Hex(pdf), bytes: pdf.length, numberInFile: signature.certificateNumber ?? null, signingTime: signature.signingTime ?? null };
-      const base = { checkedBy: 'file' as const, file };
+      const base = { checkedBy: 'file' as const, file, signature: signature.report ?? null };
       if (signature.status !== 'valid') {
         const verdict: VerificationVerdict = signature.status;
         // Point to the genuine record when the file names one, so the reader can fetch the original.

@@ -3,6 +3,7 @@ import type { AuditEvent } from '../../shared/auth';
 import type { CampaignSummary } from '../../shared/campaigns';
 import type { CertificateDetail, CertificateListQuery, CertificateSummary, VerificationResult } from '../../shared/certificate-registry';
 import type { CertificateSnapshot } from '../../shared/certificates';
+import type { TrustAnchorInfo } from '../../shared/certificate-signature';
 import type { Page, Problem } from '../../shared/http';
 import { api, ApiError } from '../lib/api-client';
 
@@ -115,4 +116,12 @@ export const useVerifyNumber = () =>
   useMutation({
     mutationFn: async (v: { number: string; sha256: string }) =>
       publicJson<VerificationResult>(await fetch(`/api/v1/certificates/verify?${queryString(v)}`, { credentials: 'omit', headers: { accept: 'application/json' } })),
+  });
+
+/** The institute root CA to install in a PDF reader, with its fingerprint (public). */
+export const useTrustAnchor = () =>
+  useQuery({
+    queryKey: ['pki', 'trust-anchor'],
+    queryFn: async () => publicJson<TrustAnchorInfo>(await fetch('/api/v1/pki/trust-anchor', { credentials: 'omit', headers: { accept: 'application/json' } })),
+    staleTime: 3_600_000,
   });

@@ -6,7 +6,7 @@ import path from 'node:path';
 import type { DataSource } from 'typeorm';
 import { afterAll, beforeAll, describe, expect, it, inject } from 'vitest';
 import { verifyAuditChain } from '../../server/audit/verify';
-import { instituteSigningIdentity, coordinatingInstitute } from '../../server/certificates/institute-identity';
+import { trustAnchors } from '../../server/certificates/verification.service';
 import { verifySignedPdf } from '../../server/certificates/pdf/verify-pdf';
 import { openDatabase } from '../../server/db/data-source';
 import { createTestApp, type TestApp } from '../helpers/test-app';
@@ -84,14 +84,13 @@ describe('backup and restore drill', () => {
     const [priv] = await restored.query(`SELECT has_table_privilege('audit_event', 'UPDATE') AS upd, has_table_privilege('audit_event', 'INSERT') AS ins`);
     expect(priv).toEqual({ upd: false, ins: true });
 
-    // every certificate PDF still verifies against the pinned institute certificate and matches its registered SHA-256
-    const institute = await coordinatingInstitute(restored.manager);
-    const name = institute?.name ?? 'Coordinating institute';
-    const pinned = (await instituteSigningIdentity(t.config, { commonName: `${name} certificate signing`, organization: name })).certificatePem;
+    // every certificate PDF still verifies against the institute root (PAdES chain, time-stamps, CRLs) and matches its registered SHA-256
+    // trust anchors (institute root, TSA roots, newest CRL) read from the restored database
+    const anchors = await trustAnchors(restored.manager, t.config);
     const certs: { number: string; pdf: Buffer; pdf_sha256: string }[] = await restored.query(`SELECT number, pdf, pdf_sha256 FROM certificate ORDER BY number`);
     for (const c of certs) {
       expect(crypto.createHash('sha256').update(c.pdf).digest('hex'), c.number).toBe(c.pdf_sha256);
-      const v = await verifySignedPdf(c.pdf, pinned);
+      const v = await verifySignedPdf(c.pdf, anchors);
       expect({ number: c.number, status: v.status }).toEqual({ number: c.number, status: 'valid' });
     }
   }, 300_000);

@@ -9,17 +9,22 @@ import { inject } from 'vitest';
 import { VERIFY_UPLOAD_LIMIT_BYTES } from '../../shared/certificate-registry';
 import { certificateSnapshotSchema } from '../../shared/certificates';
 import { renderCertificatePdf } from '../../server/certificates/pdf/render-certificate';
+import { signCertificate } from '../../server/certificates/issue';
+import { signPades } from '../../server/certificates/pdf/pades';
 import { ensureInstituteSigningIdentity, signPdf } from '../../server/certificates/pdf/signing';
-import { instituteSigningIdentity } from '../../server/certificates/institute-identity';
+import { fingerprintSha256, pemToDer } from '../../server/certificates/pki/der';
+import { createCertificate } from '../../server/certificates/pki/x509';
 import { latestResultForCampaign } from '../../server/results/results.service';
 import { acceptedCampaign } from '../helpers/accepted-campaign';
 import { caughtMail, createTestApp, tokenFor, type TestApp } from '../helpers/test-app';
 
 // The certificate registry end to end: issue, idempotence, reissue, withdrawal, public verification of files and of
 // number + SHA-256, participant mail and the audit trail. Signature checks follow ISO 32000-1:2008 12.8 (byte range
-// over the whole file) and RFC 5652 (CMS SignedData); Debian poppler-utils' pdfsig is the independent cross-check.
+// over the whole file), RFC 5652 (CMS SignedData), RFC 3161 (time-stamps), RFC 5280 (CRLs) and ETSI EN 319 142-1
+// (PAdES B-LTA). Independent cross-checks: Debian poppler-utils' pdfsig and pdfdetach, NSS certutil, OpenSSL.
 
 const COORDINATOR = 'ansel.brandt@geopotential-office.invalid';
+const ADMIN = 'yusra.holm@geopotential-office.invalid';
 const AUDITOR = 'petra.lind@audit-bureau.invalid';
 const OPERATOR = 'ines.varga@saltmarsh-lab.invalid';
 
@@ -178,19 +183,29 @@ describe('issuing', () => {
     expect(res.body.reason).toMatch(/appended/);
   });
 
-  it('reports the same certificate signed by another identity as tampered', async () => {
+  it('reports the same certificate signed under another root CA, or with a legacy self-signed key, as tampered', async () => {
     const snapshot = (await t.ds.query(`SELECT snapshot FROM certificate WHERE number = $1`, [number]))[0].snapshot;
-    const foreign = await ensureInstituteSigningIdentity(path.join(work, 'foreign'), { commonName: 'Someone else', organization: 'Elsewhere' });
-    const forged = await signPdf(await renderCertificatePdf(snapshot), foreign, { reason: 'forgery', location: 'Elsewhere', name: 'Nobody' });
+    const otherRoot = createCertificate({ subject: { commonName: 'Elsewhere Root CA', organization: 'Elsewhere' }, profile: { kind: 'root-ca' }, bits: 2048 });
+    const otherLeaf = createCertificate({ subject: { commonName: 'Elsewhere signing', organization: 'Elsewhere' }, profile: { kind: 'document-signing' }, issuer: otherRoot, bits: 2048 });
+    const forged = await signPades(await renderCertificatePdf(snapshot), {
+      signer: { keyPem: otherLeaf.keyPem, certificate: pemToDer(otherLeaf.certPem), chain: [pemToDer(otherRoot.certPem)] },
+      tsaUrl: t.config.tsaUrl,
+      validationData: async (tsaCerts) => ({ certificates: [pemToDer(otherLeaf.certPem), ...tsaCerts], crls: [] }),
+    }, { reason: 'forgery', location: 'Elsewhere', name: 'Nobody' });
     const res = await verifyFile(forged);
     expect(res.body.verdict).toBe('tampered');
-    expect(res.body.reason).toMatch(/other than the pinned/);
+    expect(res.body.reason).toMatch(/not issued by the pinned institute root/);
+    // The first releases' signature type, with a key this installation never pinned.
+    const foreign = await ensureInstituteSigningIdentity(path.join(work, 'foreign'), { commonName: 'Someone else', organization: 'Elsewhere' });
+    const legacy = await verifyFile(await signPdf(await renderCertificatePdf(snapshot), foreign, { reason: 'forgery', location: 'Elsewhere', name: 'Nobody' }));
+    expect(legacy.body.verdict).toBe('tampered');
+    expect(legacy.body.reason).toMatch(/legacy signature/);
   });
 
   it('answers "not issued here" for a correctly signed file or a number the registry does not hold', async () => {
     const snapshot = (await t.ds.query(`SELECT snapshot FROM certificate WHERE number = $1`, [number]))[0].snapshot;
-    const identity = await instituteSigningIdentity(t.config, { commonName: 'unused', organization: 'unused' });
-    const unknownFile = await signPdf(await renderCertificatePdf({ ...snapshot, certificateNumber: 'CL-1999-99999-r1', revision: 1 }), identity, { reason: 'test', location: 'test', name: 'test' });
+    const unknown = await renderCertificatePdf({ ...snapshot, certificateNumber: 'CL-1999-99999-r1', revision: 1 });
+    const { pdf: unknownFile } = await t.ds.transaction((m) => signCertificate(m, t.config, unknown, { reason: 'test', location: 'test', name: 'test' }));
     const res = await verifyFile(unknownFile);
     expect(res.body.verdict).toBe('not-issued-here');
     const byNumber = await verifyNumber('CL-1999-99999-r1', '0'.repeat(64));
@@ -198,6 +213,41 @@ describe('issuing', () => {
     const wrongDigest = await verifyNumber(number, 'f'.repeat(64));
     expect(wrongDigest.body.verdict).toBe('not-issued-here');
     expect(JSON.stringify(wrongDigest.body)).not.toContain(sha256(pdf));
+  });
+
+  it('reports the signature level, chain, trusted time, revocation status and attachments of an uploaded file', async () => {
+    const res = await verifyFile(pdf);
+    const sig = res.body.signature;
+    expect(sig.level).toBe('B-LTA');
+    expect(sig.chain).toHaveLength(2);
+    expect(sig.timeStamp.tsa).toContain('Time-Stamping');
+    expect(res.body.file.signingTime).toBe(sig.timeStamp.time);
+    expect(sig.revocation.status).toBe('good');
+    expect(sig.checks.length).toBeGreaterThan(6);
+    expect(sig.checks.every((c: { passed: boolean }) => c.passed)).toBe(true);
+    expect(sig.attachments.map((a: { name: string }) => a.name)).toEqual([`${number}.result.csv`, `${number}.snapshot.json`]);
+  });
+
+  it('publishes the root CA with its fingerprint, the CRL and the snapshot schema at stable public addresses', async () => {
+    const anchor = await request(t.app).get('/api/v1/pki/trust-anchor');
+    expect(anchor.status).toBe(200);
+    const pem = await request(t.app).get('/api/v1/pki/institute-root-ca.pem');
+    expect(pem.status).toBe(200);
+    expect(fingerprintSha256(pemToDer(pem.text))).toBe(anchor.body.sha256Fingerprint);
+    const res = await verifyFile(pdf);
+    expect(res.body.signature.chain[1].sha256).toBe(anchor.body.sha256Fingerprint);
+    writeFileSync(path.join(work, 'root.pem'), pem.text);
+    const crl = await request(t.app).get('/api/v1/pki/institute-ca.crl').buffer(true).parse(binaryParser as never);
+    expect(crl.status).toBe(200);
+    expect(crl.headers['content-type']).toBe('application/pkix-crl');
+    writeFileSync(path.join(work, 'institute.crl'), crl.body as Buffer);
+    // OpenSSL checks the CRL's signature with the downloaded root.
+    const check = spawnSync('openssl', ['crl', '-inform', 'DER', '-in', path.join(work, 'institute.crl'), '-CAfile', path.join(work, 'root.pem'), '-noout'], { encoding: 'utf8' });
+    expect(check.stdout + check.stderr).toContain('verify OK');
+    const schema = await request(t.app).get('/api/v1/schemas/certificate-snapshot.json');
+    expect(schema.status).toBe(200);
+    expect(schema.body.$id).toBe(`${t.config.publicUrl}/api/v1/schemas/certificate-snapshot.json`);
+    expect(schema.body.required).toEqual(expect.arrayContaining(['certificateNumber', 'deltaC_m2s2', 'inputFiles', 'auditChainHead', 'softwareVersion']));
   });
 
   it('refuses a malformed query, an empty upload and an oversized one', async () => {
@@ -211,15 +261,35 @@ describe('issuing', () => {
     expect(huge.status).toBe(413);
   });
 
-  it('pdfsig (poppler-utils) reports the downloaded file as validly signed over the whole document', () => {
+  it('pdfsig (poppler-utils) reports the signature valid and trusted with the downloaded root in an NSS store (certutil)', () => {
     const file = path.join(work, `${number}.pdf`);
     writeFileSync(file, pdf);
     mkdirSync('test-results', { recursive: true });
     writeFileSync('test-results/certificate-api.pdf', pdf); // kept for looking at the pages (pdftoppm)
-    const run = spawnSync('pdfsig', [file], { encoding: 'utf8' });
+    const nss = path.join(work, 'nss');
+    mkdirSync(nss, { recursive: true });
+    expect(spawnSync('certutil', ['-N', '-d', `sql:${nss}`, '--empty-password']).status).toBe(0);
+    expect(spawnSync('certutil', ['-A', '-d', `sql:${nss}`, '-n', 'Institute root CA', '-t', 'C,C,C', '-i', path.join(work, 'root.pem')]).status).toBe(0);
+    const run = spawnSync('pdfsig', ['-nssdir', `sql:${nss}`, file], { encoding: 'utf8' });
     expect(run.error).toBeUndefined();
-    expect(run.stdout).toContain('Signature Validation: Signature is Valid.');
-    expect(run.stdout).toContain('Total document signed');
+    writeFileSync('test-results/certificate-api.pdfsig.txt', run.stdout);
+    const first = run.stdout.slice(run.stdout.indexOf('Signature #1'), run.stdout.indexOf('Signature #2'));
+    expect(first).toContain('Signature Validation: Signature is Valid.');
+    expect(first).toContain('Certificate Validation: Certificate is Trusted.');
+    // The document time-stamp (the second signature) covers the whole file.
+    expect(run.stdout.slice(run.stdout.indexOf('Signature #2'))).toContain('Total document signed');
+  });
+
+  it('pdfdetach (poppler-utils) extracts the embedded snapshot, identical to the stored one', async () => {
+    const file = path.join(work, `${number}.pdf`);
+    const list = spawnSync('pdfdetach', ['-list', file], { encoding: 'utf8' });
+    expect(list.stdout).toContain(`${number}.snapshot.json`);
+    const out = path.join(work, 'detached');
+    mkdirSync(out, { recursive: true });
+    expect(spawnSync('pdfdetach', ['-saveall', '-o', out, file]).status).toBe(0);
+    const embedded = JSON.parse((await import('node:fs')).readFileSync(path.join(out, `${number}.snapshot.json`), 'utf8'));
+    const [row] = await t.ds.query(`SELECT snapshot FROM certificate WHERE number = $1`, [number]);
+    expect(embedded).toEqual(row.snapshot);
   });
 
   describe('reissue and withdrawal', () => {
@@ -302,6 +372,46 @@ describe('issuing', () => {
       expect(res.status).toBe(201);
       expect(res.body.certificate.number).not.toBe(number);
       expect(res.body.certificate.serial).toBe(Number(/-(\d{5})-/.exec(number)![1]) + 1);
+    });
+  });
+
+  describe('withdrawal of the signing key (compromise)', () => {
+    it('is refused to the coordinator, and for the admin publishes a CRL, marks the affected certificates and rotates the key', async () => {
+      const forbidden = await request(t.app).post('/api/v1/pki/signing-key/revoke').set('authorization', `Bearer ${coordinator}`).send({ reason: 'key file copied to a laptop' });
+      expect(forbidden.status).toBe(403);
+      const admin = await tokenFor(t, ADMIN);
+      const before = await download(number);
+      const compromisedSince = new Date(Date.now() - 3_600_000).toISOString();
+      const res = await request(t.app).post('/api/v1/pki/signing-key/revoke').set('authorization', `Bearer ${admin}`)
+        .send({ reason: 'key file copied to a laptop', compromisedSince });
+      expect(res.status).toBe(200);
+      expect(res.body.affectedCertificates).toEqual(expect.arrayContaining([number]));
+      const [row] = await t.ds.query(`SELECT signing_key_serial, signing_key_revoked_at FROM certificate WHERE number = $1`, [number]);
+      expect(row.signing_key_serial).toBe(res.body.serial);
+      expect(row.signing_key_revoked_at).not.toBeNull();
+      // The published CRL lists the key (OpenSSL's own reading of the CRL).
+      const crl = await request(t.app).get('/api/v1/pki/institute-ca.crl').buffer(true).parse(binaryParser as never);
+      writeFileSync(path.join(work, 'withdrawn.crl'), crl.body as Buffer);
+      const text = spawnSync('openssl', ['crl', '-inform', 'DER', '-in', path.join(work, 'withdrawn.crl'), '-noout', '-text'], { encoding: 'utf8' }).stdout;
+      expect(text.replace(/\s+/g, '')).toContain(`SerialNumber:${res.body.serial.toUpperCase()}`);
+      expect(text).toContain('Key Compromise');
+      // Signed within the compromised hour: no longer trusted, and the registry says so.
+      const check = await verifyFile(before);
+      expect(check.body.verdict).toBe('tampered');
+      expect(check.body.reason).toMatch(/signing key was withdrawn/);
+      expect(check.body.certificate.signingKeyRevokedAt).not.toBeNull();
+      const byNumber = await verifyNumber(number, sha256(before));
+      expect(byNumber.body.reason).toMatch(/key that signed this certificate was withdrawn/);
+      const audit = await t.ds.query(`SELECT details FROM audit_event WHERE action = 'signing-key.revoked'`);
+      expect(audit).toHaveLength(1);
+      // The next certificate is signed with a new key under the same root and verifies.
+      const fresh = await acceptedCampaign(t, 'After the key withdrawal', '2026-09-01T00:00:00Z');
+      const issued = await request(t.app).post(`/api/v1/campaigns/${fresh}/certificates`).set('authorization', `Bearer ${coordinator}`).send({});
+      expect(issued.status).toBe(201);
+      const newPdf = await download(issued.body.certificate.number);
+      const ok = await verifyFile(newPdf);
+      expect(ok.body.verdict).toBe('valid');
+      expect(ok.body.signature.signer.serial).not.toBe(res.body.serial);
     });
   });
 });

@@ -70,6 +70,12 @@ describe('auditor journey', () => {
     await page.getByRole('button', { name: 'Check the file' }).click();
     await expect(page.getByTestId('verify-result').getAttribute('data-verdict')).resolves.toBe('valid');
     await expect(page.getByTestId('verify-result').textContent()).resolves.toContain(number);
+    // The signature in detail: PAdES B-LTA, the chain to the root offered below, the embedded files.
+    await expect(page.getByTestId('signature-report').getAttribute('data-level')).resolves.toBe('B-LTA');
+    await expect(page.getByTestId('signature-attachments').textContent()).resolves.toContain(`${number}.snapshot.json`);
+    const anchor = await (await fetch(`${srv.baseUrl}/api/v1/pki/trust-anchor`)).json();
+    await expect(page.getByTestId('trust-anchor-fingerprint').textContent()).resolves.toBe(anchor.sha256Fingerprint);
+    await expect(page.getByTestId('signature-chain').textContent()).resolves.toContain(anchor.sha256Fingerprint);
     await screenshot(page, 'verify-valid');
 
     await page.goto(`${srv.baseUrl}/audit/campaigns/${campaignId}`);

@@ -54,6 +54,8 @@ export async function createTestApp(
     IDP_CERT_FILE: inject('idpCertFile'),
     SMTP_URL: inject('smtpUrl'),
     MAILBOX_URL: inject('mailboxUrl'),
+    TSA_URL: inject('tsaUrl'),
+    TSA_ROOT_CERT_FILE: inject('tsaRootCertFile'),
     LOG_LEVEL: 'silent',
     ...opts.env,
   });

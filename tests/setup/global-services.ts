@@ -9,9 +9,10 @@ import { migrateDatabase } from '../../server/db/roles';
 import { seedDemo } from '../../seeds/demo';
 import { startFakeIdp } from '../../server/dev/fake-idp';
 import { startFakeSmtp } from '../../server/dev/fake-smtp';
+import { startFakeTsa } from '../../server/dev/fake-tsa';
 
 // Once per test run: a private PostgreSQL in a temporary folder with a migrated template database,
-// the local identity provider and the mail catcher, all on free loopback ports.
+// the local identity provider, the mail catcher and the time-stamping authority, all on free loopback ports.
 declare module 'vitest' {
   export interface ProvidedContext {
     pgAdminUrl: string;
@@ -21,6 +22,8 @@ declare module 'vitest' {
     secretsDir: string;
     smtpUrl: string;
     mailboxUrl: string;
+    tsaUrl: string;
+    tsaRootCertFile: string;
   }
 }
 
@@ -48,6 +51,10 @@ export default async function setup(project: TestProject) {
   // The template carries the migrations and the invented demo scenario, so each test file's clone starts
   // seeded without paying for it (the certificate seeder signs with the test secrets folder's key).
   process.env.SECRETS_DIR = secretsDir;
+  // The time-stamping authority runs before the seed: the demo certificate is time-stamped too.
+  const tsa = await startFakeTsa({ port: 0, keysDir: path.join(secretsDir, 'tsa') });
+  process.env.TSA_URL = tsa.url;
+  process.env.TSA_ROOT_CERT_FILE = tsa.rootCertFile;
   const tpl = await openDatabase(urlAsRole(templateUrl, APP_ROLE), { migrate: false });
   await seedDemo(tpl);
   await tpl.destroy();
@@ -63,10 +70,13 @@ export default async function setup(project: TestProject) {
   project.provide('secretsDir', secretsDir);
   project.provide('smtpUrl', smtp.smtpUrl);
   project.provide('mailboxUrl', smtp.mailboxUrl);
+  project.provide('tsaUrl', tsa.url);
+  project.provide('tsaRootCertFile', tsa.rootCertFile);
 
   return async () => {
     await idp.close();
     await smtp.close();
+    await tsa.close();
     stopPg();
     fs.rmSync(tmp, { recursive: true, force: true });
   };

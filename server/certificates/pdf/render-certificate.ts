@@ -1,7 +1,9 @@
 import PDFDocument from 'pdfkit';
 import QRCode from 'qrcode';
 import { parseCertificateSnapshot, type CertificateSnapshot } from './certificate-snapshot';
+import { addArchivalParts } from './archival';
 import { loadCertificateFonts } from './fonts';
+import { resultCsv } from './result-csv';
 import {
   formatFixed,
   formatScientific,
@@ -609,7 +611,7 @@ function signatureBlock(flow: Flow, s: CertificateSnapshot): void {
     [s.signer.name, { font: FONT.semi, size: 11 }],
     [s.signer.role, { size: 9 }],
     [
-      `This file carries a digital signature (CMS detached, adbe.pkcs7.detached) made with the institute's certificate. Any change to the file breaks it. Verify the file at ${s.verificationUrl}`,
+      `This file carries a digital signature (PAdES, ETSI.CAdES.detached) made under the institute's root certificate, with a trusted time-stamp and the validation data to check it offline; the data behind it are attached as JSON and CSV. Any change to the file breaks the signature. Verify the file at ${s.verificationUrl}`,
       { size: 8, colour: COLOUR.slate },
     ],
   ];
@@ -634,22 +636,24 @@ export async function renderCertificatePdf(input: CertificateSnapshot): Promise<
   const snapshot = parseCertificateSnapshot(input);
   const fonts = loadCertificateFonts();
   const issued = new Date(snapshot.issueDate);
+  const info = {
+    Title: `Certificate ${snapshot.certificateNumber}: geopotential difference from an optical clock comparison`,
+    Author: snapshot.issuingInstitute,
+    Subject: `Chronometric levelling certificate ${snapshot.certificateNumber}`,
+    Keywords: `${snapshot.certificateNumber}; chronometric levelling; geopotential difference`,
+    Creator: `Chronolevel ${snapshot.softwareVersion}`,
+    Producer: `Chronolevel ${snapshot.softwareVersion} (pdfkit)`,
+  };
   const doc = new PDFDocument({
+    // PDF/A-3 (ISO 19005-3) builds on PDF 1.7.
+    pdfVersion: '1.7',
     size: 'A4',
     margins: MARGIN,
     bufferPages: true,
     // Content streams may be deflated: the signing placeholder only parses the classic xref
     // table, trailer, catalogue and page objects, which pdfkit always writes uncompressed.
     compress: true,
-    info: {
-      Title: `Certificate ${snapshot.certificateNumber}: geopotential difference from an optical clock comparison`,
-      Author: snapshot.issuingInstitute,
-      Subject: `Chronometric levelling certificate ${snapshot.certificateNumber}`,
-      Keywords: `${snapshot.certificateNumber}; chronometric levelling; geopotential difference`,
-      Creator: `Chronolevel ${snapshot.softwareVersion}`,
-      CreationDate: issued,
-      ModDate: issued,
-    },
+    info: { ...info, CreationDate: issued, ModDate: issued },
   });
   (doc.info as unknown as Record<string, string>).CertificateNumber = snapshot.certificateNumber;
 
@@ -664,6 +668,22 @@ export async function renderCertificatePdf(input: CertificateSnapshot): Promise<
   doc.registerFont(FONT.semi, fonts.semiBold);
   renderBody(doc, snapshot);
   drawFurniture(doc, snapshot);
+  addArchivalParts(doc, {
+    title: info.Title, author: info.Author, subject: info.Subject, keywords: info.Keywords, creator: info.Creator, producer: info.Producer,
+    created: issued,
+    attachments: [
+      {
+        name: `${snapshot.certificateNumber}.snapshot.json`, mime: 'application/json', relationship: 'Source',
+        description: 'Machine-readable snapshot the certificate was rendered from (schema: certificate-snapshot)',
+        data: Buffer.from(`${JSON.stringify(snapshot, null, 2)}\n`, 'utf8'),
+      },
+      {
+        name: `${snapshot.certificateNumber}.result.csv`, mime: 'text/csv', relationship: 'Data',
+        description: 'Result quantities with units and uncertainties (CSV, RFC 4180)',
+        data: Buffer.from(resultCsv(snapshot), 'utf8'),
+      },
+    ],
+  });
   doc.end();
   return done;
 }

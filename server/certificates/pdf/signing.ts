@@ -6,9 +6,9 @@ import { plainAddPlaceholder } from '@signpdf/placeholder-plain';
 import { P12Signer } from '@signpdf/signer-p12';
 import { SignPdf } from '@signpdf/signpdf';
 
-// Institute signing identity and PDF signing. The signature is a CMS (RFC 5652) SignedData,
-// detached, embedded as /Contents of a signature dictionary with /SubFilter adbe.pkcs7.detached
-// (ISO 32000-1:2008 12.8.3.3), covering the whole file except the /Contents hex string.
+// The first releases' signing: a self-signed institute certificate in a P12 and a CMS (RFC 5652) SignedData,
+// detached, embedded as /Contents with /SubFilter adbe.pkcs7.detached (ISO 32000-1:2008 12.8.3.3). Certificates
+// are now signed at PAdES B-LTA (pades.ts); this stays so legacy files can be made and recognised in tests.
 
 export interface SigningIdentity {
   p12: Buffer;

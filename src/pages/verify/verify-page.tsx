@@ -7,6 +7,7 @@ import { verifyByNumberQuerySchema, type VerificationResult, type VerificationVe
 import { useVerifyFile, useVerifyNumber } from '../../api/certificates';
 import { Button, Caution, Field, inputClass, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
+import { SignatureReportPanel, TrustAnchorPanel } from './signature-report';
 
 // The public check anyone can run on a certificate they were sent: outside the sign-in gate.
 
@@ -34,6 +35,9 @@ function explanation(r: VerificationResult): string {
     case 'not-issued-here':
       return 'Either this number is unknown here, or the file differs from the one registered under it. The document may come from another issuer, or it may be a different file that carries a known number. Ask the sender where it came from.';
     case 'tampered':
+      if (r.reason?.includes('signing key was withdrawn')) {
+        return 'The file was signed with a key the institute has since withdrawn as compromised, and the time-stamp shows it was signed after the compromise began. Do not rely on it; ask the issuer for a newly signed copy.';
+      }
       return 'The signature does not hold for this file: its content was changed after signing, something was appended to it, or it was signed with a key other than the issuing institute’s. Do not use it; ask the issuer for the original file.';
     case 'unsigned':
       return 'Certificates issued here always carry the issuing institute’s digital signature. This file has none, so it is at most a copy or a draft.';
@@ -65,7 +69,7 @@ function ResultPanel({ result }: { result: VerificationResult }) {
           <>
             <dt className="text-ink-500">SHA-256 of your file</dt><dd className="break-all font-mono text-xs" data-testid="verify-file-sha">{result.file.sha256}</dd>
             <dt className="text-ink-500">Number in the file</dt><dd className="font-mono">{result.file.numberInFile ?? 'none found'}</dd>
-            {result.file.signingTime && (<><dt className="text-ink-500">Signed at</dt><dd>{result.file.signingTime.replace('T', ' ').slice(0, 19)} UTC</dd></>)}
+            {result.file.signingTime && (<><dt className="text-ink-500">{result.signature?.timeStamp ? 'Signed at (trusted time-stamp)' : 'Signed at (as stated by the signer)'}</dt><dd>{result.file.signingTime.replace('T', ' ').slice(0, 19)} UTC</dd></>)}
           </>
         )}
       </dl>
@@ -147,6 +151,8 @@ export function VerifyPage() {
         </div>
         {current?.isError && <p role="alert" className="rounded-md bg-disagree-100 px-4 py-3 text-sm text-disagree-800">{describeError(current.error)}</p>}
         {current?.data && <ResultPanel result={current.data} />}
+        {current?.data?.signature && <SignatureReportPanel report={current.data.signature} />}
+        <TrustAnchorPanel />
         <Caution>
           A “valid” answer says that the certificate is authentic and still in force; it does not say that its figures suit your purpose.
           Uncertainties on certificates are expanded with coverage factor k = 2. Results of clock comparisons are for scientific
