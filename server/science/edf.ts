@@ -110,7 +110,10 @@ export function greenhallEdf(alpha: PowerLawAlpha, m: number, N: number, opts: E
   }
   if (alpha <= 0) {
     if (J <= J_MAX) {
-      const mPrime = m * (d + 1) <= J_MAX ? m : Infinity;
+      // The paper's F = ∞ variant: phase points that are exact integrals of the frequency averages (no further
+      // averaging of x over τ0). It reproduces the exact white-FM EDF at m = 1, 2(N − 2)/3, and simulated EDFs of
+      // frequency data (tests/unit/science/edf.test.ts); F = m models phase averaged over τ0 and is off by up to 17 % at m = 1.
+      const mPrime = Infinity;
       return 1 / (basicSum(J, M, S, mPrime, alpha, d) / (sz(0, mPrime, alpha, d) ** 2 * M));
     }
     if (r > d + 1) {

@@ -768,17 +768,19 @@ export function meanWithStatisticalUncertainty(input: {
       const why = floorSeen ? 'flicker/random-walk FM found at an adequate τ' : 'σ²_y at the longest adequate τ exceeds the white-FM fit (one-sided 99 % χ²)';
       // The white-FM part of σ²_y(τ_L) averages down to T: only the excess over the fit is carried as the floor, and the
       // two parts combine with Welch–Satterthwaite (the excess has EDF·(excess/σ²)², the variance of σ² being 2σ⁴/EDF).
+      // When the excess is under half of σ²_y(τ_L) its EDF would collapse; the whole σ²_y(τ_L) is then the bound.
       const whitePart = whiteFm ? whiteFm.sigmaAt1s ** 2 / longest.tauSeconds + phasePart / longest.tauSeconds ** 2 : 0;
       const variance = deviation * deviation;
-      const excessVariance = Math.max(variance - whitePart, 0);
+      const subtract = whitePart > 0 && variance - whitePart >= 0.5 * variance;
+      const excessVariance = subtract ? variance - whitePart : variance;
       const scale = randomWalk ? Math.max(spanSeconds / longest.tauSeconds, 1) : FLICKER_FM_MEAN_FACTOR ** 2;
       const uFloor2 = excessVariance * scale;
-      const uWhite2 = whiteFm ? whiteFm.sigmaAt1s ** 2 / totalSeconds : 0;
+      const uWhite2 = subtract ? whiteFm!.sigmaAt1s ** 2 / totalSeconds : 0;
       const nuFloor = edf * (excessVariance / variance) ** 2;
       const u2 = uFloor2 + uWhite2;
       const denominator = (uFloor2 > 0 ? uFloor2 ** 2 / nuFloor : 0) + (uWhite2 > 0 ? uWhite2 ** 2 / whiteFm!.edf : 0);
       const nu = denominator > 0 ? (u2 * u2) / denominator : edf;
-      const whiteText = whiteFm ? ` minus the fitted white-FM part, plus white FM at T (Welch–Satterthwaite ν = ${fmt(nu)})` : '';
+      const whiteText = subtract ? ` minus the fitted white-FM part, plus white FM at T (Welch–Satterthwaite ν = ${fmt(nu)})` : '';
       floor = { noise: randomWalk ? 'RWFM' : 'FFM', tauSeconds: longest.tauSeconds, deviation, deviationKind: kind, edf };
       candidates.push(randomWalk
         ? {
