@@ -165,4 +165,4 @@ export const comparisonResultSchema = z.object({
 });
 export type ComparisonResultDto = z.infer<typeof comparisonResultSchema>;
 
-export const resultCsvColumns = ['section', 'quantity', 'value', 'standard_uncertainty', 'expanded_uncertainty_k2', 'unit', 'note'] as const;
+export const resultCsvColumns = ['section', 'quantity', 'value', 'standard_uncertainty', 'expanded_uncertainty', 'unit', 'note'] as const;
