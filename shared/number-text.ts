@@ -15,6 +15,6 @@ export function formatForUncertainty(value: number, standardUncertainty: number)
 
 /** "k = 2.13, p = 95.45 %, ν_eff = 17" — the three numbers that belong beside every expanded uncertainty. */
 export function coverageText(q: { coverageFactor: number; coverageProbability: number; effectiveDegreesOfFreedom: number | null }): string {
-  const nu = q.effectiveDegreesOfFreedom === null ? '∞' : q.effectiveDegreesOfFreedom >= 100 ? q.effectiveDegreesOfFreedom.toFixed(0) : q.effectiveDegreesOfFreedom.toFixed(1);
+  const nu = q.effectiveDegreesOfFreedom === null ? 'infinite' : q.effectiveDegreesOfFreedom >= 100 ? q.effectiveDegreesOfFreedom.toFixed(0) : q.effectiveDegreesOfFreedom.toFixed(1);
   return `k = ${q.coverageFactor.toFixed(2)}, p = ${(100 * q.coverageProbability).toFixed(2)} %, ν_eff = ${nu}`;
 }
