@@ -82,7 +82,7 @@ describe('results page', () => {
     // The one-hour gap in the data breaks the mean line and the band (common practice: never draw across missing data).
     const meanPath = await page.getByTestId('y-series-mean').getAttribute('d');
     expect((meanPath ?? '').match(/M/g)?.length ?? 0).toBeGreaterThanOrEqual(2);
-    await expect(page.getByTestId('agreement-difference').textContent()).resolves.toMatch(/± [\d.]+ m \(k = 2\)$/);
+    await expect(page.getByTestId('agreement-difference').textContent()).resolves.toMatch(/± [\d.]+ m \(√\(U_clocks² \+ U_geodesy²\)\)$/);
     await page.getByRole('img', { name: 'Allan deviation of the tide-corrected comparison' }).waitFor();
     expect(await page.locator('[data-series="White frequency noise τ^−1/2 guide"] path').count()).toBe(1);
     await expect(page.getByRole('note').first().textContent()).resolves.toContain('Caution');
