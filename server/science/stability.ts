@@ -757,8 +757,10 @@ export function meanWithStatisticalUncertainty(input: {
     const floorSeen = adequate.some((p) => ALPHA_ORDER(p.noiseType) <= -1);
     let excess = false;
     if (whiteFm) {
+      // The test is under the white-FM hypothesis, so its EDF is white FM's (a mislabelled phase noise would overstate it).
       const predicted = whiteFm.sigmaAt1s ** 2 / longest.tauSeconds + phasePart / longest.tauSeconds ** 2;
-      excess = longest.adev! ** 2 / predicted > chiSquareQuantile(EXCESS_TEST_LEVEL, longest.edf!) / longest.edf!;
+      const edfWhite = edfOf('WFM', longest.m, longest.n + 2 * longest.m, 2, false);
+      excess = edfWhite > 0 && longest.adev! ** 2 / predicted > chiSquareQuantile(EXCESS_TEST_LEVEL, edfWhite) / edfWhite;
     }
     if (floorSeen || excess) {
       // Random-walk FM needs its type at the longest τ and a rising ADEV from the τ before (slope > +1/4 on log–log axes).
