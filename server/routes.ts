@@ -9,7 +9,8 @@ import { resultsRoutes } from './results/results.routes';
 import { networkRoutes } from './network/network.routes';
 import { adjustCalcRoutes } from './network/adjust.routes';
 import { certificateRoutes } from './certificates/certificates.routes';
+import { measuredRatioRoutes } from './registry/measured-ratios';
 
 // Every API route of the product, in one list: Express, OpenAPI and the access tests read it.
 // Feature folders export their own arrays; add them here.
-export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes, ...calcRoutes, ...resultsRoutes, ...networkRoutes, ...adjustCalcRoutes, ...registryRoutes, ...campaignRoutes, ...uploadRoutes, ...certificateRoutes];
+export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes, ...calcRoutes, ...resultsRoutes, ...networkRoutes, ...adjustCalcRoutes, ...registryRoutes, ...campaignRoutes, ...uploadRoutes, ...certificateRoutes, ...measuredRatioRoutes];

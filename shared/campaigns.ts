@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { measuredRatioChoice } from './measured-ratios';
 import { budgetVersionSchema, decimalString, speciesSchema } from './registry';
 
 // The campaign contract: two clocks compared over one fibre link during a period, with a reference ratio,
@@ -34,8 +35,8 @@ const campaignFields = {
   periodStart: isoDate,
   periodEnd: isoDate,
   operatorNotes: z.string().trim().max(4000).default(''),
-  /** Omit (or null) for the default: ν_B/ν_A from the reference-frequency table. */
-  referenceRatio: referenceRatioOverride.nullable().default(null),
+  /** Omit (or null) for the default: ν_B/ν_A from the reference-frequency table; or a registered measured ratio. */
+  referenceRatio: z.union([measuredRatioChoice, referenceRatioOverride]).nullable().default(null),
 };
 
 export const createCampaignSchema = z
@@ -50,7 +51,7 @@ export const updateCampaignSchema = z.object({
   periodStart: isoDate.optional(),
   periodEnd: isoDate.optional(),
   operatorNotes: z.string().trim().max(4000).optional(),
-  referenceRatio: referenceRatioOverride.nullable().optional(),
+  referenceRatio: z.union([measuredRatioChoice, referenceRatioOverride]).nullable().optional(),
   /** Re-pin the budgets to these versions (numbers); only while the campaign is editable. */
   budgetVersionA: z.number().int().min(1).optional(),
   budgetVersionB: z.number().int().min(1).optional(),

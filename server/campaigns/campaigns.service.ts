@@ -1,3 +1,4 @@
+import { ratioFromMeasured } from '../registry/measured-ratios';
 import type { DataSource, EntityManager } from 'typeorm';
 import {
   createCampaignSchema,
@@ -382,7 +383,9 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
         if (a.instituteId !== actor.instituteId) throw new Forbidden('Clock A must belong to your institute: the owning institute is clock A’s.');
         await checkLinkJoinsClocks(m, body.linkId, a, b);
         const ratio = body.referenceRatio
-          ? overrideRatio(body.referenceRatio)
+          ? 'measuredRatioId' in body.referenceRatio
+            ? await ratioFromMeasured(m, body.referenceRatio, a.species, b.species)
+            : overrideRatio(body.referenceRatio)
           : await defaultReferenceRatio(m, a.species, b.species).then((d) => ({ referenceRatio: d.value, referenceRatioRelativeUncertainty: d.relativeUncertainty, referenceRatioSource: d.source, referenceRatioJustification: null }));
         const [budgetA, budgetB] = [await currentBudget(m, a), await currentBudget(m, b)];
         const repo = m.getRepository(CampaignEntity);
@@ -438,7 +441,9 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
           Object.assign(
             patch,
             body.referenceRatio
-              ? overrideRatio(body.referenceRatio)
+              ? 'measuredRatioId' in body.referenceRatio
+                ? await ratioFromMeasured(m, body.referenceRatio, c.clockA!.species, c.clockB!.species)
+                : overrideRatio(body.referenceRatio)
               : await defaultReferenceRatio(m, c.clockA!.species, c.clockB!.species).then((d) => ({ referenceRatio: d.value, referenceRatioRelativeUncertainty: d.relativeUncertainty, referenceRatioSource: d.source, referenceRatioJustification: null })),
           );
         }
