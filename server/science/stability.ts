@@ -749,11 +749,6 @@ export function meanWithStatisticalUncertainty(input: {
   }
   let floor: MeanWithUncertainty['floor'] = null;
   if (longest) {
-    const useTot = longest.totdev !== null && longest.edfTotdev !== null && longest.edfTotdev > longest.edf!;
-    const deviation = useTot ? longest.totdev! : longest.adev!;
-    const edf = useTot ? longest.edfTotdev! : longest.edf!;
-    const kind = useTot ? 'TOTDEV' : 'OADEV';
-    const at = `${kind}(${fmt(longest.tauSeconds)} s) = ${deviation.toExponential(3)} (EDF ${fmt(edf)})`;
     const floorSeen = adequate.some((p) => ALPHA_ORDER(p.noiseType) <= -1);
     let excess = false;
     if (whiteFm) {
@@ -767,6 +762,17 @@ export function meanWithStatisticalUncertainty(input: {
       const previous = adequate.length > 1 ? adequate[adequate.length - 2] : null;
       const slope = previous ? Math.log(longest.adev! / previous.adev!) / Math.log(longest.tauSeconds / previous.tauSeconds) : 0;
       const randomWalk = longest.noiseType === 'RWFM' && slope > 0.25;
+      // EDF for the floor's own noise model (flicker or random-walk FM), whatever type the single τ_L showed.
+      const floorNoise: NoiseType = randomWalk ? 'RWFM' : 'FFM';
+      const phasePoints = longest.n + 2 * longest.m;
+      const edfAdev = edfOf(floorNoise, longest.m, phasePoints, 2, false);
+      const tot = TOTVAR_EDF[floorNoise]!;
+      const edfTot = longest.totdev !== null ? tot[0] * (phasePoints / longest.m) - tot[1] : NaN;
+      const useTot = edfTot > edfAdev;
+      const deviation = useTot ? longest.totdev! : longest.adev!;
+      const edf = useTot ? edfTot : edfAdev;
+      const kind = useTot ? 'TOTDEV' : 'OADEV';
+      const at = `${kind}(${fmt(longest.tauSeconds)} s) = ${deviation.toExponential(3)} (EDF ${fmt(edf)} for ${floorNoise})`;
       const why = floorSeen ? 'flicker/random-walk FM found at an adequate τ' : 'σ²_y at the longest adequate τ exceeds the white-FM fit (one-sided 99 % χ²)';
       // The white-FM part of σ²_y(τ_L) averages down to T: only the excess over the fit is carried as the floor, and the
       // two parts combine with Welch–Satterthwaite (the excess has EDF·(excess/σ²)², the variance of σ² being 2σ⁴/EDF).
@@ -783,7 +789,7 @@ export function meanWithStatisticalUncertainty(input: {
       const denominator = (uFloor2 > 0 ? uFloor2 ** 2 / nuFloor : 0) + (uWhite2 > 0 ? uWhite2 ** 2 / whiteFm!.edf : 0);
       const nu = denominator > 0 ? (u2 * u2) / denominator : edf;
       const whiteText = subtract ? ` minus the fitted white-FM part, plus white FM at T (Welch–Satterthwaite ν = ${fmt(nu)})` : '';
-      floor = { noise: randomWalk ? 'RWFM' : 'FFM', tauSeconds: longest.tauSeconds, deviation, deviationKind: kind, edf };
+      floor = { noise: floorNoise, tauSeconds: longest.tauSeconds, deviation, deviationKind: kind, edf };
       candidates.push(randomWalk
         ? {
           u: Math.sqrt(u2), edf: nu, tau: longest.tauSeconds, model: 'random-walk-fm',
