@@ -11,7 +11,8 @@ import { adjustCalcRoutes } from './network/adjust.routes';
 import { certificateRoutes } from './certificates/certificates.routes';
 import { mailOutboxRoutes } from './mail/outbox.routes';
 import { pkiRoutes } from './certificates/pki.routes';
+import { measuredRatioRoutes } from './registry/measured-ratios';
 
 // Every API route of the product, in one list: Express, OpenAPI and the access tests read it.
 // Feature folders export their own arrays; add them here.
-export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes, ...calcRoutes, ...resultsRoutes, ...networkRoutes, ...adjustCalcRoutes, ...registryRoutes, ...campaignRoutes, ...uploadRoutes, ...certificateRoutes, ...mailOutboxRoutes, ...pkiRoutes];
+export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes, ...calcRoutes, ...resultsRoutes, ...networkRoutes, ...adjustCalcRoutes, ...registryRoutes, ...campaignRoutes, ...uploadRoutes, ...certificateRoutes, ...mailOutboxRoutes, ...pkiRoutes, ...measuredRatioRoutes];

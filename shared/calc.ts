@@ -59,6 +59,18 @@ export const stabilityPointSchema = z.object({
   edf: z.number().nullable(),
   noiseType: noiseTypeSchema,
   noiseIdentified: z.boolean(),
+  /** acf: lag-1 autocorrelation; b1: B1 ratio (R(n) for phase noise) where the ACF is inconclusive; carried from a shorter τ. */
+  noiseMethod: z.enum(['acf', 'b1', 'carried']),
+  mdevLow: z.number().nullable(),
+  mdevHigh: z.number().nullable(),
+  tdevLow: z.number().nullable(),
+  tdevHigh: z.number().nullable(),
+  /** Overlapping Hadamard deviation with its interval (SP 1065 §5.2.8). */
+  hdev: z.number().nullable(),
+  hdevLow: z.number().nullable(),
+  hdevHigh: z.number().nullable(),
+  /** Total deviation (SP 1065 §5.2.11); null for records with gaps. */
+  totdev: z.number().nullable(),
 });
 export type StabilityPointDto = z.infer<typeof stabilityPointSchema>;
 export const stabilityResponseSchema = z.object({
@@ -138,3 +150,34 @@ export const planningInputSchema = z.object({
   referenceRatio: z.number().min(0).max(1e-12),
 });
 export type PlanningInput = z.infer<typeof planningInputSchema>;
+
+/** GUM budget: contributions |c_i|·u(x_i), u_c for uncorrelated inputs, ν_eff (Welch–Satterthwaite) and k = t_p(ν_eff). */
+export const budgetRequestSchema = z.object({
+  components: z
+    .array(
+      z.object({
+        name: z.string().trim().min(1).max(200),
+        standardUncertainty: z.number().nonnegative().refine(Number.isFinite, 'must be finite'),
+        /** c_i = ∂y/∂x_i; 1 when omitted. */
+        sensitivity: finite.default(1),
+        /** Degrees of freedom of u(x_i); omitted or null for infinite (a well-known Type B). */
+        degreesOfFreedom: z.number().positive().nullable().optional(),
+      }),
+    )
+    .min(1)
+    .max(500),
+  /** Coverage probability p; 95.45 % (the normal k = 2 interval) when omitted. */
+  coverageProbability: z.number().gt(0.5).lt(1).optional(),
+});
+export type BudgetRequest = z.input<typeof budgetRequestSchema>;
+export const budgetResponseSchema = z.object({
+  combinedStandardUncertainty: z.number(),
+  /** Welch–Satterthwaite ν_eff; null when infinite (no component with finite degrees of freedom). */
+  effectiveDegreesOfFreedom: z.number().nullable(),
+  coverageFactor: z.number(),
+  expandedUncertainty: z.number(),
+  coverageProbability: z.number(),
+  contributions: z.array(z.object({ name: z.string(), contribution: z.number(), varianceShare: z.number() })),
+  method: z.string(),
+});
+export type BudgetResponse = z.infer<typeof budgetResponseSchema>;

@@ -26,6 +26,27 @@ export const referenceRatioOverride = z.object({
 });
 export type ReferenceRatioOverride = z.infer<typeof referenceRatioOverride>;
 
+/**
+ * What a campaign may give instead of the default: its own value (value, relativeUncertainty, justification) or a
+ * registered directly measured ratio (measuredRatioId, justification). One object so field errors keep their paths.
+ */
+export const referenceRatioChoice = z
+  .object({
+    measuredRatioId: z.string().uuid().optional(),
+    value: referenceRatioOverride.shape.value.optional(),
+    relativeUncertainty: referenceRatioOverride.shape.relativeUncertainty.optional(),
+    justification: referenceRatioOverride.shape.justification,
+  })
+  .superRefine((v, ctx) => {
+    if (v.measuredRatioId) {
+      if (v.value !== undefined) ctx.addIssue({ code: 'custom', path: ['value'], message: 'give either a value or a measured ratio, not both' });
+      return;
+    }
+    if (v.value === undefined) ctx.addIssue({ code: 'custom', path: ['value'], message: 'required (or choose a measured ratio)' });
+    if (v.relativeUncertainty === undefined) ctx.addIssue({ code: 'custom', path: ['relativeUncertainty'], message: 'required' });
+  });
+export type ReferenceRatioChoice = z.infer<typeof referenceRatioChoice>;
+
 const campaignFields = {
   name: z.string().trim().min(2).max(120),
   clockAId: z.string().uuid(),
@@ -34,8 +55,8 @@ const campaignFields = {
   periodStart: isoDate,
   periodEnd: isoDate,
   operatorNotes: z.string().trim().max(4000).default(''),
-  /** Omit (or null) for the default: ν_B/ν_A from the reference-frequency table. */
-  referenceRatio: referenceRatioOverride.nullable().default(null),
+  /** Omit (or null) for the default: ν_B/ν_A from the reference-frequency table; or a registered measured ratio. */
+  referenceRatio: referenceRatioChoice.nullable().default(null),
 };
 
 export const createCampaignSchema = z
@@ -50,7 +71,7 @@ export const updateCampaignSchema = z.object({
   periodStart: isoDate.optional(),
   periodEnd: isoDate.optional(),
   operatorNotes: z.string().trim().max(4000).optional(),
-  referenceRatio: referenceRatioOverride.nullable().optional(),
+  referenceRatio: referenceRatioChoice.nullable().optional(),
   /** Re-pin the budgets to these versions (numbers); only while the campaign is editable. */
   budgetVersionA: z.number().int().min(1).optional(),
   budgetVersionB: z.number().int().min(1).optional(),

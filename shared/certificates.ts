@@ -13,11 +13,17 @@ const decimalString = z.string().regex(/^[+-]?\d+(\.\d+)?([eE][+-]?\d+)?$/, 'exp
 
 const sha256Hex = z.string().regex(/^[0-9a-f]{64}$/, 'expected a lower-case hex SHA-256');
 
-/** A value with its expanded uncertainty; certificates state k = 2 only. */
+/**
+ * A value with its expanded uncertainty U = k·u, k = t_p(ν_eff) (JCGM 100:2008 G.6.4). p and ν_eff are absent only in
+ * snapshots issued before they were recorded (those state k = 2).
+ */
 const expandedQuantity = z.object({
   value: z.number(),
   expandedUncertainty: z.number().nonnegative(),
-  coverageFactor: z.literal(2),
+  coverageFactor: z.number().positive(),
+  coverageProbability: z.number().gt(0).lt(1).optional(),
+  /** Welch–Satterthwaite ν_eff; null when infinite. */
+  effectiveDegreesOfFreedom: z.number().positive().nullable().optional(),
 });
 
 const clockSchema = z.object({
@@ -64,7 +70,12 @@ export const certificateSnapshotSchema = z
     uptimeFraction: z.number().min(0).max(1),
     measuredRatio: decimalString,
     referenceRatio: z.object({ value: decimalString, source: z.string().min(1) }),
-    fractionalOffset: z.object({ y: z.number(), standardUncertainty: z.number().nonnegative() }),
+    fractionalOffset: z.object({
+      y: z.number(),
+      standardUncertainty: z.number().nonnegative(),
+      /** y written with enough digits that rounding stays below u/10. */
+      yText: z.string().optional(),
+    }),
     deltaC_m2s2: expandedQuantity,
     deltaH_m: expandedQuantity,
     geodeticComparison: z.object({
@@ -78,6 +89,9 @@ export const certificateSnapshotSchema = z
       outputUnit: z.string().min(1),
       rows: z.array(budgetRowSchema).min(1),
       combinedStandardUncertainty: z.number().nonnegative(),
+      coverageFactor: z.number().positive().optional(),
+      coverageProbability: z.number().gt(0).lt(1).optional(),
+      effectiveDegreesOfFreedom: z.number().positive().nullable().optional(),
     }),
     allanDeviation: z.array(allanPointSchema).min(2),
     /** Decimated series for the thumbnail: seconds since measurement start, fractional offset y. */
@@ -91,6 +105,8 @@ export const certificateSnapshotSchema = z
     method: z.object({ statement: z.string().min(1), sources: z.array(z.string().min(1)).min(1) }),
     /** Campaign-specific cautions; the standing cautions are printed on every certificate anyway. */
     cautions: z.array(z.string().min(1)),
+    /** What the result takes for granted (correlations, lab corrections, tide model, frames); absent in older snapshots. */
+    assumptions: z.array(z.string().min(1)).optional(),
     signer: z.object({ name: z.string().min(1), role: z.string().min(1) }),
     verificationUrl: z.url(),
   })

@@ -4,11 +4,14 @@ import { stabilityPointSchema } from './calc';
 // The comparison result of a campaign: every number with its uncertainty, the inputs' hash, the constants and the
 // software version that produced it. Fractional quantities are dimensionless; units sit in the field names.
 
+/** U = k·u with k = t_p(ν_eff) (JCGM 100:2008 G.4.1, G.6.4); ν_eff null when infinite. */
 const expanded = z.object({
   value: z.number(),
   standardUncertainty: z.number().nonnegative(),
   expandedUncertainty: z.number().nonnegative(),
-  coverageFactor: z.literal(2),
+  coverageFactor: z.number().positive(),
+  coverageProbability: z.number(),
+  effectiveDegreesOfFreedom: z.number().nullable(),
 });
 
 const siteSchema = z.object({
@@ -95,8 +98,15 @@ export const resultBodySchema = z.object({
     standardUncertainty: z.number(),
     statisticalUncertainty: z.number().nullable(),
     statisticalMethod: z.string(),
+    /** Degrees of freedom of the statistical uncertainty (EDF of the deviation it rests on). */
+    statisticalDegreesOfFreedom: z.number().nullable(),
+    statisticalModel: z.enum(['white-fm', 'phase-noise', 'flicker-fm-floor', 'random-walk-fm', 'none']),
     tauFitSeconds: z.number().nullable(),
     meanMethod: z.string(),
+    /** y written with enough digits that its rounding stays below u/10. */
+    yText: z.string(),
+    /** Linear frequency drift, estimated and stated (not removed: the mean refers to the mean epoch either way). */
+    drift: z.object({ slopePerDay: z.number(), standardUncertaintyPerDay: z.number(), referenceEpochMjd: z.number(), note: z.string() }).nullable(),
   }),
   tide: z.object({
     system: z.enum(['mean-tide', 'zero-tide', 'tide-free']),
@@ -111,9 +121,12 @@ export const resultBodySchema = z.object({
     outputQuantity: z.string(),
     lines: z.array(budgetLineSchema),
     combinedStandardUncertainty: z.number(),
-    coverageFactor: z.literal(2),
+    /** k = t_p(ν_eff), p = coverageProbability (95.45 %); 2 when ν_eff is infinite. */
+    coverageFactor: z.number().positive(),
+    coverageProbability: z.number(),
     expandedUncertainty: z.number(),
     effectiveDegreesOfFreedom: z.number().nullable(),
+    coverageRule: z.string(),
     correlation: z.string(),
     systematicCorrections: z.string(),
   }),
@@ -132,6 +145,8 @@ export const resultBodySchema = z.object({
   stability: z.object({ tau0Seconds: z.number(), points: z.array(stabilityPointSchema), note: z.string() }),
   timeSeries: z.array(seriesPointSchema),
   method: z.object({ statement: z.string(), sources: z.array(z.string()) }),
+  /** What the result takes for granted: correlations, corrections applied by the labs, tide model, frames. */
+  assumptions: z.array(z.string()),
   cautions: z.array(z.string()),
 });
 export type ResultBody = z.infer<typeof resultBodySchema>;
@@ -150,4 +165,4 @@ export const comparisonResultSchema = z.object({
 });
 export type ComparisonResultDto = z.infer<typeof comparisonResultSchema>;
 
-export const resultCsvColumns = ['section', 'quantity', 'value', 'standard_uncertainty', 'expanded_uncertainty_k2', 'unit', 'note'] as const;
+export const resultCsvColumns = ['section', 'quantity', 'value', 'standard_uncertainty', 'expanded_uncertainty', 'unit', 'note'] as const;

@@ -1,10 +1,11 @@
 import {
+  budgetRequestSchema, budgetResponseSchema,
   geodesicRequestSchema, geodesicResponseSchema, normalGravityRequestSchema, normalGravityResponseSchema, redshiftRequestSchema,
   redshiftResponseSchema, stabilityRequestSchema, stabilityResponseSchema, tideRequestSchema, tideResponseSchema,
   transformRequestSchema, transformResponseSchema,
 } from '../../shared/calc';
 import { route } from '../http/route';
-import { coordinateTransform, geodesic, normalGravity, redshift, stability, tide } from './calc.service';
+import { budget, coordinateTransform, geodesic, normalGravity, redshift, stability, tide } from './calc.service';
 
 // Calculator routes: stateless conversions for every role (permission calc:use).
 export const calcRoutes = [
@@ -37,5 +38,10 @@ export const calcRoutes = [
     method: 'post', path: '/api/v1/calc/tide', summary: 'Solid-Earth tidal potential at a clock for given epochs', tag: 'calculator',
     permission: 'calc:use', body: tideRequestSchema, response: tideResponseSchema,
     handler: async ({ body }) => tide(body),
+  }),
+  route({
+    method: 'post', path: '/api/v1/calc/budget', summary: 'GUM budget: combined uncertainty, ν_eff and k = t_p(ν_eff)', tag: 'calculator',
+    permission: 'calc:use', body: budgetRequestSchema, response: budgetResponseSchema,
+    handler: async ({ body }) => budget(body),
   }),
 ];

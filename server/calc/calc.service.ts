@@ -1,17 +1,18 @@
 import type {
-  GeodesicRequest, GeodesicResponse, NormalGravityRequest, NormalGravityResponse, RedshiftResponse, StabilityResponse,
+  BudgetResponse, GeodesicRequest, GeodesicResponse, NormalGravityRequest, NormalGravityResponse, RedshiftResponse, StabilityPointDto, StabilityResponse,
   TideResponse, TransformResponse,
 } from '../../shared/calc';
-import { redshiftRequestSchema, stabilityRequestSchema, tideRequestSchema, transformRequestSchema } from '../../shared/calc';
+import { budgetRequestSchema, redshiftRequestSchema, stabilityRequestSchema, tideRequestSchema, transformRequestSchema } from '../../shared/calc';
 import type { z } from 'zod';
 import { Invalid } from '../http/errors';
 import { ScienceInputError } from '../science/errors';
 import { geodesicInverse, resolveCrs, toGrs80Geodetic, transform } from '../science/geodesy';
 import { meanNormalGravity, normalGravityAtHeight } from '../science/normal-gravity';
 import { redshiftCalculator } from '../science/redshift';
-import { stabilityAnalysis } from '../science/stability';
+import { stabilityAnalysis, type StabilityPoint } from '../science/stability';
 import { tidePotentialSeries } from '../science/tides';
 import { C2_M2_PER_S2 } from '../science/constants';
+import { COVERAGE_PROBABILITY_K2, combineBudget } from '../science/uncertainty';
 
 // Calculator service: no state, no database; each function validates what zod cannot (multiples of τ0, CRS strings)
 // and turns the science core's ScienceInputError into a 400 naming the request field.
@@ -63,12 +64,20 @@ export function stability(body: z.output<typeof stabilityRequestSchema>): Stabil
     { y: 'fractionalFrequency', x: 'phaseSeconds', ms: 'tauSeconds' },
   );
   return {
-    points: points.map((p) => ({
-      tauSeconds: p.tauSeconds, n: p.n, adev: p.adev, adevLow: p.adevLow, adevHigh: p.adevHigh, mdev: p.mdev, tdev: p.tdev,
-      edf: p.edf, noiseType: p.noiseType, noiseIdentified: p.noiseIdentified,
-    })),
-    method:
-      'Overlapping Allan deviation (adev), modified Allan deviation (mdev) and time deviation (tdev, seconds) after NIST SP 1065 §5.2; adevLow/adevHigh: 68.3 % chi-square interval with the SP 1065 §5.3 EDF for the noise type found by lag-1 autocorrelation.',
+    points: points.map(stabilityPointDto),
+    method: STABILITY_METHOD,
+  };
+}
+
+export const STABILITY_METHOD =
+  'Overlapping Allan deviation (adev), modified Allan deviation (mdev), time deviation (tdev, seconds), overlapping Hadamard deviation (hdev) and total deviation (totdev, records without gaps) after NIST SP 1065 §5.2; *Low/*High: 68.3 % chi-square intervals with the EDF of Greenhall & Riley (2003) for the noise type found at each τ (lag-1 autocorrelation, SP 1065 §5.6; B1 ratio and R(n) where the autocorrelation is inconclusive).';
+
+export function stabilityPointDto(p: StabilityPoint): StabilityPointDto {
+  return {
+    tauSeconds: p.tauSeconds, n: p.n, adev: p.adev, adevLow: p.adevLow, adevHigh: p.adevHigh, mdev: p.mdev, tdev: p.tdev,
+    edf: p.edf, noiseType: p.noiseType, noiseIdentified: p.noiseIdentified, noiseMethod: p.noiseMethod,
+    mdevLow: p.mdevLow, mdevHigh: p.mdevHigh, tdevLow: p.tdevLow, tdevHigh: p.tdevHigh,
+    hdev: p.hdev, hdevLow: p.hdevLow, hdevHigh: p.hdevHigh, totdev: p.totdev,
   };
 }
 
@@ -113,5 +122,28 @@ export function tide(body: z.output<typeof tideRequestSchema>): TideResponse {
     unit: 'm2/s2',
     method:
       'Degree-2 Moon and Sun tidal potential times 1 + k2 − h2 = 0.68745 (IERS Conventions 2010, ch. 6–7), body positions from astronomy-engine; mean-tide leaves out the permanent part, tide-free keeps it. Epochs are UTC (UT1 − UTC neglected).',
+  };
+}
+
+export function budget(body: z.output<typeof budgetRequestSchema>): BudgetResponse {
+  const p = body.coverageProbability ?? COVERAGE_PROBABILITY_K2;
+  const b = withFieldMap(() =>
+    combineBudget(
+      body.components.map((c) => ({
+        name: c.name, type: c.degreesOfFreedom ? 'A' : 'B', standardUncertainty: c.standardUncertainty, sensitivity: c.sensitivity, unit: '',
+        degreesOfFreedom: c.degreesOfFreedom ?? undefined,
+      })),
+      { coverageProbability: p },
+    ),
+  );
+  return {
+    combinedStandardUncertainty: b.combinedStandardUncertainty,
+    effectiveDegreesOfFreedom: Number.isFinite(b.effectiveDegreesOfFreedom) ? b.effectiveDegreesOfFreedom : null,
+    coverageFactor: b.coverageFactor,
+    expandedUncertainty: b.expandedUncertainty,
+    coverageProbability: p,
+    contributions: b.lines.map((l) => ({ name: l.name, contribution: l.contribution, varianceShare: l.varianceShare })),
+    method:
+      'u_c = √Σ(c_i·u(x_i))² for uncorrelated inputs (JCGM 100:2008 eq. 10); ν_eff by Welch–Satterthwaite (G.2b), truncated to an integer; k = t_p(ν_eff) (G.4.1, G.6.4), the normal quantile when ν_eff is infinite.',
   };
 }

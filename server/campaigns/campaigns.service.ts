@@ -1,4 +1,5 @@
 import type { DataSource, EntityManager, SelectQueryBuilder } from 'typeorm';
+import { ratioFromMeasured } from '../registry/measured-ratios';
 import {
   createCampaignSchema,
   editableStates,
@@ -392,7 +393,9 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
         if (a.instituteId !== actor.instituteId) throw new Forbidden('Clock A must belong to your institute: the owning institute is clock A’s.');
         await checkLinkJoinsClocks(m, body.linkId, a, b);
         const ratio = body.referenceRatio
-          ? overrideRatio(body.referenceRatio)
+          ? body.referenceRatio.measuredRatioId
+            ? await ratioFromMeasured(m, { measuredRatioId: body.referenceRatio.measuredRatioId, justification: body.referenceRatio.justification }, a.species, b.species)
+            : overrideRatio(body.referenceRatio as ReferenceRatioOverride)
           : await defaultReferenceRatio(m, a.species, b.species).then((d) => ({ referenceRatio: d.value, referenceRatioRelativeUncertainty: d.relativeUncertainty, referenceRatioSource: d.source, referenceRatioJustification: null }));
         const [budgetA, budgetB] = [await currentBudget(m, a), await currentBudget(m, b)];
         const repo = m.getRepository(CampaignEntity);
@@ -448,7 +451,9 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
           Object.assign(
             patch,
             body.referenceRatio
-              ? overrideRatio(body.referenceRatio)
+              ? body.referenceRatio.measuredRatioId
+                ? await ratioFromMeasured(m, { measuredRatioId: body.referenceRatio.measuredRatioId, justification: body.referenceRatio.justification }, c.clockA!.species, c.clockB!.species)
+                : overrideRatio(body.referenceRatio as ReferenceRatioOverride)
               : await defaultReferenceRatio(m, c.clockA!.species, c.clockB!.species).then((d) => ({ referenceRatio: d.value, referenceRatioRelativeUncertainty: d.relativeUncertainty, referenceRatioSource: d.source, referenceRatioJustification: null })),
           );
         }

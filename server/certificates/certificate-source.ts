@@ -102,11 +102,11 @@ export function snapshotBodyFrom(campaign: CampaignForResult, result: Comparison
         ? `${r.referenceRatio.source} (relative standard uncertainty ${r.referenceRatio.relativeUncertainty.toExponential(1)})`
         : `${r.referenceRatio.source} (exact by definition)`,
     },
-    fractionalOffset: { y: r.fractionalOffset.y, standardUncertainty: r.fractionalOffset.standardUncertainty },
-    deltaC_m2s2: { value: r.deltaC_m2s2.value, expandedUncertainty: r.deltaC_m2s2.expandedUncertainty, coverageFactor: 2 },
-    deltaH_m: { value: r.deltaH_m.value, expandedUncertainty: r.deltaH_m.expandedUncertainty, coverageFactor: 2 },
+    fractionalOffset: { y: r.fractionalOffset.y, standardUncertainty: r.fractionalOffset.standardUncertainty, yText: r.fractionalOffset.yText },
+    deltaC_m2s2: expandedPart(r.deltaC_m2s2),
+    deltaH_m: expandedPart(r.deltaH_m),
     geodeticComparison: {
-      deltaHGeodesy_m: { value: r.geodesy.deltaH_m.value, expandedUncertainty: r.geodesy.deltaH_m.expandedUncertainty, coverageFactor: 2 },
+      deltaHGeodesy_m: expandedPart(r.geodesy.deltaH_m),
       source: r.geodesy.source,
       En: r.geodesy.en,
       agreed: r.geodesy.agreed,
@@ -120,6 +120,9 @@ export function snapshotBodyFrom(campaign: CampaignForResult, result: Comparison
         contribution: l.contribution * C2_M2_PER_S2, unit: /^1\b/.test(l.unit) || !l.unit ? '1' : l.unit,
       })),
       combinedStandardUncertainty: r.budget.combinedStandardUncertainty * C2_M2_PER_S2,
+      coverageFactor: r.budget.coverageFactor,
+      coverageProbability: r.budget.coverageProbability,
+      effectiveDegreesOfFreedom: r.budget.effectiveDegreesOfFreedom,
     },
     allanDeviation: allan,
     timeSeries: filledSeries.map((p) => ({ tSeconds: (p.mjd - mjd0) * 86_400, y: p.y })),
@@ -130,6 +133,15 @@ export function snapshotBodyFrom(campaign: CampaignForResult, result: Comparison
     inputFiles: r.inputFiles.map((f) => ({ name: f.name, sha256: f.sha256 })),
     method: r.method,
     cautions: r.cautions,
+    assumptions: r.assumptions,
+  };
+}
+
+/** Value, U and the coverage statement (k, p, ν_eff) of a result quantity. */
+function expandedPart(q: ComparisonResultDto['result']['deltaC_m2s2']): SnapshotBody['deltaC_m2s2'] {
+  return {
+    value: q.value, expandedUncertainty: q.expandedUncertainty, coverageFactor: q.coverageFactor,
+    coverageProbability: q.coverageProbability, effectiveDegreesOfFreedom: q.effectiveDegreesOfFreedom,
   };
 }
 

@@ -3,12 +3,14 @@ import fs from 'node:fs';
 import Decimal from 'decimal.js';
 import type { BudgetLineDto, ResultBody } from '../../shared/results';
 import type { CampaignForResult, ClockForResult } from '../campaigns/campaigns.service';
-import { combineBudget, type BudgetComponent } from '../science/uncertainty';
+import { COVERAGE_PROBABILITY_K2, combineBudget, coverageFactorFor, type BudgetComponent } from '../science/uncertainty';
 import { C2_M2_PER_S2, L_G, W0_IHRS_M2_PER_S2, W0_LG_M2_PER_S2 } from '../science/constants';
 import { normalisedError } from '../science/agreement';
 import { cFromNormalHeight, meanNormalGravity, normalHeightFromC } from '../science/normal-gravity';
 import { potentialDifferenceFromY } from '../science/redshift';
-import { gridFromEpochs, meanWithStatisticalUncertainty, stabilityAnalysis, type RegularGrid } from '../science/stability';
+import { estimateLinearDrift, gridFromEpochs, meanWithStatisticalUncertainty, stabilityAnalysis, type RegularGrid } from '../science/stability';
+import { stabilityPointDto } from '../calc/calc.service';
+import { coverageText, formatForUncertainty } from '../../shared/number-text';
 import { convertPotentialDifference, tidePotentialSeries, type TideSystem } from '../science/tides';
 import { ScienceInputError } from '../science/errors';
 import { formatScientific } from '../certificates/pdf/number-format';
@@ -46,9 +48,13 @@ const MAX_SERIES_POINTS = 1500;
 
 /**
  * Revision of the computation and of the stored result's shape within one software version; a stored result of an
- * older revision is recomputed. 2: τ0 snapped to the microsecond, empty series buckets kept as nulls.
+ * older revision is recomputed. 2: τ0 snapped to the microsecond, empty series buckets kept as nulls. 3: noise identified
+ * at each τ, u(ȳ) by noise type with its EDF, k = t_p(ν_eff), Hadamard/total deviation, assumptions.
  */
-const RESULT_REVISION = 2;
+const RESULT_REVISION = 3;
+
+/** Share of u_c² above which the reference-ratio term is said to dominate (more than half the variance). */
+const REFERENCE_RATIO_DOMINANT_SHARE = 0.5;
 
 /** SHA-256 over everything the result depends on except the sample values themselves (those enter through their files' SHA-256). */
 export function inputHashOf(campaign: CampaignForResult, files: readonly InputFile[], softwareVersion = SOFTWARE_VERSION): string {
@@ -196,11 +202,10 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
 
   const tidePeakToPeak = tideMax - tideMin;
   const tideModelU = Math.max(TIDE_MODEL_RELATIVE * tidePeakToPeak, TIDE_MODEL_FLOOR);
-  const fitPoint = points.find((p) => p.tauSeconds === mean.tauFitSeconds);
   const components: (BudgetComponent & { note: string })[] = [
     {
       name: 'Statistical (frequency instability)', type: 'A', standardUncertainty: mean.statisticalUncertainty ?? 0, sensitivity: 1, unit: '1',
-      degreesOfFreedom: fitPoint?.edf ?? undefined, note: mean.method,
+      degreesOfFreedom: mean.degreesOfFreedom ?? undefined, note: mean.method,
     },
     {
       name: `Clock A systematic (${a.name}, budget v${a.budget.version})`, type: 'B', standardUncertainty: a.budget.totalUncertainty, sensitivity: -1, unit: '1',
@@ -220,8 +225,16 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
       note: `max(${TIDE_MODEL_RELATIVE * 100} % of the correction’s peak-to-peak, ${formatScientific(TIDE_MODEL_FLOOR, 1)}) — our assumption`,
     },
   ];
-  const budget = combineBudget(components, 2);
+  const budget = combineBudget(components, { coverageProbability: COVERAGE_PROBABILITY_K2 });
   const uY = budget.combinedStandardUncertainty;
+  const k = budget.coverageFactor;
+  const coverage = {
+    coverageFactor: k,
+    coverageProbability: COVERAGE_PROBABILITY_K2,
+    effectiveDegreesOfFreedom: Number.isFinite(budget.effectiveDegreesOfFreedom) ? budget.effectiveDegreesOfFreedom : null,
+  };
+  // Registered heights carry no stated degrees of freedom: k = 2 (ν_eff infinite).
+  const geodesyCoverage = { coverageFactor: coverageFactorFor(Infinity), coverageProbability: COVERAGE_PROBABILITY_K2, effectiveDegreesOfFreedom: null };
   const lines: BudgetLineDto[] = components.map((c, i) => ({
     component: c.name, type: c.type, standardUncertainty: c.standardUncertainty, sensitivity: c.sensitivity,
     contribution: budget.lines[i].contribution, varianceShare: budget.lines[i].varianceShare, unit: c.unit, note: c.note,
@@ -236,16 +249,16 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
   const uGeo = Math.hypot(a.site.normalHeightUncertaintyM, b.site.normalHeightUncertaintyM);
   let geodesy: ResultBody['geodesy'] = null;
   if (uGeo > 0 || uDh > 0) {
-    const agreement = normalisedError(h.deltaH_m, 2 * uDh, geoDh, 2 * uGeo);
+    const agreement = normalisedError(h.deltaH_m, k * uDh, geoDh, geodesyCoverage.coverageFactor * uGeo);
     geodesy = {
-      deltaH_m: { value: geoDh, standardUncertainty: uGeo, expandedUncertainty: 2 * uGeo, coverageFactor: 2 },
+      deltaH_m: { value: geoDh, standardUncertainty: uGeo, expandedUncertainty: geodesyCoverage.coverageFactor * uGeo, ...geodesyCoverage },
       source: 'registered normal heights of the two sites (h − ζ or as entered), taken as mean-tide',
       en: agreement.en,
       agreed: agreement.agreed,
       differenceM: agreement.difference,
       statement: agreement.agreed
-        ? `Agreed: |E_n| = ${Math.abs(agreement.en).toFixed(2)} ≤ 1 — the clock and the geodetic height differences agree within their expanded uncertainties (k = 2).`
-        : `Not agreed: |E_n| = ${Math.abs(agreement.en).toFixed(2)} > 1 — the clock and the geodetic height differences differ by more than their combined expanded uncertainty (k = 2).`,
+        ? `Agreed: |E_n| = ${Math.abs(agreement.en).toFixed(2)} ≤ 1 — the clock and the geodetic height differences agree within their expanded uncertainties (clocks ${coverageText(coverage)}; geodesy k = 2).`
+        : `Not agreed: |E_n| = ${Math.abs(agreement.en).toFixed(2)} > 1 — the clock and the geodetic height differences differ by more than their combined expanded uncertainty (clocks ${coverageText(coverage)}; geodesy k = 2).`,
     };
   }
 
@@ -260,7 +273,25 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
   const r0 = new Decimal(campaign.referenceRatio.value);
   const measuredRatio = r0.times(new Decimal(1).plus(new Decimal(yUncorrected))).toSignificantDigits(21).toFixed();
 
+  let drift: ResultBody['fractionalOffset']['drift'] = null;
+  if (validCount >= 3) {
+    const d = estimateLinearDrift(grid.y, tau0, grid.valid);
+    drift = {
+      slopePerDay: d.slopePerSecond * 86_400,
+      standardUncertaintyPerDay: d.slopeUncertaintyPerSecond * 86_400,
+      referenceEpochMjd: grid.startMjd + d.referenceEpochSeconds / 86_400,
+      note: 'Least-squares slope of the tide-corrected y, stated and not removed: the mean refers to the mean epoch of the valid samples either way. Its uncertainty assumes white FM residuals and is too small under flicker or random-walk FM.',
+    };
+  }
+
   const cautions: string[] = [];
+  const referenceShare = budget.lines[4].varianceShare;
+  if (referenceShare > REFERENCE_RATIO_DOMINANT_SHARE) {
+    cautions.push(`The reference-ratio term dominates the combined uncertainty (${(100 * referenceShare).toFixed(0)} % of u_c²): the result is limited by the value of R0 (${campaign.referenceRatio.source}), not by the comparison.`);
+  }
+  if (mean.model === 'flicker-fm-floor' || mean.model === 'random-walk-fm') {
+    cautions.push(`The comparison reaches a ${mean.model === 'flicker-fm-floor' ? 'flicker' : 'random-walk'} frequency-noise floor: the statistical uncertainty is a bound from the longest τ with adequate degrees of freedom, not an extrapolation.`);
+  }
   if (mean.statisticalUncertainty === null) cautions.push('Too few samples for an Allan deviation: no statistical uncertainty is included.');
   if (!gridNote.startsWith('Samples placed')) cautions.push(gridNote);
   if (campaign.referenceRatio.justification) cautions.push(`Reference ratio chosen with justification: ${campaign.referenceRatio.justification}`);
@@ -294,7 +325,11 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
       standardUncertainty: uY,
       statisticalUncertainty: mean.statisticalUncertainty,
       statisticalMethod: mean.method,
+      statisticalDegreesOfFreedom: mean.degreesOfFreedom,
+      statisticalModel: mean.model,
       tauFitSeconds: mean.tauFitSeconds,
+      yText: formatForUncertainty(yMean, uY),
+      drift,
       meanMethod: 'Arithmetic mean of the valid tide-corrected samples: every sample stands for the same τ0, so equal weights are the weighted mean.',
     },
     tide: {
@@ -310,16 +345,16 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
       outputQuantity: 'fractional frequency offset y (dimensionless)',
       lines,
       combinedStandardUncertainty: uY,
-      coverageFactor: 2,
+      ...coverage,
       expandedUncertainty: budget.expandedUncertainty,
-      effectiveDegreesOfFreedom: Number.isFinite(budget.effectiveDegreesOfFreedom) ? budget.effectiveDegreesOfFreedom : null,
+      coverageRule: `k = t_p(ν_eff) for p = 95.45 %, ν_eff by Welch–Satterthwaite truncated to an integer (JCGM 100:2008 G.4.1, G.6.4); k = 2 when ν_eff is infinite. Here ${coverageText(coverage)}.`,
       correlation: budget.correlation,
       systematicCorrections:
         'Uploaded ratios are taken as reported by the labs, i.e. with each clock’s systematic corrections already applied (common practice); the budget totals enter as uncertainties only and the correction totals are listed for traceability.',
     },
-    deltaC_m2s2: { value: dc.deltaC_m2s2, standardUncertainty: uDc, expandedUncertainty: 2 * uDc, coverageFactor: 2 },
+    deltaC_m2s2: { value: dc.deltaC_m2s2, standardUncertainty: uDc, expandedUncertainty: k * uDc, ...coverage },
     deltaH_m: {
-      value: h.deltaH_m, standardUncertainty: uDh, expandedUncertainty: 2 * uDh, coverageFactor: 2,
+      value: h.deltaH_m, standardUncertainty: uDh, expandedUncertainty: k * uDh, ...coverage,
       method: 'H_B = C_B/γ̄_B with C_B = C_A + ΔC and C_A = H_A·γ̄_A (GRS80 mean normal gravity along each normal plumb line, Heiskanen & Moritz 1967 eq. 4-42); ΔH = H_B − H_A (normal heights).',
     },
     geodesy,
@@ -332,19 +367,17 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
     },
     stability: {
       tau0Seconds: tau0,
-      points: points.map((p) => ({
-        tauSeconds: p.tauSeconds, n: p.n, adev: p.adev, adevLow: p.adevLow, adevHigh: p.adevHigh, mdev: p.mdev, tdev: p.tdev,
-        edf: p.edf, noiseType: p.noiseType, noiseIdentified: p.noiseIdentified,
-      })),
-      note: `Tide-corrected y on the τ0 grid with gaps (NIST SP 1065 §5.2, overlapping estimators; 68.3 % intervals). ${gridNote}`,
+      points: points.map(stabilityPointDto),
+      note: `Tide-corrected y on the τ0 grid with gaps (NIST SP 1065 §5.2, overlapping estimators; 68.3 % intervals with the Greenhall–Riley EDF for the noise found at each τ). ${gridNote}`,
     },
     timeSeries: decimate(epochMjd, y, valid, tideY),
     method: {
       statement:
-        'y = R/R0 − 1 per sample (decimal arithmetic), periodic tide removed per sample, mean over valid samples, statistical uncertainty from the Allan deviation at the full averaging time, GUM budget with uncorrelated inputs, ΔC = c²·y (first order), ΔH via GRS80 mean normal gravity, E_n against the sites’ registered normal heights (geodesy).',
+        'y = R/R0 − 1 per sample (decimal arithmetic), periodic tide removed per sample, mean over valid samples, statistical uncertainty of the mean from the noise identified at each τ (white FM fitted over all white-FM τ; flicker or random-walk FM floors bounded at the longest τ with adequate EDF), GUM budget with uncorrelated inputs and k = t_p(ν_eff), ΔC = c²·y (first order), ΔH via GRS80 mean normal gravity, E_n against the sites’ registered normal heights (geodesy).',
       sources: [
         'IEEE Std 1139-2008; NIST SP 1065 (Riley 2008)',
-        'JCGM 100:2008 (GUM)',
+        'Greenhall & Riley 2003, Uncertainty of stability variances based on finite differences (35th PTTI)',
+        'JCGM 100:2008 (GUM), G.4 and G.6.4',
         'IERS Conventions 2010 (TN 36), ch. 6–7',
         'Moritz 2000, Geodetic Reference System 1980, J Geod 74',
         'Heiskanen & Moritz 1967, Physical Geodesy, ch. 4',
@@ -352,6 +385,15 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
         'IAG Resolution No. 1 (2015), IHRS',
       ],
     },
+    assumptions: [
+      'All budget inputs are taken as uncorrelated (JCGM 100:2008 eq. 10): the statistical part, both clock systematics, the fibre link, the reference ratio and the tide model.',
+      'The uploaded ratios carry each lab’s systematic corrections already applied; the budget totals enter as uncertainties only.',
+      `Periodic solid-Earth tide removed with the IERS 2010 degree-2 model (permanent part kept, mean-tide); its own uncertainty is max(${TIDE_MODEL_RELATIVE * 100} % of the peak-to-peak correction, ${formatScientific(TIDE_MODEL_FLOOR, 1)}); ocean loading and atmospheric effects are not modelled.`,
+      'Site coordinates, ellipsoidal heights, quasigeoid heights and normal heights are taken to refer to coincident reference frames and epochs; no frame transformation or station motion is applied.',
+      'Registered normal heights are taken as mean-tide.',
+      'The statistical uncertainty rests on the noise type identified at each τ; for a flicker or random-walk FM floor it is a bound for the mean over this record.',
+      'ΔC = c²·y to first order in 1/c² (terms of order 10⁻¹⁸·y are neglected).',
+    ],
     cautions,
   };
 }

@@ -196,16 +196,20 @@ export function resultToCsv(dto: ComparisonResultDto): string {
     ['result', 'y', r.fractionalOffset.y, r.fractionalOffset.standardUncertainty, r.budget.expandedUncertainty, '1', 'tide-corrected'],
     ...r.budget.lines.map((l) => ['budget', l.component, l.sensitivity, l.standardUncertainty, null, l.unit, `type ${l.type}; contribution ${l.contribution}; ${l.note}`]),
     ['budget', 'combined', r.budget.combinedStandardUncertainty, r.budget.combinedStandardUncertainty, r.budget.expandedUncertainty, '1', r.budget.correlation],
-    ['result', 'delta_C', r.deltaC_m2s2.value, r.deltaC_m2s2.standardUncertainty, r.deltaC_m2s2.expandedUncertainty, 'm2/s2', 'C_B − C_A'],
-    ['result', 'delta_H', r.deltaH_m.value, r.deltaH_m.standardUncertainty, r.deltaH_m.expandedUncertainty, 'm', 'H_B − H_A (normal heights)'],
+    ['budget', 'coverage_factor_k', r.budget.coverageFactor, null, null, '1', r.budget.coverageRule],
+    ['budget', 'coverage_probability_p', r.budget.coverageProbability, null, null, '1', ''],
+    ['budget', 'effective_degrees_of_freedom', r.budget.effectiveDegreesOfFreedom ?? 'infinite', null, null, '1', 'Welch–Satterthwaite (JCGM 100:2008 G.4)'],
+    ['result', 'delta_C', r.deltaC_m2s2.value, r.deltaC_m2s2.standardUncertainty, r.deltaC_m2s2.expandedUncertainty, 'm2/s2', `C_B − C_A; k = ${r.deltaC_m2s2.coverageFactor}`],
+    ['result', 'delta_H', r.deltaH_m.value, r.deltaH_m.standardUncertainty, r.deltaH_m.expandedUncertainty, 'm', `H_B − H_A (normal heights); k = ${r.deltaH_m.coverageFactor}`],
     ...(r.geodesy
       ? [
-          ['geodesy', 'delta_H_geodetic', r.geodesy.deltaH_m.value, r.geodesy.deltaH_m.standardUncertainty, r.geodesy.deltaH_m.expandedUncertainty, 'm', r.geodesy.source],
+          ['geodesy', 'delta_H_geodetic', r.geodesy.deltaH_m.value, r.geodesy.deltaH_m.standardUncertainty, r.geodesy.deltaH_m.expandedUncertainty, 'm', `${r.geodesy.source}; k = ${r.geodesy.deltaH_m.coverageFactor}`],
           ['geodesy', 'E_n', r.geodesy.en, null, null, '1', r.geodesy.agreed ? 'agreed (|E_n| ≤ 1)' : 'not agreed (|E_n| > 1)'],
         ]
       : []),
     ...r.otherTideSystems.map((o) => ['tide_system', `delta_C_${o.system}`, o.deltaC_m2s2, null, null, 'm2/s2', `delta_H ${o.deltaH_m} m`]),
-    ...r.stability.points.map((p) => ['stability', `adev_tau_${p.tauSeconds}s`, p.adev, null, null, '1', `68% interval ${p.adevLow}…${p.adevHigh}; mdev ${p.mdev}; noise ${p.noiseType}`]),
+    ...r.stability.points.map((p) => ['stability', `adev_tau_${p.tauSeconds}s`, p.adev, null, null, '1', `68% interval ${p.adevLow}…${p.adevHigh}; mdev ${p.mdev} (${p.mdevLow}…${p.mdevHigh}); hdev ${p.hdev}; totdev ${p.totdev}; noise ${p.noiseType} (${p.noiseMethod})`]),
+    ...r.assumptions.map((a, i) => ['assumption', `assumption_${i + 1}`, a, null, null, '', '']),
   ];
   return [resultCsvColumns.join(','), ...rows.map((row) => row.map(csvCell).join(','))].join('\n') + '\n';
 }

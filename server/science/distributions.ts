@@ -167,3 +167,74 @@ export function normalQuantile(p: number): number {
   }
   return x;
 }
+
+/** Continued fraction of the regularised incomplete beta function (Numerical Recipes 3rd ed. §6.4, modified Lentz). */
+function betaContinuedFraction(a: number, b: number, x: number): number {
+  const qab = a + b;
+  const qap = a + 1;
+  const qam = a - 1;
+  let c = 1;
+  let d = 1 - (qab * x) / qap;
+  if (Math.abs(d) < TINY) d = TINY;
+  d = 1 / d;
+  let h = d;
+  for (let m = 1; m < 10000; m++) {
+    const m2 = 2 * m;
+    let aa = (m * (b - m) * x) / ((qam + m2) * (a + m2));
+    d = 1 + aa * d;
+    if (Math.abs(d) < TINY) d = TINY;
+    c = 1 + aa / c;
+    if (Math.abs(c) < TINY) c = TINY;
+    d = 1 / d;
+    h *= d * c;
+    aa = (-(a + m) * (qab + m) * x) / ((a + m2) * (qap + m2));
+    d = 1 + aa * d;
+    if (Math.abs(d) < TINY) d = TINY;
+    c = 1 + aa / c;
+    if (Math.abs(c) < TINY) c = TINY;
+    d = 1 / d;
+    const del = d * c;
+    h *= del;
+    if (Math.abs(del - 1) < EPS) break;
+  }
+  return h;
+}
+
+/** Regularised incomplete beta I_x(a, b) (Numerical Recipes 3rd ed. §6.4, eq. 6.4.5 symmetry for convergence). */
+export function incompleteBeta(a: number, b: number, x: number): number {
+  if (x <= 0) return 0;
+  if (x >= 1) return 1;
+  const front = Math.exp(logGamma(a + b) - logGamma(a) - logGamma(b) + a * Math.log(x) + b * Math.log(1 - x));
+  if (x < (a + 1) / (a + b + 2)) return (front * betaContinuedFraction(a, b, x)) / a;
+  return 1 - (front * betaContinuedFraction(b, a, 1 - x)) / b;
+}
+
+/** Student t cumulative distribution function with nu degrees of freedom: 1 − ½·I_{ν/(ν+t²)}(ν/2, ½) for t ≥ 0. */
+export function studentTCdf(t: number, nu: number): number {
+  if (!(nu > 0)) throw new RangeError('degrees of freedom must be positive');
+  if (nu === Infinity) return normalCdf(t);
+  const tail = 0.5 * incompleteBeta(nu / 2, 0.5, nu / (nu + t * t));
+  return t >= 0 ? 1 - tail : tail;
+}
+
+/**
+ * Student t quantile t with P(T ≤ t) = p (nu may be fractional or Infinity, which gives the normal quantile).
+ * Bisection on the upper tail ½·I_{ν/(ν+t²)}(ν/2, ½), which keeps its relative precision for p near 1.
+ */
+export function studentTQuantile(p: number, nu: number): number {
+  if (!(nu > 0)) throw new RangeError('degrees of freedom must be positive');
+  if (!(p > 0 && p < 1)) throw new RangeError('probability must lie strictly between 0 and 1');
+  if (nu === Infinity) return normalQuantile(p);
+  if (p < 0.5) return -studentTQuantile(1 - p, nu);
+  const target = 1 - p;
+  const tail = (t: number): number => 0.5 * incompleteBeta(nu / 2, 0.5, nu / (nu + t * t));
+  let lo = 0;
+  let hi = Math.max(1, normalQuantile(p));
+  while (tail(hi) > target) hi *= 2;
+  for (let it = 0; it < 200 && hi - lo > 1e-14 * hi; it++) {
+    const mid = (lo + hi) / 2;
+    if (tail(mid) > target) lo = mid;
+    else hi = mid;
+  }
+  return (lo + hi) / 2;
+}

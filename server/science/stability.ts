@@ -12,13 +12,20 @@
 //   remaining terms. MDEV inner sums come from prefix sums of the second differences and need y valid on j … j+3m−2.
 
 import { chiSquareQuantile } from './distributions';
+import { expectedModRatio, greenhallEdf, type PowerLawAlpha } from './edf';
 import { ScienceInputError } from './errors';
 
 export type NoiseType = 'WPM' | 'FPM' | 'WFM' | 'FFM' | 'RWFM';
 
 const NOISE_BY_ALPHA: Record<number, NoiseType> = { 2: 'WPM', 1: 'FPM', 0: 'WFM', [-1]: 'FFM', [-2]: 'RWFM' };
+export const ALPHA_OF_NOISE: Readonly<Record<NoiseType, PowerLawAlpha>> = { WPM: 2, FPM: 1, WFM: 0, FFM: -1, RWFM: -2 };
 /** Riley & Greenhall: the lag-1 ACF estimate needs about this many averaged points. */
 const MIN_POINTS_FOR_NOISE_ID = 30;
+/** Fewest averages for the B1 ratio; below this the noise type is carried over from the shorter τ. */
+const MIN_POINTS_FOR_B1 = 8;
+
+/** How the noise type at a τ was found: lag-1 ACF, B1 ratio (with R(n) for the phase noises), or carried from a shorter τ. */
+export type NoiseMethod = 'acf' | 'b1' | 'carried';
 
 export interface StabilityPoint {
   tauSeconds: number;
@@ -35,11 +42,31 @@ export interface StabilityPoint {
   nMdev: number;
   /** Time deviation in seconds: τ/√3 · MDEV. */
   tdev: number | null;
-  /** Equivalent degrees of freedom of the OADEV estimate. */
+  /** Equivalent degrees of freedom of the OADEV estimate (Greenhall & Riley 2003, for the noise found at this τ). */
   edf: number | null;
+  /** Confidence interval of MDEV (and, scaled by τ/√3, of TDEV) from the modified-variance EDF. */
+  mdevLow: number | null;
+  mdevHigh: number | null;
+  edfMdev: number | null;
+  tdevLow: number | null;
+  tdevHigh: number | null;
+  /** Overlapping Hadamard deviation (SP 1065 §5.2.8), insensitive to a linear frequency drift. */
+  hdev: number | null;
+  hdevLow: number | null;
+  hdevHigh: number | null;
+  nHdev: number;
+  edfHdev: number | null;
+  /** Total deviation (SP 1065 §5.2.11, reflected at both ends); null for records with gaps. */
+  totdev: number | null;
+  totdevLow: number | null;
+  totdevHigh: number | null;
+  edfTotdev: number | null;
   noiseType: NoiseType;
   /** False when too few averaged points remained and the noise type was carried over from a shorter τ (or WFM assumed). */
   noiseIdentified: boolean;
+  noiseMethod: NoiseMethod;
+  /** Averages of length m that enter the noise identification (finite blocks). */
+  noiseBlocks: number;
 }
 
 export interface StabilityInput {
@@ -125,6 +152,8 @@ interface RawDeviations {
   nNonOverlapping: number;
   mvar: number;
   nMod: number;
+  ohvar: number;
+  nHad: number;
 }
 
 function deviationsForM(p: PreparedFrequency, m: number, scratch: Float64Array): RawDeviations {
@@ -163,8 +192,20 @@ function deviationsForM(p: PreparedFrequency, m: number, scratch: Float64Array):
       cntM++;
     }
   }
+  // Third differences of phase, x_{i+3m} − 3x_{i+2m} + 3x_{i+m} − x_i, span y_i … y_{i+3m−1}.
+  let sumH = 0;
+  let cntH = 0;
+  for (let i = 0; i + 3 * m <= n; i++) {
+    if (bad[i + 3 * m] === bad[i]) {
+      const h = s[i + 3 * m] - 3 * s[i + 2 * m] + 3 * s[i + m] - s[i];
+      sumH += h * h;
+      cntH++;
+    }
+  }
   const m2 = m * m;
   return {
+    ohvar: cntH > 0 ? sumH / (6 * m2 * cntH) : NaN,
+    nHad: cntH,
     oavar: cntO > 0 ? sumO / (2 * m2 * cntO) : NaN,
     nOverlapping: cntO,
     avar: cntA > 0 ? sumA / (2 * m2 * cntA) : NaN,
@@ -212,6 +253,14 @@ function lag1Autocorrelation(z: Float64Array): { r1: number; pairs: number } {
  * Gapped blocks are NaN and the ACF uses only pairs of adjacent finite values. Returns null with too few points.
  */
 export function identifyNoiseType(p: PreparedFrequency, m: number): NoiseType | null {
+  return identifyNoiseAcf(p, m)?.noise ?? null;
+}
+
+/** Distance of 2δ from the nearest whole number above which the ACF call is taken as inconclusive (0.5 = a coin toss). */
+const ACF_INCONCLUSIVE_MARGIN = 0.3;
+
+/** The lag-1 ACF identification with a flag for a conclusive call: 2δ within ±0.3 of a whole number. */
+export function identifyNoiseAcf(p: PreparedFrequency, m: number): { noise: NoiseType; conclusive: boolean } | null {
   const blocks = Math.floor(p.n / m);
   if (blocks < MIN_POINTS_FOR_NOISE_ID) return null;
   let z: Float64Array = new Float64Array(blocks);
@@ -226,7 +275,7 @@ export function identifyNoiseType(p: PreparedFrequency, m: number): NoiseType | 
     const delta = r1 / (1 + r1);
     if (delta < 0.25 || d === 2) {
       const alpha = Math.max(-2, Math.min(2, -Math.round(2 * delta) - 2 * d));
-      return NOISE_BY_ALPHA[alpha];
+      return { noise: NOISE_BY_ALPHA[alpha], conclusive: Math.abs(2 * delta - Math.round(2 * delta)) <= ACF_INCONCLUSIVE_MARGIN };
     }
     const next = new Float64Array(z.length - 1);
     for (let i = 0; i < next.length; i++) next[i] = z[i + 1] - z[i];
@@ -238,7 +287,7 @@ export function identifyNoiseType(p: PreparedFrequency, m: number): NoiseType | 
 /**
  * Equivalent degrees of freedom of the overlapping Allan variance: the simple approximations of NIST SP 1065 §5.3
  * (Table 5; Howe, Allan & Barnes 1981 — formula layout from memory), with N the number of phase points and m the
- * averaging factor. Gapped data use N = (number of terms) + 2m, the phase count of an unbroken record with as many terms.
+ * averaging factor. Kept as the cross-check of the Greenhall–Riley EDF that the analysis uses.
  */
 export function oadevEdf(noise: NoiseType, phasePoints: number, m: number): number {
   const N = phasePoints;
@@ -256,6 +305,91 @@ export function oadevEdf(noise: NoiseType, phasePoints: number, m: number): numb
   }
 }
 
+/**
+ * B1 bias function, the expected ratio of the N-sample variance to the Allan variance of N averages for
+ * σ²_y(τ) ∝ τ^μ (Barnes 1969; SP 1065 §5.6): B1(N, μ) = N(1 − N^μ) / (2(N − 1)(1 − 2^μ)), and its limit at μ = 0.
+ */
+export function b1Ratio(N: number, mu: number): number {
+  if (mu === 0) return (N * Math.log(N)) / (2 * (N - 1) * Math.LN2);
+  return (N * (1 - N ** mu)) / (2 * (N - 1) * (1 - 2 ** mu));
+}
+
+const NOISE_BY_MU: ReadonlyArray<readonly [number, NoiseType]> = [[-2, 'WPM'], [-1, 'WFM'], [0, 'FFM'], [1, 'RWFM']];
+
+/**
+ * Noise type from the B1 ratio of the m-averages (SP 1065 §5.6), for the long-τ end where the lag-1 ACF has too few
+ * points: the observed B1 is compared with B1(N, μ) for μ = −2 (phase noise), −1 (WFM), 0 (FFM), 1 (RWFM) on a log scale.
+ * For μ = −2, R(n) = Mod σ²/σ² tells white from flicker PM (expected values from the Greenhall–Riley autocovariance).
+ */
+export function identifyNoiseB1(p: PreparedFrequency, m: number, modOverAllan: number): { noise: NoiseType; blocks: number } | null {
+  const blocks = Math.floor(p.n / m);
+  const z: number[] = [];
+  let sumSq = 0;
+  let pairs = 0;
+  let previous = NaN;
+  for (let k = 0; k < blocks; k++) {
+    const a = k * m;
+    const b = a + m;
+    const v = p.bad[b] === p.bad[a] ? (p.prefix[b] - p.prefix[a]) / m : NaN;
+    if (v === v) {
+      z.push(v);
+      if (previous === previous) {
+        sumSq += (v - previous) ** 2;
+        pairs++;
+      }
+    }
+    previous = v;
+  }
+  const N = z.length;
+  if (N < MIN_POINTS_FOR_B1 || pairs < MIN_POINTS_FOR_B1 - 1) return null;
+  const mean = z.reduce((acc, v) => acc + v, 0) / N;
+  const variance = z.reduce((acc, v) => acc + (v - mean) ** 2, 0) / (N - 1);
+  const allan = sumSq / (2 * pairs);
+  if (!(allan > 0)) return null;
+  const observed = variance / allan;
+  let best: NoiseType = 'WFM';
+  let bestDistance = Infinity;
+  for (const [mu, noise] of NOISE_BY_MU) {
+    const distance = Math.abs(Math.log(observed / b1Ratio(N, mu)));
+    if (distance < bestDistance) {
+      bestDistance = distance;
+      best = noise;
+    }
+  }
+  if (best === 'WPM' && m > 1 && Number.isFinite(modOverAllan) && modOverAllan > 0) {
+    const white = expectedModRatio(2, m);
+    const flicker = expectedModRatio(1, m);
+    best = Math.abs(Math.log(modOverAllan / white)) <= Math.abs(Math.log(modOverAllan / flicker)) ? 'WPM' : 'FPM';
+  }
+  return { noise: best, blocks: N };
+}
+
+/**
+ * Total variance (SP 1065 §5.2.11): the phase record is extended by reflection about both end points,
+ * x*_{1−j} = 2x_1 − x_{1+j}, x*_{N+j} = 2x_N − x_{N−j}, and Totvar(τ) = Σ_{i=2}^{N−1} (x*_{i−m} − 2x*_i + x*_{i+m})² / (2τ²(N − 2)).
+ * Defined here for records without gaps and m ≤ (N − 1)/2 phase steps.
+ */
+function totalVariance(p: PreparedFrequency, m: number): number {
+  if (p.invalidCount > 0) return NaN;
+  const x = p.prefix; // phase in units of τ0, N = n + 1 points x_0 … x_n
+  const N = p.n + 1;
+  if (2 * m > N - 1) return NaN;
+  const at = (k: number): number => {
+    if (k < 0) return 2 * x[0] - x[-k];
+    if (k > N - 1) return 2 * x[N - 1] - x[2 * (N - 1) - k];
+    return x[k];
+  };
+  let sum = 0;
+  for (let i = 1; i <= N - 2; i++) {
+    const d = at(i - m) - 2 * x[i] + at(i + m);
+    sum += d * d;
+  }
+  return sum / (2 * m * m * (N - 2));
+}
+
+/** SP 1065 §5.3 Table 7 (from memory): EDF of the total variance ≈ b·(T/τ) − c for WFM, FFM and RWFM. */
+const TOTVAR_EDF: Partial<Record<NoiseType, readonly [number, number]>> = { WFM: [1.5, 0], FFM: [1.17, 0.22], RWFM: [0.93, 0.36] };
+
 /** Octave averaging factors 1, 2, 4, … while MDEV is still defined (3m ≤ N). */
 export function octaveFactors(sampleCount: number): number[] {
   const ms: number[] = [];
@@ -272,6 +406,21 @@ function frequencyInput(input: StabilityInput): { y: Float64Array; valid?: Uint8
 
 function finiteOrNull(v: number): number | null {
   return Number.isFinite(v) ? v : null;
+}
+
+/** χ² interval of a deviation with `edf` degrees of freedom at two-sided confidence `confidence` (SP 1065 §5.3). */
+function chiSquareInterval(deviation: number, edf: number, confidence: number): [number, number] {
+  if (!(edf > 0) || !Number.isFinite(deviation)) return [NaN, NaN];
+  return [
+    deviation * Math.sqrt(edf / chiSquareQuantile((1 + confidence) / 2, edf)),
+    deviation * Math.sqrt(edf / chiSquareQuantile((1 - confidence) / 2, edf)),
+  ];
+}
+
+/** Greenhall–Riley EDF, or NaN where the variance is not defined for this noise (e.g. MVAR needs α > −3). */
+function edfOf(noise: NoiseType, m: number, phasePoints: number, d: 2 | 3, modified: boolean): number {
+  const edf = greenhallEdf(ALPHA_OF_NOISE[noise], m, phasePoints, { d, overlapping: true, modified });
+  return edf > 0 ? edf : NaN;
 }
 
 export function stabilityAnalysis(input: StabilityInput): StabilityPoint[] {
@@ -292,18 +441,35 @@ export function stabilityAnalysis(input: StabilityInput): StabilityPoint[] {
     if (2 * m > prepared.n) continue;
     const raw = deviationsForM(prepared, m, scratch);
     const tauSeconds = m * tau0;
-    const identified = identifyNoiseType(prepared, m);
-    const noiseType: NoiseType = identified ?? carried;
+    let noiseType: NoiseType = carried;
+    let noiseMethod: NoiseMethod = 'carried';
+    let noiseBlocks = Math.floor(prepared.n / m);
+    const byAcf = identifyNoiseAcf(prepared, m);
+    const byB1 = byAcf?.conclusive ? null : identifyNoiseB1(prepared, m, raw.mvar / raw.oavar);
+    if (byAcf && (byAcf.conclusive || !byB1)) {
+      noiseType = byAcf.noise;
+      noiseMethod = 'acf';
+    } else if (byB1) {
+      noiseType = byB1.noise;
+      noiseMethod = 'b1';
+      noiseBlocks = byB1.blocks;
+    }
     carried = noiseType;
     const adev = Math.sqrt(raw.oavar);
     const mdev = Math.sqrt(raw.mvar);
-    const edf = raw.nOverlapping > 0 ? oadevEdf(noiseType, raw.nOverlapping + 2 * m, m) : NaN;
-    let adevLow = NaN;
-    let adevHigh = NaN;
-    if (edf > 0 && Number.isFinite(adev)) {
-      adevLow = adev * Math.sqrt(edf / chiSquareQuantile((1 + confidence) / 2, edf));
-      adevHigh = adev * Math.sqrt(edf / chiSquareQuantile((1 - confidence) / 2, edf));
-    }
+    const hdev = Math.sqrt(raw.ohvar);
+    // Gapped records: N is the phase count of an unbroken record with as many terms.
+    const edf = raw.nOverlapping > 0 ? edfOf(noiseType, m, raw.nOverlapping + 2 * m, 2, false) : NaN;
+    const edfMdev = raw.nMod > 0 ? edfOf(noiseType, m, raw.nMod + 3 * m - 1, 2, true) : NaN;
+    const edfHdev = raw.nHad > 0 ? edfOf(noiseType, m, raw.nHad + 3 * m, 3, false) : NaN;
+    const [adevLow, adevHigh] = chiSquareInterval(adev, edf, confidence);
+    const [mdevLow, mdevHigh] = chiSquareInterval(mdev, edfMdev, confidence);
+    const [hdevLow, hdevHigh] = chiSquareInterval(hdev, edfHdev, confidence);
+    const totdev = Math.sqrt(totalVariance(prepared, m));
+    const tot = TOTVAR_EDF[noiseType];
+    const edfTotdev = Number.isFinite(totdev) ? (tot ? tot[0] * (prepared.n / m) - tot[1] : edf) : NaN;
+    const [totdevLow, totdevHigh] = chiSquareInterval(totdev, edfTotdev, confidence);
+    const tdevScale = tauSeconds / Math.sqrt(3);
     points.push({
       tauSeconds,
       m,
@@ -315,10 +481,26 @@ export function stabilityAnalysis(input: StabilityInput): StabilityPoint[] {
       nNonOverlapping: raw.nNonOverlapping,
       mdev: finiteOrNull(mdev),
       nMdev: raw.nMod,
-      tdev: finiteOrNull((tauSeconds / Math.sqrt(3)) * mdev),
+      tdev: finiteOrNull(tdevScale * mdev),
       edf: finiteOrNull(edf),
+      mdevLow: finiteOrNull(mdevLow),
+      mdevHigh: finiteOrNull(mdevHigh),
+      edfMdev: finiteOrNull(edfMdev),
+      tdevLow: finiteOrNull(tdevScale * mdevLow),
+      tdevHigh: finiteOrNull(tdevScale * mdevHigh),
+      hdev: finiteOrNull(hdev),
+      hdevLow: finiteOrNull(hdevLow),
+      hdevHigh: finiteOrNull(hdevHigh),
+      nHdev: raw.nHad,
+      edfHdev: finiteOrNull(edfHdev),
+      totdev: finiteOrNull(totdev),
+      totdevLow: finiteOrNull(totdevLow),
+      totdevHigh: finiteOrNull(totdevHigh),
+      edfTotdev: finiteOrNull(edfTotdev),
       noiseType,
-      noiseIdentified: identified !== null,
+      noiseIdentified: noiseMethod !== 'carried',
+      noiseMethod,
+      noiseBlocks,
     });
   }
   return points;
@@ -402,24 +584,105 @@ export function gridFromEpochs(epochsMjd: Float64Array, y: Float64Array, valid?:
   return { y: gy, valid: gv, tau0Seconds: tau0, startMjd, missingEpochs: length - n, invalidSamples };
 }
 
+/** How the statistical uncertainty of the mean was obtained. */
+export type MeanUncertaintyModel = 'white-fm' | 'phase-noise' | 'flicker-fm-floor' | 'random-walk-fm' | 'none';
+
 export interface MeanWithUncertainty {
   mean: number;
   statisticalUncertainty: number | null;
+  /** Degrees of freedom of the statistical uncertainty (EDF of the deviation(s) it rests on); null without one. */
+  degreesOfFreedom: number | null;
   validSamples: number;
   /** Time actually averaged: valid samples × τ0 (dead time excluded). */
   totalAveragingTimeSeconds: number;
+  /** First to last valid sample, plus τ0. */
+  spanSeconds: number;
+  /** τ of the deviation that bounds the mean (the longest adequate τ), or of the longest white-FM point. */
   tauFitSeconds: number | null;
+  model: MeanUncertaintyModel;
+  /** White-FM level fitted over every τ identified as white FM: σ_y(τ) = whiteFmSigma1s·(τ/1 s)^−1/2. */
+  whiteFm: { sigmaAt1s: number; tausSeconds: number[]; edf: number } | null;
+  /** The deviation at the long-τ end when flicker or random-walk FM was found there. */
+  floor: { noise: NoiseType; tauSeconds: number; deviation: number; deviationKind: 'OADEV' | 'TOTDEV'; edf: number } | null;
   method: string;
 }
 
-/** EDF below which an ADEV point is too uncertain to anchor the extrapolation. */
-const MIN_EDF_FOR_FIT = 10;
+/** EDF a deviation needs to bound the mean ("adequate EDF"). */
+const MIN_EDF_FOR_BOUND = 10;
+/** A noise type counts as established when found from at least this many averages (the lag-1 ACF minimum). */
+const MIN_BLOCKS_FOR_BOUND = MIN_POINTS_FOR_NOISE_ID;
+/** One-sided level of the test for an excess over the white-FM fit at the long-τ end (a floor the type test missed). */
+const EXCESS_TEST_LEVEL = 0.99;
 
 /**
- * Weighted mean of the valid y and its statistical uncertainty from the stability at the full averaging time:
- * σ_y(τ_total) = ADEV(τ_fit)·√(τ_fit/τ_total), τ_fit the longest τ whose ADEV has EDF ≥ 10, provided the noise there is
- * white FM (or a phase noise, which averages down faster, making the extrapolation conservative). If the longest
- * reliable τ shows flicker or random-walk FM, the ADEV at that τ is used without reduction (flicker floor assumption).
+ * Var(ȳ) of flicker FM over a record started at rest, relative to its (flat) Allan variance: 1/ln 2. Derived from the
+ * Kasdin & Walter (1992) discrete model, h_k ≈ k^−1/2/√π: Var(ȳ) → 2σ²/π and σ²_y(τ) = 2 ln 2·h₋₁ with h₋₁ = σ²/π
+ * (our derivation, checked by the Monte Carlo coverage benchmark).
+ */
+export const FLICKER_FM_MEAN_FACTOR = 1 / Math.sqrt(Math.LN2);
+
+function fmt(v: number): string {
+  return String(Number(v.toPrecision(4)));
+}
+
+const ALPHA_ORDER = (n: NoiseType): number => ALPHA_OF_NOISE[n];
+
+/**
+ * Weighted least squares of σ²_y(τ) = a/τ + c/τ² (white FM plus a white/flicker PM part), weights EDF/model² (the variance of
+ * an Allan-variance estimate is 2σ⁴/EDF, SP 1065 §5.3), two reweighting passes, c ≥ 0. a = σ²_y(1 s)·1 s.
+ */
+function fitWhiteFm(points: readonly StabilityPoint[]): { a: number; c: number } {
+  let a = 0;
+  let c = 0;
+  const avar = points.map((p) => p.adev! ** 2);
+  let model = avar.slice();
+  for (let pass = 0; pass < 3; pass++) {
+    let s11 = 0;
+    let s12 = 0;
+    let s22 = 0;
+    let b1 = 0;
+    let b2 = 0;
+    let sa = 0;
+    let sab = 0;
+    points.forEach((p, i) => {
+      const w = p.edf! / model[i] ** 2;
+      const f1 = 1 / p.tauSeconds;
+      const f2 = 1 / p.tauSeconds ** 2;
+      s11 += w * f1 * f1;
+      s12 += w * f1 * f2;
+      s22 += w * f2 * f2;
+      b1 += w * f1 * avar[i];
+      b2 += w * f2 * avar[i];
+      sa += w * f1 * f1;
+      sab += w * f1 * avar[i];
+    });
+    const det = s11 * s22 - s12 * s12;
+    a = sab / sa;
+    c = 0;
+    if (points.length >= 3 && det > 1e-12 * s11 * s22) {
+      const a2 = (b1 * s22 - b2 * s12) / det;
+      const c2 = (s11 * b2 - s12 * b1) / det;
+      if (c2 > 0 && a2 > 0) {
+        a = a2;
+        c = c2;
+      }
+    }
+    model = points.map((p) => a / p.tauSeconds + c / p.tauSeconds ** 2);
+  }
+  return { a, c };
+}
+
+/**
+ * Mean of the valid y and its statistical uncertainty, for the noise actually found at each τ:
+ * - white FM: σ²_y(τ) = a/τ (+ c/τ² for phase noise at short τ) is fitted over every τ identified as white or phase noise
+ *   before the first flicker/random-walk FM (the dominant α only falls as τ grows), weights = EDF; u(ȳ) = √(a/T), T the
+ *   valid averaging time (dead time excluded);
+ * - a flicker-FM floor at the longest τ with adequate EDF (≥ 10, noise found from ≥ 30 averages) bounds u(ȳ) by
+ *   σ_y(τ)/√ln 2, a random-walk FM by σ_y(τ)·√(T_span/τ) (σ²_y ∝ τ; Var(ȳ) = σ²_y(T) for a random walk started at rest).
+ *   A floor is taken when flicker or random-walk FM was found at an adequate τ, or when σ²_y there exceeds the white-FM fit
+ *   beyond the one-sided 99 % χ² limit. The deviation is TOTDEV where defined with more EDF, else OADEV (SP 1065 §5.2.11);
+ * - phase noise to the long end (white FM never reached) is extrapolated as white FM, which overstates u(ȳ).
+ * u(ȳ) is the largest applicable bound; its degrees of freedom are the EDF of the deviation(s) it rests on.
  */
 export function meanWithStatisticalUncertainty(input: {
   y: Float64Array;
@@ -433,6 +696,8 @@ export function meanWithStatisticalUncertainty(input: {
   let sw = 0;
   let swy = 0;
   let count = 0;
+  let first = -1;
+  let last = -1;
   for (let i = 0; i < y.length; i++) {
     if ((valid && valid[i] !== 1) || !Number.isFinite(y[i])) continue;
     const w = weights ? weights[i] : 1;
@@ -440,34 +705,171 @@ export function meanWithStatisticalUncertainty(input: {
     sw += w;
     swy += w * y[i];
     count++;
+    if (first < 0) first = i;
+    last = i;
   }
   if (count === 0 || sw === 0) throw new ScienceInputError('y', 'no valid samples to average');
   const mean = swy / sw;
   const totalSeconds = count * tau0Seconds;
+  const spanSeconds = (last - first + 1) * tau0Seconds;
+  const base = { mean, validSamples: count, totalAveragingTimeSeconds: totalSeconds, spanSeconds };
   const points = input.points ?? stabilityAnalysis({ y, tau0Seconds, valid });
-  const reliable = points.filter((p) => p.adev !== null && p.edf !== null && p.edf >= MIN_EDF_FOR_FIT);
-  const anchor = reliable.length > 0 ? reliable[reliable.length - 1] : points.filter((p) => p.adev !== null).pop();
-  if (!anchor || anchor.adev === null) {
-    return { mean, statisticalUncertainty: null, validSamples: count, totalAveragingTimeSeconds: totalSeconds, tauFitSeconds: null, method: 'too few samples for any Allan deviation; no statistical uncertainty' };
+  const usable = points.filter((p) => p.adev !== null && p.adev > 0 && p.edf !== null);
+  if (usable.length === 0) {
+    return { ...base, statisticalUncertainty: null, degreesOfFreedom: null, tauFitSeconds: null, model: 'none', whiteFm: null, floor: null, method: 'too few samples for any Allan deviation; no statistical uncertainty' };
   }
-  const averagesDown = anchor.noiseType === 'WFM' || anchor.noiseType === 'WPM' || anchor.noiseType === 'FPM';
-  const weak = reliable.length === 0 ? ' (no ADEV point reached EDF ≥ 10: the longest available τ was used)' : '';
-  if (averagesDown) {
+  const established = (p: StabilityPoint): boolean => p.noiseIdentified && p.noiseBlocks >= MIN_BLOCKS_FOR_BOUND;
+
+  // The white-FM region ends at the first τ where flicker or random-walk FM is established.
+  const firstFloor = usable.findIndex((p) => established(p) && ALPHA_ORDER(p.noiseType) <= -1);
+  const region = firstFloor < 0 ? usable : usable.slice(0, firstFloor);
+  const whitePoints = region.filter((p) => p.noiseIdentified && p.noiseType === 'WFM');
+  let whiteFm: MeanWithUncertainty['whiteFm'] = null;
+  let phasePart = 0;
+  if (whitePoints.length > 0) {
+    const fitted = region.filter((p) => p.noiseIdentified && ALPHA_ORDER(p.noiseType) >= 0);
+    const se = whitePoints.reduce((acc, p) => acc + p.edf!, 0);
+    const edfMax = whitePoints.reduce((acc, p) => Math.max(acc, p.edf!), 0);
+    // Octave estimates share the data: their EDF do not add up beyond what N samples hold.
+    const fit = fitWhiteFm(fitted);
+    phasePart = fit.c;
+    whiteFm = { sigmaAt1s: Math.sqrt(fit.a), tausSeconds: whitePoints.map((p) => p.tauSeconds), edf: Math.min(se, Math.max(edfMax, count - 1)) };
+  }
+
+  const adequate = usable.filter((p) => p.edf! >= MIN_EDF_FOR_BOUND && established(p));
+  const longest = adequate.length > 0 ? adequate[adequate.length - 1] : null;
+
+  type Candidate = { u: number; edf: number; tau: number; model: MeanUncertaintyModel; text: string };
+  const candidates: Candidate[] = [];
+  if (whiteFm) {
+    candidates.push({
+      u: whiteFm.sigmaAt1s / Math.sqrt(totalSeconds), edf: whiteFm.edf, tau: whiteFm.tausSeconds[whiteFm.tausSeconds.length - 1], model: 'white-fm',
+      text: `white FM fitted over τ = ${whiteFm.tausSeconds.map(fmt).join(', ')} s (EDF-weighted, EDF ${fmt(whiteFm.edf)}): u(ȳ) = σ_y(T) = ${fmt(whiteFm.sigmaAt1s)}·(T/1 s)^−1/2 at T = ${fmt(totalSeconds)} s`,
+    });
+  }
+  let floor: MeanWithUncertainty['floor'] = null;
+  if (longest) {
+    const floorSeen = adequate.some((p) => ALPHA_ORDER(p.noiseType) <= -1);
+    let excess = false;
+    if (whiteFm) {
+      // The test is under the white-FM hypothesis, so its EDF is white FM's (a mislabelled phase noise would overstate it).
+      const predicted = whiteFm.sigmaAt1s ** 2 / longest.tauSeconds + phasePart / longest.tauSeconds ** 2;
+      const edfWhite = edfOf('WFM', longest.m, longest.n + 2 * longest.m, 2, false);
+      excess = edfWhite > 0 && longest.adev! ** 2 / predicted > chiSquareQuantile(EXCESS_TEST_LEVEL, edfWhite) / edfWhite;
+    }
+    if (floorSeen || excess) {
+      // Random-walk FM needs its type at the longest τ and a rising ADEV from the τ before (slope > +1/4 on log–log axes).
+      const previous = adequate.length > 1 ? adequate[adequate.length - 2] : null;
+      const slope = previous ? Math.log(longest.adev! / previous.adev!) / Math.log(longest.tauSeconds / previous.tauSeconds) : 0;
+      const randomWalk = longest.noiseType === 'RWFM' && slope > 0.25;
+      // EDF for the floor's own noise model (flicker or random-walk FM), whatever type the single τ_L showed.
+      const floorNoise: NoiseType = randomWalk ? 'RWFM' : 'FFM';
+      const phasePoints = longest.n + 2 * longest.m;
+      const edfAdev = edfOf(floorNoise, longest.m, phasePoints, 2, false);
+      const tot = TOTVAR_EDF[floorNoise]!;
+      const edfTot = longest.totdev !== null ? tot[0] * (phasePoints / longest.m) - tot[1] : NaN;
+      const useTot = edfTot > edfAdev;
+      const deviation = useTot ? longest.totdev! : longest.adev!;
+      const edf = useTot ? edfTot : edfAdev;
+      const kind = useTot ? 'TOTDEV' : 'OADEV';
+      const at = `${kind}(${fmt(longest.tauSeconds)} s) = ${deviation.toExponential(3)} (EDF ${fmt(edf)} for ${floorNoise})`;
+      const why = floorSeen ? 'flicker/random-walk FM found at an adequate τ' : 'σ²_y at the longest adequate τ exceeds the white-FM fit (one-sided 99 % χ²)';
+      // The white-FM part of σ²_y(τ_L) averages down to T: only the excess over the fit is carried as the floor, and the
+      // two parts combine with Welch–Satterthwaite (the excess has EDF·(excess/σ²)², the variance of σ² being 2σ⁴/EDF).
+      // When the excess is under half of σ²_y(τ_L) its EDF would collapse; the whole σ²_y(τ_L) is then the bound.
+      const whitePart = whiteFm ? whiteFm.sigmaAt1s ** 2 / longest.tauSeconds + phasePart / longest.tauSeconds ** 2 : 0;
+      const variance = deviation * deviation;
+      const subtract = whitePart > 0 && variance - whitePart >= 0.5 * variance;
+      const excessVariance = subtract ? variance - whitePart : variance;
+      const scale = randomWalk ? Math.max(spanSeconds / longest.tauSeconds, 1) : FLICKER_FM_MEAN_FACTOR ** 2;
+      const uFloor2 = excessVariance * scale;
+      const uWhite2 = subtract ? whiteFm!.sigmaAt1s ** 2 / totalSeconds : 0;
+      const nuFloor = edf * (excessVariance / variance) ** 2;
+      const u2 = uFloor2 + uWhite2;
+      const denominator = (uFloor2 > 0 ? uFloor2 ** 2 / nuFloor : 0) + (uWhite2 > 0 ? uWhite2 ** 2 / whiteFm!.edf : 0);
+      const nu = denominator > 0 ? (u2 * u2) / denominator : edf;
+      const whiteText = subtract ? ` minus the fitted white-FM part, plus white FM at T (Welch–Satterthwaite ν = ${fmt(nu)})` : '';
+      floor = { noise: floorNoise, tauSeconds: longest.tauSeconds, deviation, deviationKind: kind, edf };
+      candidates.push(randomWalk
+        ? {
+          u: Math.sqrt(u2), edf: nu, tau: longest.tauSeconds, model: 'random-walk-fm',
+          text: `random-walk FM at the longest adequate τ (${why}): u(ȳ)² = ${at}²·(T_span/τ)${whiteText}, T_span = ${fmt(spanSeconds)} s`,
+        }
+        : { u: Math.sqrt(u2), edf: nu, tau: longest.tauSeconds, model: 'flicker-fm-floor', text: `flicker-FM floor (${why}): u(ȳ)² = ${at}²/ln 2${whiteText}` });
+    } else if (!whiteFm) {
+      candidates.push({
+        u: longest.adev! * Math.sqrt(longest.tauSeconds / totalSeconds), edf: longest.edf!, tau: longest.tauSeconds, model: 'phase-noise',
+        text: `${longest.noiseType} up to the longest adequate τ, extrapolated as white FM (overstates u(ȳ) for phase noise): u(ȳ) = OADEV(${fmt(longest.tauSeconds)} s)·√(τ/T)`,
+      });
+    }
+  }
+  if (candidates.length === 0) {
+    // No τ reached adequate EDF with an established noise type: the longest τ, extrapolated for its own noise type.
+    const p = usable[usable.length - 1];
+    const factor = p.noiseType === 'FFM' ? FLICKER_FM_MEAN_FACTOR : p.noiseType === 'RWFM' ? Math.sqrt(Math.max(spanSeconds / p.tauSeconds, 1)) : Math.sqrt(p.tauSeconds / totalSeconds);
     return {
-      mean,
-      statisticalUncertainty: anchor.adev * Math.sqrt(anchor.tauSeconds / totalSeconds),
-      validSamples: count,
-      totalAveragingTimeSeconds: totalSeconds,
-      tauFitSeconds: anchor.tauSeconds,
-      method: `white-FM extrapolation σ_y(τ_total) = ADEV(τ_fit)·√(τ_fit/τ_total) from τ_fit = ${Number(anchor.tauSeconds.toPrecision(6))} s (noise ${anchor.noiseType})${weak}`,
+      ...base, statisticalUncertainty: p.adev! * factor, degreesOfFreedom: p.edf, tauFitSeconds: p.tauSeconds,
+      model: p.noiseType === 'FFM' ? 'flicker-fm-floor' : p.noiseType === 'RWFM' ? 'random-walk-fm' : p.noiseType === 'WFM' ? 'white-fm' : 'phase-noise',
+      whiteFm, floor: null,
+      method: `no τ reached EDF ≥ ${MIN_EDF_FOR_BOUND} with an established noise type: OADEV(${fmt(p.tauSeconds)} s) (${p.noiseType}, EDF ${fmt(p.edf!)}) extrapolated for that noise — weak`,
     };
   }
+  const chosen = candidates.reduce((best, c) => (c.u > best.u ? c : best));
+  const others = candidates.filter((c) => c !== chosen).map((c) => `${c.text} → ${c.u.toExponential(2)}`);
   return {
-    mean,
-    statisticalUncertainty: anchor.adev,
-    validSamples: count,
-    totalAveragingTimeSeconds: totalSeconds,
-    tauFitSeconds: anchor.tauSeconds,
-    method: `ADEV at the longest reliable τ = ${anchor.tauSeconds} s taken as the floor without further averaging (noise ${anchor.noiseType}; under random-walk FM this can underestimate)${weak}`,
+    ...base,
+    statisticalUncertainty: chosen.u,
+    degreesOfFreedom: chosen.edf,
+    tauFitSeconds: chosen.tau,
+    model: chosen.model,
+    whiteFm,
+    floor,
+    method: `${chosen.text}${others.length ? `; the larger of this and ${others.join('; ')}` : ''}. Noise identified at each τ (lag-1 ACF; B1 and R(n) where it is inconclusive); EDF after Greenhall & Riley (2003).`,
   };
+}
+
+export interface LinearDrift {
+  /** Fractional frequency drift per second. */
+  slopePerSecond: number;
+  /** Standard uncertainty of the slope for white FM residuals (least squares); an underestimate under flicker or random-walk FM. */
+  slopeUncertaintyPerSecond: number;
+  /** Mean epoch of the valid samples, seconds from the first grid slot: the mean ȳ refers to this epoch whether or not the drift is removed. */
+  referenceEpochSeconds: number;
+  /** y with the fitted drift removed about the reference epoch (gaps unchanged). */
+  detrended: Float64Array;
+}
+
+/**
+ * Linear frequency drift y = a + b·(t − t̄) by ordinary least squares over the valid samples (common practice;
+ * SP 1065 §6 on drift removal). Removing it leaves the mean at t̄ unchanged and takes the τ¹ drift term out of ADEV.
+ */
+export function estimateLinearDrift(y: Float64Array, tau0Seconds: number, valid?: Uint8Array): LinearDrift {
+  let n = 0;
+  let st = 0;
+  let sy = 0;
+  for (let i = 0; i < y.length; i++) {
+    if ((valid && valid[i] !== 1) || !Number.isFinite(y[i])) continue;
+    n++;
+    st += i;
+    sy += y[i];
+  }
+  if (n < 3) throw new ScienceInputError('y', 'a drift needs at least three valid samples');
+  const tBar = st / n;
+  const yBar = sy / n;
+  let stt = 0;
+  let sty = 0;
+  for (let i = 0; i < y.length; i++) {
+    if ((valid && valid[i] !== 1) || !Number.isFinite(y[i])) continue;
+    stt += (i - tBar) ** 2;
+    sty += (i - tBar) * (y[i] - yBar);
+  }
+  const bPerSample = sty / stt;
+  let ssr = 0;
+  for (let i = 0; i < y.length; i++) {
+    if ((valid && valid[i] !== 1) || !Number.isFinite(y[i])) continue;
+    ssr += (y[i] - yBar - bPerSample * (i - tBar)) ** 2;
+  }
+  const uPerSample = Math.sqrt(ssr / (n - 2) / stt);
+  const detrended = Float64Array.from(y, (v, i) => (Number.isFinite(v) ? v - bPerSample * (i - tBar) : v));
+  return { slopePerSecond: bPerSample / tau0Seconds, slopeUncertaintyPerSecond: uPerSample / tau0Seconds, referenceEpochSeconds: tBar * tau0Seconds, detrended };
 }

@@ -1,8 +1,30 @@
 // Uncertainty budgets after the GUM, JCGM 100:2008: contributions u_i(y) = |c_i|·u(x_i) (§5.1.3),
 // combined standard uncertainty for uncorrelated inputs (eq. 10), expanded U = k·u_c (§6.2), and
-// effective degrees of freedom by the Welch–Satterthwaite formula (Annex G.4, eq. G.2b).
+// effective degrees of freedom by the Welch–Satterthwaite formula (Annex G.4, eq. G.2b) and the coverage factor
+// k = t_p(ν_eff) from the Student t distribution (G.3, G.6.4), ν_eff truncated to the next lower integer (G.4.1 note).
 
+import { studentTQuantile } from './distributions';
 import { ScienceInputError } from './errors';
+
+/** p of the normal "k = 2" interval, 2Φ(2) − 1 = 95.45 % (JCGM 100:2008 G.1.3, Table G.1), so that ν_eff → ∞ gives k = 2 exactly. */
+export const COVERAGE_PROBABILITY_K2 = 0.9544997361036416;
+
+/** Degrees of freedom above which t_p(ν) is taken as the normal quantile: t_95.45(ν) − 2 < 0.005 for ν > 400 (Table G.2 trend). */
+const LARGE_DOF = 1e6;
+
+/**
+ * Coverage factor for a coverage probability p: k_p = t_p(ν_eff) with ν_eff truncated to the next lower integer
+ * (JCGM 100:2008 G.4.1, G.6.4); the normal quantile when ν_eff is infinite or very large (G.6.6: k = 2 for p ≈ 95 %).
+ */
+export function coverageFactorFor(effectiveDegreesOfFreedom: number, coverageProbability = COVERAGE_PROBABILITY_K2): number {
+  if (!(coverageProbability > 0 && coverageProbability < 1)) throw new ScienceInputError('coverageProbability', 'must lie strictly between 0 and 1');
+  if (!(effectiveDegreesOfFreedom > 0)) throw new ScienceInputError('effectiveDegreesOfFreedom', 'must be positive');
+  const q = (1 + coverageProbability) / 2;
+  if (effectiveDegreesOfFreedom >= LARGE_DOF) return studentTQuantile(q, Infinity);
+  // Below one degree of freedom the truncation would give 0; G.6.4 truncates, so ν < 1 keeps its fractional value.
+  const nu = effectiveDegreesOfFreedom >= 1 ? Math.floor(effectiveDegreesOfFreedom) : effectiveDegreesOfFreedom;
+  return studentTQuantile(q, nu);
+}
 
 export interface BudgetComponent {
   name: string;
@@ -29,6 +51,8 @@ export interface BudgetResult {
   lines: BudgetLine[];
   combinedStandardUncertainty: number;
   coverageFactor: number;
+  /** p of the interval y ± U; null when a fixed k was asked for. */
+  coverageProbability: number | null;
   expandedUncertainty: number;
   /** Welch–Satterthwaite ν_eff; Infinity when no component states finite degrees of freedom. */
   effectiveDegreesOfFreedom: number;
@@ -40,8 +64,16 @@ export function rss(values: readonly number[]): number {
   return Math.hypot(...values);
 }
 
-export function combineBudget(components: readonly BudgetComponent[], coverageFactor = 2): BudgetResult {
-  if (!(coverageFactor > 0)) throw new ScienceInputError('coverageFactor', 'must be positive');
+/**
+ * Combines a budget. `coverage` is either the coverage probability p (k = t_p(ν_eff), the default p = 95.45 %) or
+ * `{ fixedCoverageFactor }` for a stated k regardless of ν_eff.
+ */
+export function combineBudget(
+  components: readonly BudgetComponent[],
+  coverage: { coverageProbability?: number } | { fixedCoverageFactor: number } = {},
+): BudgetResult {
+  const fixed = 'fixedCoverageFactor' in coverage ? coverage.fixedCoverageFactor : null;
+  if (fixed !== null && !(fixed > 0)) throw new ScienceInputError('coverageFactor', 'must be positive');
   components.forEach((c, i) => {
     if (!(c.standardUncertainty >= 0) || !Number.isFinite(c.standardUncertainty)) {
       throw new ScienceInputError(`components[${i}].standardUncertainty`, 'must be a finite non-negative number');
@@ -59,6 +91,9 @@ export function combineBudget(components: readonly BudgetComponent[], coverageFa
     const dof = c.degreesOfFreedom ?? Infinity;
     if (Number.isFinite(dof)) denominator += contributions[i] ** 4 / dof;
   });
+  const nuEff = denominator > 0 ? (uc2 * uc2) / denominator : Infinity;
+  const probability = fixed === null ? (('coverageProbability' in coverage ? coverage.coverageProbability : undefined) ?? COVERAGE_PROBABILITY_K2) : null;
+  const coverageFactor = fixed ?? coverageFactorFor(Number.isNaN(nuEff) ? Infinity : nuEff, probability!);
   return {
     lines: components.map((c, i) => ({
       name: c.name,
@@ -68,8 +103,9 @@ export function combineBudget(components: readonly BudgetComponent[], coverageFa
     })),
     combinedStandardUncertainty: uc,
     coverageFactor,
+    coverageProbability: probability,
     expandedUncertainty: coverageFactor * uc,
-    effectiveDegreesOfFreedom: denominator > 0 ? uc2 * uc2 / denominator : Infinity,
+    effectiveDegreesOfFreedom: nuEff,
     correlation: 'inputs treated as uncorrelated (JCGM 100:2008 eq. 10)',
   };
 }

@@ -1,6 +1,6 @@
 import { useMutation, useQuery } from '@tanstack/react-query';
 import type {
-  GeodesicRequest, GeodesicResponse, NormalGravityRequest, NormalGravityResponse, RedshiftRequest, RedshiftResponse,
+  BudgetRequest, BudgetResponse, GeodesicRequest, GeodesicResponse, NormalGravityRequest, NormalGravityResponse, RedshiftRequest, RedshiftResponse,
   TransformRequest, TransformResponse,
 } from '../../shared/calc';
 import { api } from '../lib/api-client';
@@ -13,6 +13,7 @@ export const calcKeys = {
 export const useRedshift = () => useMutation({ mutationFn: (body: RedshiftRequest) => api<RedshiftResponse>('/api/v1/calc/redshift', { body }) });
 export const useNormalGravityCalc = () => useMutation({ mutationFn: (body: NormalGravityRequest) => api<NormalGravityResponse>('/api/v1/calc/normal-gravity', { body }) });
 export const useGeodesic = () => useMutation({ mutationFn: (body: GeodesicRequest) => api<GeodesicResponse>('/api/v1/calc/geodesic', { body }) });
+export const useBudget = () => useMutation({ mutationFn: (body: BudgetRequest) => api<BudgetResponse>('/api/v1/calc/budget', { body }) });
 export const useTransform = () => useMutation({ mutationFn: (body: TransformRequest) => api<TransformResponse>('/api/v1/calc/transform', { body }) });
 
 /** Mean normal gravity for a latitude and height (used by the planning view, which is computed in the browser). */

@@ -29,7 +29,7 @@ export function Caution({ children }: { children?: ReactNode }) {
     <aside className="rounded-md border-l-4 border-brass-500 bg-paper-100 px-4 py-3 text-sm text-ink-800" role="note">
       <strong className="font-semibold">Caution. </strong>
       {children ??
-        'Uncertainties are expanded with coverage factor k = 2 unless stated. Results are for scientific comparison: verify against your national datum authority and your lab’s quality procedures before any use for heights.'}
+        'Expanded uncertainties state their coverage factor k, coverage probability p and effective degrees of freedom ν_eff (k = t_p(ν_eff); k = 2 only for large ν_eff). Results are for scientific comparison: verify against your national datum authority and your lab’s quality procedures before any use for heights.'}
     </aside>
   );
 }

@@ -233,3 +233,45 @@ describe('POST /api/v1/calc/tide', () => {
     expect(res.body.issues[0].path).toBe('body.epochs.1');
   });
 });
+
+describe('POST /api/v1/calc/budget', () => {
+  it('JCGM 100:2008 H.1 (end gauge): u_c = 32 nm, ν_eff = 16 (truncated), k = t_99(16) = 2.92, U_99 = 93 nm (H.1.4–H.1.6, Table G.2)', async () => {
+    // Table H.1 contributions and degrees of freedom [from memory of Table H.1]: 25 nm (18), 9.7 nm (25.6), 2.9 nm (50), 16.6 nm (2).
+    const components = [
+      { name: 'calibration of the standard l_s', standardUncertainty: 25, degreesOfFreedom: 18 },
+      { name: 'measured difference d', standardUncertainty: 9.7, degreesOfFreedom: 25.6 },
+      { name: 'expansion coefficient difference δα', standardUncertainty: 0.58e-6, sensitivity: 0.05e9 * 0.1, degreesOfFreedom: 50 },
+      { name: 'temperature difference δθ', standardUncertainty: 0.029, sensitivity: -0.05e9 * 11.5e-6, degreesOfFreedom: 2 },
+    ];
+    const res = await post('budget', { components, coverageProbability: 0.99 });
+    expect(res.status).toBe(200);
+    expect(Math.round(res.body.combinedStandardUncertainty)).toBe(32);
+    expect(Math.floor(res.body.effectiveDegreesOfFreedom)).toBe(16);
+    expect(res.body.coverageFactor).toBeCloseTo(2.92, 2);
+    expect(Math.round(res.body.expandedUncertainty)).toBe(93);
+    expect(res.body.coverageProbability).toBe(0.99);
+    // Default p = 95.45 %: k = t_95.45(16) = 2.17 (Table G.2).
+    const def = await post('budget', { components });
+    expect(def.body.coverageProbability).toBeCloseTo(0.9545, 4);
+    expect(def.body.coverageFactor).toBeCloseTo(2.17, 2);
+  });
+
+  it('gives k = 2 and ν_eff null when no component has finite degrees of freedom (G.6.6: ν_eff large → k = 2 for p ≈ 95.45 %)', async () => {
+    const res = await post('budget', { components: [{ name: 'a', standardUncertainty: 3e-18 }, { name: 'b', standardUncertainty: 4e-18, sensitivity: -1, degreesOfFreedom: null }] });
+    expect(res.status).toBe(200);
+    expect(res.body.effectiveDegreesOfFreedom).toBeNull();
+    expect(res.body.coverageFactor).toBeCloseTo(2, 10);
+    expect(res.body.combinedStandardUncertainty).toBeCloseTo(5e-18, 30);
+    expect(res.body.expandedUncertainty).toBeCloseTo(1e-17, 28);
+  });
+
+  it('answers a problem naming the field for a negative uncertainty or a probability out of range', async () => {
+    const res = await post('budget', { components: [{ name: 'a', standardUncertainty: -1 }] });
+    expect(res.status).toBe(400);
+    expect(res.headers['content-type']).toContain('application/problem+json');
+    expect(JSON.stringify(res.body)).toContain('components.0.standardUncertainty');
+    const p = await post('budget', { components: [{ name: 'a', standardUncertainty: 1 }], coverageProbability: 1.5 });
+    expect(p.status).toBe(400);
+    expect(JSON.stringify(p.body)).toContain('coverageProbability');
+  });
+});

@@ -113,17 +113,26 @@ describe('campaign result', () => {
     // ΔC = c²·y (first-order redshift; c exact) — and its uncertainty the same way.
     expect(r.deltaC_m2s2.value).toBe(C2 * fo.y);
     expect(r.deltaC_m2s2.standardUncertainty).toBe(C2 * fo.standardUncertainty);
-    expect(r.deltaC_m2s2.expandedUncertainty).toBe(2 * r.deltaC_m2s2.standardUncertainty);
+    // U = k·u with k = t_95.45(ν_eff) (JCGM 100:2008 G.4.1, G.6.4; Table G.2 tends to 2.00 for large ν), the same k for ΔC.
+    expect(r.budget.coverageProbability).toBeCloseTo(0.9545, 4);
+    expect(r.deltaC_m2s2.coverageFactor).toBe(r.budget.coverageFactor);
+    expect(r.deltaC_m2s2.expandedUncertainty).toBeCloseTo(r.budget.coverageFactor * r.deltaC_m2s2.standardUncertainty, 12);
+    expect(r.budget.coverageFactor).toBeGreaterThanOrEqual(2);
+    expect(r.budget.coverageFactor).toBeLessThan(2.1);
+    expect(fo.statisticalModel).toBe('white-fm');
+    expect(fo.statisticalDegreesOfFreedom).toBeGreaterThan(100);
+    expect(Math.abs(Number(fo.yText) - fo.y)).toBeLessThanOrEqual(fo.standardUncertainty / 10);
+    expect(r.assumptions.join(' ')).toContain('uncorrelated');
     // Δh ≈ ΔC/γ: with γ between 9.78 and 9.84 m/s² (GRS80 equator/pole values, Moritz 2000) the height lies in between.
     expect(r.deltaH_m.value).toBeGreaterThan(r.deltaC_m2s2.value / 9.833);
     expect(r.deltaH_m.value).toBeLessThan(r.deltaC_m2s2.value / 9.78);
 
-    // GUM (JCGM 100:2008 eq. 10): u_c² = Σ (c_i·u_i)², U = k·u_c with k = 2.
+    // GUM (JCGM 100:2008 eq. 10): u_c² = Σ (c_i·u_i)², U = k·u_c.
     const lines = r.budget.lines as { component: string; standardUncertainty: number; sensitivity: number; contribution: number; type: string }[];
     expect(lines.map((l) => l.type)).toEqual(['A', 'B', 'B', 'B', 'B', 'B']);
     for (const l of lines) expect(l.contribution).toBeCloseTo(Math.abs(l.sensitivity) * l.standardUncertainty, 30);
     expect(r.budget.combinedStandardUncertainty).toBeCloseTo(Math.sqrt(lines.reduce((s, l) => s + l.contribution ** 2, 0)), 30);
-    expect(r.budget.expandedUncertainty).toBe(2 * r.budget.combinedStandardUncertainty);
+    expect(r.budget.expandedUncertainty).toBeCloseTo(r.budget.coverageFactor * r.budget.combinedStandardUncertainty, 30);
     expect(lines[1].standardUncertainty).toBe(campaign.clockA.budget.totalUncertainty);
     expect(lines[2].standardUncertainty).toBe(campaign.clockB.budget.totalUncertainty);
     expect(lines[3].standardUncertainty).toBe(campaign.link.fractionalUncertainty);
@@ -190,7 +199,8 @@ describe('campaign result', () => {
     expect(res.status).toBe(200);
     expect(res.headers['content-type']).toContain('text/csv');
     const lines = res.text.trim().split('\n');
-    expect(lines[0]).toBe('section,quantity,value,standard_uncertainty,expanded_uncertainty_k2,unit,note');
+    expect(lines[0]).toBe('section,quantity,value,standard_uncertainty,expanded_uncertainty,unit,note');
+    expect(Number(lines.find((l) => l.startsWith('budget,coverage_factor_k,'))!.split(',')[2])).toBe(json.body.result.budget.coverageFactor);
     const dc = lines.find((l) => l.startsWith('result,delta_C,'))!.split(',');
     expect(Number(dc[2])).toBe(json.body.result.deltaC_m2s2.value);
     expect(Number(dc[4])).toBe(json.body.result.deltaC_m2s2.expandedUncertainty);

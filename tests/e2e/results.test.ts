@@ -82,7 +82,7 @@ describe('results page', () => {
     // The one-hour gap in the data breaks the mean line and the band (common practice: never draw across missing data).
     const meanPath = await page.getByTestId('y-series-mean').getAttribute('d');
     expect((meanPath ?? '').match(/M/g)?.length ?? 0).toBeGreaterThanOrEqual(2);
-    await expect(page.getByTestId('agreement-difference').textContent()).resolves.toMatch(/± [\d.]+ m \(k = 2\)$/);
+    await expect(page.getByTestId('agreement-difference').textContent()).resolves.toMatch(/± [\d.]+ m \(√\(U_clocks² \+ U_geodesy²\)\)$/);
     await page.getByRole('img', { name: 'Allan deviation of the tide-corrected comparison' }).waitFor();
     expect(await page.locator('[data-series="White frequency noise τ^−1/2 guide"] path').count()).toBe(1);
     await expect(page.getByRole('note').first().textContent()).resolves.toContain('Caution');
@@ -103,6 +103,12 @@ describe('results page', () => {
     await expect(page.getByTestId('calc-y').textContent()).resolves.toBe('6.50000 × 10⁻¹⁷, u = 2.0 × 10⁻¹⁸');
     await page.getByRole('form', { name: 'Coordinate transformation' }).getByRole('button', { name: 'Transform' }).click();
     await expect(page.getByTestId('calc-transformed').textContent()).resolves.toMatch(/^X.* m.*Y.* m.*Z.* m$/);
+    // Budget: u_c = √(1.5² + 2² + 3²)·1e-18 = 3.905e-18; ν_eff = 12·(u_c/u_1)⁴ = 551 (Welch–Satterthwaite, JCGM 100 G.2b);
+    // k = t_95.45(551) = 2.00 (Table G.2 tends to 2.000).
+    await page.getByRole('form', { name: 'Uncertainty budget' }).getByRole('button', { name: 'Combine' }).click();
+    await expect(page.getByTestId('budget-uc').textContent()).resolves.toBe('3.91 × 10⁻¹⁸');
+    await expect(page.getByTestId('budget-nu').textContent()).resolves.toMatch(/^551/);
+    await expect(page.getByTestId('budget-u').textContent()).resolves.toMatch(/k = 2\.00, p = 95\.45 %, ν_eff = 551\)$/);
     await page.getByTestId('plan-floor').waitFor();
     await page.getByRole('img', { name: 'Expanded height uncertainty against averaging time' }).waitFor();
     await screenshot(page, 'calculator-operator');

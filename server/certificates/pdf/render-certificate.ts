@@ -4,6 +4,7 @@ import { parseCertificateSnapshot, type CertificateSnapshot } from './certificat
 import { addArchivalParts } from './archival';
 import { loadCertificateFonts } from './fonts';
 import { resultCsv } from './result-csv';
+import { coverageText } from '../../../shared/number-text';
 import {
   formatFixed,
   formatScientific,
@@ -38,8 +39,19 @@ const FONT = { regular: 'NotoSans', semi: 'NotoSans-SemiBold' };
 /** Standing cautions printed on every certificate, whatever the campaign says. */
 export const STANDING_CAUTIONS = [
   "Results are for scientific comparison; verify against your national datum authority and your lab's quality procedures.",
-  'Uncertainties are expanded uncertainties with coverage factor k = 2 (about 95 % coverage for a normal distribution) unless a figure is marked as a standard uncertainty.',
+  'Uncertainties are expanded uncertainties U = k·u with the coverage factor k, coverage probability p and effective degrees of freedom ν_eff stated beside each (k = t_p(ν_eff), JCGM 100:2008 G.6.4), unless a figure is marked as a standard uncertainty.',
 ];
+
+/** "k = 2.13, p = 95.45 %, ν_eff = 17" beside an expanded uncertainty; older snapshots state only k. */
+function coverageNote(q: { coverageFactor: number; coverageProbability?: number; effectiveDegreesOfFreedom?: number | null }): string {
+  if (q.coverageProbability === undefined) return `k = ${q.coverageFactor}`;
+  return coverageText({ coverageFactor: q.coverageFactor, coverageProbability: q.coverageProbability, effectiveDegreesOfFreedom: q.effectiveDegreesOfFreedom ?? null });
+}
+
+/** y as recorded with enough digits (rounding below u/10), or five significant digits in older snapshots. */
+function yText(s: CertificateSnapshot): string {
+  return s.fractionalOffset.yText ?? formatScientific(s.fractionalOffset.y, 5);
+}
 
 class Flow {
   y = MARGIN.top;
@@ -401,22 +413,22 @@ function resultPanel(flow: Flow, s: CertificateSnapshot): void {
     {
       label: 'Geopotential difference ΔC = C(B) − C(A)',
       value: `${formatValueWithUncertainty(s.deltaC_m2s2.value, s.deltaC_m2s2.expandedUncertainty)} m²/s²`,
-      note: `expanded uncertainty U, k = ${s.deltaC_m2s2.coverageFactor}`,
+      note: `expanded uncertainty U, ${coverageNote(s.deltaC_m2s2)}`,
     },
     {
       label: 'Normal-height difference ΔH = H(B) − H(A)',
       value: `${formatValueWithUncertainty(s.deltaH_m.value, s.deltaH_m.expandedUncertainty)} m`,
-      note: `expanded uncertainty U, k = ${s.deltaH_m.coverageFactor}`,
+      note: `expanded uncertainty U, ${coverageNote(s.deltaH_m)}`,
     },
     {
       label: 'Fractional frequency offset y',
-      value: formatScientific(s.fractionalOffset.y, 5),
+      value: yText(s),
       note: `standard uncertainty u(y) = ${formatScientific(s.fractionalOffset.standardUncertainty, 2)}`,
     },
     {
       label: 'Eₙ against the sites’ registered normal heights (geodesy)',
       value: `Eₙ = ${formatFixed(g.En, 2)}  ·  ${g.agreed ? 'agreed' : 'NOT agreed'}`,
-      note: `ΔH from the registered normal heights = ${formatValueWithUncertainty(g.deltaHGeodesy_m.value, g.deltaHGeodesy_m.expandedUncertainty)} m (k = ${g.deltaHGeodesy_m.coverageFactor}); criterion |Eₙ| not above 1`,
+      note: `ΔH from the registered normal heights = ${formatValueWithUncertainty(g.deltaHGeodesy_m.value, g.deltaHGeodesy_m.expandedUncertainty)} m (${coverageNote(g.deltaHGeodesy_m)}); criterion |Eₙ| not above 1`,
       alert: !g.agreed,
     },
   ];
@@ -510,7 +522,7 @@ function renderBody(doc: Doc, s: CertificateSnapshot): void {
     ['Measured ratio νB/νA', s.measuredRatio],
     ['Reference ratio', s.referenceRatio.value],
     ['Source of the reference ratio', s.referenceRatio.source],
-    ['Fractional offset y = R/R₀ − 1', `${formatScientific(s.fractionalOffset.y, 5)}, standard uncertainty ${formatScientific(s.fractionalOffset.standardUncertainty, 2)}`],
+    ['Fractional offset y = R/R₀ − 1', `${yText(s)}, standard uncertainty ${formatScientific(s.fractionalOffset.standardUncertainty, 2)}`],
   ]);
 
   sectionHeading(flow, ++n, 'Uncertainty budget (GUM)', 80);
@@ -540,7 +552,7 @@ function renderBody(doc: Doc, s: CertificateSnapshot): void {
         formatScientific(r.contribution, 2),
       ]),
       ['Combined standard uncertainty', '', '', '', '', formatScientific(u, 2)],
-      ['Expanded uncertainty U, k = 2', '', '', '', '', formatScientific(2 * u, 2)],
+      [`Expanded uncertainty U, ${coverageNote({ coverageFactor: s.budget.coverageFactor ?? 2, coverageProbability: s.budget.coverageProbability, effectiveDegreesOfFreedom: s.budget.effectiveDegreesOfFreedom })}`, '', '', '', '', formatScientific((s.budget.coverageFactor ?? 2) * u, 2)],
     ],
     { boldLastRows: 2 },
   );
@@ -591,6 +603,11 @@ function renderBody(doc: Doc, s: CertificateSnapshot): void {
     s.inputFiles.map((f) => [f.name, groupHex(f.sha256)]),
     { size: 8 },
   );
+
+  if (s.assumptions?.length) {
+    sectionHeading(flow, ++n, 'Assumptions');
+    for (const assumption of s.assumptions) paragraph(flow, `• ${assumption}`, { size: 8.5 });
+  }
 
   sectionHeading(flow, n + 1, 'Cautions');
   for (const caution of [...STANDING_CAUTIONS, ...s.cautions]) {

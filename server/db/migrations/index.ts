@@ -7,6 +7,7 @@ import { Certificates1764700000000 } from './1764700000000-certificates';
 import { SessionsAccounts1765100000000 } from './1765100000000-sessions-accounts';
 import { AuditChainV21765300000000 } from './1765300000000-audit-chain-v2';
 import { MailOutboxRetry1765310000000 } from './1765310000000-mail-outbox-retry';
+import { MeasuredRatios1765500000000 } from './1765500000000-measured-ratios';
 import { SigningChain1765600000000 } from './1765600000000-signing-chain';
 import { ListIndexes1765800000000 } from './1765800000000-list-indexes';
 import { SamplePartitions1765800001000 } from './1765800001000-sample-partitions';
@@ -23,6 +24,7 @@ export const migrations = [
   SessionsAccounts1765100000000,
   AuditChainV21765300000000,
   MailOutboxRetry1765310000000,
+  MeasuredRatios1765500000000,
   SigningChain1765600000000,
   ListIndexes1765800000000,
   SamplePartitions1765800001000,

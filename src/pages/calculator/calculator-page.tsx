@@ -1,12 +1,13 @@
 import { zodResolver } from '@hookform/resolvers/zod';
 import { useMemo, useState } from 'react';
-import { useForm, type FieldValues, type Path, type UseFormRegister } from 'react-hook-form';
+import { useFieldArray, useForm, type FieldValues, type Path, type UseFormRegister } from 'react-hook-form';
 import type { z } from 'zod';
 import {
-  geodesicRequestSchema, normalGravityRequestSchema, planningInputSchema, redshiftRequestSchema, transformRequestSchema,
+  budgetRequestSchema, geodesicRequestSchema, normalGravityRequestSchema, planningInputSchema, redshiftRequestSchema, transformRequestSchema,
   type PlanningInput,
 } from '../../../shared/calc';
-import { useGeodesic, useNormalGravity, useNormalGravityCalc, useRedshift, useTransform } from '../../api/calc';
+import { coverageText } from '../../../shared/number-text';
+import { useBudget, useGeodesic, useNormalGravity, useNormalGravityCalc, useRedshift, useTransform } from '../../api/calc';
 import { LogLogPlot } from '../../components/plots/allan-plot';
 import { Button, Caution, Field, inputClass, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
@@ -222,12 +223,66 @@ function PlanningPanel() {
           />
           <dl className="mt-2">
             <ResultRow label="Expected y for these heights (≈ ΔH·γ̄/c²)" value={sci(expectedY, 3)} />
-            <ResultRow label="Systematic floor U(ΔH), k = 2" value={`${fmt(floor, 3)} m`} testId="plan-floor" />
+            <ResultRow label="Systematic floor U(ΔH), k = 2 (p = 95.45 %, ν_eff infinite)" value={`${fmt(floor, 3)} m`} testId="plan-floor" />
             <ResultRow label="Averaging time where statistics equal the systematics" value={crossing ? `${fmt(crossing, 3)} s (${fmt(crossing / 86_400, 3)} d)` : '—'} />
             <ResultRow label="Averaging time for U(ΔH) ≤ 1 cm" value={target1cm ? `${fmt(target1cm.x, 2)} s` : 'not reached within 10⁶ s'} />
           </dl>
-          <p className="mt-2 text-xs text-ink-500">u(y)² = u_A² + u_B² + u_link² + u_ref² + σ_y(1 s)²/τ (white frequency noise, no dead time); U(ΔH) = 2·c²·u(y)/γ̄ with GRS80 mean normal gravity at the mid-point ({g?.toFixed(5)} m/s²).</p>
+          <p className="mt-2 text-xs text-ink-500">u(y)² = u_A² + u_B² + u_link² + u_ref² + σ_y(1 s)²/τ (white frequency noise, no dead time); U(ΔH) = 2·c²·u(y)/γ̄ (k = 2, p = 95.45 %: every input is taken as known, ν_eff infinite — a campaign result states its own k from ν_eff) with GRS80 mean normal gravity at the mid-point ({g?.toFixed(5)} m/s²).</p>
         </div>
+      )}
+    </Panel>
+  );
+}
+
+function BudgetPanel() {
+  const schema = budgetRequestSchema;
+  const form = useForm<z.input<typeof schema>, unknown, z.output<typeof schema>>({
+    resolver: zodResolver(schema),
+    defaultValues: {
+      components: [
+        { name: 'Statistical (type A)', standardUncertainty: 1.5e-18, sensitivity: 1, degreesOfFreedom: 12 },
+        { name: 'Clock A systematic', standardUncertainty: 2e-18, sensitivity: -1, degreesOfFreedom: null },
+        { name: 'Clock B systematic', standardUncertainty: 3e-18, sensitivity: 1, degreesOfFreedom: null },
+      ],
+      coverageProbability: 0.9545,
+    },
+  });
+  const rows = useFieldArray({ control: form.control, name: 'components' });
+  const calc = useBudget();
+  const e = form.formState.errors;
+  const r = calc.data;
+  return (
+    <Panel title="Uncertainty budget: ν_eff and coverage factor">
+      <form onSubmit={form.handleSubmit((v) => calc.mutate(v))} aria-label="Uncertainty budget">
+        <table className="min-w-full text-sm">
+          <thead className="text-left text-ink-500"><tr><th>Component</th><th className="px-2">u(x_i)</th><th className="px-2">c_i</th><th className="px-2">ν_i (empty = ∞)</th><th /></tr></thead>
+          <tbody>
+            {rows.fields.map((row, i) => (
+              <tr key={row.id}>
+                <td><input aria-label={`Component ${i + 1} name`} className={inputClass} {...form.register(`components.${i}.name`)} /></td>
+                <td className="px-2"><input aria-label={`Component ${i + 1} standard uncertainty`} className={inputClass} inputMode="decimal" {...form.register(`components.${i}.standardUncertainty`, { setValueAs: num })} /></td>
+                <td className="px-2"><input aria-label={`Component ${i + 1} sensitivity`} className={inputClass} inputMode="decimal" {...form.register(`components.${i}.sensitivity`, { setValueAs: num })} /></td>
+                <td className="px-2"><input aria-label={`Component ${i + 1} degrees of freedom`} className={inputClass} inputMode="decimal" {...form.register(`components.${i}.degreesOfFreedom`, { setValueAs: (v) => num(v) ?? null })} /></td>
+                <td><Button variant="quiet" type="button" onClick={() => rows.remove(i)} disabled={rows.fields.length <= 1}>Remove</Button></td>
+              </tr>
+            ))}
+          </tbody>
+        </table>
+        {e.components && <p className="text-sm text-disagree-600" role="alert">Check the rows: every u must be a non-negative number, every ν positive.</p>}
+        <div className="mt-2 flex flex-wrap items-end gap-3">
+          <Button variant="quiet" type="button" onClick={() => rows.append({ name: `Component ${rows.fields.length + 1}`, standardUncertainty: 0, sensitivity: 1, degreesOfFreedom: null })}>Add a row</Button>
+          <NumberField label="Coverage probability p" name="coverageProbability" register={form.register} error={e.coverageProbability?.message} hint="0.9545 gives k = 2 for large ν_eff" />
+          <Button type="submit" disabled={calc.isPending}>Combine</Button>
+        </div>
+      </form>
+      {calc.error && <p className="mt-3 text-sm text-disagree-600" role="alert">{describeError(calc.error)}</p>}
+      {r && (
+        <dl className="mt-3">
+          <ResultRow label="Combined standard uncertainty u_c" value={sci(r.combinedStandardUncertainty, 3)} testId="budget-uc" />
+          <ResultRow label="Effective degrees of freedom ν_eff (Welch–Satterthwaite)" value={r.effectiveDegreesOfFreedom === null ? 'infinite' : sig(r.effectiveDegreesOfFreedom, 4)} testId="budget-nu" />
+          <ResultRow label="Expanded uncertainty U = k·u_c" value={`${sci(r.expandedUncertainty, 3)} (${coverageText(r)})`} testId="budget-u" />
+          <p className="mt-2 text-xs text-ink-500">{r.method}</p>
+        </dl>
       )}
     </Panel>
   );
@@ -244,6 +299,7 @@ export function CalculatorPage() {
         <GeodesicPanel />
         <TransformPanel />
       </div>
+      <BudgetPanel />
       <PlanningPanel />
     </>
   );

@@ -1,4 +1,5 @@
 import { zodResolver } from '@hookform/resolvers/zod';
+import { MeasuredRatioChoice } from './measured-ratio-choice';
 import { useState } from 'react';
 import { useForm } from 'react-hook-form';
 import { Link, useParams } from 'react-router';
@@ -151,6 +152,7 @@ function CampaignEditor({ campaign: c }: { campaign: Campaign }) {
         <div className="md:col-span-2"><FormError text={formError} /></div>
       </form>
       <RatioOverrideForm campaign={c} />
+      <MeasuredRatioChoice campaign={c} />
     </Panel>
   );
 }

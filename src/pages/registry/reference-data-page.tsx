@@ -6,6 +6,7 @@ import { useMe } from '../../api/account';
 import { useCreateReference, useGrids, useReferences, useUpdateReference, useUploadGrid } from '../../api/registry';
 import { Button, Field, inputClass, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
+import { MeasuredRatiosPanel } from './measured-ratios-panel';
 import { applyServerErrors, fixed, FormError, groupDigits, sci, selectClass } from './registry-ui';
 
 // Reference frequencies (default reference ratios of campaigns) and quasigeoid grids; the coordinating institute keeps both.
@@ -41,6 +42,7 @@ export function ReferenceDataPage() {
         {update.isError && <FormError text={describeError(update.error)} />}
         {coordinator && <NewReferenceForm />}
       </Panel>
+      <MeasuredRatiosPanel coordinator={coordinator} />
       <Panel title="Quasigeoid grids">
         <table className="min-w-full text-sm">
           <thead className="text-left text-ink-500 [&_th]:pr-4"><tr><th className="py-1">Name</th><th>Latitude (°)</th><th>Longitude (°)</th><th>Spacing (°)</th><th>Nodes</th><th>u(ζ), k = 1 (m)</th><th>SHA-256</th><th>Uploaded</th></tr></thead>

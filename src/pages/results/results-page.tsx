@@ -1,4 +1,5 @@
 import { Link, useParams } from 'react-router';
+import { coverageText } from '../../../shared/number-text';
 import type { ComparisonResultDto, ResultBody } from '../../../shared/results';
 import { useMe } from '../../api/account';
 import { resultCsvUrl, useCampaignResult, useRecomputeResult } from '../../api/results';
@@ -15,13 +16,15 @@ const f = (v: number, decimals: number) => fixed(v, decimals);
 /** Decimals so that the expanded uncertainty shows two significant digits (GUM 7.2.6 practice). */
 const decimalsFor = (u: number) => Math.max(0, Math.min(9, 1 - Math.floor(Math.log10(u || 1))));
 
-function Quantity({ label, value, unit, expanded, testId }: { label: string; value: number; unit: string; expanded: number; testId: string }) {
-  const d = decimalsFor(expanded);
+type Expanded = ResultBody['deltaC_m2s2'];
+
+function Quantity({ label, q, unit, testId }: { label: string; q: Expanded; unit: string; testId: string }) {
+  const d = decimalsFor(q.expandedUncertainty);
   return (
     <div className="rounded-lg border border-paper-200 bg-white p-4">
       <p className="text-xs uppercase tracking-wide text-ink-500">{label}</p>
-      <p className="mt-1 font-mono text-lg text-ink-900" data-testid={testId}>{f(value, d)} ± {f(expanded, d)} {unit}</p>
-      <p className="text-xs text-ink-500">expanded uncertainty, k = 2</p>
+      <p className="mt-1 font-mono text-lg text-ink-900" data-testid={testId}>{f(q.value, d)} ± {f(q.expandedUncertainty, d)} {unit}</p>
+      <p className="text-xs text-ink-500" data-testid={`${testId}-coverage`}>expanded uncertainty, {coverageText(q)}</p>
     </div>
   );
 }
@@ -41,9 +44,9 @@ function Agreement({ r }: { r: ResultBody }) {
       </div>
       <table className="mt-3 min-w-full text-sm">
         <tbody>
-          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">ΔH from the clocks (H_B − H_A)</td><td className="text-right font-mono">{f(r.deltaH_m.value, 4)} ± {f(r.deltaH_m.expandedUncertainty, 4)} m (k = 2)</td></tr>
-          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">ΔH from geodesy ({g.source})</td><td className="text-right font-mono">{f(g.deltaH_m.value, 4)} ± {f(g.deltaH_m.expandedUncertainty, 4)} m (k = 2)</td></tr>
-          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Difference (clocks − geodesy)</td><td className="text-right font-mono" data-testid="agreement-difference">{f(g.differenceM, 4)} ± {f(Math.hypot(r.deltaH_m.expandedUncertainty, g.deltaH_m.expandedUncertainty), 4)} m (k = 2)</td></tr>
+          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">ΔH from the clocks (H_B − H_A)</td><td className="text-right font-mono">{f(r.deltaH_m.value, 4)} ± {f(r.deltaH_m.expandedUncertainty, 4)} m ({coverageText(r.deltaH_m)})</td></tr>
+          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">ΔH from geodesy ({g.source})</td><td className="text-right font-mono">{f(g.deltaH_m.value, 4)} ± {f(g.deltaH_m.expandedUncertainty, 4)} m ({coverageText(g.deltaH_m)})</td></tr>
+          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Difference (clocks − geodesy)</td><td className="text-right font-mono" data-testid="agreement-difference">{f(g.differenceM, 4)} ± {f(Math.hypot(r.deltaH_m.expandedUncertainty, g.deltaH_m.expandedUncertainty), 4)} m (√(U_clocks² + U_geodesy²))</td></tr>
           <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">E_n = difference / √(U_clocks² + U_geodesy²)</td><td className="text-right font-mono">{f(g.en, 3)} ({Math.abs(g.en) <= 1 ? '|E_n| ≤ 1' : '|E_n| > 1'})</td></tr>
         </tbody>
       </table>
@@ -73,12 +76,43 @@ function BudgetPanel({ r }: { r: ResultBody }) {
               </tr>
             ))}
             <tr className="border-t-2 border-ink-200 font-medium"><td className="py-1.5">Combined standard uncertainty u_c</td><td /><td /><td /><td className="whitespace-nowrap px-3 text-right font-mono">{e(b.combinedStandardUncertainty)}</td><td className="text-right">100 %</td></tr>
-            <tr className="font-medium"><td className="py-1.5">Expanded uncertainty U (k = {b.coverageFactor})</td><td /><td /><td /><td className="whitespace-nowrap px-3 text-right font-mono">{e(b.expandedUncertainty)}</td><td /></tr>
+            <tr className="font-medium"><td className="py-1.5" data-testid="budget-coverage">Expanded uncertainty U ({coverageText(b)})</td><td /><td /><td /><td className="whitespace-nowrap px-3 text-right font-mono">{e(b.expandedUncertainty)}</td><td /></tr>
           </tbody>
         </table>
       </div>
-      <p className="mt-2 text-xs text-ink-500">Effective degrees of freedom: {b.effectiveDegreesOfFreedom === null ? 'large (type B components dominate)' : b.effectiveDegreesOfFreedom.toFixed(0)}. {b.systematicCorrections}</p>
+      <p className="mt-2 text-xs text-ink-500">{b.coverageRule} {b.systematicCorrections}</p>
     </Panel>
+  );
+}
+
+const range = (v: number | null, lo: number | null, hi: number | null) => (v === null ? '—' : `${e(v)} (${e(lo, 2)} … ${e(hi, 2)})`);
+
+function StabilityTable({ r }: { r: ResultBody }) {
+  return (
+    <details className="mt-3">
+      <summary className="cursor-pointer text-sm font-medium text-ink-700">Table: ADEV, MDEV, TDEV, HDEV and TOTDEV with 68.3 % intervals and the noise type at each τ</summary>
+      <div className="mt-2 overflow-x-auto">
+        <table className="min-w-full text-xs" data-testid="stability-table">
+          <thead className="text-left text-ink-500">
+            <tr><th className="py-1 pr-3">τ (s)</th><th className="px-2">OADEV</th><th className="px-2">EDF</th><th className="px-2">MDEV</th><th className="px-2">TDEV (s)</th><th className="px-2">HDEV</th><th className="px-2">TOTDEV</th><th className="px-2">Noise</th></tr>
+          </thead>
+          <tbody>
+            {r.stability.points.map((p) => (
+              <tr key={p.tauSeconds} className="border-t border-paper-200 font-mono">
+                <td className="py-1 pr-3">{sig(p.tauSeconds, 6)}</td>
+                <td className="whitespace-nowrap px-2">{range(p.adev, p.adevLow, p.adevHigh)}</td>
+                <td className="px-2">{p.edf === null ? '—' : sig(p.edf, 3)}</td>
+                <td className="whitespace-nowrap px-2">{range(p.mdev, p.mdevLow, p.mdevHigh)}</td>
+                <td className="whitespace-nowrap px-2">{range(p.tdev, p.tdevLow, p.tdevHigh)}</td>
+                <td className="whitespace-nowrap px-2">{range(p.hdev, p.hdevLow, p.hdevHigh)}</td>
+                <td className="whitespace-nowrap px-2">{p.totdev === null ? '—' : e(p.totdev)}</td>
+                <td className="px-2 font-sans">{p.noiseType} <span className="text-ink-400">({p.noiseMethod === 'acf' ? 'lag-1 ACF' : p.noiseMethod === 'b1' ? 'B1/R(n)' : 'carried over'})</span></td>
+              </tr>
+            ))}
+          </tbody>
+        </table>
+      </div>
+    </details>
   );
 }
 
@@ -134,11 +168,11 @@ export function ResultsPage() {
       <section className="grid gap-3 md:grid-cols-3" aria-label="Main figures">
         <div className="rounded-lg border border-paper-200 bg-white p-4">
           <p className="text-xs uppercase tracking-wide text-ink-500">Fractional offset y (tide-corrected)</p>
-          <p className="mt-1 font-mono text-base text-ink-900" data-testid="result-y">{e(r.fractionalOffset.y, 6)} ± {e(r.budget.expandedUncertainty, 2)}</p>
-          <p className="text-xs text-ink-500">expanded uncertainty, k = 2; measured mean ratio {r.measuredRatio}</p>
+          <p className="mt-1 font-mono text-base text-ink-900" data-testid="result-y">{r.fractionalOffset.yText} ± {e(r.budget.expandedUncertainty, 2)}</p>
+          <p className="text-xs text-ink-500">expanded uncertainty, {coverageText(r.budget)}; u(y) = {e(r.fractionalOffset.standardUncertainty, 2)}; measured mean ratio {r.measuredRatio}</p>
         </div>
-        <Quantity label="Potential difference ΔC = C_B − C_A" value={r.deltaC_m2s2.value} unit="m²/s²" expanded={r.deltaC_m2s2.expandedUncertainty} testId="result-dc" />
-        <Quantity label="Normal-height difference ΔH = H_B − H_A" value={r.deltaH_m.value} unit="m" expanded={r.deltaH_m.expandedUncertainty} testId="result-dh" />
+        <Quantity label="Potential difference ΔC = C_B − C_A" q={r.deltaC_m2s2} unit="m²/s²" testId="result-dc" />
+        <Quantity label="Normal-height difference ΔH = H_B − H_A" q={r.deltaH_m} unit="m" testId="result-dh" />
       </section>
 
       <Agreement r={r} />
@@ -154,7 +188,17 @@ export function ResultsPage() {
 
       <Panel title="Frequency stability">
         <AllanPlot points={r.stability.points} title="Allan deviation of the tide-corrected comparison" />
-        <p className="mt-2 text-xs text-ink-500">{r.stability.note} Statistical uncertainty of the mean: {e(r.fractionalOffset.statisticalUncertainty)} — {r.fractionalOffset.statisticalMethod}.</p>
+        <p className="mt-2 text-sm" data-testid="statistical-uncertainty">
+          Statistical uncertainty of the mean: <span className="font-mono">{e(r.fractionalOffset.statisticalUncertainty)}</span>
+          {r.fractionalOffset.statisticalDegreesOfFreedom !== null && <> (ν = {sig(r.fractionalOffset.statisticalDegreesOfFreedom, 3)})</>} — {r.fractionalOffset.statisticalMethod}
+        </p>
+        {r.fractionalOffset.drift && (
+          <p className="mt-1 text-xs text-ink-500">
+            Linear drift (stated, not removed): {e(r.fractionalOffset.drift.slopePerDay, 3)} ± {e(r.fractionalOffset.drift.standardUncertaintyPerDay, 2)} per day (standard uncertainty). {r.fractionalOffset.drift.note}
+          </p>
+        )}
+        <StabilityTable r={r} />
+        <p className="mt-2 text-xs text-ink-500">{r.stability.note}</p>
       </Panel>
 
       <BudgetPanel r={r} />
@@ -178,6 +222,10 @@ export function ResultsPage() {
           </ul>
         </Panel>
       </div>
+
+      <Panel title="Assumptions">
+        <ul className="list-disc space-y-1 pl-5 text-sm" data-testid="assumptions">{r.assumptions.map((a) => <li key={a}>{a}</li>)}</ul>
+      </Panel>
 
       <Panel title="Method">
         <p className="text-sm">{r.method.statement}</p>

@@ -247,7 +247,7 @@ describe('mean with statistical uncertainty', () => {
     for (const v of y) sum += v;
     expect(result.mean).toBeCloseTo(sum / N, 30);
     expect(Math.abs(result.mean - 3e-16)).toBeLessThan(4 * expected);
-    expect(result.method).toContain('white-FM extrapolation');
+    expect(result.method).toContain('white FM fitted over');
   });
 
   it('skips invalid samples and uses the valid time only', () => {

@@ -17,7 +17,7 @@ describe('GUM budget', () => {
         { name: 'expansion coefficient difference δα', type: 'B', standardUncertainty: 1e-6 / Math.sqrt(3), sensitivity: -50_000_623 * -0.1, unit: nm, degreesOfFreedom: 50 },
         { name: 'expansion coefficient α_s', type: 'B', standardUncertainty: 2e-6 / Math.sqrt(3), sensitivity: 0, unit: nm },
       ],
-      2,
+      { fixedCoverageFactor: 2 },
     );
     expect(budget.lines[1].contribution).toBeCloseTo(16.599, 3);
     expect(budget.lines[5].contribution).toBeCloseTo(2.88679, 4);

@@ -1,0 +1,15 @@
+import { useMutation, useQuery, useQueryClient } from '@tanstack/react-query';
+import type { MeasuredRatio, MeasuredRatioInput } from '../../shared/measured-ratios';
+import { api } from '../lib/api-client';
+
+export const measuredRatioKeys = { all: ['measured-ratios'] as const };
+
+export const useMeasuredRatios = () => useQuery({ queryKey: measuredRatioKeys.all, queryFn: () => api<MeasuredRatio[]>('/api/v1/measured-frequency-ratios') });
+
+export function useCreateMeasuredRatio() {
+  const qc = useQueryClient();
+  return useMutation({
+    mutationFn: (body: MeasuredRatioInput) => api<MeasuredRatio>('/api/v1/measured-frequency-ratios', { body }),
+    onSuccess: () => qc.invalidateQueries({ queryKey: measuredRatioKeys.all }),
+  });
+}
