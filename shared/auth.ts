@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { pageQuerySchema, sortableBy } from './http';
 
 export const roles = ['operator', 'coordinator', 'auditor', 'admin'] as const;
 export const roleSchema = z.enum(roles);
@@ -78,3 +79,7 @@ export const auditEventSchema = z.object({
   hash: z.string(),
 });
 export type AuditEvent = z.infer<typeof auditEventSchema>;
+
+export const userSortFields = ['email', 'displayName', 'role', 'lastSignInAt'] as const;
+export const userListQuery = pageQuerySchema.extend({ sort: sortableBy(userSortFields) });
+export type UserListQuery = z.infer<typeof userListQuery>;

@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { sortableBy } from './http';
 import { budgetVersionSchema, decimalString, speciesSchema } from './registry';
 
 // The campaign contract: two clocks compared over one fibre link during a period, with a reference ratio,
@@ -118,10 +119,11 @@ export const campaignSchema = campaignSummarySchema.extend({
 });
 export type Campaign = z.infer<typeof campaignSchema>;
 
+export const campaignSortFields = ['name', 'state', 'periodStart', 'periodEnd', 'updatedAt', 'institute'] as const;
 export const campaignListQuery = z.object({
   page: z.coerce.number().int().min(1).default(1),
   pageSize: z.coerce.number().int().min(1).max(500).default(25),
-  sort: z.string().max(60).optional(),
+  sort: sortableBy(campaignSortFields),
   order: z.enum(['asc', 'desc']).default('asc'),
   q: z.string().max(200).optional(),
   state: z.enum(campaignStates).optional(),

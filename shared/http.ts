@@ -18,11 +18,18 @@ export type Problem = z.infer<typeof problemSchema>;
 export const pageQuerySchema = z.object({
   page: z.coerce.number().int().min(1).default(1),
   pageSize: z.coerce.number().int().min(1).max(500).default(25),
-  sort: z.string().max(60).optional(),
   order: z.enum(['asc', 'desc']).default('asc'),
   q: z.string().max(200).optional(),
 });
 export type PageQuery = z.infer<typeof pageQuerySchema>;
+
+/**
+ * A list's `sort` parameter: one of the list's own column names (a zod enum). A free string would end up as a key
+ * into a lookup table, where names every object inherits (`__proto__`, `constructor`) do harm.
+ */
+export function sortableBy<const T extends readonly [string, ...string[]]>(fields: T) {
+  return z.enum(fields).optional();
+}
 
 export function pageOf<T extends z.ZodTypeAny>(item: T) {
   return z.object({ items: z.array(item), total: z.number().int(), page: z.number().int(), pageSize: z.number().int() });

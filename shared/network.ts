@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { pageQuerySchema } from './http';
+import { pageQuerySchema, sortableBy } from './http';
 
 // The levelling network's API contract: height datums, benchmarks, levelling sections, loops, adjustment runs,
 // reconciliation with clock results, the map, and the stateless adjustment calculator.
@@ -84,7 +84,8 @@ export const benchmarkSchema = z.object({
 });
 export type Benchmark = z.infer<typeof benchmarkSchema>;
 
-export const benchmarkListQuerySchema = pageQuerySchema.extend({ datumId: z.string().uuid().optional() });
+export const benchmarkSortFields = ['code', 'name', 'datumName', 'latitudeDeg', 'longitudeDeg', 'knownNormalHeightM', 'fixed', 'state'] as const;
+export const benchmarkListQuerySchema = pageQuerySchema.extend({ datumId: z.string().uuid().optional(), sort: sortableBy(benchmarkSortFields) });
 
 export const sectionInputSchema = z.object({
   lineName: z.string().trim().max(120).nullable().optional(),
@@ -122,7 +123,8 @@ export const sectionSchema = z.object({
   runCheckPassed: z.boolean().nullable(),
 });
 export type Section = z.infer<typeof sectionSchema>;
-export const sectionListQuerySchema = pageQuerySchema.extend({ datumId: z.string().uuid().optional() });
+export const sectionSortFields = ['lineName', 'fromCode', 'toCode', 'deltaHeightM', 'lengthKm', 'observedOn', 'meanGravity_ms2'] as const;
+export const sectionListQuerySchema = pageQuerySchema.extend({ datumId: z.string().uuid().optional(), sort: sortableBy(sectionSortFields) });
 
 export const sectionUploadQuerySchema = z.object({ preview: z.enum(['true', 'false']).default('false') });
 export const sectionUploadResultSchema = z.object({

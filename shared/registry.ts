@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { patchOf } from './http';
+import { patchOf, sortableBy } from './http';
 
 // The registry contract: sites, quasigeoid grids, clocks with versioned systematic budgets, reference
 // frequencies and fibre links. Frequencies travel as decimal strings, never JSON numbers.
@@ -239,10 +239,18 @@ export type Link = z.infer<typeof linkSchema>;
 export const registryListQuery = z.object({
   page: z.coerce.number().int().min(1).default(1),
   pageSize: z.coerce.number().int().min(1).max(500).default(25),
-  sort: z.string().max(60).optional(),
   order: z.enum(['asc', 'desc']).default('asc'),
   q: z.string().max(200).optional(),
   instituteId: z.string().uuid().optional(),
   siteId: z.string().uuid().optional(),
 });
 export type RegistryListQuery = z.infer<typeof registryListQuery>;
+export const siteSortFields = ['name', 'institute', 'latitudeDeg', 'longitudeDeg', 'ellipsoidalHeightM', 'updatedAt'] as const;
+export const clockSortFields = ['name', 'species', 'kind', 'site', 'institute', 'createdAt'] as const;
+export const linkSortFields = ['name', 'fibreLengthKm', 'fractionalUncertainty', 'createdAt'] as const;
+export const siteListQuery = registryListQuery.extend({ sort: sortableBy(siteSortFields) });
+export const clockListQuery = registryListQuery.extend({ sort: sortableBy(clockSortFields) });
+export const linkListQuery = registryListQuery.extend({ sort: sortableBy(linkSortFields) });
+export type SiteListQuery = z.infer<typeof siteListQuery>;
+export type ClockListQuery = z.infer<typeof clockListQuery>;
+export type LinkListQuery = z.infer<typeof linkListQuery>;

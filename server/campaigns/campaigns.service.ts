@@ -280,7 +280,8 @@ export async function markCampaignCertified(manager: EntityManager, campaignId: 
 
 // ---------- service ----------
 
-const sortColumns: Record<string, string> = { name: 'c.name', state: 'c.state', periodStart: 'c.period_start', periodEnd: 'c.period_end', updatedAt: 'c.updated_at', institute: 'i.code' };
+// Sort names come from the list's zod enum; a Map so no inherited name (`__proto__`, `constructor`) can match.
+const sortColumns = new Map<NonNullable<CampaignListQuery['sort']>, string>([['name', 'c.name'], ['state', 'c.state'], ['periodStart', 'c.period_start'], ['periodEnd', 'c.period_end'], ['updatedAt', 'c.updated_at'], ['institute', 'i.code']]);
 
 export function createCampaignsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'coordinatorMail' | 'publicUrl'> }) {
   const { dataSource, config } = deps;
@@ -350,7 +351,7 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
       if (actor.role === 'operator') qb.andWhere('(c.institute_id = :inst OR cb.institute_id = :inst)', { inst: actor.instituteId });
       if (q.q) qb.andWhere('(c.name ILIKE :q OR ca.name ILIKE :q OR cb.name ILIKE :q OR i.code ILIKE :q)', { q: `%${q.q}%` });
       if (q.state) qb.andWhere('c.state = :state', { state: q.state });
-      qb.orderBy(sortColumns[q.sort ?? 'updatedAt'] ?? 'c.updated_at', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('c.id');
+      qb.orderBy(sortColumns.get(q.sort ?? 'updatedAt') ?? 'c.updated_at', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('c.id');
       const [rows, total] = await qb.skip((q.page - 1) * q.pageSize).take(q.pageSize).getManyAndCount();
       return { items: rows.map(toSummary), total, page: q.page, pageSize: q.pageSize };
     },

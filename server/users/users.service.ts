@@ -1,6 +1,6 @@
 import type { DataSource } from 'typeorm';
 import type { Role } from '../../shared/auth';
-import type { PageQuery } from '../../shared/http';
+import type { UserListQuery } from '../../shared/auth';
 import { recordAudit } from '../audit/audit.service';
 import type { Actor } from '../auth/actor';
 import { authorize } from '../auth/permissions';
@@ -55,15 +55,15 @@ export async function findActorByUserId(dataSource: DataSource, userId: string):
   return u ? { userId: u.id, email: u.email, displayName: u.displayName, role: u.role, instituteId: u.instituteId, via: 'session' } : null;
 }
 
-const userSort: Record<string, string> = { email: 'u.email', displayName: 'u.display_name', role: 'u.role', lastSignInAt: 'u.last_sign_in_at' };
+const userSort = new Map<NonNullable<UserListQuery['sort']>, string>([['email', 'u.email'], ['displayName', 'u.display_name'], ['role', 'u.role'], ['lastSignInAt', 'u.last_sign_in_at']]);
 
 export function createUsersService(dataSource: DataSource) {
   return {
-    async list(actor: Actor, q: PageQuery) {
+    async list(actor: Actor, q: UserListQuery) {
       authorize(actor, 'users:read');
       const qb = dataSource.getRepository(UserEntity).createQueryBuilder('u').leftJoinAndSelect('u.institute', 'i');
       if (q.q) qb.where('(u.email ILIKE :q OR u.display_name ILIKE :q OR i.code ILIKE :q)', { q: `%${q.q}%` });
-      qb.orderBy(userSort[q.sort ?? 'email'] ?? 'u.email', q.order === 'desc' ? 'DESC' : 'ASC');
+      qb.orderBy(userSort.get(q.sort ?? 'email') ?? 'u.email', q.order === 'desc' ? 'DESC' : 'ASC');
       const [rows, total] = await qb.skip((q.page - 1) * q.pageSize).take(q.pageSize).getManyAndCount();
       return { items: rows.map(toUserDto), total, page: q.page, pageSize: q.pageSize };
     },
