@@ -3,12 +3,13 @@ import passport from 'passport';
 import type { Strategy as SamlStrategy } from '@node-saml/passport-saml';
 import fs from 'node:fs';
 import { Unauthenticated } from '../http/errors';
+import { safeReturnPath } from './return-path';
 
 /** Sign-in through the institute's identity provider (SAML 2.0, HTTP-Redirect out, HTTP-POST back) and sign-out. */
 export function createAuthRouter(strategy: SamlStrategy, spCertPem?: string) {
   const router = express.Router();
   router.get('/auth/saml/login', (req, res, next) => {
-    const returnTo = typeof req.query.returnTo === 'string' && req.query.returnTo.startsWith('/') ? req.query.returnTo : '/';
+    const returnTo = safeReturnPath(req.query.returnTo);
     passport.authenticate('saml', { failureRedirect: '/signed-out', additionalParams: { RelayState: returnTo } } as never)(req, res, next);
   });
   router.post('/auth/saml/callback', express.urlencoded({ extended: false, limit: '512kb' }), (req: Request, res: Response, next: NextFunction) => {
@@ -19,7 +20,7 @@ export function createAuthRouter(strategy: SamlStrategy, spCertPem?: string) {
       }
       req.login(user, (loginErr) => {
         if (loginErr) return next(loginErr);
-        const relay = typeof req.body?.RelayState === 'string' && req.body.RelayState.startsWith('/') && !req.body.RelayState.startsWith('//') ? req.body.RelayState : '/';
+        const relay = safeReturnPath(req.body?.RelayState);
         res.redirect(303, relay);
       });
     })(req, res, next);

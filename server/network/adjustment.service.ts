@@ -20,7 +20,6 @@ import { clockDeltaCFor, loadAcceptedCampaigns, loadLinks, loadSites } from './r
 // an immutable run row, let a pg-boss worker adjust them (server/jobs/worker.ts), and read the results back for the
 // run pages, the reconciliation of clocks with levelling and the map.
 
-
 /** A stored (JSON) lookup table read by a key that may be anything a person typed: own properties only. */
 function ownValue<T>(table: Record<string, T>, key: string): T | undefined {
   return Object.hasOwn(table, key) ? table[key] : undefined;

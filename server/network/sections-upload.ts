@@ -14,7 +14,6 @@ import { createNetworkService, runCheck } from './network.service';
 // Levelling-section CSV upload (format: docs/formats/levelling-sections.md). The whole file is checked before
 // anything is stored; the first offending line and column are named; the rows go in one transaction.
 
-
 /** Request field → CSV column, for naming the column at fault. */
 const sectionColumns = new Map<string, string>([
   ['lineName', 'line'], ['fromCode', 'from'], ['toCode', 'to'], ['deltaHeightM', 'delta_h_m'], ['lengthKm', 'length_km'],
