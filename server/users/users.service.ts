@@ -77,15 +77,17 @@ export function createUsersService(dataSource: DataSource) {
           throw new Invalid('Unknown institute.', [{ path: 'body.instituteId', message: 'no such institute' }]);
         }
         const before = { role: user.role, instituteId: user.instituteId };
-        if (patch.role) user.role = patch.role;
-        if (patch.instituteId !== undefined) user.instituteId = patch.instituteId;
-        if (user.role === 'operator' && !user.instituteId) {
+        const next = { role: patch.role ?? user.role, instituteId: patch.instituteId !== undefined ? patch.instituteId : user.instituteId };
+        if (next.role === 'operator' && !next.instituteId) {
           throw new Invalid('Lab staff must belong to an institute.', [{ path: 'body.instituteId', message: 'required for lab staff' }]);
         }
-        await repo.save(user);
-        await recordAudit(m, actor, { action: 'user.updated', entityType: 'user', entityId: id, details: { before, after: patch } });
-        const fresh = await repo.findOne({ where: { id }, relations: { institute: true } });
-        return toUserDto(fresh!);
+        // An UPDATE of the columns themselves: saving the loaded entity let its `institute` relation win over the
+        // changed institute id, so the row stayed as it was while the audit event said otherwise.
+        await repo.update({ id }, next);
+        const fresh = (await repo.findOne({ where: { id }, relations: { institute: true } }))!;
+        const after = { role: fresh.role, instituteId: fresh.instituteId };
+        await recordAudit(m, actor, { action: 'user.updated', entityType: 'user', entityId: id, details: { before, after } });
+        return toUserDto(fresh);
       });
     },
   };
