@@ -8,6 +8,7 @@ import { authorize, type Permission } from '../auth/permissions';
 import { recordAudit } from '../audit/audit.service';
 import { getCampaignForResult, type CampaignForResult } from '../campaigns/campaigns.service';
 import { ComparisonResultEntity, type ComparisonResultRow } from '../db/entities/results.entities';
+import { csvLine } from '../http/csv';
 import { Conflict, NotFound } from '../http/errors';
 import { SOFTWARE_CONSTANTS } from '../science/constants';
 import { ScienceInputError } from '../science/errors';
@@ -170,11 +171,6 @@ function requireCampaignVisible(actor: Actor, campaign: CampaignForResult): void
   if (!mine.includes(actor.instituteId ?? '')) throw new NotFound('Campaign');
 }
 
-const csvCell = (v: string | number | null | undefined): string => {
-  const s = v === null || v === undefined ? '' : String(v);
-  return /[",\n]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s;
-};
-
 /** The result as one CSV table (section, quantity, value, u, U(k=2), unit, note); numbers in shortest round-trip form. */
 export function resultToCsv(dto: ComparisonResultDto): string {
   const r = dto.result;
@@ -207,7 +203,7 @@ export function resultToCsv(dto: ComparisonResultDto): string {
     ...r.otherTideSystems.map((o) => ['tide_system', `delta_C_${o.system}`, o.deltaC_m2s2, null, null, 'm2/s2', `delta_H ${o.deltaH_m} m`]),
     ...r.stability.points.map((p) => ['stability', `adev_tau_${p.tauSeconds}s`, p.adev, null, null, '1', `68% interval ${p.adevLow}…${p.adevHigh}; mdev ${p.mdev}; noise ${p.noiseType}`]),
   ];
-  return [resultCsvColumns.join(','), ...rows.map((row) => row.map(csvCell).join(','))].join('\n') + '\n';
+  return [resultCsvColumns.join(','), ...rows.map(csvLine)].join('\n') + '\n';
 }
 
 export function createResultsService(dataSource: DataSource) {

