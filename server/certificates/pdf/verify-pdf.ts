@@ -93,10 +93,14 @@ export async function verifySignedPdf(pdf: Buffer, pinnedCertificatePem: string)
 
   if (a !== 0) return tampered('signed byte range does not start at the beginning of the file');
   if (!(b > 0 && c > b + 1 && c + d === pdf.length)) {
+    if (!(b > 0 && c > b + 1) || c + d > pdf.length) return tampered('signed byte range does not match the file length');
+    // The file is longer than what was signed. If the signature gap still sits where the byte range says, the extra
+    // bytes follow the signed range (an incremental update); otherwise they were put in before the signature.
+    const extra = pdf.length - (c + d);
     return tampered(
-      c + d < pdf.length
-        ? `bytes after the signed range: ${pdf.length - (c + d)} bytes were appended (incremental update) after signing`
-        : 'signed byte range does not match the file length',
+      pdf[b] === 0x3c && pdf[c - 1] === 0x3e
+        ? `bytes after the signed range: ${extra} bytes were appended (incremental update) after signing`
+        : `${extra} bytes were put into the file before the signature, or bytes inside it were changed, after signing (the signed byte range no longer lines up with the file)`,
     );
   }
   if (pdf[b] !== 0x3c || pdf[c - 1] !== 0x3e) return tampered('the gap in the signed byte range is not a hex string');
