@@ -31,6 +31,7 @@ import { ScienceInputError } from '../science/errors';
 import { parsePositiveDecimal, ratioOfFrequencies, MAX_REFERENCE_SIGNIFICANT_DIGITS } from '../science/fractional-offset';
 import { rss } from '../science/uncertainty';
 import { currentBudget, linkDistances, normalHeightOf, toBudgetDto } from '../registry/registry.service';
+import { requestResultComputation } from '../results/result-requests';
 
 // Campaign rules: owning institute = clock A's institute; the lab edits only while draft or returned; the
 // coordinating institute reviews; every change is audited and every state change lands on the timeline.
@@ -283,7 +284,7 @@ export async function markCampaignCertified(manager: EntityManager, campaignId: 
 // Sort names come from the list's zod enum; a Map so no inherited name (`__proto__`, `constructor`) can match.
 const sortColumns = new Map<NonNullable<CampaignListQuery['sort']>, string>([['name', 'c.name'], ['state', 'c.state'], ['periodStart', 'c.period_start'], ['periodEnd', 'c.period_end'], ['updatedAt', 'c.updated_at'], ['institute', 'i.code']]);
 
-export function createCampaignsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'coordinatorMail' | 'publicUrl'> }) {
+export function createCampaignsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'coordinatorMail' | 'publicUrl' | 'databaseUrl'> }) {
   const { dataSource, config } = deps;
 
   async function checkLinkJoinsClocks(m: EntityManager, linkId: string, a: ClockRow, b: ClockRow) {
@@ -317,6 +318,9 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
       await m.getRepository(CampaignEntity).update({ id }, patch);
       await addEvent(m, actor, id, c.state, t.to, note);
       await recordAudit(m, actor, { action: `campaign.${t.to}`, entityType: 'campaign', entityId: id, instituteId: c.instituteId, details: { from: c.state, to: t.to, note } });
+      if (kind === 'accept' && (await m.query('SELECT 1 FROM ratio_series WHERE campaign_id = $1 LIMIT 1', [id])).length > 0) {
+        await requestResultComputation(m, config.databaseUrl, actor, id, 'accept');
+      }
       if (kind === 'submit') {
         await enqueueMail(m, {
           to: config.coordinatorMail,

@@ -15,6 +15,7 @@ import { openSpool } from './raw-file-spool';
 import { buildPreview } from './ratio-series-format';
 import { decimateSeries } from './series-plot';
 import { uploadProgress } from './upload-progress';
+import { requestResultComputation } from '../results/result-requests';
 
 // Uploads of frequency-ratio series: who may upload (lab staff of the campaign's owning institute, campaign draft or
 // returned), the one transaction (COPY rows + raw file + series row + audit event), previews, lists and plot data.
@@ -153,7 +154,7 @@ function isUniqueViolation(e: unknown) {
   return (e as { code?: string })?.code === '23505';
 }
 
-export function createUploadsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'uploadLimitBytes'> }) {
+export function createUploadsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'uploadLimitBytes' | 'databaseUrl'> }) {
   const { dataSource, config } = deps;
 
   async function campaignOr404(actor: Actor, id: string) {
@@ -221,6 +222,8 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
             action: 'campaign.series-uploaded', entityType: 'ratio_series', entityId: row.id, instituteId: campaign.instituteId,
             details: { campaignId, fileName: row.file_name, sha256: row.sha256, rows: row.row_count, valid: row.valid_count },
           });
+          // the result is computed by a job queued in this transaction (never by a later GET)
+          await requestResultComputation(qr.manager, config.databaseUrl, actor, campaignId, 'upload');
           return row;
         });
         if (!result) throw new Invalid('No file was sent.', [{ path: 'file', message: 'attach the file as the part named "file"' }]);
