@@ -32,6 +32,7 @@ import { parsePositiveDecimal, ratioOfFrequencies, MAX_REFERENCE_SIGNIFICANT_DIG
 import { rss } from '../science/uncertainty';
 import { currentBudget, linkDistances, normalHeightOf, toBudgetDto } from '../registry/registry.service';
 import { requestResultComputation } from '../results/result-requests';
+import { campaignScopeCondition, canSeeCampaign } from '../auth/campaign-scope';
 
 // Campaign rules: owning institute = clock A's institute; the lab edits only while draft or returned; the
 // coordinating institute reviews; every change is audited and every state change lands on the timeline.
@@ -81,8 +82,7 @@ function overrideRatio(o: ReferenceRatioOverride) {
 
 /** Operators read campaigns of their institute (clock A) or of clock B's institute; other roles read all. */
 function canRead(actor: Actor, c: CampaignRow): boolean {
-  if (actor.role !== 'operator') return true;
-  return actor.instituteId === c.instituteId || actor.instituteId === c.clockB?.instituteId;
+  return canSeeCampaign(actor, { state: c.state, instituteId: c.instituteId, partnerInstituteId: c.clockB?.instituteId ?? null });
 }
 function requireOwner(actor: Actor, c: CampaignRow) {
   if (actor.role !== 'operator' || actor.instituteId !== c.instituteId) throw new Forbidden('Only lab staff of the owning institute (clock A) change this campaign.');
@@ -352,7 +352,8 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
         .leftJoinAndSelect('cb.site', 'sb')
         .leftJoinAndSelect('cb.institute', 'ib')
         .leftJoinAndSelect('c.link', 'l');
-      if (actor.role === 'operator') qb.andWhere('(c.institute_id = :inst OR cb.institute_id = :inst)', { inst: actor.instituteId });
+      const scope = campaignScopeCondition(actor, { state: 'c.state', institute: 'c.institute_id', partnerInstitute: 'cb.institute_id' });
+      qb.andWhere(scope.sql, scope.params);
       if (q.q) qb.andWhere('(c.name ILIKE :q OR ca.name ILIKE :q OR cb.name ILIKE :q OR i.code ILIKE :q)', { q: `%${q.q}%` });
       if (q.state) qb.andWhere('c.state = :state', { state: q.state });
       qb.orderBy(sortColumns.get(q.sort ?? 'updatedAt') ?? 'c.updated_at', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('c.id');

@@ -44,8 +44,10 @@ export async function toCertificateSummary(manager: EntityManager, row: Certific
 }
 
 function scopeCheck(actor: Actor, row: CertificateRow): void {
+  // As for campaigns (docs/decisions/0004-campaign-visibility.md): another institute's certificate does not exist
+  // for lab staff — numbers are sequential, so a 403 would confirm each one.
   if (actor.role === 'operator' && actor.instituteId !== row.instituteAId && actor.instituteId !== row.instituteBId) {
-    throw new Forbidden('This certificate concerns clocks of other institutes.');
+    throw new NotFound('Certificate');
   }
 }
 

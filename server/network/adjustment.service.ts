@@ -15,6 +15,7 @@ import { normalisedError } from '../science/agreement';
 import { meanNormalGravity, normalGravityAtHeight, normalHeightFromC } from '../science/normal-gravity';
 import { loadSectionsWithBenchmarks } from './network.service';
 import { clockDeltaCFor, loadAcceptedCampaigns, loadLinks, loadSites } from './registry-bridge';
+import { canSeeCampaign } from '../auth/campaign-scope';
 
 // Adjustment runs: gather the inputs (sections, site ties, accepted clock comparisons), store them with the options in
 // an immutable run row, let a pg-boss worker adjust them (server/jobs/worker.ts), and read the results back for the
@@ -316,7 +317,16 @@ export function createAdjustmentService(dataSource: DataSource) {
       authorize(actor, 'network:read');
       const r = await dataSource.getRepository(AdjustmentRunEntity).findOneBy({ id });
       if (!r) throw new NotFound('Adjustment run');
-      return { ...toRunDto(r), result: (r.result as RunResult | null) ?? null };
+      const result = (r.result as RunResult | null) ?? null;
+      if (!result || actor.role !== 'operator') return { ...toRunDto(r), result };
+      // A run with clock observations holds other institutes' campaigns (label, ΔC, residual): an operator gets the
+      // network's adjusted points, and of the clock observations only those of campaigns they may see.
+      const visible = new Set((await loadAcceptedCampaigns(dataSource.manager)).filter((c) => canSeeCampaign(actor, c)).map((c) => `clock:${c.id}`));
+      const shown = (o: { id: string }) => !o.id.startsWith('clock:') || visible.has(o.id);
+      return {
+        ...toRunDto(r),
+        result: { ...result, observations: result.observations.filter(shown), snooping: { ...result.snooping, suspects: result.snooping.suspects.filter(shown) } },
+      };
     },
 
     async reconciliation(actor: Actor): Promise<Reconciliation> {
@@ -324,7 +334,8 @@ export function createAdjustmentService(dataSource: DataSource) {
       const m = dataSource.manager;
       const levelling = await latestDone(m, false);
       const withClocks = await latestDone(m, true);
-      const campaigns = await loadAcceptedCampaigns(m);
+      // The same campaign scoping as the campaign pages: an operator sees only their own institute's campaigns here.
+      const campaigns = (await loadAcceptedCampaigns(m)).filter((c) => canSeeCampaign(actor, c));
       const links = new Map((await loadLinks(m)).map((l) => [l.id, l]));
       const sites = new Map((await loadSites(m)).map((s) => [s.id, s]));
       const lv = levelling?.result as RunResult | null;
@@ -373,7 +384,7 @@ export function createAdjustmentService(dataSource: DataSource) {
       }
       const message = rows.length === 0
         ? campaigns.length === 0
-          ? 'No campaign has been accepted yet, so there is nothing to reconcile.'
+          ? 'No accepted campaign that you may see exists yet, so there is nothing to reconcile.'
           : 'Accepted campaigns exist, but none has a computed result yet: nothing to compare with the levelling.'
         : lv ? null : 'No adjustment run without clock observations has finished yet: start one to get the levelling side.';
       return {

@@ -4,6 +4,7 @@ import type { DataSource, EntityManager } from 'typeorm';
 import type { ComparisonResultDto, ResultBody } from '../../shared/results';
 import { resultCsvColumns } from '../../shared/results';
 import type { Actor } from '../auth/actor';
+import { canSeeCampaign } from '../auth/campaign-scope';
 import { authorize } from '../auth/permissions';
 import { recordAudit } from '../audit/audit.service';
 import { getCampaignForResult, type CampaignForResult } from '../campaigns/campaigns.service';
@@ -167,10 +168,7 @@ export async function computeCampaignResult(manager: EntityManager, campaignId: 
 }
 
 function requireCampaignVisible(actor: Actor, campaign: CampaignForResult): void {
-  // Operators see the campaigns their institute runs or takes part in; others see all (as the campaign list does).
-  if (actor.role !== 'operator') return;
-  const mine = [campaign.instituteId, campaign.clockA.instituteId, campaign.clockB.instituteId];
-  if (!mine.includes(actor.instituteId ?? '')) throw new NotFound('Campaign');
+  if (!canSeeCampaign(actor, { state: campaign.state, instituteId: campaign.instituteId, partnerInstituteId: campaign.clockB.instituteId })) throw new NotFound('Campaign');
 }
 
 /** The result as one CSV table (section, quantity, value, u, U(k=2), unit, note); numbers in shortest round-trip form. */

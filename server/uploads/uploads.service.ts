@@ -16,6 +16,7 @@ import { buildPreview } from './ratio-series-format';
 import { decimateSeries } from './series-plot';
 import { uploadProgress } from './upload-progress';
 import { requestResultComputation } from '../results/result-requests';
+import { canSeeCampaign } from '../auth/campaign-scope';
 
 // Uploads of frequency-ratio series: who may upload (lab staff of the campaign's owning institute, campaign draft or
 // returned), the one transaction (COPY rows + raw file + series row + audit event), previews, lists and plot data.
@@ -48,9 +49,9 @@ export async function loadCampaignForUpload(q: { query: (sql: string, params?: u
   };
 }
 
-/** Same reading rule as campaigns: lab staff see their institute's campaigns (clock A or clock B); others see all. */
+/** The campaigns' reading rule (server/auth/campaign-scope.ts). */
 function canRead(actor: Actor, c: CampaignForUpload) {
-  return actor.role !== 'operator' || actor.instituteId === c.instituteId || actor.instituteId === c.clockBInstituteId;
+  return canSeeCampaign(actor, { state: c.state, instituteId: c.instituteId, partnerInstituteId: c.clockBInstituteId });
 }
 
 function requireUploader(actor: Actor, c: CampaignForUpload) {
