@@ -5,7 +5,7 @@ import type { Actor } from '../auth/actor';
 import { authorize } from '../auth/permissions';
 import type { AppConfig } from '../config';
 import { CertificateEntity, type CertificateRow } from '../db/entities/certificates.entities';
-import { Forbidden, NotFound } from '../http/errors';
+import { NotFound } from '../http/errors';
 import { loadCertificateSource, markCertified } from './certificate-source';
 import { instituteNames, issueCertificate, reissueCertificate, revokeCertificate } from './issue';
 

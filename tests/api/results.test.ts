@@ -99,6 +99,10 @@ beforeAll(async () => {
     .field('epochColumn', '1').field('epochKind', 'mjd').field('valueColumn', '2').field('valueKind', 'ratio').field('flagColumn', '3').field('hasHeader', 'true')
     .attach('file', Buffer.from(lines.join('\n') + '\n'), 'generated-run.csv');
   expect(res.status, JSON.stringify(res.body)).toBe(201);
+  // Coordinator and auditor read the results of accepted campaigns (docs/decisions/0004-campaign-visibility.md);
+  // the empty one is under review, which the coordinator sees too.
+  await t.ds.query("UPDATE campaign SET state = 'accepted' WHERE id = $1", [campaignId]);
+  await t.ds.query("UPDATE campaign SET state = 'submitted' WHERE id = $1", [emptyCampaignId]);
 }, 60_000);
 afterAll(async () => {
   await worker.stop();
