@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { pageQuerySchema, sortableBy } from './http';
+import { nameText, pageQuerySchema, sortableBy } from './http';
 
 export const roles = ['operator', 'coordinator', 'auditor', 'admin'] as const;
 export const roleSchema = z.enum(roles);
@@ -45,8 +45,8 @@ export type User = z.infer<typeof userSchema>;
 
 export const createInstituteSchema = z.object({
   code: z.string().trim().min(2).max(24).regex(/^[A-Z0-9-]+$/, 'upper-case letters, digits and hyphens'),
-  name: z.string().trim().min(2).max(200),
-  city: z.string().trim().max(120).nullable().default(null),
+  name: nameText(2, 200),
+  city: nameText(0, 120).nullable().default(null),
   kind: z.enum(['laboratory', 'coordinating', 'audit', 'other']),
 });
 export type CreateInstitute = z.infer<typeof createInstituteSchema>;
@@ -65,7 +65,7 @@ export const apiTokenSchema = z.object({
   revokedAt: z.string().nullable(),
 });
 export type ApiToken = z.infer<typeof apiTokenSchema>;
-export const createApiTokenSchema = z.object({ name: z.string().trim().min(1).max(80) });
+export const createApiTokenSchema = z.object({ name: nameText(1, 80) });
 export const createdApiTokenSchema = z.object({ token: apiTokenSchema, secret: z.string() });
 
 export const auditEventSchema = z.object({

@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { sortableBy } from './http';
+import { nameText, sortableBy } from './http';
 import { budgetVersionSchema, decimalString, speciesSchema } from './registry';
 
 // The campaign contract: two clocks compared over one fibre link during a period, with a reference ratio,
@@ -28,7 +28,7 @@ export const referenceRatioOverride = z.object({
 export type ReferenceRatioOverride = z.infer<typeof referenceRatioOverride>;
 
 const campaignFields = {
-  name: z.string().trim().min(2).max(120),
+  name: nameText(2, 120),
   clockAId: z.string().uuid(),
   clockBId: z.string().uuid(),
   linkId: z.string().uuid(),

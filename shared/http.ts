@@ -48,3 +48,13 @@ export function patchOf<T extends z.ZodRawShape>(schema: z.ZodObject<T>) {
   );
   return z.object(shape) as unknown as ReturnType<z.ZodObject<T>['partial']>;
 }
+
+/** Control characters (line breaks, tabs, escapes) and the Unicode line separators: never part of a name or label. */
+const CONTROL_CHARACTERS = /[\p{Cc}\u2028\u2029]/u;
+/**
+ * A one-line name or label: trimmed, between `min` and `max` characters, and without control characters — a CR/LF
+ * in a name breaks CSV rows, log lines, mail headers and PDF layouts downstream.
+ */
+export function nameText(min: number, max: number) {
+  return z.string().trim().min(min).max(max).refine((s) => !CONTROL_CHARACTERS.test(s), 'line breaks, tabs and other control characters are not allowed here');
+}
