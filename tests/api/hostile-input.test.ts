@@ -51,7 +51,7 @@ describe('control characters in names', () => {
     expect(paths(await as('ines').post('/api/v1/me/tokens', { name }))).toContain('body.name');
     const clock = (await t.ds.query("SELECT id FROM clock WHERE name = 'SCL-Sr1'"))[0].id;
     expect(paths(await as('ines').patch(`/api/v1/clocks/${clock}`, { name }))).toContain('body.name');
-    expect((await t.ds.query('SELECT count(*)::int AS n FROM site WHERE name = $1', [name.trim().replace(/\u0000/g, '')]))[0].n).toBe(0); // PostgreSQL text holds no NUL
+    expect((await t.ds.query('SELECT count(*)::int AS n FROM site WHERE name = $1', [name.trim().replaceAll('\u0000', '')]))[0].n).toBe(0); // PostgreSQL text holds no NUL
   });
 
   it('a plain name with inner spaces and accents still passes', async () => {

@@ -53,6 +53,9 @@ async function demoCampaignWithData(): Promise<string> {
     .field('epochColumn', '1').field('epochKind', 'mjd').field('valueColumn', '2').field('valueKind', 'offset').field('flagColumn', '3').field('hasHeader', 'true')
     .attach('file', Buffer.from(rows.join('\n') + '\n'), { filename: 'invented-check-run.csv', contentType: 'text/csv' });
   expect(upload.status, upload.text).toBe(201);
+  // The coordinator sees a campaign once the lab submits it (docs/decisions/0004-campaign-visibility.md).
+  const submitted = await request(srv.app).post(`/api/v1/campaigns/${campaign.id}/submit`).set('authorization', `Bearer ${operator}`).send({});
+  expect(submitted.status, submitted.text).toBe(200);
   return campaign.id;
 }
 
