@@ -228,9 +228,11 @@ export function createResultsService(dataSource: DataSource, databaseUrl: string
     requireCampaignVisible(actor, campaign);
     const files = await loadFiles(m, campaignId);
     const inputHash = inputHashOf(campaign, files);
+    // The request first: a job marks it done only after its result is committed, so "done" here means the result
+    // read next is there (read the other way round, a job finishing in between looked like "not computed").
+    const request = await readResultRequest(m, campaignId);
     const latest = await latestResultForCampaign(m, campaignId);
     if (latest && latest.inputHash === inputHash) return latest;
-    const request = await readResultRequest(m, campaignId);
     const extra = { campaignId, latestComputedAt: latest?.computedAt ?? null, request: request ? { state: request.state, reason: request.reason, requestedAt: request.requested_at.toISOString() } : null };
     if (request && (request.state === 'queued' || request.state === 'running')) {
       throw new ResultNotReady('result-pending', `The result is being computed (${request.state === 'running' ? 'running now' : 'waiting for a worker'}); ask again in a few seconds.`, { ...extra, retryAfterSeconds: RESULT_POLL_SECONDS });
