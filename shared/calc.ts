@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { nameText } from './http';
 
 // Calculator contract: stateless conversions on top of the science core. Ratios are decimal strings (never JSON numbers,
 // which would drop digits beyond the 17th); everything else is a plain number with its unit in the field name.
@@ -103,8 +104,8 @@ export const geodesicResponseSchema = z.object({
 export type GeodesicResponse = z.infer<typeof geodesicResponseSchema>;
 
 export const transformRequestSchema = z.object({
-  from: z.string().trim().min(1).max(500),
-  to: z.string().trim().min(1).max(500),
+  from: nameText(1, 500),
+  to: nameText(1, 500),
   /** Longitude first for geographic CRSs (as proj4): [lon, lat, h?]; [E, N] projected; [X, Y, Z] geocentric. */
   coordinates: z.array(finite).min(2).max(3),
 });

@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { nameText, sortableBy } from './http';
 import { budgetVersionSchema, decimalString, speciesSchema } from './registry';
 
 // The campaign contract: two clocks compared over one fibre link during a period, with a reference ratio,
@@ -48,7 +49,7 @@ export const referenceRatioChoice = z
 export type ReferenceRatioChoice = z.infer<typeof referenceRatioChoice>;
 
 const campaignFields = {
-  name: z.string().trim().min(2).max(120),
+  name: nameText(2, 120),
   clockAId: z.string().uuid(),
   clockBId: z.string().uuid(),
   linkId: z.string().uuid(),
@@ -139,10 +140,11 @@ export const campaignSchema = campaignSummarySchema.extend({
 });
 export type Campaign = z.infer<typeof campaignSchema>;
 
+export const campaignSortFields = ['name', 'state', 'periodStart', 'periodEnd', 'updatedAt', 'institute'] as const;
 export const campaignListQuery = z.object({
   page: z.coerce.number().int().min(1).default(1),
   pageSize: z.coerce.number().int().min(1).max(500).default(25),
-  sort: z.string().max(60).optional(),
+  sort: sortableBy(campaignSortFields),
   order: z.enum(['asc', 'desc']).default('asc'),
   q: z.string().max(200).optional(),
   state: z.enum(campaignStates).optional(),

@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { pageQuerySchema } from './http';
+import { nameText, pageQuerySchema, sortableBy } from './http';
 
 // The levelling network's API contract: height datums, benchmarks, levelling sections, loops, adjustment runs,
 // reconciliation with clock results, the map, and the stateless adjustment calculator.
@@ -15,9 +15,9 @@ export const DEFAULT_SECTION_TOLERANCE_MM_PER_SQRT_KM = 4;
 export const DEFAULT_SIGMA_MM_PER_SQRT_KM = 1;
 
 export const heightDatumInputSchema = z.object({
-  name: z.string().trim().min(1).max(120),
+  name: nameText(1, 120),
   tideSystem: tideSystemSchema,
-  realisationEpoch: z.string().trim().max(40).nullable().optional(),
+  realisationEpoch: nameText(0, 40).nullable().optional(),
   loopToleranceMmPerSqrtKm: z.number().positive().max(100).default(DEFAULT_LOOP_TOLERANCE_MM_PER_SQRT_KM),
   sectionToleranceMmPerSqrtKm: z.number().positive().max(100).default(DEFAULT_SECTION_TOLERANCE_MM_PER_SQRT_KM),
   notes: z.string().max(4000).nullable().optional(),
@@ -41,7 +41,7 @@ const finite = z.number().refine(Number.isFinite, 'must be a finite number');
 export const benchmarkInputSchema = z
   .object({
     code: z.string().trim().min(1).max(40).regex(/^[A-Za-z0-9._-]+$/, 'letters, digits, dot, dash and underscore only'),
-    name: z.string().trim().min(1).max(200),
+    name: nameText(1, 200),
     datumId: z.string().uuid(),
     /** EPSG code or PROJ string; coordinates in that CRS's order (lon, lat[, h] for geographic; E, N for projected). */
     crs: z.string().trim().min(1).max(300),
@@ -84,12 +84,13 @@ export const benchmarkSchema = z.object({
 });
 export type Benchmark = z.infer<typeof benchmarkSchema>;
 
-export const benchmarkListQuerySchema = pageQuerySchema.extend({ datumId: z.string().uuid().optional() });
+export const benchmarkSortFields = ['code', 'name', 'datumName', 'latitudeDeg', 'longitudeDeg', 'knownNormalHeightM', 'fixed', 'state'] as const;
+export const benchmarkListQuerySchema = pageQuerySchema.extend({ datumId: z.string().uuid().optional(), sort: sortableBy(benchmarkSortFields) });
 
 export const sectionInputSchema = z.object({
-  lineName: z.string().trim().max(120).nullable().optional(),
-  fromCode: z.string().trim().min(1).max(40),
-  toCode: z.string().trim().min(1).max(40),
+  lineName: nameText(0, 120).nullable().optional(),
+  fromCode: nameText(1, 40),
+  toCode: nameText(1, 40),
   /** Measured height difference Δn, to minus from [m]. */
   deltaHeightM: finite.refine((v) => Math.abs(v) < 10_000, 'implausibly large'),
   lengthKm: z.number().positive().max(10_000),
@@ -122,7 +123,8 @@ export const sectionSchema = z.object({
   runCheckPassed: z.boolean().nullable(),
 });
 export type Section = z.infer<typeof sectionSchema>;
-export const sectionListQuerySchema = pageQuerySchema.extend({ datumId: z.string().uuid().optional() });
+export const sectionSortFields = ['lineName', 'fromCode', 'toCode', 'deltaHeightM', 'lengthKm', 'observedOn', 'meanGravity_ms2'] as const;
+export const sectionListQuerySchema = pageQuerySchema.extend({ datumId: z.string().uuid().optional(), sort: sortableBy(sectionSortFields) });
 
 export const sectionUploadQuerySchema = z.object({ preview: z.enum(['true', 'false']).default('false') });
 export const sectionUploadResultSchema = z.object({

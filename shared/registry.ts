@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { patchOf } from './http';
+import { nameText, patchOf, sortableBy } from './http';
 
 // The registry contract: sites, quasigeoid grids, clocks with versioned systematic budgets, reference
 // frequencies and fibre links. Frequencies travel as decimal strings, never JSON numbers.
@@ -36,7 +36,7 @@ const quasigeoidInput = z.discriminatedUnion('source', [
 
 const benchmarkTieInput = z
   .object({
-    benchmarkCode: z.string().trim().min(1).max(60),
+    benchmarkCode: nameText(1, 60),
     heightDifferenceM: finite.refine((v) => Math.abs(v) < 10_000, 'a local tie is shorter than 10 km of height'),
     uncertaintyM: nonNegative,
   })
@@ -44,10 +44,10 @@ const benchmarkTieInput = z
   .default(null);
 
 export const createSiteSchema = z.object({
-  name: z.string().trim().min(2).max(120),
+  name: nameText(2, 120),
   instituteId: z.string().uuid().optional(),
   referencePoint: z.string().trim().min(2).max(1000),
-  crs: z.string().trim().min(3).max(500),
+  crs: nameText(3, 500),
   coordinates: z.array(finite).min(2).max(3),
   ellipsoidalHeightUncertaintyM: nonNegative.default(0),
   quasigeoid: quasigeoidInput,
@@ -84,9 +84,9 @@ export type Site = z.infer<typeof siteSchema>;
 // ---------- quasigeoid grids ----------
 
 export const uploadQuasigeoidGridSchema = z.object({
-  name: z.string().trim().min(2).max(120),
+  name: nameText(2, 120),
   uncertaintyM: nonNegative,
-  fileName: z.string().trim().max(200).nullable().default(null),
+  fileName: nameText(0, 200).nullable().default(null),
   content: z.string().min(1).max(20_000_000),
 });
 export type UploadQuasigeoidGrid = z.input<typeof uploadQuasigeoidGridSchema>;
@@ -136,7 +136,7 @@ export const speciesLabels: Record<SpeciesCode, string> = {
 export const speciesSchema = z.enum(speciesCodes);
 
 export const budgetRowSchema = z.object({
-  effect: z.string().trim().min(1).max(120),
+  effect: nameText(1, 120),
   correction: finite.refine((v) => Math.abs(v) < 1e-6, 'a fractional correction is far below 1e-6'),
   uncertainty: nonNegative.refine((v) => v < 1e-6, 'a fractional uncertainty is far below 1e-6'),
   type: z.enum(['A', 'B']),
@@ -159,7 +159,7 @@ export type BudgetVersion = z.infer<typeof budgetVersionSchema>;
 
 export const createClockSchema = z.object({
   siteId: z.string().uuid(),
-  name: z.string().trim().min(2).max(80),
+  name: nameText(2, 80),
   kind: z.enum(clockKinds),
   species: speciesSchema,
   nominalFrequencyHz: decimalString(20),
@@ -212,7 +212,7 @@ export type ReferenceFrequency = z.infer<typeof referenceFrequencySchema>;
 // ---------- fibre links ----------
 
 export const createLinkSchema = z.object({
-  name: z.string().trim().min(2).max(120),
+  name: nameText(2, 120),
   siteAId: z.string().uuid(),
   siteBId: z.string().uuid(),
   fibreLengthKm: finite.refine((v) => v > 0 && v < 20_000, 'between 0 and 20 000 km'),
@@ -239,10 +239,18 @@ export type Link = z.infer<typeof linkSchema>;
 export const registryListQuery = z.object({
   page: z.coerce.number().int().min(1).default(1),
   pageSize: z.coerce.number().int().min(1).max(500).default(25),
-  sort: z.string().max(60).optional(),
   order: z.enum(['asc', 'desc']).default('asc'),
   q: z.string().max(200).optional(),
   instituteId: z.string().uuid().optional(),
   siteId: z.string().uuid().optional(),
 });
 export type RegistryListQuery = z.infer<typeof registryListQuery>;
+export const siteSortFields = ['name', 'institute', 'latitudeDeg', 'longitudeDeg', 'ellipsoidalHeightM', 'updatedAt'] as const;
+export const clockSortFields = ['name', 'species', 'kind', 'site', 'institute', 'createdAt'] as const;
+export const linkSortFields = ['name', 'fibreLengthKm', 'fractionalUncertainty', 'createdAt'] as const;
+export const siteListQuery = registryListQuery.extend({ sort: sortableBy(siteSortFields) });
+export const clockListQuery = registryListQuery.extend({ sort: sortableBy(clockSortFields) });
+export const linkListQuery = registryListQuery.extend({ sort: sortableBy(linkSortFields) });
+export type SiteListQuery = z.infer<typeof siteListQuery>;
+export type ClockListQuery = z.infer<typeof clockListQuery>;
+export type LinkListQuery = z.infer<typeof linkListQuery>;

@@ -24,7 +24,7 @@ export function withFieldMap<T>(fn: () => T, fieldMap: Record<string, string> = 
   } catch (e) {
     if (e instanceof ScienceInputError) {
       const head = e.field.split(/[.[]/)[0];
-      const mapped = fieldMap[head] ? fieldMap[head] + e.field.slice(head.length) : e.field;
+      const mapped = Object.hasOwn(fieldMap, head) ? fieldMap[head] + e.field.slice(head.length) : e.field;
       throw new Invalid(`The request body is not valid: ${e.message}`, [{ path: `body.${mapped}`, message: e.message.replace(/^[^:]*: /, '') }]);
     }
     throw e;

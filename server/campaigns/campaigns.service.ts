@@ -32,6 +32,8 @@ import { ScienceInputError } from '../science/errors';
 import { parsePositiveDecimal, ratioOfFrequencies, MAX_REFERENCE_SIGNIFICANT_DIGITS } from '../science/fractional-offset';
 import { rss } from '../science/uncertainty';
 import { currentBudget, linkDistances, normalHeightOf, toBudgetDto } from '../registry/registry.service';
+import { requestResultComputation } from '../results/result-requests';
+import { campaignScopeCondition, canSeeCampaign } from '../auth/campaign-scope';
 
 // Campaign rules: owning institute = clock A's institute; the lab edits only while draft or returned; the
 // coordinating institute reviews; every change is audited and every state change lands on the timeline.
@@ -81,8 +83,7 @@ function overrideRatio(o: ReferenceRatioOverride) {
 
 /** Operators read campaigns of their institute (clock A) or of clock B's institute; other roles read all. */
 function canRead(actor: Actor, c: CampaignRow): boolean {
-  if (actor.role !== 'operator') return true;
-  return actor.instituteId === c.instituteId || actor.instituteId === c.clockB?.instituteId;
+  return canSeeCampaign(actor, { state: c.state, instituteId: c.instituteId, partnerInstituteId: c.clockB?.instituteId ?? null });
 }
 function requireOwner(actor: Actor, c: CampaignRow) {
   if (actor.role !== 'operator' || actor.instituteId !== c.instituteId) throw new Forbidden('Only lab staff of the owning institute (clock A) change this campaign.');
@@ -299,9 +300,10 @@ export async function markCampaignCertified(manager: EntityManager, campaignId: 
 
 // ---------- service ----------
 
-const sortColumns: Record<string, string> = { name: 'c.name', state: 'c.state', periodStart: 'c.period_start', periodEnd: 'c.period_end', updatedAt: 'c.updated_at', institute: 'i.code' };
+// Sort names come from the list's zod enum; a Map so no inherited name (`__proto__`, `constructor`) can match.
+const sortColumns = new Map<NonNullable<CampaignListQuery['sort']>, string>([['name', 'c.name'], ['state', 'c.state'], ['periodStart', 'c.period_start'], ['periodEnd', 'c.period_end'], ['updatedAt', 'c.updated_at'], ['institute', 'i.code']]);
 
-export function createCampaignsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'coordinatorMail' | 'publicUrl'> }) {
+export function createCampaignsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'coordinatorMail' | 'publicUrl' | 'databaseUrl'> }) {
   const { dataSource, config } = deps;
 
   async function checkLinkJoinsClocks(m: EntityManager, linkId: string, a: ClockRow, b: ClockRow) {
@@ -335,6 +337,9 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
       await m.getRepository(CampaignEntity).update({ id }, patch);
       await addEvent(m, actor, id, c.state, t.to, note);
       await recordAudit(m, actor, { action: `campaign.${t.to}`, entityType: 'campaign', entityId: id, instituteId: c.instituteId, details: { from: c.state, to: t.to, note } });
+      if (kind === 'accept' && (await m.query('SELECT 1 FROM ratio_series WHERE campaign_id = $1 LIMIT 1', [id])).length > 0) {
+        await requestResultComputation(m, config.databaseUrl, actor, id, 'accept');
+      }
       if (kind === 'submit') {
         await enqueueMail(m, {
           to: config.coordinatorMail,
@@ -356,10 +361,11 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
     async list(actor: Actor, q: CampaignListQuery) {
       authorize(actor, 'campaigns:read');
       const qb = withCampaignJoins(dataSource.getRepository(CampaignEntity).createQueryBuilder('c'));
-      if (actor.role === 'operator') qb.andWhere('(c.institute_id = :inst OR cb.institute_id = :inst)', { inst: actor.instituteId });
+      const scope = campaignScopeCondition(actor, { state: 'c.state', institute: 'c.institute_id', partnerInstitute: 'cb.institute_id' });
+      qb.andWhere(scope.sql, scope.params);
       if (q.q) qb.andWhere('(c.name ILIKE :q OR ca.name ILIKE :q OR cb.name ILIKE :q OR i.code ILIKE :q)', { q: `%${q.q}%` });
       if (q.state) qb.andWhere('c.state = :state', { state: q.state });
-      qb.orderBy(sortColumns[q.sort ?? 'updatedAt'] ?? 'c.updated_at', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('c.id');
+      qb.orderBy(sortColumns.get(q.sort ?? 'updatedAt') ?? 'c.updated_at', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('c.id');
       // Every join is many-to-one, so LIMIT/OFFSET on the joined rows pages campaigns exactly: two queries per
       // page (rows, count) whatever the page size, without TypeORM's DISTINCT sub-select of skip/take.
       const [rows, total] = await Promise.all([qb.clone().offset((q.page - 1) * q.pageSize).limit(q.pageSize).getMany(), qb.clone().orderBy().getCount()]);

@@ -86,10 +86,10 @@ export function createVerificationService(dataSource: DataSource, config: AppCon
       const file = { sha256: sha256Hex(pdf), bytes: pdf.length, numberInFile: signature.certificateNumber ?? null, signingTime: signature.signingTime ?? null };
       const base = { checkedBy: 'file' as const, file, signature: signature.report ?? null };
       if (signature.status !== 'valid') {
+        // A file whose signature does not verify proves nothing, so it learns nothing about any record (not even
+        // whether the number it names exists): anyone can write a number into a file.
         const verdict: VerificationVerdict = signature.status;
-        // Point to the genuine record when the file names one, so the reader can fetch the original.
-        const named = file.numberInFile ? await manager.getRepository(CertificateEntity).findOneBy({ number: file.numberInFile }) : null;
-        return { ...base, verdict, headline: headlines[verdict], reason: signature.reason ?? null, certificate: named ? await describe(manager, named) : null };
+        return { ...base, verdict, headline: headlines[verdict], reason: signature.reason ?? null, certificate: null };
       }
       const row = await manager.getRepository(CertificateEntity).findOneBy({ pdfSha256: file.sha256 });
       if (!row || (file.numberInFile && row.number !== file.numberInFile)) {
@@ -107,22 +107,17 @@ export function createVerificationService(dataSource: DataSource, config: AppCon
     },
 
     async verifyNumber(number: string, sha256: string): Promise<VerificationResult> {
-      const manager = dataSource.manager;
-      const row = await manager.getRepository(CertificateEntity).findOneBy({ number });
-      const base = { checkedBy: 'number-and-sha256' as const, file: null };
+      // The caller proves only that they know a number and a SHA-256: the answer is the state of that exact file
+      // or "not issued here" — the same words for an unknown number as for a known one with another digest, and
+      // no details of the record (those come with a check of the file itself).
+      const row = await dataSource.manager.getRepository(CertificateEntity).findOneBy({ number, pdfSha256: sha256 });
+      const base = { checkedBy: 'number-and-sha256' as const, file: null, certificate: null };
       if (!row) {
-        return { ...base, verdict: 'not-issued-here', headline: headlines['not-issued-here'], reason: `no certificate numbered ${number} was issued here`, certificate: null };
+        return { ...base, verdict: 'not-issued-here', headline: headlines['not-issued-here'], reason: `no certificate numbered ${number} with this SHA-256 was issued here` };
       }
-      if (row.pdfSha256 !== sha256) {
-        return {
-          ...base, verdict: 'not-issued-here', headline: headlines['not-issued-here'],
-          reason: `certificate ${number} exists, but the file issued under it has a different SHA-256: the file you hold is not that certificate`,
-          certificate: null,
-        };
-      }
-      const certificate = await describe(manager, row);
       const verdict = stateVerdict(row);
-      return { ...base, verdict, headline: headlines[verdict], reason: stateReason(certificate), certificate };
+      const reason = verdict === 'valid' ? null : 'check the file itself (upload it) for the newer revision or the reason for the withdrawal';
+      return { ...base, verdict, headline: headlines[verdict], reason };
     },
   };
 }

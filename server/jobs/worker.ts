@@ -2,9 +2,11 @@ import { pathToFileURL } from 'node:url';
 import type { Logger } from 'pino';
 import type { DataSource } from 'typeorm';
 import { executeRun } from '../network/adjustment.service';
-import { ADJUSTMENT_QUEUE, startBoss, type AdjustmentJob } from './queue';
+import { runResultJob } from '../results/result-worker';
+import { ADJUSTMENT_QUEUE, RESULT_QUEUE, startBoss, type AdjustmentJob, type ResultJob } from './queue';
 
-// The worker: takes 'adjustment-run' jobs from the queue and executes them, writing progress into the run row.
+// The worker: takes 'adjustment-run' jobs (progress into the run row) and 'result-compute' jobs (progress into
+// result_request) from the queue and executes them.
 // `npm start` runs one inside the server process (server/index.ts). More workers, on this or other machines, run
 //   DATABASE_URL=postgres://… npx tsx server/jobs/worker.ts
 // against the same database; pg-boss hands each job to exactly one of them.
@@ -18,6 +20,13 @@ export async function startWorker(opts: { dataSource: DataSource; databaseUrl: s
       opts.logger?.info({ runId: job.data.runId }, 'adjustment run started');
       await executeRun(opts.dataSource, job.data.runId);
       opts.logger?.info({ runId: job.data.runId }, 'adjustment run finished');
+    }
+  });
+  await boss.work<ResultJob>(RESULT_QUEUE, { pollingIntervalSeconds: opts.pollingIntervalSeconds ?? 0.5, batchSize: 1 }, async (jobs) => {
+    for (const job of jobs) {
+      opts.logger?.info({ campaignId: job.data.campaignId }, 'result computation started');
+      await runResultJob(opts.dataSource, job.id, job.data);
+      opts.logger?.info({ campaignId: job.data.campaignId }, 'result computation finished');
     }
   });
   return { stop: () => boss.stop({ graceful: false, wait: true }) };

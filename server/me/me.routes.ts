@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { adminApiTokenSchema, adminTokenQuerySchema, apiTokenSchema, auditEventSchema, createApiTokenSchema, createdApiTokenSchema, createInstituteSchema, instituteSchema, meSchema, sessionIdParamsSchema, sessionSchema, updateInstituteSchema, updateUserSchema, userSchema } from '../../shared/auth';
+import { adminApiTokenSchema, adminTokenQuerySchema, apiTokenSchema, auditEventSchema, createApiTokenSchema, createdApiTokenSchema, createInstituteSchema, instituteSchema, meSchema, sessionIdParamsSchema, sessionSchema, updateInstituteSchema, updateUserSchema, userListQuery, userSchema } from '../../shared/auth';
 import { idParamsSchema, pageOf, pageQuerySchema } from '../../shared/http';
 import { toAuditEventDto } from '../audit/audit.service';
 import { AuditEventEntity, InstituteEntity } from '../db/entities/core.entities';
@@ -37,7 +37,7 @@ export const foundationRoutes = [
   }),
   route({
     method: 'get', path: '/api/v1/users', summary: 'People with access', tag: 'users', permission: 'users:read',
-    query: pageQuerySchema, response: pageOf(userSchema),
+    query: userListQuery, response: pageOf(userSchema),
     handler: ({ actor, query, deps }) => createUsersService(deps.dataSource).list(actor, query),
   }),
   route({

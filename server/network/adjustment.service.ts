@@ -15,11 +15,16 @@ import { normalisedError } from '../science/agreement';
 import { meanNormalGravity, normalGravityAtHeight, normalHeightFromC } from '../science/normal-gravity';
 import { loadSectionsWithBenchmarks } from './network.service';
 import { clockDeltaCFor, loadAcceptedCampaigns, loadLinks, loadSites } from './registry-bridge';
+import { canSeeCampaign } from '../auth/campaign-scope';
 
 // Adjustment runs: gather the inputs (sections, site ties, accepted clock comparisons), store them with the options in
 // an immutable run row, let a pg-boss worker adjust them (server/jobs/worker.ts), and read the results back for the
 // run pages, the reconciliation of clocks with levelling and the map.
 
+/** A stored (JSON) lookup table read by a key that may be anything a person typed: own properties only. */
+function ownValue<T>(table: Record<string, T>, key: string): T | undefined {
+  return Object.hasOwn(table, key) ? table[key] : undefined;
+}
 export class NetworkNotConnected extends AppError {
   constructor(message: string, parts: { codes: string[]; count: number }[]) {
     super(422, 'network-not-connected', 'Part of the network has no datum', message, { parts });
@@ -71,8 +76,9 @@ export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptio
   const benchmarks = await m.getRepository(BenchmarkEntity).find({ where: { state: 'in-use' }, relations: { datum: true }, order: { code: 'ASC' } });
   const inUse = new Map(benchmarks.map((b) => [b.code, b]));
   const sections = (await loadSectionsWithBenchmarks(m)).filter((s) => inUse.has(s.fromBenchmark!.code) && inUse.has(s.toBenchmark!.code));
-  const pointMeta: Record<string, PointMeta> = {};
-  const observationMeta: Record<string, ObservationMeta> = {};
+  // Keyed by benchmark codes people type: prototype-less so a code like `__proto__` is an ordinary key.
+  const pointMeta = Object.create(null) as Record<string, PointMeta>;
+  const observationMeta = Object.create(null) as Record<string, ObservationMeta>;
   // Fixed benchmarks first, so the 'minimum' constraint holds a fixed benchmark.
   const ordered = [...benchmarks].sort((a, b) => Number(b.fixed) - Number(a.fixed) || a.code.localeCompare(b.code));
   const points: NetworkPoint[] = ordered.map((b) => {
@@ -194,7 +200,8 @@ export function computeRunResult(inputs: StoredInputs, onProgress?: (fraction: n
   const t0 = performance.now();
   const res = adjustNetwork({ ...inputs.adjustment, options: { ...inputs.adjustment.options, onProgress } });
   const points = res.points.map((p) => {
-    const meta = inputs.pointMeta[p.code];
+    const meta = ownValue(inputs.pointMeta, p.code);
+    if (!meta) throw new Error(`stored inputs lack the point ${p.code}`);
     const h = normalHeightFromC(p.c, meta.latitudeDeg);
     return {
       code: p.code, kind: meta.kind, label: meta.label, datumName: meta.datumName, latitudeDeg: meta.latitudeDeg,
@@ -203,7 +210,7 @@ export function computeRunResult(inputs: StoredInputs, onProgress?: (fraction: n
     };
   });
   const observations = res.observations.map((o) => ({
-    id: o.id ?? String(o.index), kind: o.kind, from: o.from, to: o.to, label: inputs.observationMeta[o.id ?? '']?.label ?? `${o.from} → ${o.to}`,
+    id: o.id ?? String(o.index), kind: o.kind, from: o.from, to: o.to, label: ownValue(inputs.observationMeta, o.id ?? '')?.label ?? `${o.from} → ${o.to}`,
     deltaC_m2s2: o.deltaC, sigma_m2s2: inputs.adjustment.observations[o.index].sigma, residual_m2s2: o.residual, redundancy: o.redundancy,
     standardizedResidual: o.standardizedResidual, suspected: o.suspected,
   }));
@@ -217,7 +224,7 @@ export function computeRunResult(inputs: StoredInputs, onProgress?: (fraction: n
       alpha0: res.snooping.alpha0, criticalValue: res.snooping.criticalValue,
       suspects: res.snooping.suspects.map((s) => ({
         id: s.id ?? s.code ?? String(s.index),
-        label: s.source === 'observation' ? inputs.observationMeta[s.id ?? '']?.label ?? `${s.from} → ${s.to}` : `fixed point ${s.code}`,
+        label: s.source === 'observation' ? ownValue(inputs.observationMeta, s.id ?? '')?.label ?? `${s.from} → ${s.to}` : `fixed point ${s.code}`,
         standardizedResidual: s.standardizedResidual,
       })),
     },
@@ -310,7 +317,16 @@ export function createAdjustmentService(dataSource: DataSource) {
       authorize(actor, 'network:read');
       const r = await dataSource.getRepository(AdjustmentRunEntity).findOneBy({ id });
       if (!r) throw new NotFound('Adjustment run');
-      return { ...toRunDto(r), result: (r.result as RunResult | null) ?? null };
+      const result = (r.result as RunResult | null) ?? null;
+      if (!result || actor.role !== 'operator') return { ...toRunDto(r), result };
+      // A run with clock observations holds other institutes' campaigns (label, ΔC, residual): an operator gets the
+      // network's adjusted points, and of the clock observations only those of campaigns they may see.
+      const visible = new Set((await loadAcceptedCampaigns(dataSource.manager)).filter((c) => canSeeCampaign(actor, c)).map((c) => `clock:${c.id}`));
+      const shown = (o: { id: string }) => !o.id.startsWith('clock:') || visible.has(o.id);
+      return {
+        ...toRunDto(r),
+        result: { ...result, observations: result.observations.filter(shown), snooping: { ...result.snooping, suspects: result.snooping.suspects.filter(shown) } },
+      };
     },
 
     async reconciliation(actor: Actor): Promise<Reconciliation> {
@@ -318,7 +334,8 @@ export function createAdjustmentService(dataSource: DataSource) {
       const m = dataSource.manager;
       const levelling = await latestDone(m, false);
       const withClocks = await latestDone(m, true);
-      const campaigns = await loadAcceptedCampaigns(m);
+      // The same campaign scoping as the campaign pages: an operator sees only their own institute's campaigns here.
+      const campaigns = (await loadAcceptedCampaigns(m)).filter((c) => canSeeCampaign(actor, c));
       const links = new Map((await loadLinks(m)).map((l) => [l.id, l]));
       const sites = new Map((await loadSites(m)).map((s) => [s.id, s]));
       const lv = levelling?.result as RunResult | null;
@@ -367,7 +384,7 @@ export function createAdjustmentService(dataSource: DataSource) {
       }
       const message = rows.length === 0
         ? campaigns.length === 0
-          ? 'No campaign has been accepted yet, so there is nothing to reconcile.'
+          ? 'No accepted campaign that you may see exists yet, so there is nothing to reconcile.'
           : 'Accepted campaigns exist, but none has a computed result yet: nothing to compare with the levelling.'
         : lv ? null : 'No adjustment run without clock observations has finished yet: start one to get the levelling side.';
       return {

@@ -10,7 +10,7 @@ export type SiteTie = {
   benchmarkCode: string | null; tieHeightDifferenceM: number | null; tieUncertaintyM: number | null;
 };
 export type ClockLink = { id: string; name: string; siteAId: string; siteBId: string };
-export type AcceptedCampaign = { id: string; name: string; linkId: string; siteAId: string; siteBId: string; state: string };
+export type AcceptedCampaign = { id: string; name: string; linkId: string; siteAId: string; siteBId: string; state: string; instituteId: string | null; partnerInstituteId: string | null };
 /** A clock-derived potential difference C_B − C_A with its combined standard uncertainty. */
 export type ClockDeltaC = { campaignId: string; deltaC_m2s2: number; standardUncertainty_m2s2: number };
 
@@ -36,11 +36,11 @@ export async function loadLinks(m: EntityManager): Promise<ClockLink[]> {
 /** Campaigns a coordinator accepted (or certified): clock A's site and clock B's site, through the campaign's link. */
 export async function loadAcceptedCampaigns(m: EntityManager): Promise<AcceptedCampaign[]> {
   if (!(await tableExists(m, 'campaign')) || !(await tableExists(m, 'clock'))) return [];
-  const rows: { id: string; name: string; link: string; a: string; b: string; state: string }[] = await m.query(`
-    SELECT c.id, c.name, c.link_id AS link, ca.site_id AS a, cb.site_id AS b, c.state
+  const rows: { id: string; name: string; link: string; a: string; b: string; state: string; inst: string | null; partner: string | null }[] = await m.query(`
+    SELECT c.id, c.name, c.link_id AS link, ca.site_id AS a, cb.site_id AS b, c.state, c.institute_id AS inst, cb.institute_id AS partner
     FROM campaign c JOIN clock ca ON ca.id = c.clock_a_id JOIN clock cb ON cb.id = c.clock_b_id
     WHERE c.state IN ('accepted','certified') ORDER BY c.period_end DESC`);
-  return rows.map((r) => ({ id: r.id, name: r.name, linkId: r.link, siteAId: r.a, siteBId: r.b, state: r.state }));
+  return rows.map((r) => ({ id: r.id, name: r.name, linkId: r.link, siteAId: r.a, siteBId: r.b, state: r.state, instituteId: r.inst, partnerInstituteId: r.partner }));
 }
 
 /** The clock-derived ΔC = C_B − C_A of a campaign's latest comparison result, with its combined standard uncertainty. */

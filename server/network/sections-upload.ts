@@ -14,6 +14,11 @@ import { createNetworkService, runCheck } from './network.service';
 // Levelling-section CSV upload (format: docs/formats/levelling-sections.md). The whole file is checked before
 // anything is stored; the first offending line and column are named; the rows go in one transaction.
 
+/** Request field → CSV column, for naming the column at fault. */
+const sectionColumns = new Map<string, string>([
+  ['lineName', 'line'], ['fromCode', 'from'], ['toCode', 'to'], ['deltaHeightM', 'delta_h_m'], ['lengthKm', 'length_km'],
+  ['meanGravity_ms2', 'mean_gravity_ms2'], ['observedOn', 'observed_on'], ['forwardM', 'forward_m'], ['backwardM', 'backward_m'],
+]);
 export const SECTION_COLUMNS = ['line', 'from', 'to', 'delta_h_m', 'length_km', 'mean_gravity_ms2', 'observed_on', 'forward_m', 'backward_m'] as const;
 const REQUIRED = ['from', 'to', 'length_km'] as const;
 const MAX_ROWS = 100_000;
@@ -99,7 +104,7 @@ export function parseSectionsCsv(bytes: Buffer): { rows: { input: SectionInput; 
     const parsed = sectionInputSchema.safeParse(candidate);
     if (!parsed.success) {
       const issue = parsed.error.issues[0];
-      const column = ({ lineName: 'line', fromCode: 'from', toCode: 'to', deltaHeightM: 'delta_h_m', lengthKm: 'length_km', meanGravity_ms2: 'mean_gravity_ms2', observedOn: 'observed_on', forwardM: 'forward_m', backwardM: 'backward_m' } as Record<string, string>)[String(issue.path[0])] ?? 'line';
+      const column = sectionColumns.get(String(issue.path[0])) ?? 'line';
       bad(line, column, issue.message);
     }
     if (parsed.data.fromCode === parsed.data.toCode) bad(line, 'to', 'a section must join two different benchmarks');

@@ -9,6 +9,9 @@ import {
   type NewBudgetVersion,
   type ReferenceFrequencyInput,
   type RegistryListQuery,
+  type SiteListQuery,
+  type ClockListQuery,
+  type LinkListQuery,
   type UpdateSite,
   type UploadQuasigeoidGrid,
   createClockSchema,
@@ -58,7 +61,7 @@ function science<T>(fn: () => T, fieldMap: Record<string, string>, fallback: str
     return fn();
   } catch (e) {
     if (e instanceof GridFormatError) throw new Invalid(e.message, [{ path: fieldMap.content ?? fallback, message: e.message, ...(e.line ? { line: e.line } : {}) }]);
-    if (e instanceof ScienceInputError) throw new Invalid(e.message, [{ path: fieldMap[e.field] ?? fallback, message: e.message }]);
+    if (e instanceof ScienceInputError) throw new Invalid(e.message, [{ path: Object.hasOwn(fieldMap, e.field) ? fieldMap[e.field] : fallback, message: e.message }]);
     throw e;
   }
 }
@@ -242,9 +245,10 @@ function converted(crs: string, coordinates: number[]) {
   };
 }
 
-const siteSort: Record<string, string> = { name: 's.name', institute: 'i.code', latitudeDeg: 's.latitude_deg', longitudeDeg: 's.longitude_deg', ellipsoidalHeightM: 's.ellipsoidal_height_m', updatedAt: 's.updated_at' };
-const clockSort: Record<string, string> = { name: 'c.name', species: 'c.species', kind: 'c.kind', site: 's.name', institute: 'i.code', createdAt: 'c.created_at' };
-const linkSort: Record<string, string> = { name: 'l.name', fibreLengthKm: 'l.fibre_length_km', fractionalUncertainty: 'l.fractional_uncertainty', createdAt: 'l.created_at' };
+// Sort names come from each list's zod enum; the column tables are Maps so no inherited name can ever match.
+const siteSort = new Map<NonNullable<SiteListQuery['sort']>, string>([['name', 's.name'], ['institute', 'i.code'], ['latitudeDeg', 's.latitude_deg'], ['longitudeDeg', 's.longitude_deg'], ['ellipsoidalHeightM', 's.ellipsoidal_height_m'], ['updatedAt', 's.updated_at']]);
+const clockSort = new Map<NonNullable<ClockListQuery['sort']>, string>([['name', 'c.name'], ['species', 'c.species'], ['kind', 'c.kind'], ['site', 's.name'], ['institute', 'i.code'], ['createdAt', 'c.created_at']]);
+const linkSort = new Map<NonNullable<LinkListQuery['sort']>, string>([['name', 'l.name'], ['fibreLengthKm', 'l.fibre_length_km'], ['fractionalUncertainty', 'l.fractional_uncertainty'], ['createdAt', 'l.created_at']]);
 
 export function createRegistryService(dataSource: DataSource) {
   async function loadSite(m: EntityManager, id: string) {
@@ -284,12 +288,12 @@ export function createRegistryService(dataSource: DataSource) {
     },
 
     // ---------- sites ----------
-    async listSites(actor: Actor, q: RegistryListQuery) {
+    async listSites(actor: Actor, q: SiteListQuery) {
       authorize(actor, 'registry:read');
       const qb = dataSource.getRepository(SiteEntity).createQueryBuilder('s').leftJoinAndSelect('s.institute', 'i');
       if (q.q) qb.andWhere('(s.name ILIKE :q OR s.reference_point ILIKE :q OR i.code ILIKE :q)', { q: `%${q.q}%` });
       if (q.instituteId) qb.andWhere('s.institute_id = :inst', { inst: q.instituteId });
-      qb.orderBy(siteSort[q.sort ?? 'name'] ?? 's.name', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('s.id');
+      qb.orderBy(siteSort.get(q.sort ?? 'name') ?? 's.name', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('s.id');
       const [rows, total] = await qb.skip((q.page - 1) * q.pageSize).take(q.pageSize).getManyAndCount();
       return page(q, rows.map((s) => toSiteDto(s)), total);
     },
@@ -376,13 +380,13 @@ export function createRegistryService(dataSource: DataSource) {
     },
 
     // ---------- clocks ----------
-    async listClocks(actor: Actor, q: RegistryListQuery) {
+    async listClocks(actor: Actor, q: ClockListQuery) {
       authorize(actor, 'registry:read');
       const qb = dataSource.getRepository(ClockEntity).createQueryBuilder('c').leftJoinAndSelect('c.site', 's').leftJoinAndSelect('c.institute', 'i');
       if (q.q) qb.andWhere('(c.name ILIKE :q OR c.species ILIKE :q OR s.name ILIKE :q OR i.code ILIKE :q)', { q: `%${q.q}%` });
       if (q.instituteId) qb.andWhere('c.institute_id = :inst', { inst: q.instituteId });
       if (q.siteId) qb.andWhere('c.site_id = :site', { site: q.siteId });
-      qb.orderBy(clockSort[q.sort ?? 'name'] ?? 'c.name', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('c.id');
+      qb.orderBy(clockSort.get(q.sort ?? 'name') ?? 'c.name', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('c.id');
       const [rows, total] = await qb.skip((q.page - 1) * q.pageSize).take(q.pageSize).getManyAndCount();
       const budgets = rows.length
         ? await dataSource.getRepository(ClockBudgetVersionEntity).createQueryBuilder('b').innerJoin('clock', 'c', 'c.id = b.clock_id AND c.current_budget_version = b.version').where('b.clock_id IN (:...ids)', { ids: rows.map((r) => r.id) }).getMany()
@@ -486,7 +490,7 @@ export function createRegistryService(dataSource: DataSource) {
     },
 
     // ---------- fibre links ----------
-    async listLinks(actor: Actor, q: RegistryListQuery) {
+    async listLinks(actor: Actor, q: LinkListQuery) {
       authorize(actor, 'registry:read');
       const qb = dataSource
         .getRepository(FibreLinkEntity)
@@ -498,7 +502,7 @@ export function createRegistryService(dataSource: DataSource) {
       if (q.q) qb.andWhere('(l.name ILIKE :q OR sa.name ILIKE :q OR sb.name ILIKE :q)', { q: `%${q.q}%` });
       if (q.instituteId) qb.andWhere('(sa.institute_id = :inst OR sb.institute_id = :inst)', { inst: q.instituteId });
       if (q.siteId) qb.andWhere('(l.site_a_id = :site OR l.site_b_id = :site)', { site: q.siteId });
-      qb.orderBy(linkSort[q.sort ?? 'name'] ?? 'l.name', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('l.id');
+      qb.orderBy(linkSort.get(q.sort ?? 'name') ?? 'l.name', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('l.id');
       const [rows, total] = await qb.skip((q.page - 1) * q.pageSize).take(q.pageSize).getManyAndCount();
       return page(q, rows.map(toLinkDto), total);
     },

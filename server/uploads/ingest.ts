@@ -237,6 +237,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
   let bytesRead = 0;
   let lineNo = 0; // lines fully handed on so far
   let pending = '';
+  let carriedCr = false;
   let binaryProblem = false;
   let firstText = true;
   let tooLarge = false;
@@ -316,6 +317,11 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
       binaryProblem = true;
       continue;
     }
+    // CR-only line ends (old Mac text files) become LF; a CR ending a chunk waits, as it may begin a CRLF.
+    if (carriedCr) text = `\r${text}`;
+    carriedCr = text.endsWith('\r');
+    if (carriedCr) text = text.slice(0, -1);
+    if (text.includes('\r')) text = text.replace(/\r(?!\n)/g, '\n');
     pending += text;
     const lastNl = pending.lastIndexOf('\n');
     if (lastNl >= 0) {
@@ -331,7 +337,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     opts.onProgress?.({ bytesRead, rowsProcessed: rowCount });
   }
   if (!tooLarge && !binaryProblem) {
-    const rest = pending + decoder.decode();
+    const rest = pending + (carriedCr ? '\n' : '') + decoder.decode();
     if (rest.length > 0 || held.length > 0) feed(rest, true);
   }
   flush();

@@ -22,7 +22,8 @@ export function receiveMultipart<T>(
       reject(new Invalid('Send the file as multipart/form-data.', [{ path: 'file', message: 'expected a multipart/form-data body' }]));
       return;
     }
-    const fields: Record<string, string> = {};
+    // Field names come from the client: a prototype-less object so `__proto__` or `constructor` is just a name.
+    const fields = Object.create(null) as Record<string, string>;
     let work: Promise<T> | null = null;
     let settled = false;
     const fail = (e: unknown) => {

@@ -43,6 +43,10 @@ export function parseOffsetCell(text: string): CellResult {
   if (!NUMBER.test(text)) return { ok: false, message: `value '${clip(text)}' is not a number` };
   const v = Number(text);
   if (!Number.isFinite(v)) return { ok: false, message: `value '${clip(text)}' is not a finite number` };
+  // 1e-9999 reads as 0 (and 1e-320 as a subnormal with few digits): refuse rather than store a different number.
+  if ((v === 0 && /[1-9]/.test(text.replace(/[eE].*$/, ''))) || (v !== 0 && Math.abs(v) < 2.2250738585072014e-308)) {
+    return { ok: false, message: `value '${clip(text)}' is too small for double precision (underflow); write it as 0 if zero is meant` };
+  }
   if (Math.abs(v) >= MAX_ABS_OFFSET) return { ok: false, message: `fractional offset ${text} is implausibly large; is the column a ratio?` };
   return { ok: true, value: v };
 }
@@ -112,6 +116,7 @@ function suggest(header: string[] | null, rows: string[][]): UploadPreview['sugg
 export function buildPreview(text: string, fileName: string, bytesRead: number, truncated: boolean): UploadPreview {
   const notes: string[] = [];
   let body = text.charCodeAt(0) === 0xfeff ? text.slice(1) : text;
+  if (body.includes('\r')) body = body.replace(/\r\n?/g, '\n'); // CRLF and CR-only line ends read as LF
   if (truncated) {
     // The last line may be cut in the middle; drop it.
     const lastNl = body.lastIndexOf('\n');

@@ -16,6 +16,8 @@ import { buildPreview } from './ratio-series-format';
 import { decimateSeries } from './series-plot';
 import { createUploadProgressStore } from './upload-progress';
 import type { UploadProgress } from '../../shared/uploads';
+import { requestResultComputation } from '../results/result-requests';
+import { canSeeCampaign } from '../auth/campaign-scope';
 
 // Uploads of frequency-ratio series: who may upload (lab staff of the campaign's owning institute, campaign draft or
 // returned), the one transaction (COPY rows + raw file + series row + audit event), previews, lists and plot data.
@@ -48,9 +50,9 @@ export async function loadCampaignForUpload(q: { query: (sql: string, params?: u
   };
 }
 
-/** Same reading rule as campaigns: lab staff see their institute's campaigns (clock A or clock B); others see all. */
+/** The campaigns' reading rule (server/auth/campaign-scope.ts). */
 function canRead(actor: Actor, c: CampaignForUpload) {
-  return actor.role !== 'operator' || actor.instituteId === c.instituteId || actor.instituteId === c.clockBInstituteId;
+  return canSeeCampaign(actor, { state: c.state, instituteId: c.instituteId, partnerInstituteId: c.clockBInstituteId });
 }
 
 function requireUploader(actor: Actor, c: CampaignForUpload) {
@@ -155,7 +157,7 @@ function isUniqueViolation(e: unknown) {
   return (e as { code?: string })?.code === '23505';
 }
 
-export function createUploadsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'uploadLimitBytes'> }) {
+export function createUploadsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'uploadLimitBytes' | 'databaseUrl'> }) {
   const { dataSource, config } = deps;
   const uploadProgress = createUploadProgressStore(dataSource);
 
@@ -224,6 +226,8 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
             action: 'campaign.series-uploaded', entityType: 'ratio_series', entityId: row.id, instituteId: campaign.instituteId,
             details: { campaignId, fileName: row.file_name, sha256: row.sha256, rows: row.row_count, valid: row.valid_count },
           });
+          // the result is computed by a job queued in this transaction (never by a later GET)
+          await requestResultComputation(qr.manager, config.databaseUrl, actor, campaignId, 'upload');
           return row;
         });
         if (!result) throw new Invalid('No file was sent.', [{ path: 'file', message: 'attach the file as the part named "file"' }]);

@@ -162,9 +162,11 @@ describe('institute scoping', () => {
     expect((await as('hmo').post(`/api/v1/campaigns/${sclDraft}/submit`)).status).toBe(403);
   });
 
-  it('auditors read every campaign', async () => {
+  it('auditors read every accepted or certified campaign, and no other (docs/decisions/0004-campaign-visibility.md)', async () => {
     const list = await as('auditor').get('/api/v1/campaigns?pageSize=100&sort=name');
-    expect(list.body.total).toBeGreaterThanOrEqual(7);
+    const published = await t.ds.query("SELECT count(*)::int AS n FROM campaign WHERE state IN ('accepted', 'certified')");
+    expect(list.body.total).toBe(published[0].n);
+    expect(list.body.items.every((c: { state: string }) => c.state === 'accepted' || c.state === 'certified')).toBe(true);
     const names = list.body.items.map((c: { name: string }) => c.name);
     expect([...names].sort((a: string, b: string) => (a < b ? -1 : a > b ? 1 : 0))).toEqual(names);
     const accepted = (await as('auditor').get('/api/v1/campaigns?state=accepted')).body.items;

@@ -150,11 +150,12 @@ describe('access', () => {
     expect((await stored()).series).toBe(before.series + 1);
   });
 
-  it('lets clock B’s lab and auditors read the list, but not other labs', async () => {
+  it('lets clock B’s lab read the list, auditors once the campaign is accepted, but not other labs', async () => {
     const list = await request(t.app).get(`/api/v1/campaigns/${campaignId}/uploads`).set('authorization', `Bearer ${otherLab}`);
     expect(list.status).toBe(200);
     expect(list.body.length).toBeGreaterThan(0);
-    expect((await request(t.app).get(`/api/v1/campaigns/${campaignId}/uploads`).set('authorization', `Bearer ${auditor}`)).status).toBe(200);
+    // a draft is the lab's own work: auditors see accepted and certified campaigns only (docs/decisions/0004)
+    expect((await request(t.app).get(`/api/v1/campaigns/${campaignId}/uploads`).set('authorization', `Bearer ${auditor}`)).status).toBe(404);
     const foreign = await insertUploadCampaign(t.ds, { instituteCode: 'HMO', otherInstituteCode: 'HMO' });
     expect((await request(t.app).get(`/api/v1/campaigns/${foreign}/uploads`).set('authorization', `Bearer ${operator}`)).status).toBe(404);
   });
@@ -237,7 +238,7 @@ describe('plot data', () => {
     }
     const res = await upload(`${lines.join('\n')}\n`, { epochColumn: '1', epochKind: 'mjd', valueColumn: '2', valueKind: 'offset', flagColumn: '3' });
     expect(res.status).toBe(201);
-    const plot = await request(t.app).get(`/api/v1/uploads/${res.body.id}/series?points=100`).set('authorization', `Bearer ${auditor}`);
+    const plot = await request(t.app).get(`/api/v1/uploads/${res.body.id}/series?points=100`).set('authorization', `Bearer ${operator}`);
     expect(plot.status).toBe(200);
     expect(plot.body.buckets).toHaveLength(100);
     expect(Math.max(...plot.body.buckets.map((b: { max: number | null }) => b.max ?? -1))).toBe(5e-15);

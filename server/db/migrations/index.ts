@@ -4,6 +4,8 @@ import { RatioSeries1764670000000 } from './1764670000000-ratio-series';
 import { Results1764680000000 } from './1764680000000-results';
 import { Network1764690000000 } from './1764690000000-network';
 import { Certificates1764700000000 } from './1764700000000-certificates';
+import { RateLimit1765000000000 } from './1765000000000-rate-limit';
+import { ResultRequests1765000000001 } from './1765000000001-result-requests';
 import { SessionsAccounts1765100000000 } from './1765100000000-sessions-accounts';
 import { AuditChainV21765300000000 } from './1765300000000-audit-chain-v2';
 import { MailOutboxRetry1765310000000 } from './1765310000000-mail-outbox-retry';
@@ -21,6 +23,8 @@ export const migrations = [
   Results1764680000000,
   Network1764690000000,
   Certificates1764700000000,
+  RateLimit1765000000000,
+  ResultRequests1765000000001,
   SessionsAccounts1765100000000,
   AuditChainV21765300000000,
   MailOutboxRetry1765310000000,

@@ -2,7 +2,7 @@ import { Link, useParams } from 'react-router';
 import { coverageText } from '../../../shared/number-text';
 import type { ComparisonResultDto, ResultBody } from '../../../shared/results';
 import { useMe } from '../../api/account';
-import { resultCsvUrl, useCampaignResult, useRecomputeResult } from '../../api/results';
+import { resultCsvUrl, useCampaignResult, useRecomputeResult, type CampaignResultState } from '../../api/results';
 import { AllanPlot } from '../../components/plots/allan-plot';
 import { Button, Caution, EmptyState, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
@@ -125,13 +125,37 @@ function download(name: string, data: ComparisonResultDto) {
   URL.revokeObjectURL(url);
 }
 
+/** No current result: being computed (a job; the page asks again every few seconds), failed, or not asked for yet. */
+function ResultNotReady(props: { campaignId: string; state: Extract<CampaignResultState, { kind: 'not-ready' }>; canRecompute: boolean; recompute: () => void; recomputing: boolean; error: Error | null }) {
+  const { state } = props;
+  const pending = state.code === 'result-pending';
+  const title = pending ? 'Computing the result' : state.code === 'result-failed' ? 'The result could not be computed' : 'No result computed yet';
+  return (
+    <>
+      <p className="text-sm text-ink-500"><Link to={`/campaigns/${props.campaignId}`}>Back to the campaign</Link></p>
+      <section className="rounded-md border border-ink-200 bg-white p-5" data-testid="result-state" data-state={state.code} aria-live="polite" aria-busy={pending}>
+        <h1 className="flex items-center gap-3 text-xl">
+          {pending && <span aria-hidden className="inline-block h-4 w-4 animate-spin rounded-full border-2 border-ink-300 border-t-ink-700" />}
+          {title}
+        </h1>
+        <p className="mt-2 text-sm text-ink-700">{state.problem.detail}</p>
+        {pending && <p className="mt-1 text-xs text-ink-500">This page looks again every few seconds; a campaign with millions of samples takes a little while.</p>}
+        {!pending && props.canRecompute && (
+          <Button className="mt-3" variant="quiet" onClick={props.recompute} disabled={props.recomputing}>{props.recomputing ? 'Asking…' : 'Compute the result'}</Button>
+        )}
+        {props.error && <p className="mt-2 text-sm text-disagree-600" role="alert">{describeError(props.error)}</p>}
+      </section>
+    </>
+  );
+}
+
 export function ResultsPage() {
   const { id = '' } = useParams();
   const result = useCampaignResult(id);
   const recompute = useRecomputeResult(id);
   const me = useMe();
   const canRecompute = me.data?.role === 'operator' || me.data?.role === 'coordinator';
-  if (result.isPending) return <p className="text-ink-500">Computing the result… (a long campaign takes a few seconds)</p>;
+  if (result.isPending) return <p className="text-ink-500">Loading the result…</p>;
   if (result.isError) {
     return (
       <>
@@ -140,7 +164,10 @@ export function ResultsPage() {
       </>
     );
   }
-  const dto = result.data;
+  if (result.data.kind === 'not-ready') {
+    return <ResultNotReady campaignId={id} state={result.data} canRecompute={canRecompute} recompute={() => recompute.mutate()} recomputing={recompute.isPending} error={recompute.error} />;
+  }
+  const dto = result.data.dto;
   const r = dto.result;
   return (
     <>
@@ -152,7 +179,7 @@ export function ResultsPage() {
           <p className="text-xs text-ink-500">Computed {dto.computedAt.replace('T', ' ').slice(0, 19)} UTC by {dto.computedBy} · software {dto.softwareVersion} · inputs <code title={dto.inputHash}>{dto.inputHash.slice(0, 16)}…</code></p>
         </div>
         <div className="flex flex-wrap gap-2">
-          {canRecompute && <Button variant="quiet" onClick={() => recompute.mutate()} disabled={recompute.isPending}>{recompute.isPending ? 'Recomputing…' : 'Recompute now'}</Button>}
+          {canRecompute && <Button variant="quiet" onClick={() => recompute.mutate()} disabled={recompute.isPending}>{recompute.isPending ? 'Asking…' : 'Recompute now'}</Button>}
           <Button variant="quiet" onClick={() => download(`result-${id}.json`, dto)}>Export JSON</Button>
           <a className="rounded-md border border-ink-200 bg-white px-3 py-1.5 text-sm font-medium text-ink-700 hover:bg-ink-50" href={resultCsvUrl(id)} download>Export CSV</a>
         </div>

@@ -27,10 +27,12 @@ function explanation(r: VerificationResult): string {
     case 'valid':
       return r.checkedBy === 'file'
         ? `The file you checked is, byte for byte, the file signed and registered under ${c?.number} on ${day(c?.issuedAt)}. Nobody has changed it since, and the certificate has been neither replaced nor withdrawn.`
-        : `A certificate ${c?.number} with exactly this SHA-256 was issued here on ${day(c?.issuedAt)} and is still in force. This check trusts the digest you typed: compute it from the file you hold, or upload the file instead.`;
+        : 'A certificate with this number and exactly this SHA-256 was issued here and is still in force. This check trusts the digest you typed: compute it from the file you hold, or upload the file for the full record.';
     case 'superseded':
+      if (r.checkedBy !== 'file') return 'A certificate with this number and SHA-256 was issued here, but a corrected revision was issued later. Upload the file to see which revision replaces it, and rely on the newest.';
       return `The file is genuine, but a corrected revision was issued later${c?.supersededByNumber ? ` (${c.supersededByNumber})` : ''}${c?.latestNumber && c.latestNumber !== c.supersededByNumber ? `; the newest is ${c.latestNumber}` : ''}. Its figures may have changed: rely on the newest revision and ask the sender for it.`;
     case 'revoked':
+      if (r.checkedBy !== 'file') return 'A certificate with this number and SHA-256 was issued here, but the issuing institute withdrew it. Do not rely on its figures; upload the file to read the reason given.';
       return `The file is genuine, but the issuing institute withdrew this certificate on ${day(c?.revokedAt)}. Reason given: “${c?.revocationReason}”. Do not rely on its figures.`;
     case 'not-issued-here':
       return 'Either this number is unknown here, or the file differs from the one registered under it. The document may come from another issuer, or it may be a different file that carries a known number. Ask the sender where it came from.';
@@ -38,7 +40,7 @@ function explanation(r: VerificationResult): string {
       if (r.reason?.includes('signing key was withdrawn')) {
         return 'The file was signed with a key the institute has since withdrawn as compromised, and the time-stamp shows it was signed after the compromise began. Do not rely on it; ask the issuer for a newly signed copy.';
       }
-      return 'The signature does not hold for this file: its content was changed after signing, something was appended to it, or it was signed with a key other than the issuing institute’s. Do not use it; ask the issuer for the original file.';
+      return 'The signature does not hold for this file: its content was changed after signing, bytes were put before or after the signed part, or it was signed with a key other than the issuing institute’s. Do not use it; ask the issuer for the original file.';
     case 'unsigned':
       return 'Certificates issued here always carry the issuing institute’s digital signature. This file has none, so it is at most a copy or a draft.';
   }
