@@ -26,7 +26,7 @@ async function main() {
     closers.push(smtp.close);
     logger.info({ idp: idp.url, smtp: smtp.smtpUrl, mailbox: smtp.mailboxUrl }, 'local identity provider and mail catcher started');
   }
-  const dataSource = await openDatabase(config.databaseUrl);
+  const dataSource = await openDatabase(config.databaseUrl, { pool: { max: config.db.poolMax, idleInTransactionTimeoutMs: config.db.idleInTransactionTimeoutMs } });
   closers.push(() => dataSource.destroy());
   if (process.env.CHRONOLEVEL_SEED !== '0') {
     const seeded = await seedDemo(dataSource, (m) => logger.info(m));

@@ -153,7 +153,7 @@ function isUniqueViolation(e: unknown) {
   return (e as { code?: string })?.code === '23505';
 }
 
-export function createUploadsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'uploadLimitBytes'> }) {
+export function createUploadsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'uploadLimitBytes' | 'upload'> }) {
   const { dataSource, config } = deps;
 
   async function campaignOr404(actor: Actor, id: string) {
@@ -215,7 +215,9 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
       const client = (qr as unknown as { databaseConnection: pg.PoolClient }).databaseConnection;
       try {
         await qr.startTransaction();
-        const { result } = await receiveMultipart(req, { fileBytes: config.uploadLimitBytes }, async (file, info, fields) => {
+        // PostgreSQL itself ends a COPY that a stalled or vanished client keeps open, whatever this process does.
+        await client.query(`SET LOCAL statement_timeout = ${Math.trunc(config.upload.statementTimeoutMs)}`);
+        const { result } = await receiveMultipart(req, { fileBytes: config.uploadLimitBytes, idleMs: config.upload.idleTimeoutMs }, async (file, info, fields) => {
           const row = await storeSeries(client, actor, { campaign, fileName: info.filename, source: file, fields, limitBytes: config.uploadLimitBytes, uploadId });
           await recordAudit(qr.manager, actor, {
             action: 'campaign.series-uploaded', entityType: 'ratio_series', entityId: row.id, instituteId: campaign.instituteId,
