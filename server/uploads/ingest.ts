@@ -24,7 +24,11 @@ export type IngestOptions = {
   onProgress?: (p: { bytesRead: number; rowsProcessed: number }) => void;
   /** stop reading once this many bytes arrived (the HTTP layer also enforces it) */
   limitBytes?: number;
+  /** longest line accepted, in characters (default 64 KiB); a longer one is refused and parsing stops */
+  maxLineChars?: number;
 };
+
+export const DEFAULT_MAX_LINE_CHARS = 64 * 1024;
 
 export type IngestSummary = {
   sha256: string;
@@ -238,6 +242,12 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
   let lineNo = 0; // lines fully handed on so far
   let pending = '';
   let binaryProblem = false;
+  let lineTooLong = false;
+  const maxLine = opts.maxLineChars ?? DEFAULT_MAX_LINE_CHARS;
+  const refuseLongLine = (line: number) => {
+    report({ path: 'file', line, column: '1', message: `line ${line} is longer than ${maxLine} characters (the limit for one line); is the file missing its line ends?` });
+    lineTooLong = true;
+  };
   let firstText = true;
   let tooLarge = false;
   const limit = opts.limitBytes ?? Infinity;
@@ -278,6 +288,10 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     for (let i = 0; i < count; i++) {
       const l = lines[i];
       lineNo++;
+      if (l.length > maxLine) {
+        refuseLongLine(lineNo);
+        return;
+      }
       const c0 = l.charCodeAt(0);
       if (l.length === 0 || ((c0 === 35 || c0 === 32 || c0 === 9) && isCommentOrBlank(l))) continue;
       if (quotes && l.includes('"')) {
@@ -301,7 +315,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     hash.update(chunk);
     opts.onRawChunk?.(chunk);
     if (bytesRead > limit) tooLarge = true;
-    if (tooLarge || binaryProblem) continue; // keep reading so the client hears the answer; parse no further
+    if (tooLarge || binaryProblem || lineTooLong) continue; // keep reading so the client hears the answer; parse no further
     let text = decoder.decode(chunk, { stream: true });
     if (firstText) {
       firstText = false;
@@ -316,12 +330,21 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
       binaryProblem = true;
       continue;
     }
-    pending += text;
-    const lastNl = pending.lastIndexOf('\n');
+    // Only the new text is searched for a line end, so a file without any stays linear; the unfinished line is
+    // bounded by the line-length limit.
+    const lastNl = text.lastIndexOf('\n');
     if (lastNl >= 0) {
-      const complete = pending.slice(0, lastNl + 1);
-      pending = pending.slice(lastNl + 1);
+      const complete = pending + text.slice(0, lastNl + 1);
+      pending = text.slice(lastNl + 1);
       feed(complete);
+    } else {
+      pending += text;
+    }
+    if (!lineTooLong && pending.length > maxLine + 1) {
+      // the unfinished line comes after every line handed on, and after those still held for delimiter detection
+      let heldLines = 0;
+      for (let i = held.indexOf('\n'); i >= 0; i = held.indexOf('\n', i + 1)) heldLines++;
+      refuseLongLine(lineNo + heldLines + 1);
     }
     if (sinkFull) {
       sinkFull = false;
@@ -330,12 +353,12 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     if (sinkError) throw sinkError;
     opts.onProgress?.({ bytesRead, rowsProcessed: rowCount });
   }
-  if (!tooLarge && !binaryProblem) {
+  if (!tooLarge && !binaryProblem && !lineTooLong) {
     const rest = pending + decoder.decode();
     if (rest.length > 0 || held.length > 0) feed(rest, true);
   }
   flush();
-  if (!tooLarge && !binaryProblem && rowCount === 0 && !failed) {
+  if (!tooLarge && !binaryProblem && !lineTooLong && rowCount === 0 && !failed) {
     report({ path: 'file', line: Math.max(1, lineNo), column: '1', message: bytesRead === 0 ? 'the file is empty' : 'the file holds no data rows' });
   }
   opts.onProgress?.({ bytesRead, rowsProcessed: rowCount });

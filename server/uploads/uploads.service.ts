@@ -91,6 +91,8 @@ export type StoreSeriesInput = {
   source: NodeJS.ReadableStream & import('node:stream').Readable;
   fields: Record<string, string>;
   limitBytes: number;
+  /** longest line accepted (default 64 KiB) */
+  maxLineChars?: number;
   uploadId?: string;
   invented?: boolean;
 };
@@ -117,6 +119,7 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
         seriesId, mapping, referenceRatio: input.campaign.referenceRatio,
         periodStartMjd: input.campaign.periodStartMjd, periodEndMjd: input.campaign.periodEndMjd,
         limitBytes: input.limitBytes,
+        maxLineChars: input.maxLineChars,
         onRawChunk: (c) => spool.write(c),
         onProgress: (p) => uploadProgress.update(input.uploadId, p),
       });
@@ -218,7 +221,7 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
         // PostgreSQL itself ends a COPY that a stalled or vanished client keeps open, whatever this process does.
         await client.query(`SET LOCAL statement_timeout = ${Math.trunc(config.upload.statementTimeoutMs)}`);
         const { result } = await receiveMultipart(req, { fileBytes: config.uploadLimitBytes, idleMs: config.upload.idleTimeoutMs }, async (file, info, fields) => {
-          const row = await storeSeries(client, actor, { campaign, fileName: info.filename, source: file, fields, limitBytes: config.uploadLimitBytes, uploadId });
+          const row = await storeSeries(client, actor, { campaign, fileName: info.filename, source: file, fields, limitBytes: config.uploadLimitBytes, maxLineChars: config.upload.maxLineBytes, uploadId });
           await recordAudit(qr.manager, actor, {
             action: 'campaign.series-uploaded', entityType: 'ratio_series', entityId: row.id, instituteId: campaign.instituteId,
             details: { campaignId, fileName: row.file_name, sha256: row.sha256, rows: row.row_count, valid: row.valid_count },
