@@ -15,6 +15,7 @@ import type { AppDeps } from './deps';
 import { NotFound } from './http/errors';
 import { buildOpenApi } from './http/openapi';
 import { problemHandler } from './http/problem';
+import { mountRateLimits } from './http/rate-limits';
 import { mountRoutes } from './http/route';
 import { apiRoutes } from './routes';
 import { actorFromToken } from './tokens/tokens.service';
@@ -97,6 +98,7 @@ export function createApp(deps: AppDeps) {
     }
   });
 
+  mountRateLimits(app, deps);
   app.use('/auth/logout', csrfGuard);
   app.use(createAuthRouter(strategy));
 

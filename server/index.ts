@@ -3,6 +3,7 @@ import type { Server } from 'node:http';
 import { createApp } from './app';
 import { loadConfig } from './config';
 import { openDatabase } from './db/data-source';
+import { startHousekeeping } from './maintenance/housekeeping';
 import { startFakeIdp } from './dev/fake-idp';
 import { startFakeSmtp } from './dev/fake-smtp';
 import { createLogger } from './logger';
@@ -38,6 +39,9 @@ async function main() {
   const mail = createMailSender({ dataSource, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
   mail.start();
   closers.push(() => mail.stop());
+  // expired SAML request ids and ended rate-limit windows
+  const housekeeping = startHousekeeping(dataSource, { intervalMs: config.samlRequestPruneIntervalMs, onError: (e) => logger.warn({ err: e }, 'housekeeping failed') });
+  closers.unshift(() => housekeeping.stop());
   const app = createApp({ config, dataSource, logger, mail });
   const server: Server = await new Promise((resolve) => {
     const s = app.listen(config.port, config.host, () => resolve(s));
