@@ -103,8 +103,8 @@ export function createApp(deps: AppDeps) {
   app.use(createAuthRouter(strategy));
 
   const api = express.Router();
-  // The stability calculator takes up to ~2e6 numbers as JSON (~40 MB); every other route keeps the 20 MB limit.
-  api.use('/api/v1/calc/stability', express.json({ limit: '48mb' }));
+  // The stability calculator takes up to MAX_STABILITY_SAMPLES (2e5) numbers as JSON (~5 MB at 24 characters each).
+  api.use('/api/v1/calc/stability', express.json({ limit: '6mb' }));
   api.use(express.json({ limit: '20mb' }));
   api.use(csrfGuard);
   mountRoutes(api, apiRoutes, deps);

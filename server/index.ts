@@ -4,6 +4,7 @@ import { createApp } from './app';
 import { loadConfig } from './config';
 import { openDatabase } from './db/data-source';
 import { startHousekeeping } from './maintenance/housekeeping';
+import { closeStabilityPool, configureStabilityPool } from './calc/stability-pool';
 import { startFakeIdp } from './dev/fake-idp';
 import { startFakeSmtp } from './dev/fake-smtp';
 import { createLogger } from './logger';
@@ -39,6 +40,8 @@ async function main() {
   const mail = createMailSender({ dataSource, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
   mail.start();
   closers.push(() => mail.stop());
+  configureStabilityPool(config.stabilityWorkers);
+  closers.push(() => closeStabilityPool());
   // expired SAML request ids and ended rate-limit windows
   const housekeeping = startHousekeeping(dataSource, { intervalMs: config.samlRequestPruneIntervalMs, onError: (e) => logger.warn({ err: e }, 'housekeeping failed') });
   closers.unshift(() => housekeeping.stop());
