@@ -29,7 +29,7 @@ const rssBefore = process.memoryUsage().rss / 1048576;
 const loop = monitorEventLoopDelay({ resolution: 10 });
 loop.enable();
 const t0 = performance.now();
-let answer = '';
+let answer: string;
 try {
   const r = await parseSectionsStream(fs.createReadStream(file, { highWaterMark: 64 * 1024 }), 'bench.csv', { fileBytes: 64 * 1024 * 1024, maxLineChars: 64 * 1024 });
   answer = `${r.rows.length} rows accepted`;
