@@ -26,6 +26,8 @@ export type IngestOptions = {
   limitBytes?: number;
   /** longest line accepted, in characters (default 64 KiB); a longer one is refused and parsing stops */
   maxLineChars?: number;
+  /** receives every accepted data row with its cells as written (the samples export re-reads the raw file with it) */
+  onRow?: (row: { line: number; epochText: string; valueText: string; mjd: number; y: number; valid: boolean }) => void;
 };
 
 export const DEFAULT_MAX_LINE_CHARS = 64 * 1024;
@@ -224,6 +226,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     rowCount++;
     if (valid) validCount++;
     if (failed) return;
+    opts.onRow?.({ line, epochText, valueText, mjd, y, valid });
     addToOverview(mjd, y, valid);
     if (off + ROW_BYTES > BATCH_BYTES) flush();
     view.setInt16(off, 4);

@@ -1,5 +1,5 @@
 import crypto from 'node:crypto';
-import type { Request } from 'express';
+import type { Request, Response } from 'express';
 import type pg from 'pg';
 import { from as copyFrom } from 'pg-copy-streams';
 import type { DataSource } from 'typeorm';
@@ -12,6 +12,7 @@ import { Conflict, Forbidden, Invalid, NotFound, PayloadTooLarge } from '../http
 import { COPY_SAMPLES_SQL, finishCopy, ingestRatioSeries, type IngestSummary } from './ingest';
 import { receiveMultipart } from './multipart';
 import { openSpool } from './raw-file-spool';
+import { exportSamplesCsv } from './samples-export';
 import { buildPreview } from './ratio-series-format';
 import { decimateSeries } from './series-plot';
 import { uploadProgress } from './upload-progress';
@@ -258,6 +259,14 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
       authorize(actor, 'campaigns:read');
       const s = await seriesOr404(actor, id);
       return decimateSeries(dataSource, { id: s.id, firstMjd: s.first_mjd, lastMjd: s.last_mjd, rowCount: s.row_count }, q);
+    },
+
+    /** CSV of the stored samples with the epoch and value cells as uploaded (same reading rule as the upload itself). */
+    async exportSamples(actor: Actor, id: string, res: Response): Promise<void> {
+      authorize(actor, 'campaigns:read');
+      const s = await seriesOr404(actor, id);
+      const c = await campaignOr404(actor, s.campaign_id);
+      await exportSamplesCsv(dataSource, { id: s.id, fileName: s.file_name, rowCount: s.row_count, mapping: s.mapping, referenceRatio: c.referenceRatio }, res);
     },
 
     progress(actor: Actor, uploadId: string) {
