@@ -16,6 +16,7 @@ import { NotFound } from './http/errors';
 import { buildOpenApi } from './http/openapi';
 import { problemHandler } from './http/problem';
 import { mountRateLimits } from './http/rate-limits';
+import { armFaultPoint } from './dev/fault-point';
 import { mountRoutes } from './http/route';
 import { apiRoutes } from './routes';
 import { actorFromToken } from './tokens/tokens.service';
@@ -24,6 +25,7 @@ import { findActorByUserId } from './users/users.service';
 /** Builds the Express app without listening; the server process and the tests both use it. */
 export function createApp(deps: AppDeps) {
   const { config, dataSource, logger } = deps;
+  armFaultPoint(config.faultPoint);
   const app = express();
   app.disable('x-powered-by');
   if (config.trustProxy) app.set('trust proxy', 1);

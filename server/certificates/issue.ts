@@ -12,6 +12,7 @@ import type { CertificateSource, SnapshotBody } from './certificate-source.types
 import { coordinatingInstitute, instituteSigningIdentity } from './institute-identity';
 import { renderCertificatePdf } from './pdf/render-certificate';
 import { signPdf } from './pdf/signing';
+import { faultPoint } from '../dev/fault-point';
 
 // Issuing, reissuing and revoking inside the caller's transaction: number, snapshot, render, sign, store,
 // audit and mail commit together or not at all.
@@ -132,6 +133,7 @@ export async function issueCertificate(ctx: IssueContext, campaignId: string): P
   const serial = await nextSerial(manager, year);
   const number = formatCertificateNumber(year, serial, 1);
   const { snapshot, pdf, pdfSha256 } = await renderAndSign(ctx, source.body, number, 1, issuedAt);
+  await faultPoint('certificate-issue'); // test-only kill point: serial taken, PDF signed, nothing inserted yet
   const row = await insertRow(manager, actor, source, fingerprint, { number, year, serial, revision: 1, issuedAt, snapshot, pdf, pdfSha256 });
   await recordAudit(manager, actor, {
     action: 'certificate.issued', entityType: 'certificate', entityId: number,

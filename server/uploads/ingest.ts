@@ -21,7 +21,7 @@ export type IngestOptions = {
   periodEndMjd: number | null;
   /** receives every raw chunk (the caller keeps the raw file) */
   onRawChunk?: (chunk: Buffer) => void;
-  onProgress?: (p: { bytesRead: number; rowsProcessed: number }) => void;
+  onProgress?: (p: { bytesRead: number; rowsProcessed: number }) => void | Promise<void>;
   /** stop reading once this many bytes arrived (the HTTP layer also enforces it) */
   limitBytes?: number;
   /** longest line accepted, in characters (default 64 KiB); a longer one is refused and parsing stops */
@@ -354,7 +354,8 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
       await once(sink, 'drain');
     }
     if (sinkError) throw sinkError;
-    opts.onProgress?.({ bytesRead, rowsProcessed: rowCount });
+    const waiting = opts.onProgress?.({ bytesRead, rowsProcessed: rowCount });
+    if (waiting) await waiting;
   }
   if (!tooLarge && !binaryProblem && !lineTooLong) {
     const rest = pending + decoder.decode();

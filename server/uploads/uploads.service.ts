@@ -11,6 +11,7 @@ import type { AppConfig } from '../config';
 import { Conflict, Forbidden, Invalid, NotFound, PayloadTooLarge } from '../http/errors';
 import { COPY_SAMPLES_SQL, finishCopy, ingestRatioSeries, type IngestSummary } from './ingest';
 import { receiveMultipart } from './multipart';
+import { faultPoint } from '../dev/fault-point';
 import { openSpool } from './raw-file-spool';
 import { exportSamplesCsv } from './samples-export';
 import { buildPreview } from './ratio-series-format';
@@ -113,7 +114,9 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
   const seriesId = crypto.randomUUID();
   const spool = openSpool();
   try {
+    await faultPoint('before-copy');
     const copy = client.query(copyFrom(COPY_SAMPLES_SQL));
+    let midCopy = false;
     let summary: IngestSummary;
     try {
       summary = await ingestRatioSeries(input.source, copy, {
@@ -122,7 +125,14 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
         limitBytes: input.limitBytes,
         maxLineChars: input.maxLineChars,
         onRawChunk: (c) => spool.write(c),
-        onProgress: (p) => uploadProgress.update(input.uploadId, p),
+        onProgress: (p) => {
+          uploadProgress.update(input.uploadId, p);
+          // the kill harness stops here once some rows are in the COPY (no-op unless armed)
+          if (!midCopy && p.rowsProcessed >= 20_000) {
+            midCopy = true;
+            return faultPoint('mid-copy');
+          }
+        },
       });
       await finishCopy(copy);
     } catch (e) {
@@ -230,6 +240,7 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
           return row;
         });
         if (!result) throw new Invalid('No file was sent.', [{ path: 'file', message: 'attach the file as the part named "file"' }]);
+        await faultPoint('before-commit');
         await qr.commitTransaction();
         uploadProgress.update(uploadId, { phase: 'done', seriesId: result.id });
         return toSeriesDto(result);
