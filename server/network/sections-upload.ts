@@ -82,7 +82,7 @@ export async function parseSectionsStream(file: Readable, name: string, limits: 
     if (typeof err.code === 'string' && err.code.startsWith('CSV_')) bad(err.lines ?? 1, 'line', `not valid CSV (${err.message.replace(/^Invalid Record Length: /, '')})`);
     throw e;
   }
-  if (tooLarge) throw new PayloadTooLarge(limits.fileBytes);
+  if (tooLarge || (file as Readable & { truncated?: boolean }).truncated) throw new PayloadTooLarge(limits.fileBytes);
   if (!cols) bad(1, 'from', 'the file has no header line');
   if (rows.length === 0) bad(headerLine + 1, 'from', 'the file has no sections');
   return { name, sha256: hash.digest('hex'), rows, warnings };

@@ -357,6 +357,8 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     const waiting = opts.onProgress?.({ bytesRead, rowsProcessed: rowCount });
     if (waiting) await waiting;
   }
+  // busboy marks a part cut at its size limit; its 'limit' event may have fired before this function listened
+  if ((file as Readable & { truncated?: boolean }).truncated) tooLarge = true;
   if (!tooLarge && !binaryProblem && !lineTooLong) {
     const rest = pending + decoder.decode();
     if (rest.length > 0 || held.length > 0) feed(rest, true);
