@@ -3,6 +3,8 @@ import type { Server } from 'node:http';
 import { createApp } from './app';
 import { loadConfig } from './config';
 import { openDatabase } from './db/data-source';
+import { startHousekeeping } from './maintenance/housekeeping';
+import { closeStabilityPool, configureStabilityPool } from './calc/stability-pool';
 import { startFakeIdp } from './dev/fake-idp';
 import { startFakeSmtp } from './dev/fake-smtp';
 import { assertDevServicesAllowed, DEMO_STAND_IN_NOTICE } from './dev/guard';
@@ -43,7 +45,10 @@ async function main() {
   const migrationUrl = process.env.MIGRATION_DATABASE_URL;
   delete process.env.MIGRATION_DATABASE_URL;
   if (migrationUrl) await migrateDatabase({ migrationUrl, appRole: roleOfUrl(config.databaseUrl) });
-  const dataSource = await openDatabase(config.databaseUrl, { migrate: !migrationUrl && process.env.CHRONOLEVEL_MIGRATED !== '1' });
+  const dataSource = await openDatabase(config.databaseUrl, {
+    migrate: !migrationUrl && process.env.CHRONOLEVEL_MIGRATED !== '1',
+    pool: { max: config.db.poolMax, idleInTransactionTimeoutMs: config.db.idleInTransactionTimeoutMs },
+  });
   closers.push(() => dataSource.destroy());
   for (const w of await privilegeWarnings(dataSource)) logger.warn(`WARNING: ${w}`);
   if (process.env.CHRONOLEVEL_SEED !== '0') {
@@ -59,6 +64,11 @@ async function main() {
   const mail = createMailSender({ dataSource, smtpUrl: config.smtpUrl, from: config.mailFrom, logger, retry: config.mailRetry });
   mail.start();
   closers.push(() => mail.stop());
+  configureStabilityPool(config.stabilityWorkers);
+  closers.push(() => closeStabilityPool());
+  // expired SAML request ids and ended rate-limit windows
+  const housekeeping = startHousekeeping(dataSource, { intervalMs: config.samlRequestPruneIntervalMs, onError: (e) => logger.warn({ err: e }, 'housekeeping failed') });
+  closers.unshift(() => housekeeping.stop());
   const app = createApp({ config, dataSource, logger, mail });
   const server: Server = await new Promise((resolve) => {
     const s = app.listen(config.port, config.host, () => resolve(s));

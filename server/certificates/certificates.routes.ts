@@ -8,7 +8,6 @@ import {
 import { certificateSnapshotSchema } from '../../shared/certificates';
 import { pageOf } from '../../shared/http';
 import { Invalid, PayloadTooLarge } from '../http/errors';
-import { clientKey, consumeOrRefuse } from '../http/rate-limit';
 import { route } from '../http/route';
 import { createCertificatesService } from './certificates.service';
 import { createVerificationService } from './verification.service';
@@ -52,8 +51,7 @@ function readUploadedPdf(req: Request, limitBytes: number): Promise<Buffer> {
 const issuedResponse = z.object({ created: z.boolean(), certificate: certificateSummarySchema });
 
 /** Public verification, by file or by number: 30 checks a minute per address, counted in PostgreSQL. */
-const VERIFY_RATE_LIMIT = { name: 'verify', points: 30, durationSeconds: 60 };
-
+// Verification is rate-limited per caller by the middleware in server/http/rate-limits.ts (RATE_LIMIT_VERIFY_PER_MINUTE).
 export const certificateRoutes = [
   route({
     method: 'post', path: '/api/v1/campaigns/:id/certificates', summary: 'Issue the certificate of an accepted campaign (201; 200 with the existing one when nothing changed)',
@@ -67,7 +65,6 @@ export const certificateRoutes = [
     method: 'post', path: '/api/v1/certificates/verify', summary: 'Verify a certificate file (public; multipart field "file")',
     tag: 'certificates', permission: 'public', multipart: true, response: verificationResultSchema,
     handler: async ({ req, res, deps }) => {
-      await consumeOrRefuse(deps.dataSource, VERIFY_RATE_LIMIT, clientKey(req), res);
       return createVerificationService(deps.dataSource, deps.config).verifyFile(await readUploadedPdf(req, VERIFY_UPLOAD_LIMIT_BYTES));
     },
   }),
@@ -75,7 +72,6 @@ export const certificateRoutes = [
     method: 'get', path: '/api/v1/certificates/verify', summary: 'Verify a certificate by its number and the SHA-256 of its file (public)',
     tag: 'certificates', permission: 'public', query: verifyByNumberQuerySchema, response: verificationResultSchema,
     handler: async ({ query, req, res, deps }) => {
-      await consumeOrRefuse(deps.dataSource, VERIFY_RATE_LIMIT, clientKey(req), res);
       return createVerificationService(deps.dataSource, deps.config).verifyNumber(query.number, query.sha256);
     },
   }),

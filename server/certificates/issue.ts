@@ -14,6 +14,7 @@ import { signPades, type PadesOptions } from './pdf/pades';
 import { renderCertificatePdf } from './pdf/render-certificate';
 import { parseCertificate } from './pki/der';
 import { crlUrlsOf, fetchCrl } from './pki/x509';
+import { faultPoint } from '../dev/fault-point';
 
 // Issuing, reissuing and revoking inside the caller's transaction: number, snapshot, render, sign, store,
 // audit and mail commit together or not at all.
@@ -155,6 +156,7 @@ export async function issueCertificate(ctx: IssueContext, campaignId: string): P
   const serial = await nextSerial(manager, year);
   const number = formatCertificateNumber(year, serial, 1);
   const { snapshot, pdf, pdfSha256, signingKeySerial } = await renderAndSign(ctx, source.body, number, 1, issuedAt);
+  await faultPoint('certificate-issue'); // test-only kill point: serial taken, PDF signed, nothing inserted yet
   const row = await insertRow(manager, actor, source, fingerprint, { number, year, serial, revision: 1, issuedAt, snapshot, pdf, pdfSha256, signingKeySerial });
   await recordAudit(manager, actor, {
     action: 'certificate.issued', entityType: 'certificate', entityId: number,

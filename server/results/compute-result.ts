@@ -14,6 +14,7 @@ import { coverageText, formatForUncertainty } from '../../shared/number-text';
 import { convertPotentialDifference, tidePotentialSeries, type TideSystem } from '../science/tides';
 import { ScienceInputError } from '../science/errors';
 import { formatScientific } from '../certificates/pdf/number-format';
+import { faultPointSync } from '../dev/fault-point';
 
 // The comparison result as a function of its inputs (campaign metadata + samples): no database, no clock reads
 // (computedAt is the caller's). The service loads the inputs, hashes them and stores what this returns.
@@ -150,6 +151,7 @@ function decimate(epochs: Float64Array, y: Float64Array, valid: Uint8Array, tide
 }
 
 export function computeResultBody(inputs: ResultInputs): ResultBody {
+  faultPointSync('result-compute'); // test-only kill point (server/dev/fault-point.ts); a no-op unless armed
   const { campaign, files } = inputs;
   const { samples, dropped } = dropRepeatedEpochs(inputs.samples);
   const { epochMjd, y, valid } = samples;

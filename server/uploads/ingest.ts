@@ -21,10 +21,16 @@ export type IngestOptions = {
   periodEndMjd: number | null;
   /** receives every raw chunk (the caller keeps the raw file) */
   onRawChunk?: (chunk: Buffer) => void;
-  onProgress?: (p: { bytesRead: number; rowsProcessed: number }) => void;
+  onProgress?: (p: { bytesRead: number; rowsProcessed: number }) => void | Promise<void>;
   /** stop reading once this many bytes arrived (the HTTP layer also enforces it) */
   limitBytes?: number;
+  /** longest line accepted, in characters (default 64 KiB); a longer one is refused and parsing stops */
+  maxLineChars?: number;
+  /** receives every accepted data row with its cells as written (the samples export re-reads the raw file with it) */
+  onRow?: (row: { line: number; epochText: string; valueText: string; mjd: number; y: number; valid: boolean }) => void;
 };
+
+export const DEFAULT_MAX_LINE_CHARS = 64 * 1024;
 
 export type IngestSummary = {
   sha256: string;
@@ -220,6 +226,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     rowCount++;
     if (valid) validCount++;
     if (failed) return;
+    opts.onRow?.({ line, epochText, valueText, mjd, y, valid });
     addToOverview(mjd, y, valid);
     if (off + ROW_BYTES > BATCH_BYTES) flush();
     view.setInt16(off, 4);
@@ -239,6 +246,12 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
   let pending = '';
   let carriedCr = false;
   let binaryProblem = false;
+  let lineTooLong = false;
+  const maxLine = opts.maxLineChars ?? DEFAULT_MAX_LINE_CHARS;
+  const refuseLongLine = (line: number) => {
+    report({ path: 'file', line, column: '1', message: `line ${line} is longer than ${maxLine} characters (the limit for one line); is the file missing its line ends?` });
+    lineTooLong = true;
+  };
   let firstText = true;
   let tooLarge = false;
   const limit = opts.limitBytes ?? Infinity;
@@ -279,6 +292,10 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     for (let i = 0; i < count; i++) {
       const l = lines[i];
       lineNo++;
+      if (l.length > maxLine) {
+        refuseLongLine(lineNo);
+        return;
+      }
       const c0 = l.charCodeAt(0);
       if (l.length === 0 || ((c0 === 35 || c0 === 32 || c0 === 9) && isCommentOrBlank(l))) continue;
       if (quotes && l.includes('"')) {
@@ -302,7 +319,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     hash.update(chunk);
     opts.onRawChunk?.(chunk);
     if (bytesRead > limit) tooLarge = true;
-    if (tooLarge || binaryProblem) continue; // keep reading so the client hears the answer; parse no further
+    if (tooLarge || binaryProblem || lineTooLong) continue; // keep reading so the client hears the answer; parse no further
     let text = decoder.decode(chunk, { stream: true });
     if (firstText) {
       firstText = false;
@@ -322,26 +339,38 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     carriedCr = text.endsWith('\r');
     if (carriedCr) text = text.slice(0, -1);
     if (text.includes('\r')) text = text.replace(/\r(?!\n)/g, '\n');
-    pending += text;
-    const lastNl = pending.lastIndexOf('\n');
+    // Only the new text is searched for a line end, so a file without any stays linear; the unfinished line is
+    // bounded by the line-length limit.
+    const lastNl = text.lastIndexOf('\n');
     if (lastNl >= 0) {
-      const complete = pending.slice(0, lastNl + 1);
-      pending = pending.slice(lastNl + 1);
+      const complete = pending + text.slice(0, lastNl + 1);
+      pending = text.slice(lastNl + 1);
       feed(complete);
+    } else {
+      pending += text;
+    }
+    if (!lineTooLong && pending.length > maxLine + 1) {
+      // the unfinished line comes after every line handed on, and after those still held for delimiter detection
+      let heldLines = 0;
+      for (let i = held.indexOf('\n'); i >= 0; i = held.indexOf('\n', i + 1)) heldLines++;
+      refuseLongLine(lineNo + heldLines + 1);
     }
     if (sinkFull) {
       sinkFull = false;
       await once(sink, 'drain');
     }
     if (sinkError) throw sinkError;
-    opts.onProgress?.({ bytesRead, rowsProcessed: rowCount });
+    const waiting = opts.onProgress?.({ bytesRead, rowsProcessed: rowCount });
+    if (waiting) await waiting;
   }
-  if (!tooLarge && !binaryProblem) {
+  // busboy marks a part cut at its size limit; its 'limit' event may have fired before this function listened
+  if ((file as Readable & { truncated?: boolean }).truncated) tooLarge = true;
+  if (!tooLarge && !binaryProblem && !lineTooLong) {
     const rest = pending + (carriedCr ? '\n' : '') + decoder.decode();
     if (rest.length > 0 || held.length > 0) feed(rest, true);
   }
   flush();
-  if (!tooLarge && !binaryProblem && rowCount === 0 && !failed) {
+  if (!tooLarge && !binaryProblem && !lineTooLong && rowCount === 0 && !failed) {
     report({ path: 'file', line: Math.max(1, lineNo), column: '1', message: bytesRead === 0 ? 'the file is empty' : 'the file holds no data rows' });
   }
   opts.onProgress?.({ bytesRead, rowsProcessed: rowCount });

@@ -9,7 +9,8 @@ const MS_PER_DAY = 86_400_000;
 /** |y| beyond this is no clock comparison but a mapping mistake (ratio read as offset or the wrong reference). */
 export const MAX_ABS_OFFSET = 1e-3;
 
-const NUMBER = /^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d{1,4})?$/;
+// `\d+(\.\d*)?`, not `\d+\.?\d*`: the latter backtracks quadratically on a long run of digits that fails to match.
+const NUMBER = /^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d{1,4})?$/;
 const NON_FINITE = /^[+-]?(nan|inf|infinity)$/i;
 const ISO = /^(\d{4})-(\d{2})-(\d{2})[T ](\d{2}):(\d{2}):(\d{2})(\.\d{1,9})?(Z|[+-]00:?00)?$/;
 

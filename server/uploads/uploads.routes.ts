@@ -33,6 +33,11 @@ export const uploadRoutes = [
     handler: ({ actor, params, deps }) => createUploadsService(deps).get(actor, params.id),
   }),
   route({
+    method: 'get', path: '/api/v1/uploads/:id/samples.csv', summary: 'The stored samples as CSV: epoch and ratio (or offset) exactly as uploaded, stored MJD and y (float64, exact), valid flag',
+    tag: 'uploads', permission: 'campaigns:read', params: idParamsSchema, raw: true,
+    handler: ({ actor, params, res, deps }) => createUploadsService(deps).exportSamples(actor, params.id, res),
+  }),
+  route({
     method: 'get', path: '/api/v1/uploads/:id/series', summary: 'Plot data: min/max of y per time bucket (gaps as nulls)', tag: 'uploads', permission: 'campaigns:read',
     params: idParamsSchema, query: seriesQuerySchema, response: seriesPlotSchema,
     handler: ({ actor, params, query, deps }) => createUploadsService(deps).plot(actor, params.id, query),

@@ -1,5 +1,5 @@
 import crypto from 'node:crypto';
-import type { Request } from 'express';
+import type { Request, Response } from 'express';
 import type pg from 'pg';
 import { from as copyFrom } from 'pg-copy-streams';
 import type { DataSource } from 'typeorm';
@@ -11,7 +11,9 @@ import type { AppConfig } from '../config';
 import { Conflict, Forbidden, Invalid, NotFound, PayloadTooLarge } from '../http/errors';
 import { COPY_SAMPLES_SQL, finishCopy, ingestRatioSeries, type IngestSummary } from './ingest';
 import { receiveMultipart } from './multipart';
+import { faultPoint } from '../dev/fault-point';
 import { openSpool } from './raw-file-spool';
+import { exportSamplesCsv } from './samples-export';
 import { buildPreview } from './ratio-series-format';
 import { decimateSeries } from './series-plot';
 import { createUploadProgressStore } from './upload-progress';
@@ -96,6 +98,8 @@ export type StoreSeriesInput = {
   limitBytes: number;
   /** Reports progress of an HTTP upload (the shared progress store); absent for the seeder. */
   onProgress?: (p: Partial<UploadProgress>) => void;
+  /** longest line accepted (default 64 KiB) */
+  maxLineChars?: number;
   invented?: boolean;
 };
 
@@ -114,15 +118,25 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
   const seriesId = crypto.randomUUID();
   const spool = openSpool();
   try {
+    await faultPoint('before-copy');
     const copy = client.query(copyFrom(COPY_SAMPLES_SQL));
+    let midCopy = false;
     let summary: IngestSummary;
     try {
       summary = await ingestRatioSeries(input.source, copy, {
         seriesId, mapping, referenceRatio: input.campaign.referenceRatio,
         periodStartMjd: input.campaign.periodStartMjd, periodEndMjd: input.campaign.periodEndMjd,
         limitBytes: input.limitBytes,
+        maxLineChars: input.maxLineChars,
         onRawChunk: (c) => spool.write(c),
-        onProgress: (p) => input.onProgress?.(p),
+        onProgress: (p) => {
+          input.onProgress?.(p);
+          // the kill harness stops here once some rows are in the COPY (no-op unless armed)
+          if (!midCopy && p.rowsProcessed >= 20_000) {
+            midCopy = true;
+            return faultPoint('mid-copy');
+          }
+        },
       });
       await finishCopy(copy);
     } catch (e) {
@@ -157,7 +171,7 @@ function isUniqueViolation(e: unknown) {
   return (e as { code?: string })?.code === '23505';
 }
 
-export function createUploadsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'uploadLimitBytes' | 'databaseUrl'> }) {
+export function createUploadsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'uploadLimitBytes' | 'databaseUrl' | 'upload'> }) {
   const { dataSource, config } = deps;
   const uploadProgress = createUploadProgressStore(dataSource);
 
@@ -220,8 +234,10 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
       const client = (qr as unknown as { databaseConnection: pg.PoolClient }).databaseConnection;
       try {
         await qr.startTransaction();
-        const { result } = await receiveMultipart(req, { fileBytes: config.uploadLimitBytes }, async (file, info, fields) => {
-          const row = await storeSeries(client, actor, { campaign, fileName: info.filename, source: file, fields, limitBytes: config.uploadLimitBytes, onProgress: (p) => uploadProgress.update(uploadId, p) });
+        // PostgreSQL itself ends a COPY that a stalled or vanished client keeps open, whatever this process does.
+        await client.query(`SET LOCAL statement_timeout = ${Math.trunc(config.upload.statementTimeoutMs)}`);
+        const { result } = await receiveMultipart(req, { fileBytes: config.uploadLimitBytes, idleMs: config.upload.idleTimeoutMs }, async (file, info, fields) => {
+          const row = await storeSeries(client, actor, { campaign, fileName: info.filename, source: file, fields, limitBytes: config.uploadLimitBytes, maxLineChars: config.upload.maxLineBytes, onProgress: (p) => uploadProgress.update(uploadId, p) });
           await recordAudit(qr.manager, actor, {
             action: 'campaign.series-uploaded', entityType: 'ratio_series', entityId: row.id, instituteId: campaign.instituteId,
             details: { campaignId, fileName: row.file_name, sha256: row.sha256, rows: row.row_count, valid: row.valid_count },
@@ -231,6 +247,7 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
           return row;
         });
         if (!result) throw new Invalid('No file was sent.', [{ path: 'file', message: 'attach the file as the part named "file"' }]);
+        await faultPoint('before-commit');
         await qr.commitTransaction();
         await uploadProgress.finish(uploadId, { phase: 'done', seriesId: result.id });
         return toSeriesDto(result);
@@ -260,6 +277,14 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
       authorize(actor, 'campaigns:read');
       const s = await seriesOr404(actor, id);
       return decimateSeries(dataSource, { id: s.id, firstMjd: s.first_mjd, lastMjd: s.last_mjd, rowCount: s.row_count }, q);
+    },
+
+    /** CSV of the stored samples with the epoch and value cells as uploaded (same reading rule as the upload itself). */
+    async exportSamples(actor: Actor, id: string, res: Response): Promise<void> {
+      authorize(actor, 'campaigns:read');
+      const s = await seriesOr404(actor, id);
+      const c = await campaignOr404(actor, s.campaign_id);
+      await exportSamplesCsv(dataSource, { id: s.id, fileName: s.file_name, rowCount: s.row_count, mapping: s.mapping, referenceRatio: c.referenceRatio }, res);
     },
 
     async progress(actor: Actor, uploadId: string) {

@@ -17,7 +17,7 @@ const verifyFile = (file: Buffer) => request(t.app).post('/api/v1/certificates/v
 const verifyNumber = (n: string, digest: string) => request(t.app).get('/api/v1/certificates/verify').query({ number: n, sha256: digest });
 
 beforeAll(async () => {
-  t = await createTestApp();
+  t = await createTestApp({ env: { RATE_LIMITS: 'on' } });
   const [row] = await t.ds.query('SELECT number, pdf_sha256, campaign_label FROM certificate ORDER BY number LIMIT 1');
   number = row.number;
   recordSha = row.pdf_sha256;

@@ -7,6 +7,7 @@ import { Certificates1764700000000 } from './1764700000000-certificates';
 import { RateLimit1765000000000 } from './1765000000000-rate-limit';
 import { ResultRequests1765000000001 } from './1765000000001-result-requests';
 import { SessionsAccounts1765100000000 } from './1765100000000-sessions-accounts';
+import { RateLimit1765200000000 } from './1765200000000-rate-limit';
 import { AuditChainV21765300000000 } from './1765300000000-audit-chain-v2';
 import { MailOutboxRetry1765310000000 } from './1765310000000-mail-outbox-retry';
 import { MeasuredRatios1765500000000 } from './1765500000000-measured-ratios';
@@ -26,6 +27,7 @@ export const migrations = [
   RateLimit1765000000000,
   ResultRequests1765000000001,
   SessionsAccounts1765100000000,
+  RateLimit1765200000000,
   AuditChainV21765300000000,
   MailOutboxRetry1765310000000,
   MeasuredRatios1765500000000,
