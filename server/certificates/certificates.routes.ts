@@ -64,14 +64,14 @@ export const certificateRoutes = [
   route({
     method: 'post', path: '/api/v1/certificates/verify', summary: 'Verify a certificate file (public; multipart field "file")',
     tag: 'certificates', permission: 'public', multipart: true, response: verificationResultSchema,
-    handler: async ({ req, res, deps }) => {
+    handler: async ({ req, deps }) => {
       return createVerificationService(deps.dataSource, deps.config).verifyFile(await readUploadedPdf(req, VERIFY_UPLOAD_LIMIT_BYTES));
     },
   }),
   route({
     method: 'get', path: '/api/v1/certificates/verify', summary: 'Verify a certificate by its number and the SHA-256 of its file (public)',
     tag: 'certificates', permission: 'public', query: verifyByNumberQuerySchema, response: verificationResultSchema,
-    handler: async ({ query, req, res, deps }) => {
+    handler: async ({ query, deps }) => {
       return createVerificationService(deps.dataSource, deps.config).verifyNumber(query.number, query.sha256);
     },
   }),
