@@ -285,17 +285,44 @@ export type NetworkMap = z.infer<typeof networkMapSchema>;
 
 // ---- stateless calculator ----
 
+const pointCode = z.string().min(1).max(80);
 export const calcAdjustBodySchema = z.object({
-  points: z.array(z.object({ code: z.string().min(1).max(80), fixedC: finite.optional(), sigmaFixed: z.number().min(0).optional() })).min(1).max(50_000),
+  points: z.array(z.object({ code: pointCode, fixedC: finite.optional(), sigmaFixed: z.number().min(0).optional() })).min(1).max(50_000),
   observations: z
-    .array(z.object({ from: z.string().min(1).max(80), to: z.string().min(1).max(80), deltaC: finite, sigma: z.number().positive() }))
+    .array(z.object({
+      from: pointCode, to: pointCode, deltaC: finite,
+      /** Own (non-shared) standard deviation of this observation [m²/s²]. */
+      sigma: z.number().positive(),
+      /** Names of the clocks at the from and to ends; their systematic effects (clockSystematics) enter with −1 and +1. */
+      clocks: z.object({ from: z.string().min(1).max(120), to: z.string().min(1).max(120) }).optional(),
+    }))
     .min(1)
     .max(200_000),
+  /** Standard uncertainty of each clock's systematic effect [m²/s²], shared by every observation naming the clock. */
+  clockSystematics: z.array(z.object({ clock: z.string().min(1).max(120), sigma: z.number().positive() })).max(10_000).default([]),
+  /** Adjusted differences C_to − C_from wanted with their covariance-based σ. */
+  differences: z.array(z.object({ from: pointCode, to: pointCode })).max(10_000).default([]),
 });
 export type CalcAdjustBody = z.infer<typeof calcAdjustBodySchema>;
 export const calcAdjustResultSchema = z.object({
   points: z.array(z.object({ code: z.string(), c: z.number(), sigma: z.number() })),
-  observations: z.array(z.object({ from: z.string(), to: z.string(), residual: z.number(), redundancy: z.number(), standardizedResidual: z.number().nullable() })),
+  observations: z.array(z.object({
+    from: z.string(), to: z.string(),
+    /** Adjusted minus observed, with the clocks' estimated systematic effects part of the adjusted value [m²/s²]. */
+    residual: z.number(), redundancy: z.number(), standardizedResidual: z.number().nullable(),
+    /** True only for observations removed by the data-snooping iteration (Baarda 1968). */
+    suspected: z.boolean(),
+    removedAtStep: z.number().int().nullable(),
+  })),
+  /** σ = √(q_ff + q_tt − 2q_ft), a-priori scale like the points' sigma [m²/s²]. */
+  differences: z.array(z.object({ from: z.string(), to: z.string(), deltaC: z.number(), sigma: z.number() })),
+  clockSystematics: z.array(z.object({ clock: z.string(), estimate: z.number(), sigma: z.number(), priorSigma: z.number(), observations: z.number().int() })),
+  snooping: z.object({
+    criticalValue: z.number(),
+    /** In order of removal; `index` counts in observations (source observation) or points (a weighted fixed point). */
+    removals: z.array(z.object({ step: z.number().int(), source: z.enum(['observation', 'fixedPoint']), index: z.number().int(), from: z.string().optional(), to: z.string().optional(), code: z.string().optional(), standardizedResidual: z.number() })),
+    stoppedEarly: z.boolean(),
+  }),
   sigma0: z.number().nullable(),
   degreesOfFreedom: z.number().int(),
   globalTest: z.object({ statistic: z.number(), critical: z.number(), passed: z.boolean() }).nullable(),

@@ -412,22 +412,54 @@ export function createAdjustmentService(dataSource: DataSource) {
 /** The stateless calculator: adjusts what the caller sends, stores nothing. */
 export function calcAdjust(actor: Actor, body: CalcAdjustBody): CalcAdjustResult {
   authorize(actor, 'calc:use');
+  const systematics = new Map<string, number>();
+  body.clockSystematics.forEach((c, i) => {
+    if (systematics.has(c.clock)) throw new Invalid(`clockSystematics[${i}]: clock ${c.clock} is listed twice`, [{ path: `body.clockSystematics.${i}.clock`, message: 'listed twice' }]);
+    systematics.set(c.clock, c.sigma);
+  });
+  const param = (clock: string) => `clock ${clock}`;
+  const observations: NetworkObservation[] = body.observations.map((o, i) => {
+    const ob: NetworkObservation = { id: String(i), from: o.from, to: o.to, deltaC: o.deltaC, sigma: o.sigma };
+    if (o.clocks) {
+      for (const end of ['from', 'to'] as const) {
+        if (!systematics.has(o.clocks[end])) {
+          throw new Invalid(`observations[${i}].clocks.${end}: clock ${o.clocks[end]} has no entry in clockSystematics`, [{ path: `body.observations.${i}.clocks.${end}`, message: `clock ${o.clocks[end]} is not in clockSystematics` }]);
+        }
+      }
+      ob.terms = [{ name: param(o.clocks.from), coefficient: -1 }, { name: param(o.clocks.to), coefficient: 1 }];
+    }
+    return ob;
+  });
   let res;
   try {
-    res = adjustNetwork({ points: body.points, observations: body.observations.map((o, i) => ({ ...o, id: String(i) })) });
+    res = adjustNetwork({
+      points: body.points, observations,
+      options: { sharedParameters: body.clockSystematics.map((c) => ({ name: param(c.clock), sigma: c.sigma })), differences: body.differences },
+    });
   } catch (e) {
     if (e instanceof AdjustmentInputError) {
       if (e.detail.reason === 'disconnected') {
         const parts = e.detail.parts ?? [];
         throw new NetworkNotConnected(`These parts of the network reach no fixed point: ${describeParts(parts)}.`, parts);
       }
-      throw new Invalid(e.message, [{ path: `body.${e.detail.path ?? e.detail.unknown ?? 'points'}`, message: e.message }]);
+      const path = (e.detail.path ?? e.detail.unknown ?? 'points').replace(/^options\.differences/, 'differences').replace(/^options\.sharedParameters/, 'clockSystematics').replace(/\[(\d+)\]/g, '.$1');
+      throw new Invalid(e.message, [{ path: `body.${path}`, message: e.message }]);
     }
     throw e;
   }
   return {
     points: res.points.map((p) => ({ code: p.code, c: p.c, sigma: p.sigma })),
-    observations: res.observations.map((o) => ({ from: o.from, to: o.to, residual: o.residual, redundancy: o.redundancy, standardizedResidual: o.standardizedResidual })),
+    observations: res.observations.map((o) => ({
+      from: o.from, to: o.to, residual: o.residual, redundancy: o.redundancy, standardizedResidual: o.standardizedResidual,
+      suspected: o.suspected, removedAtStep: o.removedAtStep,
+    })),
+    differences: res.differences.map((d) => ({ from: d.from, to: d.to, deltaC: d.deltaC, sigma: d.sigma })),
+    clockSystematics: res.sharedParameters.map((s, j) => ({ clock: body.clockSystematics[j].clock, estimate: s.value, sigma: s.sigma, priorSigma: s.priorSigma, observations: s.observations })),
+    snooping: {
+      criticalValue: res.snooping.criticalValue,
+      removals: res.snooping.removals.map((r) => ({ step: r.step, source: r.source, index: r.index, from: r.from, to: r.to, code: r.code, standardizedResidual: r.standardizedResidual })),
+      stoppedEarly: res.snooping.stoppedEarly,
+    },
     sigma0: res.sigma0, degreesOfFreedom: res.degreesOfFreedom,
     globalTest: res.globalTest ? { statistic: res.globalTest.statistic, critical: res.globalTest.critical, passed: res.globalTest.passed } : null,
   };
