@@ -161,7 +161,10 @@ export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptio
       const shift = potentialShiftFromMeanTide(db.system, db.latitudeDeg) - potentialShiftFromMeanTide(da.system, da.latitudeDeg)
         - (potentialShiftFromMeanTide(dc.tideSystem, db.latitudeDeg) - potentialShiftFromMeanTide(dc.tideSystem, da.latitudeDeg));
       if (dc.tideSystem !== da.system || dc.tideSystem !== db.system) {
-        tideConversions.push({ label: `clock comparison ${c.name}`, from: dc.tideSystem, to: da.system === db.system ? da.system : db.system, shift_m2s2: shift });
+        tideConversions.push({
+          label: da.system === db.system ? `clock comparison ${c.name}` : `clock comparison ${c.name} (to ${da.system} at the from end, ${db.system} at the to end)`,
+          from: dc.tideSystem, to: da.system === db.system ? da.system : db.system, shift_m2s2: shift,
+        });
       }
       // Shared systematic terms are parameters; the observation keeps its own part only.
       const terms: NonNullable<NetworkObservation['terms']> = dc.shared.map((t) => ({ name: t.name, coefficient: t.coefficient }));
