@@ -23,6 +23,7 @@ import {
   symmetricFromTriplets,
   type SymmetricCsc,
 } from './sparse-ldl';
+import type { Ordering } from './ordering';
 
 export type ObservationKind = 'levelling' | 'tie' | 'clock';
 
@@ -296,8 +297,11 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
   const removals: SnoopingRemoval[] = [];
   let stoppedEarly = false;
 
-  // Each pass adjusts the observations not yet removed; original indices are kept in `obsMap` / `fixedMap`.
-  const run = (report: boolean) => {
+  // Each pass adjusts the observations not yet removed; original indices are kept in `obsMap`. The unknowns stay the
+  // same from pass to pass (a removed weighted fixed value leaves its point an unknown), so the fill-reducing ordering
+  // of the first pass is reused.
+  let ordering: Ordering | undefined;
+  const run = (report: boolean, screen = false) => {
     const obsMap: number[] = [];
     for (let k = 0; k < nObsAll; k++) if (!removedObs.has(k)) obsMap.push(k);
     const points = input.points.map((p, i) => {
@@ -309,12 +313,40 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
       { points, observations: obsMap.map((k) => input.observations[k]), options },
       report ? progress : () => undefined,
       obsMap,
+      ordering,
+      screen,
+      Math.max(0, maxRemovals - removals.length),
     );
+    ordering = core.ordering;
     return { core, obsMap };
   };
 
-  let pass = run(true);
+  let pass = run(true, mode === 'iterative');
   const initial = { sigma0: pass.core.sigma0, degreesOfFreedom: pass.core.degreesOfFreedom, globalTest: pass.core.globalTest };
+  if (mode === 'iterative' && pass.core.screened.length > 0) {
+    // Apply the screened sequence (each w is the one the full iteration would compute at that step), then re-adjust
+    // exactly once; the loop below continues with full adjustments should anything still exceed the critical value.
+    const { core, obsMap } = pass;
+    const staged: SnoopingRemoval[] = core.screened.map((c, j) => {
+      const removal: SnoopingRemoval = { step: j + 1, source: c.source, index: c.source === 'observation' ? obsMap[c.index] : c.index, standardizedResidual: c.w };
+      if (c.source === 'observation') {
+        const ob = input.observations[removal.index];
+        removal.from = ob.from;
+        removal.to = ob.to;
+        if (ob.id !== undefined) removal.id = ob.id;
+      } else removal.code = input.points[c.index].code;
+      return removal;
+    });
+    for (const r of staged) (r.source === 'observation' ? removedObs : removedFixed).set(r.index, r);
+    try {
+      pass = run(false);
+      removals.push(...staged);
+    } catch (e) {
+      if (!(e instanceof AdjustmentInputError)) throw e;
+      for (const r of staged) (r.source === 'observation' ? removedObs : removedFixed).delete(r.index);
+      pass = run(false);
+    }
+  }
   if (mode === 'iterative') {
     for (;;) {
       const { core, obsMap } = pass;
@@ -468,10 +500,15 @@ interface CoreResult {
   alpha0: number;
   criticalValue: number;
   factorNonZeros: number;
+  ordering: Ordering;
+  /** Removals found by rank-one screening (indices local to this pass), in order; verified by an exact re-adjustment. */
+  screened: { source: 'observation' | 'fixedPoint'; index: number; w: number }[];
 }
 
 /** One least-squares adjustment (no iteration). `obsPath` maps observation positions to the caller's indices for messages. */
-function adjustCore(input: AdjustmentInput, progress: (fraction: number, stage: AdjustmentStage) => void, obsPath: number[]): CoreResult {
+function adjustCore(
+  input: AdjustmentInput, progress: (fraction: number, stage: AdjustmentStage) => void, obsPath: number[], ordering?: Ordering, screen = false, screenBudget = 0,
+): CoreResult {
   const options = input.options ?? {};
   const alpha = options.alpha ?? 0.05;
   const alpha0 = options.alphaSnooping ?? 0.001;
@@ -657,7 +694,7 @@ function adjustCore(input: AdjustmentInput, progress: (fraction: number, stage: 
   progress(0.15, 'ordering and factorisation');
   let factor;
   try {
-    factor = factorize(normal);
+    factor = factorize(normal, ordering && ordering.perm.length === nUnknowns ? { ordering } : {});
   } catch (e) {
     if (e instanceof SingularMatrixError) {
       throw new AdjustmentInputError(
@@ -732,6 +769,65 @@ function adjustCore(input: AdjustmentInput, progress: (fraction: number, stage: 
     globalTest = { statistic: vtpv, degreesOfFreedom: dof, alpha, lower, upper, critical: upper, passed: vtpv >= lower && vtpv <= upper };
   }
   const kCrit = normalQuantile(1 - alpha0 / 2);
+
+  // Screening for Baarda's iteration without re-factorising: removing row k is a rank-one downdate of N, so with
+  // z = Q·a_k (Sherman–Morrison) x' = x + p_k·v_k/r_k·z, v_i' = v_i + p_k·v_k/r_k·(a_iᵀz), r_i' = r_i − p_i·p_k·(a_iᵀz)²/r_k,
+  // Ω' = Ω − p_k·v_k²/r_k. Q after several removals is Q_0 + Σ c_j·z_j·z_jᵀ. The caller re-adjusts exactly afterwards.
+  const screened: { source: 'observation' | 'fixedPoint'; index: number; w: number }[] = [];
+  if (screen && dof > 0) {
+    const nRows = nObs + nPseudo;
+    const rv = new Float64Array(nRows);
+    const rr = new Float64Array(nRows);
+    const rp = new Float64Array(nRows);
+    const rs = new Float64Array(nRows);
+    const gone = new Uint8Array(nRows);
+    for (let k = 0; k < nObs; k++) { rv[k] = v[k]; rr[k] = r[k]; rp[k] = weight[k]; rs[k] = observations[k].sigma; }
+    weightedIdx.forEach((i, s2) => { rv[nObs + s2] = pv[s2]; rr[nObs + s2] = pr[s2]; rp[nObs + s2] = pseudoWeight[s2]; rs[nObs + s2] = points[i].sigmaFixed as number; });
+    const rowDot = (row: number, vec: Float64Array): number => {
+      if (row >= nObs) return vec[unknownOfPoint[weightedIdx[row - nObs]]];
+      const m = obsUnknowns(row);
+      let d = 0;
+      for (let s2 = 0; s2 < m; s2++) d += coef[s2] * vec[idx[s2]];
+      return d;
+    };
+    const zs: Float64Array[] = [];
+    const cs: number[] = [];
+    let dofLeft = dof;
+    for (let step = 0; step < screenBudget && dofLeft > 0; step++) {
+      let best = -1;
+      let bestW = 0;
+      for (let i = 0; i < nRows; i++) {
+        if (gone[i] || rr[i] < REDUNDANCY_FLOOR) continue;
+        const w = rv[i] / (rs[i] * Math.sqrt(Math.min(rr[i], 1)));
+        if (Math.abs(w) > kCrit && Math.abs(w) > Math.abs(bestW)) { best = i; bestW = w; }
+      }
+      if (best < 0) break;
+      screened.push(best < nObs ? { source: 'observation', index: best, w: bestW } : { source: 'fixedPoint', index: weightedIdx[best - nObs], w: bestW });
+      gone[best] = 1;
+      dofLeft--;
+      // z = Q·a_best with the accumulated downdates.
+      const a = new Float64Array(nUnknowns);
+      if (best >= nObs) a[unknownOfPoint[weightedIdx[best - nObs]]] = 1;
+      else { const m = obsUnknowns(best); for (let s2 = 0; s2 < m; s2++) a[idx[s2]] += coef[s2]; }
+      const z = solve(factor, a);
+      for (let j = 0; j < zs.length; j++) {
+        let d = 0;
+        for (let u = 0; u < nUnknowns; u++) d += zs[j][u] * a[u];
+        const f = cs[j] * d;
+        if (f !== 0) for (let u = 0; u < nUnknowns; u++) z[u] += f * zs[j][u];
+      }
+      const c = rp[best] / rr[best];
+      const g = c * rv[best];
+      for (let i = 0; i < nRows; i++) {
+        if (gone[i]) continue;
+        const az = rowDot(i, z);
+        rv[i] += g * az;
+        rr[i] -= rp[i] * c * az * az;
+      }
+      zs.push(z);
+      cs.push(c);
+    }
+  }
 
   const analyse = (residual: number, sigma: number, redundancy: number): Omit<ResidualAnalysis, 'suspected' | 'removedAtStep'> => {
     const rr = redundancy < REDUNDANCY_FLOOR ? 0 : Math.min(redundancy, 1);
@@ -829,6 +925,8 @@ function adjustCore(input: AdjustmentInput, progress: (fraction: number, stage: 
     alpha0,
     criticalValue: kCrit,
     factorNonZeros: factor.colPtr[factor.n],
+    ordering: factor.ordering,
+    screened,
   };
   if (heldPoint !== undefined) result.heldPoint = heldPoint;
   return result;

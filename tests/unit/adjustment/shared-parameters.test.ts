@@ -283,6 +283,51 @@ describe("data snooping as Baarda's iteration", () => {
     expect(res.sigma0!).toBeCloseTo(without.sigma0!, 10);
   });
 
+  it('the rank-one screening gives the same removals, w and final adjustment as re-adjusting after every removal', () => {
+    for (const seed of [61, 62, 63]) {
+      const net = smallRandomNetwork(seed, 60, 70, true);
+      const rand = mulberry32(seed);
+      // five blunders of 30–80 mm in well-controlled sections
+      const obs = net.observations.map((o) => ({ ...o }));
+      for (let b = 0; b < 5; b++) obs[Math.floor(rand() * obs.length)].deltaC += (0.03 + 0.05 * rand()) * 9.81 * (rand() < 0.5 ? -1 : 1);
+      const fast = adjustNetwork({ points: net.points, observations: obs });
+      // Reference: Baarda's iteration done by hand, one full adjustment per step (snooping 'none' only tests).
+      const kept = obs.map((_, i) => i);
+      const order: { index: number; w: number }[] = [];
+      let pts = net.points;
+      for (;;) {
+        const res = adjustNetwork({ points: pts, observations: kept.map((i) => obs[i]), options: { snooping: 'none' } });
+        const cands = [
+          ...res.observations.map((o, j) => ({ kind: 'o' as const, j, w: o.standardizedResidual })),
+          ...res.fixedPointObservations.map((o) => ({ kind: 'f' as const, j: pts.findIndex((p) => p.code === o.code), w: o.standardizedResidual })),
+        ].filter((c) => c.w !== null && Math.abs(c.w) > res.snooping.criticalValue);
+        if (!cands.length || res.degreesOfFreedom === 0) break;
+        const top = cands.reduce((a, b) => (Math.abs(b.w!) > Math.abs(a.w!) ? b : a));
+        if (top.kind === 'o') { order.push({ index: kept[top.j], w: top.w! }); kept.splice(top.j, 1); }
+        else { order.push({ index: -1 - top.j, w: top.w! }); pts = pts.map((p, i) => (i === top.j ? { code: p.code } : p)); }
+      }
+      // Same |w| at every step; the same observation except where two share |w| exactly (a tie, e.g. two sections in
+      // series on a spur), where either is Baarda's choice.
+      expect(fast.snooping.removals.length).toBe(order.length);
+      fast.snooping.removals.forEach((r, i) => {
+        expect(Math.abs(r.standardizedResidual)).toBeCloseTo(Math.abs(order[i].w), 8);
+        const tie = Math.abs(Math.abs(order[i].w) - Math.abs(r.standardizedResidual)) < 1e-8 && (r.source === 'observation' ? r.index : -1 - r.index) !== order[i].index;
+        if (!tie) expect(r.source === 'observation' ? r.index : -1 - r.index).toBe(order[i].index);
+      });
+      // The final adjustment is the adjustment without the removed observations, computed independently.
+      const removedObs = new Set(fast.snooping.removals.filter((r) => r.source === 'observation').map((r) => r.index));
+      const removedPts = new Set(fast.snooping.removals.filter((r) => r.source === 'fixedPoint').map((r) => r.index));
+      const final = adjustNetwork({
+        points: net.points.map((p, i) => (removedPts.has(i) ? { code: p.code } : p)),
+        observations: obs.filter((_, i) => !removedObs.has(i)), options: { snooping: 'none' },
+      });
+      for (const [j, p] of fast.points.entries()) expect(p.c).toBeCloseTo(final.points[j].c, 9);
+      expect(fast.sigma0!).toBeCloseTo(final.sigma0!, 10);
+      expect(final.snooping.maxRemainingW!).toBeLessThanOrEqual(final.snooping.criticalValue);
+      expect(order.length).toBeGreaterThanOrEqual(3);
+    }
+  });
+
   it("snooping 'none' flags every |w| above k without removing anything", () => {
     const net = smallRandomNetwork(55, 30, 30, false);
     const obs = net.observations.map((o, i) => (i === 3 ? { ...o, deltaC: o.deltaC + 0.1 * 9.81 } : o));
