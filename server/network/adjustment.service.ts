@@ -65,7 +65,8 @@ export function levellingComponents(observations: RunResult['observations']): (a
     return r;
   };
   for (const o of observations) {
-    if (o.kind === 'clock') continue;
+    // Observations that data snooping removed do not join anything.
+    if (o.kind === 'clock' || o.suspected) continue;
     if (!parent.has(o.from)) parent.set(o.from, o.from);
     if (!parent.has(o.to)) parent.set(o.to, o.to);
     parent.set(find(o.from), find(o.to));

@@ -366,8 +366,10 @@ describe('clocks in the network: reconciliation and datum offsets', () => {
 
     // Once a section joins the two sites' tie benchmarks, the levelling connects the datums: E_n becomes meaningful.
     const tieFrom = (site: string) => run.result.observations.find((o: { kind: string; to: string }) => o.kind === 'tie' && o.to === `site:${site}`).from;
+    // A junction consistent with both datums' fixed values (so data snooping keeps it): ΔC = C(bm B) − C(bm A) of the run.
+    const cOf = (code: string) => run.result.points.find((p: { code: string }) => p.code === code).c_m2s2;
     const joined = await request(t.app).post('/api/v1/network/sections').set(bearer(coordinator))
-      .send({ lineName: 'Datum junction', fromCode: tieFrom(campaign.a), toCode: tieFrom(campaign.b), deltaHeightM: levelled / 9.81, lengthKm: 300 });
+      .send({ lineName: 'Datum junction', fromCode: tieFrom(campaign.a), toCode: tieFrom(campaign.b), deltaHeightM: (cOf(tieFrom(campaign.b)) - cOf(tieFrom(campaign.a))) / 9.81, lengthKm: 300, meanGravity_ms2: 9.81 });
     expect(joined.status).toBe(201);
     const lev2 = await request(t.app).post('/api/v1/network/runs').set(bearer(coordinator)).send({ includeClocks: false });
     let run3 = lev2.body;
@@ -386,6 +388,7 @@ describe('clocks in the network: reconciliation and datum offsets', () => {
     // Levelling U (k = 2) from the covariance of the two adjusted sites, σ² = q_AA + q_BB − 2q_AB (JCGM 100:2008 eq. 13),
     // checked by dense least squares over the run's own observations; the root-sum-square would overstate it.
     expect(row3.levellingSigmaMethod).toBe('covariance');
+    expect(run3.result.snooping.suspects.map((x: { label: string }) => x.label).join()).not.toContain('Datum junction');
     expect(run3.result.sigmaScale.applied).toBe(false);
     const sigma3 = denseDifferenceSigma(run3.result, c3a.code, c3b.code);
     expect(row3.levellingExpandedU_m2s2).toBeCloseTo(2 * sigma3, 9);
