@@ -29,8 +29,16 @@ const optionalText = (max: number) => z.string().trim().max(max).nullable().defa
 export const crsEntrySchema = z.object({ code: z.string(), label: z.string(), kind: z.enum(['geographic2D', 'geographic3D', 'geocentric', 'projected']) });
 export type CrsEntry = z.infer<typeof crsEntrySchema>;
 
+/** Permanent-tide systems (Ekman 1989; Mäkinen & Ihde 2009). For ellipsoidal heights the crust system: mean-tide = zero-tide crust. */
+export const registryTideSystems = ['mean-tide', 'zero-tide', 'tide-free'] as const;
+const tideSystemField = z.enum(registryTideSystems).nullable().optional();
+
 const quasigeoidInput = z.discriminatedUnion('source', [
-  z.object({ source: z.literal('entered'), heightM: finite.refine((v) => Math.abs(v) < 200, 'quasigeoid heights lie within ±200 m'), uncertaintyM: nonNegative }),
+  z.object({
+    source: z.literal('entered'), heightM: finite.refine((v) => Math.abs(v) < 200, 'quasigeoid heights lie within ±200 m'), uncertaintyM: nonNegative,
+    /** Tide system of the entered ζ; absent = not stated (then no comparison uses it). */
+    tideSystem: tideSystemField,
+  }),
   z.object({ source: z.literal('grid'), gridId: z.string().uuid() }),
 ]);
 
@@ -50,6 +58,8 @@ export const createSiteSchema = z.object({
   crs: nameText(3, 500),
   coordinates: z.array(finite).min(2).max(3),
   ellipsoidalHeightUncertaintyM: nonNegative.default(0),
+  /** Crust system of the ellipsoidal height (GNSS in ITRF: tide-free); absent = not stated. */
+  ellipsoidalCrustSystem: tideSystemField,
   quasigeoid: quasigeoidInput,
   benchmarkTie: benchmarkTieInput,
 });
@@ -73,7 +83,12 @@ export const siteSchema = z.object({
     zM: z.number(),
   }),
   assumptions: z.array(z.string()),
-  quasigeoid: z.object({ source: z.enum(['entered', 'grid']), gridId: z.string().nullable(), gridName: z.string().nullable(), heightM: z.number(), uncertaintyM: z.number() }),
+  quasigeoid: z.object({
+    source: z.enum(['entered', 'grid']), gridId: z.string().nullable(), gridName: z.string().nullable(), heightM: z.number(), uncertaintyM: z.number(),
+    tideSystem: z.enum(registryTideSystems).nullable().optional(),
+  }),
+  /** Crust system of the ellipsoidal height (null: not stated). */
+  ellipsoidalCrustSystem: z.enum(registryTideSystems).nullable().optional(),
   normalHeight: z.object({ valueM: z.number(), uncertaintyM: z.number(), k: z.literal(1), formula: z.string() }),
   benchmarkTie: z.object({ benchmarkCode: z.string(), heightDifferenceM: z.number(), uncertaintyM: z.number() }).nullable(),
   createdAt: z.string(),
@@ -86,6 +101,10 @@ export type Site = z.infer<typeof siteSchema>;
 export const uploadQuasigeoidGridSchema = z.object({
   name: nameText(2, 120),
   uncertaintyM: nonNegative,
+  /** Tide system of the grid's heights; absent = not stated. */
+  tideSystem: tideSystemField,
+  /** Correlation length of the grid's errors [km]; absent: the stated default (100 km). */
+  correlationLengthKm: z.number().positive().max(100_000).nullable().optional(),
   fileName: nameText(0, 200).nullable().default(null),
   content: z.string().min(1).max(20_000_000),
 });
@@ -104,6 +123,8 @@ export const quasigeoidGridSchema = z.object({
   longitudeStepDeg: z.number(),
   nodeCount: z.number().int(),
   uncertaintyM: z.number(),
+  tideSystem: z.enum(registryTideSystems).nullable().optional(),
+  correlationLengthKm: z.number().nullable().optional(),
   uploadedBy: z.string(),
   createdAt: z.string(),
 });

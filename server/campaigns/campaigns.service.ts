@@ -206,6 +206,10 @@ export type SiteForResult = {
   normalHeightM: number;
   normalHeightUncertaintyM: number;
   benchmarkTie: { benchmarkCode: string; heightDifferenceM: number; uncertaintyM: number } | null;
+  /** Tide systems of ζ and of h (crust); null = not stated. */
+  quasigeoidTideSystem?: 'mean-tide' | 'zero-tide' | 'tide-free' | null;
+  ellipsoidalCrustSystem?: 'mean-tide' | 'zero-tide' | 'tide-free' | null;
+  quasigeoidGridId?: string | null;
 };
 export type ClockForResult = {
   id: string;
@@ -251,6 +255,9 @@ function siteForResult(s: SiteRow): SiteForResult {
     normalHeightM: h.valueM,
     normalHeightUncertaintyM: h.uncertaintyM,
     benchmarkTie: s.benchmarkCode !== null ? { benchmarkCode: s.benchmarkCode, heightDifferenceM: s.tieHeightDifferenceM ?? 0, uncertaintyM: s.tieUncertaintyM ?? 0 } : null,
+    quasigeoidTideSystem: s.quasigeoidTideSystem ?? null,
+    ellipsoidalCrustSystem: s.ellipsoidalCrustSystem ?? null,
+    quasigeoidGridId: s.quasigeoidGridId,
   };
 }
 

@@ -41,7 +41,7 @@ export function toBenchmarkDto(b: BenchmarkRow): Benchmark {
     id: b.id, code: b.code, name: b.name, datumId: b.datumId, datumName: b.datum?.name ?? '',
     crs: b.crs, crsKind: crs.kind, crsLabel: crs.label, coordinates: b.coordinatesEntered, latitudeDeg: b.latitudeDeg, longitudeDeg: b.longitudeDeg,
     ellipsoidalHeightM: b.ellipsoidalHeightM, knownEnteredAs: b.knownEnteredAs, knownC_m2s2: b.knownC_m2s2,
-    knownNormalHeightM: b.knownNormalHeightM, knownUncertaintyC_m2s2: b.knownUncertaintyC_m2s2,
+    knownNormalHeightM: b.knownNormalHeightM, knownUncertaintyC_m2s2: b.knownUncertaintyC_m2s2, knownTideSystem: b.knownTideSystem ?? null,
     knownUncertaintyM: b.knownUncertaintyC_m2s2 === null ? null : b.knownUncertaintyC_m2s2 / gBar,
     fixed: b.fixed, monumentation: b.monumentation, state: b.state,
   };
@@ -131,6 +131,7 @@ export function createNetworkService(dataSource: DataSource) {
       code: input.code, name: input.name, datumId: input.datumId, crs: input.crs, coordinatesEntered: input.coordinates,
       latitudeDeg: pos.latitudeDeg, longitudeDeg: pos.longitudeDeg, ellipsoidalHeightM: pos.ellipsoidalHeightM,
       knownEnteredAs: input.known?.kind ?? null, knownC_m2s2: knownC, knownNormalHeightM: knownH, knownUncertaintyC_m2s2: uC,
+      knownTideSystem: input.known?.tideSystem ?? null,
       fixed: input.fixed, monumentation: input.monumentation ?? null, state: input.state,
     };
   }

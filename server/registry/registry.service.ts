@@ -106,7 +106,8 @@ export function toSiteDto(s: SiteRow, gridName: string | null = null) {
       zM: s.zM,
     },
     assumptions: s.assumptions,
-    quasigeoid: { source: s.quasigeoidSource, gridId: s.quasigeoidGridId, gridName, heightM: s.quasigeoidHeightM, uncertaintyM: s.quasigeoidUncertaintyM },
+    quasigeoid: { source: s.quasigeoidSource, gridId: s.quasigeoidGridId, gridName, heightM: s.quasigeoidHeightM, uncertaintyM: s.quasigeoidUncertaintyM, tideSystem: s.quasigeoidTideSystem ?? null },
+    ellipsoidalCrustSystem: s.ellipsoidalCrustSystem ?? null,
     normalHeight: { ...normalHeightOf(s), k: 1 as const, formula: 'H = h − ζ; u(H) = √(u(h)² + u(ζ)²)' },
     benchmarkTie:
       s.benchmarkCode !== null ? { benchmarkCode: s.benchmarkCode, heightDifferenceM: s.tieHeightDifferenceM ?? 0, uncertaintyM: s.tieUncertaintyM ?? 0 } : null,
@@ -126,6 +127,8 @@ export function toGridDto(g: QuasigeoidGridRow) {
     longitudeMinDeg: g.longitudeMinDeg,
     longitudeMaxDeg: g.longitudeMinDeg + (g.longitudeCount - 1) * g.longitudeStepDeg,
     latitudeStepDeg: g.latitudeStepDeg,
+    tideSystem: g.tideSystem ?? null,
+    correlationLengthKm: g.correlationLengthKm ?? null,
     longitudeStepDeg: g.longitudeStepDeg,
     nodeCount: g.latitudeCount * g.longitudeCount,
     uncertaintyM: g.uncertaintyM,
@@ -222,11 +225,11 @@ function instituteFor(actor: Actor, requested: string | undefined): string {
 }
 
 async function quasigeoidFor(m: EntityManager, input: Body<typeof createSiteSchema>['quasigeoid'], latDeg: number, lonDeg: number) {
-  if (input.source === 'entered') return { quasigeoidSource: 'entered' as const, quasigeoidGridId: null, quasigeoidHeightM: input.heightM, quasigeoidUncertaintyM: input.uncertaintyM };
+  if (input.source === 'entered') return { quasigeoidSource: 'entered' as const, quasigeoidGridId: null, quasigeoidHeightM: input.heightM, quasigeoidUncertaintyM: input.uncertaintyM, quasigeoidTideSystem: input.tideSystem ?? null };
   const grid = await m.getRepository(QuasigeoidGridEntity).findOneBy({ id: input.gridId });
   if (!grid) throw new Invalid('Unknown quasigeoid grid.', [{ path: 'body.quasigeoid.gridId', message: 'no such grid' }]);
   const heightM = science(() => interpolateQuasigeoidHeight(grid, latDeg, lonDeg), { position: 'body.quasigeoid.gridId' }, 'body.quasigeoid.gridId');
-  return { quasigeoidSource: 'grid' as const, quasigeoidGridId: grid.id, quasigeoidHeightM: heightM, quasigeoidUncertaintyM: grid.uncertaintyM };
+  return { quasigeoidSource: 'grid' as const, quasigeoidGridId: grid.id, quasigeoidHeightM: heightM, quasigeoidUncertaintyM: grid.uncertaintyM, quasigeoidTideSystem: grid.tideSystem ?? null };
 }
 
 function converted(crs: string, coordinates: number[]) {
@@ -317,6 +320,7 @@ export function createRegistryService(dataSource: DataSource) {
             crs: resolveCrs(body.crs).code,
             coordinates: body.coordinates,
             ellipsoidalHeightUncertaintyM: body.ellipsoidalHeightUncertaintyM,
+            ellipsoidalCrustSystem: body.ellipsoidalCrustSystem ?? null,
             ...pos,
             ...zeta,
             benchmarkCode: body.benchmarkTie?.benchmarkCode ?? null,
@@ -338,6 +342,7 @@ export function createRegistryService(dataSource: DataSource) {
         if (body.name !== undefined) s.name = body.name;
         if (body.referencePoint !== undefined) s.referencePoint = body.referencePoint;
         if (body.ellipsoidalHeightUncertaintyM !== undefined) s.ellipsoidalHeightUncertaintyM = body.ellipsoidalHeightUncertaintyM;
+        if (body.ellipsoidalCrustSystem !== undefined) s.ellipsoidalCrustSystem = body.ellipsoidalCrustSystem;
         const moved = body.crs !== undefined || body.coordinates !== undefined;
         if (moved) {
           const crs = body.crs ?? s.crs;
@@ -373,7 +378,7 @@ export function createRegistryService(dataSource: DataSource) {
         const repo = m.getRepository(QuasigeoidGridEntity);
         const existing = await repo.findOneBy({ sha256 });
         if (existing) throw new Conflict('This grid file was uploaded before.', { existingId: existing.id });
-        const saved = await repo.save(repo.create({ name: body.name, fileName: body.fileName, sha256, uncertaintyM: body.uncertaintyM, uploadedBy: actor.displayName, ...grid, heightsM: Array.from(grid.heightsM) }));
+        const saved = await repo.save(repo.create({ name: body.name, fileName: body.fileName, sha256, uncertaintyM: body.uncertaintyM, tideSystem: body.tideSystem ?? null, correlationLengthKm: body.correlationLengthKm ?? null, uploadedBy: actor.displayName, ...grid, heightsM: Array.from(grid.heightsM) }));
         await recordAudit(m, actor, { action: 'quasigeoid-grid.uploaded', entityType: 'quasigeoid-grid', entityId: saved.id, details: { name: body.name, sha256, nodes: grid.latitudeCount * grid.longitudeCount } });
         return toGridDto(saved);
       });

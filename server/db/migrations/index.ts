@@ -10,6 +10,7 @@ import { SessionsAccounts1765100000000 } from './1765100000000-sessions-accounts
 import { RateLimit1765200000000 } from './1765200000000-rate-limit';
 import { AuditChainV21765300000000 } from './1765300000000-audit-chain-v2';
 import { MailOutboxRetry1765310000000 } from './1765310000000-mail-outbox-retry';
+import { TideSystems1765400000000 } from './1765400000000-tide-systems';
 import { MeasuredRatios1765500000000 } from './1765500000000-measured-ratios';
 import { SigningChain1765600000000 } from './1765600000000-signing-chain';
 import { ListIndexes1765800000000 } from './1765800000000-list-indexes';
@@ -30,6 +31,7 @@ export const migrations = [
   RateLimit1765200000000,
   AuditChainV21765300000000,
   MailOutboxRetry1765310000000,
+  TideSystems1765400000000,
   MeasuredRatios1765500000000,
   SigningChain1765600000000,
   ListIndexes1765800000000,

@@ -44,8 +44,18 @@ export function ReconciliationPage() {
                         {row.fromDatum && row.toDatum && <span className="block text-xs text-ink-500">{row.fromDatum === row.toDatum ? row.fromDatum : `${row.fromDatum} → ${row.toDatum}`}</span>}
                       </td>
                       <td className="whitespace-nowrap pr-4 text-right tabular-nums">{fmt(row.clockDeltaC_m2s2, 3)} ± {fmt(row.clockExpandedU_m2s2, 3)}</td>
-                      <td className="whitespace-nowrap pr-4 text-right tabular-nums">{row.levellingDeltaC_m2s2 === null ? '—' : `${fmt(row.levellingDeltaC_m2s2, 3)} ± ${fmt(row.levellingExpandedU_m2s2, 3)}`}</td>
-                      <td className="whitespace-nowrap pr-4 text-right tabular-nums">{fmt(row.difference_m2s2, 3)}{row.verdict === 'not-comparable' && <span className="block text-xs text-ink-500">includes the datum offset</span>}</td>
+                      <td className="whitespace-nowrap pr-4 text-right tabular-nums">{row.levellingDeltaC_m2s2 === null ? '—' : `${fmt(row.levellingDeltaC_m2s2, 3)} ± ${fmt(row.levellingExpandedU_m2s2, 3)}`}
+                        {row.levellingSigma_m2s2 != null && (
+                          <span className="block text-xs font-normal text-ink-500" data-testid="levelling-sigma">
+                            {row.levellingSigmaMethod === 'covariance' ? 'σ with covariance' : 'σ root-sum-square'} {fmt(row.levellingSigma_m2s2, 3)}
+                            {row.levellingSigmaMethod === 'covariance' && row.levellingSigmaIgnoringCovariance_m2s2 != null && <> (neglecting it: {fmt(row.levellingSigmaIgnoringCovariance_m2s2, 3)})</>}
+                            {row.levellingSigmaScaled ? ' · ×σ̂0' : ''}
+                          </span>
+                        )}
+                      </td>
+                      <td className="whitespace-nowrap pr-4 text-right tabular-nums">{fmt(row.difference_m2s2, 3)}{row.verdict === 'not-comparable' && row.tide && <span className="block text-xs text-ink-500">includes the datum offset</span>}
+                        <span className="block max-w-xs whitespace-normal text-left text-xs text-ink-500" data-testid="tide-conversion">{row.tide ? row.tide.statement : 'tide system not stated: not converted, not compared'}</span>
+                      </td>
                       <td className="whitespace-nowrap pr-4 text-right tabular-nums">{row.comparable ? fmt(row.en, 2) : <span className="text-ink-400" title="E_n is not meaningful here">n/a</span>}</td>
                       <td className="max-w-sm"><Verdict verdict={row.verdict} />
                         {row.note && <span className="mt-1 block text-xs text-ink-500">{row.note}</span>}
@@ -59,6 +69,16 @@ export function ReconciliationPage() {
               </table>
             </div>
           </Panel>
+          {r.sigmaPolicy && (
+            <Panel title="How the uncertainties are formed">
+              <ul className="list-disc pl-5 text-sm" data-testid="sigma-policy">
+                <li>{r.sigmaPolicy.covariance}</li>
+                <li>{r.sigmaPolicy.statement}</li>
+                <li>Tide systems: the clock results state theirs (mean-tide), each datum its own; the two ΔC are converted to one system before the difference and E_n (permanent tide after Ekman 1989, 1 + k − h = 0.68 after Mäkinen &amp; Ihde 2009). A row whose tide system is not stated is not compared.</li>
+                <li>Clock U (k = 2) is the campaign’s combined uncertainty as computed for its result. Verify against your national datum authority and your lab’s quality procedures before using a verdict.</li>
+              </ul>
+            </Panel>
+          )}
           <Panel title="E_n per campaign">
             {r.rows.some((row) => row.comparable)
               ? <ResidualPlot title="Normalised error E_n per clock campaign" axisLabel="E_n (dashed: ±1)" critical={1}
@@ -72,7 +92,7 @@ export function ReconciliationPage() {
             <Panel title="Datum offsets estimated from clocks">
               <span id="datum-offsets" />
               <p className="text-sm text-ink-600">
-                No finished adjustment run includes the clocks yet. A run with “include clocks” (it adds a datum-offset parameter for each pair of datums a clock link joins) estimates
+                No finished adjustment run includes the clocks yet. A run with “include clocks” (it adds one offset parameter per datum against a reference datum) estimates
                 the offset between datums that levelling does not connect: <Link to="/network/runs">start one on the adjustment runs page</Link>.
               </p>
             </Panel>
@@ -80,7 +100,7 @@ export function ReconciliationPage() {
           {r.datumOffsets.length > 0 && (
             <Panel title="Datum offsets estimated from clocks">
               <span id="datum-offsets" />
-              <p className="mb-1 text-xs text-ink-500">From the latest run with clock observations: offset = clock ΔC − levelled ΔC across the two datums (negative: the second datum's numbers are too large).</p>
+              <p className="mb-1 text-xs text-ink-500">From the latest run with clock observations: one offset per datum against the reference datum, offset = C in that datum − C in the reference (positive: that datum's numbers are too large). Offsets of three or more datums close by construction.</p>
               <ul className="text-sm">{r.datumOffsets.map((d) => <li key={d.name}>{d.name}: {fmt(d.value_m2s2, 3)} ± {fmt(2 * d.sigma_m2s2, 3)} m²/s² (k = 2), about {fmt(d.valueMm, 0)} ± {fmt(2 * d.sigmaMm, 0)} mm</li>)}</ul>
             </Panel>
           )}
@@ -93,7 +113,7 @@ export function ReconciliationPage() {
 const verdictText: Record<ReconciliationVerdict, string> = {
   'agreed': '✓ agreed',
   'not-agreed': '✕ not agreed',
-  'not-comparable': '○ not comparable — datums not connected by levelling',
+  'not-comparable': '○ not comparable',
   'no-levelling': '— no levelled ΔC',
 };
 

@@ -35,6 +35,7 @@ export function SitePage() {
             ['Latitude φ', <span key="la" data-testid="grs80-lat">{fixed(s.grs80.latitudeDeg, 9)}°</span>],
             ['Longitude λ', <span key="lo" data-testid="grs80-lon">{fixed(s.grs80.longitudeDeg, 9)}°</span>],
             ['Ellipsoidal height h', `${fixed(s.grs80.ellipsoidalHeightM, 4)} m ± ${fixed(s.grs80.ellipsoidalHeightUncertaintyM, 4)} m (k = 1)`],
+            ['Crust system of h', <span key="crust" data-testid="crust-system">{s.ellipsoidalCrustSystem ?? 'not stated — comparisons need it'}</span>],
             ['Geocentric X', `${fixed(s.grs80.xM, 4)} m`],
             ['Geocentric Y', `${fixed(s.grs80.yM, 4)} m`],
             ['Geocentric Z', `${fixed(s.grs80.zM, 4)} m`],
@@ -44,6 +45,7 @@ export function SitePage() {
         <Panel title="Heights">
           <Facts items={[
             ['Quasigeoid height ζ', `${fixed(s.quasigeoid.heightM, 4)} m ± ${fixed(s.quasigeoid.uncertaintyM, 4)} m (k = 1)`],
+            ['Tide system of ζ', <span key="zts" data-testid="zeta-tide-system">{s.quasigeoid.tideSystem ?? 'not stated — comparisons need it'}</span>],
             ['ζ from', s.quasigeoid.source === 'grid' ? `bilinear interpolation in “${s.quasigeoid.gridName ?? s.quasigeoid.gridId}”` : 'entered by the lab'],
             ['Normal height H = h − ζ', <span key="h" data-testid="normal-height">{fixed(s.normalHeight.valueM, 4)} m ± {fixed(s.normalHeight.uncertaintyM, 4)} m (k = 1)</span>],
             ['Uncertainty', s.normalHeight.formula],
