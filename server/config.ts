@@ -23,6 +23,10 @@ const envSchema = z.object({
   TRUST_PROXY: z.enum(['0', '1']).default('0'),
   SIGNING_P12_FILE: z.string().optional(),
   SIGNING_P12_PASSPHRASE: z.string().optional(),
+  /** Accepting or certifying a campaign whose uptime is below this fraction needs a written justification. */
+  REVIEW_MIN_UPTIME: z.coerce.number().min(0).max(1).default(0.5),
+  /** '1': the person who accepted a campaign may not also issue its certificate (four-eyes rule). */
+  REVIEW_FOUR_EYES: z.enum(['0', '1']).default('0'),
 });
 
 export type AppConfig = {
@@ -44,6 +48,8 @@ export type AppConfig = {
   trustProxy: boolean;
   signingP12File?: string;
   signingP12Passphrase?: string;
+  reviewMinUptimeFraction: number;
+  reviewFourEyes: boolean;
 };
 
 /** A secret kept in the git-ignored secrets folder, created on first use. */
@@ -76,5 +82,7 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): AppConfig {
     trustProxy: e.TRUST_PROXY === '1',
     signingP12File: e.SIGNING_P12_FILE,
     signingP12Passphrase: e.SIGNING_P12_PASSPHRASE,
+    reviewMinUptimeFraction: e.REVIEW_MIN_UPTIME,
+    reviewFourEyes: e.REVIEW_FOUR_EYES === '1',
   };
 }

@@ -73,6 +73,8 @@ export const campaignIdParamsSchema = z.object({ id: z.string().uuid() });
 
 export const reissueCertificateSchema = z.object({
   reason: z.string().trim().min(3, 'say what was corrected').max(2000),
+  /** Needed when the campaign has review exceptions and the previous revision carries no justification. */
+  justification: z.string().trim().min(10, 'explain in at least 10 characters why this is acceptable').max(4000).optional(),
 });
 export type ReissueCertificate = z.infer<typeof reissueCertificateSchema>;
 
