@@ -79,8 +79,8 @@ function useCertificateMutation<V, R>(fn: (v: V) => Promise<R>) {
 }
 
 export const useIssueCertificate = () =>
-  useCertificateMutation((campaignId: string) =>
-    api<{ created: boolean; certificate: CertificateSummary }>(`/api/v1/campaigns/${campaignId}/certificates`, { method: 'POST', body: {} }),
+  useCertificateMutation((v: { campaignId: string; comment: string; justification?: string }) =>
+    api<{ created: boolean; certificate: CertificateSummary }>(`/api/v1/campaigns/${v.campaignId}/certificates`, { method: 'POST', body: { comment: v.comment, justification: v.justification } }),
   );
 export const useReissueCertificate = () =>
   useCertificateMutation((v: { number: string; reason: string }) =>

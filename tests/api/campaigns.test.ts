@@ -193,7 +193,7 @@ describe('review state machine', () => {
 
   it('refuses illegal transitions with 409 and leaves the state alone', async () => {
     expect((await as('scl').post(`/api/v1/campaigns/${id}/submit`)).status).toBe(409);
-    expect((await as('coord').post(`/api/v1/campaigns/${id}/accept`)).status).toBe(409);
+    expect((await as('coord').post(`/api/v1/campaigns/${id}/accept`, { comment: 'not under review yet' })).status).toBe(409);
     expect((await as('scl').patch(`/api/v1/campaigns/${id}`, { name: 'late change' })).status).toBe(409);
     expect((await t.ds.query('SELECT state FROM campaign WHERE id = $1', [id]))[0].state).toBe('submitted');
   });
