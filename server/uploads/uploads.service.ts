@@ -136,11 +136,12 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
     const storedMapping = { ...mapping, delimiter: summary.delimiter, hasHeader: summary.hasHeader, header: summary.header };
     const { rows } = await client.query<SeriesDbRow>(
       `INSERT INTO ratio_series (id, campaign_id, file_name, sha256, byte_size, row_count, valid_count, first_mjd, last_mjd,
-         uptime_fraction, tau0_seconds, mapping, invented, created_by_user_id, created_by, overview)
-       VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12,$13,$14,$15,$16) RETURNING ${SERIES_COLUMNS}`,
+         uptime_fraction, tau0_seconds, mapping, invented, created_by_user_id, created_by, overview, overview_stats)
+       VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12,$13,$14,$15,$16,$17) RETURNING ${SERIES_COLUMNS}`,
       [seriesId, input.campaign.id, input.fileName.slice(0, 250), summary.sha256, summary.byteSize, summary.rowCount, summary.validCount,
         summary.firstMjd, summary.lastMjd, summary.uptimeFraction, summary.tau0Seconds, JSON.stringify(storedMapping),
-        input.invented ?? false, actor?.userId ?? null, actorLabel(actor), Buffer.from(summary.overview.buffer, summary.overview.byteOffset, summary.overview.byteLength)],
+        input.invented ?? false, actor?.userId ?? null, actorLabel(actor), Buffer.from(summary.overview.buffer, summary.overview.byteOffset, summary.overview.byteLength),
+        Buffer.from(summary.overviewStats.buffer, summary.overviewStats.byteOffset, summary.overviewStats.byteLength)],
     );
     await spool.copyInto(client, seriesId);
     return rows[0];

@@ -1,4 +1,4 @@
-import { useMutation, useQuery, useQueryClient, type QueryClient } from '@tanstack/react-query';
+import { keepPreviousData, useMutation, useQuery, useQueryClient, type QueryClient } from '@tanstack/react-query';
 import type { Problem } from '../../shared/http';
 import type { RatioSeries, SeriesPlot, UploadPreview, UploadProgress } from '../../shared/uploads';
 import { api, ApiError } from '../lib/api-client';
@@ -8,18 +8,20 @@ import type { Me } from '../../shared/auth';
 export const uploadKeys = {
   all: ['uploads'] as const,
   list: (campaignId: string) => [...uploadKeys.all, 'list', campaignId] as const,
-  plot: (seriesId: string, points: number) => [...uploadKeys.all, 'plot', seriesId, points] as const,
+  plot: (seriesId: string, points: number, range: { fromMjd: number; toMjd: number } | null) => [...uploadKeys.all, 'plot', seriesId, points, range] as const,
 };
 
 export const useCampaignUploads = (campaignId: string) =>
   useQuery({ queryKey: uploadKeys.list(campaignId), queryFn: () => api<RatioSeries[]>(`/api/v1/campaigns/${campaignId}/uploads`) });
 
-export const useSeriesPlot = (seriesId: string | null, points = 1500) =>
+/** The server's decimation of one series, for the whole span or for the range zoomed into (refetched per range). */
+export const useSeriesPlot = (seriesId: string | null, points = 1500, range: { fromMjd: number; toMjd: number } | null = null) =>
   useQuery({
-    queryKey: uploadKeys.plot(seriesId ?? '', points),
-    queryFn: () => api<SeriesPlot>(`/api/v1/uploads/${seriesId}/series?points=${points}`),
+    queryKey: uploadKeys.plot(seriesId ?? '', points, range),
+    queryFn: () => api<SeriesPlot>(`/api/v1/uploads/${seriesId}/series?points=${points}${range ? `&fromMjd=${range.fromMjd}&toMjd=${range.toMjd}` : ''}`),
     enabled: !!seriesId,
     staleTime: Infinity,
+    placeholderData: keepPreviousData,
   });
 
 /** The preview reads only the start of the file: the client sends just the first 64 KiB. */

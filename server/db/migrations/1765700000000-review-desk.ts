@@ -15,6 +15,9 @@ export class ReviewDesk1765700000000 implements MigrationInterface {
         ADD COLUMN acceptance_comment text,
         ADD COLUMN acceptance_justification text,
         ADD COLUMN acceptance_exceptions jsonb NOT NULL DEFAULT '[]'::jsonb;
+      -- Per plot block of a series: mean and sum of squared deviations of the valid y (float64 pairs), so a plot can
+      -- draw ±1σ per bucket without reading the samples. NULL for series stored before; those plots read the samples.
+      ALTER TABLE ratio_series ADD COLUMN overview_stats bytea;
     `);
   }
 
@@ -23,6 +26,7 @@ export class ReviewDesk1765700000000 implements MigrationInterface {
       ALTER TABLE campaign
         DROP COLUMN review_checklist, DROP COLUMN accepted_by_user_id, DROP COLUMN accepted_by, DROP COLUMN accepted_at,
         DROP COLUMN acceptance_comment, DROP COLUMN acceptance_justification, DROP COLUMN acceptance_exceptions;
+      ALTER TABLE ratio_series DROP COLUMN overview_stats;
     `);
   }
 }

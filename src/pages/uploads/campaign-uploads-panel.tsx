@@ -5,7 +5,7 @@ import { useForm } from 'react-hook-form';
 import { columnMappingSchema, type RatioSeries, type UploadPreview } from '../../../shared/uploads';
 import { useMe } from '../../api/account';
 import { useCampaignUploads, usePreviewUpload, useSendUpload, useSeriesPlot, type UploadStage } from '../../api/uploads';
-import { TimeSeriesPlot } from '../../components/plots/time-series-plot';
+import { TimeSeriesPlot, type MjdRange } from '../../components/plots/time-series-plot';
 import { Button, EmptyState, Field, inputClass, Panel } from '../../components/ui';
 import { ApiError, describeError } from '../../lib/api-client';
 
@@ -158,7 +158,9 @@ export function CampaignUploadsPanel({ campaignId, campaignState, canUpload }: {
   const mayUpload = (canUpload ?? me.data?.role === 'operator') && (campaignState === 'draft' || campaignState === 'returned');
   const rows = useMemo(() => uploads.data ?? [], [uploads.data]);
   const current = selected ?? rows[rows.length - 1]?.id ?? null;
-  const plot = useSeriesPlot(current);
+  const [zoom, setZoom] = useState<{ seriesId: string; range: MjdRange } | null>(null);
+  const range = zoom && zoom.seriesId === current ? zoom.range : null;
+  const plot = useSeriesPlot(current, 1200, range);
   const columns = useMemo(() => [
     col.accessor('fileName', { header: 'File', cell: (c) => <span className="font-medium">{c.getValue()}{c.row.original.invented ? ' (invented)' : ''}</span> }),
     col.accessor('sha256', { header: 'SHA-256', cell: (c) => <code title={c.getValue()}>{c.getValue().slice(0, 12)}…</code> }),
@@ -207,7 +209,10 @@ export function CampaignUploadsPanel({ campaignId, campaignState, canUpload }: {
               </label>
             </div>
             {plot.isPending && <p className="text-sm text-ink-500">Loading plot data…</p>}
-            {plot.data && <TimeSeriesPlot buckets={plot.data.buckets} timeAxis={timeAxis} title={`Fractional frequency offset of ${shown.fileName}`} />}
+            {plot.data && (
+              <TimeSeriesPlot buckets={plot.data.buckets} range={plot.data} full={{ fromMjd: plot.data.firstMjd, toMjd: plot.data.lastMjd }} loading={plot.isFetching}
+                onRangeChange={(r) => setZoom(r && current ? { seriesId: current, range: r } : null)} timeAxis={timeAxis} title={`Fractional frequency offset of ${shown.fileName}`} />
+            )}
           </div>
         )}
       </div>
