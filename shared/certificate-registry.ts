@@ -93,6 +93,8 @@ export const verificationResultSchema = z.object({
   headline: z.string(),
   /** Technical reason from the signature check or the registry, when not valid. */
   reason: z.string().nullable(),
+  /** For a broken signature: what the check found (changed or extended after signing, or another signer). */
+  tamper: z.enum(['changed-after-signing', 'foreign-signature', 'damaged-signature']).nullable().optional(),
   checkedBy: z.enum(['file', 'number-and-sha256']),
   file: z
     .object({ sha256: z.string(), bytes: z.number().int(), numberInFile: z.string().nullable(), signingTime: z.string().nullable() })

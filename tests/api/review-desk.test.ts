@@ -168,3 +168,15 @@ describe('the campaign audit trail', () => {
     expect((await get('op', `/api/v1/campaigns/${c.id}/audit-trail`)).status).toBe(403);
   });
 });
+
+describe('verification headline', () => {
+  it('says a file with bytes appended after signing was changed after signing, not that it carries a foreign signature', async () => {
+    const [{ number, pdf }] = await t.ds.query(`SELECT number, pdf FROM certificate WHERE state = 'valid' ORDER BY issued_at LIMIT 1`);
+    const altered = Buffer.concat([pdf, Buffer.from('\n% appended after signing\n', 'latin1')]);
+    const res = await request(t.app).post('/api/v1/certificates/verify').attach('file', altered, { filename: `${number}.pdf`, contentType: 'application/pdf' });
+    expect(res.body.verdict).toBe('tampered');
+    expect(res.body.tamper).toBe('changed-after-signing');
+    expect(res.body.headline).toMatch(/changed after signing/i);
+    expect(res.body.headline).not.toMatch(/not signed by|foreign/i);
+  });
+});
