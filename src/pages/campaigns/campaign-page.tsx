@@ -5,6 +5,7 @@ import { Link, useParams } from 'react-router';
 import { campaignStateLabels, referenceRatioOverride, updateCampaignSchema, type Campaign, type ReferenceRatioOverride, type UpdateCampaign } from '../../../shared/campaigns';
 import { useCampaign, useCampaignAction, useTickChecklist, useUpdateCampaign, type CampaignAction } from '../../api/campaigns';
 import { ConfirmDialog, type ConfirmField } from '../../components/confirm-dialog';
+import { typeset } from '../../components/typeset';
 import { Button, Caution, EmptyState, Field, inputClass, Panel } from '../../components/ui';
 import { isoMinute, plural } from '../../lib/format';
 import { describeError } from '../../lib/api-client';
@@ -273,7 +274,7 @@ function RatioOverrideForm({ campaign: c }: { campaign: Campaign }) {
         onError: (e) => setFormError(applyServerErrors(e, (path, opt) => setError(String(path).replace(/^referenceRatio\./, '') as keyof ReferenceRatioOverride, opt), ['referenceRatio'])),
       });
     })}>
-      <p className="text-sm font-semibold text-ink-700 md:col-span-3">Use a different reference ratio ν_B/ν_A</p>
+      <p className="text-sm font-semibold text-ink-700 md:col-span-3">Use a different reference ratio {typeset('ν_B/ν_A')}</p>
       <Field label="Ratio (decimal)" error={errors.value?.message}><input className={`${inputClass} font-mono`} {...register('value')} /></Field>
       <Field label="Relative uncertainty (k = 1)" error={errors.relativeUncertainty?.message}><input className={`${inputClass} font-mono`} {...register('relativeUncertainty', { setValueAs: (v: string) => (v === '' ? undefined : Number(v)) })} /></Field>
       <Field label="Justification (required)" error={errors.justification?.message}><input className={inputClass} {...register('justification')} /></Field>
