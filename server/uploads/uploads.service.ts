@@ -78,11 +78,14 @@ export function toSeriesDto(r: SeriesDbRow): RatioSeries {
 
 const SERIES_COLUMNS = 'id, campaign_id, file_name, sha256, byte_size, row_count, valid_count, first_mjd, last_mjd, uptime_fraction, tau0_seconds, mapping, invented, created_by, created_at';
 
+/** One story for the detail, the listed issues and furtherProblems: how many in all, how many listed, the first. */
 function problemMessage(s: IngestSummary): string {
   const first = s.issues[0];
-  const more = s.issues.length - 1 + s.furtherProblems;
+  const total = s.issues.length + s.furtherProblems;
   const where = `line ${first.line}${first.column ? `, column ${first.column}` : ''}`;
-  return `The file was not stored: ${where}: ${first.message}.${more > 0 ? ` ${more} further problem(s) found; the whole file was checked.` : ' No further problems found in the rest of the file.'}`;
+  if (total === 1) return `The file was not stored: ${where}: ${first.message}. The whole file was checked and this is its only problem.`;
+  const listed = s.furtherProblems > 0 ? `; the first ${s.issues.length} are listed, ${s.furtherProblems} more are not` : ', all listed';
+  return `The file was not stored: ${total} problems in the whole file${listed}. The first: ${where}: ${first.message}.`;
 }
 
 export type StoreSeriesInput = {

@@ -35,7 +35,8 @@ export function usePreviewUpload(campaignId: string) {
   });
 }
 
-export type UploadStage = { stage: 'sending' | 'processing' | 'storing' | 'done'; sentFraction: number; rowsProcessed: number; bytesRead: number; bytesTotal: number };
+/** `failed`: the server answered with a problem; `checkedWhole` says whether it had read the whole file by then (400, 409). */
+export type UploadStage = { stage: 'sending' | 'processing' | 'storing' | 'done' | 'failed'; sentFraction: number; rowsProcessed: number; bytesRead: number; bytesTotal: number; checkedWhole?: boolean };
 
 function csrfFrom(qc: QueryClient): string | null {
   return qc.getQueryData<Me | null>(accountKeys.me())?.csrfToken ?? null;
@@ -100,11 +101,18 @@ export function sendUpload(qc: QueryClient, campaignId: string, file: File, mapp
         resolve(body as RatioSeries);
       } else {
         const problem = (body as Problem | null) ?? { type: 'about:blank', title: xhr.statusText, status: xhr.status, detail: xhr.responseText.slice(0, 300), code: 'http' };
+        state.stage = 'failed';
+        // A refused file (bad content, or a repeat) was read to its end before the answer came.
+        state.checkedWhole = xhr.status === 400 || xhr.status === 409;
+        if (state.checkedWhole) state.bytesRead = file.size;
+        emit();
         reject(new ApiError(xhr.status, problem));
       }
     };
     xhr.onerror = () => {
       polling = false;
+      state.stage = 'failed';
+      emit();
       reject(new Error('The connection failed during the upload.'));
     };
     xhr.send(form);

@@ -131,8 +131,8 @@ export function TimeSeriesPlot({ buckets, range, full, onRangeChange, loading, t
   const rawLo = Math.min(...lows);
   const rawHi = Math.max(...highs);
   const maxAbs = Math.max(Math.abs(rawLo), Math.abs(rawHi));
-  // Labels in units of 10^e so the axis reads in plain numbers.
-  const exp = maxAbs > 0 ? Math.floor(Math.log10(maxAbs)) : 0;
+  // Labels in units of 10^e so the axis reads in plain numbers; 1e-16 is the usual scale of optical clock comparisons.
+  const exp = maxAbs > 0 ? Math.min(-16, Math.floor(Math.log10(maxAbs))) : -16;
   const unit = 10 ** exp;
   const pad = (rawHi - rawLo) * 0.06 || Math.abs(rawHi) * 1e-3 || unit;
   const y = scaleLinear().domain([(rawLo - pad) / unit, (rawHi + pad) / unit]).nice().range([height - MARGIN.bottom, MARGIN.top]);
@@ -174,7 +174,7 @@ export function TimeSeriesPlot({ buckets, range, full, onRangeChange, loading, t
         {yTicks.map((t) => (
           <g key={`y${t}`}>
             <line x1={MARGIN.left} x2={width - MARGIN.right} y1={y(t)} y2={y(t)} className="stroke-paper-200" />
-            <text x={MARGIN.left - 6} y={y(t) + 4} textAnchor="end" className="fill-ink-500 text-[11px]">{withMinus(yFormat(t))}</text>
+            <text x={MARGIN.left - 6} y={y(t) + 4} textAnchor="end" className="fill-ink-500 text-[11px]" data-axis="y">{withMinus(yFormat(t))}</text>
           </g>
         ))}
         {xTicks.map((t) => (
