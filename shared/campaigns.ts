@@ -137,8 +137,9 @@ export const campaignSchema = campaignSummarySchema.extend({
   timeline: z.array(campaignEventSchema),
   review: z.object({
     checklist: z.array(z.object({ item: z.enum(reviewChecklistItems), label: z.string(), checked: z.boolean(), by: z.string().nullable(), at: z.string().nullable() })),
-    /** From the newest stored result (none is computed by reading); accepting computes it afresh. */
+    /** From the newest stored result (none is computed by reading); accepting computes it afresh and checks again. */
     exceptions: z.array(reviewExceptionSchema),
+    resultComputed: z.boolean(),
     minUptimeFraction: z.number(),
     fourEyes: z.boolean(),
     acceptedBy: z.string().nullable(),

@@ -173,7 +173,8 @@ async function toDetail(m: EntityManager, actor: Actor, c: CampaignRow, policy: 
         const tick = Object.hasOwn(checklist, item) ? checklist[item] : null;
         return { item, label: reviewChecklistLabels[item], checked: !!tick, by: tick?.by ?? null, at: tick?.at ?? null };
       }),
-      exceptions: reviewExceptions(latest?.result ?? null, policy.reviewMinUptimeFraction, latest ? undefined : 'nothing has been computed yet'),
+      exceptions: latest ? reviewExceptions(latest.result, policy.reviewMinUptimeFraction) : [],
+      resultComputed: latest !== null,
       minUptimeFraction: policy.reviewMinUptimeFraction,
       fourEyes: policy.reviewFourEyes,
       acceptedBy: c.acceptedBy,

@@ -21,7 +21,7 @@ export function Layout({ children, publicContent }: { children?: ReactNode; publ
   const user = me.data;
   const items = navItems.filter((n) => n.roles.includes(user.role));
   // An entry whose path prefixes another entry's path (/, /admin) highlights only on its own page, so that
-  // /admin/mailbox lights up "Mail catcher" alone; detail pages (/campaigns/<id>) still light up their list entry.
+  // /admin/mailbox lights up "Test mailbox" alone; detail pages (/campaigns/<id>) still light up their list entry.
   const exact = (to: string) => to === '/' || navItems.some((o) => o.to !== to && o.to.startsWith(`${to}/`));
   return (
     <div className="flex min-h-screen">

@@ -42,7 +42,7 @@ export function ConfirmDialog({
   const missing = fields.filter((f) => f.required && (values[f.name] ?? '').trim().length < (f.minLength ?? 1));
   return (
     <dialog ref={ref} aria-labelledby={titleId} data-testid="confirm-dialog" onCancel={(e) => { e.preventDefault(); onCancel(); }}
-      className="w-[min(36rem,calc(100vw-2rem))] rounded-lg border border-ink-200 bg-white p-0 text-ink-800 shadow-xl backdrop:bg-ink-900/40">
+      className="m-auto max-h-[calc(100vh-2rem)] w-[min(36rem,calc(100vw-2rem))] overflow-y-auto rounded-lg border border-ink-200 bg-white p-0 text-ink-800 shadow-xl backdrop:bg-ink-900/40">
       {open && (
         <form method="dialog" className="space-y-4 p-5" onSubmit={(e) => {
           e.preventDefault();

@@ -1,4 +1,5 @@
 import { execFileSync, spawnSync } from 'node:child_process';
+import { createHash } from 'node:crypto';
 import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
@@ -6,11 +7,13 @@ import request from 'supertest';
 import { afterAll, beforeAll, describe, expect, inject, it } from 'vitest';
 import { reviewChecklistItems } from '../../shared/campaigns';
 import { certificateSnapshotSchema } from '../../shared/certificates';
+import { adjustmentOptionsSchema } from '../../shared/network';
+import { gatherInputs } from '../../server/network/adjustment.service';
 import { acceptAsReviewer, campaignInReview } from '../helpers/accepted-campaign';
 import { caughtMail, createTestApp, tokenFor, type TestApp } from '../helpers/test-app';
 
 // The review desk: the reviewer's checklist, comments and justifications before accept and issue, the four-eyes
-// rule (enabled for this installation), the lab's e-mails through the real mail catcher, and the campaign audit trail.
+// rule (enabled for this installation), the lab's e-mails through the real test mailbox, and the campaign audit trail.
 
 const COORD = 'ansel.brandt@geopotential-office.invalid';
 const SECOND_COORD = 'lea.moreau@geopotential-office.invalid';
@@ -126,7 +129,8 @@ describe('exceptions need a justification', () => {
     await post('coord', `/api/v1/campaigns/${id}/start-review`);
     for (const item of reviewChecklistItems) await post('coord', `/api/v1/campaigns/${id}/checklist`, { item, checked: true });
     const detail = await get('coord', `/api/v1/campaigns/${id}`);
-    expect(detail.body.review.exceptions.map((e: { code: string }) => e.code)).toEqual(['no-result']);
+    // Reading computes nothing: the page says no result exists yet; accepting finds that none can be formed.
+    expect(detail.body.review).toMatchObject({ exceptions: [], resultComputed: false });
     const refused = await post('coord', `/api/v1/campaigns/${id}/accept`, { comment: 'Accepting.' });
     expect(refused.status).toBe(400);
     expect(refused.body.issues).toEqual([expect.objectContaining({ path: 'body.justification', message: expect.stringContaining('no-result') })]);
@@ -178,5 +182,13 @@ describe('verification headline', () => {
     expect(res.body.tamper).toBe('changed-after-signing');
     expect(res.body.headline).toMatch(/changed after signing/i);
     expect(res.body.headline).not.toMatch(/not signed by|foreign/i);
+  });
+});
+
+describe('the seeded adjustment run', () => {
+  it('stores the SHA-256 of its real inputs, as a run queued through the API does', async () => {
+    const [run] = await t.ds.query(`SELECT options, input_summary FROM adjustment_run WHERE state = 'done' ORDER BY created_at LIMIT 1`);
+    const inputs = await gatherInputs(t.ds.manager, adjustmentOptionsSchema.parse(run.options));
+    expect(run.input_summary.inputSha256).toBe(createHash('sha256').update(JSON.stringify(inputs)).digest('hex'));
   });
 });

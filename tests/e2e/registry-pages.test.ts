@@ -6,7 +6,7 @@ import { launchBrowser, screenshot, signInWithBrowser, startE2eServer, type E2eS
 import { tokenFor } from '../helpers/test-app';
 
 // Registry, campaign, audit-trail and admin pages as a reviewer sees them: the seeded campaign's full audit trail
-// under its name, one highlighted nav entry per page, UTC minutes in the mail catcher, stated coverage factors.
+// under its name, one highlighted nav entry per page, UTC minutes in the test mailbox, stated coverage factors.
 
 const INES = 'ines.varga@saltmarsh-lab.invalid';
 const ANSEL = 'ansel.brandt@geopotential-office.invalid';
@@ -133,7 +133,7 @@ describe('registry and campaign pages', () => {
     await screenshot(page, 'reference-data-fixes');
   });
 
-  it('the mail catcher highlights only its own nav entry and shows UTC minutes', async () => {
+  it('the test mailbox highlights only its own nav entry and shows UTC minutes', async () => {
     const token = await tokenFor(srv, INES);
     const res = await request(srv.app).post(`/api/v1/campaigns/${ids['SCL–HMO Sr run January 2027']}/submit`).set('authorization', `Bearer ${token}`).send({});
     expect(res.status).toBe(200);
@@ -141,7 +141,7 @@ describe('registry and campaign pages', () => {
     const { page } = await as(YUSRA, '/admin/mailbox');
     const line = page.getByText(/^to .* · \d{4}-\d\d-\d\d \d\d:\d\d UTC$/).first();
     await line.waitFor();
-    expect(await activeNav(page)).toEqual(['Mail catcher']);
+    expect(await activeNav(page)).toEqual(['Test mailbox']);
     await screenshot(page, 'mailbox-fixes');
     await page.goto(`${srv.baseUrl}/admin`);
     await page.getByRole('cell', { name: PETRA }).waitFor();

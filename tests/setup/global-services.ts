@@ -10,7 +10,7 @@ import { startFakeIdp } from '../../server/dev/fake-idp';
 import { startFakeSmtp } from '../../server/dev/fake-smtp';
 
 // Once per test run: a private PostgreSQL in a temporary folder with a migrated template database,
-// the local identity provider and the mail catcher, all on free loopback ports.
+// the local identity provider and the test mailbox, all on free loopback ports.
 declare module 'vitest' {
   export interface ProvidedContext {
     pgAdminUrl: string;

@@ -37,7 +37,7 @@ type Box = { x: number; y: number; w: number; h: number };
 type Placed = { x: number; y: number; anchor: 'start' | 'middle' | 'end' };
 /** About 6.4 px per character at the map's 10 px Noto Sans, digits and capitals included (an estimate instead of measuring text). */
 const CHAR_PX = 6.4;
-const LINE_PX = 11;
+const LINE_PX = 14;
 const overlaps = (a: Box, b: Box) => a.x < b.x + b.w && b.x < a.x + a.w && a.y < b.y + b.h && b.y < a.y + a.h;
 
 /**
@@ -56,16 +56,16 @@ export function placeLabels(
     const w = l.text.length * CHAR_PX * (l.bold ? 1.12 : 1);
     const h = (l.lines ?? 1) * LINE_PX;
     const d = l.offset ?? 7;
-    // Candidates: right, left, above, below, then the four diagonals (text baseline = top + 9 px).
-    const candidates: (Placed & { box: Box })[] = [
-      { x: l.x + d, y: l.y + 3, anchor: 'start', box: { x: l.x + d, y: l.y - 6, w, h } },
-      { x: l.x - d, y: l.y + 3, anchor: 'end', box: { x: l.x - d - w, y: l.y - 6, w, h } },
-      { x: l.x, y: l.y - d - 2 - (h - LINE_PX), anchor: 'middle', box: { x: l.x - w / 2, y: l.y - d - h - 1, w, h } },
-      { x: l.x, y: l.y + d + 9, anchor: 'middle', box: { x: l.x - w / 2, y: l.y + d, w, h } },
-      { x: l.x + d, y: l.y - d - (h - LINE_PX), anchor: 'start', box: { x: l.x + d, y: l.y - d - h + 2, w, h } },
-      { x: l.x - d, y: l.y - d - (h - LINE_PX), anchor: 'end', box: { x: l.x - d - w, y: l.y - d - h + 2, w, h } },
-      { x: l.x + d, y: l.y + d + 9, anchor: 'start', box: { x: l.x + d, y: l.y + d, w, h } },
-      { x: l.x - d, y: l.y + d + 9, anchor: 'end', box: { x: l.x - d - w, y: l.y + d, w, h } },
+    // Boxes from the baseline of the first line: glyphs reach about 11 px above it and 3 px below the last line.
+    const boxAt = (x: number, baseline: number, anchor: Placed['anchor']): Placed & { box: Box } => ({
+      x, y: baseline, anchor, box: { x: anchor === 'start' ? x : anchor === 'end' ? x - w : x - w / 2, y: baseline - 11, w, h },
+    });
+    const above = l.y - d - 3 - (h - LINE_PX);
+    const below = l.y + d + 11;
+    // Candidates: right, left, above, below, then the four diagonals.
+    const candidates = [
+      boxAt(l.x + d, l.y + 3, 'start'), boxAt(l.x - d, l.y + 3, 'end'), boxAt(l.x, above, 'middle'), boxAt(l.x, below, 'middle'),
+      boxAt(l.x + d, above, 'start'), boxAt(l.x - d, above, 'end'), boxAt(l.x + d, below, 'start'), boxAt(l.x - d, below, 'end'),
     ];
     const free = candidates.find((c) =>
       c.box.x >= 0 && c.box.y >= 0 && c.box.x + c.box.w <= bounds.width && c.box.y + c.box.h <= bounds.height

@@ -7,6 +7,7 @@ import { EmptyState, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { CampaignCertificatesPanel } from '../certificates/campaign-certificates-panel';
 import { sci } from '../registry/registry-ui';
+import { typeset } from '../../components/typeset';
 
 // The campaign's audit trail as a timeline: its own events and those of its certificates, oldest first.
 
@@ -86,6 +87,7 @@ const isState = (v: unknown): v is CampaignState => typeof v === 'string' && v i
 function valueOf(key: string, v: unknown): ReactNode {
   if (v === null || v === undefined || v === '') return '—';
   if (typeof v === 'boolean') return v ? 'yes' : 'no';
+  if (typeof v === 'string' && (k === 'check' || k === 'justification' || k === 'comment')) return typeset(v);
   if (typeof v === 'number') return key === 'y' || key === 'uY' ? sci(v, 3) : String(v);
   if (Array.isArray(v)) return v.map((x) => (typeof x === 'string' ? labelOf(x) : JSON.stringify(x))).join(', ');
   if (typeof v === 'object') {
@@ -101,14 +103,14 @@ function Details({ details }: { details: Record<string, unknown> }) {
   // jsonb hands keys back in its own order (shortest first): put them in the reading order of detailLabels.
   const rank = (k: string) => (k in detailLabels ? labelOrder.indexOf(k) : labelOrder.length);
   const entries = Object.entries(details ?? {})
-    .filter(([k, v]) => !hiddenKeys.has(k) && v !== undefined && !(k === 'note' && v === null))
+    .filter(([k, v]) => !hiddenKeys.has(k) && v !== undefined && !(k === 'note' && (v === null || v === details.comment)))
     .sort(([x], [y]) => rank(x) - rank(y));
   if (!entries.length) return null;
   return (
     <dl className="mt-1 grid grid-cols-[max-content_1fr] gap-x-4 gap-y-0.5 text-xs" data-testid="audit-details">
       {entries.map(([k, v]) => (
         <div key={k} className="contents">
-          <dt className="text-ink-500">{labelOf(k)}</dt>
+          <dt className="text-ink-500">{typeset(labelOf(k))}</dt>
           <dd className="min-w-0 text-ink-700">{valueOf(k, v)}</dd>
         </div>
       ))}

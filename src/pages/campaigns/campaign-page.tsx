@@ -32,7 +32,7 @@ export function CampaignPage() {
       {c.allowed.edit && <CampaignEditor campaign={c} />}
       <CampaignBudgets campaign={c} />
       <CampaignUploadsPanel campaignId={c.id} campaignState={c.state} canUpload={c.allowed.edit} />
-      <CampaignCertificatesPanel campaignId={c.id} campaignState={c.state} exceptions={c.review.exceptions} fourEyes={c.review.fourEyes} />
+      <CampaignCertificatesPanel campaignId={c.id} campaignState={c.state} exceptions={c.review.exceptions} fourEyes={c.review.fourEyes} resultComputed={c.review.resultComputed} />
       <CampaignTimeline campaign={c} />
       <Caution />
     </>
@@ -67,6 +67,7 @@ type DialogSpec = {
 function dialogFor(action: CampaignAction, c: Campaign): DialogSpec {
   const period = `${isoMinute(c.periodStart)} – ${isoMinute(c.periodEnd)} UTC`;
   const justify = c.review.exceptions.length > 0;
+  const unknown = !c.review.resultComputed;
   switch (action) {
     case 'submit':
       return {
@@ -95,6 +96,8 @@ function dialogFor(action: CampaignAction, c: Campaign): DialogSpec {
         fields: [
           { name: 'comment', label: 'Reviewer’s comment', required: true, minLength: 5, rows: 3 },
           ...(justify ? [{ name: 'justification', label: 'Why is it acceptable despite the exceptions above?', required: true, minLength: 10, rows: 3 }] : []),
+          ...(unknown ? [{ name: 'justification', label: 'Justification, in case the result calls for one', rows: 3,
+            hint: 'No result has been computed yet. Accepting computes it; if Eₙ does not agree, the uptime is low or no result can be formed, a justification of at least 10 characters is required.' }] : []),
         ],
       };
     case 'return':
@@ -144,8 +147,8 @@ function CampaignActions({ campaign: c }: { campaign: Campaign }) {
 function CampaignReview({ campaign: c }: { campaign: Campaign }) {
   const tick = useTickChecklist();
   const r = c.review;
-  const reviewing = ['in_review', 'accepted', 'certified'].includes(c.state);
-  if (!reviewing && !r.acceptedBy) return null;
+  // Campaigns accepted before the review desk kept its record have no checklist to show.
+  if (c.state !== 'in_review' && !r.acceptedBy) return null;
   return (
     <Panel title="Review">
       <div className="grid gap-5 md:grid-cols-2">
@@ -158,7 +161,7 @@ function CampaignReview({ campaign: c }: { campaign: Campaign }) {
                   <input type="checkbox" className="mt-0.5 h-4 w-4 accent-ink-600" checked={i.checked} disabled={!c.allowed.tick || tick.isPending}
                     onChange={(e) => tick.mutate({ id: c.id, item: i.item, checked: e.target.checked })} />
                   <span>
-                    {i.label}
+                    {typeset(i.label)}
                     {i.checked && i.by && <span className="block text-xs text-ink-500">ticked by {i.by}, {isoMinute(i.at ?? '')} UTC</span>}
                   </span>
                 </label>
@@ -169,7 +172,9 @@ function CampaignReview({ campaign: c }: { campaign: Campaign }) {
         </fieldset>
         <div className="text-sm">
           <p className="mb-2 font-semibold text-ink-700">Exceptions</p>
-          {r.exceptions.length === 0 ? (
+          {!r.resultComputed ? (
+            <p className="text-ink-600">No result has been computed yet; accepting computes it and asks for a justification if Eₙ does not agree or the uptime is below {Math.round(r.minUptimeFraction * 100)} %.</p>
+          ) : r.exceptions.length === 0 ? (
             <p className="text-ink-600">None from the newest result: Eₙ agrees and the uptime is at least {Math.round(r.minUptimeFraction * 100)} %.</p>
           ) : (
             <ul className="space-y-1" data-testid="review-exceptions">

@@ -10,7 +10,7 @@ import { notify } from '../../lib/notices';
 // Coordinator actions on certificates, each behind a confirmation that says what will happen. The server checks
 // the role, the states, the four-eyes rule and the justification again.
 
-export function IssueCertificateButton({ campaignId, exceptions = [], fourEyes = false }: { campaignId: string; exceptions?: ReviewException[]; fourEyes?: boolean }) {
+export function IssueCertificateButton({ campaignId, exceptions = [], fourEyes = false, resultComputed = true }: { campaignId: string; exceptions?: ReviewException[]; fourEyes?: boolean; resultComputed?: boolean }) {
   const issue = useIssueCertificate();
   const navigate = useNavigate();
   const [open, setOpen] = useState(false);
@@ -30,6 +30,8 @@ export function IssueCertificateButton({ campaignId, exceptions = [], fourEyes =
           fields={[
             { name: 'comment', label: 'Comment for the certificate', required: true, minLength: 5, rows: 3 },
             ...(justify ? [{ name: 'justification', label: 'Why certify despite the exceptions above?', required: true, minLength: 10, rows: 3 }] : []),
+            ...(!justify && !resultComputed ? [{ name: 'justification', label: 'Justification, in case the result calls for one', rows: 3,
+              hint: 'No result is stored yet; issuing computes it. If Eₙ does not agree or the uptime is low, a justification of at least 10 characters is required.' }] : []),
           ]}
           pending={issue.isPending} error={issue.isError ? describeError(issue.error) : null} onCancel={() => setOpen(false)}
           onConfirm={(v) => {

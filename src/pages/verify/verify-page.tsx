@@ -40,6 +40,8 @@ function explanation(r: VerificationResult): string {
     case 'not-issued-here':
       return 'Either this number is unknown here, or the file differs from the one registered under it. The document may come from another issuer, or it may be a different file that carries a known number. Ask the sender where it came from.';
     case 'tampered':
+      if (r.tamper === 'changed-after-signing') return 'The institute’s signature covers the file as it was issued; bytes were changed or added to it afterwards. Whatever the added part says, it was not signed. Do not use this copy; ask the issuer for the original file.';
+      if (r.tamper === 'foreign-signature') return 'The file carries a signature, but not one made with the issuing institute’s key. Do not use it; ask the issuer for the original file.';
       return 'The signature does not hold for this file: its content was changed after signing, something was appended to it, or it was signed with a key other than the issuing institute’s. Do not use it; ask the issuer for the original file.';
     case 'unsigned':
       return 'Certificates issued here always carry the issuing institute’s digital signature. This file has none, so it is at most a copy or a draft.';
