@@ -87,7 +87,7 @@ const isState = (v: unknown): v is CampaignState => typeof v === 'string' && v i
 function valueOf(key: string, v: unknown): ReactNode {
   if (v === null || v === undefined || v === '') return '—';
   if (typeof v === 'boolean') return v ? 'yes' : 'no';
-  if (typeof v === 'string' && (k === 'check' || k === 'justification' || k === 'comment')) return typeset(v);
+  if (typeof v === 'string' && (key === 'check' || key === 'justification' || key === 'comment')) return typeset(v);
   if (typeof v === 'number') return key === 'y' || key === 'uY' ? sci(v, 3) : String(v);
   if (Array.isArray(v)) return v.map((x) => (typeof x === 'string' ? labelOf(x) : JSON.stringify(x))).join(', ');
   if (typeof v === 'object') {
