@@ -110,9 +110,13 @@ describe('lab staff registry journey', () => {
     await signInWithBrowser(page, srv.baseUrl, 'ansel.brandt@geopotential-office.invalid', '/campaigns');
     await page.getByRole('link', { name: 'Annex–HMO first run' }).click();
     await page.getByRole('button', { name: 'Start review' }).waitFor();
+    expect(await page.getByRole('button', { name: 'Start review' }).isEnabled()).toBe(true);
+    await expect(page.getByTestId('campaign-title').textContent()).resolves.toBe('Annex–HMO first run');
+    expect(await page.getByRole('button', { name: 'Accept…' }).count()).toBe(0); // accepting comes after the review starts
     await screenshot(page, 'coordinator-campaign');
     await page.goto(`${srv.baseUrl}/reference-data`);
     await page.getByTestId('reference-frequencies').getByText('from memory').first().waitFor();
+    expect(await page.getByTestId('reference-frequencies').getByText('from memory').count()).toBeGreaterThan(0);
     await screenshot(page, 'coordinator-reference-data');
     await context.close();
   });

@@ -129,7 +129,10 @@ describe('registry and campaign pages', () => {
 
   it('the reference-data page groups the digits of the frequencies', async () => {
     const { page } = await as(ANSEL, '/reference-data');
-    await page.getByTestId('reference-frequencies').getByText('429\u202f228\u202f004\u202f229\u202f873.7', { exact: true }).waitFor();
+    const grouped = page.getByTestId('reference-frequencies').getByText('429\u202f228\u202f004\u202f229\u202f873.7', { exact: true });
+    await grouped.waitFor();
+    // Digits in groups of three with narrow no-break spaces before the decimal marker (SI Brochure, 9th ed., ch. 5, from memory).
+    await expect(grouped.first().textContent()).resolves.toMatch(/^\d{3}(\u202f\d{3})+\.\d$/);
     await screenshot(page, 'reference-data-fixes');
   });
 
