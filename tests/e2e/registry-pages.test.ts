@@ -98,7 +98,10 @@ describe('registry and campaign pages', () => {
     await form.getByLabel('Northing N (m)').fill('5931000');
     await form.getByRole('button', { name: 'Save changes' }).click();
     await page.getByTestId('site-title').getByText('SCL roof pillar north').waitFor();
-    await page.getByTestId('entered-coordinates').getByText('501000, 5931000, 45').waitFor();
+    // The entered values are named by axis, with units.
+    await page.getByTestId('entered-coordinates').getByText('501000 m').waitFor();
+    await page.getByText('Northing N').waitFor();
+    await page.getByText('5931000 m').waitFor();
     const after = Number((await page.getByTestId('grs80-lat').textContent())!.replace('°', ''));
     // Expected values from proj4 (npm reference library) with the EPSG:25832 definition, ETRS89 / UTM zone 32N
     // (GRS80 ellipsoid, central meridian 9° E, k0 = 0.9996, false easting 500 km; EPSG Geodetic Parameter Dataset).
