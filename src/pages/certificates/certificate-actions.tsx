@@ -10,11 +10,13 @@ import { notify } from '../../lib/notices';
 // Coordinator actions on certificates, each behind a confirmation that says what will happen. The server checks
 // the role, the states, the four-eyes rule and the justification again.
 
-export function IssueCertificateButton({ campaignId, exceptions = [], fourEyes = false, resultComputed = true }: { campaignId: string; exceptions?: ReviewException[]; fourEyes?: boolean; resultComputed?: boolean }) {
+/** `exceptions` undefined: not known here (a list page), so the justification is offered in case the result needs one. */
+export function IssueCertificateButton({ campaignId, exceptions, fourEyes = false, resultComputed = true }: { campaignId: string; exceptions?: ReviewException[]; fourEyes?: boolean; resultComputed?: boolean }) {
   const issue = useIssueCertificate();
   const navigate = useNavigate();
   const [open, setOpen] = useState(false);
-  const justify = exceptions.length > 0;
+  const justify = (exceptions?.length ?? 0) > 0;
+  const unknown = exceptions === undefined || !resultComputed;
   return (
     <>
       <Button onClick={() => { issue.reset(); setOpen(true); }}>Issue certificate…</Button>
@@ -25,13 +27,13 @@ export function IssueCertificateButton({ campaignId, exceptions = [], fourEyes =
             'The campaign becomes “certified”; both labs and the coordinating institute are mailed.',
             'Your comment (and justification) is printed on the certificate and kept in the audit trail.',
             ...(fourEyes ? ['Four-eyes rule: this is refused if you accepted the campaign yourself.'] : []),
-            ...exceptions.map((x) => <span key={x.code} className="font-medium text-disagree-800">Exception: {x.text}</span>),
+            ...(exceptions ?? []).map((x) => <span key={x.code} className="font-medium text-disagree-800">Exception: {x.text}</span>),
           ]}
           fields={[
             { name: 'comment', label: 'Comment for the certificate', required: true, minLength: 5, rows: 3 },
             ...(justify ? [{ name: 'justification', label: 'Why certify despite the exceptions above?', required: true, minLength: 10, rows: 3 }] : []),
-            ...(!justify && !resultComputed ? [{ name: 'justification', label: 'Justification, in case the result calls for one', rows: 3,
-              hint: 'No result is stored yet; issuing computes it. If Eₙ does not agree or the uptime is low, a justification of at least 10 characters is required.' }] : []),
+            ...(!justify && unknown ? [{ name: 'justification', label: 'Justification, in case the result calls for one', rows: 3,
+              hint: 'Issuing checks the current result. If Eₙ does not agree or the uptime is low, a justification of at least 10 characters is required.' }] : []),
           ]}
           pending={issue.isPending} error={issue.isError ? describeError(issue.error) : null} onCancel={() => setOpen(false)}
           onConfirm={(v) => {
