@@ -192,3 +192,16 @@ describe('the seeded adjustment run', () => {
     expect(run.input_summary.inputSha256).toBe(createHash('sha256').update(JSON.stringify(inputs)).digest('hex'));
   });
 });
+
+describe('OpenAPI', () => {
+  it('documents every form field of the upload, that they come before the file, and the 409 and 413 answers', async () => {
+    const doc = (await request(t.app).get('/api/v1/openapi.json')).body;
+    const op = doc.paths['/api/v1/campaigns/{id}/uploads'].post;
+    const body = op.requestBody;
+    const props = Object.keys(body.content['multipart/form-data'].schema.properties);
+    // Every field columnMappingSchema reads (shared/uploads.ts), and the file part last.
+    expect(props).toEqual(['epochColumn', 'epochKind', 'valueColumn', 'valueKind', 'flagColumn', 'hasHeader', 'delimiter', 'file']);
+    expect(body.description).toMatch(/first, then the part `file` last/);
+    expect(Object.keys(op.responses)).toEqual(expect.arrayContaining(['201', '400', '409', '413']));
+  });
+});
