@@ -6,6 +6,7 @@ import type { Topology, GeometryObject } from 'topojson-specification';
 import landUrl from 'world-atlas/land-50m.json?url';
 import land10mUrl from 'world-atlas/land-10m.json?url';
 import type { NetworkMap } from '../../../shared/network';
+import { plural } from '../../lib/format';
 
 // The network drawn offline: Natural Earth land (world-atlas, served from our own origin; 1:50m, 1:10m once zoomed
 // in), a Mercator projection fitted to the network's extent, and our own symbols: shape and line style carry the
@@ -94,9 +95,9 @@ function graticuleStepDeg(spanDeg: number) {
 function linkNote(l: NetworkMap['links'][number]) {
   const cs = l.comparisons;
   if (cs.length === 0) return '';
-  if (cs.every((c) => c.verdict === 'not-comparable')) return cs.length > 1 ? `${cs.length} campaigns · not comparable` : 'not comparable';
+  if (cs.every((c) => c.verdict === 'not-comparable')) return cs.length > 1 ? `${plural(cs.length, 'campaign')} · not comparable` : 'not comparable';
   const ens = cs.map((c) => (c.en === null ? '—' : c.en.toFixed(2)));
-  return cs.length > 1 ? `${cs.length} campaigns · Eₙ ${ens.join(' / ')}` : `Eₙ ${ens[0]}`;
+  return cs.length > 1 ? `${plural(cs.length, 'campaign')} · Eₙ ${ens.join(' / ')}` : `Eₙ ${ens[0]}`;
 }
 
 export function linkClass(l: NetworkMap['links'][number]) {

@@ -6,7 +6,7 @@ import { campaignStateLabels, referenceRatioOverride, updateCampaignSchema, type
 import { useCampaign, useCampaignAction, useTickChecklist, useUpdateCampaign, type CampaignAction } from '../../api/campaigns';
 import { ConfirmDialog, type ConfirmField } from '../../components/confirm-dialog';
 import { typeset } from '../../components/typeset';
-import { Button, Caution, EmptyState, Field, inputClass, Panel } from '../../components/ui';
+import { Button, EmptyState, Field, inputClass, Panel } from '../../components/ui';
 import { isoMinute, plural } from '../../lib/format';
 import { describeError } from '../../lib/api-client';
 import { CampaignCertificatesPanel } from '../certificates/campaign-certificates-panel';
@@ -14,6 +14,7 @@ import { CampaignUploadsPanel } from '../uploads/campaign-uploads-panel';
 import { BudgetTable } from '../registry/budget-editor';
 import { applyServerErrors, Facts, FormError, groupDigits, sci } from '../registry/registry-ui';
 import { CampaignStateBadge } from './campaign-state';
+import { StandardUncertaintyCaution } from '../../components/cautions';
 
 // The campaign page is a stack of sections; other features insert theirs as one line each (uploads, results).
 
@@ -34,7 +35,7 @@ export function CampaignPage() {
       <CampaignUploadsPanel campaignId={c.id} campaignState={c.state} canUpload={c.allowed.edit} />
       <CampaignCertificatesPanel campaignId={c.id} campaignState={c.state} exceptions={c.review.exceptions} fourEyes={c.review.fourEyes} resultComputed={c.review.resultComputed} />
       <CampaignTimeline campaign={c} />
-      <Caution />
+      <StandardUncertaintyCaution />
     </>
   );
 }

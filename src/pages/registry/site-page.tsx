@@ -2,11 +2,12 @@ import { Link, useParams } from 'react-router';
 import type { Site } from '../../../shared/registry';
 import { useMe } from '../../api/account';
 import { useClocks, useLinks, useSite } from '../../api/registry';
-import { Caution, EmptyState, Panel } from '../../components/ui';
+import { EmptyState, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { canChangeInstituteRecord, EditSitePanel } from './registry-forms';
 import { Facts, fixed } from './registry-ui';
 import { SiteTiePanel } from './site-tie-panel';
+import { StandardUncertaintyCaution } from '../../components/cautions';
 
 export function SitePage() {
   const { id = '' } = useParams();
@@ -62,7 +63,7 @@ export function SitePage() {
         <ul className="text-sm">{links.data?.items.map((l) => <li key={l.id}><Link to={`/links/${l.id}`}>{l.name}</Link> · {l.siteA.name} – {l.siteB.name}</li>)}</ul>
         {links.data?.items.length === 0 && <p className="text-sm text-ink-500">None yet.</p>}
       </Panel>
-      <Caution />
+      <StandardUncertaintyCaution />
     </>
   );
 }
