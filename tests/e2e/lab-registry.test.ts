@@ -92,7 +92,11 @@ describe('lab staff registry journey', () => {
     await page.getByTestId('campaign-title').waitFor();
     await page.getByRole('button', { name: 'Save this reference ratio' }).waitFor();
     await screenshot(page, 'lab-campaign-draft');
-    await page.getByRole('button', { name: 'Submit for review' }).click();
+    await page.getByRole('button', { name: 'Submit for review…' }).click();
+    // The confirmation says what will happen before anything does.
+    const dialog = page.getByTestId('confirm-dialog');
+    await expect(dialog.getByTestId('confirm-consequences').textContent()).resolves.toContain('coordinating institute is mailed');
+    await dialog.getByRole('button', { name: 'Submit for review' }).click();
     await page.getByTestId('campaign-timeline').getByText('Submitted').waitFor();
     expect(await page.getByTestId('campaign-state').first().textContent()).toBe('Submitted');
     await screenshot(page, 'lab-campaign-submitted');

@@ -46,8 +46,8 @@ describe('registry and campaign pages', () => {
     const timeline = page.getByTestId('audit-timeline');
     await timeline.getByText('accepted').first().waitFor();
     const text = await timeline.textContent();
-    expect(text).toContain('created');
-    expect(text!.indexOf('created')).toBeLessThan(text!.indexOf('submitted'));
+    expect(text).toContain('Campaign opened');
+    expect(text!.indexOf('Campaign opened')).toBeLessThan(text!.indexOf('State changed to submitted'));
     expect(text).toContain('2026-02-20 09:12 UTC');
     expect(text).not.toContain('pdfSha256');
     await expect(page.locator('header p').first().textContent()).resolves.toBe('Campaigns / SCL–HMO Sr spring run 2026 / audit trail');

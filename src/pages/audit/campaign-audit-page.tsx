@@ -89,7 +89,10 @@ function valueOf(key: string, v: unknown): ReactNode {
   if (typeof v === 'boolean') return v ? 'yes' : 'no';
   if (typeof v === 'string' && (key === 'check' || key === 'justification' || key === 'comment')) return typeset(v);
   if (typeof v === 'number') return key === 'y' || key === 'uY' ? sci(v, 3) : String(v);
-  if (Array.isArray(v)) return v.map((x) => (typeof x === 'string' ? labelOf(x) : JSON.stringify(x))).join(', ');
+  if (key === 'justifications' && Array.isArray(v)) {
+    return v.map((j: { stage?: string; by?: string; text?: string }) => `${j.stage ?? ''}${j.by ? ` (${j.by})` : ''}: ${j.text ?? ''}`).join(' · ');
+  }
+  if (Array.isArray(v)) return v.map((x) => (typeof x === 'string' ? (key === 'exceptions' ? x : labelOf(x)) : JSON.stringify(x))).join(key === 'exceptions' ? ' ' : ', ');
   if (typeof v === 'object') {
     const entries = Object.entries(v as Record<string, unknown>).filter(([, x]) => x !== undefined);
     return entries.length ? entries.map(([k, x]) => `${labelOf(k)}: ${typeof x === 'object' && x !== null ? JSON.stringify(x) : String(x)}`).join(' · ') : '—';

@@ -91,10 +91,9 @@ function UploadForm({ campaignId }: { campaignId: string }) {
     if (values.flagColumn) mapping.flagColumn = String(values.flagColumn);
     try {
       const stored = await send(file, mapping, setStage);
-      // Ready for the next file: the chosen file, its preview and the progress go; the confirmation stays.
+      // Ready for the next file: the chosen file and its preview go; the finished bars and the confirmation stay.
       setDone(stored);
       setFile(null);
-      setStage(null);
       preview.reset();
       setInputKey((k) => k + 1);
     } catch (e) {
