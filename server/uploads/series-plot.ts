@@ -85,7 +85,10 @@ export async function decimateSeries(
   const fromMjd = Math.min(Math.max(q.fromMjd ?? s.firstMjd, s.firstMjd), s.lastMjd);
   let toMjd = Math.min(q.toMjd ?? s.lastMjd, s.lastMjd);
   if (!(toMjd > fromMjd)) toMjd = fromMjd + 1 / 86_400;
-  const count = q.points;
+  // Zoomed in, no more buckets than about half the samples in the range: each bucket then holds a few samples,
+  // so its mean and σ mean something and the line does not fall apart into single points.
+  const inRange = s.rowCount * Math.min(1, (toMjd - fromMjd) / Math.max(s.lastMjd - s.firstMjd, 1e-9));
+  const count = Math.max(10, Math.min(q.points, Math.floor(inRange / 2)));
   const bucketDays = (toMjd - fromMjd) / count;
   const head = { seriesId: s.id, fromMjd, toMjd, bucketDays, sampleCount: s.rowCount, unit: '1' as const, firstMjd: s.firstMjd, lastMjd: s.lastMjd };
   const { blocks, stats } = await overviewOf(ds, s.id);

@@ -215,7 +215,9 @@ describe('network map', () => {
     await page.mouse.move(box.x + box.width * 0.5 + 120, box.y + box.height * 0.5, { steps: 6 });
     await page.mouse.up();
     expect(await siteX()).toBeGreaterThan(x0 + 50);
-    await page.mouse.move(box.x + box.width * 0.45, box.y + box.height * 0.2);
+    // Wheel-zoom onto the first clock site: it stays under the pointer.
+    const site = (await page.getByTestId('site-symbol').first().boundingBox())!;
+    await page.mouse.move(site.x + site.width / 2, site.y + site.height / 2);
     for (let i = 0; i < 4; i++) await page.mouse.wheel(0, -120);
     await page.waitForFunction(() => Number(document.querySelector('[data-testid="network-map"]')?.getAttribute('data-zoom')) > 3);
     await map.focus();

@@ -142,7 +142,7 @@ export function TimeSeriesPlot({ buckets, range, full, onRangeChange, loading, t
   const tickCount = Math.max(3, Math.floor((width - MARGIN.left - MARGIN.right) / 110));
   const xTicks = timeAxis === 'utc'
     ? xu.ticks(tickCount).map((d) => ({ x: xu(d), label: xu.tickFormat(tickCount)(d) }))
-    : xm.ticks(tickCount).map((t) => ({ x: xm(t), label: xm.tickFormat(tickCount)(t) }));
+    : xm.ticks(tickCount).map((t) => ({ x: xm(t), label: xm.tickFormat(tickCount, 'f')(t) }));
 
   const defined = (b: TimeBucket) => hasData(b);
   const sdBand = area<TimeBucket>().defined(defined).x((b) => xm(b.mjd)).y0((b) => y((b.mean! - (b.sd ?? 0)) / unit)).y1((b) => y((b.mean! + (b.sd ?? 0)) / unit));
