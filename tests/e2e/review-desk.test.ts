@@ -215,10 +215,14 @@ describe('network map', () => {
     await page.mouse.move(box.x + box.width * 0.5 + 120, box.y + box.height * 0.5, { steps: 6 });
     await page.mouse.up();
     expect(await siteX()).toBeGreaterThan(x0 + 50);
-    // Wheel-zoom onto the first clock site: it stays under the pointer.
+    // Back to the fitted view, then wheel-zoom onto the first clock site: it stays under the pointer.
+    await page.getByRole('button', { name: 'Fit the network' }).click();
     const site = (await page.getByTestId('site-symbol').first().boundingBox())!;
     await page.mouse.move(site.x + site.width / 2, site.y + site.height / 2);
-    for (let i = 0; i < 4; i++) await page.mouse.wheel(0, -120);
+    for (let i = 0; i < 5; i++) {
+      await page.mouse.wheel(0, -120);
+      await page.waitForTimeout(100);
+    }
     await page.waitForFunction(() => Number(document.querySelector('[data-testid="network-map"]')?.getAttribute('data-zoom')) > 3);
     await map.focus();
     await page.keyboard.press('+');
