@@ -1,3 +1,4 @@
+import { createHash } from 'node:crypto';
 import { HeightDatumEntity, BenchmarkEntity, LevellingSectionEntity, AdjustmentRunEntity } from '../server/db/entities/network.entities';
 import { computeRunResult, gatherInputs } from '../server/network/adjustment.service';
 import { normalGravityForSection } from '../server/network/network.service';
@@ -158,7 +159,7 @@ export const networkSeeder: Seeder = {
       inputSummary: {
         benchmarks: Object.values(inputs.pointMeta).filter((p) => p.kind === 'benchmark').length,
         sections: inputs.adjustment.observations.filter((o) => o.kind === 'levelling').length,
-        ties: inputs.adjustment.observations.filter((o) => o.kind === 'tie').length, clocks: 0, inputSha256: 'demo-seed',
+        ties: inputs.adjustment.observations.filter((o) => o.kind === 'tie').length, clocks: 0, inputSha256: createHash('sha256').update(JSON.stringify(inputs)).digest('hex'),
       },
       result: result as never, sigma0: result.sigma0, degreesOfFreedom: result.degreesOfFreedom, globalTestPassed: result.globalTest?.passed ?? null,
       suspects: result.snooping.suspects.length, createdBy: userIds['ansel.brandt@geopotential-office.invalid'] ?? null, startedAt: at, finishedAt: at,

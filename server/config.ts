@@ -54,6 +54,10 @@ const envSchema = z.object({
   STABILITY_WORKERS: z.coerce.number().int().min(1).max(16).default(1),
   /** test-only fault hook (see server/dev/fault-point.ts); refused when NODE_ENV=production */
   CHRONOLEVEL_FAULT_POINT: z.string().regex(/^[a-z-]+$/).optional(),
+  /** Accepting or certifying a campaign whose uptime is below this fraction needs a written justification. */
+  REVIEW_MIN_UPTIME: z.coerce.number().min(0).max(1).default(0.5),
+  /** '1': the person who accepted a campaign may not also issue its certificate (four-eyes rule). */
+  REVIEW_FOUR_EYES: z.enum(['0', '1']).default('0'),
 });
 
 export type AppConfig = {
@@ -89,6 +93,8 @@ export type AppConfig = {
   samlRequestPruneIntervalMs: number;
   stabilityWorkers: number;
   faultPoint?: string;
+  reviewMinUptimeFraction: number;
+  reviewFourEyes: boolean;
 };
 
 /** A secret kept in the git-ignored secrets folder, created on first use. */
@@ -139,5 +145,7 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): AppConfig {
     samlRequestPruneIntervalMs: e.SAML_REQUEST_PRUNE_INTERVAL_MS,
     stabilityWorkers: e.STABILITY_WORKERS,
     faultPoint: e.NODE_ENV === 'production' ? undefined : e.CHRONOLEVEL_FAULT_POINT,
+    reviewMinUptimeFraction: e.REVIEW_MIN_UPTIME,
+    reviewFourEyes: e.REVIEW_FOUR_EYES === '1',
   };
 }

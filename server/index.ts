@@ -12,12 +12,13 @@ import { startFakeTsa } from './dev/fake-tsa';
 import { createLogger } from './logger';
 import { createMailSender } from './mail/outbox';
 import { seedDemo } from '../seeds/demo';
+import { demoPeople } from '../seeds/people';
 import { startWorker } from './jobs/worker';
 import { stopQueues } from './jobs/queue';
 import { migrateDatabase, privilegeWarnings, roleOfUrl } from './db/roles';
 import { writeAuditCheckpoint } from './audit/verify';
 
-// The server process: configuration, local stand-ins (identity provider, mail catcher, time-stamping authority), database, HTTP.
+// The server process: configuration, local stand-ins (identity provider, test mailbox, time-stamping authority), database, HTTP.
 const withDevServices = process.env.CHRONOLEVEL_DEV_SERVICES !== '0';
 const config = loadConfig();
 const logger = createLogger(config.logLevel);
@@ -31,7 +32,7 @@ async function main() {
     const smtpPort = Number(new URL(config.smtpUrl).port || 2525);
     const smtp = await startFakeSmtp({ smtpPort, httpPort: Number(new URL(config.mailboxUrl).port || 8181) });
     closers.push(smtp.close);
-    logger.info({ idp: idp.url, smtp: smtp.smtpUrl, mailbox: smtp.mailboxUrl }, 'local identity provider and mail catcher started');
+    logger.info({ idp: idp.url, smtp: smtp.smtpUrl, mailbox: smtp.mailboxUrl }, 'local identity provider and test mailbox started');
     logger.warn(DEMO_STAND_IN_NOTICE);
     if (!process.env.TSA_URL) {
       // The local time-stamping authority, unless TSA_URL names a real one.
@@ -76,7 +77,8 @@ async function main() {
   closers.unshift(() => new Promise<void>((r) => server.close(() => r())));
   closers.push(() => app.locals.closeSessionPool?.());
   logger.info(`Chronolevel is serving on ${config.publicUrl}`);
-  process.send?.({ ready: true, url: config.publicUrl });
+  // The start banner lists every demo person the local identity provider offers.
+  process.send?.({ ready: true, url: config.publicUrl, people: demoPeople.map((p) => ({ email: p.email, name: p.displayName, role: p.role, institute: p.instituteCode })) });
 }
 
 async function shutdown(signal: string) {

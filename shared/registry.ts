@@ -72,7 +72,13 @@ export const siteSchema = z.object({
   name: z.string(),
   institute: z.object({ id: z.string().uuid(), code: z.string(), name: z.string() }),
   referencePoint: z.string(),
-  entered: z.object({ crs: z.string(), crsLabel: z.string(), coordinates: z.array(z.number()) }),
+  entered: z.object({
+    crs: z.string(),
+    crsLabel: z.string(),
+    /** How to name the entered values (axes and units); null when the stored CRS no longer resolves. */
+    crsKind: z.enum(['geographic2D', 'geographic3D', 'geocentric', 'projected']).nullable(),
+    coordinates: z.array(z.number()),
+  }),
   grs80: z.object({
     latitudeDeg: z.number(),
     longitudeDeg: z.number(),

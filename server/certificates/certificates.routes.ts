@@ -5,6 +5,7 @@ import {
   campaignIdParamsSchema, certificateDetailSchema, certificateListQuerySchema, certificateNumberParamsSchema, certificateSummarySchema,
   reissueCertificateSchema, revokeCertificateSchema, VERIFY_UPLOAD_LIMIT_BYTES, verificationResultSchema, verifyByNumberQuerySchema,
 } from '../../shared/certificate-registry';
+import { issueCertificateSchema } from '../../shared/campaigns';
 import { certificateSnapshotSchema } from '../../shared/certificates';
 import { pageOf } from '../../shared/http';
 import { Invalid, PayloadTooLarge } from '../http/errors';
@@ -54,10 +55,10 @@ const issuedResponse = z.object({ created: z.boolean(), certificate: certificate
 // Verification is rate-limited per caller by the middleware in server/http/rate-limits.ts (RATE_LIMIT_VERIFY_PER_MINUTE).
 export const certificateRoutes = [
   route({
-    method: 'post', path: '/api/v1/campaigns/:id/certificates', summary: 'Issue the certificate of an accepted campaign (201; 200 with the existing one when nothing changed)',
-    tag: 'certificates', permission: 'certificates:issue', params: campaignIdParamsSchema, response: issuedResponse, raw: true,
-    handler: async ({ actor, params, res, deps }) => {
-      const out = await createCertificatesService(deps.dataSource, deps.config).issue(actor, params.id);
+    method: 'post', path: '/api/v1/campaigns/:id/certificates', summary: 'Issue the certificate of an accepted campaign (comment required; 201, or 200 with the existing one when nothing changed)',
+    tag: 'certificates', permission: 'certificates:issue', params: campaignIdParamsSchema, body: issueCertificateSchema, response: issuedResponse, raw: true,
+    handler: async ({ actor, params, body, res, deps }) => {
+      const out = await createCertificatesService(deps.dataSource, deps.config).issue(actor, params.id, body);
       res.status(out.created ? 201 : 200).location(`/api/v1/certificates/${out.certificate.number}`).json(out);
     },
   }),
@@ -108,7 +109,7 @@ export const certificateRoutes = [
     method: 'post', path: '/api/v1/certificates/:number/reissue', summary: 'Issue the next revision after a correction; the current one is marked replaced',
     tag: 'certificates', permission: 'certificates:issue', params: certificateNumberParamsSchema, body: reissueCertificateSchema,
     response: certificateSummarySchema, successStatus: 201,
-    handler: ({ actor, params, body, deps }) => createCertificatesService(deps.dataSource, deps.config).reissue(actor, params.number, body.reason),
+    handler: ({ actor, params, body, deps }) => createCertificatesService(deps.dataSource, deps.config).reissue(actor, params.number, body.reason, body.justification),
   }),
   route({
     method: 'post', path: '/api/v1/certificates/:number/revoke', summary: 'Withdraw a certificate (reason required)',

@@ -20,6 +20,20 @@ const headlines: Record<VerificationVerdict, string> = {
   unsigned: 'This file carries no signature, so it cannot be a certificate issued here.',
 };
 
+type Tamper = NonNullable<VerificationResult['tamper']>;
+/** Sorts the signature check's reason into what a reader needs to know. */
+function tamperOf(reason: string | undefined): Tamper {
+  if (!reason) return 'damaged-signature';
+  if (/appended|were changed|does not start at the beginning|does not match the file/.test(reason)) return 'changed-after-signing';
+  if (/certificate other than the pinned|signer certificate is not included|does not verify with the pinned/.test(reason)) return 'foreign-signature';
+  return 'damaged-signature';
+}
+const tamperHeadlines: Record<Tamper, string> = {
+  'changed-after-signing': 'This file was changed after signing: it is not the file the issuing institute signed.',
+  'foreign-signature': 'This file was not signed by the issuing institute: the signature belongs to another key.',
+  'damaged-signature': 'The signature in this file is damaged or incomplete, so the file cannot be trusted.',
+};
+
 async function newestNumber(manager: EntityManager, row: CertificateRow): Promise<string | null> {
   const newest = await manager.getRepository(CertificateEntity).findOne({ where: { year: row.year, serial: row.serial }, order: { revision: 'DESC' } });
   return newest && newest.number !== row.number ? newest.number : null;
@@ -89,7 +103,9 @@ export function createVerificationService(dataSource: DataSource, config: AppCon
         // A file whose signature does not verify proves nothing, so it learns nothing about any record (not even
         // whether the number it names exists): anyone can write a number into a file.
         const verdict: VerificationVerdict = signature.status;
-        return { ...base, verdict, headline: headlines[verdict], reason: signature.reason ?? null, certificate: null };
+        // A file whose signature does not verify gets no record (it would disclose one to anybody naming a number).
+        const tamper = verdict === 'tampered' ? tamperOf(signature.reason) : null;
+        return { ...base, verdict, tamper, headline: tamper ? tamperHeadlines[tamper] : headlines[verdict], reason: signature.reason ?? null, certificate: null };
       }
       const row = await manager.getRepository(CertificateEntity).findOneBy({ pdfSha256: file.sha256 });
       if (!row || (file.numberInFile && row.number !== file.numberInFile)) {

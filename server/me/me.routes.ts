@@ -77,12 +77,12 @@ export const foundationRoutes = [
     },
   }),
   route({
-    method: 'get', path: '/api/v1/dev/mailbox', summary: 'Messages caught by the local mail catcher (development)', tag: 'admin', permission: 'mailbox:read',
+    method: 'get', path: '/api/v1/dev/mailbox', summary: 'Messages caught by the local test mailbox (development)', tag: 'admin', permission: 'mailbox:read',
     response: z.array(z.object({ id: z.number(), receivedAt: z.string(), from: z.string(), to: z.array(z.string()), subject: z.string(), text: z.string() })),
     handler: async ({ deps }) => {
       await deps.mail.flush();
       const res = await fetch(`${deps.config.mailboxUrl}/messages`).catch(() => null);
-      if (!res?.ok) throw new Unavailable('The local mail catcher is not reachable.');
+      if (!res?.ok) throw new Unavailable('The local test mailbox is not reachable.');
       return ((await res.json()) as unknown[]).reverse();
     },
   }),

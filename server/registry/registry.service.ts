@@ -85,8 +85,11 @@ export function normalHeightOf(s: Pick<SiteRow, 'ellipsoidalHeightM' | 'ellipsoi
 
 export function toSiteDto(s: SiteRow, gridName: string | null = null) {
   let crsLabel = s.crs;
+  let crsKind: ReturnType<typeof resolveCrs>['kind'] | null = null;
   try {
-    crsLabel = resolveCrs(s.crs).label;
+    const resolved = resolveCrs(s.crs);
+    crsLabel = resolved.label;
+    crsKind = resolved.kind;
   } catch {
     // a stored PROJ string that no longer parses still shows as entered
   }
@@ -95,7 +98,7 @@ export function toSiteDto(s: SiteRow, gridName: string | null = null) {
     name: s.name,
     institute: { id: s.instituteId, code: s.institute?.code ?? '', name: s.institute?.name ?? '' },
     referencePoint: s.referencePoint,
-    entered: { crs: s.crs, crsLabel, coordinates: s.coordinates },
+    entered: { crs: s.crs, crsLabel, crsKind, coordinates: s.coordinates },
     grs80: {
       latitudeDeg: s.latitudeDeg,
       longitudeDeg: s.longitudeDeg,

@@ -50,6 +50,8 @@ export type IngestSummary = {
   tooLarge: boolean;
   /** block summaries for plots: [firstMjd, lastMjd, minY, maxY, validCount] × blocks (see series-plot.ts) */
   overview: Float64Array;
+  /** per block: [mean, M2] of the valid y (Welford), M2 = Σ(y − mean)²; same block order as `overview` */
+  overviewStats: Float64Array;
 };
 
 const MAX_LISTED_ISSUES = 10;
@@ -99,18 +101,23 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
   // Plot overview: consecutive samples summarised in blocks of ≤ 64, a new block after any spacing over twice the
   // previous one so no block bridges a gap.
   let overview = new Float64Array(5 * 1024);
+  let overviewStats = new Float64Array(2 * 1024);
   let blocks = 0;
-  let bFirst = 0, bLast = 0, bMin = Infinity, bMax = -Infinity, bValid = 0, bCount = 0, prevSpacing = Infinity;
+  let bFirst = 0, bLast = 0, bMin = Infinity, bMax = -Infinity, bValid = 0, bCount = 0, prevSpacing = Infinity, bMean = 0, bM2 = 0;
   const closeBlock = () => {
     if (bCount === 0) return;
     if ((blocks + 1) * 5 > overview.length) {
       const grown = new Float64Array(overview.length * 2);
       grown.set(overview);
       overview = grown;
+      const grownStats = new Float64Array(overviewStats.length * 2);
+      grownStats.set(overviewStats);
+      overviewStats = grownStats;
     }
     overview.set([bFirst, bLast, bValid ? bMin : NaN, bValid ? bMax : NaN, bValid], blocks * 5);
+    overviewStats.set([bValid ? bMean : NaN, bValid ? bM2 : NaN], blocks * 2);
     blocks++;
-    bCount = 0; bValid = 0; bMin = Infinity; bMax = -Infinity;
+    bCount = 0; bValid = 0; bMin = Infinity; bMax = -Infinity; bMean = 0; bM2 = 0;
   };
   const addToOverview = (mjd: number, y: number, valid: boolean) => {
     if (bCount > 0) {
@@ -125,6 +132,10 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
       bValid++;
       if (y < bMin) bMin = y;
       if (y > bMax) bMax = y;
+      // Welford's update (Welford 1962, Technometrics 4(3) 419–420): stable for y ≈ 1e-14 with 1e-17 noise.
+      const d = y - bMean;
+      bMean += d / bValid;
+      bM2 += d * (y - bMean);
     }
   };
   const colName = (c: number) => (header?.[c - 1] ? ` (${header[c - 1]})` : '');
@@ -399,6 +410,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     delimiter: delimiter ?? ',', hasHeader: hasHeader ?? false, header,
     issues, furtherProblems, tooLarge,
     overview: (closeBlock(), overview.slice(0, blocks * 5)),
+    overviewStats: overviewStats.slice(0, blocks * 2),
   };
 }
 

@@ -83,11 +83,14 @@ export function toSeriesDto(r: SeriesDbRow): RatioSeries {
 
 const SERIES_COLUMNS = 'id, campaign_id, file_name, sha256, byte_size, row_count, valid_count, first_mjd, last_mjd, uptime_fraction, tau0_seconds, mapping, invented, created_by, created_at';
 
+/** One story for the detail, the listed issues and furtherProblems: how many in all, how many listed, the first. */
 function problemMessage(s: IngestSummary): string {
   const first = s.issues[0];
-  const more = s.issues.length - 1 + s.furtherProblems;
+  const total = s.issues.length + s.furtherProblems;
   const where = `line ${first.line}${first.column ? `, column ${first.column}` : ''}`;
-  return `The file was not stored: ${where}: ${first.message}.${more > 0 ? ` ${more} further problem(s) found; the whole file was checked.` : ' No further problems found in the rest of the file.'}`;
+  if (total === 1) return `The file was not stored: ${where}: ${first.message}. The whole file was checked and this is its only problem.`;
+  const listed = s.furtherProblems > 0 ? `; the first ${s.issues.length} are listed, ${s.furtherProblems} more are not` : ', all listed';
+  return `The file was not stored: ${total} problems in the whole file${listed}. The first: ${where}: ${first.message}.`;
 }
 
 export type StoreSeriesInput = {
@@ -154,11 +157,12 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
     const storedMapping = { ...mapping, delimiter: summary.delimiter, hasHeader: summary.hasHeader, header: summary.header };
     const { rows } = await client.query<SeriesDbRow>(
       `INSERT INTO ratio_series (id, campaign_id, file_name, sha256, byte_size, row_count, valid_count, first_mjd, last_mjd,
-         uptime_fraction, tau0_seconds, mapping, invented, created_by_user_id, created_by, overview)
-       VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12,$13,$14,$15,$16) RETURNING ${SERIES_COLUMNS}`,
+         uptime_fraction, tau0_seconds, mapping, invented, created_by_user_id, created_by, overview, overview_stats)
+       VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12,$13,$14,$15,$16,$17) RETURNING ${SERIES_COLUMNS}`,
       [seriesId, input.campaign.id, input.fileName.slice(0, 250), summary.sha256, summary.byteSize, summary.rowCount, summary.validCount,
         summary.firstMjd, summary.lastMjd, summary.uptimeFraction, summary.tau0Seconds, JSON.stringify(storedMapping),
-        input.invented ?? false, actor?.userId ?? null, actorLabel(actor), Buffer.from(summary.overview.buffer, summary.overview.byteOffset, summary.overview.byteLength)],
+        input.invented ?? false, actor?.userId ?? null, actorLabel(actor), Buffer.from(summary.overview.buffer, summary.overview.byteOffset, summary.overview.byteLength),
+        Buffer.from(summary.overviewStats.buffer, summary.overviewStats.byteOffset, summary.overviewStats.byteLength)],
     );
     await spool.copyInto(client, seriesId);
     return rows[0];

@@ -193,7 +193,18 @@ describe('bad input: a clear error, nothing stored', () => {
     const res = await upload('mjd,ratio,flag\n61100.0,x,1\n61100.1,y,1\n61100.2,1.0,maybe\n61100.3,1.0,1\n');
     expect(res.status).toBe(400);
     expect(res.body.issues.map((i: { line: number }) => i.line)).toEqual([2, 3, 4]);
-    expect(res.body.detail).toMatch(/line 2, column 2: .*2 further problem\(s\) found; the whole file was checked/);
+    // The detail, the list and furtherProblems tell one story: 3 problems, all 3 listed, none beyond the list.
+    expect(res.body.detail).toMatch(/^The file was not stored: 3 problems in the whole file, all listed\. The first: line 2, column 2: /);
+    expect(res.body.furtherProblems).toBe(0);
+  });
+
+  it('says how many problems are listed and how many are not when there are more than the list holds', async () => {
+    const lines = Array.from({ length: 14 }, (_, i) => `61100.${i},x${i},1`);
+    const res = await upload(`mjd,ratio,flag\n${lines.join('\n')}\n`);
+    expect(res.status).toBe(400);
+    expect(res.body.issues).toHaveLength(10);
+    expect(res.body.furtherProblems).toBe(4);
+    expect(res.body.detail).toMatch(/^The file was not stored: 14 problems in the whole file; the first 10 are listed, 4 more are not\. The first: line 2/);
   });
 
   it('refuses an invalid mapping with field paths', async () => {

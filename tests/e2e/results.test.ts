@@ -70,7 +70,7 @@ afterAll(async () => {
 });
 
 describe('results page', () => {
-  it('shows the coordinator the plots, the budget, ΔC, ΔH and the E_n verdict', async () => {
+  it('shows the coordinator the plots, the budget, ΔC, ΔH and the Eₙ verdict', async () => {
     const context = await browser.newContext({ viewport: { width: 1280, height: 900 } });
     const page = await context.newPage();
     await signInWithBrowser(page, srv.baseUrl, 'ansel.brandt@geopotential-office.invalid', `/campaigns/${campaignId}`);
@@ -79,7 +79,7 @@ describe('results page', () => {
     await expect(page.getByTestId('result-dc').textContent()).resolves.toMatch(/± [\d.]+ m²\/s²/);
     await expect(page.getByTestId('result-dh').textContent()).resolves.toMatch(/± [\d.]+ m$/);
     const verdict = await page.getByTestId('agreement').textContent();
-    expect(verdict).toMatch(/(Agreed|Not agreed) — E_n = -?\d/);
+    expect(verdict).toMatch(/(Agreed|Not agreed) — Eₙ = -?\d/);
     expect(await page.getByTestId('budget-table').locator('tbody tr').count()).toBe(8); // six components, u_c and U
     await page.getByRole('img', { name: 'Fractional offset y against time, with the tide correction' }).waitFor();
     // The one-hour gap in the data breaks the mean line and the band (common practice: never draw across missing data).

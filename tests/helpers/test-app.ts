@@ -106,7 +106,7 @@ export async function signInAs(t: TestApp, email: string) {
   return { agent, csrf: me.body.csrfToken as string, me: me.body };
 }
 
-/** Reads what the local mail catcher received. */
+/** Reads what the local test mailbox received. */
 export async function caughtMail(): Promise<{ to: string[]; subject: string; text: string }[]> {
   const res = await fetch(`${inject('mailboxUrl')}/messages`);
   return res.json();

@@ -264,6 +264,15 @@ export interface CampaignRow {
   returnReason: string | null;
   createdByUserId: string | null;
   createdBy: string;
+  /** Reviewer's checklist: item → who ticked it and when (absent = not ticked). */
+  reviewChecklist: Record<string, { by: string; at: string }>;
+  acceptedByUserId: string | null;
+  acceptedBy: string | null;
+  acceptedAt: Date | null;
+  acceptanceComment: string | null;
+  acceptanceJustification: string | null;
+  /** The exceptions (Eₙ not agreed, low uptime, …) the acceptance justification answers. */
+  acceptanceExceptions: string[];
   createdAt: Date;
   updatedAt: Date;
 }
@@ -290,6 +299,13 @@ export const CampaignEntity = new EntitySchema<CampaignRow>({
     returnReason: { name: 'return_reason', type: 'text', nullable: true },
     createdByUserId: { name: 'created_by_user_id', type: 'uuid', nullable: true },
     createdBy: { name: 'created_by', type: 'text' },
+    reviewChecklist: { name: 'review_checklist', type: 'jsonb', default: {} },
+    acceptedByUserId: { name: 'accepted_by_user_id', type: 'uuid', nullable: true },
+    acceptedBy: { name: 'accepted_by', type: 'text', nullable: true },
+    acceptedAt: { name: 'accepted_at', type: 'timestamptz', nullable: true },
+    acceptanceComment: { name: 'acceptance_comment', type: 'text', nullable: true },
+    acceptanceJustification: { name: 'acceptance_justification', type: 'text', nullable: true },
+    acceptanceExceptions: { name: 'acceptance_exceptions', type: 'jsonb', default: [] },
     createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
     updatedAt: { name: 'updated_at', type: 'timestamptz', updateDate: true },
   },

@@ -13,6 +13,7 @@ import { MailOutboxRetry1765310000000 } from './1765310000000-mail-outbox-retry'
 import { TideSystems1765400000000 } from './1765400000000-tide-systems';
 import { MeasuredRatios1765500000000 } from './1765500000000-measured-ratios';
 import { SigningChain1765600000000 } from './1765600000000-signing-chain';
+import { ReviewDesk1765700000000 } from './1765700000000-review-desk';
 import { ListIndexes1765800000000 } from './1765800000000-list-indexes';
 import { SamplePartitions1765800001000 } from './1765800001000-sample-partitions';
 import { UploadProgress1765800002000 } from './1765800002000-upload-progress';
@@ -34,6 +35,7 @@ export const migrations = [
   TideSystems1765400000000,
   MeasuredRatios1765500000000,
   SigningChain1765600000000,
+  ReviewDesk1765700000000,
   ListIndexes1765800000000,
   SamplePartitions1765800001000,
   UploadProgress1765800002000,

@@ -5,6 +5,7 @@ import { ResidualPlot } from '../../components/plots/residual-plot';
 import { Caution, Panel } from '../../components/ui';
 import { fmt, when } from './format';
 import { NetworkNav } from './network-nav';
+import { plural } from '../../lib/format';
 
 export function RunPage() {
   const { id = '' } = useParams();
@@ -28,7 +29,7 @@ export function RunPage() {
         </div>
         {r.error && <p role="alert" className="mt-2 text-sm text-disagree-800">{r.error.message}</p>}
         <p className="mt-2 text-xs text-ink-500">
-          Inputs: {r.inputSummary.benchmarks} benchmarks, {r.inputSummary.sections} sections, {r.inputSummary.ties} local ties, {r.inputSummary.clocks} clock comparisons ·
+          Inputs: {plural(r.inputSummary.benchmarks, 'benchmark')}, {plural(r.inputSummary.sections, 'section')}, {plural(r.inputSummary.ties, 'local tie')}, {plural(r.inputSummary.clocks, 'clock comparison')} ·
           σ = {r.options.sigmaMmPerSqrtKm} mm/√km · datum: {r.options.constraint === 'fixed' ? 'fixed benchmarks' : 'minimum constraint'} · input SHA-256 {r.inputSummary.inputSha256.slice(0, 12)}…
         </p>
       </Panel>

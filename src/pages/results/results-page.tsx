@@ -4,6 +4,7 @@ import type { ComparisonResultDto, ResultBody } from '../../../shared/results';
 import { useMe } from '../../api/account';
 import { resultCsvUrl, useCampaignResult, useRecomputeResult, type CampaignResultState } from '../../api/results';
 import { AllanPlot } from '../../components/plots/allan-plot';
+import { typeset } from '../../components/typeset';
 import { Button, Caution, EmptyState, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { fixed, sci, sig } from '../../lib/format';
@@ -22,7 +23,7 @@ function Quantity({ label, q, unit, testId }: { label: string; q: Expanded; unit
   const d = decimalsFor(q.expandedUncertainty);
   return (
     <div className="rounded-lg border border-paper-200 bg-white p-4">
-      <p className="text-xs uppercase tracking-wide text-ink-500">{label}</p>
+      <p className="text-xs font-medium text-ink-500">{typeset(label)}</p>
       <p className="mt-1 font-mono text-lg text-ink-900" data-testid={testId}>{f(q.value, d)} ± {f(q.expandedUncertainty, d)} {unit}</p>
       <p className="text-xs text-ink-500" data-testid={`${testId}-coverage`}>expanded uncertainty, {coverageText(q)}</p>
     </div>
@@ -31,14 +32,14 @@ function Quantity({ label, q, unit, testId }: { label: string; q: Expanded; unit
 
 function Agreement({ r }: { r: ResultBody }) {
   const g = r.geodesy;
-  if (!g) return <Panel title="Agreement with the sites’ registered normal heights (geodesy)"><p className="text-sm">No geodetic uncertainty is registered for the sites, so E_n cannot be formed.</p></Panel>;
+  if (!g) return <Panel title="Agreement with the sites’ registered normal heights (geodesy)"><p className="text-sm">No geodetic uncertainty is registered for the sites, so Eₙ cannot be formed.</p></Panel>;
   const ok = g.agreed;
   return (
     <Panel title="Agreement with the sites’ registered normal heights (geodesy)">
       <div className={`flex items-start gap-3 rounded-md border-l-4 px-4 py-3 ${ok ? 'border-agree-600 bg-agree-100 text-agree-800' : 'border-disagree-600 bg-disagree-100 text-disagree-800'}`} data-testid="agreement" role="status">
         <span aria-hidden className="text-2xl leading-none">{ok ? '✓' : '✗'}</span>
         <div>
-          <p className="font-semibold">{ok ? 'Agreed' : 'Not agreed'} — E_n = {f(g.en, 2)}</p>
+          <p className="font-semibold">{ok ? 'Agreed' : 'Not agreed'} — Eₙ = {f(g.en, 2)}</p>
           <p className="text-sm">{g.statement}</p>
         </div>
       </div>
@@ -47,7 +48,7 @@ function Agreement({ r }: { r: ResultBody }) {
           <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">ΔH from the clocks (H_B − H_A)</td><td className="text-right font-mono">{f(r.deltaH_m.value, 4)} ± {f(r.deltaH_m.expandedUncertainty, 4)} m ({coverageText(r.deltaH_m)})</td></tr>
           <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">ΔH from geodesy ({g.source})</td><td className="text-right font-mono">{f(g.deltaH_m.value, 4)} ± {f(g.deltaH_m.expandedUncertainty, 4)} m ({coverageText(g.deltaH_m)})</td></tr>
           <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Difference (clocks − geodesy)</td><td className="text-right font-mono" data-testid="agreement-difference">{f(g.differenceM, 4)} ± {f(Math.hypot(r.deltaH_m.expandedUncertainty, g.deltaH_m.expandedUncertainty), 4)} m (√(U_clocks² + U_geodesy²))</td></tr>
-          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">E_n = difference / √(U_clocks² + U_geodesy²)</td><td className="text-right font-mono">{f(g.en, 3)} ({Math.abs(g.en) <= 1 ? '|E_n| ≤ 1' : '|E_n| > 1'})</td></tr>
+          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Eₙ = difference / √(U_clocks² + U_geodesy²)</td><td className="text-right font-mono">{f(g.en, 3)} ({Math.abs(g.en) <= 1 ? '|Eₙ| ≤ 1' : '|Eₙ| > 1'})</td></tr>
         </tbody>
       </table>
     </Panel>
@@ -194,7 +195,7 @@ export function ResultsPage() {
 
       <section className="grid gap-3 md:grid-cols-3" aria-label="Main figures">
         <div className="rounded-lg border border-paper-200 bg-white p-4">
-          <p className="text-xs uppercase tracking-wide text-ink-500">Fractional offset y (tide-corrected)</p>
+          <p className="text-xs font-medium text-ink-500">Fractional offset y (tide-corrected)</p>
           <p className="mt-1 font-mono text-base text-ink-900" data-testid="result-y">{r.fractionalOffset.yText} ± {e(r.budget.expandedUncertainty, 2)}</p>
           <p className="text-xs text-ink-500">expanded uncertainty, {coverageText(r.budget)}; u(y) = {e(r.fractionalOffset.standardUncertainty, 2)}; measured mean ratio {r.measuredRatio}</p>
         </div>
