@@ -105,7 +105,12 @@ export function createVerificationService(dataSource: DataSource, config: AppCon
         const verdict: VerificationVerdict = signature.status;
         // A file whose signature does not verify gets no record (it would disclose one to anybody naming a number).
         const tamper = verdict === 'tampered' ? tamperOf(signature.reason) : null;
-        return { ...base, verdict, tamper, headline: tamper ? tamperHeadlines[tamper] : headlines[verdict], reason: signature.reason ?? null, certificate: null };
+        // One exception: a file signed with the institute's own key, untouched, whose key was later withdrawn as
+        // compromised. Its holder holds the registered file itself (same SHA-256), so its record may be shown.
+        const withdrawnKey = verdict === 'tampered' && /signing key was withdrawn/.test(signature.reason ?? '');
+        const registered = withdrawnKey ? await manager.getRepository(CertificateEntity).findOneBy({ pdfSha256: file.sha256 }) : null;
+        const certificate = registered && (!file.numberInFile || registered.number === file.numberInFile) ? await describe(manager, registered) : null;
+        return { ...base, verdict, tamper, headline: tamper ? tamperHeadlines[tamper] : headlines[verdict], reason: signature.reason ?? null, certificate };
       }
       const row = await manager.getRepository(CertificateEntity).findOneBy({ pdfSha256: file.sha256 });
       if (!row || (file.numberInFile && row.number !== file.numberInFile)) {
@@ -132,7 +137,10 @@ export function createVerificationService(dataSource: DataSource, config: AppCon
         return { ...base, verdict: 'not-issued-here', headline: headlines['not-issued-here'], reason: `no certificate numbered ${number} with this SHA-256 was issued here` };
       }
       const verdict = stateVerdict(row);
-      const reason = verdict === 'valid' ? null : 'check the file itself (upload it) for the newer revision or the reason for the withdrawal';
+      const revokedAt = await signingKeyRevokedAt(dataSource.manager, row.id);
+      const keyNote = revokedAt ? `the key that signed this certificate was withdrawn on ${revokedAt} after a compromise; upload the file to check whether its time-stamp predates the compromise` : null;
+      const stateNote = verdict === 'valid' ? null : 'check the file itself (upload it) for the newer revision or the reason for the withdrawal';
+      const reason = [stateNote, keyNote].filter(Boolean).join('; ') || null;
       return { ...base, verdict, headline: headlines[verdict], reason };
     },
   };
