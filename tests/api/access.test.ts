@@ -103,6 +103,8 @@ describe('access matrix (every route × six callers)', () => {
   /** The real record each path parameter names (Highridge's), or a guessed id for callers allowed to write. */
   function concretePath(path: string, campaign: 'draft' | 'accepted', guessed: boolean): string {
     const pick = (): string => {
+      // Browser sessions are named by the SHA-256 of their id, not by a UUID.
+      if (path.startsWith('/api/v1/admin/sessions/')) return 'be'.repeat(32);
       if (guessed) return GUESSED;
       if (path.startsWith('/api/v1/campaigns/')) return campaign === 'draft' ? obj.draft : obj.accepted;
       if (path.startsWith('/api/v1/uploads/')) return path.endsWith('/progress') ? GUESSED : obj.series;

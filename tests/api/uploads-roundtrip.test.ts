@@ -86,10 +86,13 @@ describe('samples export', () => {
     expect(Number(rows[5].y)).toBe(referenceRatio === '1' ? 0 : Number(new Decimal(1).div(referenceRatio).minus(1)));
   });
 
-  it('follows the reading rule of the upload detail: clock B’s lab and auditors read, other labs get 404', async () => {
+  it('follows the reading rule of the upload detail: clock B’s lab reads, auditors once accepted, other labs get 404', async () => {
     const campaignId = await insertUploadCampaign(t.ds);
     const id = await uploadTo(campaignId);
     expect((await request(t.app).get(`/api/v1/uploads/${id}/samples.csv`).set('authorization', `Bearer ${otherLab}`)).status).toBe(200);
+    // auditors see accepted and certified campaigns only (docs/decisions/0004-campaign-visibility.md)
+    expect((await request(t.app).get(`/api/v1/uploads/${id}/samples.csv`).set('authorization', `Bearer ${auditor}`)).status).toBe(404);
+    await t.ds.query(`UPDATE campaign SET state = 'accepted' WHERE id = $1`, [campaignId]);
     expect((await request(t.app).get(`/api/v1/uploads/${id}/samples.csv`).set('authorization', `Bearer ${auditor}`)).status).toBe(200);
     // a campaign between SCL and the coordination office: HMO's lab staff have no part in it
     const notTheirs = await uploadTo(await insertUploadCampaign(t.ds, { otherInstituteCode: 'NGCO' }));

@@ -129,7 +129,8 @@ function readSignatureField(pdf: Buffer, text: string, match: RegExpMatchArray, 
         : `${extra} bytes were put into the file before the signature, or bytes inside it were changed, after signing (the signed byte range no longer lines up with the file)`,
     );
   }
-  if (pdf[b] !== 0x3c || pdf[c - 1] !== 0x3e) throw new Tampered('the gap in the signed byte range is not a hex string');
+  // The byte range no longer lands on the signature's hex string: bytes were put in before it, or changed, after signing.
+  if (pdf[b] !== 0x3c || pdf[c - 1] !== 0x3e) throw new Tampered('the gap in the signed byte range is not the signature: bytes were put into the file before the signature, or bytes inside it were changed, after signing');
   for (let i = b + 1; i < c - 1; i++) if (!isHexDigit(pdf[i])) throw new Tampered('the gap in the signed byte range holds more than the signature');
   let k = b - 1;
   while (k >= 0 && isWhitespace(pdf[k])) k--;
