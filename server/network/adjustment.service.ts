@@ -233,6 +233,9 @@ export async function executeRun(dataSource: DataSource, runId: string, onProgre
   if (!run || run.state === 'done' || run.state === 'failed') return;
   await repo.update({ id: runId }, { state: 'running', startedAt: new Date(), progress: 0.02, stage: 'loading inputs' });
   await onProgress?.(0.02, 'loading inputs');
+  // Test-only fault hook (the worker-kill test): pause after the first progress report; inert unless set.
+  const faultPause = Number(process.env.CHRONOLEVEL_FAULT_PAUSE_MS ?? 0);
+  if (faultPause > 0) await new Promise((r) => setTimeout(r, faultPause));
   let lastWrite = 0;
   const pending: Promise<unknown>[] = [];
   try {
