@@ -63,14 +63,17 @@ if (!fs.existsSync(builtIndex) || fs.statSync(builtIndex).mtimeMs < sources) {
 const server = spawn(process.execPath, ['--import', 'tsx', 'server/index.ts'], { stdio: ['inherit', 'inherit', 'inherit', 'ipc'], env });
 server.on('message', (m) => {
   if (m && m.ready) {
+    const roles = [['operator', 'Lab staff (operator)'], ['coordinator', 'Coordinator'], ['auditor', 'Auditor'], ['admin', 'Administrator']];
+    const people = roles
+      .map(([role, label]) => [label, (m.people ?? []).filter((p) => p.role === role)])
+      .filter(([, list]) => list.length)
+      .map(([label, list]) => `    ${`${label}:`.padEnd(24)}${list.map((p) => `${p.name} <${p.email}> (${p.institute})`).join(', ')}`)
+      .join('\n');
     console.log(`
   Chronolevel is running: open ${m.url}
-  Sign in with "Sign in" → the local identity provider lists the invented demo people:
-    Lab staff (operator):   ines.varga@saltmarsh-lab.invalid, mira.ostrowe@highridge-obs.invalid
-    Coordinator:            ansel.brandt@geopotential-office.invalid
-    Auditor:                petra.lind@audit-bureau.invalid
-    Administrator:          yusra.holm@geopotential-office.invalid
-  API documentation: ${m.url}/api/v1/openapi.json    Mail catcher: ${env.MAILBOX_URL ?? 'http://127.0.0.1:8181'}/messages
+  Press "Sign in with your institute"; the local identity provider then lists the invented demo people:
+${people}
+  API documentation: ${m.url}/api/v1/openapi.json    Test mailbox: ${env.MAILBOX_URL ?? 'http://127.0.0.1:8181'}/messages
   Press Ctrl-C to stop everything started here.
 `);
     if (env.CHRONOLEVEL_DEV_SERVICES !== '0') {

@@ -31,6 +31,9 @@ export const certificatesSeeder: Seeder = {
       SESSION_SECRET: process.env.SESSION_SECRET ?? 'unused-by-the-certificate-seed',
       SECRETS_DIR: path.resolve(process.env.SECRETS_DIR ?? '.secrets'),
     });
-    await issueCertificate({ manager, config, actor, loadSource: loadCertificateSource, markCertified }, campaignId);
+    await issueCertificate({ manager, config, actor, loadSource: loadCertificateSource, markCertified }, campaignId, {
+      comment: 'Demo: reviewed against the pinned budgets and the uploaded series.',
+      justification: 'Demo: the invented scenario certifies this campaign as it stands; a real review would explain each exception here.',
+    });
   },
 };

@@ -1,7 +1,9 @@
+import { createHash } from 'node:crypto';
 import { HeightDatumEntity, BenchmarkEntity, LevellingSectionEntity, AdjustmentRunEntity } from '../server/db/entities/network.entities';
 import { computeRunResult, gatherInputs } from '../server/network/adjustment.service';
 import { normalGravityForSection } from '../server/network/network.service';
 import { cFromNormalHeight } from '../server/science/normal-gravity';
+import { convertPotential, heightMeanMinusZeroTideM } from '../server/science/tides';
 import { transform } from '../server/science/geodesy';
 import { adjustmentOptionsSchema } from '../shared/network';
 import type { Seeder } from './demo';
@@ -95,15 +97,23 @@ export const networkSeeder: Seeder = {
       for (const b of list) {
         // The highland datum was (in this invented story) realised 0.15 m above the coastal one: its known heights carry
         // that offset, which levelling cannot see (the regions are not joined) but the clocks can.
-        const c = cFromNormalHeight(b.h + (datum === highlandDatum ? HIGHLAND_DATUM_EXCESS_M : 0), b.lat);
+        // The invented true heights b.h are mean-tide; the coastal datum is zero-tide, so its known values carry the
+        // permanent-tide shift (Ekman 1989), which every comparison with clocks (mean-tide) converts back.
+        const cMean = cFromNormalHeight(b.h + (datum === highlandDatum ? HIGHLAND_DATUM_EXCESS_M : 0), b.lat);
+        const cDatum = datum.tideSystem === 'mean-tide' ? cMean : convertPotential(cMean, b.lat, 'mean-tide', datum.tideSystem);
+        const hDatum = b.h + (datum === highlandDatum ? HIGHLAND_DATUM_EXCESS_M : 0) - (datum.tideSystem === 'zero-tide' ? heightMeanMinusZeroTideM(b.lat) : 0);
+        // Every known value states its tide system. HD-01's value was (in the story) published in zero-tide, while the
+        // highland datum is mean-tide: it is stored as published and converted by every run (a visible conversion).
+        const valueSystem = b.code === 'HD-01' ? 'zero-tide' as const : datum.tideSystem;
+        const c = valueSystem === datum.tideSystem ? cDatum : convertPotential(cDatum, b.lat, datum.tideSystem, valueSystem);
         const h = b.h + QUASIGEOID_M;
         // One benchmark is entered in UTM zone 32N to show that any supported CRS works; the GRS80 values are derived.
         const [crs, coords] = b.utm ? ['EPSG:25832', utmOf(b.lat, b.lon)] : ['EPSG:4937', [b.lon, b.lat, h]];
         const row = await repo.save({
           code: b.code, name: b.name, datumId: datum.id, crs, coordinatesEntered: coords,
           latitudeDeg: b.lat, longitudeDeg: b.lon, ellipsoidalHeightM: h,
-          knownEnteredAs: b.known ? 'H' : null, knownC_m2s2: b.known ? c : null, knownNormalHeightM: b.known ? b.h + (datum === highlandDatum ? HIGHLAND_DATUM_EXCESS_M : 0) : null,
-          knownUncertaintyC_m2s2: b.known ? (b.fixed ? 0 : 0.02) : null, fixed: !!b.fixed,
+          knownEnteredAs: b.known ? 'H' : null, knownC_m2s2: b.known ? c : null, knownNormalHeightM: b.known ? hDatum - (valueSystem === datum.tideSystem ? 0 : heightMeanMinusZeroTideM(b.lat)) : null,
+          knownUncertaintyC_m2s2: b.known ? (b.fixed ? 0 : 0.02) : null, fixed: !!b.fixed, knownTideSystem: b.known ? valueSystem : null,
           monumentation: b.fixed ? 'Bronze bolt in bedrock, protected by a cast-iron cover (invented).' : 'Stainless bolt in a concrete pillar (invented).',
           state: b.destroyed ? 'destroyed' : 'in-use',
         });
@@ -149,7 +159,7 @@ export const networkSeeder: Seeder = {
       inputSummary: {
         benchmarks: Object.values(inputs.pointMeta).filter((p) => p.kind === 'benchmark').length,
         sections: inputs.adjustment.observations.filter((o) => o.kind === 'levelling').length,
-        ties: inputs.adjustment.observations.filter((o) => o.kind === 'tie').length, clocks: 0, inputSha256: 'demo-seed',
+        ties: inputs.adjustment.observations.filter((o) => o.kind === 'tie').length, clocks: 0, inputSha256: createHash('sha256').update(JSON.stringify(inputs)).digest('hex'),
       },
       result: result as never, sigma0: result.sigma0, degreesOfFreedom: result.degreesOfFreedom, globalTestPassed: result.globalTest?.passed ?? null,
       suspects: result.snooping.suspects.length, createdBy: userIds['ansel.brandt@geopotential-office.invalid'] ?? null, startedAt: at, finishedAt: at,

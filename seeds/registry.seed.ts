@@ -76,7 +76,7 @@ export const registrySeeder: Seeder = {
     const grid = parseQuasigeoidGrid(gridText);
     const gridRow = await manager.getRepository(QuasigeoidGridEntity).save({
       name: 'Demo quasigeoid 2026 (invented)', fileName: 'demo-quasigeoid-2026.txt', sha256: crypto.createHash('sha256').update(gridText).digest('hex'),
-      ...grid, heightsM: Array.from(grid.heightsM), uncertaintyM: 0.03, uploadedBy: ansel.name, createdAt: day('2026-01-08T10:00:00Z'),
+      ...grid, heightsM: Array.from(grid.heightsM), uncertaintyM: 0.03, tideSystem: 'zero-tide', correlationLengthKm: null, uploadedBy: ansel.name, createdAt: day('2026-01-08T10:00:00Z'),
     });
 
     const site = async (s: { institute: string; name: string; ref: string; crs: string; coords: number[]; uH: number; zeta: { heightM: number; u: number } | 'grid'; tie: [string, number, number]; at: string }) => {
@@ -88,6 +88,8 @@ export const registrySeeder: Seeder = {
         xM: p.x, yM: p.y, zM: p.z, assumptions: p.assumptions,
         quasigeoidSource: s.zeta === 'grid' ? 'grid' : 'entered', quasigeoidGridId: s.zeta === 'grid' ? gridRow.id : null,
         quasigeoidHeightM: zetaM, quasigeoidUncertaintyM: s.zeta === 'grid' ? gridRow.uncertaintyM : s.zeta.u,
+        // Invented but explicit: GNSS heights tide-free (ITRF convention), ζ zero-tide (grid and entered value alike).
+        ellipsoidalCrustSystem: 'tide-free', quasigeoidTideSystem: 'zero-tide',
         benchmarkCode: s.tie[0], tieHeightDifferenceM: s.tie[1], tieUncertaintyM: s.tie[2], createdAt: day(s.at), updatedAt: day(s.at),
       } as SiteRow);
     };

@@ -76,10 +76,15 @@ export const uploadsSeeder: Seeder = {
         b: { latitudeDeg: c.lat_b, longitudeDeg: c.lon_b, ellipsoidalHeightM: c.eh_b },
       };
       const csv = inventedSeriesCsv({ startMjd: Math.ceil(campaign.periodStartMjd) + 0.25, yGrav, asRatio: campaign.referenceRatio === '1', seed: 1000 + n, label: c.name, sites });
-      await storeSeries(client, null, {
+      const stored = await storeSeries(client, null, {
         campaign, fileName: `invented-${c.name.replace(/[^A-Za-z0-9]+/g, '-').toLowerCase()}.csv`, source: Readable.from([Buffer.from(csv)]),
         fields: { epochColumn: '1', epochKind: 'mjd', valueColumn: '2', valueKind: campaign.referenceRatio === '1' ? 'ratio' : 'offset', flagColumn: '3' },
         limitBytes: 64 * 1024 * 1024, invented: true,
+      });
+      // The same audit event a real upload writes, so the campaign's audit trail lists its series.
+      await recordAudit(manager, null, {
+        action: 'campaign.series-uploaded', entityType: 'ratio_series', entityId: stored.id, instituteId: campaign.instituteId,
+        details: { campaignId: c.id, fileName: stored.file_name, sha256: stored.sha256, rows: stored.row_count, valid: stored.valid_count, invented: true },
       });
       n++;
     }

@@ -16,6 +16,8 @@ import type { AppDeps } from './deps';
 import { NotFound } from './http/errors';
 import { buildOpenApi } from './http/openapi';
 import { problemHandler } from './http/problem';
+import { mountRateLimits } from './http/rate-limits';
+import { armFaultPoint } from './dev/fault-point';
 import { mountRoutes } from './http/route';
 import { apiRoutes } from './routes';
 import { actorFromToken } from './tokens/tokens.service';
@@ -41,6 +43,7 @@ export function requestLine(logger: AppDeps['logger']) {
 /** Builds the Express app without listening; the server process and the tests both use it. */
 export function createApp(deps: AppDeps) {
   const { config, dataSource, logger } = deps;
+  armFaultPoint(config.faultPoint);
   const app = express();
   app.disable('x-powered-by');
   if (config.trustProxy) app.set('trust proxy', 1);
@@ -118,12 +121,13 @@ export function createApp(deps: AppDeps) {
     }
   });
 
+  mountRateLimits(app, deps);
   app.use('/auth/logout', csrfGuard);
   app.use(createAuthRouter(strategy, { config, dataSource }));
 
   const api = express.Router();
-  // The stability calculator takes up to ~2e6 numbers as JSON (~40 MB); every other route keeps the 20 MB limit.
-  api.use('/api/v1/calc/stability', express.json({ limit: '48mb' }));
+  // The stability calculator takes up to MAX_STABILITY_SAMPLES (2e5) numbers as JSON (~5 MB at 24 characters each).
+  api.use('/api/v1/calc/stability', express.json({ limit: '6mb' }));
   api.use(express.json({ limit: '20mb' }));
   api.use(csrfGuard);
   mountRoutes(api, apiRoutes, deps);

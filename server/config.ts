@@ -35,6 +35,29 @@ const envSchema = z.object({
   TSA_URL: z.string().url().default('http://127.0.0.1:8182'),
   /** PEM file with the root certificate(s) of the time-stamping authority, trusted when verifying. */
   TSA_ROOT_CERT_FILE: z.string().optional(),
+  DB_POOL_MAX: z.coerce.number().int().min(2).max(500).default(20),
+  DB_IDLE_IN_TRANSACTION_TIMEOUT_MS: z.coerce.number().int().min(1000).default(60_000),
+  /** longest time one upload's COPY may run (a slow client included) before PostgreSQL cancels it */
+  UPLOAD_STATEMENT_TIMEOUT_MS: z.coerce.number().int().min(1000).default(20 * 60_000),
+  /** a file part that sends no byte for this long is treated as abandoned */
+  UPLOAD_IDLE_TIMEOUT_MS: z.coerce.number().int().min(1000).default(60_000),
+  /** longest line accepted in an uploaded CSV file, in bytes of text */
+  UPLOAD_MAX_LINE_BYTES: z.coerce.number().int().min(256).default(64 * 1024),
+  SECTIONS_UPLOAD_LIMIT_BYTES: z.coerce.number().int().positive().default(64 * 1024 * 1024),
+  /** rate limiting; on by default, off by default under NODE_ENV=test (the limiter tests turn it on) */
+  RATE_LIMITS: z.enum(['on', 'off']).optional(),
+  RATE_LIMIT_SIGN_IN_PER_MINUTE: z.coerce.number().int().positive().default(30),
+  RATE_LIMIT_VERIFY_PER_MINUTE: z.coerce.number().int().positive().default(30),
+  RATE_LIMIT_CALC_PER_MINUTE: z.coerce.number().int().positive().default(60),
+  RATE_LIMIT_UPLOADS_PER_MINUTE: z.coerce.number().int().positive().default(20),
+  SAML_REQUEST_PRUNE_INTERVAL_MS: z.coerce.number().int().min(1000).default(10 * 60_000),
+  STABILITY_WORKERS: z.coerce.number().int().min(1).max(16).default(1),
+  /** test-only fault hook (see server/dev/fault-point.ts); refused when NODE_ENV=production */
+  CHRONOLEVEL_FAULT_POINT: z.string().regex(/^[a-z-]+$/).optional(),
+  /** Accepting or certifying a campaign whose uptime is below this fraction needs a written justification. */
+  REVIEW_MIN_UPTIME: z.coerce.number().min(0).max(1).default(0.5),
+  /** '1': the person who accepted a campaign may not also issue its certificate (four-eyes rule). */
+  REVIEW_FOUR_EYES: z.enum(['0', '1']).default('0'),
 });
 
 export type AppConfig = {
@@ -63,6 +86,15 @@ export type AppConfig = {
   devServicesOffLoopback: boolean;
   tsaUrl: string;
   tsaRootCertFile: string;
+  db: { poolMax: number; idleInTransactionTimeoutMs: number };
+  upload: { statementTimeoutMs: number; idleTimeoutMs: number; maxLineBytes: number; sectionsLimitBytes: number };
+  /** requests per minute per caller (user, else client address); `enabled: false` turns every limiter off */
+  rateLimits: { enabled: boolean; signInPerMinute: number; verifyPerMinute: number; calcPerMinute: number; uploadsPerMinute: number };
+  samlRequestPruneIntervalMs: number;
+  stabilityWorkers: number;
+  faultPoint?: string;
+  reviewMinUptimeFraction: number;
+  reviewFourEyes: boolean;
 };
 
 /** A secret kept in the git-ignored secrets folder, created on first use. */
@@ -101,5 +133,19 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): AppConfig {
     devServicesOffLoopback: e.DEV_SERVICES_OFF_LOOPBACK === '1',
     tsaUrl: e.TSA_URL.replace(/\/$/, ''),
     tsaRootCertFile: e.TSA_ROOT_CERT_FILE ?? path.join(secretsDir, 'tsa', 'tsa-root.pem'),
+    db: { poolMax: e.DB_POOL_MAX, idleInTransactionTimeoutMs: e.DB_IDLE_IN_TRANSACTION_TIMEOUT_MS },
+    upload: {
+      statementTimeoutMs: e.UPLOAD_STATEMENT_TIMEOUT_MS, idleTimeoutMs: e.UPLOAD_IDLE_TIMEOUT_MS, maxLineBytes: e.UPLOAD_MAX_LINE_BYTES,
+      sectionsLimitBytes: e.SECTIONS_UPLOAD_LIMIT_BYTES,
+    },
+    rateLimits: {
+      enabled: e.RATE_LIMITS ? e.RATE_LIMITS === 'on' : e.NODE_ENV !== 'test', signInPerMinute: e.RATE_LIMIT_SIGN_IN_PER_MINUTE, verifyPerMinute: e.RATE_LIMIT_VERIFY_PER_MINUTE,
+      calcPerMinute: e.RATE_LIMIT_CALC_PER_MINUTE, uploadsPerMinute: e.RATE_LIMIT_UPLOADS_PER_MINUTE,
+    },
+    samlRequestPruneIntervalMs: e.SAML_REQUEST_PRUNE_INTERVAL_MS,
+    stabilityWorkers: e.STABILITY_WORKERS,
+    faultPoint: e.NODE_ENV === 'production' ? undefined : e.CHRONOLEVEL_FAULT_POINT,
+    reviewMinUptimeFraction: e.REVIEW_MIN_UPTIME,
+    reviewFourEyes: e.REVIEW_FOUR_EYES === '1',
   };
 }

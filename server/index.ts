@@ -3,6 +3,8 @@ import type { Server } from 'node:http';
 import { createApp } from './app';
 import { loadConfig } from './config';
 import { openDatabase } from './db/data-source';
+import { startHousekeeping } from './maintenance/housekeeping';
+import { closeStabilityPool, configureStabilityPool } from './calc/stability-pool';
 import { startFakeIdp } from './dev/fake-idp';
 import { startFakeSmtp } from './dev/fake-smtp';
 import { assertDevServicesAllowed, DEMO_STAND_IN_NOTICE } from './dev/guard';
@@ -10,12 +12,13 @@ import { startFakeTsa } from './dev/fake-tsa';
 import { createLogger } from './logger';
 import { createMailSender } from './mail/outbox';
 import { seedDemo } from '../seeds/demo';
+import { demoPeople } from '../seeds/people';
 import { startWorker } from './jobs/worker';
 import { stopQueues } from './jobs/queue';
 import { migrateDatabase, privilegeWarnings, roleOfUrl } from './db/roles';
 import { writeAuditCheckpoint } from './audit/verify';
 
-// The server process: configuration, local stand-ins (identity provider, mail catcher, time-stamping authority), database, HTTP.
+// The server process: configuration, local stand-ins (identity provider, test mailbox, time-stamping authority), database, HTTP.
 const withDevServices = process.env.CHRONOLEVEL_DEV_SERVICES !== '0';
 const config = loadConfig();
 const logger = createLogger(config.logLevel);
@@ -29,7 +32,7 @@ async function main() {
     const smtpPort = Number(new URL(config.smtpUrl).port || 2525);
     const smtp = await startFakeSmtp({ smtpPort, httpPort: Number(new URL(config.mailboxUrl).port || 8181) });
     closers.push(smtp.close);
-    logger.info({ idp: idp.url, smtp: smtp.smtpUrl, mailbox: smtp.mailboxUrl }, 'local identity provider and mail catcher started');
+    logger.info({ idp: idp.url, smtp: smtp.smtpUrl, mailbox: smtp.mailboxUrl }, 'local identity provider and test mailbox started');
     logger.warn(DEMO_STAND_IN_NOTICE);
     if (!process.env.TSA_URL) {
       // The local time-stamping authority, unless TSA_URL names a real one.
@@ -43,7 +46,10 @@ async function main() {
   const migrationUrl = process.env.MIGRATION_DATABASE_URL;
   delete process.env.MIGRATION_DATABASE_URL;
   if (migrationUrl) await migrateDatabase({ migrationUrl, appRole: roleOfUrl(config.databaseUrl) });
-  const dataSource = await openDatabase(config.databaseUrl, { migrate: !migrationUrl && process.env.CHRONOLEVEL_MIGRATED !== '1' });
+  const dataSource = await openDatabase(config.databaseUrl, {
+    migrate: !migrationUrl && process.env.CHRONOLEVEL_MIGRATED !== '1',
+    pool: { max: config.db.poolMax, idleInTransactionTimeoutMs: config.db.idleInTransactionTimeoutMs },
+  });
   closers.push(() => dataSource.destroy());
   for (const w of await privilegeWarnings(dataSource)) logger.warn(`WARNING: ${w}`);
   if (process.env.CHRONOLEVEL_SEED !== '0') {
@@ -66,6 +72,11 @@ async function main() {
   const mail = createMailSender({ dataSource, smtpUrl: config.smtpUrl, from: config.mailFrom, logger, retry: config.mailRetry });
   if (inlineWorker) mail.start();
   closers.push(() => mail.stop());
+  configureStabilityPool(config.stabilityWorkers);
+  closers.push(() => closeStabilityPool());
+  // expired SAML request ids and ended rate-limit windows
+  const housekeeping = startHousekeeping(dataSource, { intervalMs: config.samlRequestPruneIntervalMs, onError: (e) => logger.warn({ err: e }, 'housekeeping failed') });
+  closers.unshift(() => housekeeping.stop());
   const app = createApp({ config, dataSource, logger, mail });
   const server: Server = await new Promise((resolve) => {
     const s = app.listen(config.port, config.host, () => resolve(s));
@@ -73,7 +84,8 @@ async function main() {
   closers.unshift(() => new Promise<void>((r) => server.close(() => r())));
   closers.push(() => app.locals.closeSessionPool?.());
   logger.info(`Chronolevel is serving on ${config.publicUrl}`);
-  process.send?.({ ready: true, url: config.publicUrl });
+  // The start banner lists every demo person the local identity provider offers.
+  process.send?.({ ready: true, url: config.publicUrl, people: demoPeople.map((p) => ({ email: p.email, name: p.displayName, role: p.role, institute: p.instituteCode })) });
 }
 
 async function shutdown(signal: string) {

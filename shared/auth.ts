@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { patchOf } from './http';
+import { nameText, pageQuerySchema, patchOf, sortableBy } from './http';
 
 export const roles = ['operator', 'coordinator', 'auditor', 'admin'] as const;
 export const roleSchema = z.enum(roles);
@@ -47,8 +47,8 @@ export type User = z.infer<typeof userSchema>;
 
 export const createInstituteSchema = z.object({
   code: z.string().trim().min(2).max(24).regex(/^[A-Z0-9-]+$/, 'upper-case letters, digits and hyphens'),
-  name: z.string().trim().min(2).max(200),
-  city: z.string().trim().max(120).nullable().default(null),
+  name: nameText(2, 200),
+  city: nameText(0, 120).nullable().default(null),
   kind: z.enum(['laboratory', 'coordinating', 'audit', 'other']),
 });
 export type CreateInstitute = z.infer<typeof createInstituteSchema>;
@@ -72,7 +72,7 @@ export type ApiToken = z.infer<typeof apiTokenSchema>;
 export const DEFAULT_TOKEN_DAYS = 90;
 export const MAX_TOKEN_DAYS = 365;
 export const createApiTokenSchema = z.object({
-  name: z.string().trim().min(1).max(80),
+  name: nameText(1, 80),
   expiresInDays: z.number().int().min(1).max(MAX_TOKEN_DAYS).default(DEFAULT_TOKEN_DAYS),
 });
 export const createdApiTokenSchema = z.object({ token: apiTokenSchema, secret: z.string() });
@@ -111,3 +111,6 @@ export const sessionIdParamsSchema = z.object({ id: z.string().regex(/^[0-9a-f]{
 /** The code is the institute's identity in assertions and certificates, so it is not editable. */
 export const updateInstituteSchema = patchOf(createInstituteSchema.omit({ code: true }));
 export type UpdateInstitute = z.infer<typeof updateInstituteSchema>;
+export const userSortFields = ['email', 'displayName', 'role', 'lastSignInAt'] as const;
+export const userListQuery = pageQuerySchema.extend({ sort: sortableBy(userSortFields) });
+export type UserListQuery = z.infer<typeof userListQuery>;

@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { nameText } from './http';
 
 // Calculator contract: stateless conversions on top of the science core. Ratios are decimal strings (never JSON numbers,
 // which would drop digits beyond the 17th); everything else is a plain number with its unit in the field name.
@@ -31,12 +32,16 @@ export const redshiftResponseSchema = z.object({
 });
 export type RedshiftResponse = z.infer<typeof redshiftResponseSchema>;
 
-export const MAX_STABILITY_SAMPLES = 2_000_000;
+/**
+ * Longest series the stability calculator takes in one request (≈ 2.3 days at 1 s; ≈ 4 MB of JSON). Longer series
+ * belong in an upload, whose stability is computed from the stored samples.
+ */
+export const MAX_STABILITY_SAMPLES = 200_000;
 export const stabilityRequestSchema = z
   .object({
     tau0Seconds: z.number().positive().refine(Number.isFinite, 'must be finite'),
-    fractionalFrequency: z.array(z.number()).min(3).max(MAX_STABILITY_SAMPLES).optional(),
-    phaseSeconds: z.array(z.number()).min(4).max(MAX_STABILITY_SAMPLES).optional(),
+    fractionalFrequency: z.array(z.number()).min(3).max(MAX_STABILITY_SAMPLES, `at most ${MAX_STABILITY_SAMPLES} samples per request`).optional(),
+    phaseSeconds: z.array(z.number()).min(4).max(MAX_STABILITY_SAMPLES, `at most ${MAX_STABILITY_SAMPLES} samples per request`).optional(),
     /** Averaging times, each a whole multiple of τ0; octaves 1, 2, 4 … × τ0 when omitted. */
     tauSeconds: z.array(z.number().positive()).min(1).max(200).optional(),
   })
@@ -103,8 +108,8 @@ export const geodesicResponseSchema = z.object({
 export type GeodesicResponse = z.infer<typeof geodesicResponseSchema>;
 
 export const transformRequestSchema = z.object({
-  from: z.string().trim().min(1).max(500),
-  to: z.string().trim().min(1).max(500),
+  from: nameText(1, 500),
+  to: nameText(1, 500),
   /** Longitude first for geographic CRSs (as proj4): [lon, lat, h?]; [E, N] projected; [X, Y, Z] geocentric. */
   coordinates: z.array(finite).min(2).max(3),
 });

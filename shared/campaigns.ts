@@ -1,4 +1,5 @@
 import { z } from 'zod';
+import { nameText, sortableBy } from './http';
 import { budgetVersionSchema, decimalString, speciesSchema } from './registry';
 
 // The campaign contract: two clocks compared over one fibre link during a period, with a reference ratio,
@@ -48,7 +49,7 @@ export const referenceRatioChoice = z
 export type ReferenceRatioChoice = z.infer<typeof referenceRatioChoice>;
 
 const campaignFields = {
-  name: z.string().trim().min(2).max(120),
+  name: nameText(2, 120),
   clockAId: z.string().uuid(),
   clockBId: z.string().uuid(),
   linkId: z.string().uuid(),
@@ -77,6 +78,28 @@ export const updateCampaignSchema = z.object({
   budgetVersionB: z.number().int().min(1).optional(),
 });
 export type UpdateCampaign = z.infer<typeof updateCampaignSchema>;
+
+/** What a reviewer confirms before accepting; each tick is audited. */
+export const reviewChecklistItems = ['budgetVersionsPinned', 'referenceRatioSource', 'tideSystem', 'uploadsComplete'] as const;
+export type ReviewChecklistItem = (typeof reviewChecklistItems)[number];
+export const reviewChecklistLabels: Record<ReviewChecklistItem, string> = {
+  budgetVersionsPinned: 'Both clocks’ budget versions are the ones this campaign should use (pinned)',
+  referenceRatioSource: 'The reference ratio ν_B/ν_A and its source are right for these species',
+  tideSystem: 'The tide system of the result matches the height datum it is compared with',
+  uploadsComplete: 'Every ratio series of the campaign period is uploaded',
+};
+export const checklistTickSchema = z.object({ item: z.enum(reviewChecklistItems), checked: z.boolean() });
+
+const reviewerComment = z.string().trim().min(5, 'write a comment of at least 5 characters for the record').max(2000);
+/** A justification is required (server-side) when the campaign has review exceptions; otherwise it is ignored. */
+export const justificationField = z.string().trim().min(10, 'explain in at least 10 characters why this is acceptable').max(4000).optional();
+export const acceptCampaignSchema = z.object({ comment: reviewerComment, justification: justificationField });
+export type AcceptCampaign = z.infer<typeof acceptCampaignSchema>;
+export const issueCertificateSchema = z.object({ comment: reviewerComment, justification: justificationField });
+export type IssueCertificateBody = z.infer<typeof issueCertificateSchema>;
+
+export const reviewExceptionSchema = z.object({ code: z.enum(['no-result', 'no-comparison', 'en-not-agreed', 'low-uptime']), text: z.string() });
+export type ReviewException = z.infer<typeof reviewExceptionSchema>;
 
 export const returnCampaignSchema = z.object({ reason: z.string().trim().min(5, 'give the lab a reason').max(4000) });
 export const transitionNoteSchema = z.object({ note: z.string().trim().max(2000).optional() });
@@ -134,15 +157,29 @@ export const campaignSchema = campaignSummarySchema.extend({
   createdBy: z.string(),
   createdAt: z.string(),
   timeline: z.array(campaignEventSchema),
+  review: z.object({
+    checklist: z.array(z.object({ item: z.enum(reviewChecklistItems), label: z.string(), checked: z.boolean(), by: z.string().nullable(), at: z.string().nullable() })),
+    /** From the newest stored result (none is computed by reading); accepting computes it afresh and checks again. */
+    exceptions: z.array(reviewExceptionSchema),
+    resultComputed: z.boolean(),
+    minUptimeFraction: z.number(),
+    fourEyes: z.boolean(),
+    acceptedBy: z.string().nullable(),
+    acceptedAt: z.string().nullable(),
+    acceptanceComment: z.string().nullable(),
+    acceptanceJustification: z.string().nullable(),
+    acceptanceExceptions: z.array(z.string()),
+  }),
   /** What the caller may do now (drives the buttons; the server checks again). */
-  allowed: z.object({ edit: z.boolean(), submit: z.boolean(), startReview: z.boolean(), accept: z.boolean(), return: z.boolean() }),
+  allowed: z.object({ edit: z.boolean(), submit: z.boolean(), startReview: z.boolean(), accept: z.boolean(), return: z.boolean(), tick: z.boolean() }),
 });
 export type Campaign = z.infer<typeof campaignSchema>;
 
+export const campaignSortFields = ['name', 'state', 'periodStart', 'periodEnd', 'updatedAt', 'institute'] as const;
 export const campaignListQuery = z.object({
   page: z.coerce.number().int().min(1).default(1),
   pageSize: z.coerce.number().int().min(1).max(500).default(25),
-  sort: z.string().max(60).optional(),
+  sort: sortableBy(campaignSortFields),
   order: z.enum(['asc', 'desc']).default('asc'),
   q: z.string().max(200).optional(),
   state: z.enum(campaignStates).optional(),

@@ -74,6 +74,8 @@ export const campaignIdParamsSchema = z.object({ id: z.string().uuid() });
 
 export const reissueCertificateSchema = z.object({
   reason: z.string().trim().min(3, 'say what was corrected').max(2000),
+  /** Needed when the campaign has review exceptions and the previous revision carries no justification. */
+  justification: z.string().trim().min(10, 'explain in at least 10 characters why this is acceptable').max(4000).optional(),
 });
 export type ReissueCertificate = z.infer<typeof reissueCertificateSchema>;
 
@@ -92,6 +94,8 @@ export const verificationResultSchema = z.object({
   headline: z.string(),
   /** Technical reason from the signature check or the registry, when not valid. */
   reason: z.string().nullable(),
+  /** For a broken signature: what the check found (changed or extended after signing, or another signer). */
+  tamper: z.enum(['changed-after-signing', 'foreign-signature', 'damaged-signature']).nullable().optional(),
   checkedBy: z.enum(['file', 'number-and-sha256']),
   file: z
     .object({ sha256: z.string(), bytes: z.number().int(), numberInFile: z.string().nullable(), signingTime: z.string().nullable() })

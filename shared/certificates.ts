@@ -52,6 +52,17 @@ export const allanPointSchema = z.object({
   high: z.number().positive(),
 });
 
+export const reviewDecisionSchema = z.object({
+  acceptedBy: z.string().nullable(),
+  acceptanceComment: z.string().nullable(),
+  certifiedBy: z.string().min(1),
+  certificationComment: z.string().min(1),
+  /** Review exceptions (Eₙ not agreed, low uptime, …) stated in words; empty when there were none. */
+  exceptions: z.array(z.string().min(1)),
+  justifications: z.array(z.object({ stage: z.enum(['acceptance', 'certification']), by: z.string().min(1), text: z.string().min(1) })),
+});
+export type ReviewDecision = z.infer<typeof reviewDecisionSchema>;
+
 export const certificateSnapshotSchema = z
   .object({
     certificateNumber: certificateNumberSchema,
@@ -109,6 +120,8 @@ export const certificateSnapshotSchema = z
     assumptions: z.array(z.string().min(1)).optional(),
     signer: z.object({ name: z.string().min(1), role: z.string().min(1) }),
     verificationUrl: z.url(),
+    /** The review decision behind the certificate: who accepted and certified, their comments, and why exceptions were accepted. */
+    review: reviewDecisionSchema.optional(),
   })
   .superRefine((s, ctx) => {
     const m = CERTIFICATE_NUMBER_PATTERN.exec(s.certificateNumber);

@@ -18,11 +18,18 @@ export type Problem = z.infer<typeof problemSchema>;
 export const pageQuerySchema = z.object({
   page: z.coerce.number().int().min(1).default(1),
   pageSize: z.coerce.number().int().min(1).max(500).default(25),
-  sort: z.string().max(60).optional(),
   order: z.enum(['asc', 'desc']).default('asc'),
   q: z.string().max(200).optional(),
 });
 export type PageQuery = z.infer<typeof pageQuerySchema>;
+
+/**
+ * A list's `sort` parameter: one of the list's own column names (a zod enum). A free string would end up as a key
+ * into a lookup table, where names every object inherits (`__proto__`, `constructor`) do harm.
+ */
+export function sortableBy<const T extends readonly [string, ...string[]]>(fields: T) {
+  return z.enum(fields).optional();
+}
 
 export function pageOf<T extends z.ZodTypeAny>(item: T) {
   return z.object({ items: z.array(item), total: z.number().int(), page: z.number().int(), pageSize: z.number().int() });
@@ -40,4 +47,14 @@ export function patchOf<T extends z.ZodRawShape>(schema: z.ZodObject<T>) {
     Object.entries(schema.shape).map(([key, field]) => [key, ((field instanceof z.ZodDefault ? field.unwrap() : field) as z.ZodTypeAny).optional()]),
   );
   return z.object(shape) as unknown as ReturnType<z.ZodObject<T>['partial']>;
+}
+
+/** Control characters (line breaks, tabs, escapes) and the Unicode line separators: never part of a name or label. */
+const CONTROL_CHARACTERS = /[\p{Cc}\u2028\u2029]/u;
+/**
+ * A one-line name or label: trimmed, between `min` and `max` characters, and without control characters — a CR/LF
+ * in a name breaks CSV rows, log lines, mail headers and PDF layouts downstream.
+ */
+export function nameText(min: number, max: number) {
+  return z.string().trim().min(min).max(max).refine((s) => !CONTROL_CHARACTERS.test(s), 'line breaks, tabs and other control characters are not allowed here');
 }

@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { pageQuerySchema } from './http';
+import { nameText, pageQuerySchema, sortableBy } from './http';
 
 // The levelling network's API contract: height datums, benchmarks, levelling sections, loops, adjustment runs,
 // reconciliation with clock results, the map, and the stateless adjustment calculator.
@@ -15,9 +15,9 @@ export const DEFAULT_SECTION_TOLERANCE_MM_PER_SQRT_KM = 4;
 export const DEFAULT_SIGMA_MM_PER_SQRT_KM = 1;
 
 export const heightDatumInputSchema = z.object({
-  name: z.string().trim().min(1).max(120),
+  name: nameText(1, 120),
   tideSystem: tideSystemSchema,
-  realisationEpoch: z.string().trim().max(40).nullable().optional(),
+  realisationEpoch: nameText(0, 40).nullable().optional(),
   loopToleranceMmPerSqrtKm: z.number().positive().max(100).default(DEFAULT_LOOP_TOLERANCE_MM_PER_SQRT_KM),
   sectionToleranceMmPerSqrtKm: z.number().positive().max(100).default(DEFAULT_SECTION_TOLERANCE_MM_PER_SQRT_KM),
   notes: z.string().max(4000).nullable().optional(),
@@ -41,14 +41,18 @@ const finite = z.number().refine(Number.isFinite, 'must be a finite number');
 export const benchmarkInputSchema = z
   .object({
     code: z.string().trim().min(1).max(40).regex(/^[A-Za-z0-9._-]+$/, 'letters, digits, dot, dash and underscore only'),
-    name: z.string().trim().min(1).max(200),
+    name: nameText(1, 200),
     datumId: z.string().uuid(),
     /** EPSG code or PROJ string; coordinates in that CRS's order (lon, lat[, h] for geographic; E, N for projected). */
     crs: z.string().trim().min(1).max(300),
     coordinates: z.array(finite).min(2).max(3),
     /** Known height as a geopotential number C [m²/s²] or a normal height H [m]; the other one is derived. */
     known: z
-      .object({ kind: z.enum(['C', 'H']), value: finite, uncertainty: z.number().min(0) })
+      .object({
+        kind: z.enum(['C', 'H']), value: finite, uncertainty: z.number().min(0),
+        /** Tide system the value is stated in; absent = not stated, and a run refuses to use it as a fixed value. */
+        tideSystem: tideSystemSchema.nullable().optional(),
+      })
       .nullable()
       .optional(),
     fixed: z.boolean().default(false),
@@ -78,18 +82,21 @@ export const benchmarkSchema = z.object({
   /** Standard uncertainty of the known C [m²/s²]. */
   knownUncertaintyC_m2s2: z.number().nullable(),
   knownUncertaintyM: z.number().nullable(),
+  /** Tide system of the known value (null: not stated). */
+  knownTideSystem: tideSystemSchema.nullable(),
   fixed: z.boolean(),
   monumentation: z.string().nullable(),
   state: z.enum(benchmarkStates),
 });
 export type Benchmark = z.infer<typeof benchmarkSchema>;
 
-export const benchmarkListQuerySchema = pageQuerySchema.extend({ datumId: z.string().uuid().optional() });
+export const benchmarkSortFields = ['code', 'name', 'datumName', 'latitudeDeg', 'longitudeDeg', 'knownNormalHeightM', 'fixed', 'state'] as const;
+export const benchmarkListQuerySchema = pageQuerySchema.extend({ datumId: z.string().uuid().optional(), sort: sortableBy(benchmarkSortFields) });
 
 export const sectionInputSchema = z.object({
-  lineName: z.string().trim().max(120).nullable().optional(),
-  fromCode: z.string().trim().min(1).max(40),
-  toCode: z.string().trim().min(1).max(40),
+  lineName: nameText(0, 120).nullable().optional(),
+  fromCode: nameText(1, 40),
+  toCode: nameText(1, 40),
   /** Measured height difference Δn, to minus from [m]. */
   deltaHeightM: finite.refine((v) => Math.abs(v) < 10_000, 'implausibly large'),
   lengthKm: z.number().positive().max(10_000),
@@ -122,7 +129,8 @@ export const sectionSchema = z.object({
   runCheckPassed: z.boolean().nullable(),
 });
 export type Section = z.infer<typeof sectionSchema>;
-export const sectionListQuerySchema = pageQuerySchema.extend({ datumId: z.string().uuid().optional() });
+export const sectionSortFields = ['lineName', 'fromCode', 'toCode', 'deltaHeightM', 'lengthKm', 'observedOn', 'meanGravity_ms2'] as const;
+export const sectionListQuerySchema = pageQuerySchema.extend({ datumId: z.string().uuid().optional(), sort: sortableBy(sectionSortFields) });
 
 export const sectionUploadQuerySchema = z.object({ preview: z.enum(['true', 'false']).default('false') });
 export const sectionUploadResultSchema = z.object({
@@ -193,7 +201,30 @@ export const runObservationSchema = z.object({
   residual_m2s2: z.number(),
   redundancy: z.number(),
   standardizedResidual: z.number().nullable(),
+  /** True only for observations that the data-snooping iteration removed (Baarda 1968). */
   suspected: z.boolean(),
+  /** Step of the iteration at which it was removed (1 = first); null when it stayed in. */
+  removedAtStep: z.number().int().nullable().optional(),
+  /** Σ coefficient × estimate of the shared parameters in this observation [m²/s²]. */
+  sharedEffect_m2s2: z.number().optional(),
+});
+const sharedParameterResultSchema = z.object({
+  name: z.string(),
+  label: z.string(),
+  /** Estimate of the shared systematic effect [m²/s²] (prior 0). */
+  value_m2s2: z.number(),
+  sigma_m2s2: z.number(),
+  priorSigma_m2s2: z.number(),
+  observations: z.number().int(),
+});
+const runDifferenceSchema = z.object({
+  from: z.string(),
+  to: z.string(),
+  deltaC_m2s2: z.number(),
+  /** √(q_ff + q_tt − 2q_ft), a-priori scale (σ0 = 1). */
+  sigma_m2s2: z.number(),
+  /** √(σ_f² + σ_t²): what neglecting the covariance would give (shown for comparison only). */
+  sigmaIgnoringCovariance_m2s2: z.number(),
 });
 export const runResultSchema = z.object({
   points: z.array(runPointSchema),
@@ -204,9 +235,28 @@ export const runResultSchema = z.object({
   vtpv: z.number(),
   sigma0: z.number().nullable(),
   globalTest: z.object({ statistic: z.number(), lower: z.number(), critical: z.number(), alpha: z.number(), passed: z.boolean() }).nullable(),
-  snooping: z.object({ alpha0: z.number(), criticalValue: z.number(), suspects: z.array(z.object({ id: z.string(), label: z.string(), standardizedResidual: z.number() })) }),
+  snooping: z.object({
+    alpha0: z.number(), criticalValue: z.number(),
+    /** Observations removed by the iteration, in order of removal, each with w at removal. */
+    suspects: z.array(z.object({ id: z.string(), label: z.string(), standardizedResidual: z.number(), step: z.number().int().optional() })),
+    stoppedEarly: z.boolean().optional(),
+    /** The first adjustment, before any removal. */
+    initial: z.object({ sigma0: z.number().nullable(), degreesOfFreedom: z.number().int(), globalTestPassed: z.boolean().nullable() }).optional(),
+  }),
   redundancySum: z.number(),
   elapsedMs: z.number(),
+  sharedParameters: z.array(sharedParameterResultSchema).optional(),
+  differences: z.array(runDifferenceSchema).optional(),
+  /**
+   * Whether σ of adjusted values and differences is used scaled by σ̂0: only when the global test rejects a too-large
+   * vᵀPv (σ̂0 > 1 significantly); otherwise the a-priori σ (σ0 = 1) is used.
+   */
+  sigmaScale: z.object({ applied: z.boolean(), factor: z.number(), rule: z.string() }).optional(),
+  referenceDatum: z.string().nullable().optional(),
+  /** Conversions between tide systems applied to the inputs before the adjustment. */
+  tideConversions: z.array(z.object({ label: z.string(), from: tideSystemSchema, to: tideSystemSchema, shift_m2s2: z.number() })).optional(),
+  /** Inputs left out, with the reason (e.g. a clock result whose tide system is not stated). */
+  excluded: z.array(z.object({ label: z.string(), reason: z.string() })).optional(),
 });
 export type RunResult = z.infer<typeof runResultSchema>;
 
@@ -254,6 +304,18 @@ export const reconciliationRowSchema = z.object({
   clockExpandedU_m2s2: z.number(),
   levellingDeltaC_m2s2: z.number().nullable(),
   levellingExpandedU_m2s2: z.number().nullable(),
+  /** σ of the levelled ΔC as used (k = 1): √(q_AA + q_BB − 2q_AB), scaled by σ̂0 only when the run's global test failed. */
+  levellingSigma_m2s2: z.number().nullable().optional(),
+  /** √(σ_A² + σ_B²), what neglecting the covariance would give (shown for comparison). */
+  levellingSigmaIgnoringCovariance_m2s2: z.number().nullable().optional(),
+  levellingSigmaMethod: z.enum(['covariance', 'root-sum-square']).nullable().optional(),
+  levellingSigmaScaled: z.boolean().optional(),
+  /** Tide systems of the two sides and the conversion applied before comparing; null when a system is not stated. */
+  tide: z.object({
+    clockSystem: tideSystemSchema, fromDatumSystem: tideSystemSchema, toDatumSystem: tideSystemSchema, comparedIn: tideSystemSchema,
+    clockShift_m2s2: z.number(), levellingShift_m2s2: z.number(), statement: z.string(),
+  }).nullable().optional(),
+  /** Clock minus levelled ΔC, both in the comparison's tide system. */
   difference_m2s2: z.number().nullable(),
   en: z.number().nullable(),
   agreed: z.boolean().nullable(),
@@ -266,6 +328,7 @@ export const reconciliationSchema = z.object({
   rows: z.array(reconciliationRowSchema),
   datumOffsets: z.array(z.object({ name: z.string(), value_m2s2: z.number(), sigma_m2s2: z.number(), valueMm: z.number(), sigmaMm: z.number() })),
   message: z.string().nullable(),
+  sigmaPolicy: z.object({ scaled: z.boolean(), factor: z.number(), statement: z.string(), covariance: z.string() }).optional(),
 });
 export type Reconciliation = z.infer<typeof reconciliationSchema>;
 
@@ -285,17 +348,44 @@ export type NetworkMap = z.infer<typeof networkMapSchema>;
 
 // ---- stateless calculator ----
 
+const pointCode = z.string().min(1).max(80);
 export const calcAdjustBodySchema = z.object({
-  points: z.array(z.object({ code: z.string().min(1).max(80), fixedC: finite.optional(), sigmaFixed: z.number().min(0).optional() })).min(1).max(50_000),
+  points: z.array(z.object({ code: pointCode, fixedC: finite.optional(), sigmaFixed: z.number().min(0).optional() })).min(1).max(50_000),
   observations: z
-    .array(z.object({ from: z.string().min(1).max(80), to: z.string().min(1).max(80), deltaC: finite, sigma: z.number().positive() }))
+    .array(z.object({
+      from: pointCode, to: pointCode, deltaC: finite,
+      /** Own (non-shared) standard deviation of this observation [m²/s²]. */
+      sigma: z.number().positive(),
+      /** Names of the clocks at the from and to ends; their systematic effects (clockSystematics) enter with −1 and +1. */
+      clocks: z.object({ from: z.string().min(1).max(120), to: z.string().min(1).max(120) }).optional(),
+    }))
     .min(1)
     .max(200_000),
+  /** Standard uncertainty of each clock's systematic effect [m²/s²], shared by every observation naming the clock. */
+  clockSystematics: z.array(z.object({ clock: z.string().min(1).max(120), sigma: z.number().positive() })).max(10_000).default([]),
+  /** Adjusted differences C_to − C_from wanted with their covariance-based σ. */
+  differences: z.array(z.object({ from: pointCode, to: pointCode })).max(10_000).default([]),
 });
 export type CalcAdjustBody = z.infer<typeof calcAdjustBodySchema>;
 export const calcAdjustResultSchema = z.object({
   points: z.array(z.object({ code: z.string(), c: z.number(), sigma: z.number() })),
-  observations: z.array(z.object({ from: z.string(), to: z.string(), residual: z.number(), redundancy: z.number(), standardizedResidual: z.number().nullable() })),
+  observations: z.array(z.object({
+    from: z.string(), to: z.string(),
+    /** Adjusted minus observed, with the clocks' estimated systematic effects part of the adjusted value [m²/s²]. */
+    residual: z.number(), redundancy: z.number(), standardizedResidual: z.number().nullable(),
+    /** True only for observations removed by the data-snooping iteration (Baarda 1968). */
+    suspected: z.boolean(),
+    removedAtStep: z.number().int().nullable(),
+  })),
+  /** σ = √(q_ff + q_tt − 2q_ft), a-priori scale like the points' sigma [m²/s²]. */
+  differences: z.array(z.object({ from: z.string(), to: z.string(), deltaC: z.number(), sigma: z.number() })),
+  clockSystematics: z.array(z.object({ clock: z.string(), estimate: z.number(), sigma: z.number(), priorSigma: z.number(), observations: z.number().int() })),
+  snooping: z.object({
+    criticalValue: z.number(),
+    /** In order of removal; `index` counts in observations (source observation) or points (a weighted fixed point). */
+    removals: z.array(z.object({ step: z.number().int(), source: z.enum(['observation', 'fixedPoint']), index: z.number().int(), from: z.string().optional(), to: z.string().optional(), code: z.string().optional(), standardizedResidual: z.number() })),
+    stoppedEarly: z.boolean(),
+  }),
   sigma0: z.number().nullable(),
   degreesOfFreedom: z.number().int(),
   globalTest: z.object({ statistic: z.number(), critical: z.number(), passed: z.boolean() }).nullable(),

@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { patchOf } from './http';
+import { nameText, patchOf, sortableBy } from './http';
 
 // The registry contract: sites, quasigeoid grids, clocks with versioned systematic budgets, reference
 // frequencies and fibre links. Frequencies travel as decimal strings, never JSON numbers.
@@ -29,14 +29,22 @@ const optionalText = (max: number) => z.string().trim().max(max).nullable().defa
 export const crsEntrySchema = z.object({ code: z.string(), label: z.string(), kind: z.enum(['geographic2D', 'geographic3D', 'geocentric', 'projected']) });
 export type CrsEntry = z.infer<typeof crsEntrySchema>;
 
+/** Permanent-tide systems (Ekman 1989; Mäkinen & Ihde 2009). For ellipsoidal heights the crust system: mean-tide = zero-tide crust. */
+export const registryTideSystems = ['mean-tide', 'zero-tide', 'tide-free'] as const;
+const tideSystemField = z.enum(registryTideSystems).nullable().optional();
+
 const quasigeoidInput = z.discriminatedUnion('source', [
-  z.object({ source: z.literal('entered'), heightM: finite.refine((v) => Math.abs(v) < 200, 'quasigeoid heights lie within ±200 m'), uncertaintyM: nonNegative }),
+  z.object({
+    source: z.literal('entered'), heightM: finite.refine((v) => Math.abs(v) < 200, 'quasigeoid heights lie within ±200 m'), uncertaintyM: nonNegative,
+    /** Tide system of the entered ζ; absent = not stated (then no comparison uses it). */
+    tideSystem: tideSystemField,
+  }),
   z.object({ source: z.literal('grid'), gridId: z.string().uuid() }),
 ]);
 
 const benchmarkTieInput = z
   .object({
-    benchmarkCode: z.string().trim().min(1).max(60),
+    benchmarkCode: nameText(1, 60),
     heightDifferenceM: finite.refine((v) => Math.abs(v) < 10_000, 'a local tie is shorter than 10 km of height'),
     uncertaintyM: nonNegative,
   })
@@ -44,12 +52,14 @@ const benchmarkTieInput = z
   .default(null);
 
 export const createSiteSchema = z.object({
-  name: z.string().trim().min(2).max(120),
+  name: nameText(2, 120),
   instituteId: z.string().uuid().optional(),
   referencePoint: z.string().trim().min(2).max(1000),
-  crs: z.string().trim().min(3).max(500),
+  crs: nameText(3, 500),
   coordinates: z.array(finite).min(2).max(3),
   ellipsoidalHeightUncertaintyM: nonNegative.default(0),
+  /** Crust system of the ellipsoidal height (GNSS in ITRF: tide-free); absent = not stated. */
+  ellipsoidalCrustSystem: tideSystemField,
   quasigeoid: quasigeoidInput,
   benchmarkTie: benchmarkTieInput,
 });
@@ -62,7 +72,13 @@ export const siteSchema = z.object({
   name: z.string(),
   institute: z.object({ id: z.string().uuid(), code: z.string(), name: z.string() }),
   referencePoint: z.string(),
-  entered: z.object({ crs: z.string(), crsLabel: z.string(), coordinates: z.array(z.number()) }),
+  entered: z.object({
+    crs: z.string(),
+    crsLabel: z.string(),
+    /** How to name the entered values (axes and units); null when the stored CRS no longer resolves. */
+    crsKind: z.enum(['geographic2D', 'geographic3D', 'geocentric', 'projected']).nullable(),
+    coordinates: z.array(z.number()),
+  }),
   grs80: z.object({
     latitudeDeg: z.number(),
     longitudeDeg: z.number(),
@@ -73,7 +89,12 @@ export const siteSchema = z.object({
     zM: z.number(),
   }),
   assumptions: z.array(z.string()),
-  quasigeoid: z.object({ source: z.enum(['entered', 'grid']), gridId: z.string().nullable(), gridName: z.string().nullable(), heightM: z.number(), uncertaintyM: z.number() }),
+  quasigeoid: z.object({
+    source: z.enum(['entered', 'grid']), gridId: z.string().nullable(), gridName: z.string().nullable(), heightM: z.number(), uncertaintyM: z.number(),
+    tideSystem: z.enum(registryTideSystems).nullable().optional(),
+  }),
+  /** Crust system of the ellipsoidal height (null: not stated). */
+  ellipsoidalCrustSystem: z.enum(registryTideSystems).nullable().optional(),
   normalHeight: z.object({ valueM: z.number(), uncertaintyM: z.number(), k: z.literal(1), formula: z.string() }),
   benchmarkTie: z.object({ benchmarkCode: z.string(), heightDifferenceM: z.number(), uncertaintyM: z.number() }).nullable(),
   createdAt: z.string(),
@@ -84,9 +105,13 @@ export type Site = z.infer<typeof siteSchema>;
 // ---------- quasigeoid grids ----------
 
 export const uploadQuasigeoidGridSchema = z.object({
-  name: z.string().trim().min(2).max(120),
+  name: nameText(2, 120),
   uncertaintyM: nonNegative,
-  fileName: z.string().trim().max(200).nullable().default(null),
+  /** Tide system of the grid's heights; absent = not stated. */
+  tideSystem: tideSystemField,
+  /** Correlation length of the grid's errors [km]; absent: the stated default (100 km). */
+  correlationLengthKm: z.number().positive().max(100_000).nullable().optional(),
+  fileName: nameText(0, 200).nullable().default(null),
   content: z.string().min(1).max(20_000_000),
 });
 export type UploadQuasigeoidGrid = z.input<typeof uploadQuasigeoidGridSchema>;
@@ -104,6 +129,8 @@ export const quasigeoidGridSchema = z.object({
   longitudeStepDeg: z.number(),
   nodeCount: z.number().int(),
   uncertaintyM: z.number(),
+  tideSystem: z.enum(registryTideSystems).nullable().optional(),
+  correlationLengthKm: z.number().nullable().optional(),
   uploadedBy: z.string(),
   createdAt: z.string(),
 });
@@ -136,7 +163,7 @@ export const speciesLabels: Record<SpeciesCode, string> = {
 export const speciesSchema = z.enum(speciesCodes);
 
 export const budgetRowSchema = z.object({
-  effect: z.string().trim().min(1).max(120),
+  effect: nameText(1, 120),
   correction: finite.refine((v) => Math.abs(v) < 1e-6, 'a fractional correction is far below 1e-6'),
   uncertainty: nonNegative.refine((v) => v < 1e-6, 'a fractional uncertainty is far below 1e-6'),
   type: z.enum(['A', 'B']),
@@ -159,7 +186,7 @@ export type BudgetVersion = z.infer<typeof budgetVersionSchema>;
 
 export const createClockSchema = z.object({
   siteId: z.string().uuid(),
-  name: z.string().trim().min(2).max(80),
+  name: nameText(2, 80),
   kind: z.enum(clockKinds),
   species: speciesSchema,
   nominalFrequencyHz: decimalString(20),
@@ -212,7 +239,7 @@ export type ReferenceFrequency = z.infer<typeof referenceFrequencySchema>;
 // ---------- fibre links ----------
 
 export const createLinkSchema = z.object({
-  name: z.string().trim().min(2).max(120),
+  name: nameText(2, 120),
   siteAId: z.string().uuid(),
   siteBId: z.string().uuid(),
   fibreLengthKm: finite.refine((v) => v > 0 && v < 20_000, 'between 0 and 20 000 km'),
@@ -239,10 +266,18 @@ export type Link = z.infer<typeof linkSchema>;
 export const registryListQuery = z.object({
   page: z.coerce.number().int().min(1).default(1),
   pageSize: z.coerce.number().int().min(1).max(500).default(25),
-  sort: z.string().max(60).optional(),
   order: z.enum(['asc', 'desc']).default('asc'),
   q: z.string().max(200).optional(),
   instituteId: z.string().uuid().optional(),
   siteId: z.string().uuid().optional(),
 });
 export type RegistryListQuery = z.infer<typeof registryListQuery>;
+export const siteSortFields = ['name', 'institute', 'latitudeDeg', 'longitudeDeg', 'ellipsoidalHeightM', 'updatedAt'] as const;
+export const clockSortFields = ['name', 'species', 'kind', 'site', 'institute', 'createdAt'] as const;
+export const linkSortFields = ['name', 'fibreLengthKm', 'fractionalUncertainty', 'createdAt'] as const;
+export const siteListQuery = registryListQuery.extend({ sort: sortableBy(siteSortFields) });
+export const clockListQuery = registryListQuery.extend({ sort: sortableBy(clockSortFields) });
+export const linkListQuery = registryListQuery.extend({ sort: sortableBy(linkSortFields) });
+export type SiteListQuery = z.infer<typeof siteListQuery>;
+export type ClockListQuery = z.infer<typeof clockListQuery>;
+export type LinkListQuery = z.infer<typeof linkListQuery>;

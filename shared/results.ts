@@ -166,3 +166,14 @@ export const comparisonResultSchema = z.object({
 export type ComparisonResultDto = z.infer<typeof comparisonResultSchema>;
 
 export const resultCsvColumns = ['section', 'quantity', 'value', 'standard_uncertainty', 'expanded_uncertainty', 'unit', 'note'] as const;
+
+/** A queued computation of a campaign's result (answer of POST …/result/recompute, 202). */
+export const resultRequestSchema = z.object({
+  campaignId: z.string().uuid(),
+  state: z.literal('queued'),
+  reason: z.enum(['upload', 'accept', 'recompute']),
+  requestedAt: z.iso.datetime(),
+});
+export type ResultRequest = z.infer<typeof resultRequestSchema>;
+/** Problem codes of GET …/result when there is no current result (404). */
+export const resultNotReadyCodes = ['result-pending', 'result-failed', 'result-not-computed'] as const;

@@ -83,6 +83,9 @@ export const seriesBucketSchema = z.object({
   min: z.number().nullable(),
   max: z.number().nullable(),
   count: z.number().int(),
+  /** Mean and sample standard deviation of the valid y in the bucket (sd null below two samples). */
+  mean: z.number().nullable(),
+  sd: z.number().nullable(),
 });
 export const seriesPlotSchema = z.object({
   seriesId: z.string().uuid(),
@@ -92,6 +95,9 @@ export const seriesPlotSchema = z.object({
   sampleCount: z.number().int(),
   /** y is the dimensionless fractional frequency offset. */
   unit: z.literal('1'),
+  /** The whole stored span, so a zoomed plot can offer the way back. */
+  firstMjd: z.number(),
+  lastMjd: z.number(),
   buckets: z.array(seriesBucketSchema),
 });
 export type SeriesPlot = z.infer<typeof seriesPlotSchema>;

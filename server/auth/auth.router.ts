@@ -43,6 +43,7 @@ const SIGN_IN_FAILED_PAGE = `<!doctype html><html lang="en"><head><meta charset=
 <style>body{font-family:system-ui,sans-serif;background:#f6f2e9;color:#1d2b33;margin:0;padding:3rem 1rem}main{max-width:34rem;margin:auto;background:#fff;border:1px solid #ddd3bf;border-radius:10px;padding:1.5rem 2rem}h1{font-size:1.3rem;margin:0 0 .8rem}a{color:#2f5f73}</style>
 </head><body><main><h1>Sign-in failed.</h1><p>Chronolevel could not accept the answer from your institute's sign-in service.</p>
 <p><a href="/auth/saml/login">Try again</a> or <a href="/">return to the start page</a>. If it keeps failing, tell your administrator the time of this attempt.</p></main></body></html>`;
+import { safeReturnPath } from './return-path';
 
 /** Sign-in through the institute's identity provider (SAML 2.0, HTTP-Redirect out, HTTP-POST back) and sign-out. */
 export function createAuthRouter(strategy: SamlStrategy, ctx: { config: AppConfig; dataSource: DataSource }, spCertPem?: string) {
@@ -58,7 +59,7 @@ export function createAuthRouter(strategy: SamlStrategy, ctx: { config: AppConfi
   const idpIssuer = idpIssuerOf(config);
 
   router.get('/auth/saml/login', (req, res, next) => {
-    const returnTo = typeof req.query.returnTo === 'string' && req.query.returnTo.startsWith('/') ? req.query.returnTo : '/';
+    const returnTo = safeReturnPath(req.query.returnTo);
     const requestId = newRequestId();
     res.cookie(BINDING_COOKIE, `${requestId}.${mac(config.sessionSecret, requestId)}`, { ...cookieOptions, maxAge: BINDING_TTL_MS });
     pendingRequestId.run(requestId, () => {
@@ -110,7 +111,7 @@ export function createAuthRouter(strategy: SamlStrategy, ctx: { config: AppConfi
             if (saveErr) return next(saveErr);
             res.clearCookie(BINDING_COOKIE, cookieOptions);
             req.log.info({ securityEvent: 'saml.accepted', userId: user.id }, 'signed in');
-            const relay = typeof req.body?.RelayState === 'string' && req.body.RelayState.startsWith('/') && !req.body.RelayState.startsWith('//') ? req.body.RelayState : '/';
+            const relay = safeReturnPath(req.body?.RelayState);
             res.redirect(303, relay);
           });
         });

@@ -11,6 +11,7 @@ import type { AppConfig } from '../config';
 import { UserEntity } from '../db/entities/core.entities';
 import { upsertUserFromSignIn } from '../users/users.service';
 import { SamlRefusal } from './saml-guard';
+import { pruneSamlRequests } from './saml-request-prune';
 
 export const SP_ENTITY_ID = 'chronolevel';
 const REQUEST_ID_TTL_MS = 10 * 60 * 1000;
@@ -19,6 +20,7 @@ const REQUEST_ID_TTL_MS = 10 * 60 * 1000;
 export function pgSamlCache(dataSource: DataSource): CacheProvider {
   return {
     async saveAsync(key: string, value: string): Promise<CacheItem | null> {
+      await pruneSamlRequests(dataSource, REQUEST_ID_TTL_MS);
       const rows: { created_at: Date }[] = await dataSource.query(
         'INSERT INTO saml_request(id, value) VALUES ($1, $2) ON CONFLICT (id) DO NOTHING RETURNING created_at',
         [key, value],

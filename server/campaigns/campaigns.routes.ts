@@ -1,5 +1,7 @@
 import { z } from 'zod';
 import {
+  acceptCampaignSchema,
+  checklistTickSchema,
   campaignListQuery,
   campaignSchema,
   campaignSummarySchema,
@@ -9,7 +11,9 @@ import {
   transitionNoteSchema,
   updateCampaignSchema,
 } from '../../shared/campaigns';
+import { auditEventSchema } from '../../shared/auth';
 import { idParamsSchema, pageOf } from '../../shared/http';
+import { campaignAuditTrail } from './campaign-audit';
 import type { AppDeps } from '../deps';
 import { route } from '../http/route';
 import { createCampaignsService } from './campaigns.service';
@@ -54,13 +58,24 @@ export const campaignRoutes = [
     handler: ({ actor, params, body, deps }) => svc(deps).startReview(actor, params.id, body.note),
   }),
   route({
-    method: 'post', path: '/api/v1/campaigns/:id/accept', summary: 'Accept a campaign under review', tag: 'campaigns', permission: 'campaigns:review',
-    params: idParamsSchema, body: transitionNoteSchema, response: campaignSchema,
-    handler: ({ actor, params, body, deps }) => svc(deps).accept(actor, params.id, body.note),
+    method: 'post', path: '/api/v1/campaigns/:id/accept',
+    summary: 'Accept a campaign under review (comment required; a justification when Eₙ, uptime or the result ask for one)', tag: 'campaigns', permission: 'campaigns:review',
+    params: idParamsSchema, body: acceptCampaignSchema, response: campaignSchema,
+    handler: ({ actor, params, body, deps }) => svc(deps).accept(actor, params.id, body),
   }),
   route({
     method: 'post', path: '/api/v1/campaigns/:id/return', summary: 'Return a campaign to the lab with a reason', tag: 'campaigns', permission: 'campaigns:review',
     params: idParamsSchema, body: returnCampaignSchema, response: campaignSchema,
     handler: ({ actor, params, body, deps }) => svc(deps).returnToLab(actor, params.id, body.reason),
+  }),
+  route({
+    method: 'post', path: '/api/v1/campaigns/:id/checklist', summary: 'Tick or untick one item of the reviewer’s checklist (audited)', tag: 'campaigns', permission: 'campaigns:review',
+    params: idParamsSchema, body: checklistTickSchema, response: campaignSchema,
+    handler: ({ actor, params, body, deps }) => svc(deps).tick(actor, params.id, body.item, body.checked),
+  }),
+  route({
+    method: 'get', path: '/api/v1/campaigns/:id/audit-trail', summary: 'Every audit event of a campaign, its uploads and certificates, oldest first, numbered', tag: 'audit', permission: 'audit:read',
+    params: idParamsSchema, response: pageOf(auditEventSchema.extend({ seq: z.number().int() })),
+    handler: ({ actor, params, deps }) => campaignAuditTrail(deps.dataSource, actor, params.id),
   }),
 ];

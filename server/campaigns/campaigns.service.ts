@@ -3,6 +3,10 @@ import { ratioFromMeasured } from '../registry/measured-ratios';
 import {
   createCampaignSchema,
   editableStates,
+  reviewChecklistItems,
+  reviewChecklistLabels,
+  type AcceptCampaign,
+  type ReviewChecklistItem,
   type CampaignListQuery,
   type CampaignState,
   type CreateCampaign,
@@ -28,10 +32,15 @@ import {
 } from '../db/entities/registry.entities';
 import { Conflict, Forbidden, Invalid, NotFound } from '../http/errors';
 import { enqueueMail } from '../mail/outbox';
+import { labAddresses, mailDate } from '../mail/mail-text';
+import { computeCampaignResult, latestResultForCampaign } from '../results/results.service';
+import { reviewExceptions } from './review-rules';
 import { ScienceInputError } from '../science/errors';
 import { parsePositiveDecimal, ratioOfFrequencies, MAX_REFERENCE_SIGNIFICANT_DIGITS } from '../science/fractional-offset';
 import { rss } from '../science/uncertainty';
 import { currentBudget, linkDistances, normalHeightOf, toBudgetDto } from '../registry/registry.service';
+import { requestResultComputation } from '../results/result-requests';
+import { campaignScopeCondition, canSeeCampaign } from '../auth/campaign-scope';
 
 // Campaign rules: owning institute = clock A's institute; the lab edits only while draft or returned; the
 // coordinating institute reviews; every change is audited and every state change lands on the timeline.
@@ -81,8 +90,7 @@ function overrideRatio(o: ReferenceRatioOverride) {
 
 /** Operators read campaigns of their institute (clock A) or of clock B's institute; other roles read all. */
 function canRead(actor: Actor, c: CampaignRow): boolean {
-  if (actor.role !== 'operator') return true;
-  return actor.instituteId === c.instituteId || actor.instituteId === c.clockB?.instituteId;
+  return canSeeCampaign(actor, { state: c.state, instituteId: c.instituteId, partnerInstituteId: c.clockB?.instituteId ?? null });
 }
 function requireOwner(actor: Actor, c: CampaignRow) {
   if (actor.role !== 'operator' || actor.instituteId !== c.instituteId) throw new Forbidden('Only lab staff of the owning institute (clock A) change this campaign.');
@@ -154,7 +162,11 @@ function toSummary(c: CampaignRow) {
   };
 }
 
-async function toDetail(m: EntityManager, actor: Actor, c: CampaignRow) {
+type ReviewPolicy = Pick<AppConfig, 'reviewMinUptimeFraction' | 'reviewFourEyes'>;
+
+async function toDetail(m: EntityManager, actor: Actor, c: CampaignRow, policy: ReviewPolicy) {
+  const latest = await latestResultForCampaign(m, c.id);
+  const checklist = c.reviewChecklist ?? {};
   const events = await m.getRepository(CampaignEventEntity).find({ where: { campaignId: c.id }, order: { id: 'ASC' } });
   const owner = actor.role === 'operator' && actor.instituteId === c.instituteId;
   const review = can(actor, 'campaigns:review');
@@ -176,12 +188,28 @@ async function toDetail(m: EntityManager, actor: Actor, c: CampaignRow) {
     createdBy: c.createdBy,
     createdAt: c.createdAt.toISOString(),
     timeline: events.map((e) => ({ at: e.at.toISOString(), fromState: e.fromState, toState: e.toState, actor: e.actorLabel, note: e.note })),
+    review: {
+      checklist: reviewChecklistItems.map((item) => {
+        const tick = Object.hasOwn(checklist, item) ? checklist[item] : null;
+        return { item, label: reviewChecklistLabels[item], checked: !!tick, by: tick?.by ?? null, at: tick?.at ?? null };
+      }),
+      exceptions: latest ? reviewExceptions(latest.result, policy.reviewMinUptimeFraction) : [],
+      resultComputed: latest !== null,
+      minUptimeFraction: policy.reviewMinUptimeFraction,
+      fourEyes: policy.reviewFourEyes,
+      acceptedBy: c.acceptedBy,
+      acceptedAt: c.acceptedAt?.toISOString() ?? null,
+      acceptanceComment: c.acceptanceComment,
+      acceptanceJustification: c.acceptanceJustification,
+      acceptanceExceptions: c.acceptanceExceptions ?? [],
+    },
     allowed: {
       edit: owner && editableStates.includes(c.state),
       submit: owner && transitions.submit.from.includes(c.state),
       startReview: review && transitions.startReview.from.includes(c.state),
       accept: review && transitions.accept.from.includes(c.state),
       return: review && transitions.return.from.includes(c.state),
+      tick: review && c.state === 'in_review',
     },
   };
 }
@@ -205,6 +233,10 @@ export type SiteForResult = {
   normalHeightM: number;
   normalHeightUncertaintyM: number;
   benchmarkTie: { benchmarkCode: string; heightDifferenceM: number; uncertaintyM: number } | null;
+  /** Tide systems of ζ and of h (crust); null = not stated. */
+  quasigeoidTideSystem?: 'mean-tide' | 'zero-tide' | 'tide-free' | null;
+  ellipsoidalCrustSystem?: 'mean-tide' | 'zero-tide' | 'tide-free' | null;
+  quasigeoidGridId?: string | null;
 };
 export type ClockForResult = {
   id: string;
@@ -250,6 +282,9 @@ function siteForResult(s: SiteRow): SiteForResult {
     normalHeightM: h.valueM,
     normalHeightUncertaintyM: h.uncertaintyM,
     benchmarkTie: s.benchmarkCode !== null ? { benchmarkCode: s.benchmarkCode, heightDifferenceM: s.tieHeightDifferenceM ?? 0, uncertaintyM: s.tieUncertaintyM ?? 0 } : null,
+    quasigeoidTideSystem: s.quasigeoidTideSystem ?? null,
+    ellipsoidalCrustSystem: s.ellipsoidalCrustSystem ?? null,
+    quasigeoidGridId: s.quasigeoidGridId,
   };
 }
 
@@ -294,15 +329,17 @@ export async function markCampaignCertified(manager: EntityManager, campaignId: 
   requireState(c, transitions.certify.from, 'certify');
   await manager.getRepository(CampaignEntity).update({ id: c.id }, { state: 'certified' });
   await addEvent(manager, actor, c.id, c.state, 'certified', null);
-  await recordAudit(manager, actor, { action: 'campaign.certified', entityType: 'campaign', entityId: c.id, instituteId: c.instituteId, details: { from: c.state } });
+  await recordAudit(manager, actor, { action: 'campaign.certified', entityType: 'campaign', entityId: c.id, instituteId: c.instituteId, details: { from: c.state, to: 'certified' } });
 }
 
 // ---------- service ----------
 
-const sortColumns: Record<string, string> = { name: 'c.name', state: 'c.state', periodStart: 'c.period_start', periodEnd: 'c.period_end', updatedAt: 'c.updated_at', institute: 'i.code' };
+// Sort names come from the list's zod enum; a Map so no inherited name (`__proto__`, `constructor`) can match.
+const sortColumns = new Map<NonNullable<CampaignListQuery['sort']>, string>([['name', 'c.name'], ['state', 'c.state'], ['periodStart', 'c.period_start'], ['periodEnd', 'c.period_end'], ['updatedAt', 'c.updated_at'], ['institute', 'i.code']]);
 
-export function createCampaignsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'coordinatorMail' | 'publicUrl'> }) {
+export function createCampaignsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'coordinatorMail' | 'publicUrl' | 'databaseUrl' | 'reviewMinUptimeFraction' | 'reviewFourEyes'> }) {
   const { dataSource, config } = deps;
+  const detail = (m: EntityManager, actor: Actor, c: CampaignRow) => toDetail(m, actor, c, config);
 
   async function checkLinkJoinsClocks(m: EntityManager, linkId: string, a: ClockRow, b: ClockRow) {
     const link = await m.getRepository(FibreLinkEntity).findOneBy({ id: linkId });
@@ -322,7 +359,12 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
     if (!b) throw new Invalid('No such budget version.', [{ path, message: `version ${version} does not exist` }]);
     return b;
   }
-  async function transition(actor: Actor, id: string, kind: 'submit' | 'startReview' | 'accept' | 'return', note: string | null) {
+  async function mailLab(m: EntityManager, c: CampaignRow, subject: string, lines: string[]) {
+    const text = [...lines, `Open it: ${config.publicUrl}/campaigns/${c.id}`].join('\n');
+    for (const to of await labAddresses(m, [c.instituteId, c.clockB?.instituteId])) await enqueueMail(m, { to, subject, text });
+  }
+
+  async function transition(actor: Actor, id: string, kind: 'submit' | 'startReview' | 'accept' | 'return', note: string | null, acceptance?: AcceptCampaign) {
     authorize(actor, kind === 'submit' ? 'campaigns:write' : 'campaigns:review');
     return dataSource.transaction(async (m) => {
       const c = await loadCampaign(m, id, true);
@@ -330,25 +372,104 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
       if (kind === 'submit') requireOwner(actor, c);
       const t = transitions[kind];
       requireState(c, t.from, kind === 'startReview' ? 'start the review of' : kind);
+      const now = new Date();
       const patch: Partial<CampaignRow> = { state: t.to };
+      const details: Record<string, unknown> = { from: c.state, to: t.to, note };
       if (kind === 'return') patch.returnReason = note;
+      // A new review starts from an empty checklist and no earlier decision.
+      if (kind === 'startReview') Object.assign(patch, { reviewChecklist: {}, acceptedByUserId: null, acceptedBy: null, acceptedAt: null, acceptanceComment: null, acceptanceJustification: null, acceptanceExceptions: [] });
+      if (kind === 'accept') {
+        const a = acceptance!;
+        const checklist = c.reviewChecklist ?? {};
+        const open = reviewChecklistItems.filter((i) => !Object.hasOwn(checklist, i));
+        if (open.length) {
+          throw new Conflict(`Tick every item of the reviewer's checklist before accepting: ${open.map((i) => reviewChecklistLabels[i]).join('; ')}.`, { unticked: open });
+        }
+        let result = null;
+        let why: string | undefined;
+        try {
+          result = (await computeCampaignResult(m, id, { actor, now })).result;
+        } catch (e) {
+          if (!(e instanceof Conflict)) throw e;
+          why = e.message.replace(/\.$/, '');
+        }
+        const exceptions = reviewExceptions(result, config.reviewMinUptimeFraction, why);
+        if (exceptions.length && !a.justification) {
+          throw new Invalid(`Accepting needs a written justification: ${exceptions.map((x) => x.text).join(' ')}`, [
+            { path: 'body.justification', message: `required: ${exceptions.map((x) => x.code).join(', ')}` },
+          ]);
+        }
+        const justification = exceptions.length ? a.justification! : null;
+        Object.assign(patch, {
+          acceptedByUserId: actor.userId, acceptedBy: actor.displayName, acceptedAt: now, acceptanceComment: a.comment,
+          acceptanceJustification: justification, acceptanceExceptions: exceptions.map((x) => x.text),
+        });
+        Object.assign(details, { comment: a.comment, justification, exceptions: exceptions.map((x) => x.text) });
+        note = a.comment;
+      }
       await m.getRepository(CampaignEntity).update({ id }, patch);
       await addEvent(m, actor, id, c.state, t.to, note);
-      await recordAudit(m, actor, { action: `campaign.${t.to}`, entityType: 'campaign', entityId: id, instituteId: c.instituteId, details: { from: c.state, to: t.to, note } });
+      details.note = note;
+      await recordAudit(m, actor, { action: `campaign.${t.to}`, entityType: 'campaign', entityId: id, instituteId: c.instituteId, details });
+      if (kind === 'accept' && (await m.query('SELECT 1 FROM ratio_series WHERE campaign_id = $1 LIMIT 1', [id])).length > 0) {
+        await requestResultComputation(m, config.databaseUrl, actor, id, 'accept');
+      }
       if (kind === 'submit') {
         await enqueueMail(m, {
           to: config.coordinatorMail,
           subject: `Campaign submitted for review: ${c.name}`,
           text: [
-            `${actorLabel(actor)} submitted the campaign "${c.name}" for review.`,
+            `${actorLabel(actor)} submitted the campaign "${c.name}" for review on ${mailDate(now)}.`,
             `Clock A: ${c.clockA!.name} (${speciesLabels[c.clockA!.species]}), ${c.institute?.code ?? ''}`,
             `Clock B: ${c.clockB!.name} (${speciesLabels[c.clockB!.species]}), ${c.clockB!.institute?.code ?? ''}`,
-            `Period: ${c.periodStart.toISOString()} – ${c.periodEnd.toISOString()}`,
+            `Period: ${mailDate(c.periodStart)} – ${mailDate(c.periodEnd)}`,
             `Open it: ${config.publicUrl}/campaigns/${c.id}`,
           ].join('\n'),
         });
       }
-      return toDetail(m, actor, await loadCampaign(m, id));
+      if (kind === 'return') {
+        await mailLab(m, c, `Campaign returned: ${c.name}`, [
+          `${actor.displayName} returned the campaign "${c.name}" to the lab on ${mailDate(now)}.`,
+          '',
+          `Reason: ${note ?? ''}`,
+          '',
+          'The campaign can be changed again and resubmitted.',
+          `Period: ${mailDate(c.periodStart)} – ${mailDate(c.periodEnd)}`,
+        ]);
+      }
+      if (kind === 'accept') {
+        const justification = patch.acceptanceJustification;
+        await mailLab(m, c, `Campaign accepted: ${c.name}`, [
+          `${actor.displayName} accepted the campaign "${c.name}" on ${mailDate(now)}.`,
+          '',
+          `Reviewer's comment: ${acceptance!.comment}`,
+          ...(justification ? ['', `Accepted despite: ${(patch.acceptanceExceptions ?? []).join(' ')}`, `Justification: ${justification}`] : []),
+          '',
+          `Period: ${mailDate(c.periodStart)} – ${mailDate(c.periodEnd)}`,
+          'A certificate can now be issued by the coordinating institute.',
+        ]);
+      }
+      return detail(m, actor, await loadCampaign(m, id));
+    });
+  }
+
+  async function tick(actor: Actor, id: string, item: ReviewChecklistItem, checked: boolean) {
+    authorize(actor, 'campaigns:review');
+    return dataSource.transaction(async (m) => {
+      const c = await loadCampaign(m, id, true);
+      requireState(c, ['in_review'], 'tick the checklist of');
+      const checklist = { ...(c.reviewChecklist ?? {}) };
+      const was = Object.hasOwn(checklist, item);
+      if (checked) checklist[item] = { by: actor.displayName, at: new Date().toISOString() };
+      else delete checklist[item];
+      if (was !== checked) {
+        await m.getRepository(CampaignEntity).update({ id }, { reviewChecklist: checklist });
+        await recordAudit(m, actor, {
+          action: checked ? 'campaign.checklist-ticked' : 'campaign.checklist-unticked', entityType: 'campaign', entityId: id, instituteId: c.instituteId,
+          details: { item, check: reviewChecklistLabels[item], checked },
+        });
+      }
+      return detail(m, actor, await loadCampaign(m, id));
     });
   }
 
@@ -356,10 +477,11 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
     async list(actor: Actor, q: CampaignListQuery) {
       authorize(actor, 'campaigns:read');
       const qb = withCampaignJoins(dataSource.getRepository(CampaignEntity).createQueryBuilder('c'));
-      if (actor.role === 'operator') qb.andWhere('(c.institute_id = :inst OR cb.institute_id = :inst)', { inst: actor.instituteId });
+      const scope = campaignScopeCondition(actor, { state: 'c.state', institute: 'c.institute_id', partnerInstitute: 'cb.institute_id' });
+      qb.andWhere(scope.sql, scope.params);
       if (q.q) qb.andWhere('(c.name ILIKE :q OR ca.name ILIKE :q OR cb.name ILIKE :q OR i.code ILIKE :q)', { q: `%${q.q}%` });
       if (q.state) qb.andWhere('c.state = :state', { state: q.state });
-      qb.orderBy(sortColumns[q.sort ?? 'updatedAt'] ?? 'c.updated_at', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('c.id');
+      qb.orderBy(sortColumns.get(q.sort ?? 'updatedAt') ?? 'c.updated_at', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('c.id');
       // Every join is many-to-one, so LIMIT/OFFSET on the joined rows pages campaigns exactly: two queries per
       // page (rows, count) whatever the page size, without TypeORM's DISTINCT sub-select of skip/take.
       const [rows, total] = await Promise.all([qb.clone().offset((q.page - 1) * q.pageSize).limit(q.pageSize).getMany(), qb.clone().orderBy().getCount()]);
@@ -371,7 +493,7 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
       return dataSource.transaction(async (m) => {
         const c = await loadCampaign(m, id);
         if (!canRead(actor, c)) throw new NotFound('Campaign');
-        return toDetail(m, actor, c);
+        return detail(m, actor, c);
       });
     },
 
@@ -423,7 +545,7 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
           action: 'campaign.created', entityType: 'campaign', entityId: saved.id, instituteId: a.instituteId,
           details: { name: body.name, clockA: a.name, clockB: b.name, referenceRatio: ratio.referenceRatio, budgetVersionA: budgetA.version, budgetVersionB: budgetB.version },
         });
-        return toDetail(m, actor, await loadCampaign(m, saved.id));
+        return detail(m, actor, await loadCampaign(m, saved.id));
       });
     },
 
@@ -464,13 +586,14 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
           action: 'campaign.updated', entityType: 'campaign', entityId: id, instituteId: c.instituteId,
           details: { changed: Object.keys(body), before: { name: c.name, linkId: c.linkId, referenceRatio: c.referenceRatio, budgetVersionA: c.budgetVersionA!.version, budgetVersionB: c.budgetVersionB!.version }, after: body },
         });
-        return toDetail(m, actor, await loadCampaign(m, id));
+        return detail(m, actor, await loadCampaign(m, id));
       });
     },
 
     submit: (actor: Actor, id: string, note?: string) => transition(actor, id, 'submit', note ?? null),
     startReview: (actor: Actor, id: string, note?: string) => transition(actor, id, 'startReview', note ?? null),
-    accept: (actor: Actor, id: string, note?: string) => transition(actor, id, 'accept', note ?? null),
+    accept: (actor: Actor, id: string, body: AcceptCampaign) => transition(actor, id, 'accept', body.comment, body),
+    tick,
     returnToLab: (actor: Actor, id: string, reason: string) => transition(actor, id, 'return', reason),
   };
 }

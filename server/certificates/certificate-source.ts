@@ -49,7 +49,7 @@ function flattenConstants(value: unknown, key: string, out: (SnapshotBody['const
     for (const [k, v] of Object.entries(value as Record<string, unknown>)) flattenConstants(v, key ? `${key}.${k}` : k, out);
     return;
   }
-  const known = KNOWN_CONSTANTS[key];
+  const known = Object.hasOwn(KNOWN_CONSTANTS, key) ? KNOWN_CONSTANTS[key] : undefined;
   if (known === null) return;
   const text = Array.isArray(value) ? value.join(', ') : String(value);
   out.push(known

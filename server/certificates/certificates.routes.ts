@@ -5,6 +5,7 @@ import {
   campaignIdParamsSchema, certificateDetailSchema, certificateListQuerySchema, certificateNumberParamsSchema, certificateSummarySchema,
   reissueCertificateSchema, revokeCertificateSchema, VERIFY_UPLOAD_LIMIT_BYTES, verificationResultSchema, verifyByNumberQuerySchema,
 } from '../../shared/certificate-registry';
+import { issueCertificateSchema } from '../../shared/campaigns';
 import { certificateSnapshotSchema } from '../../shared/certificates';
 import { pageOf } from '../../shared/http';
 import { Invalid, PayloadTooLarge } from '../http/errors';
@@ -50,24 +51,30 @@ function readUploadedPdf(req: Request, limitBytes: number): Promise<Buffer> {
 
 const issuedResponse = z.object({ created: z.boolean(), certificate: certificateSummarySchema });
 
+/** Public verification, by file or by number: 30 checks a minute per address, counted in PostgreSQL. */
+// Verification is rate-limited per caller by the middleware in server/http/rate-limits.ts (RATE_LIMIT_VERIFY_PER_MINUTE).
 export const certificateRoutes = [
   route({
-    method: 'post', path: '/api/v1/campaigns/:id/certificates', summary: 'Issue the certificate of an accepted campaign (201; 200 with the existing one when nothing changed)',
-    tag: 'certificates', permission: 'certificates:issue', params: campaignIdParamsSchema, response: issuedResponse, raw: true,
-    handler: async ({ actor, params, res, deps }) => {
-      const out = await createCertificatesService(deps.dataSource, deps.config).issue(actor, params.id);
+    method: 'post', path: '/api/v1/campaigns/:id/certificates', summary: 'Issue the certificate of an accepted campaign (comment required; 201, or 200 with the existing one when nothing changed)',
+    tag: 'certificates', permission: 'certificates:issue', params: campaignIdParamsSchema, body: issueCertificateSchema, response: issuedResponse, raw: true,
+    handler: async ({ actor, params, body, res, deps }) => {
+      const out = await createCertificatesService(deps.dataSource, deps.config).issue(actor, params.id, body);
       res.status(out.created ? 201 : 200).location(`/api/v1/certificates/${out.certificate.number}`).json(out);
     },
   }),
   route({
     method: 'post', path: '/api/v1/certificates/verify', summary: 'Verify a certificate file (public; multipart field "file")',
     tag: 'certificates', permission: 'public', multipart: true, response: verificationResultSchema,
-    handler: async ({ req, deps }) => createVerificationService(deps.dataSource, deps.config).verifyFile(await readUploadedPdf(req, VERIFY_UPLOAD_LIMIT_BYTES)),
+    handler: async ({ req, deps }) => {
+      return createVerificationService(deps.dataSource, deps.config).verifyFile(await readUploadedPdf(req, VERIFY_UPLOAD_LIMIT_BYTES));
+    },
   }),
   route({
     method: 'get', path: '/api/v1/certificates/verify', summary: 'Verify a certificate by its number and the SHA-256 of its file (public)',
     tag: 'certificates', permission: 'public', query: verifyByNumberQuerySchema, response: verificationResultSchema,
-    handler: ({ query, deps }) => createVerificationService(deps.dataSource, deps.config).verifyNumber(query.number, query.sha256),
+    handler: async ({ query, deps }) => {
+      return createVerificationService(deps.dataSource, deps.config).verifyNumber(query.number, query.sha256);
+    },
   }),
   route({
     method: 'get', path: '/api/v1/certificates', summary: 'Certificates (filter by state, institute, campaign, issue date)',
@@ -102,7 +109,7 @@ export const certificateRoutes = [
     method: 'post', path: '/api/v1/certificates/:number/reissue', summary: 'Issue the next revision after a correction; the current one is marked replaced',
     tag: 'certificates', permission: 'certificates:issue', params: certificateNumberParamsSchema, body: reissueCertificateSchema,
     response: certificateSummarySchema, successStatus: 201,
-    handler: ({ actor, params, body, deps }) => createCertificatesService(deps.dataSource, deps.config).reissue(actor, params.number, body.reason),
+    handler: ({ actor, params, body, deps }) => createCertificatesService(deps.dataSource, deps.config).reissue(actor, params.number, body.reason, body.justification),
   }),
   route({
     method: 'post', path: '/api/v1/certificates/:number/revoke', summary: 'Withdraw a certificate (reason required)',

@@ -5,9 +5,9 @@ import type { Actor } from '../auth/actor';
 import { authorize } from '../auth/permissions';
 import type { AppConfig } from '../config';
 import { CertificateEntity, type CertificateRow } from '../db/entities/certificates.entities';
-import { Forbidden, NotFound } from '../http/errors';
+import { NotFound } from '../http/errors';
 import { loadCertificateSource, markCertified } from './certificate-source';
-import { instituteNames, issueCertificate, reissueCertificate, revokeCertificate } from './issue';
+import { instituteNames, issueCertificate, reissueCertificate, revokeCertificate, type CertifyDecision } from './issue';
 
 // The certificate registry as the API sees it: coordinators issue, reissue and withdraw; everyone with
 // 'certificates:read' reads, operators only the certificates of their own institute's clocks.
@@ -44,17 +44,19 @@ export async function toCertificateSummary(manager: EntityManager, row: Certific
 }
 
 function scopeCheck(actor: Actor, row: CertificateRow): void {
+  // As for campaigns (docs/decisions/0004-campaign-visibility.md): another institute's certificate does not exist
+  // for lab staff — numbers are sequential, so a 403 would confirm each one.
   if (actor.role === 'operator' && actor.instituteId !== row.instituteAId && actor.instituteId !== row.instituteBId) {
-    throw new Forbidden('This certificate concerns clocks of other institutes.');
+    throw new NotFound('Certificate');
   }
 }
 
-const sortColumns: Record<NonNullable<CertificateListQuery['sort']>, string> = {
-  number: 'c.number',
-  issuedAt: 'c.issued_at',
-  state: 'c.state',
-  campaignLabel: 'c.campaign_label',
-};
+const sortColumns = new Map<NonNullable<CertificateListQuery['sort']>, string>([
+  ['number', 'c.number'],
+  ['issuedAt', 'c.issued_at'],
+  ['state', 'c.state'],
+  ['campaignLabel', 'c.campaign_label'],
+]);
 
 function endOfDay(d: string): Date {
   return d.length === 10 ? new Date(Date.parse(`${d}T00:00:00Z`) + 86_400_000) : new Date(d);
@@ -71,18 +73,18 @@ export function createCertificatesService(dataSource: DataSource, config: AppCon
   }
 
   return {
-    async issue(actor: Actor, campaignId: string) {
+    async issue(actor: Actor, campaignId: string, decision: CertifyDecision) {
       authorize(actor, 'certificates:issue');
       return dataSource.transaction(async (manager) => {
-        const outcome = await issueCertificate({ manager, config, actor, loadSource: loadCertificateSource, markCertified }, campaignId);
+        const outcome = await issueCertificate({ manager, config, actor, loadSource: loadCertificateSource, markCertified }, campaignId, decision);
         return { created: outcome.created, certificate: await toCertificateSummary(manager, outcome.row) };
       });
     },
 
-    async reissue(actor: Actor, number: string, reason: string) {
+    async reissue(actor: Actor, number: string, reason: string, justification?: string) {
       authorize(actor, 'certificates:issue');
       return dataSource.transaction(async (manager) => {
-        const row = await reissueCertificate({ manager, config, actor, loadSource: loadCertificateSource, markCertified }, number, reason);
+        const row = await reissueCertificate({ manager, config, actor, loadSource: loadCertificateSource, markCertified }, number, reason, justification);
         return toCertificateSummary(manager, row);
       });
     },
@@ -103,7 +105,7 @@ export function createCertificatesService(dataSource: DataSource, config: AppCon
       if (q.issuedFrom) qb.andWhere('c.issued_at >= :from', { from: new Date(q.issuedFrom) });
       if (q.issuedTo) qb.andWhere('c.issued_at < :to', { to: endOfDay(q.issuedTo) });
       if (q.q) qb.andWhere('(c.number ILIKE :q OR c.campaign_label ILIKE :q OR c.pdf_sha256 ILIKE :q)', { q: `%${q.q}%` });
-      qb.orderBy(sortColumns[q.sort ?? 'issuedAt'], q.order === 'asc' ? 'ASC' : 'DESC').addOrderBy('c.number', 'DESC');
+      qb.orderBy(sortColumns.get(q.sort ?? 'issuedAt') ?? 'c.issued_at', q.order === 'asc' ? 'ASC' : 'DESC').addOrderBy('c.number', 'DESC');
       const [rows, total] = await qb.skip((q.page - 1) * q.pageSize).take(q.pageSize).getManyAndCount();
       const institutes = await instituteNames(manager);
       const items = await Promise.all(rows.map((r) => toCertificateSummary(manager, r, institutes)));

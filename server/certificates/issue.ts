@@ -1,12 +1,15 @@
 import { createHash, randomUUID } from 'node:crypto';
 import type { EntityManager } from 'typeorm';
-import { formatCertificateNumber, type CertificateSnapshot } from '../../shared/certificates';
+import { formatCertificateNumber, type CertificateSnapshot, type ReviewDecision } from '../../shared/certificates';
+import { certificationExceptions } from '../campaigns/review-rules';
+import { CampaignEntity } from '../db/entities/registry.entities';
+import { labAddresses, mailDate } from '../mail/mail-text';
 import { recordAudit } from '../audit/audit.service';
 import { type Actor, actorLabel } from '../auth/actor';
 import type { AppConfig } from '../config';
-import { AuditEventEntity, InstituteEntity, UserEntity } from '../db/entities/core.entities';
+import { AuditEventEntity, InstituteEntity } from '../db/entities/core.entities';
 import { CertificateEntity, type CertificateRow } from '../db/entities/certificates.entities';
-import { Conflict, NotFound } from '../http/errors';
+import { Conflict, Forbidden, Invalid, NotFound } from '../http/errors';
 import { enqueueMail } from '../mail/outbox';
 import type { CertificateSource, SnapshotBody } from './certificate-source.types';
 import { coordinatingInstitute, currentSigningKey, instituteSubject, publishCrl, trustedTsaRoots } from './institute-identity';
@@ -14,6 +17,7 @@ import { signPades, type PadesOptions } from './pdf/pades';
 import { renderCertificatePdf } from './pdf/render-certificate';
 import { parseCertificate } from './pki/der';
 import { crlUrlsOf, fetchCrl } from './pki/x509';
+import { faultPoint } from '../dev/fault-point';
 
 // Issuing, reissuing and revoking inside the caller's transaction: number, snapshot, render, sign, store,
 // audit and mail commit together or not at all.
@@ -74,7 +78,40 @@ export function verificationUrlFor(config: AppConfig, number: string): string {
   return `${config.publicUrl}/verify?number=${encodeURIComponent(number)}`;
 }
 
-async function renderAndSign(ctx: IssueContext, body: SnapshotBody, number: string, revision: number, issuedAt: Date) {
+export type CertifyDecision = { comment: string; justification?: string };
+
+/**
+ * The review decision printed on the certificate. Enforces the installation's rules: the four-eyes rule (the
+ * person who accepted may not certify) and a written justification when the campaign has review exceptions.
+ * Kept out of the result fingerprint: the same result certified again is the same certificate.
+ */
+async function reviewDecision(ctx: IssueContext, campaignId: string, body: SnapshotBody, decision: CertifyDecision, previous?: ReviewDecision): Promise<ReviewDecision> {
+  const c = (await ctx.manager.getRepository(CampaignEntity).findOneBy({ id: campaignId })) ?? { acceptedByUserId: null, acceptedBy: null, acceptedAt: null, acceptanceComment: null, acceptanceJustification: null, acceptanceExceptions: [] };
+  if (ctx.config.reviewFourEyes && c.acceptedByUserId && c.acceptedByUserId === ctx.actor.userId) {
+    throw new Forbidden(`Four-eyes rule: you accepted this campaign (${mailDate(c.acceptedAt ?? new Date())}), so another coordinator must issue its certificate.`);
+  }
+  const exceptions = certificationExceptions(body, ctx.config.reviewMinUptimeFraction);
+  const earlier = previous?.justifications.find((j) => j.stage === 'certification');
+  const text = decision.justification ?? (exceptions.length ? earlier?.text : undefined);
+  if (exceptions.length && !text) {
+    throw new Invalid(`Certifying needs a written justification: ${exceptions.map((x) => x.text).join(' ')}`, [
+      { path: 'body.justification', message: `required: ${exceptions.map((x) => x.code).join(', ')}` },
+    ]);
+  }
+  const justifications: ReviewDecision['justifications'] = [];
+  if (c.acceptanceJustification) justifications.push({ stage: 'acceptance', by: c.acceptedBy ?? 'the reviewer', text: c.acceptanceJustification });
+  if (exceptions.length && text) justifications.push({ stage: 'certification', by: decision.justification ? ctx.actor.displayName : (earlier?.by ?? ctx.actor.displayName), text });
+  return {
+    acceptedBy: c.acceptedBy,
+    acceptanceComment: c.acceptanceComment,
+    certifiedBy: ctx.actor.displayName,
+    certificationComment: decision.comment,
+    exceptions: [...new Set([...(c.acceptanceExceptions ?? []), ...exceptions.map((x) => x.text)])],
+    justifications,
+  };
+}
+
+async function renderAndSign(ctx: IssueContext, body: SnapshotBody, number: string, revision: number, issuedAt: Date, review: ReviewDecision) {
   const institute = await coordinatingInstitute(ctx.manager);
   const issuingInstitute = institute?.name ?? 'Coordinating institute';
   const snapshot: CertificateSnapshot = {
@@ -86,6 +123,7 @@ async function renderAndSign(ctx: IssueContext, body: SnapshotBody, number: stri
     auditChainHead: await auditChainHead(ctx.manager),
     signer: { name: ctx.actor.displayName, role: `Coordinator, ${issuingInstitute}` },
     verificationUrl: verificationUrlFor(ctx.config, number),
+    review,
   };
   const unsigned = await renderCertificatePdf(snapshot);
   const { pdf, signingKeySerial } = await signCertificate(ctx.manager, ctx.config, unsigned, {
@@ -121,11 +159,7 @@ export async function signCertificate(manager: EntityManager, config: AppConfig,
 
 /** The operators of both clocks' institutes and the coordinator mailbox. */
 async function participantAddresses(manager: EntityManager, config: AppConfig, row: Pick<CertificateRow, 'instituteAId' | 'instituteBId'>): Promise<string[]> {
-  const ids = [row.instituteAId, row.instituteBId].filter((x): x is string => !!x);
-  const operators = ids.length
-    ? await manager.getRepository(UserEntity).createQueryBuilder('u').where('u.role = :r', { r: 'operator' }).andWhere('u.institute_id IN (:...ids)', { ids }).getMany()
-    : [];
-  return [...new Set([...operators.map((u) => u.email), config.coordinatorMail])];
+  return [...new Set([...(await labAddresses(manager, [row.instituteAId, row.instituteBId])), config.coordinatorMail])];
 }
 
 async function notify(manager: EntityManager, config: AppConfig, row: CertificateRow, subject: string, text: string) {
@@ -136,7 +170,7 @@ async function notify(manager: EntityManager, config: AppConfig, row: Certificat
 
 export type IssueOutcome = { created: boolean; row: CertificateRow };
 
-export async function issueCertificate(ctx: IssueContext, campaignId: string): Promise<IssueOutcome> {
+export async function issueCertificate(ctx: IssueContext, campaignId: string, decision: CertifyDecision): Promise<IssueOutcome> {
   const { manager, actor } = ctx;
   await lockCampaign(manager, campaignId);
   const issuedAt = ctx.now ?? new Date();
@@ -151,19 +185,23 @@ export async function issueCertificate(ctx: IssueContext, campaignId: string): P
   if (source.campaignState !== 'accepted' && source.campaignState !== 'certified') {
     throw new Conflict(`Only an accepted campaign can be certified; this one is '${source.campaignState}'.`, { state: source.campaignState });
   }
+  const review = await reviewDecision(ctx, campaignId, source.body, decision);
   const year = issuedAt.getUTCFullYear();
   const serial = await nextSerial(manager, year);
   const number = formatCertificateNumber(year, serial, 1);
-  const { snapshot, pdf, pdfSha256, signingKeySerial } = await renderAndSign(ctx, source.body, number, 1, issuedAt);
+  const { snapshot, pdf, pdfSha256, signingKeySerial } = await renderAndSign(ctx, source.body, number, 1, issuedAt, review);
+  await faultPoint('certificate-issue'); // test-only kill point: serial taken, PDF signed, nothing inserted yet
   const row = await insertRow(manager, actor, source, fingerprint, { number, year, serial, revision: 1, issuedAt, snapshot, pdf, pdfSha256, signingKeySerial });
   await recordAudit(manager, actor, {
     action: 'certificate.issued', entityType: 'certificate', entityId: number,
-    details: { campaignId, resultId: source.resultId, pdfSha256, auditChainHead: snapshot.auditChainHead },
+    details: { campaignId, resultId: source.resultId, pdfSha256, auditChainHead: snapshot.auditChainHead, comment: review.certificationComment, exceptions: review.exceptions, justifications: review.justifications },
   });
   if (source.campaignState !== 'certified') await ctx.markCertified(manager, campaignId, actor);
-  await notify(manager, ctx.config, row, `Certificate ${number} issued`,
-    `Certificate ${number} was issued for the campaign "${source.campaignLabel}" by ${actor.displayName}.\n\n` +
-      `SHA-256 of the signed file: ${pdfSha256}\nVerify it at ${verificationUrlFor(ctx.config, number)}\n`);
+  await notify(manager, ctx.config, row, `Campaign certified: ${source.campaignLabel} (certificate ${number})`,
+    `The campaign "${source.campaignLabel}" is certified: certificate ${number} was issued by ${actor.displayName} on ${mailDate(issuedAt)}.\n\n` +
+      `Comment: ${review.certificationComment}\n` +
+      (review.justifications.length ? `Certified despite: ${review.exceptions.join(' ')}\n${review.justifications.map((j) => `Justification (${j.stage}, ${j.by}): ${j.text}`).join('\n')}\n` : '') +
+      `\nSHA-256 of the signed file: ${pdfSha256}\nVerify it at ${verificationUrlFor(ctx.config, number)}\n`);
   return { created: true, row };
 }
 
@@ -195,7 +233,7 @@ async function newestRevisionNumber(manager: EntityManager, year: number, serial
   return newest!.number;
 }
 
-export async function reissueCertificate(ctx: IssueContext, number: string, reason: string): Promise<CertificateRow> {
+export async function reissueCertificate(ctx: IssueContext, number: string, reason: string, justification?: string): Promise<CertificateRow> {
   const { manager, actor } = ctx;
   const previous = await lockByNumber(manager, number);
   if (previous.state === 'superseded') {
@@ -210,7 +248,9 @@ export async function reissueCertificate(ctx: IssueContext, number: string, reas
   }
   const revision = previous.revision + 1;
   const newNumber = formatCertificateNumber(previous.year, previous.serial, revision);
-  const { snapshot, pdf, pdfSha256, signingKeySerial } = await renderAndSign(ctx, source.body, newNumber, revision, issuedAt);
+  const [prevSnapshot] = await manager.query(`SELECT snapshot->'review' AS review FROM certificate WHERE id = $1`, [previous.id]) as { review: ReviewDecision | null }[];
+  const review = await reviewDecision(ctx, previous.campaignId, source.body, { comment: reason, justification }, prevSnapshot?.review ?? undefined);
+  const { snapshot, pdf, pdfSha256, signingKeySerial } = await renderAndSign(ctx, source.body, newNumber, revision, issuedAt, review);
   const id = randomUUID();
   // The pointer's foreign key is deferred, so the old row can step aside before the new valid one arrives.
   await manager.getRepository(CertificateEntity).update({ id: previous.id }, { state: 'superseded', supersededBy: id, supersededAt: issuedAt });
@@ -222,7 +262,7 @@ export async function reissueCertificate(ctx: IssueContext, number: string, reas
   });
   if (source.campaignState !== 'certified') await ctx.markCertified(manager, previous.campaignId, actor);
   await notify(manager, ctx.config, row, `Certificate ${number} replaced by ${newNumber}`,
-    `Certificate ${number} for the campaign "${source.campaignLabel}" has been replaced by revision ${revision}, ${newNumber}, issued by ${actor.displayName}.\n\n` +
+    `Certificate ${number} for the campaign "${source.campaignLabel}" has been replaced by revision ${revision}, ${newNumber}, issued by ${actor.displayName} on ${mailDate(issuedAt)}.\n\n` +
       `What was corrected: ${reason}\n\nThe earlier file no longer stands on its own; use ${newNumber}.\n` +
       `SHA-256 of the new signed file: ${pdfSha256}\nVerify it at ${verificationUrlFor(ctx.config, newNumber)}\n`);
   return row;
@@ -240,7 +280,7 @@ export async function revokeCertificate(ctx: Pick<IssueContext, 'manager' | 'con
   await recordAudit(manager, actor, { action: 'certificate.revoked', entityType: 'certificate', entityId: number, details: { campaignId: row.campaignId, reason } });
   const fresh = await manager.getRepository(CertificateEntity).findOneByOrFail({ id: row.id });
   await notify(manager, ctx.config, fresh, `Certificate ${number} withdrawn`,
-    `Certificate ${number} for the campaign "${row.campaignLabel}" was withdrawn on ${revokedAt.toISOString()} by ${actor.displayName}.\n\n` +
+    `Certificate ${number} for the campaign "${row.campaignLabel}" was withdrawn on ${mailDate(revokedAt)} by ${actor.displayName}.\n\n` +
       `Reason: ${reason}\n\nThe file must no longer be relied on. Anyone can check its state at ${verificationUrlFor(ctx.config, number)}\n`);
   return fresh;
 }

@@ -20,6 +20,20 @@ const headlines: Record<VerificationVerdict, string> = {
   unsigned: 'This file carries no signature, so it cannot be a certificate issued here.',
 };
 
+type Tamper = NonNullable<VerificationResult['tamper']>;
+/** Sorts the signature check's reason into what a reader needs to know. */
+function tamperOf(reason: string | undefined): Tamper {
+  if (!reason) return 'damaged-signature';
+  if (/appended|were changed|does not start at the beginning|does not match the file/.test(reason)) return 'changed-after-signing';
+  if (/certificate other than the pinned|signer certificate is not included|does not verify with the pinned/.test(reason)) return 'foreign-signature';
+  return 'damaged-signature';
+}
+const tamperHeadlines: Record<Tamper, string> = {
+  'changed-after-signing': 'This file was changed after signing: it is not the file the issuing institute signed.',
+  'foreign-signature': 'This file was not signed by the issuing institute: the signature belongs to another key.',
+  'damaged-signature': 'The signature in this file is damaged or incomplete, so the file cannot be trusted.',
+};
+
 async function newestNumber(manager: EntityManager, row: CertificateRow): Promise<string | null> {
   const newest = await manager.getRepository(CertificateEntity).findOne({ where: { year: row.year, serial: row.serial }, order: { revision: 'DESC' } });
   return newest && newest.number !== row.number ? newest.number : null;
@@ -86,10 +100,12 @@ export function createVerificationService(dataSource: DataSource, config: AppCon
       const file = { sha256: sha256Hex(pdf), bytes: pdf.length, numberInFile: signature.certificateNumber ?? null, signingTime: signature.signingTime ?? null };
       const base = { checkedBy: 'file' as const, file, signature: signature.report ?? null };
       if (signature.status !== 'valid') {
+        // A file whose signature does not verify proves nothing, so it learns nothing about any record (not even
+        // whether the number it names exists): anyone can write a number into a file.
         const verdict: VerificationVerdict = signature.status;
-        // Point to the genuine record when the file names one, so the reader can fetch the original.
-        const named = file.numberInFile ? await manager.getRepository(CertificateEntity).findOneBy({ number: file.numberInFile }) : null;
-        return { ...base, verdict, headline: headlines[verdict], reason: signature.reason ?? null, certificate: named ? await describe(manager, named) : null };
+        // A file whose signature does not verify gets no record (it would disclose one to anybody naming a number).
+        const tamper = verdict === 'tampered' ? tamperOf(signature.reason) : null;
+        return { ...base, verdict, tamper, headline: tamper ? tamperHeadlines[tamper] : headlines[verdict], reason: signature.reason ?? null, certificate: null };
       }
       const row = await manager.getRepository(CertificateEntity).findOneBy({ pdfSha256: file.sha256 });
       if (!row || (file.numberInFile && row.number !== file.numberInFile)) {
@@ -107,22 +123,17 @@ export function createVerificationService(dataSource: DataSource, config: AppCon
     },
 
     async verifyNumber(number: string, sha256: string): Promise<VerificationResult> {
-      const manager = dataSource.manager;
-      const row = await manager.getRepository(CertificateEntity).findOneBy({ number });
-      const base = { checkedBy: 'number-and-sha256' as const, file: null };
+      // The caller proves only that they know a number and a SHA-256: the answer is the state of that exact file
+      // or "not issued here" — the same words for an unknown number as for a known one with another digest, and
+      // no details of the record (those come with a check of the file itself).
+      const row = await dataSource.manager.getRepository(CertificateEntity).findOneBy({ number, pdfSha256: sha256 });
+      const base = { checkedBy: 'number-and-sha256' as const, file: null, certificate: null };
       if (!row) {
-        return { ...base, verdict: 'not-issued-here', headline: headlines['not-issued-here'], reason: `no certificate numbered ${number} was issued here`, certificate: null };
+        return { ...base, verdict: 'not-issued-here', headline: headlines['not-issued-here'], reason: `no certificate numbered ${number} with this SHA-256 was issued here` };
       }
-      if (row.pdfSha256 !== sha256) {
-        return {
-          ...base, verdict: 'not-issued-here', headline: headlines['not-issued-here'],
-          reason: `certificate ${number} exists, but the file issued under it has a different SHA-256: the file you hold is not that certificate`,
-          certificate: null,
-        };
-      }
-      const certificate = await describe(manager, row);
       const verdict = stateVerdict(row);
-      return { ...base, verdict, headline: headlines[verdict], reason: stateReason(certificate), certificate };
+      const reason = verdict === 'valid' ? null : 'check the file itself (upload it) for the newer revision or the reason for the withdrawal';
+      return { ...base, verdict, headline: headlines[verdict], reason };
     },
   };
 }

@@ -2,7 +2,7 @@ import http from 'node:http';
 import { simpleParser } from 'mailparser';
 import { SMTPServer } from 'smtp-server';
 
-// Local mail catcher for development and tests: accepts SMTP on loopback, keeps messages in memory and
+// Local test mailbox for development and tests: accepts SMTP on loopback, keeps messages in memory and
 // lists them over a small HTTP endpoint (GET /messages, DELETE /messages). Nothing leaves the machine.
 // down() and up() stop and restart the SMTP side on the same port, so tests can stage a mail-server outage.
 

@@ -1,22 +1,36 @@
 import { z } from 'zod';
+import { isSaturated, poolStats } from '../db/pool-stats';
 import { route } from '../http/route';
 import { privilegeWarnings } from '../db/roles';
 
+const HEALTH_QUERY_TIMEOUT_MS = 2000;
+
+const poolSchema = z.object({ max: z.number(), total: z.number(), idle: z.number(), inUse: z.number(), waiting: z.number() });
+
 export const healthRoutes = [
   route({
-    method: 'get', path: '/api/health', summary: 'Liveness and database reachability', tag: 'health', permission: 'public',
-    response: z.object({ status: z.literal('ok'), database: z.literal('ok'), warnings: z.array(z.string()).optional() }),
+    method: 'get', path: '/api/health', summary: 'Liveness, database reachability and connection-pool saturation (503 when degraded or unavailable)', tag: 'health', permission: 'public',
+    response: z.object({ status: z.enum(['ok', 'degraded', 'unavailable']), database: z.enum(['ok', 'unreachable']), pool: poolSchema.optional(), reason: z.string().optional(), warnings: z.array(z.string()).optional() }),
     handler: async ({ deps, res }) => {
+      const pool = poolStats(deps.dataSource) ?? undefined;
+      // A saturated pool would make the probe itself queue: report it without asking for a connection.
+      if (pool && isSaturated(pool)) {
+        res.status(503).json({ status: 'degraded', database: 'ok', pool, reason: `all ${pool.max} database connections are in use; ${pool.waiting} request(s) waiting` });
+        return;
+      }
       try {
-        await deps.dataSource.query('SELECT 1');
+        let timer: NodeJS.Timeout | undefined;
+        await Promise.race([
+          deps.dataSource.query('SELECT 1'),
+          new Promise((_, reject) => (timer = setTimeout(() => reject(new Error(`no answer within ${HEALTH_QUERY_TIMEOUT_MS} ms`)), HEALTH_QUERY_TIMEOUT_MS))),
+        ]).finally(() => clearTimeout(timer));
         // a connection that could rewrite the audit trail still serves, but says so (docs/operations.md, "Database roles")
         const warnings = await privilegeWarnings(deps.dataSource);
-        return { status: 'ok', database: 'ok', ...(warnings.length ? { warnings } : {}) };
+        res.status(200).json({ status: 'ok', database: 'ok', pool, ...(warnings.length ? { warnings } : {}) });
       } catch (e) {
-        res.status(503);
-        return { status: 'unavailable', database: 'unreachable', reason: (e as Error).message };
+        res.status(503).json({ status: 'unavailable', database: 'unreachable', pool, reason: (e as Error).message });
       }
     },
-    raw: false,
+    raw: true,
   }),
 ];

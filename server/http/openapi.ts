@@ -14,7 +14,14 @@ export function buildOpenApi(routes: RouteSpec[], serverUrl: string) {
     if (r.params) request.params = r.params;
     if (r.query) request.query = r.query;
     if (r.multipart) {
-      request.body = { content: { 'multipart/form-data': { schema: { type: 'object', properties: { file: { type: 'string', format: 'binary' } } } } } };
+      const fields = r.formFields ?? {};
+      const names = Object.keys(fields);
+      request.body = {
+        description: names.length
+          ? `multipart/form-data: the fields ${names.map((n) => `\`${n}\``).join(', ')} first, then the part \`file\` last (the server reads the parts in order and streams the file).`
+          : 'multipart/form-data with one part `file`.',
+        content: { 'multipart/form-data': { schema: { type: 'object', properties: { ...fields, file: { type: 'string', format: 'binary' } }, required: ['file'] }, encoding: { file: { contentType: 'text/csv, text/plain, application/octet-stream' } } } },
+      };
     } else if (r.body) {
       request.body = { content: { 'application/json': { schema: r.body } } };
     }
@@ -34,6 +41,7 @@ export function buildOpenApi(routes: RouteSpec[], serverUrl: string) {
         401: problem,
         403: problem,
         404: problem,
+        ...Object.fromEntries((r.problems ?? []).map((status) => [status, problem])),
       },
     });
   }

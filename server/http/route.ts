@@ -36,6 +36,10 @@ export type RouteSpec<B = unknown, Q = unknown, P = unknown> = {
   raw?: boolean;
   /** request body is not JSON (multipart upload) — documented as such */
   multipart?: boolean;
+  /** the text fields of a multipart body (JSON Schema), documented before the file part */
+  formFields?: Record<string, Record<string, unknown>>;
+  /** further problem statuses the route answers with (409, 413, …), beyond 400/401/403/404 */
+  problems?: number[];
   handler: (ctx: RouteContext<B, Q, P>) => Promise<unknown>;
 };
 

@@ -5,12 +5,16 @@ import PgBoss from 'pg-boss';
 
 export const ADJUSTMENT_QUEUE = 'adjustment-run';
 export type AdjustmentJob = { runId: string };
+/** Computes a campaign's comparison result (after an upload, an acceptance or a request to recompute). */
+export const RESULT_QUEUE = 'result-compute';
+export type ResultJob = { campaignId: string; requestedByUserId: string | null; force: boolean };
 
 export async function startBoss(databaseUrl: string, opts: { supervise?: boolean } = {}): Promise<PgBoss> {
   const boss = new PgBoss({ connectionString: databaseUrl, max: 4, supervise: opts.supervise ?? true, schedule: false, application_name: 'chronolevel-jobs' });
   boss.on('error', () => undefined); // transient errors are retried by pg-boss itself; job failures are stored on the run
   await boss.start();
   await boss.createQueue(ADJUSTMENT_QUEUE, { name: ADJUSTMENT_QUEUE, retryLimit: 2, retryDelay: 5, expireInMinutes: 60 });
+  await boss.createQueue(RESULT_QUEUE, { name: RESULT_QUEUE, retryLimit: 2, retryDelay: 5, expireInMinutes: 30 });
   return boss;
 }
 

@@ -1,5 +1,5 @@
 import { z } from 'zod';
-import { adminApiTokenSchema, adminTokenQuerySchema, apiTokenSchema, auditEventSchema, createApiTokenSchema, createdApiTokenSchema, createInstituteSchema, instituteSchema, meSchema, sessionIdParamsSchema, sessionSchema, updateInstituteSchema, updateUserSchema, userSchema } from '../../shared/auth';
+import { adminApiTokenSchema, adminTokenQuerySchema, apiTokenSchema, auditEventSchema, createApiTokenSchema, createdApiTokenSchema, createInstituteSchema, instituteSchema, meSchema, sessionIdParamsSchema, sessionSchema, updateInstituteSchema, updateUserSchema, userListQuery, userSchema } from '../../shared/auth';
 import { idParamsSchema, pageOf, pageQuerySchema } from '../../shared/http';
 import { toAuditEventDto } from '../audit/audit.service';
 import { AuditEventEntity, InstituteEntity } from '../db/entities/core.entities';
@@ -37,7 +37,7 @@ export const foundationRoutes = [
   }),
   route({
     method: 'get', path: '/api/v1/users', summary: 'People with access', tag: 'users', permission: 'users:read',
-    query: pageQuerySchema, response: pageOf(userSchema),
+    query: userListQuery, response: pageOf(userSchema),
     handler: ({ actor, query, deps }) => createUsersService(deps.dataSource).list(actor, query),
   }),
   route({
@@ -77,12 +77,12 @@ export const foundationRoutes = [
     },
   }),
   route({
-    method: 'get', path: '/api/v1/dev/mailbox', summary: 'Messages caught by the local mail catcher (development)', tag: 'admin', permission: 'mailbox:read',
+    method: 'get', path: '/api/v1/dev/mailbox', summary: 'Messages caught by the local test mailbox (development)', tag: 'admin', permission: 'mailbox:read',
     response: z.array(z.object({ id: z.number(), receivedAt: z.string(), from: z.string(), to: z.array(z.string()), subject: z.string(), text: z.string() })),
     handler: async ({ deps }) => {
       await deps.mail.flush();
       const res = await fetch(`${deps.config.mailboxUrl}/messages`).catch(() => null);
-      if (!res?.ok) throw new Unavailable('The local mail catcher is not reachable.');
+      if (!res?.ok) throw new Unavailable('The local test mailbox is not reachable.');
       return ((await res.json()) as unknown[]).reverse();
     },
   }),

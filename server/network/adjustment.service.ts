@@ -8,18 +8,26 @@ import {
 import { recordAudit } from '../audit/audit.service';
 import type { Actor } from '../auth/actor';
 import { authorize } from '../auth/permissions';
-import { AdjustmentRunEntity, BenchmarkEntity, type AdjustmentRunRow } from '../db/entities/network.entities';
+import { AdjustmentRunEntity, BenchmarkEntity, HeightDatumEntity, type AdjustmentRunRow } from '../db/entities/network.entities';
+import { faultPoint } from '../dev/fault-point';
 import { AppError, Invalid, NotFound } from '../http/errors';
 import { adjustNetwork, AdjustmentInputError, type AdjustmentInput, type AdjustmentStage, type NetworkObservation, type NetworkPoint } from '../science/adjustment/gauss-markov';
 import { normalisedError } from '../science/agreement';
 import { meanNormalGravity, normalGravityAtHeight, normalHeightFromC } from '../science/normal-gravity';
+import { convertPotential, potentialShiftFromMeanTide } from '../science/tides';
+import { datumOffsetTerms } from '../science/adjustment/datum-offsets';
 import { loadSectionsWithBenchmarks } from './network.service';
 import { clockDeltaCFor, loadAcceptedCampaigns, loadLinks, loadSites } from './registry-bridge';
+import { canSeeCampaign } from '../auth/campaign-scope';
 
 // Adjustment runs: gather the inputs (sections, site ties, accepted clock comparisons), store them with the options in
 // an immutable run row, let a pg-boss worker adjust them (server/jobs/worker.ts), and read the results back for the
 // run pages, the reconciliation of clocks with levelling and the map.
 
+/** A stored (JSON) lookup table read by a key that may be anything a person typed: own properties only. */
+function ownValue<T>(table: Record<string, T>, key: string): T | undefined {
+  return Object.hasOwn(table, key) ? table[key] : undefined;
+}
 export class NetworkNotConnected extends AppError {
   constructor(message: string, parts: { codes: string[]; count: number }[]) {
     super(422, 'network-not-connected', 'Part of the network has no datum', message, { parts });
@@ -36,6 +44,11 @@ export type StoredInputs = {
   pointMeta: Record<string, PointMeta>;
   observationMeta: Record<string, ObservationMeta>;
   clockCampaigns: { campaignId: string; observationId: string; crossesDatums: boolean }[];
+  /** Labels of the shared parameters (clock budget versions, links, reference ratios). */
+  sharedLabels?: Record<string, string>;
+  referenceDatum?: string | null;
+  tideConversions?: { label: string; from: TideSystem; to: TideSystem; shift_m2s2: number; pointCode?: string }[];
+  excluded?: { label: string; reason: string }[];
 };
 
 export const sitePoint = (siteId: string) => `site:${siteId}`;
@@ -58,7 +71,8 @@ export function levellingComponents(observations: RunResult['observations']): (a
     return r;
   };
   for (const o of observations) {
-    if (o.kind === 'clock') continue;
+    // Observations that data snooping removed do not join anything.
+    if (o.kind === 'clock' || o.suspected) continue;
     if (!parent.has(o.from)) parent.set(o.from, o.from);
     if (!parent.has(o.to)) parent.set(o.to, o.to);
     parent.set(find(o.from), find(o.to));
@@ -66,18 +80,42 @@ export function levellingComponents(observations: RunResult['observations']): (a
   return (a, b) => parent.has(a) && parent.has(b) && find(a) === find(b);
 }
 
+/** A fixed benchmark whose known value states no tide system: the run is refused until someone states it. */
+export class TideSystemUnknown extends AppError {
+  constructor(message: string, items: string[]) {
+    super(422, 'tide-system-unknown', 'Tide system not stated', message, { items });
+  }
+}
+
+type TideSystem = 'mean-tide' | 'zero-tide' | 'tide-free';
+
 /** Gathers the network as it is now into adjustment input (pure data, stored with the run). */
 export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptions): Promise<StoredInputs> {
   const benchmarks = await m.getRepository(BenchmarkEntity).find({ where: { state: 'in-use' }, relations: { datum: true }, order: { code: 'ASC' } });
   const inUse = new Map(benchmarks.map((b) => [b.code, b]));
   const sections = (await loadSectionsWithBenchmarks(m)).filter((s) => inUse.has(s.fromBenchmark!.code) && inUse.has(s.toBenchmark!.code));
-  const pointMeta: Record<string, PointMeta> = {};
-  const observationMeta: Record<string, ObservationMeta> = {};
+  // Keyed by benchmark codes people type: prototype-less so a code like `__proto__` is an ordinary key.
+  const pointMeta = Object.create(null) as Record<string, PointMeta>;
+  const observationMeta = Object.create(null) as Record<string, ObservationMeta>;
+  const tideConversions: NonNullable<StoredInputs['tideConversions']> = [];
+  const excluded: NonNullable<StoredInputs['excluded']> = [];
+  const unknownTide: string[] = [];
   // Fixed benchmarks first, so the 'minimum' constraint holds a fixed benchmark.
   const ordered = [...benchmarks].sort((a, b) => Number(b.fixed) - Number(a.fixed) || a.code.localeCompare(b.code));
   const points: NetworkPoint[] = ordered.map((b) => {
     pointMeta[b.code] = { kind: 'benchmark', label: `${b.code} ${b.name}`, datumName: b.datum?.name ?? null, latitudeDeg: b.latitudeDeg };
-    return b.fixed && b.knownC_m2s2 !== null ? { code: b.code, fixedC: b.knownC_m2s2 } : { code: b.code };
+    if (!(b.fixed && b.knownC_m2s2 !== null)) return { code: b.code };
+    // The fixed value enters in its datum's tide system (Ekman 1989; Mäkinen & Ihde 2009): converted if stated otherwise.
+    const datumSystem = b.datum?.tideSystem ?? null;
+    const valueSystem = b.knownTideSystem ?? null;
+    if (valueSystem === null || datumSystem === null) {
+      unknownTide.push(b.code);
+      return { code: b.code, fixedC: b.knownC_m2s2 };
+    }
+    if (valueSystem === datumSystem) return { code: b.code, fixedC: b.knownC_m2s2 };
+    const converted = convertPotential(b.knownC_m2s2, b.latitudeDeg, valueSystem, datumSystem);
+    tideConversions.push({ label: `fixed value of ${b.code} (datum ${b.datum?.name})`, from: valueSystem, to: datumSystem, shift_m2s2: converted - b.knownC_m2s2, pointCode: b.code });
+    return { code: b.code, fixedC: converted };
   });
   const sigmaPerSqrtKm_m = options.sigmaMmPerSqrtKm / 1000;
   const observations: NetworkObservation[] = sections.map((s) => {
@@ -91,7 +129,7 @@ export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptio
 
   // Sites enter as pseudo-points tied to their benchmark: C_site − C_bm = γ·Δh_tie (the tie is metres of height).
   const sites = await loadSites(m);
-  const siteDatum = new Map<string, string | null>();
+  const siteDatum = new Map<string, { name: string | null; system: TideSystem | null; latitudeDeg: number }>();
   for (const site of sites) {
     const bm = site.benchmarkCode ? inUse.get(site.benchmarkCode) : undefined;
     if (!bm || site.tieHeightDifferenceM === null) continue;
@@ -99,30 +137,52 @@ export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptio
     const g = normalGravityAtHeight(site.latitudeDeg, bm.knownNormalHeightM ?? bm.ellipsoidalHeightM);
     points.push({ code });
     pointMeta[code] = { kind: 'site', label: siteLabel(site), datumName: bm.datum?.name ?? null, latitudeDeg: site.latitudeDeg };
-    siteDatum.set(site.id, bm.datum?.name ?? null);
+    siteDatum.set(site.id, { name: bm.datum?.name ?? null, system: bm.datum?.tideSystem ?? null, latitudeDeg: site.latitudeDeg });
     const id = `tie:${site.id}`;
     observationMeta[id] = { label: `local tie ${bm.code} → ${siteLabel(site)}` };
     observations.push({ id, kind: 'tie', from: bm.code, to: code, deltaC: g * site.tieHeightDifferenceM, sigma: g * Math.max(site.tieUncertaintyM ?? 0, TIE_SIGMA_FLOOR_M) });
   }
 
+  // Reference datum for the offsets: the datum of the first fixed benchmark that the levelling reaches.
+  const levelled = new Set(observations.flatMap((o) => [o.from, o.to]));
+  const referenceDatum = ordered.find((b) => b.fixed && levelled.has(b.code))?.datum?.name ?? null;
+
   const clockCampaigns: StoredInputs['clockCampaigns'] = [];
   const offsets = new Set<string>();
+  const shared = new Map<string, { sigma: number; label: string }>();
   if (options.includeClocks) {
     for (const c of await loadAcceptedCampaigns(m)) {
       if (!siteDatum.has(c.siteAId) || !siteDatum.has(c.siteBId)) continue;
       if (clockCampaigns.some((x) => x.campaignId === c.id)) continue;
       const dc = await clockDeltaCFor(m, c.id);
       if (!dc) continue;
-      const da = siteDatum.get(c.siteAId);
-      const db = siteDatum.get(c.siteBId);
-      const crosses = da !== db;
+      const da = siteDatum.get(c.siteAId)!;
+      const db = siteDatum.get(c.siteBId)!;
+      if (dc.tideSystem === null || da.system === null || db.system === null) {
+        excluded.push({ label: `clock comparison ${c.name}`, reason: 'the tide system of the clock result or of a datum is not stated; state it to include this campaign' });
+        continue;
+      }
+      const crosses = da.name !== db.name;
       const id = `clock:${c.id}`;
-      const ob: NetworkObservation = { id, kind: 'clock', from: sitePoint(c.siteAId), to: sitePoint(c.siteBId), deltaC: dc.deltaC_m2s2, sigma: dc.standardUncertainty_m2s2 };
-      if (crosses && options.datumOffsets) {
-        // Offset parameter: the clock sees the true potential difference; C in the two datums differ by a constant the
-        // levelling cannot see. Its estimate is clock ΔC − levelled ΔC: negative when datum B's numbers are too large.
-        ob.datumOffset = `${db} relative to ${da}`;
-        offsets.add(ob.datumOffset);
+      // The clock ΔC is stated in its result's tide system; the levelling in each datum's. Convert the clock ΔC to the
+      // systems of the two ends (Ekman 1989; Mäkinen & Ihde 2009): ΔC' = ΔC − [s_clk(B) − s_clk(A)] + [s_B(B) − s_A(A)].
+      const shift = potentialShiftFromMeanTide(db.system, db.latitudeDeg) - potentialShiftFromMeanTide(da.system, da.latitudeDeg)
+        - (potentialShiftFromMeanTide(dc.tideSystem, db.latitudeDeg) - potentialShiftFromMeanTide(dc.tideSystem, da.latitudeDeg));
+      if (dc.tideSystem !== da.system || dc.tideSystem !== db.system) {
+        tideConversions.push({
+          label: da.system === db.system ? `clock comparison ${c.name}` : `clock comparison ${c.name} (to ${da.system} at the from end, ${db.system} at the to end)`,
+          from: dc.tideSystem, to: da.system === db.system ? da.system : db.system, shift_m2s2: shift,
+        });
+      }
+      // Shared systematic terms are parameters; the observation keeps its own part only.
+      const terms: NonNullable<NetworkObservation['terms']> = dc.shared.map((t) => ({ name: t.name, coefficient: t.coefficient }));
+      for (const t of dc.shared) if (!shared.has(t.name)) shared.set(t.name, { sigma: t.sigma_m2s2, label: t.label });
+      const ob: NetworkObservation = { id, kind: 'clock', from: sitePoint(c.siteAId), to: sitePoint(c.siteBId), deltaC: dc.deltaC_m2s2 + shift, sigma: dc.ownUncertainty_m2s2, terms };
+      if (crosses && options.datumOffsets && referenceDatum !== null && da.name !== null && db.name !== null) {
+        // One offset per datum relative to the reference datum (C in datum d − C in the reference), so loops close.
+        const offsetTerms = datumOffsetTerms(da.name, db.name, referenceDatum);
+        for (const t of offsetTerms) offsets.add(t.name);
+        ob.terms = [...offsetTerms, ...terms];
       }
       observationMeta[id] = { label: `clock comparison ${c.name}` };
       observations.push(ob);
@@ -133,12 +193,29 @@ export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptio
   const used = new Set(observations.flatMap((o) => [o.from, o.to]));
   const kept = points.filter((p) => used.has(p.code));
   for (const code of Object.keys(pointMeta)) if (!used.has(code)) delete pointMeta[code];
+  const unknownUsed = unknownTide.filter((code) => used.has(code));
+  if (unknownUsed.length) {
+    throw new TideSystemUnknown(
+      `The fixed value of ${unknownUsed.join(', ')} states no tide system (or its datum does). Edit the benchmark and say whether the value is mean-tide, zero-tide or tide-free; it is never assumed.`,
+      unknownUsed,
+    );
+  }
+  const keptConversions = tideConversions.filter((t) => t.pointCode === undefined || used.has(t.pointCode));
+  // Adjusted differences for every pair of sites a fibre link joins: σ from the full covariance.
+  const differences = (await loadLinks(m))
+    .filter((l) => used.has(sitePoint(l.siteAId)) && used.has(sitePoint(l.siteBId)))
+    .map((l) => ({ from: sitePoint(l.siteAId), to: sitePoint(l.siteBId) }));
   return {
     adjustment: {
       points: kept, observations,
-      options: { alpha: options.alpha, alphaSnooping: options.alphaSnooping, constraint: options.constraint, datumOffsets: [...offsets] },
+      options: {
+        alpha: options.alpha, alphaSnooping: options.alphaSnooping, constraint: options.constraint, datumOffsets: [...offsets],
+        sharedParameters: [...shared].map(([name, v]) => ({ name, sigma: v.sigma })), differences,
+      },
     },
     pointMeta, observationMeta, clockCampaigns,
+    sharedLabels: Object.fromEntries([...shared].map(([name, v]) => [name, v.label])),
+    referenceDatum, tideConversions: keptConversions, excluded,
   };
 }
 
@@ -177,6 +254,8 @@ function describeParts(parts: { codes: string[]; count: number }[]) {
   return parts.map((p) => `${p.codes.join(', ')}${p.count > p.codes.length ? ` (+${p.count - p.codes.length} more)` : ''}`).join('; ');
 }
 
+const fmtShift = (v: number) => `${v >= 0 ? '+' : '−'}${Math.abs(v).toFixed(3)} m²/s²`;
+
 export function toRunDto(r: AdjustmentRunRow): AdjustmentRun {
   return {
     id: r.id, state: r.state, progress: r.progress, stage: r.stage,
@@ -194,7 +273,8 @@ export function computeRunResult(inputs: StoredInputs, onProgress?: (fraction: n
   const t0 = performance.now();
   const res = adjustNetwork({ ...inputs.adjustment, options: { ...inputs.adjustment.options, onProgress } });
   const points = res.points.map((p) => {
-    const meta = inputs.pointMeta[p.code];
+    const meta = ownValue(inputs.pointMeta, p.code);
+    if (!meta) throw new Error(`stored inputs lack the point ${p.code}`);
     const h = normalHeightFromC(p.c, meta.latitudeDeg);
     return {
       code: p.code, kind: meta.kind, label: meta.label, datumName: meta.datumName, latitudeDeg: meta.latitudeDeg,
@@ -203,11 +283,17 @@ export function computeRunResult(inputs: StoredInputs, onProgress?: (fraction: n
     };
   });
   const observations = res.observations.map((o) => ({
-    id: o.id ?? String(o.index), kind: o.kind, from: o.from, to: o.to, label: inputs.observationMeta[o.id ?? '']?.label ?? `${o.from} → ${o.to}`,
+    id: o.id ?? String(o.index), kind: o.kind, from: o.from, to: o.to, label: ownValue(inputs.observationMeta, o.id ?? '')?.label ?? `${o.from} → ${o.to}`,
     deltaC_m2s2: o.deltaC, sigma_m2s2: inputs.adjustment.observations[o.index].sigma, residual_m2s2: o.residual, redundancy: o.redundancy,
-    standardizedResidual: o.standardizedResidual, suspected: o.suspected,
+    standardizedResidual: o.standardizedResidual, suspected: o.suspected, removedAtStep: o.removedAtStep, sharedEffect_m2s2: o.sharedEffect,
   }));
   const g = 9.81;
+  // σ policy: a-priori σ (σ0 = 1) unless the global test rejects a too-large vᵀPv; then σ·σ̂0 (common practice:
+  // the a-priori weights are then too optimistic; never scaled down when σ̂0 < 1).
+  const scaleApplied = !!(res.globalTest && res.globalTest.statistic > res.globalTest.upper && res.sigma0 !== null);
+  const factor = scaleApplied ? (res.sigma0 as number) : 1;
+  const labelOf = (s: { id?: string; code?: string; from?: string; to?: string; source: string }) =>
+    s.source === 'observation' ? ownValue(inputs.observationMeta, s.id ?? '')?.label ?? `${s.from} → ${s.to}` : `fixed point ${s.code}`;
   return {
     points, observations,
     datumOffsets: res.datumOffsets.map((d) => ({ name: d.name, value_m2s2: d.value, sigma_m2s2: d.sigma, valueMm: (d.value / g) * 1000, sigmaMm: (d.sigma / g) * 1000 })),
@@ -215,14 +301,23 @@ export function computeRunResult(inputs: StoredInputs, onProgress?: (fraction: n
     globalTest: res.globalTest ? { statistic: res.globalTest.statistic, lower: res.globalTest.lower, critical: res.globalTest.critical, alpha: res.globalTest.alpha, passed: res.globalTest.passed } : null,
     snooping: {
       alpha0: res.snooping.alpha0, criticalValue: res.snooping.criticalValue,
-      suspects: res.snooping.suspects.map((s) => ({
-        id: s.id ?? s.code ?? String(s.index),
-        label: s.source === 'observation' ? inputs.observationMeta[s.id ?? '']?.label ?? `${s.from} → ${s.to}` : `fixed point ${s.code}`,
-        standardizedResidual: s.standardizedResidual,
-      })),
+      suspects: res.snooping.removals.map((s) => ({ id: s.id ?? s.code ?? String(s.index), label: labelOf(s), standardizedResidual: s.standardizedResidual, step: s.step })),
+      stoppedEarly: res.snooping.stoppedEarly,
+      initial: { sigma0: res.snooping.initial.sigma0, degreesOfFreedom: res.snooping.initial.degreesOfFreedom, globalTestPassed: res.snooping.initial.globalTest?.passed ?? null },
     },
-    redundancySum: res.observations.reduce((a, o) => a + o.redundancy, 0) + res.fixedPointObservations.reduce((a, o) => a + o.redundancy, 0),
+    redundancySum: res.observations.reduce((a, o) => a + (o.removedAtStep === null ? o.redundancy : 0), 0) + res.fixedPointObservations.reduce((a, o) => a + (o.removedAtStep === null ? o.redundancy : 0), 0),
     elapsedMs: performance.now() - t0,
+    sharedParameters: res.sharedParameters.map((p) => ({
+      name: p.name, label: inputs.sharedLabels?.[p.name] ?? p.name, value_m2s2: p.value, sigma_m2s2: p.sigma, priorSigma_m2s2: p.priorSigma, observations: p.observations,
+    })),
+    differences: res.differences.map((d) => ({ from: d.from, to: d.to, deltaC_m2s2: d.deltaC, sigma_m2s2: d.sigma, sigmaIgnoringCovariance_m2s2: d.sigmaIgnoringCovariance })),
+    sigmaScale: {
+      applied: scaleApplied, factor,
+      rule: 'σ on the a-priori scale (σ0 = 1) unless the global χ² test rejects a too-large vᵀPv; then every σ is multiplied by σ̂0.',
+    },
+    referenceDatum: inputs.referenceDatum ?? null,
+    tideConversions: (inputs.tideConversions ?? []).map((t) => ({ label: t.label, from: t.from, to: t.to, shift_m2s2: t.shift_m2s2 })),
+    excluded: inputs.excluded ?? [],
   };
 }
 
@@ -233,9 +328,7 @@ export async function executeRun(dataSource: DataSource, runId: string, onProgre
   if (!run || run.state === 'done' || run.state === 'failed') return;
   await repo.update({ id: runId }, { state: 'running', startedAt: new Date(), progress: 0.02, stage: 'loading inputs' });
   await onProgress?.(0.02, 'loading inputs');
-  // Test-only fault hook (the worker-kill test): pause after the first progress report; inert unless set.
-  const faultPause = Number(process.env.CHRONOLEVEL_FAULT_PAUSE_MS ?? 0);
-  if (faultPause > 0) await new Promise((r) => setTimeout(r, faultPause));
+  await faultPoint('adjustment-run'); // test-only kill point (server/dev/fault-point.ts); a no-op unless armed
   let lastWrite = 0;
   const pending: Promise<unknown>[] = [];
   try {
@@ -313,7 +406,16 @@ export function createAdjustmentService(dataSource: DataSource) {
       authorize(actor, 'network:read');
       const r = await dataSource.getRepository(AdjustmentRunEntity).findOneBy({ id });
       if (!r) throw new NotFound('Adjustment run');
-      return { ...toRunDto(r), result: (r.result as RunResult | null) ?? null };
+      const result = (r.result as RunResult | null) ?? null;
+      if (!result || actor.role !== 'operator') return { ...toRunDto(r), result };
+      // A run with clock observations holds other institutes' campaigns (label, ΔC, residual): an operator gets the
+      // network's adjusted points, and of the clock observations only those of campaigns they may see.
+      const visible = new Set((await loadAcceptedCampaigns(dataSource.manager)).filter((c) => canSeeCampaign(actor, c)).map((c) => `clock:${c.id}`));
+      const shown = (o: { id: string }) => !o.id.startsWith('clock:') || visible.has(o.id);
+      return {
+        ...toRunDto(r),
+        result: { ...result, observations: result.observations.filter(shown), snooping: { ...result.snooping, suspects: result.snooping.suspects.filter(shown) } },
+      };
     },
 
     async reconciliation(actor: Actor): Promise<Reconciliation> {
@@ -321,12 +423,22 @@ export function createAdjustmentService(dataSource: DataSource) {
       const m = dataSource.manager;
       const levelling = await latestDone(m, false);
       const withClocks = await latestDone(m, true);
-      const campaigns = await loadAcceptedCampaigns(m);
+      // The same campaign scoping as the campaign pages: an operator sees only their own institute's campaigns here.
+      const campaigns = (await loadAcceptedCampaigns(m)).filter((c) => canSeeCampaign(actor, c));
       const links = new Map((await loadLinks(m)).map((l) => [l.id, l]));
       const sites = new Map((await loadSites(m)).map((s) => [s.id, s]));
+      const datumSystem = new Map((await m.getRepository(HeightDatumEntity).find()).map((d) => [d.name, d.tideSystem as TideSystem]));
       const lv = levelling?.result as RunResult | null;
       const byCode = new Map(lv?.points.map((p) => [p.code, p]) ?? []);
       const connected = levellingComponents(lv?.observations ?? []);
+      const scale = lv?.sigmaScale?.applied ? lv.sigmaScale.factor : 1;
+      const diffOf = (from: string, to: string) => {
+        for (const d of lv?.differences ?? []) {
+          if (d.from === from && d.to === to) return d;
+          if (d.from === to && d.to === from) return { ...d, from, to, deltaC_m2s2: -d.deltaC_m2s2 };
+        }
+        return null;
+      };
       const rows: Reconciliation['rows'] = [];
       for (const c of campaigns) {
         const dc = await clockDeltaCFor(m, c.id);
@@ -337,23 +449,67 @@ export function createAdjustmentService(dataSource: DataSource) {
         const siteB = sites.get(c.siteBId);
         const clockU = 2 * dc.standardUncertainty_m2s2;
         let levellingDeltaC: number | null = null;
-        let levellingU: number | null = null;
+        let levellingSigma: number | null = null;
+        let sigmaIgnoringCov: number | null = null;
+        let sigmaMethod: Reconciliation['rows'][number]['levellingSigmaMethod'] = null;
         let note: string | null = null;
         if (a && b) {
+          const d = diffOf(a.code, b.code);
           levellingDeltaC = b.c_m2s2 - a.c_m2s2;
-          // Covariance between the two sites is not stored; the root-sum-square is conservative when they share a datum path.
-          levellingU = 2 * Math.hypot(a.sigmaC_m2s2, b.sigmaC_m2s2);
+          if (d) {
+            // σ² = q_AA + q_BB − 2q_AB from the adjustment (the covariance of the two adjusted sites).
+            levellingSigma = d.sigma_m2s2 * scale;
+            sigmaIgnoringCov = d.sigmaIgnoringCovariance_m2s2 * scale;
+            sigmaMethod = 'covariance';
+          } else {
+            // A run stored before differences were kept: the root-sum-square neglects the covariance. Re-run to replace it.
+            levellingSigma = Math.hypot(a.sigmaC_m2s2, b.sigmaC_m2s2) * scale;
+            sigmaIgnoringCov = levellingSigma;
+            sigmaMethod = 'root-sum-square';
+            note = 'this levelling run predates covariance-based differences: σ is the root-sum-square of the two sites (covariance neglected); start a new run';
+          }
         } else note = lv ? 'a site of this link has no local tie to a benchmark of the adjusted network' : 'no levelling-only adjustment run yet';
+        const levellingU = levellingSigma === null ? null : 2 * levellingSigma;
         const crosses = !!(a && b && a.datumName !== b.datumName);
+        // Tide systems: the clock result's and each datum's; compared in the datums' system when both agree, else in the clock's.
+        const sysA = a?.datumName ? datumSystem.get(a.datumName) ?? null : null;
+        const sysB = b?.datumName ? datumSystem.get(b.datumName) ?? null : null;
+        let tide: Reconciliation['rows'][number]['tide'] = null;
+        let tideKnown = true;
+        let clockCompared = dc.deltaC_m2s2;
+        let levellingCompared = levellingDeltaC;
+        if (a && b) {
+          if (dc.tideSystem === null || sysA === null || sysB === null) {
+            tideKnown = false;
+          } else {
+            const shift = (sys: TideSystem, at: { latitudeDeg: number }) => potentialShiftFromMeanTide(sys, at.latitudeDeg);
+            const system = sysA === sysB ? sysA : dc.tideSystem;
+            const clockShift = shift(system, b) - shift(system, a) - (shift(dc.tideSystem, b) - shift(dc.tideSystem, a));
+            const levShift = shift(system, b) - shift(system, a) - (shift(sysB, b) - shift(sysA, a));
+            clockCompared = dc.deltaC_m2s2 + clockShift;
+            levellingCompared = levellingDeltaC === null ? null : levellingDeltaC + levShift;
+            tide = {
+              clockSystem: dc.tideSystem, fromDatumSystem: sysA, toDatumSystem: sysB, comparedIn: system,
+              clockShift_m2s2: clockShift, levellingShift_m2s2: levShift,
+              statement: clockShift === 0 && levShift === 0
+                ? `clock result and levelling both ${system}: no conversion`
+                : `compared in ${system}: clock ΔC ${dc.tideSystem} → ${system} ${fmtShift(clockShift)}, levelled ΔC ${sysA === sysB ? sysA : `${sysA}/${sysB}`} → ${system} ${fmtShift(levShift)} (Ekman 1989; Mäkinen & Ihde 2009)`,
+            };
+          }
+        }
         // Across two datums that no levelling joins, the levelled ΔC carries the unknown datum offset: E_n would test
         // that offset, not the clocks, so no verdict of agreement is given.
-        const comparable = !!(a && b) && (!crosses || connected(a.code, b.code));
-        const agreement = comparable && levellingDeltaC !== null && levellingU !== null && clockU + levellingU > 0
-          ? normalisedError(dc.deltaC_m2s2, clockU, levellingDeltaC, levellingU) : null;
+        const joined = !!(a && b) && (!crosses || connected(a.code, b.code));
+        const comparable = joined && tideKnown;
+        const agreement = comparable && levellingCompared !== null && levellingU !== null && clockU + levellingU > 0
+          ? normalisedError(clockCompared, clockU, levellingCompared, levellingU) : null;
         let verdict: Reconciliation['rows'][number]['verdict'] = 'no-levelling';
-        if (a && b && !comparable) {
+        if (a && b && !joined) {
           verdict = 'not-comparable';
           note = `${a.datumName} and ${b.datumName} are not connected by levelling: the levelled ΔC contains the unknown offset between them.`;
+        } else if (a && b && !tideKnown) {
+          verdict = 'not-comparable';
+          note = `Tide system not stated (${dc.tideSystem === null ? 'clock result' : ''}${dc.tideSystem === null && (sysA === null || sysB === null) ? ' and ' : ''}${sysA === null || sysB === null ? 'height datum' : ''}): state it, nothing is compared until then.`;
         } else if (agreement) {
           verdict = agreement.agreed ? 'agreed' : 'not-agreed';
           if (crosses) note = `${a!.datumName} and ${b!.datumName} are joined by levelling, so the levelled ΔC spans both datums`;
@@ -364,18 +520,28 @@ export function createAdjustmentService(dataSource: DataSource) {
           fromDatum: a?.datumName ?? null, toDatum: b?.datumName ?? null,
           crossesDatums: crosses, comparable, verdict, clockDeltaC_m2s2: dc.deltaC_m2s2, clockExpandedU_m2s2: clockU,
           levellingDeltaC_m2s2: levellingDeltaC, levellingExpandedU_m2s2: levellingU,
-          difference_m2s2: levellingDeltaC === null ? null : dc.deltaC_m2s2 - levellingDeltaC,
+          levellingSigma_m2s2: levellingSigma, levellingSigmaIgnoringCovariance_m2s2: sigmaIgnoringCov, levellingSigmaMethod: sigmaMethod,
+          levellingSigmaScaled: scale !== 1,
+          tide,
+          difference_m2s2: levellingCompared === null ? null : clockCompared - levellingCompared,
           en: agreement?.en ?? null, agreed: agreement?.agreed ?? null, note,
         });
       }
       const message = rows.length === 0
         ? campaigns.length === 0
-          ? 'No campaign has been accepted yet, so there is nothing to reconcile.'
+          ? 'No accepted campaign that you may see exists yet, so there is nothing to reconcile.'
           : 'Accepted campaigns exist, but none has a computed result yet: nothing to compare with the levelling.'
         : lv ? null : 'No adjustment run without clock observations has finished yet: start one to get the levelling side.';
       return {
         levellingRunId: levelling?.id ?? null, levellingRunAt: levelling?.finishedAt?.toISOString() ?? null, clockRunId: withClocks?.id ?? null,
         rows, datumOffsets: (withClocks?.result as RunResult | null)?.datumOffsets ?? [], message,
+        sigmaPolicy: {
+          scaled: scale !== 1, factor: scale,
+          statement: scale !== 1
+            ? `The levelling-only run failed the global test (vᵀPv too large): its σ are scaled by σ̂0 = ${scale.toFixed(2)}.`
+            : 'The levelling-only run passed the global test (or has no redundancy): σ on the a-priori scale (σ0 = 1), not scaled by σ̂0.',
+          covariance: 'σ(ΔC) of the levelling = √(q_AA + q_BB − 2q_AB) from the adjustment: the two sites share the levelling back to the fixed benchmarks, which the root-sum-square √(σ_A² + σ_B²) would count twice.',
+        },
       };
     },
 
@@ -415,22 +581,54 @@ export function createAdjustmentService(dataSource: DataSource) {
 /** The stateless calculator: adjusts what the caller sends, stores nothing. */
 export function calcAdjust(actor: Actor, body: CalcAdjustBody): CalcAdjustResult {
   authorize(actor, 'calc:use');
+  const systematics = new Map<string, number>();
+  body.clockSystematics.forEach((c, i) => {
+    if (systematics.has(c.clock)) throw new Invalid(`clockSystematics[${i}]: clock ${c.clock} is listed twice`, [{ path: `body.clockSystematics.${i}.clock`, message: 'listed twice' }]);
+    systematics.set(c.clock, c.sigma);
+  });
+  const param = (clock: string) => `clock ${clock}`;
+  const observations: NetworkObservation[] = body.observations.map((o, i) => {
+    const ob: NetworkObservation = { id: String(i), from: o.from, to: o.to, deltaC: o.deltaC, sigma: o.sigma };
+    if (o.clocks) {
+      for (const end of ['from', 'to'] as const) {
+        if (!systematics.has(o.clocks[end])) {
+          throw new Invalid(`observations[${i}].clocks.${end}: clock ${o.clocks[end]} has no entry in clockSystematics`, [{ path: `body.observations.${i}.clocks.${end}`, message: `clock ${o.clocks[end]} is not in clockSystematics` }]);
+        }
+      }
+      ob.terms = [{ name: param(o.clocks.from), coefficient: -1 }, { name: param(o.clocks.to), coefficient: 1 }];
+    }
+    return ob;
+  });
   let res;
   try {
-    res = adjustNetwork({ points: body.points, observations: body.observations.map((o, i) => ({ ...o, id: String(i) })) });
+    res = adjustNetwork({
+      points: body.points, observations,
+      options: { sharedParameters: body.clockSystematics.map((c) => ({ name: param(c.clock), sigma: c.sigma })), differences: body.differences },
+    });
   } catch (e) {
     if (e instanceof AdjustmentInputError) {
       if (e.detail.reason === 'disconnected') {
         const parts = e.detail.parts ?? [];
         throw new NetworkNotConnected(`These parts of the network reach no fixed point: ${describeParts(parts)}.`, parts);
       }
-      throw new Invalid(e.message, [{ path: `body.${e.detail.path ?? e.detail.unknown ?? 'points'}`, message: e.message }]);
+      const path = (e.detail.path ?? e.detail.unknown ?? 'points').replace(/^options\.differences/, 'differences').replace(/^options\.sharedParameters/, 'clockSystematics').replace(/\[(\d+)\]/g, '.$1');
+      throw new Invalid(e.message, [{ path: `body.${path}`, message: e.message }]);
     }
     throw e;
   }
   return {
     points: res.points.map((p) => ({ code: p.code, c: p.c, sigma: p.sigma })),
-    observations: res.observations.map((o) => ({ from: o.from, to: o.to, residual: o.residual, redundancy: o.redundancy, standardizedResidual: o.standardizedResidual })),
+    observations: res.observations.map((o) => ({
+      from: o.from, to: o.to, residual: o.residual, redundancy: o.redundancy, standardizedResidual: o.standardizedResidual,
+      suspected: o.suspected, removedAtStep: o.removedAtStep,
+    })),
+    differences: res.differences.map((d) => ({ from: d.from, to: d.to, deltaC: d.deltaC, sigma: d.sigma })),
+    clockSystematics: res.sharedParameters.map((s, j) => ({ clock: body.clockSystematics[j].clock, estimate: s.value, sigma: s.sigma, priorSigma: s.priorSigma, observations: s.observations })),
+    snooping: {
+      criticalValue: res.snooping.criticalValue,
+      removals: res.snooping.removals.map((r) => ({ step: r.step, source: r.source, index: r.index, from: r.from, to: r.to, code: r.code, standardizedResidual: r.standardizedResidual })),
+      stoppedEarly: res.snooping.stoppedEarly,
+    },
     sigma0: res.sigma0, degreesOfFreedom: res.degreesOfFreedom,
     globalTest: res.globalTest ? { statistic: res.globalTest.statistic, critical: res.globalTest.critical, passed: res.globalTest.passed } : null,
   };

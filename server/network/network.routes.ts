@@ -10,7 +10,7 @@ import { authorize } from '../auth/permissions';
 import { enqueueAdjustment } from '../jobs/queue';
 import { createAdjustmentService } from './adjustment.service';
 import { createNetworkService } from './network.service';
-import { readUploadedFile, uploadSections } from './sections-upload';
+import { readSectionsUpload, uploadSections } from './sections-upload';
 
 // The levelling network: datums, benchmarks, sections (and their CSV upload), loops, adjustment runs, reconciliation, map.
 export const networkRoutes = [
@@ -77,7 +77,7 @@ export const networkRoutes = [
     permission: 'network:write', multipart: true, raw: true, query: sectionUploadQuerySchema, response: sectionUploadResultSchema,
     handler: async ({ actor, query, req, res, deps }) => {
       authorize(actor, 'network:write');
-      const file = await readUploadedFile(req, deps.config.uploadLimitBytes);
+      const file = await readSectionsUpload(req, { fileBytes: deps.config.upload.sectionsLimitBytes, maxLineChars: deps.config.upload.maxLineBytes });
       const out = await uploadSections(deps.dataSource, actor, file, query.preview === 'true');
       res.status(out.stored ? 201 : 200).json(out);
     },

@@ -1,5 +1,9 @@
 import type { DataSource, EntityManager } from 'typeorm';
 import type { PageQuery } from '../../shared/http';
+import type { benchmarkSortFields, sectionSortFields } from '../../shared/network';
+
+type BenchmarkSortField = (typeof benchmarkSortFields)[number];
+type SectionSortField = (typeof sectionSortFields)[number];
 import {
   type Benchmark, type BenchmarkInput, type HeightDatum, type HeightDatumInput, type LoopReport, type Section, type SectionInput,
 } from '../../shared/network';
@@ -37,7 +41,7 @@ export function toBenchmarkDto(b: BenchmarkRow): Benchmark {
     id: b.id, code: b.code, name: b.name, datumId: b.datumId, datumName: b.datum?.name ?? '',
     crs: b.crs, crsKind: crs.kind, crsLabel: crs.label, coordinates: b.coordinatesEntered, latitudeDeg: b.latitudeDeg, longitudeDeg: b.longitudeDeg,
     ellipsoidalHeightM: b.ellipsoidalHeightM, knownEnteredAs: b.knownEnteredAs, knownC_m2s2: b.knownC_m2s2,
-    knownNormalHeightM: b.knownNormalHeightM, knownUncertaintyC_m2s2: b.knownUncertaintyC_m2s2,
+    knownNormalHeightM: b.knownNormalHeightM, knownUncertaintyC_m2s2: b.knownUncertaintyC_m2s2, knownTideSystem: b.knownTideSystem ?? null,
     knownUncertaintyM: b.knownUncertaintyC_m2s2 === null ? null : b.knownUncertaintyC_m2s2 / gBar,
     fixed: b.fixed, monumentation: b.monumentation, state: b.state,
   };
@@ -71,14 +75,15 @@ export function normalGravityForSection(from: BenchmarkRow, to: BenchmarkRow): n
   return normalGravityAtHeight(midLat, midHeight);
 }
 
-const benchmarkSort: Record<string, string> = {
-  code: 'b.code', name: 'b.name', datumName: 'd.name', latitudeDeg: 'b.latitude_deg', longitudeDeg: 'b.longitude_deg',
-  knownNormalHeightM: 'b.known_normal_height_m', fixed: 'b.fixed', state: 'b.state',
-};
-const sectionSort: Record<string, string> = {
-  lineName: 's.line_name', fromCode: 'f.code', toCode: 't.code', deltaHeightM: 's.delta_height_m', lengthKm: 's.length_km',
-  observedOn: 's.observed_on', meanGravity_ms2: 's.mean_gravity_ms2',
-};
+// Sort names come from the lists' zod enums; Maps so no inherited name (`__proto__`, `constructor`) can match.
+const benchmarkSort = new Map<BenchmarkSortField, string>([
+  ['code', 'b.code'], ['name', 'b.name'], ['datumName', 'd.name'], ['latitudeDeg', 'b.latitude_deg'], ['longitudeDeg', 'b.longitude_deg'],
+  ['knownNormalHeightM', 'b.known_normal_height_m'], ['fixed', 'b.fixed'], ['state', 'b.state'],
+]);
+const sectionSort = new Map<SectionSortField, string>([
+  ['lineName', 's.line_name'], ['fromCode', 'f.code'], ['toCode', 't.code'], ['deltaHeightM', 's.delta_height_m'], ['lengthKm', 's.length_km'],
+  ['observedOn', 's.observed_on'], ['meanGravity_ms2', 's.mean_gravity_ms2'],
+]);
 
 function scienceIssue(e: unknown, prefix: string): never {
   if (e instanceof ScienceInputError) throw new Invalid(e.message, [{ path: `${prefix}.${e.field}`, message: e.message }]);
@@ -126,6 +131,7 @@ export function createNetworkService(dataSource: DataSource) {
       code: input.code, name: input.name, datumId: input.datumId, crs: input.crs, coordinatesEntered: input.coordinates,
       latitudeDeg: pos.latitudeDeg, longitudeDeg: pos.longitudeDeg, ellipsoidalHeightM: pos.ellipsoidalHeightM,
       knownEnteredAs: input.known?.kind ?? null, knownC_m2s2: knownC, knownNormalHeightM: knownH, knownUncertaintyC_m2s2: uC,
+      knownTideSystem: input.known?.tideSystem ?? null,
       fixed: input.fixed, monumentation: input.monumentation ?? null, state: input.state,
     };
   }
@@ -188,12 +194,12 @@ export function createNetworkService(dataSource: DataSource) {
     },
 
     // ---- benchmarks ----
-    async listBenchmarks(actor: Actor, q: PageQuery & { datumId?: string }) {
+    async listBenchmarks(actor: Actor, q: PageQuery & { datumId?: string; sort?: BenchmarkSortField }) {
       authorize(actor, 'network:read');
       const qb = dataSource.getRepository(BenchmarkEntity).createQueryBuilder('b').innerJoinAndSelect('b.datum', 'd');
       if (q.datumId) qb.andWhere('b.datum_id = :datumId', { datumId: q.datumId });
       if (q.q) qb.andWhere('(b.code ILIKE :q OR b.name ILIKE :q OR d.name ILIKE :q)', { q: `%${q.q}%` });
-      qb.orderBy(benchmarkSort[q.sort ?? 'code'] ?? 'b.code', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('b.id', 'ASC');
+      qb.orderBy(benchmarkSort.get(q.sort ?? 'code') ?? 'b.code', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('b.id', 'ASC');
       const [rows, total] = await qb.skip((q.page - 1) * q.pageSize).take(q.pageSize).getManyAndCount();
       return { items: rows.map(toBenchmarkDto), total, page: q.page, pageSize: q.pageSize };
     },
@@ -233,13 +239,13 @@ export function createNetworkService(dataSource: DataSource) {
     },
 
     // ---- sections ----
-    async listSections(actor: Actor, q: PageQuery & { datumId?: string }) {
+    async listSections(actor: Actor, q: PageQuery & { datumId?: string; sort?: SectionSortField }) {
       authorize(actor, 'network:read');
       const qb = dataSource.getRepository(LevellingSectionEntity).createQueryBuilder('s')
         .innerJoinAndSelect('s.fromBenchmark', 'f').innerJoinAndSelect('s.toBenchmark', 't').innerJoinAndSelect('f.datum', 'd');
       if (q.datumId) qb.andWhere('f.datum_id = :datumId', { datumId: q.datumId });
       if (q.q) qb.andWhere('(s.line_name ILIKE :q OR f.code ILIKE :q OR t.code ILIKE :q)', { q: `%${q.q}%` });
-      qb.orderBy(sectionSort[q.sort ?? 'lineName'] ?? 's.line_name', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('s.created_at', 'ASC').addOrderBy('s.id', 'ASC');
+      qb.orderBy(sectionSort.get(q.sort ?? 'lineName') ?? 's.line_name', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('s.created_at', 'ASC').addOrderBy('s.id', 'ASC');
       const [rows, total] = await qb.skip((q.page - 1) * q.pageSize).take(q.pageSize).getManyAndCount();
       return { items: rows.map((s) => toSectionDto(s, s.fromBenchmark?.datum)), total, page: q.page, pageSize: q.pageSize };
     },

@@ -1,6 +1,6 @@
 import crypto from 'node:crypto';
-import busboy from 'busboy';
-import { parse } from 'csv-parse/sync';
+import { Transform, type Readable } from 'node:stream';
+import { parse } from 'csv-parse';
 import type { Request } from 'express';
 import type { DataSource } from 'typeorm';
 import { sectionInputSchema, type SectionInput, type SectionUploadResult } from '../../shared/network';
@@ -9,43 +9,15 @@ import type { Actor } from '../auth/actor';
 import { authorize } from '../auth/permissions';
 import { HeightDatumEntity } from '../db/entities/network.entities';
 import { Conflict, Invalid, PayloadTooLarge } from '../http/errors';
+import { receiveMultipart } from '../uploads/multipart';
 import { createNetworkService, runCheck } from './network.service';
 
-// Levelling-section CSV upload (format: docs/formats/levelling-sections.md). The whole file is checked before
-// anything is stored; the first offending line and column are named; the rows go in one transaction.
+// Levelling-section CSV upload (format: docs/formats/levelling-sections.md), read as a stream. The whole file is
+// checked before anything is stored; the first offending line and column are named; the rows go in one transaction.
 
 export const SECTION_COLUMNS = ['line', 'from', 'to', 'delta_h_m', 'length_km', 'mean_gravity_ms2', 'observed_on', 'forward_m', 'backward_m'] as const;
 const REQUIRED = ['from', 'to', 'length_km'] as const;
 const MAX_ROWS = 100_000;
-
-/** Reads the one file field of a multipart body, up to the byte limit. */
-export function readUploadedFile(req: Request, limitBytes: number): Promise<{ name: string; bytes: Buffer }> {
-  return new Promise((resolve, reject) => {
-    let bb: busboy.Busboy;
-    try {
-      bb = busboy({ headers: req.headers, limits: { files: 1, fileSize: limitBytes } });
-    } catch {
-      reject(new Invalid('Send the file as multipart/form-data in a field named "file".', [{ path: 'body.file', message: 'missing multipart body' }]));
-      return;
-    }
-    let got: Promise<{ name: string; bytes: Buffer }> | null = null;
-    bb.on('file', (_field, stream, info) => {
-      got = new Promise((res, rej) => {
-        const chunks: Buffer[] = [];
-        stream.on('data', (c: Buffer) => chunks.push(c));
-        stream.on('limit', () => rej(new PayloadTooLarge(limitBytes)));
-        stream.on('end', () => res({ name: info.filename ?? 'upload.csv', bytes: Buffer.concat(chunks) }));
-        stream.on('error', rej);
-      });
-    });
-    bb.on('error', reject);
-    bb.on('close', () => {
-      if (!got) reject(new Invalid('No file in the upload.', [{ path: 'body.file', message: 'a file field is required' }]));
-      else got.then(resolve, reject);
-    });
-    req.pipe(bb);
-  });
-}
 
 function bad(line: number, column: string, message: string): never {
   throw new Invalid(`Line ${line}, column ${column}: ${message}. Nothing was stored.`, [{ path: `file.line ${line}.${column}`, line, column, message }]);
@@ -53,65 +25,109 @@ function bad(line: number, column: string, message: string): never {
 
 const NUMBER = /^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$/;
 
-/** Parses and validates every row; throws at the first bad line with its column. */
-export function parseSectionsCsv(bytes: Buffer): { rows: { input: SectionInput; line: number }[]; warnings: { line: number; message: string }[] } {
-  const text = bytes.toString('utf8').replace(/^\uFEFF/, '');
-  let records: { record: Record<string, string>; info: { lines: number } }[];
+export type ParsedSections = { name: string; sha256: string; rows: { input: SectionInput; line: number }[]; warnings: { line: number; message: string }[] };
+
+const COLUMN_OF_FIELD = new Map<string, string>([
+  ['lineName', 'line'], ['fromCode', 'from'], ['toCode', 'to'], ['deltaHeightM', 'delta_h_m'], ['lengthKm', 'length_km'],
+  ['meanGravity_ms2', 'mean_gravity_ms2'], ['observedOn', 'observed_on'], ['forwardM', 'forward_m'], ['backwardM', 'backward_m'],
+]);
+
+/**
+ * Reads the file part of a multipart request as a stream (busboy → csv-parse): hashes it, checks every row as it
+ * arrives and keeps only the checked rows, so memory stays with the rows, not the file. Limits: the file size
+ * (413), the line length (400 naming the line) and MAX_ROWS sections; parsing stops at the first bad line.
+ */
+export async function readSectionsUpload(req: Request, limits: { fileBytes: number; maxLineChars: number }): Promise<ParsedSections> {
+  const { result } = await receiveMultipart(req, { fileBytes: limits.fileBytes }, (file, info) => parseSectionsStream(file, info.filename, limits));
+  if (!result) throw new Invalid('No file in the upload.', [{ path: 'body.file', message: 'a file field is required' }]);
+  return result;
+}
+
+export async function parseSectionsStream(file: Readable, name: string, limits: { fileBytes: number; maxLineChars: number }): Promise<ParsedSections> {
+  const hash = crypto.createHash('sha256');
+  let tooLarge = false;
+  file.on('limit', () => (tooLarge = true));
+  const hashing = new Transform({
+    transform(chunk: Buffer, _enc, cb) {
+      hash.update(chunk);
+      cb(null, chunk);
+    },
+  });
+  const parser = parse({ bom: true, comment: '#', skip_empty_lines: true, trim: true, info: true, relax_column_count: false, max_record_size: limits.maxLineChars });
+  const rows: { input: SectionInput; line: number }[] = [];
+  const warnings: { line: number; message: string }[] = [];
+  let cols: string[] | null = null;
+  let headerLine = 1;
   try {
-    records = parse(text, { columns: (h: string[]) => h.map((c) => c.trim().toLowerCase()), comment: '#', skip_empty_lines: true, trim: true, info: true, relax_column_count: false });
+    file.pipe(hashing).pipe(parser);
+    file.on('error', (e) => parser.destroy(e));
+    for await (const item of parser as AsyncIterable<{ record: string[]; info: { lines: number } }>) {
+      const { record, info } = item;
+      if (!cols) {
+        cols = record.map((c) => c.trim().toLowerCase());
+        headerLine = info.lines;
+        checkHeader(cols, headerLine);
+        continue;
+      }
+      if (rows.length >= MAX_ROWS) bad(info.lines, 'line', `more than ${MAX_ROWS} sections in one file`);
+      rows.push(checkRow(new Map(cols.map((c, i) => [c, record[i] ?? ''])), info.lines));
+    }
   } catch (e) {
-    const err = e as { lines?: number; message: string };
-    bad(err.lines ?? 1, 'line', `not valid CSV (${err.message.replace(/^Invalid Record Length: /, '')})`);
+    file.unpipe();
+    file.resume(); // read the rest without parsing, so the client hears the answer
+    if (tooLarge) throw new PayloadTooLarge(limits.fileBytes);
+    if (e instanceof Invalid || e instanceof PayloadTooLarge) throw e;
+    const err = e as { code?: string; lines?: number; message: string };
+    if (err.code === 'CSV_MAX_RECORD_SIZE') bad(err.lines ?? 1, 'line', `longer than ${limits.maxLineChars} characters (the limit for one line)`);
+    if (typeof err.code === 'string' && err.code.startsWith('CSV_')) bad(err.lines ?? 1, 'line', `not valid CSV (${err.message.replace(/^Invalid Record Length: /, '')})`);
+    throw e;
   }
-  const header = text.split(/\r?\n/).find((l) => l.trim() && !l.trimStart().startsWith('#')) ?? '';
-  const headerLine = text.split(/\r?\n/).findIndex((l) => l.trim() && !l.trimStart().startsWith('#')) + 1;
-  const cols = header.split(',').map((c) => c.trim().toLowerCase());
+  if (tooLarge || (file as Readable & { truncated?: boolean }).truncated) throw new PayloadTooLarge(limits.fileBytes);
+  if (!cols) bad(1, 'from', 'the file has no header line');
+  if (rows.length === 0) bad(headerLine + 1, 'from', 'the file has no sections');
+  return { name, sha256: hash.digest('hex'), rows, warnings };
+}
+
+function checkHeader(cols: string[], headerLine: number) {
   for (const c of cols) if (!(SECTION_COLUMNS as readonly string[]).includes(c)) bad(headerLine, c || '(empty)', `unknown column; allowed: ${SECTION_COLUMNS.join(', ')}`);
   for (const c of REQUIRED) if (!cols.includes(c)) bad(headerLine, c, 'required column missing');
   if (!cols.includes('delta_h_m') && !(cols.includes('forward_m') && cols.includes('backward_m'))) bad(headerLine, 'delta_h_m', 'give delta_h_m, or both forward_m and backward_m');
-  if (records.length === 0) bad(headerLine + 1, 'from', 'the file has no sections');
-  if (records.length > MAX_ROWS) bad(headerLine + MAX_ROWS + 1, 'line', `more than ${MAX_ROWS} sections in one file`);
-
-  const warnings: { line: number; message: string }[] = [];
-  const rows = records.map(({ record, info }) => {
-    const line = info.lines;
-    const num = (c: string, { required = false } = {}): number | null => {
-      const v = record[c];
-      if (v === undefined || v === '') {
-        if (required) bad(line, c, 'value missing');
-        return null;
-      }
-      if (!NUMBER.test(v)) bad(line, c, `"${v}" is not a number (use a dot as decimal separator)`);
-      return Number(v);
-    };
-    const forwardM = num('forward_m');
-    const backwardM = num('backward_m');
-    let deltaHeightM = num('delta_h_m');
-    if (deltaHeightM === null) {
-      if (forwardM === null || backwardM === null) bad(line, 'delta_h_m', 'value missing (and not both forward_m and backward_m given)');
-      deltaHeightM = (forwardM - backwardM) / 2;
-    }
-    const candidate = {
-      lineName: record.line || null, fromCode: record.from ?? '', toCode: record.to ?? '', deltaHeightM,
-      lengthKm: num('length_km', { required: true }), meanGravity_ms2: num('mean_gravity_ms2'),
-      observedOn: record.observed_on || null, forwardM, backwardM,
-    };
-    const parsed = sectionInputSchema.safeParse(candidate);
-    if (!parsed.success) {
-      const issue = parsed.error.issues[0];
-      const column = ({ lineName: 'line', fromCode: 'from', toCode: 'to', deltaHeightM: 'delta_h_m', lengthKm: 'length_km', meanGravity_ms2: 'mean_gravity_ms2', observedOn: 'observed_on', forwardM: 'forward_m', backwardM: 'backward_m' } as Record<string, string>)[String(issue.path[0])] ?? 'line';
-      bad(line, column, issue.message);
-    }
-    if (parsed.data.fromCode === parsed.data.toCode) bad(line, 'to', 'a section must join two different benchmarks');
-    return { input: parsed.data, line };
-  });
-  return { rows, warnings };
 }
 
-export async function uploadSections(dataSource: DataSource, actor: Actor, file: { name: string; bytes: Buffer }, preview: boolean): Promise<SectionUploadResult> {
+function checkRow(record: Map<string, string>, line: number): { input: SectionInput; line: number } {
+  const num = (c: string, { required = false } = {}): number | null => {
+    const v = record.get(c);
+    if (v === undefined || v === '') {
+      if (required) bad(line, c, 'value missing');
+      return null;
+    }
+    if (!NUMBER.test(v)) bad(line, c, `"${v.slice(0, 40)}" is not a number (use a dot as decimal separator)`);
+    return Number(v);
+  };
+  const forwardM = num('forward_m');
+  const backwardM = num('backward_m');
+  let deltaHeightM = num('delta_h_m');
+  if (deltaHeightM === null) {
+    if (forwardM === null || backwardM === null) bad(line, 'delta_h_m', 'value missing (and not both forward_m and backward_m given)');
+    deltaHeightM = (forwardM - backwardM) / 2;
+  }
+  const candidate = {
+    lineName: record.get('line') || null, fromCode: record.get('from') ?? '', toCode: record.get('to') ?? '', deltaHeightM,
+    lengthKm: num('length_km', { required: true }), meanGravity_ms2: num('mean_gravity_ms2'),
+    observedOn: record.get('observed_on') || null, forwardM, backwardM,
+  };
+  const parsed = sectionInputSchema.safeParse(candidate);
+  if (!parsed.success) {
+    const issue = parsed.error.issues[0];
+    bad(line, COLUMN_OF_FIELD.get(String(issue.path[0])) ?? 'line', issue.message);
+  }
+  if (parsed.data.fromCode === parsed.data.toCode) bad(line, 'to', 'a section must join two different benchmarks');
+  return { input: parsed.data, line };
+}
+
+export async function uploadSections(dataSource: DataSource, actor: Actor, file: ParsedSections, preview: boolean): Promise<SectionUploadResult> {
   authorize(actor, 'network:write');
-  const sha256 = crypto.createHash('sha256').update(file.bytes).digest('hex');
-  const { rows, warnings } = parseSectionsCsv(file.bytes);
+  const { sha256, rows, warnings } = file;
   const service = createNetworkService(dataSource);
   const datums = await dataSource.getRepository(HeightDatumEntity).find();
   const kById = new Map(datums.map((d) => [d.id, d.sectionToleranceMmPerSqrtKm]));

@@ -12,7 +12,9 @@ import {
   quasigeoidGridSchema,
   referenceFrequencyInput,
   referenceFrequencySchema,
-  registryListQuery,
+  siteListQuery,
+  clockListQuery,
+  linkListQuery,
   siteSchema,
   updateClockSchema,
   updateLinkSchema,
@@ -35,7 +37,7 @@ export const registryRoutes = [
   // sites
   route({
     method: 'get', path: '/api/v1/sites', summary: 'Sites (paged, sortable, filterable)', tag: 'registry', permission: 'registry:read',
-    query: registryListQuery, response: pageOf(siteSchema),
+    query: siteListQuery, response: pageOf(siteSchema),
     handler: ({ actor, query, deps }) => svc(deps.dataSource).listSites(actor, query),
   }),
   route({
@@ -67,7 +69,7 @@ export const registryRoutes = [
   // clocks
   route({
     method: 'get', path: '/api/v1/clocks', summary: 'Clocks (paged, sortable, filterable)', tag: 'registry', permission: 'registry:read',
-    query: registryListQuery, response: pageOf(clockSchema),
+    query: clockListQuery, response: pageOf(clockSchema),
     handler: ({ actor, query, deps }) => svc(deps.dataSource).listClocks(actor, query),
   }),
   route({
@@ -114,7 +116,7 @@ export const registryRoutes = [
   // fibre links
   route({
     method: 'get', path: '/api/v1/links', summary: 'Fibre links with geodesic and chord distances', tag: 'registry', permission: 'registry:read',
-    query: registryListQuery, response: pageOf(linkSchema),
+    query: linkListQuery, response: pageOf(linkSchema),
     handler: ({ actor, query, deps }) => svc(deps.dataSource).listLinks(actor, query),
   }),
   route({

@@ -9,6 +9,9 @@ import {
   type NewBudgetVersion,
   type ReferenceFrequencyInput,
   type RegistryListQuery,
+  type SiteListQuery,
+  type ClockListQuery,
+  type LinkListQuery,
   type UpdateSite,
   type UploadQuasigeoidGrid,
   createClockSchema,
@@ -58,7 +61,7 @@ function science<T>(fn: () => T, fieldMap: Record<string, string>, fallback: str
     return fn();
   } catch (e) {
     if (e instanceof GridFormatError) throw new Invalid(e.message, [{ path: fieldMap.content ?? fallback, message: e.message, ...(e.line ? { line: e.line } : {}) }]);
-    if (e instanceof ScienceInputError) throw new Invalid(e.message, [{ path: fieldMap[e.field] ?? fallback, message: e.message }]);
+    if (e instanceof ScienceInputError) throw new Invalid(e.message, [{ path: Object.hasOwn(fieldMap, e.field) ? fieldMap[e.field] : fallback, message: e.message }]);
     throw e;
   }
 }
@@ -82,8 +85,11 @@ export function normalHeightOf(s: Pick<SiteRow, 'ellipsoidalHeightM' | 'ellipsoi
 
 export function toSiteDto(s: SiteRow, gridName: string | null = null) {
   let crsLabel = s.crs;
+  let crsKind: ReturnType<typeof resolveCrs>['kind'] | null = null;
   try {
-    crsLabel = resolveCrs(s.crs).label;
+    const resolved = resolveCrs(s.crs);
+    crsLabel = resolved.label;
+    crsKind = resolved.kind;
   } catch {
     // a stored PROJ string that no longer parses still shows as entered
   }
@@ -92,7 +98,7 @@ export function toSiteDto(s: SiteRow, gridName: string | null = null) {
     name: s.name,
     institute: { id: s.instituteId, code: s.institute?.code ?? '', name: s.institute?.name ?? '' },
     referencePoint: s.referencePoint,
-    entered: { crs: s.crs, crsLabel, coordinates: s.coordinates },
+    entered: { crs: s.crs, crsLabel, crsKind, coordinates: s.coordinates },
     grs80: {
       latitudeDeg: s.latitudeDeg,
       longitudeDeg: s.longitudeDeg,
@@ -103,7 +109,8 @@ export function toSiteDto(s: SiteRow, gridName: string | null = null) {
       zM: s.zM,
     },
     assumptions: s.assumptions,
-    quasigeoid: { source: s.quasigeoidSource, gridId: s.quasigeoidGridId, gridName, heightM: s.quasigeoidHeightM, uncertaintyM: s.quasigeoidUncertaintyM },
+    quasigeoid: { source: s.quasigeoidSource, gridId: s.quasigeoidGridId, gridName, heightM: s.quasigeoidHeightM, uncertaintyM: s.quasigeoidUncertaintyM, tideSystem: s.quasigeoidTideSystem ?? null },
+    ellipsoidalCrustSystem: s.ellipsoidalCrustSystem ?? null,
     normalHeight: { ...normalHeightOf(s), k: 1 as const, formula: 'H = h − ζ; u(H) = √(u(h)² + u(ζ)²)' },
     benchmarkTie:
       s.benchmarkCode !== null ? { benchmarkCode: s.benchmarkCode, heightDifferenceM: s.tieHeightDifferenceM ?? 0, uncertaintyM: s.tieUncertaintyM ?? 0 } : null,
@@ -123,6 +130,8 @@ export function toGridDto(g: QuasigeoidGridRow) {
     longitudeMinDeg: g.longitudeMinDeg,
     longitudeMaxDeg: g.longitudeMinDeg + (g.longitudeCount - 1) * g.longitudeStepDeg,
     latitudeStepDeg: g.latitudeStepDeg,
+    tideSystem: g.tideSystem ?? null,
+    correlationLengthKm: g.correlationLengthKm ?? null,
     longitudeStepDeg: g.longitudeStepDeg,
     nodeCount: g.latitudeCount * g.longitudeCount,
     uncertaintyM: g.uncertaintyM,
@@ -219,11 +228,11 @@ function instituteFor(actor: Actor, requested: string | undefined): string {
 }
 
 async function quasigeoidFor(m: EntityManager, input: Body<typeof createSiteSchema>['quasigeoid'], latDeg: number, lonDeg: number) {
-  if (input.source === 'entered') return { quasigeoidSource: 'entered' as const, quasigeoidGridId: null, quasigeoidHeightM: input.heightM, quasigeoidUncertaintyM: input.uncertaintyM };
+  if (input.source === 'entered') return { quasigeoidSource: 'entered' as const, quasigeoidGridId: null, quasigeoidHeightM: input.heightM, quasigeoidUncertaintyM: input.uncertaintyM, quasigeoidTideSystem: input.tideSystem ?? null };
   const grid = await m.getRepository(QuasigeoidGridEntity).findOneBy({ id: input.gridId });
   if (!grid) throw new Invalid('Unknown quasigeoid grid.', [{ path: 'body.quasigeoid.gridId', message: 'no such grid' }]);
   const heightM = science(() => interpolateQuasigeoidHeight(grid, latDeg, lonDeg), { position: 'body.quasigeoid.gridId' }, 'body.quasigeoid.gridId');
-  return { quasigeoidSource: 'grid' as const, quasigeoidGridId: grid.id, quasigeoidHeightM: heightM, quasigeoidUncertaintyM: grid.uncertaintyM };
+  return { quasigeoidSource: 'grid' as const, quasigeoidGridId: grid.id, quasigeoidHeightM: heightM, quasigeoidUncertaintyM: grid.uncertaintyM, quasigeoidTideSystem: grid.tideSystem ?? null };
 }
 
 function converted(crs: string, coordinates: number[]) {
@@ -242,9 +251,10 @@ function converted(crs: string, coordinates: number[]) {
   };
 }
 
-const siteSort: Record<string, string> = { name: 's.name', institute: 'i.code', latitudeDeg: 's.latitude_deg', longitudeDeg: 's.longitude_deg', ellipsoidalHeightM: 's.ellipsoidal_height_m', updatedAt: 's.updated_at' };
-const clockSort: Record<string, string> = { name: 'c.name', species: 'c.species', kind: 'c.kind', site: 's.name', institute: 'i.code', createdAt: 'c.created_at' };
-const linkSort: Record<string, string> = { name: 'l.name', fibreLengthKm: 'l.fibre_length_km', fractionalUncertainty: 'l.fractional_uncertainty', createdAt: 'l.created_at' };
+// Sort names come from each list's zod enum; the column tables are Maps so no inherited name can ever match.
+const siteSort = new Map<NonNullable<SiteListQuery['sort']>, string>([['name', 's.name'], ['institute', 'i.code'], ['latitudeDeg', 's.latitude_deg'], ['longitudeDeg', 's.longitude_deg'], ['ellipsoidalHeightM', 's.ellipsoidal_height_m'], ['updatedAt', 's.updated_at']]);
+const clockSort = new Map<NonNullable<ClockListQuery['sort']>, string>([['name', 'c.name'], ['species', 'c.species'], ['kind', 'c.kind'], ['site', 's.name'], ['institute', 'i.code'], ['createdAt', 'c.created_at']]);
+const linkSort = new Map<NonNullable<LinkListQuery['sort']>, string>([['name', 'l.name'], ['fibreLengthKm', 'l.fibre_length_km'], ['fractionalUncertainty', 'l.fractional_uncertainty'], ['createdAt', 'l.created_at']]);
 
 export function createRegistryService(dataSource: DataSource) {
   async function loadSite(m: EntityManager, id: string) {
@@ -284,12 +294,12 @@ export function createRegistryService(dataSource: DataSource) {
     },
 
     // ---------- sites ----------
-    async listSites(actor: Actor, q: RegistryListQuery) {
+    async listSites(actor: Actor, q: SiteListQuery) {
       authorize(actor, 'registry:read');
       const qb = dataSource.getRepository(SiteEntity).createQueryBuilder('s').leftJoinAndSelect('s.institute', 'i');
       if (q.q) qb.andWhere('(s.name ILIKE :q OR s.reference_point ILIKE :q OR i.code ILIKE :q)', { q: `%${q.q}%` });
       if (q.instituteId) qb.andWhere('s.institute_id = :inst', { inst: q.instituteId });
-      qb.orderBy(siteSort[q.sort ?? 'name'] ?? 's.name', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('s.id');
+      qb.orderBy(siteSort.get(q.sort ?? 'name') ?? 's.name', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('s.id');
       const [rows, total] = await qb.skip((q.page - 1) * q.pageSize).take(q.pageSize).getManyAndCount();
       return page(q, rows.map((s) => toSiteDto(s)), total);
     },
@@ -313,6 +323,7 @@ export function createRegistryService(dataSource: DataSource) {
             crs: resolveCrs(body.crs).code,
             coordinates: body.coordinates,
             ellipsoidalHeightUncertaintyM: body.ellipsoidalHeightUncertaintyM,
+            ellipsoidalCrustSystem: body.ellipsoidalCrustSystem ?? null,
             ...pos,
             ...zeta,
             benchmarkCode: body.benchmarkTie?.benchmarkCode ?? null,
@@ -334,6 +345,7 @@ export function createRegistryService(dataSource: DataSource) {
         if (body.name !== undefined) s.name = body.name;
         if (body.referencePoint !== undefined) s.referencePoint = body.referencePoint;
         if (body.ellipsoidalHeightUncertaintyM !== undefined) s.ellipsoidalHeightUncertaintyM = body.ellipsoidalHeightUncertaintyM;
+        if (body.ellipsoidalCrustSystem !== undefined) s.ellipsoidalCrustSystem = body.ellipsoidalCrustSystem;
         const moved = body.crs !== undefined || body.coordinates !== undefined;
         if (moved) {
           const crs = body.crs ?? s.crs;
@@ -369,20 +381,20 @@ export function createRegistryService(dataSource: DataSource) {
         const repo = m.getRepository(QuasigeoidGridEntity);
         const existing = await repo.findOneBy({ sha256 });
         if (existing) throw new Conflict('This grid file was uploaded before.', { existingId: existing.id });
-        const saved = await repo.save(repo.create({ name: body.name, fileName: body.fileName, sha256, uncertaintyM: body.uncertaintyM, uploadedBy: actor.displayName, ...grid, heightsM: Array.from(grid.heightsM) }));
+        const saved = await repo.save(repo.create({ name: body.name, fileName: body.fileName, sha256, uncertaintyM: body.uncertaintyM, tideSystem: body.tideSystem ?? null, correlationLengthKm: body.correlationLengthKm ?? null, uploadedBy: actor.displayName, ...grid, heightsM: Array.from(grid.heightsM) }));
         await recordAudit(m, actor, { action: 'quasigeoid-grid.uploaded', entityType: 'quasigeoid-grid', entityId: saved.id, details: { name: body.name, sha256, nodes: grid.latitudeCount * grid.longitudeCount } });
         return toGridDto(saved);
       });
     },
 
     // ---------- clocks ----------
-    async listClocks(actor: Actor, q: RegistryListQuery) {
+    async listClocks(actor: Actor, q: ClockListQuery) {
       authorize(actor, 'registry:read');
       const qb = dataSource.getRepository(ClockEntity).createQueryBuilder('c').leftJoinAndSelect('c.site', 's').leftJoinAndSelect('c.institute', 'i');
       if (q.q) qb.andWhere('(c.name ILIKE :q OR c.species ILIKE :q OR s.name ILIKE :q OR i.code ILIKE :q)', { q: `%${q.q}%` });
       if (q.instituteId) qb.andWhere('c.institute_id = :inst', { inst: q.instituteId });
       if (q.siteId) qb.andWhere('c.site_id = :site', { site: q.siteId });
-      qb.orderBy(clockSort[q.sort ?? 'name'] ?? 'c.name', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('c.id');
+      qb.orderBy(clockSort.get(q.sort ?? 'name') ?? 'c.name', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('c.id');
       const [rows, total] = await qb.skip((q.page - 1) * q.pageSize).take(q.pageSize).getManyAndCount();
       const budgets = rows.length
         ? await dataSource.getRepository(ClockBudgetVersionEntity).createQueryBuilder('b').innerJoin('clock', 'c', 'c.id = b.clock_id AND c.current_budget_version = b.version').where('b.clock_id IN (:...ids)', { ids: rows.map((r) => r.id) }).getMany()
@@ -486,7 +498,7 @@ export function createRegistryService(dataSource: DataSource) {
     },
 
     // ---------- fibre links ----------
-    async listLinks(actor: Actor, q: RegistryListQuery) {
+    async listLinks(actor: Actor, q: LinkListQuery) {
       authorize(actor, 'registry:read');
       const qb = dataSource
         .getRepository(FibreLinkEntity)
@@ -498,7 +510,7 @@ export function createRegistryService(dataSource: DataSource) {
       if (q.q) qb.andWhere('(l.name ILIKE :q OR sa.name ILIKE :q OR sb.name ILIKE :q)', { q: `%${q.q}%` });
       if (q.instituteId) qb.andWhere('(sa.institute_id = :inst OR sb.institute_id = :inst)', { inst: q.instituteId });
       if (q.siteId) qb.andWhere('(l.site_a_id = :site OR l.site_b_id = :site)', { site: q.siteId });
-      qb.orderBy(linkSort[q.sort ?? 'name'] ?? 'l.name', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('l.id');
+      qb.orderBy(linkSort.get(q.sort ?? 'name') ?? 'l.name', q.order === 'desc' ? 'DESC' : 'ASC').addOrderBy('l.id');
       const [rows, total] = await qb.skip((q.page - 1) * q.pageSize).take(q.pageSize).getManyAndCount();
       return page(q, rows.map(toLinkDto), total);
     },

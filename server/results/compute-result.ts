@@ -13,7 +13,9 @@ import { stabilityPointDto } from '../calc/calc.service';
 import { coverageText, formatForUncertainty } from '../../shared/number-text';
 import { convertPotentialDifference, tidePotentialSeries, type TideSystem } from '../science/tides';
 import { ScienceInputError } from '../science/errors';
+import { registeredHeightDifference, TideSystemNotStated } from '../science/registered-heights';
 import { formatScientific } from '../certificates/pdf/number-format';
+import { faultPointSync } from '../dev/fault-point';
 
 // The comparison result as a function of its inputs (campaign metadata + samples): no database, no clock reads
 // (computedAt is the caller's). The service loads the inputs, hashes them and stores what this returns.
@@ -49,9 +51,10 @@ const MAX_SERIES_POINTS = 1500;
 /**
  * Revision of the computation and of the stored result's shape within one software version; a stored result of an
  * older revision is recomputed. 2: τ0 snapped to the microsecond, empty series buckets kept as nulls. 3: noise identified
- * at each τ, u(ȳ) by noise type with its EDF, k = t_p(ν_eff), Hadamard/total deviation, assumptions.
+ * at each τ, u(ȳ) by noise type with its EDF, k = t_p(ν_eff), Hadamard/total deviation, assumptions. 4: registered
+ * heights converted between tide systems, with the correlation model for ζ and h.
  */
-const RESULT_REVISION = 3;
+const RESULT_REVISION = 4;
 
 /** Share of u_c² above which the reference-ratio term is said to dominate (more than half the variance). */
 const REFERENCE_RATIO_DOMINANT_SHARE = 0.5;
@@ -60,7 +63,7 @@ const REFERENCE_RATIO_DOMINANT_SHARE = 0.5;
 export function inputHashOf(campaign: CampaignForResult, files: readonly InputFile[], softwareVersion = SOFTWARE_VERSION): string {
   const site = (c: ClockForResult) => {
     const s = c.site;
-    return [s.id, s.latitudeDeg, s.longitudeDeg, s.ellipsoidalHeightM, s.quasigeoidHeightM, s.quasigeoidUncertaintyM, s.normalHeightM, s.normalHeightUncertaintyM];
+    return [s.id, s.latitudeDeg, s.longitudeDeg, s.ellipsoidalHeightM, s.quasigeoidHeightM, s.quasigeoidUncertaintyM, s.normalHeightM, s.normalHeightUncertaintyM, s.quasigeoidTideSystem ?? null, s.ellipsoidalCrustSystem ?? null, s.quasigeoidGridId ?? null];
   };
   const canonical = {
     series: files.map((f) => f.sha256).sort(),
@@ -108,6 +111,8 @@ function clockDto(c: ClockForResult) {
   };
 }
 
+const fmtMm = (m: number) => `${m >= 0 ? '+' : '−'}${Math.abs(m * 1000).toFixed(1)} mm`;
+
 /** Normal-height difference for a potential difference between two sites, each with its own latitude. */
 function heightDifference(deltaC_m2s2: number, a: ClockForResult, b: ClockForResult): { deltaH_m: number; gammaBarB: number } {
   const cA = cFromNormalHeight(a.site.normalHeightM, a.site.latitudeDeg);
@@ -150,6 +155,7 @@ function decimate(epochs: Float64Array, y: Float64Array, valid: Uint8Array, tide
 }
 
 export function computeResultBody(inputs: ResultInputs): ResultBody {
+  faultPointSync('result-compute'); // test-only kill point (server/dev/fault-point.ts); a no-op unless armed
   const { campaign, files } = inputs;
   const { samples, dropped } = dropRepeatedEpochs(inputs.samples);
   const { epochMjd, y, valid } = samples;
@@ -245,14 +251,29 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
   const h = heightDifference(dc.deltaC_m2s2, a, b);
   const uDh = uDc / h.gammaBarB;
 
-  const geoDh = b.site.normalHeightM - a.site.normalHeightM;
-  const uGeo = Math.hypot(a.site.normalHeightUncertaintyM, b.site.normalHeightUncertaintyM);
+  // Registered heights H = h − ζ, converted to this result's tide system (mean-tide) with the stated correlation model
+  // (server/science/registered-heights.ts); a site whose tide systems are not stated is not compared.
   let geodesy: ResultBody['geodesy'] = null;
-  if (uGeo > 0 || uDh > 0) {
+  const regSite = (c: ClockForResult) => ({
+    latitudeDeg: c.site.latitudeDeg, ellipsoidalHeightM: c.site.ellipsoidalHeightM, ellipsoidalHeightUncertaintyM: c.site.ellipsoidalHeightUncertaintyM,
+    ellipsoidalCrustSystem: c.site.ellipsoidalCrustSystem ?? null, quasigeoidHeightM: c.site.quasigeoidHeightM, quasigeoidUncertaintyM: c.site.quasigeoidUncertaintyM,
+    quasigeoidTideSystem: c.site.quasigeoidTideSystem ?? null, quasigeoidGridId: c.site.quasigeoidGridId ?? null,
+  });
+  let geoTideNote: string | null = null;
+  let reg: ReturnType<typeof registeredHeightDifference> | null = null;
+  try {
+    reg = registeredHeightDifference(regSite(a), regSite(b), campaign.link.geodesicDistanceKm, 'mean-tide');
+  } catch (e) {
+    if (!(e instanceof TideSystemNotStated)) throw e;
+    geoTideNote = `No comparison with the registered heights: ${e.which.join('; ')} not stated. State the tide systems on the site pages (they are never assumed).`;
+  }
+  if (reg && (reg.standardUncertaintyM > 0 || uDh > 0)) {
+    const geoDh = reg.deltaH_m;
+    const uGeo = reg.standardUncertaintyM;
     const agreement = normalisedError(h.deltaH_m, k * uDh, geoDh, geodesyCoverage.coverageFactor * uGeo);
     geodesy = {
       deltaH_m: { value: geoDh, standardUncertainty: uGeo, expandedUncertainty: geodesyCoverage.coverageFactor * uGeo, ...geodesyCoverage },
-      source: 'registered normal heights of the two sites (h − ζ or as entered), taken as mean-tide',
+      source: `registered normal heights of the two sites, H = h − ζ, converted to mean-tide (site A ${fmtMm(reg.conversionA_m)}, site B ${fmtMm(reg.conversionB_m)}); ${reg.statement}`,
       en: agreement.en,
       agreed: agreement.agreed,
       differenceM: agreement.difference,
@@ -296,6 +317,7 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
   if (!gridNote.startsWith('Samples placed')) cautions.push(gridNote);
   if (campaign.referenceRatio.justification) cautions.push(`Reference ratio chosen with justification: ${campaign.referenceRatio.justification}`);
   if (averagingTimeSeconds / Math.max(periodSeconds, 1) < 0.5) cautions.push(`Uptime is ${((100 * averagingTimeSeconds) / periodSeconds).toFixed(1)} % of the campaign period.`);
+  if (geoTideNote) cautions.push(geoTideNote);
   if (geodesy && !geodesy.agreed) cautions.push('The clock result does not agree with the geodetic height difference (|E_n| > 1): check both before using either.');
 
   return {

@@ -4,17 +4,21 @@ import type { DataSource, EntityManager } from 'typeorm';
 import type { ComparisonResultDto, ResultBody } from '../../shared/results';
 import { resultCsvColumns } from '../../shared/results';
 import type { Actor } from '../auth/actor';
-import { authorize, type Permission } from '../auth/permissions';
+import { canSeeCampaign } from '../auth/campaign-scope';
+import { authorize } from '../auth/permissions';
 import { recordAudit } from '../audit/audit.service';
 import { getCampaignForResult, type CampaignForResult } from '../campaigns/campaigns.service';
 import { ComparisonResultEntity, type ComparisonResultRow } from '../db/entities/results.entities';
-import { Conflict, NotFound } from '../http/errors';
+import { csvLine } from '../http/csv';
+import { AppError, Conflict, NotFound } from '../http/errors';
 import { SOFTWARE_CONSTANTS } from '../science/constants';
 import { ScienceInputError } from '../science/errors';
+import { readResultRequest, requestResultComputation } from './result-requests';
 import { computeResultBody, inputHashOf, SOFTWARE_VERSION, type InputFile, type SampleArrays } from './compute-result';
 
 // Campaign result: load inputs → compare the input hash with the newest stored result → reuse it or recompute and
-// store a new row (history is kept). Reading a result may therefore write one; the audit trail records each computation.
+// store a new row (history is kept). Computation runs in POSTs and jobs only (result-requests.ts, result-worker.ts):
+// reading a result never writes; it answers the stored result for the current inputs or says why there is none.
 
 async function loadFiles(manager: EntityManager, campaignId: string): Promise<InputFile[]> {
   const rows: { id: string; file_name: string; sha256: string; row_count: number }[] = await manager.query(
@@ -164,16 +168,8 @@ export async function computeCampaignResult(manager: EntityManager, campaignId: 
 }
 
 function requireCampaignVisible(actor: Actor, campaign: CampaignForResult): void {
-  // Operators see the campaigns their institute runs or takes part in; others see all (as the campaign list does).
-  if (actor.role !== 'operator') return;
-  const mine = [campaign.instituteId, campaign.clockA.instituteId, campaign.clockB.instituteId];
-  if (!mine.includes(actor.instituteId ?? '')) throw new NotFound('Campaign');
+  if (!canSeeCampaign(actor, { state: campaign.state, instituteId: campaign.instituteId, partnerInstituteId: campaign.clockB.instituteId })) throw new NotFound('Campaign');
 }
-
-const csvCell = (v: string | number | null | undefined): string => {
-  const s = v === null || v === undefined ? '' : String(v);
-  return /[",\n]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s;
-};
 
 /** The result as one CSV table (section, quantity, value, u, U(k=2), unit, note); numbers in shortest round-trip form. */
 export function resultToCsv(dto: ComparisonResultDto): string {
@@ -211,20 +207,59 @@ export function resultToCsv(dto: ComparisonResultDto): string {
     ...r.stability.points.map((p) => ['stability', `adev_tau_${p.tauSeconds}s`, p.adev, null, null, '1', `68% interval ${p.adevLow}…${p.adevHigh}; mdev ${p.mdev} (${p.mdevLow}…${p.mdevHigh}); hdev ${p.hdev}; totdev ${p.totdev}; noise ${p.noiseType} (${p.noiseMethod})`]),
     ...r.assumptions.map((a, i) => ['assumption', `assumption_${i + 1}`, a, null, null, '', '']),
   ];
-  return [resultCsvColumns.join(','), ...rows.map((row) => row.map(csvCell).join(','))].join('\n') + '\n';
+  return [resultCsvColumns.join(','), ...rows.map(csvLine)].join('\n') + '\n';
 }
 
-export function createResultsService(dataSource: DataSource) {
-  async function run(actor: Actor, permission: Permission, campaignId: string, force: boolean) {
-    authorize(actor, permission);
-    return dataSource.transaction(async (m) => {
-      requireCampaignVisible(actor, await getCampaignForResult(m, campaignId));
-      return computeCampaignResult(m, campaignId, { actor, now: new Date(), force });
-    });
+/**
+ * No current result to show (404 problem+json, code says why): `result-pending` while a computation is queued or
+ * running (ask again after `retryAfterSeconds`), `result-failed` when the last one could not produce a result,
+ * `result-not-computed` when nothing was asked for the current inputs yet.
+ */
+export class ResultNotReady extends AppError {
+  constructor(code: 'result-pending' | 'result-failed' | 'result-not-computed', message: string, extra: Record<string, unknown>) {
+    super(404, code, code === 'result-pending' ? 'Result being computed' : code === 'result-failed' ? 'Result could not be computed' : 'Result not computed', message, extra);
+  }
+}
+
+export const RESULT_POLL_SECONDS = 2;
+
+export function createResultsService(dataSource: DataSource, databaseUrl: string) {
+  /** The stored result for the current inputs, or why there is none. Reads only: a GET never computes or writes. */
+  async function current(actor: Actor, campaignId: string): Promise<ComparisonResultDto> {
+    authorize(actor, 'campaigns:read');
+    const m = dataSource.manager;
+    const campaign = await getCampaignForResult(m, campaignId);
+    requireCampaignVisible(actor, campaign);
+    const files = await loadFiles(m, campaignId);
+    const inputHash = inputHashOf(campaign, files);
+    // The request first: a job marks it done only after its result is committed, so "done" here means the result
+    // read next is there (read the other way round, a job finishing in between looked like "not computed").
+    const request = await readResultRequest(m, campaignId);
+    const latest = await latestResultForCampaign(m, campaignId);
+    if (latest && latest.inputHash === inputHash) return latest;
+    const extra = { campaignId, latestComputedAt: latest?.computedAt ?? null, request: request ? { state: request.state, reason: request.reason, requestedAt: request.requested_at.toISOString() } : null };
+    if (request && (request.state === 'queued' || request.state === 'running')) {
+      throw new ResultNotReady('result-pending', `The result is being computed (${request.state === 'running' ? 'running now' : 'waiting for a worker'}); ask again in a few seconds.`, { ...extra, retryAfterSeconds: RESULT_POLL_SECONDS });
+    }
+    if (request?.state === 'failed') throw new ResultNotReady('result-failed', `The last computation gave no result: ${request.error ?? 'unknown reason'}`, extra);
+    throw new ResultNotReady('result-not-computed', files.length === 0
+      ? 'This campaign has no uploaded ratio series yet: upload data, and the result is computed.'
+      : latest
+        ? 'The campaign’s inputs changed after its last result was computed; lab staff or the coordinator can ask for a new computation (Recompute).'
+        : 'No result has been computed for this campaign yet; lab staff or the coordinator can ask for one (Recompute).', extra);
   }
   return {
-    get: (actor: Actor, campaignId: string) => run(actor, 'campaigns:read', campaignId, false),
-    recompute: (actor: Actor, campaignId: string) => run(actor, 'results:recompute', campaignId, true),
-    csv: async (actor: Actor, campaignId: string) => resultToCsv(await run(actor, 'campaigns:read', campaignId, false)),
+    get: current,
+    /** Puts a forced recomputation on the queue (202); the worker computes, stores and audits it. */
+    recompute: async (actor: Actor, campaignId: string) => {
+      authorize(actor, 'results:recompute');
+      return dataSource.transaction(async (m) => {
+        const campaign = await getCampaignForResult(m, campaignId);
+        requireCampaignVisible(actor, campaign);
+        if ((await loadFiles(m, campaignId)).length === 0) throw new Conflict('This campaign has no uploaded ratio series yet: upload data before asking for a result.');
+        return requestResultComputation(m, databaseUrl, actor, campaignId, 'recompute');
+      });
+    },
+    csv: async (actor: Actor, campaignId: string) => resultToCsv(await current(actor, campaignId)),
   };
 }

@@ -69,6 +69,11 @@ export function resolveCrs(crs: string, field = 'crs'): CrsEntry {
   const known = BY_CODE.get(key.toUpperCase());
   if (known) return known;
   if (!key.startsWith('+proj=')) throw new ScienceInputError(field, `unsupported CRS "${crs}": use a listed EPSG code or a PROJ string starting with +proj=`);
+  // Grid shift files (+nadgrids, +geoidgrids, +grids of gridshift steps) name files on the server: refused outright,
+  // so no request makes the converter look for a file, and no half-configured conversion runs without its grid.
+  if (/\+(nadgrids|geoidgrids|grids|hgridshift|vgridshift)\b/i.test(key)) {
+    throw new ScienceInputError(field, 'PROJ strings that name grid files (+nadgrids, +geoidgrids, grid shifts) are not accepted; use a listed EPSG code or a grid-free PROJ string');
+  }
   try {
     proj4(key, WGS84_GEOG, [0, 0, 0]);
   } catch {
@@ -91,7 +96,12 @@ export function transform(from: string, to: string, coords: readonly number[]): 
     throw new ScienceInputError('coords', 'must be 2 or 3 finite numbers');
   }
   if (source.kind === 'geocentric' && coords.length !== 3) throw new ScienceInputError('coords', 'geocentric coordinates need X, Y and Z');
-  const out = proj4(source.proj4, target.proj4, [coords[0], coords[1], coords[2] ?? 0]) as number[];
+  let out: number[];
+  try {
+    out = proj4(source.proj4, target.proj4, [coords[0], coords[1], coords[2] ?? 0]) as number[];
+  } catch (e) {
+    throw new ScienceInputError('coords', `the conversion failed for these coordinates (${(e as Error).message})`);
+  }
   if (out.some((v) => !Number.isFinite(v))) throw new ScienceInputError('coords', 'outside the domain of the conversion');
   return coords.length === 2 && target.kind !== 'geocentric' ? out.slice(0, 2) : out.slice(0, 3);
 }

@@ -256,6 +256,16 @@ function offsetFromMeanTide(system: TideSystem, latDeg: number, k: number, h: nu
   }
 }
 
+/** C in `system` minus C in mean-tide at latitude φ [m²/s²] (the shift a value at one point gets, Ekman 1989; Mäkinen & Ihde 2009). */
+export function potentialShiftFromMeanTide(system: TideSystem, latDeg: number, k = PERMANENT_TIDE_K, h = PERMANENT_TIDE_H): number {
+  return offsetFromMeanTide(system, latDeg, k, h);
+}
+
+/** Converts one geopotential number C at latitude φ from one tide system to another [m²/s²]. */
+export function convertPotential(c_m2s2: number, latDeg: number, from: TideSystem, to: TideSystem, k = PERMANENT_TIDE_K, h = PERMANENT_TIDE_H): number {
+  return c_m2s2 - offsetFromMeanTide(from, latDeg, k, h) + offsetFromMeanTide(to, latDeg, k, h);
+}
+
 /** Converts ΔC = C_B − C_A between tide systems; A at latitude latA, B at latB. */
 export function convertPotentialDifference(
   deltaC_m2s2: number,

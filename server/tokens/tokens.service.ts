@@ -45,15 +45,19 @@ export async function issueToken(dataSource: DataSource, userId: string, name: s
 
 export async function actorFromToken(dataSource: DataSource, secret: string): Promise<Actor | null> {
   if (!secret.startsWith(TOKEN_PREFIX)) return null;
-  const repo = dataSource.getRepository(ApiTokenEntity);
-  const token = await repo.findOneBy({ tokenHash: hashToken(secret) });
-  if (!token || token.revokedAt || token.expiresAt.getTime() <= Date.now()) return null;
-  const user = await dataSource.getRepository(UserEntity).findOneBy({ id: token.userId });
-  if (!user || user.deactivatedAt) return null;
-  if (!token.lastUsedAt || Date.now() - token.lastUsedAt.getTime() > 60_000) {
-    await repo.update({ id: token.id }, { lastUsedAt: new Date() });
+  // One indexed statement per request (token_hash is UNIQUE): the token and its person together, checked every
+  // time (revocation, expiry and deactivation take effect at once; nothing is cached between requests).
+  const [row]: { token_id: string; last_used_at: Date | null; user_id: string; email: string; display_name: string; role: Actor['role']; institute_id: string | null }[] = await dataSource.query(
+    `SELECT t.id AS token_id, t.last_used_at, u.id AS user_id, u.email, u.display_name, u.role, u.institute_id
+       FROM api_token t JOIN app_user u ON u.id = t.user_id
+      WHERE t.token_hash = $1 AND t.revoked_at IS NULL AND t.expires_at > now() AND u.deactivated_at IS NULL`,
+    [hashToken(secret)],
+  );
+  if (!row) return null;
+  if (!row.last_used_at || Date.now() - row.last_used_at.getTime() > 60_000) {
+    await dataSource.getRepository(ApiTokenEntity).update({ id: row.token_id }, { lastUsedAt: new Date() });
   }
-  return { userId: user.id, email: user.email, displayName: user.displayName, role: user.role, instituteId: user.instituteId, via: 'token' };
+  return { userId: row.user_id, email: row.email, displayName: row.display_name, role: row.role, instituteId: row.institute_id, via: 'token' };
 }
 
 const ownerOf = (u: UserRow | undefined) => (u ? { id: u.id, email: u.email, displayName: u.displayName } : null);

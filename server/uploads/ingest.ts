@@ -21,10 +21,16 @@ export type IngestOptions = {
   periodEndMjd: number | null;
   /** receives every raw chunk (the caller keeps the raw file) */
   onRawChunk?: (chunk: Buffer) => void;
-  onProgress?: (p: { bytesRead: number; rowsProcessed: number }) => void;
+  onProgress?: (p: { bytesRead: number; rowsProcessed: number }) => void | Promise<void>;
   /** stop reading once this many bytes arrived (the HTTP layer also enforces it) */
   limitBytes?: number;
+  /** longest line accepted, in characters (default 64 KiB); a longer one is refused and parsing stops */
+  maxLineChars?: number;
+  /** receives every accepted data row with its cells as written (the samples export re-reads the raw file with it) */
+  onRow?: (row: { line: number; epochText: string; valueText: string; mjd: number; y: number; valid: boolean }) => void;
 };
+
+export const DEFAULT_MAX_LINE_CHARS = 64 * 1024;
 
 export type IngestSummary = {
   sha256: string;
@@ -44,6 +50,8 @@ export type IngestSummary = {
   tooLarge: boolean;
   /** block summaries for plots: [firstMjd, lastMjd, minY, maxY, validCount] × blocks (see series-plot.ts) */
   overview: Float64Array;
+  /** per block: [mean, M2] of the valid y (Welford), M2 = Σ(y − mean)²; same block order as `overview` */
+  overviewStats: Float64Array;
 };
 
 const MAX_LISTED_ISSUES = 10;
@@ -93,18 +101,23 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
   // Plot overview: consecutive samples summarised in blocks of ≤ 64, a new block after any spacing over twice the
   // previous one so no block bridges a gap.
   let overview = new Float64Array(5 * 1024);
+  let overviewStats = new Float64Array(2 * 1024);
   let blocks = 0;
-  let bFirst = 0, bLast = 0, bMin = Infinity, bMax = -Infinity, bValid = 0, bCount = 0, prevSpacing = Infinity;
+  let bFirst = 0, bLast = 0, bMin = Infinity, bMax = -Infinity, bValid = 0, bCount = 0, prevSpacing = Infinity, bMean = 0, bM2 = 0;
   const closeBlock = () => {
     if (bCount === 0) return;
     if ((blocks + 1) * 5 > overview.length) {
       const grown = new Float64Array(overview.length * 2);
       grown.set(overview);
       overview = grown;
+      const grownStats = new Float64Array(overviewStats.length * 2);
+      grownStats.set(overviewStats);
+      overviewStats = grownStats;
     }
     overview.set([bFirst, bLast, bValid ? bMin : NaN, bValid ? bMax : NaN, bValid], blocks * 5);
+    overviewStats.set([bValid ? bMean : NaN, bValid ? bM2 : NaN], blocks * 2);
     blocks++;
-    bCount = 0; bValid = 0; bMin = Infinity; bMax = -Infinity;
+    bCount = 0; bValid = 0; bMin = Infinity; bMax = -Infinity; bMean = 0; bM2 = 0;
   };
   const addToOverview = (mjd: number, y: number, valid: boolean) => {
     if (bCount > 0) {
@@ -119,6 +132,10 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
       bValid++;
       if (y < bMin) bMin = y;
       if (y > bMax) bMax = y;
+      // Welford's update (Welford 1962, Technometrics 4(3) 419–420): stable for y ≈ 1e-14 with 1e-17 noise.
+      const d = y - bMean;
+      bMean += d / bValid;
+      bM2 += d * (y - bMean);
     }
   };
   const colName = (c: number) => (header?.[c - 1] ? ` (${header[c - 1]})` : '');
@@ -220,6 +237,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     rowCount++;
     if (valid) validCount++;
     if (failed) return;
+    opts.onRow?.({ line, epochText, valueText, mjd, y, valid });
     addToOverview(mjd, y, valid);
     if (off + ROW_BYTES > BATCH_BYTES) flush();
     view.setInt16(off, 4);
@@ -237,7 +255,14 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
   let bytesRead = 0;
   let lineNo = 0; // lines fully handed on so far
   let pending = '';
+  let carriedCr = false;
   let binaryProblem = false;
+  let lineTooLong = false;
+  const maxLine = opts.maxLineChars ?? DEFAULT_MAX_LINE_CHARS;
+  const refuseLongLine = (line: number) => {
+    report({ path: 'file', line, column: '1', message: `line ${line} is longer than ${maxLine} characters (the limit for one line); is the file missing its line ends?` });
+    lineTooLong = true;
+  };
   let firstText = true;
   let tooLarge = false;
   const limit = opts.limitBytes ?? Infinity;
@@ -278,6 +303,10 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     for (let i = 0; i < count; i++) {
       const l = lines[i];
       lineNo++;
+      if (l.length > maxLine) {
+        refuseLongLine(lineNo);
+        return;
+      }
       const c0 = l.charCodeAt(0);
       if (l.length === 0 || ((c0 === 35 || c0 === 32 || c0 === 9) && isCommentOrBlank(l))) continue;
       if (quotes && l.includes('"')) {
@@ -301,7 +330,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     hash.update(chunk);
     opts.onRawChunk?.(chunk);
     if (bytesRead > limit) tooLarge = true;
-    if (tooLarge || binaryProblem) continue; // keep reading so the client hears the answer; parse no further
+    if (tooLarge || binaryProblem || lineTooLong) continue; // keep reading so the client hears the answer; parse no further
     let text = decoder.decode(chunk, { stream: true });
     if (firstText) {
       firstText = false;
@@ -316,26 +345,43 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
       binaryProblem = true;
       continue;
     }
-    pending += text;
-    const lastNl = pending.lastIndexOf('\n');
+    // CR-only line ends (old Mac text files) become LF; a CR ending a chunk waits, as it may begin a CRLF.
+    if (carriedCr) text = `\r${text}`;
+    carriedCr = text.endsWith('\r');
+    if (carriedCr) text = text.slice(0, -1);
+    if (text.includes('\r')) text = text.replace(/\r(?!\n)/g, '\n');
+    // Only the new text is searched for a line end, so a file without any stays linear; the unfinished line is
+    // bounded by the line-length limit.
+    const lastNl = text.lastIndexOf('\n');
     if (lastNl >= 0) {
-      const complete = pending.slice(0, lastNl + 1);
-      pending = pending.slice(lastNl + 1);
+      const complete = pending + text.slice(0, lastNl + 1);
+      pending = text.slice(lastNl + 1);
       feed(complete);
+    } else {
+      pending += text;
+    }
+    if (!lineTooLong && pending.length > maxLine + 1) {
+      // the unfinished line comes after every line handed on, and after those still held for delimiter detection
+      let heldLines = 0;
+      for (let i = held.indexOf('\n'); i >= 0; i = held.indexOf('\n', i + 1)) heldLines++;
+      refuseLongLine(lineNo + heldLines + 1);
     }
     if (sinkFull) {
       sinkFull = false;
       await once(sink, 'drain');
     }
     if (sinkError) throw sinkError;
-    opts.onProgress?.({ bytesRead, rowsProcessed: rowCount });
+    const waiting = opts.onProgress?.({ bytesRead, rowsProcessed: rowCount });
+    if (waiting) await waiting;
   }
-  if (!tooLarge && !binaryProblem) {
-    const rest = pending + decoder.decode();
+  // busboy marks a part cut at its size limit; its 'limit' event may have fired before this function listened
+  if ((file as Readable & { truncated?: boolean }).truncated) tooLarge = true;
+  if (!tooLarge && !binaryProblem && !lineTooLong) {
+    const rest = pending + (carriedCr ? '\n' : '') + decoder.decode();
     if (rest.length > 0 || held.length > 0) feed(rest, true);
   }
   flush();
-  if (!tooLarge && !binaryProblem && rowCount === 0 && !failed) {
+  if (!tooLarge && !binaryProblem && !lineTooLong && rowCount === 0 && !failed) {
     report({ path: 'file', line: Math.max(1, lineNo), column: '1', message: bytesRead === 0 ? 'the file is empty' : 'the file holds no data rows' });
   }
   opts.onProgress?.({ bytesRead, rowsProcessed: rowCount });
@@ -364,6 +410,7 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     delimiter: delimiter ?? ',', hasHeader: hasHeader ?? false, header,
     issues, furtherProblems, tooLarge,
     overview: (closeBlock(), overview.slice(0, blocks * 5)),
+    overviewStats: overviewStats.slice(0, blocks * 2),
   };
 }
 

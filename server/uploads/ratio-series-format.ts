@@ -9,7 +9,8 @@ const MS_PER_DAY = 86_400_000;
 /** |y| beyond this is no clock comparison but a mapping mistake (ratio read as offset or the wrong reference). */
 export const MAX_ABS_OFFSET = 1e-3;
 
-const NUMBER = /^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d{1,4})?$/;
+// `\d+(\.\d*)?`, not `\d+\.?\d*`: the latter backtracks quadratically on a long run of digits that fails to match.
+const NUMBER = /^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d{1,4})?$/;
 const NON_FINITE = /^[+-]?(nan|inf|infinity)$/i;
 const ISO = /^(\d{4})-(\d{2})-(\d{2})[T ](\d{2}):(\d{2}):(\d{2})(\.\d{1,9})?(Z|[+-]00:?00)?$/;
 
@@ -43,6 +44,10 @@ export function parseOffsetCell(text: string): CellResult {
   if (!NUMBER.test(text)) return { ok: false, message: `value '${clip(text)}' is not a number` };
   const v = Number(text);
   if (!Number.isFinite(v)) return { ok: false, message: `value '${clip(text)}' is not a finite number` };
+  // 1e-9999 reads as 0 (and 1e-320 as a subnormal with few digits): refuse rather than store a different number.
+  if ((v === 0 && /[1-9]/.test(text.replace(/[eE].*$/, ''))) || (v !== 0 && Math.abs(v) < 2.2250738585072014e-308)) {
+    return { ok: false, message: `value '${clip(text)}' is too small for double precision (underflow); write it as 0 if zero is meant` };
+  }
   if (Math.abs(v) >= MAX_ABS_OFFSET) return { ok: false, message: `fractional offset ${text} is implausibly large; is the column a ratio?` };
   return { ok: true, value: v };
 }
@@ -112,6 +117,7 @@ function suggest(header: string[] | null, rows: string[][]): UploadPreview['sugg
 export function buildPreview(text: string, fileName: string, bytesRead: number, truncated: boolean): UploadPreview {
   const notes: string[] = [];
   let body = text.charCodeAt(0) === 0xfeff ? text.slice(1) : text;
+  if (body.includes('\r')) body = body.replace(/\r\n?/g, '\n'); // CRLF and CR-only line ends read as LF
   if (truncated) {
     // The last line may be cut in the middle; drop it.
     const lastNl = body.lastIndexOf('\n');

@@ -4,6 +4,7 @@ import os from 'node:os';
 import path from 'node:path';
 import type pg from 'pg';
 import { from as copyFrom } from 'pg-copy-streams';
+import { faultPoint } from '../dev/fault-point';
 import { COPY_BINARY_HEADER, finishCopy } from './ingest';
 
 // The raw file is kept in ratio_series_file, written by COPY in the upload's transaction, so a rejected or
@@ -31,6 +32,17 @@ export function openSpool(): Spool {
     /** Copies the spooled bytes into ratio_series_file as binary COPY rows of ≤ 1 MiB; returns the number of parts. */
     async copyInto(client, seriesId) {
       const copy = client.query(copyFrom(COPY_FILE_SQL));
+      // a lost connection must reject this upload, not crash the process with an unhandled 'error' event
+      let failure: Error | null = null;
+      copy.on('error', (e: Error) => (failure = e));
+      const drained = () => new Promise<void>((resolve, reject) => {
+        const onError = (e: Error) => reject(e);
+        copy.once('error', onError);
+        copy.once('drain', () => {
+          copy.off('error', onError);
+          resolve();
+        });
+      });
       const uuid = Buffer.from(seriesId.replace(/-/g, ''), 'hex');
       copy.write(COPY_BINARY_HEADER);
       let part = 0;
@@ -46,7 +58,9 @@ export function openSpool(): Spool {
         let read = 0;
         while (read < n) read += fs.readSync(fd, row, 34 + read, n - read, pos + read);
         pos += n;
-        if (!copy.write(row)) await new Promise((r) => copy.once('drain', r));
+        if (failure) throw failure;
+        if (!copy.write(row)) await drained();
+        if (part === 1) await faultPoint('raw-file-parts');
       }
       await finishCopy(copy);
       return part;

@@ -1,5 +1,5 @@
 import crypto from 'node:crypto';
-import type { Request } from 'express';
+import type { Request, Response } from 'express';
 import type pg from 'pg';
 import { from as copyFrom } from 'pg-copy-streams';
 import type { DataSource } from 'typeorm';
@@ -11,11 +11,15 @@ import type { AppConfig } from '../config';
 import { Conflict, Forbidden, Invalid, NotFound, PayloadTooLarge } from '../http/errors';
 import { COPY_SAMPLES_SQL, finishCopy, ingestRatioSeries, type IngestSummary } from './ingest';
 import { receiveMultipart } from './multipart';
+import { faultPoint } from '../dev/fault-point';
 import { openSpool } from './raw-file-spool';
+import { exportSamplesCsv } from './samples-export';
 import { buildPreview } from './ratio-series-format';
 import { decimateSeries } from './series-plot';
 import { createUploadProgressStore } from './upload-progress';
 import type { UploadProgress } from '../../shared/uploads';
+import { requestResultComputation } from '../results/result-requests';
+import { canSeeCampaign } from '../auth/campaign-scope';
 
 // Uploads of frequency-ratio series: who may upload (lab staff of the campaign's owning institute, campaign draft or
 // returned), the one transaction (COPY rows + raw file + series row + audit event), previews, lists and plot data.
@@ -48,9 +52,9 @@ export async function loadCampaignForUpload(q: { query: (sql: string, params?: u
   };
 }
 
-/** Same reading rule as campaigns: lab staff see their institute's campaigns (clock A or clock B); others see all. */
+/** The campaigns' reading rule (server/auth/campaign-scope.ts). */
 function canRead(actor: Actor, c: CampaignForUpload) {
-  return actor.role !== 'operator' || actor.instituteId === c.instituteId || actor.instituteId === c.clockBInstituteId;
+  return canSeeCampaign(actor, { state: c.state, instituteId: c.instituteId, partnerInstituteId: c.clockBInstituteId });
 }
 
 function requireUploader(actor: Actor, c: CampaignForUpload) {
@@ -79,11 +83,14 @@ export function toSeriesDto(r: SeriesDbRow): RatioSeries {
 
 const SERIES_COLUMNS = 'id, campaign_id, file_name, sha256, byte_size, row_count, valid_count, first_mjd, last_mjd, uptime_fraction, tau0_seconds, mapping, invented, created_by, created_at';
 
+/** One story for the detail, the listed issues and furtherProblems: how many in all, how many listed, the first. */
 function problemMessage(s: IngestSummary): string {
   const first = s.issues[0];
-  const more = s.issues.length - 1 + s.furtherProblems;
+  const total = s.issues.length + s.furtherProblems;
   const where = `line ${first.line}${first.column ? `, column ${first.column}` : ''}`;
-  return `The file was not stored: ${where}: ${first.message}.${more > 0 ? ` ${more} further problem(s) found; the whole file was checked.` : ' No further problems found in the rest of the file.'}`;
+  if (total === 1) return `The file was not stored: ${where}: ${first.message}. The whole file was checked and this is its only problem.`;
+  const listed = s.furtherProblems > 0 ? `; the first ${s.issues.length} are listed, ${s.furtherProblems} more are not` : ', all listed';
+  return `The file was not stored: ${total} problems in the whole file${listed}. The first: ${where}: ${first.message}.`;
 }
 
 export type StoreSeriesInput = {
@@ -94,6 +101,8 @@ export type StoreSeriesInput = {
   limitBytes: number;
   /** Reports progress of an HTTP upload (the shared progress store); absent for the seeder. */
   onProgress?: (p: Partial<UploadProgress>) => void;
+  /** longest line accepted (default 64 KiB) */
+  maxLineChars?: number;
   invented?: boolean;
 };
 
@@ -112,15 +121,25 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
   const seriesId = crypto.randomUUID();
   const spool = openSpool();
   try {
+    await faultPoint('before-copy');
     const copy = client.query(copyFrom(COPY_SAMPLES_SQL));
+    let midCopy = false;
     let summary: IngestSummary;
     try {
       summary = await ingestRatioSeries(input.source, copy, {
         seriesId, mapping, referenceRatio: input.campaign.referenceRatio,
         periodStartMjd: input.campaign.periodStartMjd, periodEndMjd: input.campaign.periodEndMjd,
         limitBytes: input.limitBytes,
+        maxLineChars: input.maxLineChars,
         onRawChunk: (c) => spool.write(c),
-        onProgress: (p) => input.onProgress?.(p),
+        onProgress: (p) => {
+          input.onProgress?.(p);
+          // the kill harness stops here once some rows are in the COPY (no-op unless armed)
+          if (!midCopy && p.rowsProcessed >= 20_000) {
+            midCopy = true;
+            return faultPoint('mid-copy');
+          }
+        },
       });
       await finishCopy(copy);
     } catch (e) {
@@ -138,11 +157,12 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
     const storedMapping = { ...mapping, delimiter: summary.delimiter, hasHeader: summary.hasHeader, header: summary.header };
     const { rows } = await client.query<SeriesDbRow>(
       `INSERT INTO ratio_series (id, campaign_id, file_name, sha256, byte_size, row_count, valid_count, first_mjd, last_mjd,
-         uptime_fraction, tau0_seconds, mapping, invented, created_by_user_id, created_by, overview)
-       VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12,$13,$14,$15,$16) RETURNING ${SERIES_COLUMNS}`,
+         uptime_fraction, tau0_seconds, mapping, invented, created_by_user_id, created_by, overview, overview_stats)
+       VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12,$13,$14,$15,$16,$17) RETURNING ${SERIES_COLUMNS}`,
       [seriesId, input.campaign.id, input.fileName.slice(0, 250), summary.sha256, summary.byteSize, summary.rowCount, summary.validCount,
         summary.firstMjd, summary.lastMjd, summary.uptimeFraction, summary.tau0Seconds, JSON.stringify(storedMapping),
-        input.invented ?? false, actor?.userId ?? null, actorLabel(actor), Buffer.from(summary.overview.buffer, summary.overview.byteOffset, summary.overview.byteLength)],
+        input.invented ?? false, actor?.userId ?? null, actorLabel(actor), Buffer.from(summary.overview.buffer, summary.overview.byteOffset, summary.overview.byteLength),
+        Buffer.from(summary.overviewStats.buffer, summary.overviewStats.byteOffset, summary.overviewStats.byteLength)],
     );
     await spool.copyInto(client, seriesId);
     return rows[0];
@@ -155,7 +175,7 @@ function isUniqueViolation(e: unknown) {
   return (e as { code?: string })?.code === '23505';
 }
 
-export function createUploadsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'uploadLimitBytes'> }) {
+export function createUploadsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'uploadLimitBytes' | 'databaseUrl' | 'upload'> }) {
   const { dataSource, config } = deps;
   const uploadProgress = createUploadProgressStore(dataSource);
 
@@ -218,15 +238,20 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
       const client = (qr as unknown as { databaseConnection: pg.PoolClient }).databaseConnection;
       try {
         await qr.startTransaction();
-        const { result } = await receiveMultipart(req, { fileBytes: config.uploadLimitBytes }, async (file, info, fields) => {
-          const row = await storeSeries(client, actor, { campaign, fileName: info.filename, source: file, fields, limitBytes: config.uploadLimitBytes, onProgress: (p) => uploadProgress.update(uploadId, p) });
+        // PostgreSQL itself ends a COPY that a stalled or vanished client keeps open, whatever this process does.
+        await client.query(`SET LOCAL statement_timeout = ${Math.trunc(config.upload.statementTimeoutMs)}`);
+        const { result } = await receiveMultipart(req, { fileBytes: config.uploadLimitBytes, idleMs: config.upload.idleTimeoutMs }, async (file, info, fields) => {
+          const row = await storeSeries(client, actor, { campaign, fileName: info.filename, source: file, fields, limitBytes: config.uploadLimitBytes, maxLineChars: config.upload.maxLineBytes, onProgress: (p) => uploadProgress.update(uploadId, p) });
           await recordAudit(qr.manager, actor, {
             action: 'campaign.series-uploaded', entityType: 'ratio_series', entityId: row.id, instituteId: campaign.instituteId,
             details: { campaignId, fileName: row.file_name, sha256: row.sha256, rows: row.row_count, valid: row.valid_count },
           });
+          // the result is computed by a job queued in this transaction (never by a later GET)
+          await requestResultComputation(qr.manager, config.databaseUrl, actor, campaignId, 'upload');
           return row;
         });
         if (!result) throw new Invalid('No file was sent.', [{ path: 'file', message: 'attach the file as the part named "file"' }]);
+        await faultPoint('before-commit');
         await qr.commitTransaction();
         await uploadProgress.finish(uploadId, { phase: 'done', seriesId: result.id });
         return toSeriesDto(result);
@@ -256,6 +281,14 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
       authorize(actor, 'campaigns:read');
       const s = await seriesOr404(actor, id);
       return decimateSeries(dataSource, { id: s.id, firstMjd: s.first_mjd, lastMjd: s.last_mjd, rowCount: s.row_count }, q);
+    },
+
+    /** CSV of the stored samples with the epoch and value cells as uploaded (same reading rule as the upload itself). */
+    async exportSamples(actor: Actor, id: string, res: Response): Promise<void> {
+      authorize(actor, 'campaigns:read');
+      const s = await seriesOr404(actor, id);
+      const c = await campaignOr404(actor, s.campaign_id);
+      await exportSamplesCsv(dataSource, { id: s.id, fileName: s.file_name, rowCount: s.row_count, mapping: s.mapping, referenceRatio: c.referenceRatio }, res);
     },
 
     async progress(actor: Actor, uploadId: string) {

@@ -1,6 +1,6 @@
 import type { DataSource } from 'typeorm';
 import type { Role } from '../../shared/auth';
-import type { PageQuery } from '../../shared/http';
+import type { UserListQuery } from '../../shared/auth';
 import { recordAudit } from '../audit/audit.service';
 import type { Actor } from '../auth/actor';
 import { authorize } from '../auth/permissions';
@@ -64,15 +64,15 @@ export async function findActorByUserId(dataSource: DataSource, userId: string):
   return u && !u.deactivatedAt ? { userId: u.id, email: u.email, displayName: u.displayName, role: u.role, instituteId: u.instituteId, via: 'session' } : null;
 }
 
-const userSort: Record<string, string> = { email: 'u.email', displayName: 'u.display_name', role: 'u.role', lastSignInAt: 'u.last_sign_in_at' };
+const userSort = new Map<NonNullable<UserListQuery['sort']>, string>([['email', 'u.email'], ['displayName', 'u.display_name'], ['role', 'u.role'], ['lastSignInAt', 'u.last_sign_in_at']]);
 
 export function createUsersService(dataSource: DataSource) {
   return {
-    async list(actor: Actor, q: PageQuery) {
+    async list(actor: Actor, q: UserListQuery) {
       authorize(actor, 'users:read');
       const qb = dataSource.getRepository(UserEntity).createQueryBuilder('u').leftJoinAndSelect('u.institute', 'i');
       if (q.q) qb.where('(u.email ILIKE :q OR u.display_name ILIKE :q OR i.code ILIKE :q)', { q: `%${q.q}%` });
-      qb.orderBy(userSort[q.sort ?? 'email'] ?? 'u.email', q.order === 'desc' ? 'DESC' : 'ASC');
+      qb.orderBy(userSort.get(q.sort ?? 'email') ?? 'u.email', q.order === 'desc' ? 'DESC' : 'ASC');
       const [rows, total] = await qb.skip((q.page - 1) * q.pageSize).take(q.pageSize).getManyAndCount();
       return { items: rows.map(toUserDto), total, page: q.page, pageSize: q.pageSize };
     },
@@ -86,15 +86,17 @@ export function createUsersService(dataSource: DataSource) {
           throw new Invalid('Unknown institute.', [{ path: 'body.instituteId', message: 'no such institute' }]);
         }
         const before = { role: user.role, instituteId: user.instituteId };
-        if (patch.role) user.role = patch.role;
-        if (patch.instituteId !== undefined) user.instituteId = patch.instituteId;
-        if (user.role === 'operator' && !user.instituteId) {
+        const next = { role: patch.role ?? user.role, instituteId: patch.instituteId !== undefined ? patch.instituteId : user.instituteId };
+        if (next.role === 'operator' && !next.instituteId) {
           throw new Invalid('Lab staff must belong to an institute.', [{ path: 'body.instituteId', message: 'required for lab staff' }]);
         }
-        await repo.save(user);
-        await recordAudit(m, actor, { action: 'user.updated', entityType: 'user', entityId: id, details: { before, after: patch } });
-        const fresh = await repo.findOne({ where: { id }, relations: { institute: true } });
-        return toUserDto(fresh!);
+        // An UPDATE of the columns themselves: saving the loaded entity let its `institute` relation win over the
+        // changed institute id, so the row stayed as it was while the audit event said otherwise.
+        await repo.update({ id }, next);
+        const fresh = (await repo.findOne({ where: { id }, relations: { institute: true } }))!;
+        const after = { role: fresh.role, instituteId: fresh.instituteId };
+        await recordAudit(m, actor, { action: 'user.updated', entityType: 'user', entityId: id, details: { before, after } });
+        return toUserDto(fresh);
       });
     },
     /** Deactivation ends everything at once: sign-in refused, every session deleted, every token revoked. */

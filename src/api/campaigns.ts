@@ -1,5 +1,5 @@
 import { keepPreviousData, useMutation, useQuery, useQueryClient } from '@tanstack/react-query';
-import type { Campaign, CampaignState, CampaignSummary, CreateCampaign, UpdateCampaign } from '../../shared/campaigns';
+import type { Campaign, CampaignState, CampaignSummary, CreateCampaign, ReviewChecklistItem, UpdateCampaign } from '../../shared/campaigns';
 import type { Page } from '../../shared/http';
 import { api } from '../lib/api-client';
 import { queryString } from './registry';
@@ -31,6 +31,14 @@ function useCampaignMutation<TIn, TOut>(fn: (input: TIn) => Promise<TOut>) {
 export const useCreateCampaign = () => useCampaignMutation((body: CreateCampaign) => api<Campaign>('/api/v1/campaigns', { body }));
 export const useUpdateCampaign = () => useCampaignMutation(({ id, body }: { id: string; body: UpdateCampaign }) => api<Campaign>(`/api/v1/campaigns/${id}`, { method: 'PATCH', body }));
 export type CampaignAction = 'submit' | 'start-review' | 'accept' | 'return';
+export type CampaignActionInput = { id: string; action: CampaignAction; reason?: string; note?: string; comment?: string; justification?: string };
+function actionBody(v: CampaignActionInput): Record<string, string> {
+  if (v.action === 'return') return { reason: v.reason ?? '' };
+  if (v.action === 'accept') return { comment: v.comment ?? '', ...(v.justification ? { justification: v.justification } : {}) };
+  return v.note ? { note: v.note } : {};
+}
 export const useCampaignAction = () =>
-  useCampaignMutation(({ id, action, reason, note }: { id: string; action: CampaignAction; reason?: string; note?: string }) =>
-    api<Campaign>(`/api/v1/campaigns/${id}/${action}`, { body: action === 'return' ? { reason } : note ? { note } : {} }));
+  useCampaignMutation((v: CampaignActionInput) => api<Campaign>(`/api/v1/campaigns/${v.id}/${v.action}`, { body: actionBody(v) }));
+export const useTickChecklist = () =>
+  useCampaignMutation(({ id, item, checked }: { id: string; item: ReviewChecklistItem; checked: boolean }) =>
+    api<Campaign>(`/api/v1/campaigns/${id}/checklist`, { body: { item, checked } }));

@@ -13,7 +13,7 @@ export const certificateKeys = {
   detail: (number: string) => [...certificateKeys.all, 'detail', number] as const,
   snapshot: (number: string) => [...certificateKeys.all, 'snapshot', number] as const,
   forCampaign: (campaignId: string) => [...certificateKeys.all, 'campaign', campaignId] as const,
-  audit: (campaignId: string, numbers: readonly string[]) => [...certificateKeys.all, 'audit', campaignId, numbers] as const,
+  audit: (campaignId: string) => [...certificateKeys.all, 'audit', campaignId] as const,
   awaiting: () => [...certificateKeys.all, 'awaiting'] as const,
 };
 
@@ -61,17 +61,11 @@ export const useCertificateSnapshot = (number: string, enabled: boolean) =>
 export const certificatePdfUrl = (number: string) => `/api/v1/certificates/${encodeURIComponent(number)}/pdf`;
 export const certificateSnapshotUrl = (number: string) => `/api/v1/certificates/${encodeURIComponent(number)}/snapshot`;
 
-/** The campaign's own events plus those of each of its certificates, oldest first. */
-export const useCampaignAuditTrail = (campaignId: string, certificateNumbers: readonly string[], enabled: boolean) =>
+/** Every event of the campaign, its uploads and its certificates, oldest first, numbered 1…n by the server. */
+export const useCampaignAuditTrail = (campaignId: string) =>
   useQuery({
-    queryKey: certificateKeys.audit(campaignId, certificateNumbers),
-    enabled,
-    queryFn: async () => {
-      const fetchAll = (entityType: string, entityId: string) =>
-        api<Page<AuditEvent>>(`/api/v1/audit-events?${queryString({ entityType, entityId, page: 1, pageSize: 500 })}`).then((p) => p.items);
-      const lists = await Promise.all([fetchAll('campaign', campaignId), ...certificateNumbers.map((n) => fetchAll('certificate', n))]);
-      return lists.flat().sort((a, b) => Number(a.id) - Number(b.id));
-    },
+    queryKey: certificateKeys.audit(campaignId),
+    queryFn: () => api<Page<AuditEvent & { seq: number }>>(`/api/v1/campaigns/${campaignId}/audit-trail`).then((p) => p.items),
   });
 
 function useCertificateMutation<V, R>(fn: (v: V) => Promise<R>) {
@@ -80,8 +74,8 @@ function useCertificateMutation<V, R>(fn: (v: V) => Promise<R>) {
 }
 
 export const useIssueCertificate = () =>
-  useCertificateMutation((campaignId: string) =>
-    api<{ created: boolean; certificate: CertificateSummary }>(`/api/v1/campaigns/${campaignId}/certificates`, { method: 'POST', body: {} }),
+  useCertificateMutation((v: { campaignId: string; comment: string; justification?: string }) =>
+    api<{ created: boolean; certificate: CertificateSummary }>(`/api/v1/campaigns/${v.campaignId}/certificates`, { method: 'POST', body: { comment: v.comment, justification: v.justification } }),
   );
 export const useReissueCertificate = () =>
   useCertificateMutation((v: { number: string; reason: string }) =>

@@ -1,21 +1,46 @@
 import { useMutation, useQuery, useQueryClient } from '@tanstack/react-query';
-import type { ComparisonResultDto } from '../../shared/results';
-import { api } from '../lib/api-client';
+import type { Problem } from '../../shared/http';
+import { resultNotReadyCodes, type ComparisonResultDto, type ResultRequest } from '../../shared/results';
+import { ApiError, api } from '../lib/api-client';
 
 export const resultKeys = {
   all: ['results'] as const,
   campaign: (campaignId: string) => [...resultKeys.all, 'campaign', campaignId] as const,
 };
 
-/** The campaign's current result; the server recomputes it when its inputs changed (can take a few seconds). */
+/** The stored result for the campaign's current inputs, or why there is none yet (being computed, failed, not asked for). */
+export type CampaignResultState =
+  | { kind: 'ready'; dto: ComparisonResultDto }
+  | { kind: 'not-ready'; code: (typeof resultNotReadyCodes)[number]; problem: Problem };
+
+const isNotReady = (e: unknown): e is ApiError => e instanceof ApiError && e.status === 404 && (resultNotReadyCodes as readonly string[]).includes(e.problem.code);
+
+/** Results are computed by a job after an upload, acceptance or recompute; while one runs, this polls every few seconds. */
 export const useCampaignResult = (campaignId: string) =>
-  useQuery({ queryKey: resultKeys.campaign(campaignId), queryFn: () => api<ComparisonResultDto>(`/api/v1/campaigns/${campaignId}/result`), retry: false });
+  useQuery({
+    queryKey: resultKeys.campaign(campaignId),
+    queryFn: async (): Promise<CampaignResultState> => {
+      try {
+        return { kind: 'ready', dto: await api<ComparisonResultDto>(`/api/v1/campaigns/${campaignId}/result`) };
+      } catch (e) {
+        if (isNotReady(e)) return { kind: 'not-ready', code: e.problem.code as (typeof resultNotReadyCodes)[number], problem: e.problem };
+        throw e;
+      }
+    },
+    retry: false,
+    refetchInterval: (query) => {
+      const data = query.state.data;
+      if (data?.kind !== 'not-ready' || data.code !== 'result-pending') return false;
+      const seconds = Number((data.problem as { retryAfterSeconds?: number }).retryAfterSeconds ?? 2);
+      return Math.max(1, seconds) * 1000;
+    },
+  });
 
 export function useRecomputeResult(campaignId: string) {
   const qc = useQueryClient();
   return useMutation({
-    mutationFn: () => api<ComparisonResultDto>(`/api/v1/campaigns/${campaignId}/result/recompute`, { method: 'POST' }),
-    onSuccess: (data) => qc.setQueryData(resultKeys.campaign(campaignId), data),
+    mutationFn: () => api<ResultRequest>(`/api/v1/campaigns/${campaignId}/result/recompute`, { method: 'POST' }),
+    onSuccess: () => qc.invalidateQueries({ queryKey: resultKeys.campaign(campaignId) }),
   });
 }
 

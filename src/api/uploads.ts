@@ -1,4 +1,4 @@
-import { useMutation, useQuery, useQueryClient, type QueryClient } from '@tanstack/react-query';
+import { keepPreviousData, useMutation, useQuery, useQueryClient, type QueryClient } from '@tanstack/react-query';
 import type { Problem } from '../../shared/http';
 import type { RatioSeries, SeriesPlot, UploadPreview, UploadProgress } from '../../shared/uploads';
 import { api, ApiError } from '../lib/api-client';
@@ -8,18 +8,20 @@ import type { Me } from '../../shared/auth';
 export const uploadKeys = {
   all: ['uploads'] as const,
   list: (campaignId: string) => [...uploadKeys.all, 'list', campaignId] as const,
-  plot: (seriesId: string, points: number) => [...uploadKeys.all, 'plot', seriesId, points] as const,
+  plot: (seriesId: string, points: number, range: { fromMjd: number; toMjd: number } | null) => [...uploadKeys.all, 'plot', seriesId, points, range] as const,
 };
 
 export const useCampaignUploads = (campaignId: string) =>
   useQuery({ queryKey: uploadKeys.list(campaignId), queryFn: () => api<RatioSeries[]>(`/api/v1/campaigns/${campaignId}/uploads`) });
 
-export const useSeriesPlot = (seriesId: string | null, points = 1500) =>
+/** The server's decimation of one series, for the whole span or for the range zoomed into (refetched per range). */
+export const useSeriesPlot = (seriesId: string | null, points = 1500, range: { fromMjd: number; toMjd: number } | null = null) =>
   useQuery({
-    queryKey: uploadKeys.plot(seriesId ?? '', points),
-    queryFn: () => api<SeriesPlot>(`/api/v1/uploads/${seriesId}/series?points=${points}`),
+    queryKey: uploadKeys.plot(seriesId ?? '', points, range),
+    queryFn: () => api<SeriesPlot>(`/api/v1/uploads/${seriesId}/series?points=${points}${range ? `&fromMjd=${range.fromMjd}&toMjd=${range.toMjd}` : ''}`),
     enabled: !!seriesId,
     staleTime: Infinity,
+    placeholderData: keepPreviousData,
   });
 
 /** The preview reads only the start of the file: the client sends just the first 64 KiB. */
@@ -33,7 +35,8 @@ export function usePreviewUpload(campaignId: string) {
   });
 }
 
-export type UploadStage = { stage: 'sending' | 'processing' | 'storing' | 'done'; sentFraction: number; rowsProcessed: number; bytesRead: number; bytesTotal: number };
+/** `failed`: the server answered with a problem; `checkedWhole` says whether it had read the whole file by then (400, 409). */
+export type UploadStage = { stage: 'sending' | 'processing' | 'storing' | 'done' | 'failed'; sentFraction: number; rowsProcessed: number; bytesRead: number; bytesTotal: number; checkedWhole?: boolean };
 
 function csrfFrom(qc: QueryClient): string | null {
   return qc.getQueryData<Me | null>(accountKeys.me())?.csrfToken ?? null;
@@ -98,11 +101,18 @@ export function sendUpload(qc: QueryClient, campaignId: string, file: File, mapp
         resolve(body as RatioSeries);
       } else {
         const problem = (body as Problem | null) ?? { type: 'about:blank', title: xhr.statusText, status: xhr.status, detail: xhr.responseText.slice(0, 300), code: 'http' };
+        state.stage = 'failed';
+        // A refused file (bad content, or a repeat) was read to its end before the answer came.
+        state.checkedWhole = xhr.status === 400 || xhr.status === 409;
+        if (state.checkedWhole) state.bytesRead = file.size;
+        emit();
         reject(new ApiError(xhr.status, problem));
       }
     };
     xhr.onerror = () => {
       polling = false;
+      state.stage = 'failed';
+      emit();
       reject(new Error('The connection failed during the upload.'));
     };
     xhr.send(form);

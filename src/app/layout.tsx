@@ -1,3 +1,4 @@
+import type { ReactNode } from 'react';
 import { NavLink, Outlet } from 'react-router';
 import { roleLabels } from '../../shared/auth';
 import { useMe, useSignOut } from '../api/account';
@@ -7,16 +8,20 @@ import { SignInPage } from '../pages/sign-in-page';
 
 const groupTitles = { work: 'Work', tools: 'Tools', admin: 'Administration' } as const;
 
-export function Layout() {
+/**
+ * The signed-in frame. `children` replaces the routed page (the public verification page inside the frame);
+ * `publicContent` is shown instead of the sign-in screen to someone not signed in.
+ */
+export function Layout({ children, publicContent }: { children?: ReactNode; publicContent?: ReactNode }) {
   const me = useMe();
   const signOut = useSignOut();
   const notices = useNotices();
   if (me.isPending) return <div className="p-10 text-ink-500">Loading…</div>;
-  if (!me.data) return <SignInPage />;
+  if (!me.data) return publicContent ?? <SignInPage />;
   const user = me.data;
   const items = navItems.filter((n) => n.roles.includes(user.role));
   // An entry whose path prefixes another entry's path (/, /admin) highlights only on its own page, so that
-  // /admin/mailbox lights up "Mail catcher" alone; detail pages (/campaigns/<id>) still light up their list entry.
+  // /admin/mailbox lights up "Test mailbox" alone; detail pages (/campaigns/<id>) still light up their list entry.
   const exact = (to: string) => to === '/' || navItems.some((o) => o.to !== to && o.to.startsWith(`${to}/`));
   return (
     <div className="flex min-h-screen">
@@ -50,7 +55,7 @@ export function Layout() {
       </nav>
       <main className="min-w-0 flex-1 px-8 py-6">
         <div className="mx-auto max-w-6xl space-y-5">
-          <Outlet />
+          {children ?? <Outlet />}
         </div>
         <p className="mx-auto mt-10 max-w-6xl text-xs text-ink-400">
           Demo data in this installation is an invented scenario: institutes, people, sites and measurements do not exist.

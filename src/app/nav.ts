@@ -15,7 +15,7 @@ export const navItems: NavItem[] = [
   { to: '/certificates', label: 'Certificates', roles: all, group: 'work' },
   { to: '/admin', label: 'Institutes and people', roles: ['admin'], group: 'admin' },
   { to: '/admin/access', label: 'Sessions and tokens', roles: ['admin'], group: 'admin' },
-  { to: '/admin/mailbox', label: 'Mail catcher', roles: ['admin'], group: 'admin' },
+  { to: '/admin/mailbox', label: 'Test mailbox', roles: ['admin'], group: 'admin' },
   { to: '/account/tokens', label: 'My API tokens', roles: all, group: 'tools' },
   { to: '/calculator', label: 'Calculator', roles: all, group: 'tools' },
 ];

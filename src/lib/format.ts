@@ -52,3 +52,14 @@ export function valueAndUncertainty(value: number, uncertainty: number | null | 
   const decimals = Math.max(0, 1 - Math.floor(Math.log10(uncertainty)));
   return `${fixed(value, decimals)} ± ${uncertainty.toFixed(decimals)}`;
 }
+
+/** "2026-03-02 14:05" from an ISO 8601 timestamp (UTC, to the minute); the caller adds "UTC" where it reads better. */
+export function isoMinute(iso: string): string {
+  return iso ? iso.slice(0, 16).replace('T', ' ') : '—';
+}
+
+const pluralRules = new Intl.PluralRules('en');
+/** "1 clock comparison", "3 clock comparisons" (CLDR plural rules via Intl.PluralRules). */
+export function plural(n: number, singular: string, pluralForm = `${singular}s`): string {
+  return `${n} ${pluralRules.select(n) === 'one' ? singular : pluralForm}`;
+}

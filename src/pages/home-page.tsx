@@ -1,7 +1,7 @@
 import { Link } from 'react-router';
 import { roleLabels } from '../../shared/auth';
 import { useMe } from '../api/account';
-import { Caution, EmptyState, Panel } from '../components/ui';
+import { EmptyState, Panel } from '../components/ui';
 import { homeCards } from '../app/home-cards';
 
 export function HomePage() {
@@ -26,7 +26,7 @@ export function HomePage() {
           ))}
         </div>
       )}
-      <Caution />
+
     </>
   );
 }

@@ -30,6 +30,6 @@ describe('demo stand-ins and PUBLIC_URL', () => {
     fs.rmSync(secrets, { recursive: true, force: true });
     expect(r.status).toBe(1);
     expect(r.stdout + r.stderr).toContain('is not a loopback address');
-    expect(r.stdout + r.stderr).not.toContain('local identity provider and mail catcher started');
+    expect(r.stdout + r.stderr).not.toContain('local identity provider and test mailbox started');
   });
 });

@@ -12,7 +12,7 @@ describe('health, errors and OpenAPI', () => {
   it('reports database health', async () => {
     const res = await request(t.app).get('/api/health');
     expect(res.status).toBe(200);
-    expect(res.body).toEqual({ status: 'ok', database: 'ok' });
+    expect(res.body).toMatchObject({ status: 'ok', database: 'ok', pool: { inUse: expect.any(Number), waiting: 0 } });
   });
 
   it('renders validation errors as problem+json with field paths (RFC 9457)', async () => {

@@ -5,7 +5,7 @@ import { startFakeSmtp, type FakeSmtp } from '../../server/dev/fake-smtp';
 import { createMailSender, enqueueMail, type MailSender } from '../../server/mail/outbox';
 import { createTestApp, tokenFor, type TestApp } from '../helpers/test-app';
 
-// The outbox against a mail server that goes away: nothing is lost, nothing is sent twice. A private mail catcher
+// The outbox against a mail server that goes away: nothing is lost, nothing is sent twice. A private test mailbox
 // per file, so taking it down does not disturb other test files; the backoff runs on a compressed time base
 // (base 200 ms, cap 2 s instead of the production 30 s and 1 h) so a 60 s outage needs no hours of waiting.
 

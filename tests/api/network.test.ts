@@ -16,6 +16,32 @@ let operator: string;
 let auditor: string;
 const bearer = (tok: string) => ({ authorization: `Bearer ${tok}` });
 
+/** Permanent-tide potential γ0(φ)·(0.099 − 0.296 sin²φ) [m²/s²] (Ekman 1989), γ0 by Somigliana with GRS80 (Moritz 2000). */
+function permanentTide(latDeg: number): number {
+  const s2 = Math.sin((latDeg * Math.PI) / 180) ** 2;
+  const gamma = (9.7803267715 * (1 + 0.001931851353 * s2)) / Math.sqrt(1 - 0.00669438002290 * s2);
+  return gamma * (0.099 - 0.296 * s2);
+}
+/** C_system − C_mean-tide at one point (Ekman 1989; Mäkinen & Ihde 2009, 1 + k − h = 0.68). */
+const shiftFromMean = (system: string, lat: number) => (system === 'zero-tide' ? permanentTide(lat) : system === 'tide-free' ? 0.68 * permanentTide(lat) : 0);
+
+type RunObs = { kind: string; from: string; to: string; sigma_m2s2: number; suspected: boolean };
+type RunPoint = { code: string; datum: string; c_m2s2: number };
+/** σ(C_b − C_a) from a run's own observations by dense least squares (ml-matrix): √(q_aa + q_bb − 2q_ab). */
+function denseDifferenceSigma(result: { points: RunPoint[]; observations: RunObs[] }, a: string, b: string): number {
+  const free = result.points.filter((p) => p.datum !== 'held').map((p) => p.code);
+  const obs = result.observations.filter((o) => !o.suspected);
+  const A = new Matrix(obs.length, free.length);
+  obs.forEach((o, i) => {
+    if (free.includes(o.to)) A.set(i, free.indexOf(o.to), 1);
+    if (free.includes(o.from)) A.set(i, free.indexOf(o.from), -1);
+  });
+  const P = Matrix.diag(obs.map((o) => 1 / o.sigma_m2s2 ** 2));
+  const Q = inverse(A.transpose().mmul(P).mmul(A));
+  const q = (x: string, y: string) => (free.includes(x) && free.includes(y) ? Q.get(free.indexOf(x), free.indexOf(y)) : 0);
+  return Math.sqrt(q(a, a) + q(b, b) - 2 * q(a, b));
+}
+
 beforeAll(async () => {
   t = await createTestApp();
   worker = await startWorker({ dataSource: t.ds, databaseUrl: t.databaseUrl, pollingIntervalSeconds: 0.5 });
@@ -157,7 +183,11 @@ describe('adjustment runs through the job queue', () => {
     const r = run.result;
     // Σ redundancy numbers = degrees of freedom (trace of the redundancy matrix; Ghilani 2017 ch. 21)
     expect(r.redundancySum).toBeCloseTo(r.degreesOfFreedom, 8);
-    expect(r.degreesOfFreedom).toBe(r.observations.length - r.unknowns);
+    // Baarda's iteration removed the planted blunder: the final adjustment has one observation less.
+    expect(r.degreesOfFreedom).toBe(r.observations.filter((o: { suspected: boolean }) => !o.suspected).length - r.unknowns);
+    expect(r.snooping.suspects[0]).toMatchObject({ step: 1 });
+    expect(r.snooping.suspects[0].label).toContain('Dune road');
+    expect(r.snooping.initial.globalTestPassed).toBe(false);
     // Baarda's w-test critical value for α0 = 0.001 two-sided: 3.29 (normal quantile, standard table)
     expect(r.snooping.criticalValue).toBeCloseTo(3.29, 2);
     const worst = [...r.observations].sort((a, b) => Math.abs(b.standardizedResidual ?? 0) - Math.abs(a.standardizedResidual ?? 0))[0];
@@ -247,7 +277,7 @@ describe('POST /api/v1/calc/adjust', () => {
     expect(bad.body.issues.map((i: { path: string }) => i.path)).toEqual(expect.arrayContaining(['body.observations.0.deltaC', 'body.observations.0.sigma']));
     const unknown = await request(t.app).post('/api/v1/calc/adjust').set(bearer(operator)).send({ points, observations: [{ from: 'A', to: 'Z', deltaC: 1, sigma: 1 }] });
     expect(unknown.status).toBe(400);
-    expect(unknown.body.issues[0].path).toBe('body.observations[0].to');
+    expect(unknown.body.issues[0].path).toBe('body.observations.0.to');
     const cut = await request(t.app).post('/api/v1/calc/adjust').set(bearer(operator)).send({
       points: [...points, { code: 'E' }, { code: 'F' }], observations: [...observations, { from: 'E', to: 'F', deltaC: 1, sigma: 0.01 }],
     });
@@ -282,7 +312,7 @@ describe('clocks in the network: reconciliation and datum offsets', () => {
     await t.ds.query(
       `INSERT INTO comparison_result (campaign_id, input_hash, constants, software_version, computed_at, computed_by, result)
        VALUES ($1, $2, '{}'::jsonb, 'test', now(), 'test', $3::jsonb)`,
-      [campaign.id, 'a'.repeat(64), JSON.stringify({ deltaC_m2s2: { value: clockDeltaC, standardUncertainty: 0.05, expandedUncertainty: 0.1, coverageFactor: 2 } })],
+      [campaign.id, 'a'.repeat(64), JSON.stringify({ deltaC_m2s2: { value: clockDeltaC, standardUncertainty: 0.05, expandedUncertainty: 0.1, coverageFactor: 2 }, tide: { system: 'mean-tide' } })],
     );
     const rec = (await request(t.app).get('/api/v1/network/reconciliation').set(bearer(auditor))).body;
     const row = rec.rows.find((r: { campaignId: string }) => r.campaignId === campaign.id);
@@ -296,7 +326,16 @@ describe('clocks in the network: reconciliation and datum offsets', () => {
     expect(row.verdict).toBe('not-comparable');
     expect(row.en).toBeNull();
     expect(row.agreed).toBeNull();
-    expect(row.difference_m2s2).toBeCloseTo(-1.5, 9);
+    // The levelled ΔC is converted from the datums' tide systems to the clock's (mean-tide) before the difference:
+    // ΔC_lev(mean) = ΔC_lev − [s_B(B) − s_A(A)] (Ekman 1989), s the shift of C from mean-tide at each site.
+    const latA = ca.latitudeDeg;
+    const latB = cb.latitudeDeg;
+    expect(row.tide.clockSystem).toBe('mean-tide');
+    expect(row.tide.comparedIn).toBe('mean-tide');
+    const levShift = -(shiftFromMean(row.tide.toDatumSystem, latB) - shiftFromMean(row.tide.fromDatumSystem, latA));
+    expect(row.tide.levellingShift_m2s2).toBeCloseTo(levShift, 6);
+    expect(Math.abs(levShift)).toBeGreaterThan(0.5); // one zero-tide, one mean-tide datum: ≈ 9 cm at 54°N
+    expect(row.difference_m2s2).toBeCloseTo(-1.5 - levShift, 6);
     expect(row.note).toContain('not connected by levelling');
     // The site name is shown once (it already carries the institute code in the demo).
     expect(row.fromSite).not.toMatch(/^(\w+) \1 /);
@@ -314,14 +353,23 @@ describe('clocks in the network: reconciliation and datum offsets', () => {
     expect(run2.state).toBe('done');
     expect(run2.inputSummary.clocks).toBe(1);
     expect(run2.result.datumOffsets).toHaveLength(1);
-    expect(run2.result.datumOffsets[0].value_m2s2).toBeCloseTo(-1.5, 6);
+    // One offset per datum against the reference datum (the datum of the first fixed benchmark, CD-01's coastal one):
+    // o = C in that datum − C in the reference = levelled − clock ΔC, the clock converted to the datums' tide systems.
+    const off = run2.result.datumOffsets[0];
+    expect(run2.result.referenceDatum).toBe('Coastal Datum 1987');
+    expect(off.name).toBe('Highland Datum 2004 relative to Coastal Datum 1987');
+    const highlandIsTo = row.toDatum === 'Highland Datum 2004';
+    expect(off.value_m2s2).toBeCloseTo(highlandIsTo ? 1.5 + levShift : -(1.5 + levShift), 6);
+    expect(run2.result.tideConversions.map((c: { label: string }) => c.label)).toEqual(expect.arrayContaining([expect.stringContaining('HD-01')]));
     const rec2 = (await request(t.app).get('/api/v1/network/reconciliation').set(bearer(auditor))).body;
-    expect(rec2.datumOffsets[0].value_m2s2).toBeCloseTo(-1.5, 6);
+    expect(rec2.datumOffsets[0].value_m2s2).toBeCloseTo(off.value_m2s2, 9);
 
     // Once a section joins the two sites' tie benchmarks, the levelling connects the datums: E_n becomes meaningful.
     const tieFrom = (site: string) => run.result.observations.find((o: { kind: string; to: string }) => o.kind === 'tie' && o.to === `site:${site}`).from;
+    // A junction consistent with both datums' fixed values (so data snooping keeps it): ΔC = C(bm B) − C(bm A) of the run.
+    const cOf = (code: string) => run.result.points.find((p: { code: string }) => p.code === code).c_m2s2;
     const joined = await request(t.app).post('/api/v1/network/sections').set(bearer(coordinator))
-      .send({ lineName: 'Datum junction', fromCode: tieFrom(campaign.a), toCode: tieFrom(campaign.b), deltaHeightM: levelled / 9.81, lengthKm: 300 });
+      .send({ lineName: 'Datum junction', fromCode: tieFrom(campaign.a), toCode: tieFrom(campaign.b), deltaHeightM: (cOf(tieFrom(campaign.b)) - cOf(tieFrom(campaign.a))) / 9.81, lengthKm: 300, meanGravity_ms2: 9.81 });
     expect(joined.status).toBe(201);
     const lev2 = await request(t.app).post('/api/v1/network/runs').set(bearer(coordinator)).send({ includeClocks: false });
     let run3 = lev2.body;
@@ -332,13 +380,20 @@ describe('clocks in the network: reconciliation and datum offsets', () => {
     expect(run3.state).toBe('done');
     const c3a = run3.result.points.find((p: { code: string }) => p.code === `site:${campaign.a}`);
     const c3b = run3.result.points.find((p: { code: string }) => p.code === `site:${campaign.b}`);
-    const levelled3 = c3b.c_m2s2 - c3a.c_m2s2;
+    const levelled3 = c3b.c_m2s2 - c3a.c_m2s2 + levShift;
     const rec3 = (await request(t.app).get('/api/v1/network/reconciliation').set(bearer(auditor))).body;
     const row3 = rec3.rows.find((r: { campaignId: string }) => r.campaignId === campaign.id);
     expect(row3.comparable).toBe(true);
-    expect(row3.levellingDeltaC_m2s2).toBeCloseTo(levelled3, 9);
-    // Levelling U (k = 2) from the run's σ of the two sites, root-sum-square (GUM 5.1.2 with no covariance)
-    expect(row3.levellingExpandedU_m2s2).toBeCloseTo(2 * Math.hypot(c3a.sigmaC_m2s2, c3b.sigmaC_m2s2), 9);
+    expect(row3.levellingDeltaC_m2s2).toBeCloseTo(levelled3 - levShift, 9);
+    // Levelling U (k = 2) from the covariance of the two adjusted sites, σ² = q_AA + q_BB − 2q_AB (JCGM 100:2008 eq. 13),
+    // checked by dense least squares over the run's own observations; the root-sum-square would overstate it.
+    expect(row3.levellingSigmaMethod).toBe('covariance');
+    expect(run3.result.snooping.suspects.map((x: { label: string }) => x.label).join()).not.toContain('Datum junction');
+    expect(run3.result.sigmaScale.applied).toBe(false);
+    const sigma3 = denseDifferenceSigma(run3.result, c3a.code, c3b.code);
+    expect(row3.levellingExpandedU_m2s2).toBeCloseTo(2 * sigma3, 9);
+    expect(row3.levellingSigmaIgnoringCovariance_m2s2).toBeCloseTo(Math.hypot(c3a.sigmaC_m2s2, c3b.sigmaC_m2s2), 9);
+    expect(row3.levellingExpandedU_m2s2).toBeLessThan(2 * Math.hypot(c3a.sigmaC_m2s2, c3b.sigmaC_m2s2));
     // E_n = (x_clock − x_lev) / √(U_clock² + U_lev²), expanded uncertainties k = 2 (ISO 13528:2015 §9.7 'E_n numbers', clause number from memory)
     const expectedEn = (clockDeltaC - levelled3) / Math.sqrt(0.1 ** 2 + row3.levellingExpandedU_m2s2 ** 2);
     expect(row3.en).toBeCloseTo(expectedEn, 9);

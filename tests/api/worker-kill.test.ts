@@ -11,7 +11,7 @@ import { createTestApp, tokenFor, type TestApp } from '../helpers/test-app';
 let t: TestApp;
 const children: ChildProcess[] = [];
 
-type Worker = { child: ChildProcess; lines: Record<string, unknown>[]; exited: Promise<void> };
+type Worker = { child: ChildProcess; lines: Record<string, unknown>[]; faults: string[]; exited: Promise<void> };
 
 function startWorkerProcess(extraEnv: Record<string, string> = {}): Promise<Worker> {
   const env = {
@@ -22,6 +22,7 @@ function startWorkerProcess(extraEnv: Record<string, string> = {}): Promise<Work
   const child = spawn(process.execPath, ['--import', 'tsx', 'server/jobs/worker.ts'], { env, stdio: ['ignore', 'pipe', 'inherit'] });
   children.push(child);
   const lines: Record<string, unknown>[] = [];
+  const faults: string[] = [];
   const exited = new Promise<void>((r) => child.once('exit', () => r()));
   return new Promise((resolve, reject) => {
     let buf = '';
@@ -34,9 +35,9 @@ function startWorkerProcess(extraEnv: Record<string, string> = {}): Promise<Work
         try {
           const o = JSON.parse(l) as Record<string, unknown>;
           lines.push(o);
-          if (typeof o.msg === 'string' && o.msg.startsWith('worker waiting for jobs')) resolve({ child, lines, exited });
+          if (typeof o.msg === 'string' && o.msg.startsWith('worker waiting for jobs')) resolve({ child, lines, faults, exited });
         } catch {
-          // not a log line
+          if (l.startsWith('FAULT ')) faults.push(l.slice(6).trim());
         }
       }
     });
@@ -58,13 +59,15 @@ afterAll(async () => {
 describe('worker killed during an adjustment run', () => {
   it('is retried by another worker and finishes exactly once', { timeout: 120_000 }, async () => {
     const coordinator = await tokenFor(t, 'ansel.brandt@geopotential-office.invalid');
-    // The first worker pauses after its first progress report (test-only hook), so it is surely killed mid-run.
-    const first = await startWorkerProcess({ CHRONOLEVEL_FAULT_PAUSE_MS: '600000' });
+    // The first worker pauses after the run's first progress report (test-only fault point), so it is killed mid-run.
+    const first = await startWorkerProcess({ CHRONOLEVEL_FAULT_POINT: 'adjustment-run' });
     const start = await request(t.app).post('/api/v1/network/runs').set({ authorization: `Bearer ${coordinator}` }).send({ sigmaMmPerSqrtKm: 1 });
     expect(start.status).toBe(202);
     const runId = start.body.id as string;
     const runRow = async () => (await t.ds.query('SELECT state, stage, progress, result IS NOT NULL AS has_result, finished_at FROM adjustment_run WHERE id = $1', [runId]))[0];
     let row = await runRow();
+    for (let i = 0; i < 200 && !first.faults.includes('adjustment-run'); i++) await sleep(100);
+    expect(first.faults).toEqual(['adjustment-run']);
     for (let i = 0; i < 200 && row.state !== 'running'; i++) {
       await sleep(100);
       row = await runRow();
@@ -94,7 +97,7 @@ describe('worker killed during an adjustment run', () => {
     expect(jobs[0]).toMatchObject({ state: 'completed', retry_count: 1 });
     expect(first.lines.filter((l) => l.msg === 'adjustment run finished')).toEqual([]);
     expect(second.lines.filter((l) => l.msg === 'adjustment run finished' && l.runId === runId)).toHaveLength(1);
-    expect(second.lines.some((l) => l.msg === 'adjustment job of a stopped worker handed back' && l.runId === runId)).toBe(true);
+    expect(second.lines.some((l) => l.msg === 'job of a stopped worker handed back' && l.runId === runId)).toBe(true);
     const [{ runs }] = await t.ds.query("SELECT count(*)::int AS runs FROM adjustment_run WHERE id = $1", [runId]);
     expect(runs).toBe(1);
     // a finished run is immutable (database trigger), so a second completion could not have rewritten it

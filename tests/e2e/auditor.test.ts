@@ -42,7 +42,11 @@ describe('auditor journey', () => {
     const row = page.getByTestId('awaiting-certificate').locator('li', { hasText: CAMPAIGN });
     await screenshot(page, 'certificates-awaiting-coordinator');
     await row.getByRole('button', { name: 'Issue certificate' }).click();
-    await page.getByTestId('certificate-number').waitFor({ timeout: 60_000 });
+    const dialog = page.getByTestId('confirm-dialog');
+    await dialog.getByLabel(/Comment for the certificate/).fill('Reviewed and certified for the audit.');
+    await dialog.getByLabel(/Justification|Why certify/).fill('Audit demo: any exception was discussed with both labs.');
+    await dialog.getByRole('button', { name: 'Issue and sign' }).click();
+    await page.getByTestId('certificate-number').waitFor({ timeout: 180_000 });
     number = (await page.getByTestId('certificate-number').textContent())!.trim();
     expect(number).toMatch(/^CL-\d{4}-\d{5}-r1$/);
     await expect(page.getByTestId('certificate-state').textContent()).resolves.toContain('Valid');
@@ -56,6 +60,9 @@ describe('auditor journey', () => {
     await page.getByRole('link', { name: number }).click();
     await page.getByTestId('certificate-number').waitFor();
     await page.getByRole('button', { name: 'Show' }).click();
+    // The snapshot reads as a table first, the raw JSON one click away.
+    await page.getByTestId('snapshot-table').getByText('Audit chain head').waitFor();
+    await page.getByRole('button', { name: 'Raw JSON' }).click();
     await page.getByTestId('snapshot-json').getByText('auditChainHead').waitFor();
     await screenshot(page, 'certificate-detail-auditor');
     const [download] = await Promise.all([page.waitForEvent('download'), page.getByTestId('download-pdf').click()]);

@@ -93,7 +93,11 @@ describe('lab staff registry journey', () => {
     await page.getByTestId('campaign-title').waitFor();
     await page.getByRole('button', { name: 'Save this reference ratio' }).waitFor();
     await screenshot(page, 'lab-campaign-draft');
-    await page.getByRole('button', { name: 'Submit for review' }).click();
+    await page.getByRole('button', { name: 'Submit for review…' }).click();
+    // The confirmation says what will happen before anything does.
+    const dialog = page.getByTestId('confirm-dialog');
+    await expect(dialog.getByTestId('confirm-consequences').textContent()).resolves.toContain('coordinating institute is mailed');
+    await dialog.getByRole('button', { name: 'Submit for review' }).click();
     await page.getByTestId('campaign-timeline').getByText('Submitted').waitFor();
     expect(await page.getByTestId('campaign-state').first().textContent()).toBe('Submitted');
     await screenshot(page, 'lab-campaign-submitted');
@@ -111,9 +115,13 @@ describe('lab staff registry journey', () => {
     await signInWithBrowser(page, srv.baseUrl, 'ansel.brandt@geopotential-office.invalid', '/campaigns');
     await page.getByRole('link', { name: 'Annex–HMO first run' }).click();
     await page.getByRole('button', { name: 'Start review' }).waitFor();
+    expect(await page.getByRole('button', { name: 'Start review' }).isEnabled()).toBe(true);
+    await expect(page.getByTestId('campaign-title').textContent()).resolves.toBe('Annex–HMO first run');
+    expect(await page.getByRole('button', { name: 'Accept…' }).count()).toBe(0); // accepting comes after the review starts
     await screenshot(page, 'coordinator-campaign');
     await page.goto(`${srv.baseUrl}/reference-data`);
     await page.getByTestId('reference-frequencies').getByText('from memory').first().waitFor();
+    expect(await page.getByTestId('reference-frequencies').getByText('from memory').count()).toBeGreaterThan(0);
     await screenshot(page, 'coordinator-reference-data');
     await context.close();
   });

@@ -6,7 +6,7 @@ import { launchBrowser, screenshot, signInWithBrowser, startE2eServer, type E2eS
 import { tokenFor } from '../helpers/test-app';
 
 // Registry, campaign, audit-trail and admin pages as a reviewer sees them: the seeded campaign's full audit trail
-// under its name, one highlighted nav entry per page, UTC minutes in the mail catcher, stated coverage factors.
+// under its name, one highlighted nav entry per page, UTC minutes in the test mailbox, stated coverage factors.
 
 const INES = 'ines.varga@saltmarsh-lab.invalid';
 const ANSEL = 'ansel.brandt@geopotential-office.invalid';
@@ -46,8 +46,8 @@ describe('registry and campaign pages', () => {
     const timeline = page.getByTestId('audit-timeline');
     await timeline.getByText('accepted').first().waitFor();
     const text = await timeline.textContent();
-    expect(text).toContain('created');
-    expect(text!.indexOf('created')).toBeLessThan(text!.indexOf('submitted'));
+    expect(text).toContain('Campaign opened');
+    expect(text!.indexOf('Campaign opened')).toBeLessThan(text!.indexOf('State changed to submitted'));
     expect(text).toContain('2026-02-20 09:12 UTC');
     expect(text).not.toContain('pdfSha256');
     await expect(page.locator('header p').first().textContent()).resolves.toBe('Campaigns / SCL–HMO Sr spring run 2026 / audit trail');
@@ -98,7 +98,10 @@ describe('registry and campaign pages', () => {
     await form.getByLabel('Northing N (m)').fill('5931000');
     await form.getByRole('button', { name: 'Save changes' }).click();
     await page.getByTestId('site-title').getByText('SCL roof pillar north').waitFor();
-    await page.getByTestId('entered-coordinates').getByText('501000, 5931000, 45').waitFor();
+    // The entered values are named by axis, with units.
+    await page.getByTestId('entered-coordinates').getByText('501000 m').waitFor();
+    await page.getByText('Northing N').waitFor();
+    await page.getByText('5931000 m').waitFor();
     const after = Number((await page.getByTestId('grs80-lat').textContent())!.replace('°', ''));
     // Expected values from proj4 (npm reference library) with the EPSG:25832 definition, ETRS89 / UTM zone 32N
     // (GRS80 ellipsoid, central meridian 9° E, k0 = 0.9996, false easting 500 km; EPSG Geodetic Parameter Dataset).
@@ -129,11 +132,14 @@ describe('registry and campaign pages', () => {
 
   it('the reference-data page groups the digits of the frequencies', async () => {
     const { page } = await as(ANSEL, '/reference-data');
-    await page.getByTestId('reference-frequencies').getByText('429\u202f228\u202f004\u202f229\u202f873.7', { exact: true }).waitFor();
+    const grouped = page.getByTestId('reference-frequencies').getByText('429\u202f228\u202f004\u202f229\u202f873.7', { exact: true });
+    await grouped.waitFor();
+    // Digits in groups of three with narrow no-break spaces before the decimal marker (SI Brochure, 9th ed., ch. 5, from memory).
+    await expect(grouped.first().textContent()).resolves.toMatch(/^\d{3}(\u202f\d{3})+\.\d$/);
     await screenshot(page, 'reference-data-fixes');
   });
 
-  it('the mail catcher highlights only its own nav entry and shows UTC minutes', async () => {
+  it('the test mailbox highlights only its own nav entry and shows UTC minutes', async () => {
     const token = await tokenFor(srv, INES);
     const res = await request(srv.app).post(`/api/v1/campaigns/${ids['SCL–HMO Sr run January 2027']}/submit`).set('authorization', `Bearer ${token}`).send({});
     expect(res.status).toBe(200);
@@ -141,7 +147,7 @@ describe('registry and campaign pages', () => {
     const { page } = await as(YUSRA, '/admin/mailbox');
     const line = page.getByText(/^to .* · \d{4}-\d\d-\d\d \d\d:\d\d UTC$/).first();
     await line.waitFor();
-    expect(await activeNav(page)).toEqual(['Mail catcher']);
+    expect(await activeNav(page)).toEqual(['Test mailbox']);
     await screenshot(page, 'mailbox-fixes');
     await page.goto(`${srv.baseUrl}/admin`);
     await page.getByRole('cell', { name: PETRA }).waitFor();

@@ -53,6 +53,9 @@ async function demoCampaignWithData(): Promise<string> {
     .field('epochColumn', '1').field('epochKind', 'mjd').field('valueColumn', '2').field('valueKind', 'offset').field('flagColumn', '3').field('hasHeader', 'true')
     .attach('file', Buffer.from(rows.join('\n') + '\n'), { filename: 'invented-check-run.csv', contentType: 'text/csv' });
   expect(upload.status, upload.text).toBe(201);
+  // The coordinator sees a campaign once the lab submits it (docs/decisions/0004-campaign-visibility.md).
+  const submitted = await request(srv.app).post(`/api/v1/campaigns/${campaign.id}/submit`).set('authorization', `Bearer ${operator}`).send({});
+  expect(submitted.status, submitted.text).toBe(200);
   return campaign.id;
 }
 
@@ -67,7 +70,7 @@ afterAll(async () => {
 });
 
 describe('results page', () => {
-  it('shows the coordinator the plots, the budget, ΔC, ΔH and the E_n verdict', async () => {
+  it('shows the coordinator the plots, the budget, ΔC, ΔH and the Eₙ verdict', async () => {
     const context = await browser.newContext({ viewport: { width: 1280, height: 900 } });
     const page = await context.newPage();
     await signInWithBrowser(page, srv.baseUrl, 'ansel.brandt@geopotential-office.invalid', `/campaigns/${campaignId}`);
@@ -76,7 +79,7 @@ describe('results page', () => {
     await expect(page.getByTestId('result-dc').textContent()).resolves.toMatch(/± [\d.]+ m²\/s²/);
     await expect(page.getByTestId('result-dh').textContent()).resolves.toMatch(/± [\d.]+ m$/);
     const verdict = await page.getByTestId('agreement').textContent();
-    expect(verdict).toMatch(/(Agreed|Not agreed) — E_n = -?\d/);
+    expect(verdict).toMatch(/(Agreed|Not agreed) — Eₙ = -?\d/);
     expect(await page.getByTestId('budget-table').locator('tbody tr').count()).toBe(8); // six components, u_c and U
     await page.getByRole('img', { name: 'Fractional offset y against time, with the tide correction' }).waitFor();
     // The one-hour gap in the data breaks the mean line and the band (common practice: never draw across missing data).
@@ -90,6 +93,24 @@ describe('results page', () => {
     await screenshot(page, 'results-coordinator');
     await context.close();
   }, 60_000);
+
+  it('shows "not computed yet", and after Compute the pending state, then the result the worker stored (the page polls)', async () => {
+    const [summer] = await srv.ds.query("SELECT id FROM campaign WHERE name = 'SCL–HMO Sr summer run 2026'");
+    expect((await srv.ds.query('SELECT count(*)::int AS n FROM comparison_result WHERE campaign_id = $1', [summer.id]))[0].n).toBe(0);
+    const context = await browser.newContext({ viewport: { width: 1280, height: 900 } });
+    const page = await context.newPage();
+    await signInWithBrowser(page, srv.baseUrl, 'ansel.brandt@geopotential-office.invalid', `/campaigns/${summer.id}/results`);
+    const state = page.getByTestId('result-state');
+    await expect(state.getAttribute('data-state')).resolves.toBe('result-not-computed');
+    await screenshot(page, 'results-not-computed');
+    await page.getByRole('button', { name: 'Compute the result' }).click();
+    // Queued and computed by the worker; the page shows the pending state meanwhile and asks again by itself.
+    await page.getByTestId('result-dc').waitFor({ timeout: 60_000 });
+    await expect(page.getByTestId('result-dc').textContent()).resolves.toMatch(/± [\d.]+ m²\/s²/);
+    const [row] = await srv.ds.query('SELECT computed_by FROM comparison_result WHERE campaign_id = $1', [summer.id]);
+    expect(row.computed_by).toBe('Ansel Brandt');
+    await context.close();
+  }, 90_000);
 
   it('gives lab staff the calculator with a planning curve', async () => {
     const context = await browser.newContext({ viewport: { width: 1280, height: 900 } });

@@ -40,6 +40,9 @@ describe('signing in through the local identity provider', () => {
     await screenshot(page, 'admin-people');
     await page.getByRole('button', { name: 'Sign out' }).click();
     await page.getByRole('link', { name: 'Sign in with your institute' }).waitFor();
+    expect(await page.getByTestId('whoami').count()).toBe(0);
+    // The session is gone on the server too, not only in the page.
+    expect((await page.request.get(`${srv.baseUrl}/api/v1/me`)).status()).toBe(401);
     await context.close();
   });
 });

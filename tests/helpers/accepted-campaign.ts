@@ -1,4 +1,5 @@
 import request from 'supertest';
+import { reviewChecklistItems } from '../../shared/campaigns';
 import { tokenFor, type TestApp } from './test-app';
 
 /**
@@ -8,6 +9,13 @@ import { tokenFor, type TestApp } from './test-app';
  * per metre); the certificate only has to carry whatever the result says.
  */
 export async function acceptedCampaign(t: TestApp, name: string, startIso: string): Promise<string> {
+  const campaign = await campaignInReview(t, name, startIso);
+  await acceptAsReviewer(t, campaign, await tokenFor(t, 'ansel.brandt@geopotential-office.invalid'));
+  return campaign;
+}
+
+/** The same campaign, uploaded, submitted and under review (not yet accepted). */
+export async function campaignInReview(t: TestApp, name: string, startIso: string): Promise<string> {
   const operator = await tokenFor(t, 'ines.varga@saltmarsh-lab.invalid');
   const coordinator = await tokenFor(t, 'ansel.brandt@geopotential-office.invalid');
   const id = async (sql: string, v: string) => ((await t.ds.query(sql, [v]))[0] as { id: string }).id;
@@ -32,9 +40,21 @@ export async function acceptedCampaign(t: TestApp, name: string, startIso: strin
     .field('epochColumn', '1').field('epochKind', 'mjd').field('valueColumn', '2').field('valueKind', 'offset').field('hasHeader', 'true')
     .attach('file', Buffer.from(rows.join('\n') + '\n'), { filename: `${name.replace(/\W+/g, '-')}.csv`, contentType: 'text/csv' });
   if (upload.status !== 201) throw new Error(`upload refused: ${upload.status} ${upload.text}`);
-  for (const [who, step] of [[operator, 'submit'], [coordinator, 'start-review'], [coordinator, 'accept']] as const) {
+  for (const [who, step] of [[operator, 'submit'], [coordinator, 'start-review']] as const) {
     const res = await request(t.app).post(`/api/v1/campaigns/${campaign}/${step}`).set('authorization', `Bearer ${who}`).send({});
     if (res.status >= 300) throw new Error(`${step} refused: ${res.status} ${res.text}`);
   }
   return campaign;
+}
+
+/** The reviewer's part: tick every checklist item, then accept with a comment (and a justification, used only if the campaign needs one). */
+export async function acceptAsReviewer(t: TestApp, campaign: string, coordinatorToken: string, body: { comment?: string; justification?: string } = {}) {
+  for (const item of reviewChecklistItems) {
+    const res = await request(t.app).post(`/api/v1/campaigns/${campaign}/checklist`).set('authorization', `Bearer ${coordinatorToken}`).send({ item, checked: true });
+    if (res.status !== 200) throw new Error(`checklist refused: ${res.status} ${res.text}`);
+  }
+  const res = await request(t.app).post(`/api/v1/campaigns/${campaign}/accept`).set('authorization', `Bearer ${coordinatorToken}`)
+    .send({ comment: 'Reviewed: budgets, ratio and series checked.', justification: 'Test campaign: exceptions accepted for the test.', ...body });
+  if (res.status !== 200) throw new Error(`accept refused: ${res.status} ${res.text}`);
+  return res;
 }

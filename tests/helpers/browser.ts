@@ -3,6 +3,7 @@ import pino from 'pino';
 import { chromium, type Browser, type Page } from 'playwright-core';
 // @ts-expect-error plain ESM helper shared with `npm start`
 import { freePort } from '../../scripts/lib/postgres.mjs';
+import { startWorker } from '../../server/jobs/worker';
 import { createTestApp, type TestApp } from './test-app';
 
 // Browser tests: the real app on a loopback port, driven by Debian's Chromium through playwright-core.
@@ -22,6 +23,8 @@ export async function startE2eServer(): Promise<E2eServer> {
   const logger = process.env.E2E_LOG === '1' ? pino({ level: 'info' }, pino.destination(2)) : undefined;
   const t = await createTestApp({ env: { PUBLIC_URL: baseUrl, PORT: String(port) }, logger });
   t.deps.mail.start(500);
+  // as `npm start` does: one job worker in the process (result computations, adjustment runs)
+  const worker = await startWorker({ dataSource: t.ds, databaseUrl: t.databaseUrl, pollingIntervalSeconds: 0.5 });
   const server: Server = await new Promise((resolve) => {
     const s = t.app.listen(port, '127.0.0.1', () => resolve(s));
   });
@@ -29,6 +32,7 @@ export async function startE2eServer(): Promise<E2eServer> {
     ...t, baseUrl, server,
     stop: async () => {
       await new Promise<void>((r) => server.close(() => r()));
+      await worker.stop();
       await t.close();
     },
   };

@@ -7,6 +7,7 @@ import { createApp } from '../../server/app';
 import { loadConfig, type AppConfig } from '../../server/config';
 import { openDatabase } from '../../server/db/data-source';
 import type { AppDeps } from '../../server/deps';
+import { stopQueues } from '../../server/jobs/queue';
 import { createMailSender } from '../../server/mail/outbox';
 import { issueToken } from '../../server/tokens/tokens.service';
 import { UserEntity } from '../../server/db/entities/core.entities';
@@ -69,6 +70,7 @@ export async function createTestApp(
     app, ds, deps, config, databaseUrl, ownerUrl,
     close: async () => {
       mail.stop();
+      await stopQueues(); // uploads and acceptances put result jobs on the queue through a sending connection
       await app.locals.closeSessionPool?.();
       await ds.destroy();
     },
@@ -104,7 +106,7 @@ export async function signInAs(t: TestApp, email: string) {
   return { agent, csrf: me.body.csrfToken as string, me: me.body };
 }
 
-/** Reads what the local mail catcher received. */
+/** Reads what the local test mailbox received. */
 export async function caughtMail(): Promise<{ to: string[]; subject: string; text: string }[]> {
   const res = await fetch(`${inject('mailboxUrl')}/messages`);
   return res.json();

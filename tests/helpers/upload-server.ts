@@ -9,7 +9,7 @@ import { createMailSender } from '../../server/mail/outbox';
 // (which reads this process's peak RSS). Configuration comes as JSON in CHRONOLEVEL_CHILD_ENV; prints "LISTENING <port>".
 const env = JSON.parse(process.env.CHRONOLEVEL_CHILD_ENV ?? '{}') as Record<string, string>;
 const config = loadConfig(env);
-const ds = await openDatabase(config.databaseUrl, { migrate: false });
+const ds = await openDatabase(config.databaseUrl, { migrate: false, pool: { max: config.db.poolMax, idleInTransactionTimeoutMs: config.db.idleInTransactionTimeoutMs } });
 const logger = pino({ level: 'silent' });
 const mail = createMailSender({ dataSource: ds, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
 const app = createApp({ config, dataSource: ds, logger, mail });

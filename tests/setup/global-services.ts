@@ -12,7 +12,7 @@ import { startFakeSmtp } from '../../server/dev/fake-smtp';
 import { startFakeTsa } from '../../server/dev/fake-tsa';
 
 // Once per test run: a private PostgreSQL in a temporary folder with a migrated template database,
-// the local identity provider, the mail catcher and the time-stamping authority, all on free loopback ports.
+// the local identity provider, the test mailbox and the time-stamping authority, all on free loopback ports.
 declare module 'vitest' {
   export interface ProvidedContext {
     pgAdminUrl: string;

@@ -8,7 +8,7 @@ const SUPERSCRIPT: Record<string, string> = {
 export function superscriptInteger(n: number): string {
   return String(Math.trunc(n))
     .split('')
-    .map((ch) => SUPERSCRIPT[ch] ?? ch)
+    .map((ch) => (Object.hasOwn(SUPERSCRIPT, ch) ? SUPERSCRIPT[ch] : ch))
     .join('');
 }
 

@@ -589,6 +589,8 @@ function renderBody(doc: Doc, s: CertificateSnapshot): void {
     flow.y += h + 3;
   });
 
+  if (s.review) reviewSection(flow, ++n, s.review);
+
   sectionHeading(flow, ++n, 'Traceability');
   keyValues(flow, [
     ['Software version', s.softwareVersion],
@@ -619,6 +621,17 @@ function renderBody(doc: Doc, s: CertificateSnapshot): void {
   }
 
   signatureBlock(flow, s);
+}
+
+/** Who accepted and certified, and — when the campaign had review exceptions — why it was certified anyway. */
+function reviewSection(flow: Flow, number: number, r: NonNullable<CertificateSnapshot['review']>): void {
+  sectionHeading(flow, number, 'Review decision');
+  keyValues(flow, [
+    ['Accepted by', r.acceptedBy ? `${r.acceptedBy}${r.acceptanceComment ? `: ${r.acceptanceComment}` : ''}` : '—'],
+    ['Certified by', `${r.certifiedBy}: ${r.certificationComment}`],
+    ...r.exceptions.map((text, i): [string, string] => [i === 0 ? 'Accepted despite' : '', text]),
+    ...r.justifications.map((j): [string, string] => [`Justification (${j.stage})`, `${j.text} (${j.by})`]),
+  ]);
 }
 
 function signatureBlock(flow: Flow, s: CertificateSnapshot): void {

@@ -119,10 +119,14 @@ function readSignatureField(pdf: Buffer, text: string, match: RegExpMatchArray, 
   const [a, b, c, d] = match.slice(1, 5).map(Number) as [number, number, number, number];
   if (a !== 0) throw new Tampered('signed byte range does not start at the beginning of the file');
   if (!(b > 0 && c > b + 1 && c + d === revisionEnd)) {
+    if (!(b > 0 && c > b + 1) || c + d > revisionEnd) throw new Tampered('signed byte range does not match the file length');
+    // The file is longer than what was signed. If the signature gap still sits where the byte range says, the extra
+    // bytes follow the signed range (an incremental update); otherwise they were put in before the signature.
+    const extra = revisionEnd - (c + d);
     throw new Tampered(
-      c + d < revisionEnd
-        ? `bytes after the signed range: ${revisionEnd - (c + d)} bytes were appended (incremental update) after signing`
-        : 'signed byte range does not match the file length',
+      pdf[b] === 0x3c && pdf[c - 1] === 0x3e
+        ? `bytes after the signed range: ${extra} bytes were appended (incremental update) after signing`
+        : `${extra} bytes were put into the file before the signature, or bytes inside it were changed, after signing (the signed byte range no longer lines up with the file)`,
     );
   }
   if (pdf[b] !== 0x3c || pdf[c - 1] !== 0x3e) throw new Tampered('the gap in the signed byte range is not a hex string');

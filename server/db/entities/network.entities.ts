@@ -42,6 +42,8 @@ export interface BenchmarkRow {
   knownC_m2s2: number | null;
   knownNormalHeightM: number | null;
   knownUncertaintyC_m2s2: number | null;
+  /** Tide system the known value is stated in (null: not stated). */
+  knownTideSystem?: 'mean-tide' | 'zero-tide' | 'tide-free' | null;
   fixed: boolean;
   monumentation: string | null;
   state: 'in-use' | 'destroyed';
@@ -65,6 +67,7 @@ export const BenchmarkEntity = new EntitySchema<BenchmarkRow>({
     knownC_m2s2: { name: 'known_c_m2s2', type: 'double precision', nullable: true },
     knownNormalHeightM: { name: 'known_normal_height_m', type: 'double precision', nullable: true },
     knownUncertaintyC_m2s2: { name: 'known_uncertainty_c_m2s2', type: 'double precision', nullable: true },
+    knownTideSystem: { name: 'known_tide_system', type: 'text', nullable: true },
     fixed: { type: 'boolean' },
     monumentation: { type: 'text', nullable: true },
     state: { type: 'text' },

@@ -28,6 +28,10 @@ export interface SiteRow {
   quasigeoidGridId: string | null;
   quasigeoidHeightM: number;
   quasigeoidUncertaintyM: number;
+  /** Tide system of the quasigeoid height (null: not stated). */
+  quasigeoidTideSystem?: 'mean-tide' | 'zero-tide' | 'tide-free' | null;
+  /** Crust (permanent-tide) system of the ellipsoidal height: tide-free (conventional, as ITRF/GNSS) or mean-tide (= zero-tide crust). */
+  ellipsoidalCrustSystem?: 'mean-tide' | 'zero-tide' | 'tide-free' | null;
   benchmarkCode: string | null;
   tieHeightDifferenceM: number | null;
   tieUncertaintyM: number | null;
@@ -56,6 +60,8 @@ export const SiteEntity = new EntitySchema<SiteRow>({
     quasigeoidGridId: { name: 'quasigeoid_grid_id', type: 'uuid', nullable: true },
     quasigeoidHeightM: { name: 'quasigeoid_height_m', type: 'float8' },
     quasigeoidUncertaintyM: { name: 'quasigeoid_u_m', type: 'float8' },
+    quasigeoidTideSystem: { name: 'quasigeoid_tide_system', type: 'text', nullable: true },
+    ellipsoidalCrustSystem: { name: 'ellipsoidal_crust_system', type: 'text', nullable: true },
     benchmarkCode: { name: 'benchmark_code', type: 'text', nullable: true },
     tieHeightDifferenceM: { name: 'tie_height_difference_m', type: 'float8', nullable: true },
     tieUncertaintyM: { name: 'tie_u_m', type: 'float8', nullable: true },
@@ -81,6 +87,9 @@ export interface QuasigeoidGridRow {
   /** Row-major heights (latitude ascending, then longitude ascending), metres. */
   heightsM: number[];
   uncertaintyM: number;
+  tideSystem?: 'mean-tide' | 'zero-tide' | 'tide-free' | null;
+  /** Correlation length of the grid's errors [km]; null: the default of server/science/registered-heights.ts. */
+  correlationLengthKm?: number | null;
   uploadedBy: string;
   createdAt: Date;
 }
@@ -100,6 +109,8 @@ export const QuasigeoidGridEntity = new EntitySchema<QuasigeoidGridRow>({
     longitudeCount: { name: 'longitude_count', type: 'int' },
     heightsM: { name: 'heights_m', type: 'float8', array: true },
     uncertaintyM: { name: 'uncertainty_m', type: 'float8' },
+    tideSystem: { name: 'tide_system', type: 'text', nullable: true },
+    correlationLengthKm: { name: 'correlation_length_km', type: 'float8', nullable: true },
     uploadedBy: { name: 'uploaded_by', type: 'text' },
     createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
   },
@@ -253,6 +264,15 @@ export interface CampaignRow {
   returnReason: string | null;
   createdByUserId: string | null;
   createdBy: string;
+  /** Reviewer's checklist: item → who ticked it and when (absent = not ticked). */
+  reviewChecklist: Record<string, { by: string; at: string }>;
+  acceptedByUserId: string | null;
+  acceptedBy: string | null;
+  acceptedAt: Date | null;
+  acceptanceComment: string | null;
+  acceptanceJustification: string | null;
+  /** The exceptions (Eₙ not agreed, low uptime, …) the acceptance justification answers. */
+  acceptanceExceptions: string[];
   createdAt: Date;
   updatedAt: Date;
 }
@@ -279,6 +299,13 @@ export const CampaignEntity = new EntitySchema<CampaignRow>({
     returnReason: { name: 'return_reason', type: 'text', nullable: true },
     createdByUserId: { name: 'created_by_user_id', type: 'uuid', nullable: true },
     createdBy: { name: 'created_by', type: 'text' },
+    reviewChecklist: { name: 'review_checklist', type: 'jsonb', default: {} },
+    acceptedByUserId: { name: 'accepted_by_user_id', type: 'uuid', nullable: true },
+    acceptedBy: { name: 'accepted_by', type: 'text', nullable: true },
+    acceptedAt: { name: 'accepted_at', type: 'timestamptz', nullable: true },
+    acceptanceComment: { name: 'acceptance_comment', type: 'text', nullable: true },
+    acceptanceJustification: { name: 'acceptance_justification', type: 'text', nullable: true },
+    acceptanceExceptions: { name: 'acceptance_exceptions', type: 'jsonb', default: [] },
     createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
     updatedAt: { name: 'updated_at', type: 'timestamptz', updateDate: true },
   },

@@ -4,11 +4,16 @@ import { RatioSeries1764670000000 } from './1764670000000-ratio-series';
 import { Results1764680000000 } from './1764680000000-results';
 import { Network1764690000000 } from './1764690000000-network';
 import { Certificates1764700000000 } from './1764700000000-certificates';
+import { RateLimit1765000000000 } from './1765000000000-rate-limit';
+import { ResultRequests1765000000001 } from './1765000000001-result-requests';
 import { SessionsAccounts1765100000000 } from './1765100000000-sessions-accounts';
+import { RateLimit1765200000000 } from './1765200000000-rate-limit';
 import { AuditChainV21765300000000 } from './1765300000000-audit-chain-v2';
 import { MailOutboxRetry1765310000000 } from './1765310000000-mail-outbox-retry';
+import { TideSystems1765400000000 } from './1765400000000-tide-systems';
 import { MeasuredRatios1765500000000 } from './1765500000000-measured-ratios';
 import { SigningChain1765600000000 } from './1765600000000-signing-chain';
+import { ReviewDesk1765700000000 } from './1765700000000-review-desk';
 import { ListIndexes1765800000000 } from './1765800000000-list-indexes';
 import { SamplePartitions1765800001000 } from './1765800001000-sample-partitions';
 import { UploadProgress1765800002000 } from './1765800002000-upload-progress';
@@ -21,11 +26,16 @@ export const migrations = [
   Results1764680000000,
   Network1764690000000,
   Certificates1764700000000,
+  RateLimit1765000000000,
+  ResultRequests1765000000001,
   SessionsAccounts1765100000000,
+  RateLimit1765200000000,
   AuditChainV21765300000000,
   MailOutboxRetry1765310000000,
+  TideSystems1765400000000,
   MeasuredRatios1765500000000,
   SigningChain1765600000000,
+  ReviewDesk1765700000000,
   ListIndexes1765800000000,
   SamplePartitions1765800001000,
   UploadProgress1765800002000,

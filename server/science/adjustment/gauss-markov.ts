@@ -1,6 +1,17 @@
 // Least-squares adjustment of a levelling network in geopotential numbers (Gauss–Markov model, observation equations).
 // Model and statistics: Ghilani, "Adjustment Computations", 6th ed., Wiley 2017, ch. 12 (level nets) and ch. 21 (blunder detection);
 // Baarda, "A testing procedure for use in geodetic networks", Netherlands Geodetic Commission, Publ. on Geodesy 2(5), 1968 (w-test).
+//
+// Shared systematic effects (a clock's budget version, a fibre link, a reference ratio used by several campaigns) are
+// extra parameters s with a zero prior and their standard deviation (pseudo-observations s = 0 ± σ_s). With each
+// observation carrying only its own part of the variance this is algebraically the same estimator as generalised
+// least squares with the full covariance Σ = Σ_own + B·Σ_s·Bᵀ (Koch, "Parameter Estimation and Hypothesis Testing in
+// Linear Models", 2nd ed., Springer 1999, §3.4 "estimation with prior information on the parameters" — from memory;
+// the equality is checked against dense GLS in the tests): same x̂, same Q_xx, same vᵀΣ⁻¹v and the same degrees of
+// freedom, because every shared parameter adds one unknown and one pseudo-observation.
+//
+// Data snooping (Baarda 1968): adjust, remove the observation with the largest |w| above the critical value, adjust
+// again, repeat until no |w| exceeds it (or the redundancy is used up); the removals are reported in order.
 
 import { chiSquareQuantile, normalQuantile } from '../distributions';
 import {
@@ -12,6 +23,7 @@ import {
   symmetricFromTriplets,
   type SymmetricCsc,
 } from './sparse-ldl';
+import type { Ordering } from './ordering';
 
 export type ObservationKind = 'levelling' | 'tie' | 'clock';
 
@@ -35,6 +47,28 @@ export interface NetworkObservation {
   kind?: ObservationKind;
   /** Name of a datum-offset parameter added with coefficient +1 to this observation's equation. */
   datumOffset?: string;
+  /**
+   * Further parameters in this observation's equation, each with its coefficient: datum offsets (declared in
+   * options.datumOffsets) or shared parameters (declared in options.sharedParameters).
+   */
+  terms?: ParameterTerm[];
+}
+
+export interface ParameterTerm {
+  name: string;
+  coefficient: number;
+}
+
+/** A random effect shared by several observations: zero prior expectation, prior standard deviation sigma. */
+export interface SharedParameter {
+  name: string;
+  /** Prior standard deviation [m²/s²], > 0. */
+  sigma: number;
+}
+
+export interface DifferenceRequest {
+  from: string;
+  to: string;
 }
 
 export type AdjustmentStage =
@@ -58,6 +92,14 @@ export interface AdjustmentOptions {
    * fixedC is held, exactly; all other points are free and their fixedC is only reported as knownC.
    */
   constraint?: 'fixed' | 'minimum';
+  /** Shared random-effect parameters that observations may reference in their terms. */
+  sharedParameters?: SharedParameter[];
+  /** Adjusted differences C_to − C_from wanted with their standard deviation from the full covariance. */
+  differences?: DifferenceRequest[];
+  /** 'iterative' (default): Baarda's iteration, removing one observation at a time; 'none': test only. */
+  snooping?: 'iterative' | 'none';
+  /** Upper bound on removals by the iteration. Default 50. */
+  maxRemovals?: number;
   onProgress?: (fraction: number, stage: AdjustmentStage) => void;
 }
 
@@ -87,9 +129,12 @@ export interface ResidualAnalysis {
   sigmaResidual: number;
   /** r = 1 − p·aᵀQ_xx·a. */
   redundancy: number;
-  /** w = v/σ_v with σ0 = 1; null when r ≈ 0 (observation not controlled). */
+  /** w = v/σ_v with σ0 = 1; null when r ≈ 0 (observation not controlled). For a removed observation: w at its removal. */
   standardizedResidual: number | null;
+  /** True only for an observation the data-snooping iteration removed. */
   suspected: boolean;
+  /** 1-based step at which the iteration removed it; null when it stayed in the final adjustment. */
+  removedAtStep: number | null;
 }
 
 export interface AdjustedObservation extends ResidualAnalysis {
@@ -101,6 +146,13 @@ export interface AdjustedObservation extends ResidualAnalysis {
   deltaC: number;
   /** Standard deviation of the adjusted ΔC, σ·√(1 − r) [m²/s²]. */
   sigmaAdjusted: number;
+  /** Σ coefficient × estimate of the shared parameters in this observation [m²/s²] (0 without any). */
+  sharedEffect: number;
+  /**
+   * Generalised-least-squares residual (A·x̂ − l with the shared effects part of the error, not of the model):
+   * residual − sharedEffect. Equals the residual without shared parameters.
+   */
+  residualTotal: number;
 }
 
 export interface FixedPointObservation extends ResidualAnalysis {
@@ -114,6 +166,41 @@ export interface AdjustedDatumOffset {
   value: number;
   sigma: number;
   sigmaScaled: number | null;
+}
+
+export interface AdjustedSharedParameter {
+  name: string;
+  /** Estimate [m²/s²]; its prior expectation is 0. */
+  value: number;
+  /** A-posteriori standard deviation with σ0 = 1 [m²/s²]. */
+  sigma: number;
+  /** Prior standard deviation [m²/s²]. */
+  priorSigma: number;
+  /** Number of observations that share it. */
+  observations: number;
+}
+
+export interface AdjustedDifference {
+  from: string;
+  to: string;
+  /** Adjusted C_to − C_from [m²/s²]. */
+  deltaC: number;
+  /** √(q_ff + q_tt − 2q_ft) with σ0 = 1 [m²/s²]. */
+  sigma: number;
+  /** The same with the covariance neglected, √(σ_f² + σ_t²) — for comparison only. */
+  sigmaIgnoringCovariance: number;
+}
+
+export interface SnoopingRemoval {
+  step: number;
+  source: 'observation' | 'fixedPoint';
+  index: number;
+  id?: string;
+  from?: string;
+  to?: string;
+  code?: string;
+  /** w of this observation in the adjustment from which it was removed. */
+  standardizedResidual: number;
 }
 
 export interface GlobalTest {
@@ -156,7 +243,21 @@ export interface AdjustmentResult {
   sigma0: number | null;
   /** null when dof = 0 (no redundancy, nothing to test). */
   globalTest: GlobalTest | null;
-  snooping: { alpha0: number; criticalValue: number; suspects: SuspectedObservation[] };
+  sharedParameters: AdjustedSharedParameter[];
+  differences: AdjustedDifference[];
+  snooping: {
+    alpha0: number;
+    criticalValue: number;
+    /** Removed observations (the iteration's suspects), in order of removal. */
+    suspects: SuspectedObservation[];
+    removals: SnoopingRemoval[];
+    /** True when the iteration stopped at maxRemovals or at zero redundancy with an |w| still above the critical value. */
+    stoppedEarly: boolean;
+    /** Largest |w| left in the final adjustment, null when nothing is controlled. */
+    maxRemainingW: number | null;
+    /** The first adjustment, with every observation in: its σ̂0 and global test. */
+    initial: { sigma0: number | null; degreesOfFreedom: number; globalTest: GlobalTest | null };
+  };
   /** Non-zeros of the factor L (fill-in indicator). */
   factorNonZeros: number;
 }
@@ -186,13 +287,236 @@ const REDUNDANCY_FLOOR = 1e-10;
 
 export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
   const options = input.options ?? {};
+  const mode = options.snooping ?? 'iterative';
+  const maxRemovals = options.maxRemovals ?? 50;
+  if (!(Number.isInteger(maxRemovals) && maxRemovals >= 0)) throw invalid('options.maxRemovals', 'maxRemovals must be a whole number ≥ 0');
+  const progress = options.onProgress ?? (() => undefined);
+  const nObsAll = input.observations.length;
+  const removedObs = new Map<number, SnoopingRemoval>();
+  const removedFixed = new Map<number, SnoopingRemoval>();
+  const removals: SnoopingRemoval[] = [];
+  let stoppedEarly = false;
+
+  // Each pass adjusts the observations not yet removed; original indices are kept in `obsMap`. The unknowns stay the
+  // same from pass to pass (a removed weighted fixed value leaves its point an unknown), so the fill-reducing ordering
+  // of the first pass is reused.
+  let ordering: Ordering | undefined;
+  const run = (report: boolean, screen = false) => {
+    const obsMap: number[] = [];
+    for (let k = 0; k < nObsAll; k++) if (!removedObs.has(k)) obsMap.push(k);
+    const points = input.points.map((p, i) => {
+      if (!removedFixed.has(i)) return p;
+      const { fixedC: _f, sigmaFixed: _s, ...rest } = p;
+      return rest;
+    });
+    const core = adjustCore(
+      { points, observations: obsMap.map((k) => input.observations[k]), options },
+      report ? progress : () => undefined,
+      obsMap,
+      ordering,
+      screen,
+      Math.max(0, maxRemovals - removals.length),
+    );
+    ordering = core.ordering;
+    return { core, obsMap };
+  };
+
+  let pass = run(true, mode === 'iterative');
+  const initial = { sigma0: pass.core.sigma0, degreesOfFreedom: pass.core.degreesOfFreedom, globalTest: pass.core.globalTest };
+  if (mode === 'iterative' && pass.core.screened.length > 0) {
+    // Apply the screened sequence (each w is the one the full iteration would compute at that step), then re-adjust
+    // exactly once; the loop below continues with full adjustments should anything still exceed the critical value.
+    const { core, obsMap } = pass;
+    const staged: SnoopingRemoval[] = core.screened.map((c, j) => {
+      const removal: SnoopingRemoval = { step: j + 1, source: c.source, index: c.source === 'observation' ? obsMap[c.index] : c.index, standardizedResidual: c.w };
+      if (c.source === 'observation') {
+        const ob = input.observations[removal.index];
+        removal.from = ob.from;
+        removal.to = ob.to;
+        if (ob.id !== undefined) removal.id = ob.id;
+      } else removal.code = input.points[c.index].code;
+      return removal;
+    });
+    for (const r of staged) (r.source === 'observation' ? removedObs : removedFixed).set(r.index, r);
+    try {
+      pass = run(false);
+      removals.push(...staged);
+    } catch (e) {
+      if (!(e instanceof AdjustmentInputError)) throw e;
+      for (const r of staged) (r.source === 'observation' ? removedObs : removedFixed).delete(r.index);
+      pass = run(false);
+    }
+  }
+  if (mode === 'iterative') {
+    for (;;) {
+      const { core, obsMap } = pass;
+      const k = core.criticalValue;
+      let best: { source: 'observation' | 'fixedPoint'; index: number; w: number } | null = null;
+      core.observations.forEach((o, j) => {
+        const w = o.standardizedResidual;
+        if (w !== null && Math.abs(w) > k && (!best || Math.abs(w) > Math.abs(best.w))) best = { source: 'observation', index: obsMap[j], w };
+      });
+      core.fixedPointObservations.forEach((o) => {
+        const w = o.standardizedResidual;
+        if (w !== null && Math.abs(w) > k && (!best || Math.abs(w) > Math.abs(best.w))) best = { source: 'fixedPoint', index: o.pointIndex, w };
+      });
+      if (best === null) break;
+      const chosen: { source: 'observation' | 'fixedPoint'; index: number; w: number } = best;
+      if (removals.length >= maxRemovals || core.degreesOfFreedom <= 0) {
+        stoppedEarly = true;
+        break;
+      }
+      const removal: SnoopingRemoval = { step: removals.length + 1, source: chosen.source, index: chosen.index, standardizedResidual: chosen.w };
+      if (chosen.source === 'observation') {
+        const ob = input.observations[chosen.index];
+        removal.from = ob.from;
+        removal.to = ob.to;
+        if (ob.id !== undefined) removal.id = ob.id;
+        removedObs.set(chosen.index, removal);
+      } else {
+        removal.code = input.points[chosen.index].code;
+        removedFixed.set(chosen.index, removal);
+      }
+      try {
+        const next = run(false);
+        removals.push(removal);
+        pass = next;
+      } catch (e) {
+        // The observation cannot go without leaving a part of the network undetermined: keep it, stop here.
+        if (!(e instanceof AdjustmentInputError)) throw e;
+        removedObs.delete(chosen.index);
+        removedFixed.delete(chosen.index);
+        stoppedEarly = true;
+        break;
+      }
+    }
+  }
+
+  const { core, obsMap } = pass;
+  const cOf = new Map(core.points.map((p) => [p.code, p.c]));
+  const paramValue = new Map<string, number>();
+  for (const d of core.datumOffsets) paramValue.set(d.name, d.value);
+  const sharedValue = new Map<string, number>();
+  for (const sp of core.sharedParameters) sharedValue.set(sp.name, sp.value);
+  const byOriginal = new Map<number, AdjustedObservation>();
+  core.observations.forEach((o, j) => byOriginal.set(obsMap[j], { ...o, index: obsMap[j] }));
+  const observations: AdjustedObservation[] = input.observations.map((ob, k) => {
+    const kept = byOriginal.get(k);
+    if (kept) return kept;
+    const rem = removedObs.get(k)!;
+    // A removed observation: its discrepancy to the final adjustment, and its w at removal.
+    let model = (cOf.get(ob.to) ?? 0) - (cOf.get(ob.from) ?? 0);
+    let shared = 0;
+    if (ob.datumOffset !== undefined) model += paramValue.get(ob.datumOffset) ?? 0;
+    for (const t of ob.terms ?? []) {
+      if (paramValue.has(t.name)) model += t.coefficient * paramValue.get(t.name)!;
+      else shared += t.coefficient * (sharedValue.get(t.name) ?? 0);
+    }
+    const residual = model + shared - ob.deltaC;
+    const res: AdjustedObservation = {
+      index: k, from: ob.from, to: ob.to, kind: ob.kind ?? 'levelling', deltaC: ob.deltaC,
+      residual, sigmaResidual: Number.NaN, redundancy: 0, standardizedResidual: rem.standardizedResidual, suspected: true, removedAtStep: rem.step,
+      sigmaAdjusted: Number.NaN, sharedEffect: shared, residualTotal: residual - shared,
+    };
+    if (ob.id !== undefined) res.id = ob.id;
+    return res;
+  });
+  const fixedPointObservations: FixedPointObservation[] = [];
+  const corFixed = new Map(core.fixedPointObservations.map((f) => [f.pointIndex, f]));
+  input.points.forEach((pt, i) => {
+    const kept = corFixed.get(i);
+    if (kept) {
+      const { pointIndex: _p, ...rest } = kept;
+      fixedPointObservations.push(rest);
+      return;
+    }
+    const rem = removedFixed.get(i);
+    if (rem) {
+      const residual = (cOf.get(pt.code) ?? 0) - (pt.fixedC as number);
+      fixedPointObservations.push({
+        code: pt.code, fixedC: pt.fixedC as number, sigmaFixed: pt.sigmaFixed as number, residual, sigmaResidual: Number.NaN, redundancy: 0,
+        standardizedResidual: rem.standardizedResidual, suspected: true, removedAtStep: rem.step,
+      });
+    }
+  });
+  const points = core.points.map((p, i) => (removedFixed.has(i) && input.points[i].fixedC !== undefined ? { ...p, knownC: input.points[i].fixedC } : p));
+
+  const suspects: SuspectedObservation[] = removals.map((r) => {
+    const s: SuspectedObservation = { source: r.source, index: r.index, standardizedResidual: r.standardizedResidual };
+    if (r.source === 'observation') {
+      s.from = r.from;
+      s.to = r.to;
+      if (r.id !== undefined) s.id = r.id;
+    } else {
+      s.code = r.code;
+      s.index = fixedPointObservations.findIndex((f) => f.code === r.code);
+    }
+    return s;
+  });
+  let maxRemainingW: number | null = null;
+  for (const o of [...core.observations, ...core.fixedPointObservations]) {
+    if (o.standardizedResidual !== null && (maxRemainingW === null || Math.abs(o.standardizedResidual) > maxRemainingW)) maxRemainingW = Math.abs(o.standardizedResidual);
+  }
+  if (mode === 'none') {
+    // Test only: every |w| above the critical value is flagged, nothing is removed (no iteration, not Baarda's procedure).
+    for (const o of observations) o.suspected = o.standardizedResidual !== null && Math.abs(o.standardizedResidual) > core.criticalValue;
+    for (const o of fixedPointObservations) o.suspected = o.standardizedResidual !== null && Math.abs(o.standardizedResidual) > core.criticalValue;
+  }
+  progress(1, 'statistical tests');
+  const result: AdjustmentResult = {
+    constraint: core.constraint,
+    points,
+    observations,
+    fixedPointObservations,
+    datumOffsets: core.datumOffsets,
+    sharedParameters: core.sharedParameters,
+    differences: core.differences,
+    unknowns: core.unknowns,
+    degreesOfFreedom: core.degreesOfFreedom,
+    vtpv: core.vtpv,
+    sigma0: core.sigma0,
+    globalTest: core.globalTest,
+    snooping: { alpha0: core.alpha0, criticalValue: core.criticalValue, suspects, removals, stoppedEarly, maxRemainingW, initial },
+    factorNonZeros: core.factorNonZeros,
+  };
+  if (core.heldPoint !== undefined) result.heldPoint = core.heldPoint;
+  return result;
+}
+
+interface CoreResult {
+  constraint: 'fixed' | 'minimum';
+  heldPoint?: string;
+  points: AdjustedPoint[];
+  observations: AdjustedObservation[];
+  fixedPointObservations: (FixedPointObservation & { pointIndex: number })[];
+  datumOffsets: AdjustedDatumOffset[];
+  sharedParameters: AdjustedSharedParameter[];
+  differences: AdjustedDifference[];
+  unknowns: number;
+  degreesOfFreedom: number;
+  vtpv: number;
+  sigma0: number | null;
+  globalTest: GlobalTest | null;
+  alpha0: number;
+  criticalValue: number;
+  factorNonZeros: number;
+  ordering: Ordering;
+  /** Removals found by rank-one screening (indices local to this pass), in order; verified by an exact re-adjustment. */
+  screened: { source: 'observation' | 'fixedPoint'; index: number; w: number }[];
+}
+
+/** One least-squares adjustment (no iteration). `obsPath` maps observation positions to the caller's indices for messages. */
+function adjustCore(
+  input: AdjustmentInput, progress: (fraction: number, stage: AdjustmentStage) => void, obsPath: number[], ordering?: Ordering, screen = false, screenBudget = 0,
+): CoreResult {
+  const options = input.options ?? {};
   const alpha = options.alpha ?? 0.05;
   const alpha0 = options.alphaSnooping ?? 0.001;
   const constraint = options.constraint ?? 'fixed';
-  const progress = options.onProgress ?? (() => undefined);
   const { points, observations } = input;
   const nPoints = points.length;
   const nObs = observations.length;
+  const obsPathOf = (k: number) => `observations[${obsPath[k] ?? k}]`;
 
   progress(0, 'validation');
   if (!(alpha > 0 && alpha < 1)) throw invalid('options.alpha', 'alpha must lie in (0, 1)');
@@ -216,27 +540,51 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
     if (offsetIndex.has(name)) throw invalid(`options.datumOffsets[${k}]`, `duplicate datum offset ${name}`);
     offsetIndex.set(name, k);
   });
+  const shared = options.sharedParameters ?? [];
+  const sharedIndex = new Map<string, number>();
+  shared.forEach((sp, j) => {
+    if (typeof sp.name !== 'string' || sp.name.length === 0) throw invalid(`options.sharedParameters[${j}].name`, 'name is empty');
+    if (sharedIndex.has(sp.name) || offsetIndex.has(sp.name)) throw invalid(`options.sharedParameters[${j}].name`, `duplicate parameter ${sp.name}`);
+    if (!(Number.isFinite(sp.sigma) && sp.sigma > 0)) throw invalid(`options.sharedParameters[${j}].sigma`, 'sigma must be > 0');
+    sharedIndex.set(sp.name, j);
+  });
 
   const obsFrom = new Int32Array(nObs);
   const obsTo = new Int32Array(nObs);
-  const obsOffset = new Int32Array(nObs).fill(-1);
   const offsetUse = new Int32Array(offsetNames.length);
+  const sharedUse = new Int32Array(shared.length);
+  // Parameter terms of each observation (CSR): parameter slot (offsets first, then shared) and coefficient.
+  const termPtr = new Int32Array(nObs + 1);
+  const termSlot: number[] = [];
+  const termCoef: number[] = [];
   observations.forEach((ob, k) => {
+    const path = obsPathOf(k);
     const f = pointIndex.get(ob.from);
     const t = pointIndex.get(ob.to);
-    if (f === undefined) throw invalid(`observations[${k}].from`, `unknown point ${ob.from}`);
-    if (t === undefined) throw invalid(`observations[${k}].to`, `unknown point ${ob.to}`);
-    if (f === t) throw invalid(`observations[${k}].to`, 'observation joins a point to itself');
-    if (!Number.isFinite(ob.deltaC)) throw invalid(`observations[${k}].deltaC`, 'deltaC is not finite');
-    if (!(Number.isFinite(ob.sigma) && ob.sigma > 0)) throw invalid(`observations[${k}].sigma`, 'sigma must be > 0');
+    if (f === undefined) throw invalid(`${path}.from`, `unknown point ${ob.from}`);
+    if (t === undefined) throw invalid(`${path}.to`, `unknown point ${ob.to}`);
+    if (f === t) throw invalid(`${path}.to`, 'observation joins a point to itself');
+    if (!Number.isFinite(ob.deltaC)) throw invalid(`${path}.deltaC`, 'deltaC is not finite');
+    if (!(Number.isFinite(ob.sigma) && ob.sigma > 0)) throw invalid(`${path}.sigma`, 'sigma must be > 0');
     obsFrom[k] = f;
     obsTo[k] = t;
-    if (ob.datumOffset !== undefined) {
-      const o = offsetIndex.get(ob.datumOffset);
-      if (o === undefined) throw invalid(`observations[${k}].datumOffset`, `datum offset ${ob.datumOffset} is not declared`);
-      obsOffset[k] = o;
-      offsetUse[o]++;
-    }
+    const terms: ParameterTerm[] = ob.datumOffset !== undefined ? [{ name: ob.datumOffset, coefficient: 1 }, ...(ob.terms ?? [])] : (ob.terms ?? []);
+    const seen = new Map<number, number>();
+    terms.forEach((term, s) => {
+      const tp = ob.datumOffset !== undefined && s === 0 ? `${path}.datumOffset` : `${path}.terms[${ob.datumOffset !== undefined ? s - 1 : s}]`;
+      if (!Number.isFinite(term.coefficient)) throw invalid(`${tp}.coefficient`, 'coefficient is not finite');
+      const o = offsetIndex.get(term.name);
+      const j = sharedIndex.get(term.name);
+      let slot: number;
+      if (o !== undefined) { slot = o; offsetUse[o]++; }
+      else if (j !== undefined) { slot = offsetNames.length + j; sharedUse[j]++; }
+      else throw invalid(tp, `parameter ${term.name} is not declared`);
+      // Two terms naming the same parameter add up.
+      const at = seen.get(slot);
+      if (at !== undefined) termCoef[at] += term.coefficient;
+      else { seen.set(slot, termSlot.length); termSlot.push(slot); termCoef.push(term.coefficient); }
+    });
+    termPtr[k + 1] = termSlot.length;
   });
   offsetNames.forEach((name, k) => {
     if (offsetUse[k] === 0) throw invalid(`options.datumOffsets[${k}]`, `datum offset ${name} is used by no observation`);
@@ -263,7 +611,7 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
   progress(0.05, 'assembly');
   const c0 = approximateValues(points, obsFrom, obsTo, observations, role);
 
-  // Unknowns: free and weighted points, then datum offsets.
+  // Unknowns: free and weighted points, then datum offsets, then shared parameters.
   const unknownOfPoint = new Int32Array(nPoints).fill(-1);
   const unknownNames: string[] = [];
   for (let i = 0; i < nPoints; i++) {
@@ -272,15 +620,18 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
       unknownNames.push(points[i].code);
     }
   }
-  const firstOffsetUnknown = unknownNames.length;
+  const firstParamUnknown = unknownNames.length;
   for (const name of offsetNames) unknownNames.push(`datum offset ${name}`);
+  for (const sp of shared) unknownNames.push(`shared parameter ${sp.name}`);
   const nUnknowns = unknownNames.length;
+  const firstSharedUnknown = firstParamUnknown + offsetNames.length;
 
   const weightedIdx: number[] = [];
   for (let i = 0; i < nPoints; i++) if (role[i] === WEIGHTED) weightedIdx.push(i);
   const nPseudo = weightedIdx.length;
+  const nShared = shared.length;
 
-  // Reduced observations l0 = observed − computed from approximate values (offsets start at 0).
+  // Reduced observations l0 = observed − computed from approximate values (parameters start at 0).
   const l0 = new Float64Array(nObs);
   const weight = new Float64Array(nObs);
   for (let k = 0; k < nObs; k++) {
@@ -288,21 +639,27 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
     weight[k] = 1 / (observations[k].sigma * observations[k].sigma);
   }
 
-  const maxTriplets = 6 * nObs + nPseudo;
+  let maxTerms = 0;
+  let maxTriplets = nPseudo + nShared;
+  for (let k = 0; k < nObs; k++) {
+    const m = 2 + termPtr[k + 1] - termPtr[k];
+    if (m > maxTerms) maxTerms = m;
+    maxTriplets += (m * (m + 1)) / 2;
+  }
   const tr = new Int32Array(maxTriplets);
   const tc = new Int32Array(maxTriplets);
   const tv = new Float64Array(maxTriplets);
   let nt = 0;
   const rhs = new Float64Array(nUnknowns);
-  const idx = [0, 0, 0];
-  const coef = [0, 0, 0];
+  const idx = new Int32Array(Math.max(maxTerms, 2));
+  const coef = new Float64Array(Math.max(maxTerms, 2));
   const obsUnknowns = (k: number): number => {
     let m = 0;
     const uf = unknownOfPoint[obsFrom[k]];
     const ut = unknownOfPoint[obsTo[k]];
     if (uf >= 0) { idx[m] = uf; coef[m] = -1; m++; }
     if (ut >= 0) { idx[m] = ut; coef[m] = 1; m++; }
-    if (obsOffset[k] >= 0) { idx[m] = firstOffsetUnknown + obsOffset[k]; coef[m] = 1; m++; }
+    for (let p = termPtr[k]; p < termPtr[k + 1]; p++) { idx[m] = firstParamUnknown + termSlot[p]; coef[m] = termCoef[p]; m++; }
     return m;
   };
   for (let k = 0; k < nObs; k++) {
@@ -327,12 +684,17 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
     rhs[u] += pseudoWeight[s] * pseudoL0[s];
     tr[nt] = u; tc[nt] = u; tv[nt] = pseudoWeight[s]; nt++;
   });
+  // Zero-prior pseudo-observations of the shared parameters: s_j = 0 ± σ_j.
+  shared.forEach((sp, j) => {
+    const u = firstSharedUnknown + j;
+    tr[nt] = u; tc[nt] = u; tv[nt] = 1 / (sp.sigma * sp.sigma); nt++;
+  });
   const normal = symmetricFromTriplets(nUnknowns, tr, tc, tv, nt);
 
   progress(0.15, 'ordering and factorisation');
   let factor;
   try {
-    factor = factorize(normal);
+    factor = factorize(normal, ordering && ordering.perm.length === nUnknowns ? { ordering } : {});
   } catch (e) {
     if (e instanceof SingularMatrixError) {
       throw new AdjustmentInputError(
@@ -352,10 +714,25 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
 
   progress(0.5, 'selected inversion');
   const z = selectedInverse(factor);
+  // Q entries outside the factor's pattern come from one extra solve N·q = e_j per column (cached).
+  const columns = new Map<number, Float64Array>();
+  const q = (i: number, j: number): number => {
+    const e = inverseEntry(z, i, j);
+    if (!Number.isNaN(e)) return e;
+    let col = columns.get(j);
+    if (!col) {
+      const unit = new Float64Array(nUnknowns);
+      unit[j] = 1;
+      col = solve(factor, unit);
+      columns.set(j, col);
+    }
+    return col[i];
+  };
 
   progress(0.85, 'statistical tests');
   const v = new Float64Array(nObs);
   const r = new Float64Array(nObs);
+  const sharedEffect = new Float64Array(nObs);
   let vtpv = 0;
   for (let k = 0; k < nObs; k++) {
     const m = obsUnknowns(k);
@@ -363,6 +740,7 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
     let qaa = 0;
     for (let s = 0; s < m; s++) {
       ax += coef[s] * dx[idx[s]];
+      if (idx[s] >= firstSharedUnknown) sharedEffect[k] += coef[s] * dx[idx[s]];
       for (let t = 0; t < m; t++) qaa += coef[s] * coef[t] * inverseEntry(z, idx[s], idx[t]);
     }
     v[k] = ax - l0[k];
@@ -377,8 +755,12 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
     pr[s] = 1 - pseudoWeight[s] * inverseEntry(z, u, u);
     vtpv += pseudoWeight[s] * pv[s] * pv[s];
   });
+  shared.forEach((sp, j) => {
+    const sv = dx[firstSharedUnknown + j];
+    vtpv += (sv * sv) / (sp.sigma * sp.sigma);
+  });
 
-  const dof = nObs + nPseudo - nUnknowns;
+  const dof = nObs + nPseudo + nShared - nUnknowns;
   const sigma0 = dof > 0 ? Math.sqrt(vtpv / dof) : null;
   let globalTest: GlobalTest | null = null;
   if (dof > 0) {
@@ -388,11 +770,70 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
   }
   const kCrit = normalQuantile(1 - alpha0 / 2);
 
-  const analyse = (residual: number, sigma: number, redundancy: number): ResidualAnalysis => {
+  // Screening for Baarda's iteration without re-factorising: removing row k is a rank-one downdate of N, so with
+  // z = Q·a_k (Sherman–Morrison) x' = x + p_k·v_k/r_k·z, v_i' = v_i + p_k·v_k/r_k·(a_iᵀz), r_i' = r_i − p_i·p_k·(a_iᵀz)²/r_k,
+  // Ω' = Ω − p_k·v_k²/r_k. Q after several removals is Q_0 + Σ c_j·z_j·z_jᵀ. The caller re-adjusts exactly afterwards.
+  const screened: { source: 'observation' | 'fixedPoint'; index: number; w: number }[] = [];
+  if (screen && dof > 0) {
+    const nRows = nObs + nPseudo;
+    const rv = new Float64Array(nRows);
+    const rr = new Float64Array(nRows);
+    const rp = new Float64Array(nRows);
+    const rs = new Float64Array(nRows);
+    const gone = new Uint8Array(nRows);
+    for (let k = 0; k < nObs; k++) { rv[k] = v[k]; rr[k] = r[k]; rp[k] = weight[k]; rs[k] = observations[k].sigma; }
+    weightedIdx.forEach((i, s2) => { rv[nObs + s2] = pv[s2]; rr[nObs + s2] = pr[s2]; rp[nObs + s2] = pseudoWeight[s2]; rs[nObs + s2] = points[i].sigmaFixed as number; });
+    const rowDot = (row: number, vec: Float64Array): number => {
+      if (row >= nObs) return vec[unknownOfPoint[weightedIdx[row - nObs]]];
+      const m = obsUnknowns(row);
+      let d = 0;
+      for (let s2 = 0; s2 < m; s2++) d += coef[s2] * vec[idx[s2]];
+      return d;
+    };
+    const zs: Float64Array[] = [];
+    const cs: number[] = [];
+    let dofLeft = dof;
+    for (let step = 0; step < screenBudget && dofLeft > 0; step++) {
+      let best = -1;
+      let bestW = 0;
+      for (let i = 0; i < nRows; i++) {
+        if (gone[i] || rr[i] < REDUNDANCY_FLOOR) continue;
+        const w = rv[i] / (rs[i] * Math.sqrt(Math.min(rr[i], 1)));
+        if (Math.abs(w) > kCrit && Math.abs(w) > Math.abs(bestW)) { best = i; bestW = w; }
+      }
+      if (best < 0) break;
+      screened.push(best < nObs ? { source: 'observation', index: best, w: bestW } : { source: 'fixedPoint', index: weightedIdx[best - nObs], w: bestW });
+      gone[best] = 1;
+      dofLeft--;
+      // z = Q·a_best with the accumulated downdates.
+      const a = new Float64Array(nUnknowns);
+      if (best >= nObs) a[unknownOfPoint[weightedIdx[best - nObs]]] = 1;
+      else { const m = obsUnknowns(best); for (let s2 = 0; s2 < m; s2++) a[idx[s2]] += coef[s2]; }
+      const z = solve(factor, a);
+      for (let j = 0; j < zs.length; j++) {
+        let d = 0;
+        for (let u = 0; u < nUnknowns; u++) d += zs[j][u] * a[u];
+        const f = cs[j] * d;
+        if (f !== 0) for (let u = 0; u < nUnknowns; u++) z[u] += f * zs[j][u];
+      }
+      const c = rp[best] / rr[best];
+      const g = c * rv[best];
+      for (let i = 0; i < nRows; i++) {
+        if (gone[i]) continue;
+        const az = rowDot(i, z);
+        rv[i] += g * az;
+        rr[i] -= rp[i] * c * az * az;
+      }
+      zs.push(z);
+      cs.push(c);
+    }
+  }
+
+  const analyse = (residual: number, sigma: number, redundancy: number): Omit<ResidualAnalysis, 'suspected' | 'removedAtStep'> => {
     const rr = redundancy < REDUNDANCY_FLOOR ? 0 : Math.min(redundancy, 1);
     const sigmaResidual = sigma * Math.sqrt(rr);
     const w = rr > 0 ? residual / sigmaResidual : null;
-    return { residual, sigmaResidual, redundancy: rr, standardizedResidual: w, suspected: w !== null && Math.abs(w) > kCrit };
+    return { residual, sigmaResidual, redundancy: rr, standardizedResidual: w };
   };
 
   const outPoints: AdjustedPoint[] = points.map((pt, i) => {
@@ -419,52 +860,73 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
       kind: ob.kind ?? 'levelling',
       deltaC: ob.deltaC,
       ...a,
+      suspected: false,
+      removedAtStep: null,
       sigmaAdjusted: ob.sigma * Math.sqrt(Math.max(1 - a.redundancy, 0)),
+      sharedEffect: sharedEffect[k],
+      residualTotal: v[k] - sharedEffect[k],
     };
     if (ob.id !== undefined) res.id = ob.id;
     return res;
   });
 
-  const outFixed: FixedPointObservation[] = weightedIdx.map((i, s) => ({
+  const outFixed = weightedIdx.map((i, s) => ({
+    pointIndex: i,
     code: points[i].code,
     fixedC: points[i].fixedC as number,
     sigmaFixed: points[i].sigmaFixed as number,
     ...analyse(pv[s], points[i].sigmaFixed as number, pr[s]),
+    suspected: false,
+    removedAtStep: null,
   }));
 
   const outOffsets: AdjustedDatumOffset[] = offsetNames.map((name, k) => {
-    const u = firstOffsetUnknown + k;
+    const u = firstParamUnknown + k;
     const sigma = Math.sqrt(Math.max(inverseEntry(z, u, u), 0));
     return { name, value: dx[u], sigma, sigmaScaled: sigma0 === null ? null : sigma * sigma0 };
   });
-
-  const suspects: SuspectedObservation[] = [];
-  outObs.forEach((o, k) => {
-    if (o.suspected) {
-      const s: SuspectedObservation = { source: 'observation', index: k, from: o.from, to: o.to, standardizedResidual: o.standardizedResidual as number };
-      if (o.id !== undefined) s.id = o.id;
-      suspects.push(s);
-    }
+  const outShared: AdjustedSharedParameter[] = shared.map((sp, j) => {
+    const u = firstSharedUnknown + j;
+    return { name: sp.name, value: dx[u], sigma: Math.sqrt(Math.max(inverseEntry(z, u, u), 0)), priorSigma: sp.sigma, observations: sharedUse[j] };
   });
-  outFixed.forEach((o, k) => {
-    if (o.suspected) suspects.push({ source: 'fixedPoint', index: k, code: o.code, standardizedResidual: o.standardizedResidual as number });
-  });
-  suspects.sort((a, b) => Math.abs(b.standardizedResidual) - Math.abs(a.standardizedResidual));
 
-  progress(1, 'statistical tests');
-  const result: AdjustmentResult = {
+  const outDiffs: AdjustedDifference[] = (options.differences ?? []).map((d, j) => {
+    const f = pointIndex.get(d.from);
+    const t = pointIndex.get(d.to);
+    if (f === undefined) throw invalid(`options.differences[${j}].from`, `unknown point ${d.from}`);
+    if (t === undefined) throw invalid(`options.differences[${j}].to`, `unknown point ${d.to}`);
+    const uf = unknownOfPoint[f];
+    const ut = unknownOfPoint[t];
+    const qff = uf >= 0 ? inverseEntry(z, uf, uf) : 0;
+    const qtt = ut >= 0 ? inverseEntry(z, ut, ut) : 0;
+    const qft = uf >= 0 && ut >= 0 && uf !== ut ? q(ut, uf) : uf >= 0 && uf === ut ? qff : 0;
+    return {
+      from: d.from,
+      to: d.to,
+      deltaC: outPoints[t].c - outPoints[f].c,
+      sigma: Math.sqrt(Math.max(qff + qtt - 2 * qft, 0)),
+      sigmaIgnoringCovariance: Math.sqrt(Math.max(qff, 0) + Math.max(qtt, 0)),
+    };
+  });
+
+  const result: CoreResult = {
     constraint,
     points: outPoints,
     observations: outObs,
     fixedPointObservations: outFixed,
     datumOffsets: outOffsets,
+    sharedParameters: outShared,
+    differences: outDiffs,
     unknowns: nUnknowns,
     degreesOfFreedom: dof,
     vtpv,
     sigma0,
     globalTest,
-    snooping: { alpha0, criticalValue: kCrit, suspects },
+    alpha0,
+    criticalValue: kCrit,
     factorNonZeros: factor.colPtr[factor.n],
+    ordering: factor.ordering,
+    screened,
   };
   if (heldPoint !== undefined) result.heldPoint = heldPoint;
   return result;

@@ -1,6 +1,6 @@
 import { scaleLinear } from 'd3-scale';
 
-// A dot plot of test statistics (standardised residuals w, or E_n) per item, with the critical value as dashed lines.
+// A dot plot of test statistics (standardised residuals w, or Eₙ) per item, with the critical value as dashed lines.
 // Beyond the critical value an item is drawn as a filled diamond in the "disagree" colour and its label is bold,
 // so the verdict never rests on colour alone.
 

@@ -11,8 +11,8 @@ export function MailboxPage() {
   const mail = useMailbox();
   return (
     <>
-      <h1>Mail catcher</h1>
-      <p className="text-sm text-ink-500">Messages Chronolevel sent through the local mail catcher of this development set-up. Nothing leaves the machine.</p>
+      <h1>Test mailbox</h1>
+      <p className="text-sm text-ink-500">Messages Chronolevel sent through the local test mailbox of this development set-up. Nothing leaves the machine.</p>
       {mail.data?.length === 0 && <EmptyState title="No messages yet" />}
       {mail.data?.map((m) => (
         <Panel key={m.id} title={m.subject}>

@@ -12,6 +12,7 @@ import { LogLogPlot } from '../../components/plots/allan-plot';
 import { Button, Caution, Field, inputClass, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { fixed, sci, sig } from '../../lib/format';
+import { typeset } from '../../components/typeset';
 
 const C2 = 299_792_458 ** 2;
 const num = (v: unknown) => (v === '' || v === null || v === undefined ? undefined : Number(v));
@@ -32,7 +33,7 @@ function NumberField<T extends FieldValues>({ label, name, register, error, hint
 function ResultRow({ label, value, testId }: { label: string; value: string; testId?: string }) {
   return (
     <div className="flex flex-wrap justify-between gap-x-4 border-t border-paper-200 py-1.5 text-sm">
-      <dt className="text-ink-600">{label}</dt>
+      <dt className="text-ink-600">{typeset(label)}</dt>
       <dd className="ml-auto text-right font-mono" data-testid={testId}>{value}</dd>
     </div>
   );

@@ -1,17 +1,21 @@
 import { zodResolver } from '@hookform/resolvers/zod';
 import { MeasuredRatioChoice } from './measured-ratio-choice';
-import { useState } from 'react';
+import { useState, type ReactNode } from 'react';
 import { useForm } from 'react-hook-form';
 import { Link, useParams } from 'react-router';
 import { campaignStateLabels, referenceRatioOverride, updateCampaignSchema, type Campaign, type ReferenceRatioOverride, type UpdateCampaign } from '../../../shared/campaigns';
-import { useCampaign, useCampaignAction, useUpdateCampaign, type CampaignAction } from '../../api/campaigns';
-import { Button, Caution, EmptyState, Field, inputClass, Panel } from '../../components/ui';
+import { useCampaign, useCampaignAction, useTickChecklist, useUpdateCampaign, type CampaignAction } from '../../api/campaigns';
+import { ConfirmDialog, type ConfirmField } from '../../components/confirm-dialog';
+import { typeset } from '../../components/typeset';
+import { Button, EmptyState, Field, inputClass, Panel } from '../../components/ui';
+import { isoMinute, plural } from '../../lib/format';
 import { describeError } from '../../lib/api-client';
 import { CampaignCertificatesPanel } from '../certificates/campaign-certificates-panel';
 import { CampaignUploadsPanel } from '../uploads/campaign-uploads-panel';
 import { BudgetTable } from '../registry/budget-editor';
 import { applyServerErrors, Facts, FormError, groupDigits, sci } from '../registry/registry-ui';
 import { CampaignStateBadge } from './campaign-state';
+import { StandardUncertaintyCaution } from '../../components/cautions';
 
 // The campaign page is a stack of sections; other features insert theirs as one line each (uploads, results).
 
@@ -25,13 +29,14 @@ export function CampaignPage() {
     <>
       <CampaignHeader campaign={c} />
       <CampaignActions campaign={c} />
+      <CampaignReview campaign={c} />
       <CampaignOverview campaign={c} />
       {c.allowed.edit && <CampaignEditor campaign={c} />}
       <CampaignBudgets campaign={c} />
       <CampaignUploadsPanel campaignId={c.id} campaignState={c.state} canUpload={c.allowed.edit} />
-      <CampaignCertificatesPanel campaignId={c.id} campaignState={c.state} />
+      <CampaignCertificatesPanel campaignId={c.id} campaignState={c.state} exceptions={c.review.exceptions} fourEyes={c.review.fourEyes} resultComputed={c.review.resultComputed} />
       <CampaignTimeline campaign={c} />
-      <Caution />
+      <StandardUncertaintyCaution />
     </>
   );
 }
@@ -52,12 +57,66 @@ function CampaignHeader({ campaign: c }: { campaign: Campaign }) {
   );
 }
 
+type DialogSpec = {
+  action: CampaignAction;
+  title: string;
+  consequences: ReactNode[];
+  fields: ConfirmField[];
+  confirmLabel: string;
+  variant?: 'primary' | 'danger';
+};
+
+function dialogFor(action: CampaignAction, c: Campaign): DialogSpec {
+  const period = `${isoMinute(c.periodStart)} – ${isoMinute(c.periodEnd)} UTC`;
+  const justify = c.review.exceptions.length > 0;
+  const unknown = !c.review.resultComputed;
+  switch (action) {
+    case 'submit':
+      return {
+        action, title: `Submit “${c.name}” for review?`, confirmLabel: 'Submit for review',
+        consequences: [
+          `The campaign (${c.clockA.name} → ${c.clockB.name}, ${period}) goes to the coordinating institute as it stands now.`,
+          'The coordinating institute is mailed; you cannot change the campaign or upload series until it is returned.',
+        ],
+        fields: [{ name: 'note', label: 'Note for the reviewer', hint: 'Optional; kept on the timeline.' }],
+      };
+    case 'start-review':
+      return {
+        action, title: `Start reviewing “${c.name}”?`, confirmLabel: 'Start review',
+        consequences: ['The campaign moves to “in review”; the lab sees that you have taken it.', 'The reviewer’s checklist starts empty; every tick is audited.'],
+        fields: [{ name: 'note', label: 'Note', hint: 'Optional; kept on the timeline.' }],
+      };
+    case 'accept':
+      return {
+        action, title: `Accept “${c.name}”?`, confirmLabel: justify ? 'Accept with justification' : 'Accept', variant: 'primary',
+        consequences: [
+          'The campaign becomes “accepted”: its result can be certified and it enters reconciliation.',
+          `Both labs are mailed your comment${justify ? ' and justification' : ''}; both are kept in the audit trail and printed on the certificate.`,
+          ...(c.review.fourEyes ? ['Four-eyes rule: another coordinator will have to issue the certificate.'] : []),
+          ...c.review.exceptions.map((x) => <span key={x.code} className="font-medium text-disagree-800">Exception: {x.text}</span>),
+        ],
+        fields: [
+          { name: 'comment', label: 'Reviewer’s comment', required: true, minLength: 5, rows: 3 },
+          ...(justify ? [{ name: 'justification', label: 'Why is it acceptable despite the exceptions above?', required: true, minLength: 10, rows: 3 }] : []),
+          ...(unknown ? [{ name: 'justification', label: 'Justification, in case the result calls for one', rows: 3,
+            hint: 'No result has been computed yet. Accepting computes it; if Eₙ does not agree, the uptime is low or no result can be formed, a justification of at least 10 characters is required.' }] : []),
+        ],
+      };
+    case 'return':
+      return {
+        action, title: `Return “${c.name}” to the lab?`, confirmLabel: 'Return to the lab', variant: 'danger',
+        consequences: ['The campaign goes back to the lab as “returned”; they can change it and submit again.', 'Both labs are mailed the reason.'],
+        fields: [{ name: 'reason', label: 'Reason for the lab', required: true, minLength: 5, rows: 3 }],
+      };
+  }
+}
+
 function CampaignActions({ campaign: c }: { campaign: Campaign }) {
   const act = useCampaignAction();
-  const [reason, setReason] = useState('');
-  const [returning, setReturning] = useState(false);
-  const run = (action: CampaignAction) => act.mutate({ id: c.id, action, reason }, { onSuccess: () => { setReturning(false); setReason(''); } });
+  const [dialog, setDialog] = useState<DialogSpec | null>(null);
+  const open = (action: CampaignAction) => { act.reset(); setDialog(dialogFor(action, c)); };
   const any = c.allowed.submit || c.allowed.startReview || c.allowed.accept || c.allowed.return;
+  const unticked = c.review.checklist.filter((i) => !i.checked).length;
   return (
     <>
       {c.state === 'returned' && c.returnReason && (
@@ -68,23 +127,74 @@ function CampaignActions({ campaign: c }: { campaign: Campaign }) {
       {any && (
         <Panel title="Next step">
           <div className="flex flex-wrap items-center gap-2">
-            {c.allowed.submit && <Button onClick={() => run('submit')} disabled={act.isPending}>Submit for review</Button>}
-            {c.allowed.startReview && <Button onClick={() => run('start-review')} disabled={act.isPending}>Start review</Button>}
-            {c.allowed.accept && <Button onClick={() => run('accept')} disabled={act.isPending}>Accept</Button>}
-            {c.allowed.return && !returning && <Button variant="danger" onClick={() => setReturning(true)}>Return to the lab…</Button>}
+            {c.allowed.submit && <Button onClick={() => open('submit')}>Submit for review…</Button>}
+            {c.allowed.startReview && <Button onClick={() => open('start-review')}>Start review…</Button>}
+            {c.allowed.accept && <Button onClick={() => open('accept')} disabled={unticked > 0} title={unticked ? 'Tick every checklist item first' : undefined}>Accept…</Button>}
+            {c.allowed.return && <Button variant="danger" onClick={() => open('return')}>Return to the lab…</Button>}
           </div>
-          {returning && (
-            <div className="mt-3 flex items-end gap-2">
-              <div className="flex-1"><Field label="Reason for the lab"><input className={inputClass} value={reason} onChange={(e) => setReason(e.target.value)} /></Field></div>
-              <Button variant="danger" onClick={() => run('return')} disabled={act.isPending}>Return</Button>
-              <Button variant="quiet" onClick={() => setReturning(false)}>Cancel</Button>
-            </div>
-          )}
+          {c.allowed.accept && unticked > 0 && <p className="mt-2 text-xs text-ink-500">{plural(unticked, 'checklist item')} still to tick before you can accept.</p>}
           {c.allowed.submit && <p className="mt-2 text-xs text-ink-500">Submitting sends an e-mail to the coordinating institute; the campaign cannot be changed until it is returned.</p>}
-          <FormError text={act.isError ? describeError(act.error) : null} />
         </Panel>
       )}
+      {dialog && (
+        <ConfirmDialog open title={dialog.title} consequences={dialog.consequences} fields={dialog.fields} confirmLabel={dialog.confirmLabel} variant={dialog.variant}
+          pending={act.isPending} error={act.isError ? describeError(act.error) : null} onCancel={() => setDialog(null)}
+          onConfirm={(v) => act.mutate({ id: c.id, action: dialog.action, ...v }, { onSuccess: () => setDialog(null) })} />
+      )}
     </>
+  );
+}
+
+/** The reviewer's checklist, the exceptions that need a justification, and the recorded decision. */
+function CampaignReview({ campaign: c }: { campaign: Campaign }) {
+  const tick = useTickChecklist();
+  const r = c.review;
+  // Campaigns accepted before the review desk kept its record have no checklist to show.
+  if (c.state !== 'in_review' && !r.acceptedBy) return null;
+  return (
+    <Panel title="Review">
+      <div className="grid gap-5 md:grid-cols-2">
+        <fieldset>
+          <legend className="mb-2 text-sm font-semibold text-ink-700">Reviewer’s checklist</legend>
+          <ul className="space-y-2 text-sm" data-testid="review-checklist">
+            {r.checklist.map((i) => (
+              <li key={i.item}>
+                <label className="flex items-start gap-2">
+                  <input type="checkbox" className="mt-0.5 h-4 w-4 accent-ink-600" checked={i.checked} disabled={!c.allowed.tick || tick.isPending}
+                    onChange={(e) => tick.mutate({ id: c.id, item: i.item, checked: e.target.checked })} />
+                  <span>
+                    {typeset(i.label)}
+                    {i.checked && i.by && <span className="block text-xs text-ink-500">ticked by {i.by}, {isoMinute(i.at ?? '')} UTC</span>}
+                  </span>
+                </label>
+              </li>
+            ))}
+          </ul>
+          <FormError text={tick.isError ? describeError(tick.error) : null} />
+        </fieldset>
+        <div className="text-sm">
+          <p className="mb-2 font-semibold text-ink-700">Exceptions</p>
+          {!r.resultComputed ? (
+            <p className="text-ink-600">No result has been computed yet; accepting computes it and asks for a justification if Eₙ does not agree or the uptime is below {Math.round(r.minUptimeFraction * 100)} %.</p>
+          ) : r.exceptions.length === 0 ? (
+            <p className="text-ink-600">None from the newest result: Eₙ agrees and the uptime is at least {Math.round(r.minUptimeFraction * 100)} %.</p>
+          ) : (
+            <ul className="space-y-1" data-testid="review-exceptions">
+              {r.exceptions.map((x) => <li key={x.code} className="rounded bg-disagree-100 px-2 py-1 text-disagree-800"><span aria-hidden>⚑ </span>{x.text}</li>)}
+            </ul>
+          )}
+          {r.exceptions.length > 0 && <p className="mt-2 text-xs text-ink-500">Accepting or certifying needs a written justification; it is audited and printed on the certificate.</p>}
+          {r.fourEyes && <p className="mt-2 text-xs text-ink-500">Four-eyes rule: the coordinator who accepts may not issue the certificate.</p>}
+          {r.acceptedBy && (
+            <Facts items={[
+              ['Accepted by', `${r.acceptedBy}, ${isoMinute(r.acceptedAt ?? '')} UTC`],
+              ['Comment', r.acceptanceComment ?? '—'],
+              ...(r.acceptanceJustification ? [['Accepted despite', r.acceptanceExceptions.join(' ')] as [string, string], ['Justification', r.acceptanceJustification] as [string, string]] : []),
+            ]} />
+          )}
+        </div>
+      </div>
+    </Panel>
   );
 }
 
@@ -172,7 +282,7 @@ function RatioOverrideForm({ campaign: c }: { campaign: Campaign }) {
         onError: (e) => setFormError(applyServerErrors(e, (path, opt) => setError(String(path).replace(/^referenceRatio\./, '') as keyof ReferenceRatioOverride, opt), ['referenceRatio'])),
       });
     })}>
-      <p className="text-sm font-semibold text-ink-700 md:col-span-3">Use a different reference ratio ν_B/ν_A</p>
+      <p className="text-sm font-semibold text-ink-700 md:col-span-3">Use a different reference ratio {typeset('ν_B/ν_A')}</p>
       <Field label="Ratio (decimal)" error={errors.value?.message}><input className={`${inputClass} font-mono`} {...register('value')} /></Field>
       <Field label="Relative uncertainty (k = 1)" error={errors.relativeUncertainty?.message}><input className={`${inputClass} font-mono`} {...register('relativeUncertainty', { setValueAs: (v: string) => (v === '' ? undefined : Number(v)) })} /></Field>
       <Field label="Justification (required)" error={errors.justification?.message}><input className={inputClass} {...register('justification')} /></Field>

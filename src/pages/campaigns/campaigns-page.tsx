@@ -13,6 +13,7 @@ import { Button, Field, inputClass, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { applyServerErrors, FormError, sci, selectClass } from '../registry/registry-ui';
 import { CampaignStateBadge } from './campaign-state';
+import { typeset } from '../../components/typeset';
 
 const col = createColumnHelper<CampaignSummary>();
 const columns = [
@@ -119,7 +120,7 @@ function NewCampaignForm({ onDone }: { onDone: () => void }) {
         </div>
         <Field label="Operator notes" error={errors.operatorNotes?.message}><textarea rows={2} className={inputClass} {...register('operatorNotes')} /></Field>
         <fieldset className="rounded-md border border-paper-200 p-3">
-          <legend className="px-1 text-sm font-semibold text-ink-700">Reference ratio ν_B/ν_A</legend>
+          <legend className="px-1 text-sm font-semibold text-ink-700">Reference ratio {typeset('ν_B/ν_A')}</legend>
           {ratio.data ? (
             <p className="text-sm" data-testid="default-ratio">Default: <span className="font-mono">{ratio.data.value}</span>, u_r = {sci(ratio.data.relativeUncertainty, 2)} <span className="block text-xs text-ink-500">{ratio.data.source}</span></p>
           ) : ratio.isError ? <p className="text-sm text-brass-600">{describeError(ratio.error)}</p> : <p className="text-sm text-ink-500">Choose both clocks to see the default.</p>}

@@ -1,4 +1,5 @@
 import { Link } from 'react-router';
+import type { ReviewException } from '../../../shared/campaigns';
 import { useMe } from '../../api/account';
 import { useCampaignCertificates } from '../../api/certificates';
 import { Panel } from '../../components/ui';
@@ -6,14 +7,14 @@ import { IssueCertificateButton } from './certificate-actions';
 import { CertificateStateBadge } from './certificate-state';
 
 /** The certificates of one campaign, with the coordinator's Issue action when the campaign is accepted. */
-export function CampaignCertificatesPanel({ campaignId, campaignState }: { campaignId: string; campaignState?: string }) {
+export function CampaignCertificatesPanel({ campaignId, campaignState, exceptions, fourEyes, resultComputed }: { campaignId: string; campaignState?: string; exceptions?: ReviewException[]; fourEyes?: boolean; resultComputed?: boolean }) {
   const me = useMe();
   const list = useCampaignCertificates(campaignId);
   const items = list.data?.items ?? [];
   const hasValid = items.some((c) => c.state === 'valid');
   const canIssue = me.data?.role === 'coordinator' && !hasValid && (campaignState === undefined || campaignState === 'accepted' || campaignState === 'certified');
   return (
-    <Panel title="Certificates" actions={canIssue ? <IssueCertificateButton campaignId={campaignId} /> : undefined}>
+    <Panel title="Certificates" actions={canIssue ? <IssueCertificateButton campaignId={campaignId} exceptions={exceptions} fourEyes={fourEyes} resultComputed={resultComputed} /> : undefined}>
       {items.length === 0 ? (
         <p className="text-sm text-ink-500">{list.isPending ? 'Loading…' : 'No certificate has been issued for this campaign.'}</p>
       ) : (

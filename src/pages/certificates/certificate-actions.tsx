@@ -1,69 +1,81 @@
-import { zodResolver } from '@hookform/resolvers/zod';
 import { useState } from 'react';
-import { useForm } from 'react-hook-form';
 import { useNavigate } from 'react-router';
-import { reissueCertificateSchema, revokeCertificateSchema, type CertificateSummary } from '../../../shared/certificate-registry';
+import type { ReviewException } from '../../../shared/campaigns';
 import { useIssueCertificate, useReissueCertificate, useRevokeCertificate } from '../../api/certificates';
-import { Button, Field, inputClass } from '../../components/ui';
+import { ConfirmDialog } from '../../components/confirm-dialog';
+import { Button } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { notify } from '../../lib/notices';
 
-// Coordinator actions on certificates. The server checks the role and the states again.
+// Coordinator actions on certificates, each behind a confirmation that says what will happen. The server checks
+// the role, the states, the four-eyes rule and the justification again.
 
-export function IssueCertificateButton({ campaignId }: { campaignId: string }) {
+/** `exceptions` undefined: not known here (a list page), so the justification is offered in case the result needs one. */
+export function IssueCertificateButton({ campaignId, exceptions, fourEyes = false, resultComputed = true }: { campaignId: string; exceptions?: ReviewException[]; fourEyes?: boolean; resultComputed?: boolean }) {
   const issue = useIssueCertificate();
   const navigate = useNavigate();
+  const [open, setOpen] = useState(false);
+  const justify = (exceptions?.length ?? 0) > 0;
+  const unknown = exceptions === undefined || !resultComputed;
   return (
-    <span className="inline-flex flex-col gap-1">
-      <Button disabled={issue.isPending} onClick={() => {
-        // mutateAsync: the button unmounts once the list shows the new certificate, and we still navigate.
-        issue.mutateAsync(campaignId).then((r) => {
-          notify({ kind: 'info', text: r.created ? `Certificate ${r.certificate.number} issued and signed.` : `Nothing changed: ${r.certificate.number} is still the valid certificate.` });
-          void navigate(`/certificates/${r.certificate.number}`);
-        }, () => undefined);
-      }}>
-        {issue.isPending ? 'Rendering and signing…' : 'Issue certificate'}
-      </Button>
-      {issue.isError && <span role="alert" className="text-xs text-disagree-600">{describeError(issue.error)}</span>}
-    </span>
-  );
-}
-
-function ReasonForm({ kind, number, onDone }: { kind: 'reissue' | 'revoke'; number: string; onDone: (c: CertificateSummary) => void }) {
-  const reissue = useReissueCertificate();
-  const revoke = useRevokeCertificate();
-  const mutation = kind === 'reissue' ? reissue : revoke;
-  const form = useForm({ resolver: zodResolver(kind === 'reissue' ? reissueCertificateSchema : revokeCertificateSchema), defaultValues: { reason: '' } });
-  return (
-    <form className="space-y-2 rounded-md border border-paper-200 bg-paper-50 p-3"
-      onSubmit={form.handleSubmit((v) => mutation.mutateAsync({ number, reason: v.reason }).then(onDone, () => undefined))}>
-      <Field label={kind === 'reissue' ? 'What was corrected?' : 'Why is the certificate withdrawn?'} error={form.formState.errors.reason?.message}
-        hint={kind === 'reissue' ? 'The next revision is rendered from the campaign’s current result; this one is marked replaced.' : 'The reason is shown to anyone who checks the certificate, and mailed to the participants.'}>
-        <textarea rows={3} className={inputClass} {...form.register('reason')} />
-      </Field>
-      {mutation.isError && <p role="alert" className="text-xs text-disagree-600">{describeError(mutation.error)}</p>}
-      <Button type="submit" variant={kind === 'revoke' ? 'danger' : 'primary'} disabled={mutation.isPending}>
-        {kind === 'reissue' ? (mutation.isPending ? 'Rendering and signing…' : 'Issue the next revision') : 'Withdraw the certificate'}
-      </Button>
-    </form>
+    <>
+      <Button onClick={() => { issue.reset(); setOpen(true); }}>Issue certificate…</Button>
+      {open && (
+        <ConfirmDialog open title="Issue and sign the certificate?" confirmLabel={issue.isPending ? 'Rendering and signing…' : 'Issue and sign'}
+          consequences={[
+            'A certificate number is assigned; the PDF is rendered from the campaign’s current result and signed with the institute’s key.',
+            'The campaign becomes “certified”; both labs and the coordinating institute are mailed.',
+            'Your comment (and justification) is printed on the certificate and kept in the audit trail.',
+            ...(fourEyes ? ['Four-eyes rule: this is refused if you accepted the campaign yourself.'] : []),
+            ...(exceptions ?? []).map((x) => <span key={x.code} className="font-medium text-disagree-800">Exception: {x.text}</span>),
+          ]}
+          fields={[
+            { name: 'comment', label: 'Comment for the certificate', required: true, minLength: 5, rows: 3 },
+            ...(justify ? [{ name: 'justification', label: 'Why certify despite the exceptions above?', required: true, minLength: 10, rows: 3 }] : []),
+            ...(!justify && unknown ? [{ name: 'justification', label: 'Justification, in case the result calls for one', rows: 3,
+              hint: 'Issuing checks the current result. If Eₙ does not agree or the uptime is low, a justification of at least 10 characters is required.' }] : []),
+          ]}
+          pending={issue.isPending} error={issue.isError ? describeError(issue.error) : null} onCancel={() => setOpen(false)}
+          onConfirm={(v) => {
+            // mutateAsync: the button unmounts once the list shows the new certificate, and we still navigate.
+            issue.mutateAsync({ campaignId, comment: v.comment, justification: v.justification || undefined }).then((r) => {
+              setOpen(false);
+              notify({ kind: 'info', text: r.created ? `Certificate ${r.certificate.number} issued and signed.` : `Nothing changed: ${r.certificate.number} is still the valid certificate.` });
+              void navigate(`/certificates/${r.certificate.number}`);
+            }, () => undefined);
+          }} />
+      )}
+    </>
   );
 }
 
 export function CertificateActions({ number }: { number: string }) {
   const [open, setOpen] = useState<'reissue' | 'revoke' | null>(null);
   const navigate = useNavigate();
+  const reissue = useReissueCertificate();
+  const revoke = useRevokeCertificate();
+  const mutation = open === 'revoke' ? revoke : reissue;
+  const show = (kind: 'reissue' | 'revoke') => { reissue.reset(); revoke.reset(); setOpen(kind); };
   return (
-    <div className="space-y-3">
-      <div className="flex gap-2">
-        <Button variant="quiet" onClick={() => setOpen(open === 'reissue' ? null : 'reissue')} aria-expanded={open === 'reissue'}>Reissue…</Button>
-        <Button variant="quiet" onClick={() => setOpen(open === 'revoke' ? null : 'revoke')} aria-expanded={open === 'revoke'}>Withdraw…</Button>
-      </div>
+    <div className="flex gap-2">
+      <Button variant="quiet" onClick={() => show('reissue')}>Reissue…</Button>
+      <Button variant="quiet" onClick={() => show('revoke')}>Withdraw…</Button>
       {open && (
-        <ReasonForm key={open} kind={open} number={number} onDone={(c) => {
-          setOpen(null);
-          notify({ kind: 'info', text: open === 'reissue' ? `Revision ${c.number} issued; ${number} is marked replaced.` : `${number} withdrawn; participants are notified.` });
-          if (c.number !== number) void navigate(`/certificates/${c.number}`);
-        }} />
+        <ConfirmDialog key={open} open variant={open === 'revoke' ? 'danger' : 'primary'}
+          title={open === 'reissue' ? `Issue the next revision of ${number}?` : `Withdraw ${number}?`}
+          confirmLabel={open === 'reissue' ? (reissue.isPending ? 'Rendering and signing…' : 'Issue the next revision') : 'Withdraw the certificate'}
+          consequences={open === 'reissue'
+            ? ['The next revision is rendered from the campaign’s current result and signed.', `${number} is marked replaced; verifying it names the new revision.`, 'The participants are mailed what was corrected.']
+            : [`${number} is marked withdrawn; anyone who verifies the file is told so, with your reason.`, 'This cannot be undone; a new certificate needs a new issue.', 'The participants are mailed the reason.']}
+          fields={[open === 'reissue'
+            ? { name: 'reason', label: 'What was corrected?', required: true, minLength: 3, rows: 3 }
+            : { name: 'reason', label: 'Why is the certificate withdrawn?', required: true, minLength: 3, rows: 3 }]}
+          pending={mutation.isPending} error={mutation.isError ? describeError(mutation.error) : null} onCancel={() => setOpen(null)}
+          onConfirm={(v) => mutation.mutateAsync({ number, reason: v.reason }).then((c) => {
+            setOpen(null);
+            notify({ kind: 'info', text: open === 'reissue' ? `Revision ${c.number} issued; ${number} is marked replaced.` : `${number} withdrawn; participants are notified.` });
+            if (c.number !== number) void navigate(`/certificates/${c.number}`);
+          }, () => undefined)} />
       )}
     </div>
   );

@@ -6,6 +6,7 @@ import { Button, Caution, EmptyState, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { fixed } from '../../lib/format';
 import { CertificateActions } from './certificate-actions';
+import { SnapshotTable } from './snapshot-table';
 import { CertificateStateBadge, formatExpanded } from './certificate-state';
 
 const groupHex = (hex: string) => hex.replace(/(.{8})(?=.)/g, '$1 ');
@@ -15,6 +16,7 @@ export function CertificatePage() {
   const me = useMe();
   const cert = useCertificate(number);
   const [showSnapshot, setShowSnapshot] = useState(false);
+  const [raw, setRaw] = useState(false);
   const snapshot = useCertificateSnapshot(number, showSnapshot);
   if (cert.isPending) return <p className="text-ink-500">Loading…</p>;
   if (cert.isError) return <EmptyState title={`Certificate ${number} cannot be shown`}>{describeError(cert.error)}</EmptyState>;
@@ -51,9 +53,9 @@ export function CertificatePage() {
           <dl className="grid grid-cols-[minmax(0,15rem)_1fr] gap-x-4 gap-y-1.5 text-sm">
             <dt className="text-ink-500">Geopotential difference ΔC</dt><dd>{formatExpanded(c.deltaC_m2s2, 'm²/s²')}</dd>
             <dt className="text-ink-500">Normal-height difference ΔH</dt><dd>{formatExpanded(c.deltaH_m, 'm')}</dd>
-            <dt className="text-ink-500">E<sub>n</sub> against the sites’ registered normal heights (geodesy)</dt><dd>{fixed(c.En, 2)} {c.agreed ? '(|Eₙ| ≤ 1: agrees)' : '(|Eₙ| > 1: does not agree)'}</dd>
+            <dt className="text-ink-500">Eₙ against the sites’ registered normal heights (geodesy)</dt><dd>{fixed(c.En, 2)} {c.agreed ? '(|Eₙ| ≤ 1: agrees)' : '(|Eₙ| > 1: does not agree)'}</dd>
             <dt className="text-ink-500">Measurement period</dt><dd>{c.measurementPeriod.start.slice(0, 10)} to {c.measurementPeriod.end.slice(0, 10)}</dd>
-            <dt className="text-ink-500">Institutes</dt><dd>{[c.instituteA?.name, c.instituteB?.name].filter(Boolean).join(' and ')}</dd>
+            <dt className="text-ink-500">{c.instituteA && c.instituteB && c.instituteA.id !== c.instituteB.id ? 'Institutes' : 'Institute'}</dt><dd>{[...new Set([c.instituteA?.name, c.instituteB?.name].filter(Boolean))].join(' and ')}</dd>
           </dl>
         </Panel>
         <Panel title="File and trail">
@@ -85,8 +87,16 @@ export function CertificatePage() {
       <Panel title="Snapshot" actions={<Button variant="quiet" onClick={() => setShowSnapshot((s) => !s)} aria-expanded={showSnapshot}>{showSnapshot ? 'Hide' : 'Show'}</Button>}>
         <p className="text-sm text-ink-600">The frozen data the PDF was rendered from: every number with its uncertainty and unit, the budget, constants, software version and input-file hashes.</p>
         {showSnapshot && (
+          <div className="mt-3 flex gap-1 text-xs" role="group" aria-label="Snapshot view">
+            <Button variant={raw ? 'quiet' : 'primary'} onClick={() => setRaw(false)} aria-pressed={!raw}>Table</Button>
+            <Button variant={raw ? 'primary' : 'quiet'} onClick={() => setRaw(true)} aria-pressed={raw}>Raw JSON</Button>
+          </div>
+        )}
+        {showSnapshot && !snapshot.data && <p className="mt-3 text-sm text-ink-500">Loading…</p>}
+        {showSnapshot && snapshot.data && !raw && <SnapshotTable snapshot={snapshot.data} />}
+        {showSnapshot && snapshot.data && raw && (
           <pre className="mt-3 max-h-[28rem] overflow-auto rounded-md bg-ink-900 p-3 text-xs text-ink-50" data-testid="snapshot-json">
-            {snapshot.data ? JSON.stringify({ ...snapshot.data, timeSeries: `[${snapshot.data.timeSeries.length} points]` }, null, 2) : 'Loading…'}
+            {JSON.stringify({ ...snapshot.data, timeSeries: `[${snapshot.data.timeSeries.length} points]` }, null, 2)}
           </pre>
         )}
       </Panel>

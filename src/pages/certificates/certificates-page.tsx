@@ -86,8 +86,8 @@ export function CertificatesPage() {
               {institutes.data?.filter((i) => i.kind === 'laboratory').map((i) => <option key={i.id} value={i.id}>{i.code} · {i.name}</option>)}
             </select>
           </Field>
-          <Field label="Issued from"><input type="date" className={inputClass} value={issuedFrom} onChange={(e) => reset(setIssuedFrom)(e.target.value)} /></Field>
-          <Field label="Issued to"><input type="date" className={inputClass} value={issuedTo} onChange={(e) => reset(setIssuedTo)(e.target.value)} /></Field>
+          <Field label="Issued from (YYYY-MM-DD)"><IsoDateInput value={issuedFrom} onChange={reset(setIssuedFrom)} /></Field>
+          <Field label="Issued to (YYYY-MM-DD)"><IsoDateInput value={issuedTo} onChange={reset(setIssuedTo)} /></Field>
         </div>
         <DataTable columns={columns as never} rows={list.data?.items ?? []} total={list.data?.total ?? 0} state={table} onState={setTable}
           loading={list.isFetching} filterLabel="Filter by number, campaign or SHA-256" />
@@ -95,5 +95,19 @@ export function CertificatesPage() {
       <p className="text-sm text-ink-600">Someone sent you a certificate file? <Link to="/verify">Check it on the public verification page</Link>.</p>
       <Caution />
     </>
+  );
+}
+
+/** A date typed as ISO 8601 (YYYY-MM-DD), whatever the browser's locale; applied once complete and valid, or empty. */
+function IsoDateInput({ value, onChange }: { value: string; onChange: (v: string) => void }) {
+  const [text, setText] = useState(value);
+  const valid = text === '' || (/^\d{4}-\d{2}-\d{2}$/.test(text) && !Number.isNaN(Date.parse(`${text}T00:00:00Z`)));
+  return (
+    <input className={inputClass} value={text} placeholder="YYYY-MM-DD" inputMode="numeric" aria-invalid={!valid}
+      onChange={(e) => {
+        const v = e.target.value.trim();
+        setText(v);
+        if (v === '' || (/^\d{4}-\d{2}-\d{2}$/.test(v) && !Number.isNaN(Date.parse(`${v}T00:00:00Z`)))) onChange(v);
+      }} />
   );
 }

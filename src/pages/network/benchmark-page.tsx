@@ -33,7 +33,7 @@ export function BenchmarkPage() {
           <dt className="text-ink-500">Known height</dt>
           <dd data-testid="known-height">{b.knownC_m2s2 === null ? 'not known' : (
             <>C = {fmt(b.knownC_m2s2, 4)} ± {fmt(b.knownUncertaintyC_m2s2, 4)} m²/s² · H = {fmt(b.knownNormalHeightM, 4)} ± {fmt(b.knownUncertaintyM, 4)} m
-              <span className="block text-xs text-ink-500">entered as {b.knownEnteredAs}; ± is the standard uncertainty (k = 1)</span></>
+              <span className="block text-xs text-ink-500">entered as {b.knownEnteredAs}; {b.knownTideSystem ?? 'tide system not stated'}; ± is the standard uncertainty (k = 1)</span></>
           )}</dd>
           <dt className="text-ink-500">Adjusted height</dt>
           <dd data-testid="adjusted-height">{!latest ? 'no finished adjustment run yet' : !run.data ? 'loading…' : !adjusted ? 'not in the latest adjustment run (no section reaches it)' : (
@@ -52,6 +52,7 @@ export function BenchmarkPage() {
           <BenchmarkForm id={b.id} initial={{
             code: b.code, name: b.name, datumId: b.datumId, crs: b.crs, coordinates: b.coordinates.map(typed).join(', '),
             knownKind: b.knownEnteredAs ?? '', knownValue: b.knownEnteredAs === 'C' ? String(b.knownC_m2s2) : b.knownEnteredAs === 'H' ? String(b.knownNormalHeightM) : '',
+            knownTideSystem: b.knownTideSystem ?? '',
             knownUncertainty: b.knownEnteredAs === 'C' && b.knownUncertaintyC_m2s2 !== null ? typed(b.knownUncertaintyC_m2s2) : b.knownEnteredAs === 'H' && b.knownUncertaintyM !== null ? typed(b.knownUncertaintyM) : '',
             fixed: b.fixed, monumentation: b.monumentation ?? '', state: b.state,
           }} />

@@ -2,7 +2,7 @@ import { useState } from 'react';
 import { Link } from 'react-router';
 import { useDatums, useNetworkMap } from '../../api/network';
 import { NetworkMapLegend, NetworkMapSvg, type MapSelection } from '../../components/plots/network-map';
-import { inputClass, Panel } from '../../components/ui';
+import { Caution, inputClass, Panel } from '../../components/ui';
 import { fmt } from './format';
 import { NetworkNav } from './network-nav';
 
@@ -26,13 +26,17 @@ export function MapPage() {
           </label>
         }>
           {d ? <NetworkMapSvg data={d} selected={selected} onSelect={setSelected} focusDatum={focus || undefined} /> : <p>Loading…</p>}
-          <p className="mt-1 text-xs text-ink-500">Coastline: Natural Earth 1:50m (public domain) via world-atlas. Section colours come from the latest finished adjustment run. Labels that would overlap are left out: hover or focus a symbol for its full name, or choose one datum to show. Graticule in degrees; the scale bar holds near the map's centre (Mercator).</p>
+          <p className="mt-1 text-xs text-ink-500">Zoom with the wheel, the buttons or + and −; drag or use the arrow keys to pan; 0 fits the network again. Coastline: Natural Earth 1:50m, 1:10m once zoomed in (public domain, via world-atlas). Fibre links are drawn along the geodesic between their sites; the fibre itself runs elsewhere. Section colours come from the latest finished adjustment run. Labels that would overlap are left out and come back as you zoom in: hover or focus a symbol for its full name. Graticule in degrees; the scale bar holds near the map's centre (Mercator).</p>
         </Panel>
         <div className="space-y-4">
           <Panel title="Selected">{d && <SelectionDetail data={d} selected={selected} />}</Panel>
           <Panel title="Legend"><NetworkMapLegend /></Panel>
         </div>
       </div>
+      <Caution>
+        Agreement colours use Eₙ with expanded uncertainties (coverage factor k = 2) and the latest finished adjustment; positions are as registered, not surveyed here.
+        Verify against your national datum authority and your lab’s quality procedures before any use for heights.
+      </Caution>
     </>
   );
 }
@@ -82,7 +86,7 @@ function SelectionDetail({ data, selected }: { data: NonNullable<ReturnType<type
       {l.comparisons.length === 0 && <p>No compared campaign yet.</p>}
       <ul>
         {l.comparisons.map((c) => (
-          <li key={c.campaignLabel}>{c.campaignLabel}: {c.verdict === 'not-comparable' ? 'not comparable — datums not connected by levelling' : c.en === null ? 'no E_n' : `E_n = ${fmt(c.en, 2)}`}</li>
+          <li key={c.campaignLabel}>{c.campaignLabel}: {c.verdict === 'not-comparable' ? 'not comparable — datums not connected by levelling' : c.en === null ? 'no Eₙ' : `Eₙ = ${fmt(c.en, 2)}`}</li>
         ))}
       </ul>
       <Link to="/network/reconciliation">Open the reconciliation →</Link>

@@ -88,13 +88,13 @@ function DatumForm() {
   );
 }
 
-export type BenchmarkFormValues = { code: string; name: string; datumId: string; crs: string; coordinates: string; knownKind: '' | 'C' | 'H'; knownValue: string; knownUncertainty: string; fixed: boolean; monumentation: string; state: 'in-use' | 'destroyed' };
+export type BenchmarkFormValues = { code: string; name: string; datumId: string; crs: string; coordinates: string; knownKind: '' | 'C' | 'H'; knownValue: string; knownUncertainty: string; knownTideSystem?: '' | (typeof tideSystems)[number]; fixed: boolean; monumentation: string; state: 'in-use' | 'destroyed' };
 
 /** Coordinates are typed as one comma-separated line; the shared schema then checks the whole benchmark. */
 function candidate(f: BenchmarkFormValues) {
   return {
     code: f.code, name: f.name, datumId: f.datumId, crs: f.crs, coordinates: f.coordinates.split(/[,\s]+/).filter(Boolean).map(Number),
-    known: f.knownKind ? { kind: f.knownKind, value: Number(f.knownValue), uncertainty: Number(f.knownUncertainty || 0) } : null,
+    known: f.knownKind ? { kind: f.knownKind, value: Number(f.knownValue), uncertainty: Number(f.knownUncertainty || 0), tideSystem: f.knownTideSystem ? f.knownTideSystem : null } : null,
     fixed: f.fixed, monumentation: f.monumentation || null, state: f.state,
   };
 }
@@ -137,6 +137,11 @@ export function BenchmarkForm({ initial, id }: { initial?: Partial<BenchmarkForm
         </Field>
         <Field label="Known value"><input className={inputClass} {...register('knownValue')} /></Field>
         <Field label="Standard uncertainty (same unit)"><input className={inputClass} {...register('knownUncertainty')} /></Field>
+        <Field label="Tide system of the known value">
+          <select className={inputClass} {...register('knownTideSystem')} data-testid="known-tide-system">
+            <option value="">not stated (a run will ask for it)</option>{tideSystems.map((t) => <option key={t}>{t}</option>)}
+          </select>
+        </Field>
         <Field label="Monumentation"><input className={inputClass} {...register('monumentation')} /></Field>
         <label className="flex items-center gap-2 text-sm"><input type="checkbox" {...register('fixed')} /> fixed (datum point)</label>
         <Field label="State"><select className={inputClass} {...register('state')}><option value="in-use">in use</option><option value="destroyed">destroyed</option></select></Field>

@@ -5,6 +5,7 @@ import { ResidualPlot } from '../../components/plots/residual-plot';
 import { Caution, Panel } from '../../components/ui';
 import { fmt, when } from './format';
 import { NetworkNav } from './network-nav';
+import { plural } from '../../lib/format';
 
 export function RunPage() {
   const { id = '' } = useParams();
@@ -28,7 +29,7 @@ export function RunPage() {
         </div>
         {r.error && <p role="alert" className="mt-2 text-sm text-disagree-800">{r.error.message}</p>}
         <p className="mt-2 text-xs text-ink-500">
-          Inputs: {r.inputSummary.benchmarks} benchmarks, {r.inputSummary.sections} sections, {r.inputSummary.ties} local ties, {r.inputSummary.clocks} clock comparisons ·
+          Inputs: {plural(r.inputSummary.benchmarks, 'benchmark')}, {plural(r.inputSummary.sections, 'section')}, {plural(r.inputSummary.ties, 'local tie')}, {plural(r.inputSummary.clocks, 'clock comparison')} ·
           σ = {r.options.sigmaMmPerSqrtKm} mm/√km · datum: {r.options.constraint === 'fixed' ? 'fixed benchmarks' : 'minimum constraint'} · input SHA-256 {r.inputSummary.inputSha256.slice(0, 12)}…
         </p>
       </Panel>
@@ -41,7 +42,7 @@ export function RunPage() {
                 σ̂0 = {fmt(res.sigma0, 3)} (expected about 1): the test statistic {fmt(res.globalTest.statistic, 2)} lies outside [{fmt(res.globalTest.lower, 2)}, {fmt(res.globalTest.critical, 2)}] (χ², α = {res.globalTest.alpha}).
                 The observations do not fit their stated uncertainties.{' '}
                 {res.snooping.suspects.length > 0
-                  ? <>Examine the suspected observations listed under Statistics ({res.snooping.suspects.map((x) => x.label).slice(0, 3).join('; ')}{res.snooping.suspects.length > 3 ? '; …' : ''}), correct or remove one at a time and run again.</>
+                  ? <>Data snooping already removed {res.snooping.suspects.length} observation(s) (listed under Statistics) and the rest still does not fit: check the a-priori σ per km and the fixed benchmarks.</>
                   : 'No single observation stands out: check the a-priori σ per km and the fixed benchmarks, then run again.'}
               </p>
             </div>
@@ -54,18 +55,62 @@ export function RunPage() {
               <dt className="text-ink-500">vᵀPv</dt><dd>{fmt(res.vtpv, 2)}</dd>
               <dt className="text-ink-500">Global χ² test (α = {res.globalTest?.alpha ?? 0.05})</dt>
               <dd data-testid="global-test">{res.globalTest ? `${res.globalTest.passed ? '✓ passed' : '✕ rejected'}: ${fmt(res.globalTest.statistic, 2)} in [${fmt(res.globalTest.lower, 2)}, ${fmt(res.globalTest.critical, 2)}]` : 'no redundancy'}</dd>
-              <dt className="text-ink-500">Data snooping</dt><dd>critical |w| = {fmt(res.snooping.criticalValue, 2)} (α0 = {res.snooping.alpha0}, Baarda)</dd>
+              <dt className="text-ink-500">Data snooping</dt><dd>critical |w| = {fmt(res.snooping.criticalValue, 2)} (α0 = {res.snooping.alpha0}, Baarda 1968, iterative)</dd>
+              {res.snooping.initial && (<>
+                <dt className="text-ink-500">Before any removal</dt>
+                <dd>σ̂0 = {fmt(res.snooping.initial.sigma0, 3)}, dof {res.snooping.initial.degreesOfFreedom}, global test {res.snooping.initial.globalTestPassed === null ? '—' : res.snooping.initial.globalTestPassed ? 'passed' : 'rejected'}</dd>
+              </>)}
+              <dt className="text-ink-500">σ used</dt>
+              <dd data-testid="sigma-policy">{res.sigmaScale ? (res.sigmaScale.applied ? `scaled by σ̂0 = ${fmt(res.sigmaScale.factor, 3)} (global test rejected)` : 'a-priori scale (σ0 = 1), not scaled by σ̂0') : 'a-priori scale (σ0 = 1)'}</dd>
             </dl>
-            {res.snooping.suspects.length > 0 && (
+            {res.sigmaScale && <p className="mt-1 text-xs text-ink-500">Rule: {res.sigmaScale.rule}</p>}
+            {res.snooping.suspects.length > 0 ? (
               <div className="mt-3 rounded-md border border-disagree-600 bg-disagree-100 px-3 py-2 text-sm" data-testid="suspects">
-                <p className="font-semibold text-disagree-800">✕ Suspected observations (largest |w| first; remove one at a time and re-run):</p>
-                <ul className="list-disc pl-5">{res.snooping.suspects.map((s) => <li key={s.id}>{s.label}: w = {fmt(s.standardizedResidual, 2)}</li>)}</ul>
+                <p className="font-semibold text-disagree-800">✕ Removed by data snooping, in order (largest |w| above the critical value, then adjusted again):</p>
+                <ol className="list-decimal pl-5" data-testid="removal-order">{res.snooping.suspects.map((s) => <li key={s.id}>{s.label}: w = {fmt(s.standardizedResidual, 2)} at removal</li>)}</ol>
+                <p className="mt-1 text-xs">The results on this page are the final adjustment without them{res.snooping.stoppedEarly ? '; the iteration stopped early (limit or no redundancy left)' : ''}. Check each removed observation in the field records before relying on its removal.</p>
               </div>
-            )}
+            ) : <p className="mt-2 text-sm" data-testid="removal-order">No observation exceeded the critical value: nothing removed.</p>}
             {res.datumOffsets.length > 0 && (
-              <p className="mt-2 text-sm">Datum offsets (clock ΔC − levelled ΔC; ± standard deviation, k = 1): {res.datumOffsets.map((d) => `${d.name}: ${fmt(d.value_m2s2, 3)} ± ${fmt(d.sigma_m2s2, 3)} m²/s² (${fmt(d.valueMm, 0)} ± ${fmt(d.sigmaMm, 0)} mm)`).join('; ')}</p>
+              <p className="mt-2 text-sm" data-testid="datum-offsets">Datum offsets, one per datum against the reference datum {res.referenceDatum ?? ''} (C in that datum − C in the reference; ± standard deviation, k = 1): {res.datumOffsets.map((d) => `${d.name}: ${fmt(d.value_m2s2, 3)} ± ${fmt(d.sigma_m2s2, 3)} m²/s² (${fmt(d.valueMm, 0)} ± ${fmt(d.sigmaMm, 0)} mm)`).join('; ')}</p>
             )}
           </Panel>
+          {(res.sharedParameters?.length ?? 0) > 0 && (
+            <Panel title="Shared systematic parameters">
+              <p className="mb-2 text-xs text-ink-500">
+                Terms that several clock campaigns share (a clock’s budget version, a fibre link, a reference ratio) are parameters with prior 0 ± their standard uncertainty;
+                each campaign keeps only its own part. Repeated campaigns therefore do not average these terms away. Estimates in m²/s², k = 1.
+              </p>
+              <table className="min-w-full text-sm" data-testid="shared-parameters">
+                <thead className="text-left text-ink-600"><tr><th>Parameter</th><th>Campaigns</th><th>Prior σ</th><th>Estimate</th><th>σ after adjustment</th></tr></thead>
+                <tbody>{res.sharedParameters!.map((p) => (
+                  <tr key={p.name} className="border-t border-paper-200"><td>{p.label}</td><td>{p.observations}</td><td>{fmt(p.priorSigma_m2s2, 4)}</td><td>{fmt(p.value_m2s2, 4)}</td><td>{fmt(p.sigma_m2s2, 4)}</td></tr>
+                ))}</tbody>
+              </table>
+            </Panel>
+          )}
+          {((res.tideConversions?.length ?? 0) > 0 || (res.excluded?.length ?? 0) > 0) && (
+            <Panel title="Tide systems">
+              <ul className="text-sm" data-testid="tide-conversions">
+                {res.tideConversions!.map((c) => <li key={c.label}>{c.label}: {c.from} → {c.to}, {c.shift_m2s2 >= 0 ? '+' : '−'}{fmt(Math.abs(c.shift_m2s2), 4)} m²/s² (Ekman 1989; Mäkinen &amp; Ihde 2009)</li>)}
+              </ul>
+              {res.excluded?.map((x) => <p key={x.label} className="text-sm text-disagree-800">Left out: {x.label} — {x.reason}</p>)}
+            </Panel>
+          )}
+          {(res.differences?.length ?? 0) > 0 && (
+            <Panel title="Adjusted differences between linked sites">
+              <table className="min-w-full text-sm" data-testid="run-differences">
+                <thead className="text-left text-ink-600"><tr><th>From → to</th><th>ΔC (m²/s²)</th><th>σ with covariance (k = 1)</th><th>√(σ_A² + σ_B²), covariance neglected</th></tr></thead>
+                <tbody>{res.differences!.map((d) => (
+                  <tr key={`${d.from}-${d.to}`} className="border-t border-paper-200">
+                    <td>{res.points.find((p) => p.code === d.from)?.label ?? d.from} → {res.points.find((p) => p.code === d.to)?.label ?? d.to}</td>
+                    <td>{fmt(d.deltaC_m2s2, 4)}</td><td>{fmt(d.sigma_m2s2, 4)}</td><td>{fmt(d.sigmaIgnoringCovariance_m2s2, 4)}</td>
+                  </tr>
+                ))}</tbody>
+              </table>
+              <p className="mt-1 text-xs text-ink-500">σ² = q_AA + q_BB − 2q_AB from the adjustment’s cofactor matrix.</p>
+            </Panel>
+          )}
           <Panel title="Standardised residuals">
             <ResidualPlot title="Standardised residuals of the observations" axisLabel="standardised residual w (dashed: critical value)" critical={res.snooping.criticalValue}
               items={obs.slice(0, showAll ? obs.length : 25).map((o) => ({ id: o.id, label: o.label, value: o.standardizedResidual, onClick: o.kind === 'levelling' ? () => navigate('/network/sections') : undefined }))} />
@@ -94,7 +139,7 @@ export function RunPage() {
                 <tbody>
                   {obs.map((o) => (
                     <tr key={o.id} className={`border-t border-paper-200 ${o.suspected ? 'bg-disagree-100' : ''}`}>
-                      <td>{o.suspected ? '✕ ' : ''}{o.label}</td><td>{o.kind}</td><td>{fmt(o.deltaC_m2s2, 4)}</td><td>{fmt(o.sigma_m2s2, 4)}</td>
+                      <td>{o.suspected ? `✕ removed (step ${o.removedAtStep ?? '?'}) ` : ''}{o.label}</td><td>{o.kind}</td><td>{fmt(o.deltaC_m2s2, 4)}</td><td>{fmt(o.sigma_m2s2, 4)}</td>
                       <td>{fmt(o.residual_m2s2, 4)}</td><td>{fmt(o.redundancy, 3)}</td><td className={o.suspected ? 'font-semibold text-disagree-800' : ''}>{fmt(o.standardizedResidual, 2)}</td>
                     </tr>
                   ))}

@@ -7,6 +7,7 @@ import { Button, Field, inputClass, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { fmt, when } from './format';
 import { NetworkNav } from './network-nav';
+import { plural } from '../../lib/format';
 
 export function RunsPage() {
   const me = useMe();
@@ -25,7 +26,7 @@ export function RunsPage() {
               <tr key={r.id} className="border-t border-paper-200">
                 <td className="py-1"><Link to={`/network/runs/${r.id}`}>{when(r.createdAt)}</Link></td>
                 <td>{r.state === 'running' || r.state === 'queued' ? `${r.state} ${Math.round(r.progress * 100)} %` : r.state === 'failed' ? <span className="text-disagree-600">✕ failed</span> : '✓ done'}</td>
-                <td>{r.inputSummary.sections} sections · {r.inputSummary.ties} ties · {r.inputSummary.clocks} clocks</td>
+                <td>{plural(r.inputSummary.sections, 'section')} · {plural(r.inputSummary.ties, 'tie')} · {plural(r.inputSummary.clocks, 'clock')}</td>
                 <td>σ = {r.options.sigmaMmPerSqrtKm} mm/√km · {r.options.includeClocks ? 'with clocks' : 'levelling only'} · {r.options.constraint}</td>
                 <td>{fmt(r.sigma0, 3)}</td>
                 <td>{r.globalTestPassed === null ? '—' : r.globalTestPassed ? '✓ passed' : '✕ rejected'}</td>

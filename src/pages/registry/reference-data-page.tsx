@@ -45,7 +45,7 @@ export function ReferenceDataPage() {
       <MeasuredRatiosPanel coordinator={coordinator} />
       <Panel title="Quasigeoid grids">
         <table className="min-w-full text-sm">
-          <thead className="text-left text-ink-500 [&_th]:pr-4"><tr><th className="py-1">Name</th><th>Latitude (°)</th><th>Longitude (°)</th><th>Spacing (°)</th><th>Nodes</th><th>u(ζ), k = 1 (m)</th><th>SHA-256</th><th>Uploaded</th></tr></thead>
+          <thead className="text-left text-ink-500 [&_th]:pr-4"><tr><th className="py-1">Name</th><th>Latitude (°)</th><th>Longitude (°)</th><th>Spacing (°)</th><th>Nodes</th><th>u(ζ), k = 1 (m)</th><th>Tide system</th><th>Correlation length</th><th>SHA-256</th><th>Uploaded</th></tr></thead>
           <tbody>
             {grids.data?.map((g) => (
               <tr key={g.id} className="border-t border-paper-200 [&_td]:pr-4">
@@ -55,6 +55,8 @@ export function ReferenceDataPage() {
                 <td>{fixed(g.latitudeStepDeg, 4)} × {fixed(g.longitudeStepDeg, 4)}</td>
                 <td>{g.nodeCount}</td>
                 <td>{g.uncertaintyM}</td>
+                <td>{g.tideSystem ?? 'not stated'}</td>
+                <td>{g.correlationLengthKm ? `${g.correlationLengthKm} km` : '100 km (default)'}</td>
                 <td className="font-mono text-xs">{g.sha256.slice(0, 12)}…</td>
                 <td>{g.uploadedBy}, {g.createdAt.slice(0, 10)}</td>
               </tr>
@@ -91,15 +93,27 @@ function GridUpload() {
   const upload = useUploadGrid();
   const [name, setName] = useState('');
   const [uncertainty, setUncertainty] = useState('0.03');
+  const [tideSystem, setTideSystem] = useState('');
+  const [corrKm, setCorrKm] = useState('');
   const [file, setFile] = useState<File | null>(null);
   return (
     <form className="mt-4 flex flex-wrap items-end gap-3 border-t border-paper-200 pt-4" onSubmit={async (e) => {
       e.preventDefault();
       if (!file) return;
-      upload.mutate({ name, uncertaintyM: Number(uncertainty), fileName: file.name, content: await file.text() });
+      upload.mutate({
+        name, uncertaintyM: Number(uncertainty), fileName: file.name, content: await file.text(),
+        tideSystem: tideSystem === 'mean-tide' || tideSystem === 'zero-tide' || tideSystem === 'tide-free' ? tideSystem : null,
+        correlationLengthKm: corrKm ? Number(corrKm) : null,
+      });
     }}>
       <div className="w-64"><Field label="Grid name"><input className={inputClass} value={name} onChange={(e) => setName(e.target.value)} /></Field></div>
       <div className="w-32"><Field label="u(ζ), k = 1 (m)"><input className={inputClass} value={uncertainty} onChange={(e) => setUncertainty(e.target.value)} /></Field></div>
+      <div className="w-40"><Field label="Tide system of ζ">
+        <select className={inputClass} value={tideSystem} onChange={(e) => setTideSystem(e.target.value)}>
+          <option value="">not stated</option><option>mean-tide</option><option>zero-tide</option><option>tide-free</option>
+        </select>
+      </Field></div>
+      <div className="w-40"><Field label="Error correlation length (km)"><input className={inputClass} placeholder="100 (default)" value={corrKm} onChange={(e) => setCorrKm(e.target.value)} /></Field></div>
       <input aria-label="Grid file" type="file" accept=".txt,text/plain" onChange={(e) => setFile(e.target.files?.[0] ?? null)} />
       <Button type="submit" disabled={!file || !name || upload.isPending}>Upload grid</Button>
       <p className="w-full text-xs text-ink-500">Plain text: <code># comment</code> lines, then one row per node <code>latitude longitude height</code> (degrees, degrees, metres) on a complete regular grid. See docs/formats/quasigeoid-grid.md.</p>

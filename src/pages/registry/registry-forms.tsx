@@ -4,6 +4,7 @@ import { useForm, type FieldErrors, type Resolver, type UseFormRegister, type Us
 import { z } from 'zod';
 import type { Me } from '../../../shared/auth';
 import {
+  registryTideSystems,
   clockKindLabels, clockKinds, speciesCodes, speciesLabels, updateClockSchema, updateLinkSchema, updateSiteSchema,
   type Clock, type Link as FibreLink, type Site, type UpdateSite,
 } from '../../../shared/registry';
@@ -30,7 +31,8 @@ export function canChangeLink(me: Me | null | undefined, link: FibreLink): boole
 
 export type SiteForm = {
   name: string; instituteId?: string; referencePoint: string; crs: string; coordinates: (number | undefined)[]; ellipsoidalHeightUncertaintyM: number;
-  quasigeoid: { source: 'entered' | 'grid'; heightM?: number; uncertaintyM?: number; gridId?: string };
+  ellipsoidalCrustSystem?: '' | (typeof registryTideSystems)[number] | null;
+  quasigeoid: { source: 'entered' | 'grid'; heightM?: number; uncertaintyM?: number; gridId?: string; tideSystem?: '' | (typeof registryTideSystems)[number] | null };
   benchmarkTie: { benchmarkCode?: string; heightDifferenceM?: number; uncertaintyM?: number } | null;
 };
 
@@ -40,11 +42,13 @@ export function siteFormSchema<S extends z.ZodType>(schema: S) {
     const v = raw as Record<string, unknown> & { coordinates: unknown[]; benchmarkTie: { benchmarkCode?: string } | null; quasigeoid: Record<string, unknown> };
     const coordinates = (v.coordinates ?? []).filter((c) => c !== undefined && c !== '' && !(typeof c === 'number' && Number.isNaN(c)));
     const benchmarkTie = v.benchmarkTie && v.benchmarkTie.benchmarkCode ? v.benchmarkTie : null;
-    const quasigeoid = v.quasigeoid?.source === 'grid' ? { source: 'grid', gridId: v.quasigeoid.gridId } : { source: 'entered', heightM: v.quasigeoid?.heightM, uncertaintyM: v.quasigeoid?.uncertaintyM };
-    return { ...v, coordinates, benchmarkTie, quasigeoid, instituteId: v.instituteId || undefined };
+    const quasigeoid = v.quasigeoid?.source === 'grid'
+      ? { source: 'grid', gridId: v.quasigeoid.gridId }
+      : { source: 'entered', heightM: v.quasigeoid?.heightM, uncertaintyM: v.quasigeoid?.uncertaintyM, tideSystem: v.quasigeoid?.tideSystem || null };
+    return { ...v, coordinates, benchmarkTie, quasigeoid, instituteId: v.instituteId || undefined, ellipsoidalCrustSystem: v.ellipsoidalCrustSystem || null };
   }, schema);
 }
-export const siteFieldNames = ['name', 'instituteId', 'referencePoint', 'crs', 'coordinates', 'ellipsoidalHeightUncertaintyM', 'quasigeoid', 'benchmarkTie'] as const;
+export const siteFieldNames = ['name', 'instituteId', 'referencePoint', 'crs', 'coordinates', 'ellipsoidalHeightUncertaintyM', 'ellipsoidalCrustSystem', 'quasigeoid', 'benchmarkTie'] as const;
 
 const axisLabels: Record<string, [string, string, string]> = {
   projected: ['Easting E (m)', 'Northing N (m)', 'Ellipsoidal height h (m)'],
@@ -83,6 +87,13 @@ export function SiteFields({ register, watch, errors, instituteField }: {
           </Field>
         ))}
         <Field label="u(h), standard uncertainty (m)" error={e.ellipsoidalHeightUncertaintyM?.message}><input className={inputClass} {...register('ellipsoidalHeightUncertaintyM', num)} /></Field>
+        <Field label="Crust (tide) system of h">
+          <select className={selectClass} {...register('ellipsoidalCrustSystem')} data-testid="crust-system">
+            <option value="">not stated (no comparison until stated)</option>
+            <option value="tide-free">tide-free (GNSS / ITRF convention)</option>
+            <option value="mean-tide">mean-tide (= zero-tide crust)</option>
+          </select>
+        </Field>
       </fieldset>
       <fieldset className="grid gap-3 md:grid-cols-4">
         <legend className="mb-1 text-sm font-semibold text-ink-700">Quasigeoid height ζ</legend>
@@ -96,13 +107,18 @@ export function SiteFields({ register, watch, errors, instituteField }: {
           <Field label="Grid" error={e.quasigeoid?.gridId?.message ?? e.quasigeoid?.message}>
             <select className={selectClass} {...register('quasigeoid.gridId')}>
               <option value="">choose…</option>
-              {grids.data?.map((g) => <option key={g.id} value={g.id}>{g.name} (u {g.uncertaintyM} m, k = 1)</option>)}
+              {grids.data?.map((g) => <option key={g.id} value={g.id}>{g.name} (u {g.uncertaintyM} m, k = 1; {g.tideSystem ?? 'tide system not stated'})</option>)}
             </select>
           </Field>
         ) : (
           <>
             <Field label="ζ (m)" error={e.quasigeoid?.heightM?.message}><input className={inputClass} {...register('quasigeoid.heightM', num)} /></Field>
             <Field label="u(ζ) (m)" error={e.quasigeoid?.uncertaintyM?.message}><input className={inputClass} {...register('quasigeoid.uncertaintyM', num)} /></Field>
+            <Field label="Tide system of ζ">
+              <select className={selectClass} {...register('quasigeoid.tideSystem')} data-testid="zeta-tide-system">
+                <option value="">not stated</option>{registryTideSystems.map((t) => <option key={t}>{t}</option>)}
+              </select>
+            </Field>
           </>
         )}
       </fieldset>
@@ -123,9 +139,10 @@ function siteToForm(s: Site): SiteForm {
     crs: s.entered.crs,
     coordinates: [...s.entered.coordinates],
     ellipsoidalHeightUncertaintyM: s.grs80.ellipsoidalHeightUncertaintyM,
+    ellipsoidalCrustSystem: s.ellipsoidalCrustSystem ?? '',
     quasigeoid: s.quasigeoid.source === 'grid'
       ? { source: 'grid', gridId: s.quasigeoid.gridId ?? undefined }
-      : { source: 'entered', heightM: s.quasigeoid.heightM, uncertaintyM: s.quasigeoid.uncertaintyM },
+      : { source: 'entered', heightM: s.quasigeoid.heightM, uncertaintyM: s.quasigeoid.uncertaintyM, tideSystem: s.quasigeoid.tideSystem ?? '' },
     benchmarkTie: s.benchmarkTie ? { ...s.benchmarkTie } : {},
   };
 }

@@ -1,6 +1,7 @@
 import type { ReactNode } from 'react';
 import type { FieldValues, Path, UseFormSetError } from 'react-hook-form';
 import { ApiError, describeError } from '../../lib/api-client';
+import { typeset } from '../../components/typeset';
 
 // Small presentation helpers shared by the registry and campaign pages.
 
@@ -49,7 +50,7 @@ export function Facts({ items }: { items: [ReactNode, ReactNode][] }) {
     <dl className="grid grid-cols-[max-content_1fr] gap-x-6 gap-y-1.5 text-sm">
       {items.map(([k, v], i) => (
         <div key={i} className="contents">
-          <dt className="text-ink-500">{k}</dt>
+          <dt className="text-ink-500">{typeof k === 'string' ? typeset(k) : k}</dt>
           <dd className="font-medium text-ink-800">{v}</dd>
         </div>
       ))}

@@ -1,10 +1,13 @@
 import { Link, useParams } from 'react-router';
+import type { Site } from '../../../shared/registry';
 import { useMe } from '../../api/account';
 import { useClocks, useLinks, useSite } from '../../api/registry';
-import { Caution, EmptyState, Panel } from '../../components/ui';
+import { EmptyState, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { canChangeInstituteRecord, EditSitePanel } from './registry-forms';
 import { Facts, fixed } from './registry-ui';
+import { SiteTiePanel } from './site-tie-panel';
+import { StandardUncertaintyCaution } from '../../components/cautions';
 
 export function SitePage() {
   const { id = '' } = useParams();
@@ -27,7 +30,7 @@ export function SitePage() {
         <Panel title="As entered">
           <Facts items={[
             ['Coordinate system', <span key="c">{s.entered.crsLabel} <code className="text-xs">{s.entered.crs}</code></span>],
-            ['Values', <code key="v" data-testid="entered-coordinates">{entered.map((v) => v.toString()).join(', ')}</code>],
+            ...enteredAxes(s.entered.crsKind, entered).map(([axis, value], i): [string, React.ReactNode] => [axis, <code key={axis} data-testid={i === 0 ? 'entered-coordinates' : undefined}>{value}</code>]),
           ]} />
         </Panel>
         <Panel title="Converted: GRS80">
@@ -35,6 +38,7 @@ export function SitePage() {
             ['Latitude φ', <span key="la" data-testid="grs80-lat">{fixed(s.grs80.latitudeDeg, 9)}°</span>],
             ['Longitude λ', <span key="lo" data-testid="grs80-lon">{fixed(s.grs80.longitudeDeg, 9)}°</span>],
             ['Ellipsoidal height h', `${fixed(s.grs80.ellipsoidalHeightM, 4)} m ± ${fixed(s.grs80.ellipsoidalHeightUncertaintyM, 4)} m (k = 1)`],
+            ['Crust system of h', <span key="crust" data-testid="crust-system">{s.ellipsoidalCrustSystem ?? 'not stated — comparisons need it'}</span>],
             ['Geocentric X', `${fixed(s.grs80.xM, 4)} m`],
             ['Geocentric Y', `${fixed(s.grs80.yM, 4)} m`],
             ['Geocentric Z', `${fixed(s.grs80.zM, 4)} m`],
@@ -44,20 +48,13 @@ export function SitePage() {
         <Panel title="Heights">
           <Facts items={[
             ['Quasigeoid height ζ', `${fixed(s.quasigeoid.heightM, 4)} m ± ${fixed(s.quasigeoid.uncertaintyM, 4)} m (k = 1)`],
+            ['Tide system of ζ', <span key="zts" data-testid="zeta-tide-system">{s.quasigeoid.tideSystem ?? 'not stated — comparisons need it'}</span>],
             ['ζ from', s.quasigeoid.source === 'grid' ? `bilinear interpolation in “${s.quasigeoid.gridName ?? s.quasigeoid.gridId}”` : 'entered by the lab'],
             ['Normal height H = h − ζ', <span key="h" data-testid="normal-height">{fixed(s.normalHeight.valueM, 4)} m ± {fixed(s.normalHeight.uncertaintyM, 4)} m (k = 1)</span>],
             ['Uncertainty', s.normalHeight.formula],
           ]} />
         </Panel>
-        <Panel title="Local tie to a benchmark">
-          {s.benchmarkTie ? (
-            <Facts items={[
-              ['Benchmark', s.benchmarkTie.benchmarkCode],
-              ['Height difference site − benchmark', `${fixed(s.benchmarkTie.heightDifferenceM, 4)} m`],
-              ['Uncertainty', `${fixed(s.benchmarkTie.uncertaintyM, 4)} m (k = 1)`],
-            ]} />
-          ) : <p className="text-sm text-ink-500">No tie recorded.</p>}
-        </Panel>
+        <SiteTiePanel site={s} canEdit={canChangeInstituteRecord(me.data, s.institute.id)} />
       </div>
       {canChangeInstituteRecord(me.data, s.institute.id) && <EditSitePanel site={s} />}
       <Panel title="Clocks at this site">
@@ -68,7 +65,17 @@ export function SitePage() {
         <ul className="text-sm">{links.data?.items.map((l) => <li key={l.id}><Link to={`/links/${l.id}`}>{l.name}</Link> · {l.siteA.name} – {l.siteB.name}</li>)}</ul>
         {links.data?.items.length === 0 && <p className="text-sm text-ink-500">None yet.</p>}
       </Panel>
-      <Caution />
+      <StandardUncertaintyCaution />
     </>
   );
+}
+
+/** Axis names and units of the entered coordinates, in the order proj4 takes them. */
+function enteredAxes(kind: Site['entered']['crsKind'], c: number[]): [string, string][] {
+  const names: [string, string][] = kind === 'geographic2D' || kind === 'geographic3D'
+    ? [['Longitude λ', '°'], ['Latitude φ', '°'], ['Ellipsoidal height h', ' m']]
+    : kind === 'projected' ? [['Easting E', ' m'], ['Northing N', ' m'], ['Ellipsoidal height h', ' m']]
+      : kind === 'geocentric' ? [['Geocentric X', ' m'], ['Geocentric Y', ' m'], ['Geocentric Z', ' m']]
+        : [];
+  return c.map((v, i) => (names[i] ? [names[i][0], `${v}${names[i][1]}`] : [`Value ${i + 1}`, String(v)]));
 }

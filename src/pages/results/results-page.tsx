@@ -2,8 +2,9 @@ import { Link, useParams } from 'react-router';
 import { coverageText } from '../../../shared/number-text';
 import type { ComparisonResultDto, ResultBody } from '../../../shared/results';
 import { useMe } from '../../api/account';
-import { resultCsvUrl, useCampaignResult, useRecomputeResult } from '../../api/results';
+import { resultCsvUrl, useCampaignResult, useRecomputeResult, type CampaignResultState } from '../../api/results';
 import { AllanPlot } from '../../components/plots/allan-plot';
+import { typeset } from '../../components/typeset';
 import { Button, Caution, EmptyState, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { fixed, sci, sig } from '../../lib/format';
@@ -22,7 +23,7 @@ function Quantity({ label, q, unit, testId }: { label: string; q: Expanded; unit
   const d = decimalsFor(q.expandedUncertainty);
   return (
     <div className="rounded-lg border border-paper-200 bg-white p-4">
-      <p className="text-xs uppercase tracking-wide text-ink-500">{label}</p>
+      <p className="text-xs font-medium text-ink-500">{typeset(label)}</p>
       <p className="mt-1 font-mono text-lg text-ink-900" data-testid={testId}>{f(q.value, d)} ± {f(q.expandedUncertainty, d)} {unit}</p>
       <p className="text-xs text-ink-500" data-testid={`${testId}-coverage`}>expanded uncertainty, {coverageText(q)}</p>
     </div>
@@ -31,14 +32,14 @@ function Quantity({ label, q, unit, testId }: { label: string; q: Expanded; unit
 
 function Agreement({ r }: { r: ResultBody }) {
   const g = r.geodesy;
-  if (!g) return <Panel title="Agreement with the sites’ registered normal heights (geodesy)"><p className="text-sm">No geodetic uncertainty is registered for the sites, so E_n cannot be formed.</p></Panel>;
+  if (!g) return <Panel title="Agreement with the sites’ registered normal heights (geodesy)"><p className="text-sm">No geodetic uncertainty is registered for the sites, so Eₙ cannot be formed.</p></Panel>;
   const ok = g.agreed;
   return (
     <Panel title="Agreement with the sites’ registered normal heights (geodesy)">
       <div className={`flex items-start gap-3 rounded-md border-l-4 px-4 py-3 ${ok ? 'border-agree-600 bg-agree-100 text-agree-800' : 'border-disagree-600 bg-disagree-100 text-disagree-800'}`} data-testid="agreement" role="status">
         <span aria-hidden className="text-2xl leading-none">{ok ? '✓' : '✗'}</span>
         <div>
-          <p className="font-semibold">{ok ? 'Agreed' : 'Not agreed'} — E_n = {f(g.en, 2)}</p>
+          <p className="font-semibold">{ok ? 'Agreed' : 'Not agreed'} — Eₙ = {f(g.en, 2)}</p>
           <p className="text-sm">{g.statement}</p>
         </div>
       </div>
@@ -47,7 +48,7 @@ function Agreement({ r }: { r: ResultBody }) {
           <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">ΔH from the clocks (H_B − H_A)</td><td className="text-right font-mono">{f(r.deltaH_m.value, 4)} ± {f(r.deltaH_m.expandedUncertainty, 4)} m ({coverageText(r.deltaH_m)})</td></tr>
           <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">ΔH from geodesy ({g.source})</td><td className="text-right font-mono">{f(g.deltaH_m.value, 4)} ± {f(g.deltaH_m.expandedUncertainty, 4)} m ({coverageText(g.deltaH_m)})</td></tr>
           <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Difference (clocks − geodesy)</td><td className="text-right font-mono" data-testid="agreement-difference">{f(g.differenceM, 4)} ± {f(Math.hypot(r.deltaH_m.expandedUncertainty, g.deltaH_m.expandedUncertainty), 4)} m (√(U_clocks² + U_geodesy²))</td></tr>
-          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">E_n = difference / √(U_clocks² + U_geodesy²)</td><td className="text-right font-mono">{f(g.en, 3)} ({Math.abs(g.en) <= 1 ? '|E_n| ≤ 1' : '|E_n| > 1'})</td></tr>
+          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Eₙ = difference / √(U_clocks² + U_geodesy²)</td><td className="text-right font-mono">{f(g.en, 3)} ({Math.abs(g.en) <= 1 ? '|Eₙ| ≤ 1' : '|Eₙ| > 1'})</td></tr>
         </tbody>
       </table>
     </Panel>
@@ -125,13 +126,37 @@ function download(name: string, data: ComparisonResultDto) {
   URL.revokeObjectURL(url);
 }
 
+/** No current result: being computed (a job; the page asks again every few seconds), failed, or not asked for yet. */
+function ResultNotReady(props: { campaignId: string; state: Extract<CampaignResultState, { kind: 'not-ready' }>; canRecompute: boolean; recompute: () => void; recomputing: boolean; error: Error | null }) {
+  const { state } = props;
+  const pending = state.code === 'result-pending';
+  const title = pending ? 'Computing the result' : state.code === 'result-failed' ? 'The result could not be computed' : 'No result computed yet';
+  return (
+    <>
+      <p className="text-sm text-ink-500"><Link to={`/campaigns/${props.campaignId}`}>Back to the campaign</Link></p>
+      <section className="rounded-md border border-ink-200 bg-white p-5" data-testid="result-state" data-state={state.code} aria-live="polite" aria-busy={pending}>
+        <h1 className="flex items-center gap-3 text-xl">
+          {pending && <span aria-hidden className="inline-block h-4 w-4 animate-spin rounded-full border-2 border-ink-300 border-t-ink-700" />}
+          {title}
+        </h1>
+        <p className="mt-2 text-sm text-ink-700">{state.problem.detail}</p>
+        {pending && <p className="mt-1 text-xs text-ink-500">This page looks again every few seconds; a campaign with millions of samples takes a little while.</p>}
+        {!pending && props.canRecompute && (
+          <Button className="mt-3" variant="quiet" onClick={props.recompute} disabled={props.recomputing}>{props.recomputing ? 'Asking…' : 'Compute the result'}</Button>
+        )}
+        {props.error && <p className="mt-2 text-sm text-disagree-600" role="alert">{describeError(props.error)}</p>}
+      </section>
+    </>
+  );
+}
+
 export function ResultsPage() {
   const { id = '' } = useParams();
   const result = useCampaignResult(id);
   const recompute = useRecomputeResult(id);
   const me = useMe();
   const canRecompute = me.data?.role === 'operator' || me.data?.role === 'coordinator';
-  if (result.isPending) return <p className="text-ink-500">Computing the result… (a long campaign takes a few seconds)</p>;
+  if (result.isPending) return <p className="text-ink-500">Loading the result…</p>;
   if (result.isError) {
     return (
       <>
@@ -140,7 +165,10 @@ export function ResultsPage() {
       </>
     );
   }
-  const dto = result.data;
+  if (result.data.kind === 'not-ready') {
+    return <ResultNotReady campaignId={id} state={result.data} canRecompute={canRecompute} recompute={() => recompute.mutate()} recomputing={recompute.isPending} error={recompute.error} />;
+  }
+  const dto = result.data.dto;
   const r = dto.result;
   return (
     <>
@@ -152,7 +180,7 @@ export function ResultsPage() {
           <p className="text-xs text-ink-500">Computed {dto.computedAt.replace('T', ' ').slice(0, 19)} UTC by {dto.computedBy} · software {dto.softwareVersion} · inputs <code title={dto.inputHash}>{dto.inputHash.slice(0, 16)}…</code></p>
         </div>
         <div className="flex flex-wrap gap-2">
-          {canRecompute && <Button variant="quiet" onClick={() => recompute.mutate()} disabled={recompute.isPending}>{recompute.isPending ? 'Recomputing…' : 'Recompute now'}</Button>}
+          {canRecompute && <Button variant="quiet" onClick={() => recompute.mutate()} disabled={recompute.isPending}>{recompute.isPending ? 'Asking…' : 'Recompute now'}</Button>}
           <Button variant="quiet" onClick={() => download(`result-${id}.json`, dto)}>Export JSON</Button>
           <a className="rounded-md border border-ink-200 bg-white px-3 py-1.5 text-sm font-medium text-ink-700 hover:bg-ink-50" href={resultCsvUrl(id)} download>Export CSV</a>
         </div>
@@ -167,7 +195,7 @@ export function ResultsPage() {
 
       <section className="grid gap-3 md:grid-cols-3" aria-label="Main figures">
         <div className="rounded-lg border border-paper-200 bg-white p-4">
-          <p className="text-xs uppercase tracking-wide text-ink-500">Fractional offset y (tide-corrected)</p>
+          <p className="text-xs font-medium text-ink-500">Fractional offset y (tide-corrected)</p>
           <p className="mt-1 font-mono text-base text-ink-900" data-testid="result-y">{r.fractionalOffset.yText} ± {e(r.budget.expandedUncertainty, 2)}</p>
           <p className="text-xs text-ink-500">expanded uncertainty, {coverageText(r.budget)}; u(y) = {e(r.fractionalOffset.standardUncertainty, 2)}; measured mean ratio {r.measuredRatio}</p>
         </div>

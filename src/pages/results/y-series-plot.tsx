@@ -37,21 +37,25 @@ export function YSeriesPlot({ series, correctedMeanY, width = 900, height = 320 
   const band = area<Point>().defined(defined).x(at).y0((p) => clampY(p.yMin!)).y1((p) => clampY(p.yMax!))(series) ?? '';
   const exp = Math.floor(Math.log10(Math.max(Math.abs(yLo), Math.abs(yHi))));
   const scale = 10 ** exp;
+  // Ticks in the scaled unit, formatted by d3 to the decimals the step needs (no "5.920").
+  const yScaled = scaleLinear().domain([y.domain()[0] / scale, y.domain()[1] / scale]);
+  const yTickFormat = yScaled.tickFormat(6);
+  const xTickFormat = x.tickFormat(8, 'f');
   const gaps = series.length - filled.length;
   return (
     <figure>
       <svg viewBox={`0 0 ${width} ${height}`} className="w-full" role="img" aria-label="Fractional offset y against time, with the tide correction" data-testid="y-series-plot">
         <title>Fractional offset y against time</title>
-        {y.ticks(6).map((t) => (
+        {yScaled.ticks(6).map((t) => (
           <g key={t}>
-            <line x1={M.left} x2={width - M.right} y1={y(t)} y2={y(t)} className="stroke-paper-200" />
-            <text x={M.left - 6} y={y(t) + 4} textAnchor="end" className="fill-ink-500 text-[11px]">{(t / scale).toFixed(3).replace(/^-/, '−')}</text>
+            <line x1={M.left} x2={width - M.right} y1={y(t * scale)} y2={y(t * scale)} className="stroke-paper-200" />
+            <text x={M.left - 6} y={y(t * scale) + 4} textAnchor="end" className="fill-ink-500 text-[11px]">{yTickFormat(t).replace(/^[-−]/, '−')}</text>
           </g>
         ))}
         {x.ticks(8).map((t) => (
           <g key={t}>
             <line x1={x(t)} x2={x(t)} y1={M.top} y2={height - M.bottom} className="stroke-paper-200" />
-            <text x={x(t)} y={height - M.bottom + 16} textAnchor="middle" className="fill-ink-500 text-[11px]">{(t0 + t).toFixed(t % 1 ? 2 : 0)}</text>
+            <text x={x(t)} y={height - M.bottom + 16} textAnchor="middle" className="fill-ink-500 text-[11px]">{xTickFormat(t0 + t)}</text>
           </g>
         ))}
         <path d={band} className="fill-ink-100" data-testid="y-series-band" />
@@ -77,17 +81,18 @@ export function TidePlot({ series, width = 900, height = 180 }: { series: Result
   const tide = filled.map((p) => p.tideY);
   const y = scaleLinear().domain([Math.min(...tide), Math.max(...tide)]).range([height - M.bottom, M.top]).nice();
   const path = line<Point>().defined(isFilled).x(at).y((p) => y(p.tideY!))(series) ?? '';
+  const tideTickFormat = scaleLinear().domain([y.domain()[0] * 1e18, y.domain()[1] * 1e18]).tickFormat(4);
   return (
     <svg viewBox={`0 0 ${width} ${height}`} className="w-full" role="img" aria-label="Tidal part of y against time" data-testid="tide-plot">
       <title>Tidal part of y against time</title>
       {y.ticks(4).map((t) => (
         <g key={t}>
           <line x1={M.left} x2={width - M.right} y1={y(t)} y2={y(t)} className="stroke-paper-200" />
-          <text x={M.left - 6} y={y(t) + 4} textAnchor="end" className="fill-ink-500 text-[11px]">{(t * 1e18).toFixed(2).replace(/^-/, '−')}</text>
+          <text x={M.left - 6} y={y(t) + 4} textAnchor="end" className="fill-ink-500 text-[11px]">{tideTickFormat(t * 1e18).replace(/^[-−]/, '−')}</text>
         </g>
       ))}
       {x.ticks(8).map((t) => (
-        <text key={t} x={x(t)} y={height - M.bottom + 16} textAnchor="middle" className="fill-ink-500 text-[11px]">{(t0 + t).toFixed(t % 1 ? 2 : 0)}</text>
+        <text key={t} x={x(t)} y={height - M.bottom + 16} textAnchor="middle" className="fill-ink-500 text-[11px]">{x.tickFormat(8, 'f')(t0 + t)}</text>
       ))}
       <path d={path} className="fill-none stroke-brass-600" strokeWidth={1.5} />
       <rect x={M.left} y={M.top} width={width - M.left - M.right} height={height - M.top - M.bottom} className="fill-none stroke-ink-200" />

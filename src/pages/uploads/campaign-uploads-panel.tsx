@@ -5,9 +5,10 @@ import { useForm } from 'react-hook-form';
 import { columnMappingSchema, type RatioSeries, type UploadPreview } from '../../../shared/uploads';
 import { useMe } from '../../api/account';
 import { useCampaignUploads, usePreviewUpload, useSendUpload, useSeriesPlot, type UploadStage } from '../../api/uploads';
-import { TimeSeriesPlot } from '../../components/plots/time-series-plot';
+import { TimeSeriesPlot, type MjdRange } from '../../components/plots/time-series-plot';
 import { Button, EmptyState, Field, inputClass, Panel } from '../../components/ui';
 import { ApiError, describeError } from '../../lib/api-client';
+import { plural } from '../../lib/format';
 
 // Ratio-series uploads of one campaign: choose a file, check the preview and the column mapping, send it with
 // progress (bytes sent, then rows the server has processed), list what is stored and plot one series.
@@ -18,15 +19,34 @@ function columnLabel(p: UploadPreview, i: number) {
   return p.header?.[i] ? `${i + 1}: ${p.header[i]}` : `column ${i + 1}`;
 }
 
-function ProgressBar({ label, fraction, detail, testId }: { label: string; fraction: number; detail: string; testId: string }) {
+function ProgressBar({ label, fraction, detail, testId, failed }: { label: string; fraction: number; detail: string; testId: string; failed?: boolean }) {
   const pct = Math.round(Math.max(0, Math.min(1, fraction)) * 100);
   return (
     <div className="text-sm" data-testid={testId}>
       <div className="mb-1 flex justify-between text-ink-700"><span>{label}</span><span>{pct} % · {detail}</span></div>
       <div className="h-2.5 w-full overflow-hidden rounded bg-paper-200" role="progressbar" aria-label={label} aria-valuemin={0} aria-valuemax={100} aria-valuenow={pct}>
-        <div className="h-full bg-ink-600 transition-[width]" style={{ width: `${pct}%` }} />
+        <div className={`h-full transition-[width] ${failed ? 'bg-disagree-600' : 'bg-ink-600'}`} style={{ width: `${pct}%` }} />
       </div>
     </div>
+  );
+}
+
+/** The server's detail, then every listed issue once, then how many were not listed (furtherProblems). */
+function UploadProblem({ error }: { error: unknown }) {
+  if (!(error instanceof ApiError)) return <p>{describeError(error)}</p>;
+  const issues = error.problem.issues ?? [];
+  const further = typeof error.problem.furtherProblems === 'number' ? error.problem.furtherProblems : 0;
+  return (
+    <>
+      <p>{error.problem.detail}</p>
+      {issues.length > 1 && (
+        <ul className="mt-2 list-disc space-y-0.5 pl-5 text-xs" data-testid="upload-issues">
+          {issues.map((i, n) => <li key={n}>{i.line ? `Line ${i.line}${i.column ? `, column ${i.column}` : ''}` : i.path}: {i.message}</li>)}
+          {further > 0 && <li className="list-none text-ink-600">… and {plural(further, 'more problem')} not listed.</li>}
+        </ul>
+      )}
+      {error.problem.existingUploadId != null && <p className="mt-1">The earlier upload is listed below.</p>}
+    </>
   );
 }
 
@@ -35,6 +55,7 @@ function UploadForm({ campaignId }: { campaignId: string }) {
   const [stage, setStage] = useState<UploadStage | null>(null);
   const [error, setError] = useState<unknown>(null);
   const [done, setDone] = useState<RatioSeries | null>(null);
+  const [inputKey, setInputKey] = useState(0);
   const preview = usePreviewUpload(campaignId);
   const { send } = useSendUpload(campaignId);
   const form = useForm<MappingForm>({
@@ -69,22 +90,27 @@ function UploadForm({ campaignId }: { campaignId: string }) {
     };
     if (values.flagColumn) mapping.flagColumn = String(values.flagColumn);
     try {
-      setDone(await send(file, mapping, setStage));
+      const stored = await send(file, mapping, setStage);
+      // Ready for the next file: the chosen file and its preview go; the finished bars and the confirmation stay.
+      setDone(stored);
+      setFile(null);
+      preview.reset();
+      setInputKey((k) => k + 1);
     } catch (e) {
       setError(e);
     }
   });
 
   const columns = p ? Array.from({ length: p.columnCount }, (_, i) => i) : [];
-  const busy = stage !== null && stage.stage !== 'done' && !error;
+  const busy = stage !== null && stage.stage !== 'done' && stage.stage !== 'failed' && !error;
   return (
     <div className="space-y-4">
       <Field label="Series file (CSV: epoch, ratio or offset, optional flag)" hint="Comma, semicolon or tab; # comment lines; MJD or ISO 8601 UTC epochs.">
-        <input type="file" accept=".csv,.txt,.tsv,text/csv,text/plain" className={inputClass} aria-label="Series file" disabled={busy}
+        <input key={inputKey} type="file" accept=".csv,.txt,.tsv,text/csv,text/plain" className={inputClass} aria-label="Series file" disabled={busy}
           onChange={(e) => void choose(e.target.files?.[0] ?? null)} />
       </Field>
       {preview.isPending && <p className="text-sm text-ink-500">Reading the start of the file…</p>}
-      {p && (
+      {p && file && (
         <>
           <div className="text-sm text-ink-600" data-testid="preview-summary">
             Delimiter <strong>{p.delimiter === '\t' ? 'tab' : p.delimiter}</strong> · {p.hasHeader ? 'header line found' : 'no header line'} · {p.columnCount} columns
@@ -128,15 +154,20 @@ function UploadForm({ campaignId }: { campaignId: string }) {
       {stage && (
         <div className="space-y-2" data-testid="upload-progress">
           <ProgressBar testId="progress-sent" label="Sent to the server" fraction={stage.sentFraction} detail={`${(stage.sentFraction * stage.bytesTotal / 1e6).toFixed(1)} of ${(stage.bytesTotal / 1e6).toFixed(1)} MB`} />
-          <ProgressBar testId="progress-processed" label="Checked and stored by the server" fraction={stage.stage === 'done' ? 1 : stage.bytesRead / Math.max(1, stage.bytesTotal)}
-            detail={`${stage.rowsProcessed.toLocaleString('en')} rows${stage.stage === 'storing' ? ' · keeping the raw file' : stage.stage === 'done' ? ' · done' : ''}`} />
+          {stage.stage === 'failed' ? (
+            <ProgressBar testId="progress-processed" failed label={stage.checkedWhole ? 'Checked by the server: nothing stored' : 'Stopped: nothing stored'}
+              fraction={stage.checkedWhole ? 1 : stage.bytesRead / Math.max(1, stage.bytesTotal)}
+              detail={stage.checkedWhole ? 'whole file checked · nothing stored' : 'nothing stored'} />
+          ) : (
+            <ProgressBar testId="progress-processed" label="Checked and stored by the server" fraction={stage.stage === 'done' ? 1 : stage.bytesRead / Math.max(1, stage.bytesTotal)}
+              detail={`${stage.rowsProcessed.toLocaleString('en')} rows${stage.stage === 'storing' ? ' · keeping the raw file' : stage.stage === 'done' ? ' · done' : ''}`} />
+          )}
         </div>
       )}
       {done && <p className="text-sm text-agree-700" role="status">Stored {done.rowCount.toLocaleString('en')} rows ({done.validCount.toLocaleString('en')} valid) from {done.fileName}.</p>}
       {error !== null && (
         <div className="rounded-md border border-disagree-600 bg-white p-3 text-sm text-disagree-800" role="alert" data-testid="upload-error">
-          <p>{describeError(error)}</p>
-          {error instanceof ApiError && error.problem.existingUploadId != null && <p className="mt-1">The earlier upload is listed below.</p>}
+          <UploadProblem error={error} />
         </div>
       )}
     </div>
@@ -158,7 +189,9 @@ export function CampaignUploadsPanel({ campaignId, campaignState, canUpload }: {
   const mayUpload = (canUpload ?? me.data?.role === 'operator') && (campaignState === 'draft' || campaignState === 'returned');
   const rows = useMemo(() => uploads.data ?? [], [uploads.data]);
   const current = selected ?? rows[rows.length - 1]?.id ?? null;
-  const plot = useSeriesPlot(current);
+  const [zoom, setZoom] = useState<{ seriesId: string; range: MjdRange } | null>(null);
+  const range = zoom && zoom.seriesId === current ? zoom.range : null;
+  const plot = useSeriesPlot(current, 1200, range);
   const columns = useMemo(() => [
     col.accessor('fileName', { header: 'File', cell: (c) => <span className="font-medium">{c.getValue()}{c.row.original.invented ? ' (invented)' : ''}</span> }),
     col.accessor('sha256', { header: 'SHA-256', cell: (c) => <code title={c.getValue()}>{c.getValue().slice(0, 12)}…</code> }),
@@ -207,7 +240,10 @@ export function CampaignUploadsPanel({ campaignId, campaignState, canUpload }: {
               </label>
             </div>
             {plot.isPending && <p className="text-sm text-ink-500">Loading plot data…</p>}
-            {plot.data && <TimeSeriesPlot buckets={plot.data.buckets} timeAxis={timeAxis} title={`Fractional frequency offset of ${shown.fileName}`} />}
+            {plot.data && (
+              <TimeSeriesPlot buckets={plot.data.buckets} range={plot.data} full={{ fromMjd: plot.data.firstMjd, toMjd: plot.data.lastMjd }} loading={plot.isFetching}
+                onRangeChange={(r) => setZoom(r && current ? { seriesId: current, range: r } : null)} timeAxis={timeAxis} title={`Fractional frequency offset of ${shown.fileName}`} />
+            )}
           </div>
         )}
       </div>

@@ -148,7 +148,7 @@ describe('adjustNetwork properties', () => {
     }
   });
 
-  it('a +50 mm blunder in one section fails the global test and is the top suspect', () => {
+  it('a +50 mm blunder in one section fails the global test, is removed first, and the final adjustment passes', () => {
     const net = smallRandomNetwork(41, 30, 25, false);
     const clean = adjustNetwork({ points: net.points, observations: net.observations });
     expect(clean.globalTest!.passed).toBe(true);
@@ -156,12 +156,18 @@ describe('adjustNetwork properties', () => {
     const target = clean.observations.findIndex((o) => o.redundancy > 0.3);
     const blundered = net.observations.map((o, i) => (i === target ? { ...o, deltaC: o.deltaC + 0.05 * 9.81 } : o));
     const res = adjustNetwork({ points: net.points, observations: blundered });
-    expect(res.globalTest!.passed).toBe(false);
-    expect(res.globalTest!.statistic).toBeGreaterThan(res.globalTest!.critical);
-    expect(res.snooping.suspects.length).toBeGreaterThan(0);
+    // Baarda 1968: test, remove the largest |w| above k, re-adjust, repeat.
+    expect(res.snooping.initial.globalTest!.passed).toBe(false);
+    expect(res.snooping.initial.globalTest!.statistic).toBeGreaterThan(res.snooping.initial.globalTest!.critical);
+    expect(res.snooping.removals.length).toBeGreaterThan(0);
+    expect(res.snooping.removals[0]).toMatchObject({ step: 1, source: 'observation', index: target });
     expect(res.snooping.suspects[0]).toMatchObject({ source: 'observation', index: target });
-    const ws = res.snooping.suspects.map((s) => Math.abs(s.standardizedResidual));
-    expect(ws).toEqual([...ws].sort((a, b) => b - a));
+    expect(res.observations[target]).toMatchObject({ suspected: true, removedAtStep: 1 });
+    expect(res.observations.filter((o) => o.suspected).length).toBe(res.snooping.removals.length);
+    expect(res.globalTest!.passed).toBe(true);
+    expect(res.degreesOfFreedom).toBe(res.snooping.initial.degreesOfFreedom - res.snooping.removals.length);
+    // The removed observation's discrepancy against the final adjustment shows the 50 mm blunder.
+    expect(res.observations[target].residual).toBeCloseTo(-0.05 * 9.81, 1);
     expect(res.snooping.criticalValue).toBeCloseTo(3.2905, 4);
   });
 
@@ -213,40 +219,39 @@ describe('adjustNetwork properties', () => {
     expect(fractions.at(-1)).toBe(1);
   });
 });
-
 // A small level net in the observation-equation form of Ghilani, Adjustment Computations, 6th ed. (Wiley 2017),
-// ch. 12 (ΔElev_ij + v = Elev_j − Elev_i, weights 1/σ²): four benchmarks, each leg levelled forward and reverse
-// (invented data), 1a held at 1000.000 m, every difference with σ = 5 mm. The expected values were computed
+// ch. 12 (ΔElev_ij + v = Elev_j − Elev_i, weights 1/σ²): four benchmarks, every leg levelled in both directions
+// (invented data), P1 held at 100.000 m, every difference with σ = 4 mm. The expected values were computed
 // independently from the dense normal equations with Python mpmath at 40 digits (x = (AᵀPA)⁻¹AᵀPl,
 // Q_vv = σ²I − AQ_xxAᵀ, w_i = v_i/√q_vv,i); the adjustment is linear and unit-free, so heights in metres go in where C would.
-describe('four-benchmark level net with forward and reverse legs (computed independently)', () => {
+describe('four-benchmark level net with legs in both directions (computed independently)', () => {
   const obs: [string, string, number][] = [
-    ['1a', '4', -1.225], ['4', '3', -0.848], ['3', '2', 1.342], ['2', '1a', 0.72],
-    ['1a', '2', -0.724], ['2', '3', -1.335], ['3', '4', 0.842], ['4', '1a', 1.231],
+    ['P1', 'P2', 1.532], ['P2', 'P3', -0.847], ['P3', 'P4', 2.114], ['P4', 'P1', -2.806],
+    ['P1', 'P3', 0.69], ['P2', 'P4', 1.262], ['P3', 'P1', -0.681], ['P4', 'P2', -1.275],
   ];
   const res = adjustNetwork({
-    points: [{ code: '1a', fixedC: 1000 }, { code: '4' }, { code: '3' }, { code: '2' }],
-    observations: obs.map(([from, to, deltaC]) => ({ from, to, deltaC, sigma: 0.005 })),
+    points: [{ code: 'P1', fixedC: 100 }, { code: 'P2' }, { code: 'P3' }, { code: 'P4' }],
+    observations: obs.map(([from, to, deltaC]) => ({ from, to, deltaC, sigma: 0.004 })),
   });
   it('adjusted heights [m] and a-priori standard deviations [mm]', () => {
     const byCode = new Map(res.points.map((p) => [p.code, p]));
-    expect(byCode.get('4')!.c).toBeCloseTo(998.775125, 9);
-    expect(byCode.get('3')!.c).toBeCloseTo(997.93325, 9);
-    expect(byCode.get('2')!.c).toBeCloseTo(999.274875, 9);
-    expect(byCode.get('4')!.sigma * 1000).toBeCloseTo(3.0618622, 6);
-    expect(byCode.get('3')!.sigma * 1000).toBeCloseTo(3.5355339, 6);
-    expect(byCode.get('2')!.sigma * 1000).toBeCloseTo(3.0618622, 6);
+    expect(byCode.get('P2')!.c).toBeCloseTo(101.533416667, 8);
+    expect(byCode.get('P3')!.c).toBeCloseTo(100.6865, 8);
+    expect(byCode.get('P4')!.c).toBeCloseTo(102.802583333, 8);
+    expect(byCode.get('P2')!.sigma * 1000).toBeCloseTo(2.5819889, 6);
+    expect(byCode.get('P3')!.sigma * 1000).toBeCloseTo(2.30940108, 6);
+    expect(byCode.get('P4')!.sigma * 1000).toBeCloseTo(2.5819889, 6);
   });
-  it('degrees of freedom 5, vᵀPv = 5.865 (146.625 mm² / 25 mm²), σ̂0·σ = 5.4153 mm', () => {
+  it('degrees of freedom 5, vᵀPv = 9.11979, σ̂0·σ = 5.4022 mm', () => {
     expect(res.degreesOfFreedom).toBe(5);
-    expect(res.vtpv * 25).toBeCloseTo(146.625, 6);
-    expect(res.sigma0! * 5).toBeCloseTo(5.4152562, 6);
+    expect(res.vtpv).toBeCloseTo(9.11979166667, 8);
+    expect(res.sigma0! * 4).toBeCloseTo(5.40216006, 6);
   });
-  it('largest |w| = 1.676 for observation 6, below the 3.29 critical value (Baarda 1968, α0 = 0.001)', () => {
+  it('largest |w| = 2.194 for observation 6, below the 3.29 critical value (Baarda 1968, α0 = 0.001)', () => {
     const ws = res.observations.map((o) => Math.abs(o.standardizedResidual!));
     const iMax = ws.indexOf(Math.max(...ws));
     expect(iMax).toBe(5);
-    expect(ws[iMax]).toBeCloseTo(1.67601, 4);
-    expect(res.observations[5].suspected).toBe(false);
+    expect(ws[iMax]).toBeCloseTo(2.194335, 5);
+    expect(res.observations.every((o) => !o.suspected)).toBe(true);
   });
 });

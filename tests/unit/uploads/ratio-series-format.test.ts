@@ -59,13 +59,40 @@ describe('plot buckets', () => {
       const t = i / 400;
       blocks.push(t, t + 0.002, i === 50 ? -9 : -1, i === 350 ? 7 : 1, 64);
     }
-    const out = bucketsFromOverview(new Float64Array(blocks), 0, 0.02, 50)!;
+    const stats = new Float64Array((blocks.length / 5) * 2);
+    const out = bucketsFromOverview(new Float64Array(blocks), stats, 0, 0.02, 50)!;
     expect(out).not.toBeNull();
     expect(Math.max(...out.map((b) => b.max ?? -Infinity))).toBe(7);
     expect(Math.min(...out.map((b) => b.min ?? Infinity))).toBe(-9);
     // blocks end at t = 0.4995 and resume at 0.75: buckets 25…36 (width 0.02) hold nothing
     expect(out.filter((b) => b.min === null)).toHaveLength(12);
     // too few blocks for the requested resolution: the caller falls back to the samples
-    expect(bucketsFromOverview(new Float64Array(blocks.slice(0, 50)), 0, 0.01, 100)).toBeNull();
+    expect(bucketsFromOverview(new Float64Array(blocks.slice(0, 50)), stats.slice(0, 20), 0, 0.01, 100)).toBeNull();
+    // a series stored without block statistics also falls back to the samples
+    expect(bucketsFromOverview(new Float64Array(blocks), null, 0, 0.02, 50)).toBeNull();
+  });
+  it('combines block means and M2 into each bucket’s mean and sample standard deviation', () => {
+    // Reference: the two-pass formula s² = Σ(y − ȳ)²/(n − 1) over the bucket's samples directly (common practice),
+    // against the pairwise combination of Chan, Golub & LeVeque (1983) eq. 2.1 over the blocks.
+    let seed = 7;
+    const rnd = () => ((seed = (seed * 16807) % 2147483647) / 2147483647);
+    const samples = Array.from({ length: 64 * 40 }, (_, i) => ({ t: i / (64 * 40), y: 6.5e-14 + (rnd() - 0.5) * 4e-16 }));
+    const blocks: number[] = [];
+    const stats: number[] = [];
+    for (let b = 0; b < 40; b++) {
+      const part = samples.slice(b * 64, (b + 1) * 64);
+      const mean = part.reduce((a, p) => a + p.y, 0) / part.length;
+      blocks.push(part[0].t, part[part.length - 1].t, Math.min(...part.map((p) => p.y)), Math.max(...part.map((p) => p.y)), part.length);
+      stats.push(mean, part.reduce((a, p) => a + (p.y - mean) ** 2, 0));
+    }
+    const out = bucketsFromOverview(new Float64Array(blocks), new Float64Array(stats), 0, 0.1, 10)!;
+    for (let k = 0; k < 10; k++) {
+      const inBucket = samples.slice(k * 256, (k + 1) * 256).map((p) => p.y);
+      const mean = inBucket.reduce((a, y) => a + y, 0) / inBucket.length;
+      const sd = Math.sqrt(inBucket.reduce((a, y) => a + (y - mean) ** 2, 0) / (inBucket.length - 1));
+      expect(out[k].count).toBe(256);
+      expect(out[k].mean! / mean - 1).toBeCloseTo(0, 12);
+      expect(out[k].sd! / sd - 1).toBeCloseTo(0, 9);
+    }
   });
 });

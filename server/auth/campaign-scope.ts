@@ -1,0 +1,44 @@
+import type { CampaignState } from '../../shared/campaigns';
+import type { Actor } from './actor';
+
+// Who sees which campaign — one rule for detail routes and every aggregate (lists, results, uploads, certificates,
+// the network's reconciliation, map and adjustment runs). Written down in docs/decisions/0004-campaign-visibility.md.
+//   operator     the campaigns of their own institute (it owns clock A or clock B), in any state
+//   coordinator  accepted and certified campaigns, and submitted / in-review ones (to review them)
+//   auditor      accepted and certified campaigns
+//   admin        as the coordinator
+// Anything else is answered as if it did not exist (404), so ids cannot be probed.
+
+export const publishedStates: readonly CampaignState[] = ['accepted', 'certified'];
+export const reviewStates: readonly CampaignState[] = ['submitted', 'in_review'];
+
+export type CampaignOwnership = { state: CampaignState | string; instituteId: string | null; partnerInstituteId: string | null };
+
+/** The states a role sees across institutes (operators: none beyond their own institute's campaigns). */
+export function statesVisibleTo(actor: Actor): readonly CampaignState[] {
+  switch (actor.role) {
+    case 'operator':
+      return [];
+    case 'auditor':
+      return publishedStates;
+    case 'coordinator':
+    case 'admin':
+      return [...publishedStates, ...reviewStates];
+  }
+}
+
+export function canSeeCampaign(actor: Actor, c: CampaignOwnership): boolean {
+  if (actor.role === 'operator') return !!actor.instituteId && (actor.instituteId === c.instituteId || actor.instituteId === c.partnerInstituteId);
+  return (statesVisibleTo(actor) as readonly string[]).includes(c.state);
+}
+
+/**
+ * The same rule as a SQL condition for a query builder, given the column expressions of the campaign's state, its
+ * owning institute and clock B's institute. Named parameters carry a prefix so they do not clash with the caller's.
+ */
+export function campaignScopeCondition(actor: Actor, cols: { state: string; institute: string; partnerInstitute: string }): { sql: string; params: Record<string, unknown> } {
+  if (actor.role === 'operator') {
+    return { sql: `(${cols.institute} = :scopeInstitute OR ${cols.partnerInstitute} = :scopeInstitute)`, params: { scopeInstitute: actor.instituteId ?? '00000000-0000-0000-0000-000000000000' } };
+  }
+  return { sql: `${cols.state} IN (:...scopeStates)`, params: { scopeStates: [...statesVisibleTo(actor)] } };
+}

@@ -1,0 +1,288 @@
+import { spawn, spawnSync, type ChildProcess } from 'node:child_process';
+import crypto from 'node:crypto';
+import fs from 'node:fs';
+import http from 'node:http';
+import os from 'node:os';
+import path from 'node:path';
+import pino from 'pino';
+import type { DataSource } from 'typeorm';
+import { afterAll, beforeAll, describe, expect, inject, it } from 'vitest';
+// @ts-expect-error plain ESM helper shared with `npm start`
+import { freePort, startCluster } from '../../scripts/lib/postgres.mjs';
+import { createApp } from '../../server/app';
+import { loadConfig } from '../../server/config';
+import { openDatabase } from '../../server/db/data-source';
+import { FAULT_POINTS, resumeFileFor, type FaultPointName } from '../../server/dev/fault-point';
+import { createMailSender } from '../../server/mail/outbox';
+import { seedDemo } from '../../seeds/demo';
+import { acceptedCampaign } from '../helpers/accepted-campaign';
+import { tokenFor, type TestApp } from '../helpers/test-app';
+import { insertUploadCampaign } from '../helpers/uploads-campaign';
+
+// Kill harness: at six points of an upload and of what follows it (before the COPY, mid-COPY, while the raw file's
+// parts are written, before COMMIT, during the result computation, during certificate issue) the server process is
+// SIGKILLed, or PostgreSQL is stopped at once (pg_ctl stop -m immediate) and started again. Afterwards: no partial
+// series (0 or all rows, counts consistent), no result or certificate half-made, no session idle in transaction, and
+// (PostgreSQL stop) the surviving server's pool back at its baseline. Runs on a cluster of its own with fsync on and
+// refuses to run otherwise. Rows per upload: CHRONOLEVEL_KILL_ROWS (default 200 000; `npm run bench -- kill` and
+// CHRONOLEVEL_KILL_ROWS=1000000 run the full million).
+const ROWS = Number(process.env.CHRONOLEVEL_KILL_ROWS ?? 200_000);
+const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'chronolevel-kill-'));
+const dataDir = path.join(tmp, 'pg');
+let cluster: { url: string; port: number; stop: () => void };
+let ds: DataSource;
+let t: TestApp;
+let operator: string;
+let coordinator: string;
+const csvFile = path.join(tmp, 'big.csv');
+const children = new Set<ChildProcess>();
+
+function pgCtl(args: string[]) {
+  const bin = fs.readdirSync('/usr/lib/postgresql').sort((a, b) => Number(b) - Number(a))[0];
+  const exe = path.join('/usr/lib/postgresql', bin, 'bin', 'pg_ctl');
+  const asRoot = process.getuid?.() === 0;
+  const user = spawnSync('id', ['-u', 'postgres']).status === 0 ? 'postgres' : 'chronolevel-db';
+  const r = asRoot ? spawnSync('runuser', ['-u', user, '--', exe, ...args], { encoding: 'utf8' }) : spawnSync(exe, args, { encoding: 'utf8' });
+  if (r.status !== 0) throw new Error(`pg_ctl ${args.join(' ')}: ${r.stderr || r.stdout}`);
+}
+
+async function startPg() {
+  const before = process.env.PG_FSYNC;
+  process.env.PG_FSYNC = 'on'; // this cluster must be durable, whatever the rest of the test run uses
+  try {
+    cluster = await startCluster({ dataDir, port: cluster?.port ?? (await freePort()), database: 'killharness', log: () => {} });
+  } finally {
+    if (before === undefined) delete process.env.PG_FSYNC;
+    else process.env.PG_FSYNC = before;
+  }
+}
+
+async function query<T>(sql: string, params: unknown[] = []): Promise<T[]> {
+  for (let attempt = 0; ; attempt++) {
+    try {
+      return (await ds.query(sql, params)) as T[];
+    } catch (e) {
+      if (attempt >= 20) throw e;
+      await new Promise((r) => setTimeout(r, 250)); // connections that died with the server are replaced
+    }
+  }
+}
+
+beforeAll(async () => {
+  await startPg();
+  ds = await openDatabase(cluster.url);
+  for (const setting of ['fsync', 'synchronous_commit', 'full_page_writes']) {
+    const [row] = (await ds.query(`SHOW ${setting}`)) as Record<string, string>[];
+    if (row[setting] !== 'on') throw new Error(`durability test refused: ${setting} is ${row[setting]}; the kill harness needs fsync, synchronous_commit and full_page_writes on`);
+  }
+  process.env.SECRETS_DIR = inject('secretsDir');
+  await seedDemo(ds);
+  const config = loadConfig({
+    NODE_ENV: 'test', DATABASE_URL: cluster.url, SECRETS_DIR: inject('secretsDir'), SESSION_SECRET: 'kill-harness-session-secret-0123', IDP_URL: inject('idpUrl'),
+    IDP_CERT_FILE: inject('idpCertFile'), SMTP_URL: inject('smtpUrl'), MAILBOX_URL: inject('mailboxUrl'), LOG_LEVEL: 'silent',
+    TSA_URL: inject('tsaUrl'), TSA_ROOT_CERT_FILE: inject('tsaRootCertFile'),
+  });
+  const logger = pino({ level: 'silent' });
+  const mail = createMailSender({ dataSource: ds, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
+  const app = createApp({ config, dataSource: ds, logger, mail });
+  t = { app, ds, config, databaseUrl: cluster.url, ownerUrl: cluster.url, deps: { config, dataSource: ds, logger, mail }, close: async () => undefined };
+  operator = await tokenFor(t, 'ines.varga@saltmarsh-lab.invalid');
+  coordinator = await tokenFor(t, 'ansel.brandt@geopotential-office.invalid');
+  const fd = fs.openSync(csvFile, 'w');
+  let s = '';
+  for (let i = 0; i < ROWS; i++) {
+    s += `${(61100 + i / 86400).toFixed(9)},${(1e-16 * Math.sin(i)).toExponential(6)}\n`;
+    if (s.length > 1 << 20) {
+      fs.writeSync(fd, s);
+      s = '';
+    }
+  }
+  fs.writeSync(fd, s);
+  fs.closeSync(fd);
+  await app.locals.closeSessionPool?.();
+}, 300_000);
+
+afterAll(async () => {
+  for (const c of children) c.kill('SIGKILL');
+  await ds?.destroy().catch(() => undefined);
+  cluster?.stop();
+  fs.rmSync(tmp, { recursive: true, force: true });
+});
+
+type Server = { child: ChildProcess; port: number; faults: string[]; exited: Promise<void> };
+
+async function startServer(faultPoint: FaultPointName | null): Promise<Server> {
+  const env: Record<string, string> = {
+    DATABASE_URL: cluster.url, SESSION_SECRET: 'kill-harness-session-secret-0123', IDP_CERT_FILE: inject('idpCertFile'), SECRETS_DIR: inject('secretsDir'),
+    LOG_LEVEL: 'silent', NODE_ENV: 'test', UPLOAD_IDLE_TIMEOUT_MS: '600000', TSA_URL: inject('tsaUrl'), TSA_ROOT_CERT_FILE: inject('tsaRootCertFile'),
+  };
+  if (faultPoint) env.CHRONOLEVEL_FAULT_POINT = faultPoint;
+  const child = spawn(process.execPath, ['--import', 'tsx', 'tests/helpers/upload-server.ts'], {
+    env: { ...process.env, ...env, CHRONOLEVEL_CHILD_ENV: JSON.stringify(env) }, stdio: ['ignore', 'pipe', 'inherit'],
+  });
+  children.add(child);
+  const exited = new Promise<void>((r) => child.once('exit', () => r()));
+  const faults: string[] = [];
+  const port: number = await new Promise((resolve, reject) => {
+    child.once('exit', () => reject(new Error('server exited before listening')));
+    child.stdout!.on('data', (d: Buffer) => {
+      const text = d.toString();
+      for (const m of text.matchAll(/FAULT ([a-z-]+)/g)) faults.push(m[1]);
+      const l = /LISTENING (\d+)/.exec(text);
+      if (l) resolve(Number(l[1]));
+    });
+  });
+  return { child, port, faults, exited };
+}
+
+/** Streams the big CSV as a multipart upload; resolves with the status (or 0 when the connection broke). */
+function streamUpload(port: number, campaignId: string): Promise<number> {
+  return new Promise((resolve) => {
+    const boundary = `----kill${crypto.randomBytes(6).toString('hex')}`;
+    const head = Object.entries({ epochColumn: '1', epochKind: 'mjd', valueColumn: '2', valueKind: 'offset' })
+      .map(([k, v]) => `--${boundary}\r\nContent-Disposition: form-data; name="${k}"\r\n\r\n${v}\r\n`).join('')
+      + `--${boundary}\r\nContent-Disposition: form-data; name="file"; filename="big.csv"\r\nContent-Type: text/csv\r\n\r\n`;
+    const req = http.request({
+      host: '127.0.0.1', port, method: 'POST', path: `/api/v1/campaigns/${campaignId}/uploads`,
+      headers: { authorization: `Bearer ${operator}`, 'content-type': `multipart/form-data; boundary=${boundary}`, 'transfer-encoding': 'chunked' },
+    }, (res) => {
+      res.resume();
+      res.on('end', () => resolve(res.statusCode ?? 0));
+      res.on('error', () => resolve(0));
+    });
+    req.on('error', () => resolve(0));
+    req.write(head);
+    const file = fs.createReadStream(csvFile);
+    file.pipe(req, { end: false });
+    file.on('end', () => req.end(`\r\n--${boundary}--\r\n`));
+    req.on('close', () => file.destroy());
+  });
+}
+
+function post(port: number, pathName: string, token: string): Promise<number> {
+  return new Promise((resolve) => {
+    const req = http.request({ host: '127.0.0.1', port, method: 'POST', path: pathName, headers: { authorization: `Bearer ${token}`, 'content-type': 'application/json' } }, (res) => {
+      res.resume();
+      res.on('end', () => resolve(res.statusCode ?? 0));
+      res.on('error', () => resolve(0));
+    });
+    req.on('error', () => resolve(0));
+    req.end('{}');
+  });
+}
+
+async function until(cond: () => boolean | Promise<boolean>, ms: number, what: string) {
+  const end = Date.now() + ms;
+  while (!(await cond())) {
+    if (Date.now() > end) throw new Error(`timed out waiting for ${what}`);
+    await new Promise((r) => setTimeout(r, 25));
+  }
+}
+
+async function health(port: number): Promise<{ status: string; pool?: { inUse: number; waiting: number } } | null> {
+  try {
+    const r = await fetch(`http://127.0.0.1:${port}/api/health`);
+    return (await r.json()) as { status: string; pool?: { inUse: number; waiting: number } };
+  } catch {
+    return null;
+  }
+}
+
+const idleInTransaction = () =>
+  query<{ n: number }>("SELECT count(*)::int AS n FROM pg_stat_activity WHERE datname = current_database() AND state LIKE 'idle in transaction%'");
+
+type Snapshot = Record<string, number>;
+async function snapshot(campaignId: string): Promise<Snapshot> {
+  const [r] = await query<Snapshot>(
+    `SELECT (SELECT count(*)::int FROM ratio_series WHERE campaign_id = $1) AS series,
+            (SELECT count(*)::int FROM ratio_sample s JOIN ratio_series r ON r.id = s.series_id WHERE r.campaign_id = $1) AS samples,
+            (SELECT count(*)::int FROM ratio_sample) AS "allSamples",
+            (SELECT count(*)::int FROM ratio_series_file) AS "fileParts",
+            (SELECT count(*)::int FROM comparison_result WHERE campaign_id = $1) AS results,
+            (SELECT count(*)::int FROM certificate WHERE campaign_id = $1) AS certificates,
+            (SELECT coalesce(sum(last_serial), 0)::int FROM certificate_serial) AS serials,
+            (SELECT count(*)::int FROM audit_event) AS "auditEvents"`,
+    [campaignId],
+  );
+  return r;
+}
+
+/** Every stored series is complete: its row count matches its samples, and equals the uploaded rows. */
+async function seriesConsistent(campaignId: string) {
+  const rows = await query<{ row_count: number; samples: number }>(
+    'SELECT r.row_count, (SELECT count(*)::int FROM ratio_sample s WHERE s.series_id = r.id) AS samples FROM ratio_series r WHERE r.campaign_id = $1', [campaignId]);
+  for (const r of rows) expect(r.samples).toBe(r.row_count);
+  return rows;
+}
+
+const survived: string[] = [];
+const UPLOAD_POINTS = new Set<FaultPointName>(['before-copy', 'mid-copy', 'raw-file-parts', 'before-commit']);
+
+describe.each(['sigkill-server', 'stop-postgres'] as const)('kill harness (%s)', (mode) => {
+  it.each([...FAULT_POINTS])(`%s: afterwards 0 or all rows, nothing half-made, no session idle in transaction`, async (point) => {
+    let campaignId: string;
+    if (UPLOAD_POINTS.has(point)) campaignId = await insertUploadCampaign(ds);
+    else {
+      const start = Date.parse('2026-09-01T00:00:00Z') + (FAULT_POINTS.indexOf(point) + (mode === 'stop-postgres' ? 6 : 0)) * 3 * 86_400_000;
+      campaignId = await acceptedCampaign(t, `Kill harness ${mode} ${point}`, new Date(start).toISOString());
+    }
+    const before = await snapshot(campaignId);
+    const server = await startServer(point);
+    const answer = UPLOAD_POINTS.has(point) ? streamUpload(server.port, campaignId)
+      : point === 'result-compute' ? post(server.port, `/api/v1/campaigns/${campaignId}/result/recompute`, coordinator)
+        : post(server.port, `/api/v1/campaigns/${campaignId}/certificates`, coordinator);
+    await until(() => server.faults.includes(point), 120_000, `fault point ${point}`);
+
+    if (mode === 'sigkill-server') {
+      server.child.kill('SIGKILL');
+      await server.exited;
+      expect(await answer).toBe(0);
+    } else {
+      pgCtl(['-D', dataDir, '-m', 'immediate', '-w', 'stop']);
+      await startPg();
+      fs.writeFileSync(resumeFileFor(server.child.pid!), '');
+      const status = await answer;
+      expect(status === 0 || status >= 400).toBe(true); // the request fails; it never reports success
+      // the surviving server recovers: database reachable, pool back at its baseline
+      await until(async () => {
+        const h = await health(server.port);
+        return h?.status === 'ok' && h.pool?.inUse === 0 && h.pool.waiting === 0;
+      }, 20_000, 'the server pool back at its baseline');
+      server.child.kill('SIGTERM');
+      await server.exited;
+      fs.rmSync(resumeFileFor(server.child.pid!), { force: true });
+    }
+    children.delete(server.child);
+
+    await until(async () => (await idleInTransaction())[0].n === 0, 10_000, 'no session idle in transaction');
+    const after = await snapshot(campaignId);
+    const series = await seriesConsistent(campaignId);
+    // every point lies before the commit: nothing of the interrupted work may be visible
+    expect({ ...after, auditEvents: 0 }).toEqual({ ...before, auditEvents: 0 });
+    expect(after.auditEvents).toBe(before.auditEvents);
+    // an interrupted upload leaves no series; the result and certificate campaigns keep their one complete series
+    expect(series).toHaveLength(UPLOAD_POINTS.has(point) ? 0 : 1);
+    if (point === 'certificate-issue') {
+      const [c] = await query<{ state: string }>('SELECT state FROM campaign WHERE id = $1', [campaignId]);
+      expect(c.state).toBe('accepted');
+    }
+    survived.push(`${mode}:${point}`);
+  }, 300_000);
+});
+
+describe('after the kills', () => {
+  it('a complete upload stores all rows, and every kill point was survived', async () => {
+    const campaignId = await insertUploadCampaign(ds);
+    const server = await startServer(null);
+    const status = await streamUpload(server.port, campaignId);
+    expect(status).toBe(201);
+    const series = await seriesConsistent(campaignId);
+    expect(series.map((s) => s.row_count)).toEqual([ROWS]);
+    const h = await health(server.port);
+    expect(h).toMatchObject({ status: 'ok', pool: { inUse: 0, waiting: 0 } });
+    server.child.kill('SIGTERM');
+    await server.exited;
+    children.delete(server.child);
+    expect(survived).toHaveLength(2 * FAULT_POINTS.length);
+  }, 300_000);
+});
