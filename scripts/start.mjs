@@ -1,6 +1,7 @@
 // `npm start`: everything needed to run Chronolevel on one machine, with an embedded default set-up.
 // Installs missing npm packages and Debian's PostgreSQL, starts PostgreSQL on loopback with data in .data/pg,
-// builds the client when its sources changed, then runs the server (migrations + demo seed happen there).
+// builds the client when its sources changed, applies migrations, then runs the HTTP server (demo seed happens there)
+// and one worker process beside it (jobs, mail, audit checkpoints). Ctrl-C stops both; if either dies, both stop.
 import { spawn, spawnSync } from 'node:child_process';
 import fs from 'node:fs';
 import path from 'node:path';
@@ -81,19 +82,56 @@ ${people}
     }
   }
 });
+// One worker process beside the HTTP process (adjustment runs, mail, audit checkpoints), started once the server is
+// up (migrations applied, local mail catcher listening); it connects with the same application-role DATABASE_URL.
+let worker = null;
+const startWorkerProcess = () => {
+  worker = spawn(process.execPath, ['--import', 'tsx', 'server/jobs/worker.ts'], { stdio: ['inherit', 'inherit', 'inherit', 'ipc'], env });
+  worker.on('message', (m) => {
+    if (m && m.workerReady) say(`worker process running (pid ${worker.pid})`);
+  });
+  worker.on('exit', (code, signal) => {
+    worker = null;
+    if (!stopping) {
+      say(`the worker process stopped unexpectedly (${signal ?? `exit code ${code}`}); stopping the server as well`);
+      exitCode = 1;
+      stop('worker stopped');
+    }
+    finish();
+  });
+};
+server.on('message', (m) => {
+  if (m && m.ready && !worker && !stopping) startWorkerProcess();
+});
+
 let stopping = false;
+let exitCode = 0;
+let serverRunning = true;
 const stop = (signal) => {
   if (stopping) return;
   stopping = true;
   say(`stopping (${signal})…`);
-  server.kill('SIGTERM');
+  if (serverRunning) server.kill('SIGTERM');
+  worker?.kill('SIGTERM');
 };
 process.on('SIGINT', () => stop('SIGINT'));
 process.on('SIGTERM', () => stop('SIGTERM'));
-server.on('exit', (code) => {
+let finished = false;
+function finish() {
+  if (finished || serverRunning || worker) return;
+  finished = true;
   if (cluster) {
     say('stopping PostgreSQL');
     cluster.stop();
   }
-  process.exit(code ?? 0);
+  process.exit(exitCode);
+}
+server.on('exit', (code, signal) => {
+  serverRunning = false;
+  if (!stopping) {
+    say(`the server process stopped unexpectedly (${signal ?? `exit code ${code}`}); stopping the worker as well`);
+    exitCode = code || 1;
+    stop('server stopped');
+  } else if (code) exitCode = code;
+  finish();
 });

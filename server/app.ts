@@ -23,6 +23,23 @@ import { apiRoutes } from './routes';
 import { actorFromToken } from './tokens/tokens.service';
 import { findActorByUserId } from './users/users.service';
 
+/**
+ * One concise line per API request when it finishes: method, path (never the query string, which could hold a
+ * secret), status, milliseconds and the actor's id. No headers; nothing for static assets or /api/health.
+ */
+export function requestLine(logger: AppDeps['logger']) {
+  return (req: Request, res: Response, next: NextFunction) => {
+    const p = req.originalUrl.split('?')[0];
+    if (!(p.startsWith('/api/') || p.startsWith('/auth/')) || p === '/api/health') return next();
+    const t0 = process.hrtime.bigint();
+    res.once('finish', () => {
+      const ms = Math.round(Number(process.hrtime.bigint() - t0) / 1e5) / 10;
+      logger.info({ reqId: req.id, method: req.method, path: p, status: res.statusCode, ms, actor: req.actor?.userId ?? null }, 'request');
+    });
+    next();
+  };
+}
+
 /** Builds the Express app without listening; the server process and the tests both use it. */
 export function createApp(deps: AppDeps) {
   const { config, dataSource, logger } = deps;
@@ -39,9 +56,12 @@ export function createApp(deps: AppDeps) {
         res.setHeader('x-request-id', id);
         return id;
       },
-      autoLogging: { ignore: (req) => req.url === '/api/health' },
+      // req.log (security events) carries only the request id; the one line per request is written below.
+      autoLogging: false,
+      quietReqLogger: true,
     }),
   );
+  app.use(requestLine(logger));
   app.use(
     helmet({
       contentSecurityPolicy: {

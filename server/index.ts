@@ -56,14 +56,21 @@ async function main() {
     const seeded = await seedDemo(dataSource, (m) => logger.info(m));
     logger.info(seeded ? 'demo scenario loaded into the empty database' : 'database already holds data; demo scenario not reloaded');
   }
-  // One job worker inside this process (adjustment runs); more can run elsewhere with `tsx server/jobs/worker.ts`.
-  const worker = await startWorker({ dataSource, databaseUrl: config.databaseUrl, logger });
-  closers.push(() => worker.stop(), () => stopQueues());
-  // Besides the checkpoint every 100 events, one every 15 minutes when anything was added (no-op otherwise).
-  const checkpoints = setInterval(() => void writeAuditCheckpoint(dataSource, 'every 15 minutes').catch((e) => logger.error({ err: e }, 'audit checkpoint failed')), 15 * 60_000);
-  closers.push(() => clearInterval(checkpoints));
+  // Jobs, mail sending and the periodic audit checkpoint run in worker processes (`npm run worker`; `npm start` starts
+  // one beside this process). CHRONOLEVEL_INLINE_WORKER=1 runs them inside this process instead (single-process use).
+  const inlineWorker = process.env.CHRONOLEVEL_INLINE_WORKER === '1';
+  if (inlineWorker) {
+    const worker = await startWorker({ dataSource, databaseUrl: config.databaseUrl, logger });
+    closers.push(() => worker.stop());
+    // Besides the checkpoint every 100 events, one every 15 minutes when anything was added (no-op otherwise).
+    const checkpoints = setInterval(() => void writeAuditCheckpoint(dataSource, 'every 15 minutes').catch((e) => logger.error({ err: e }, 'audit checkpoint failed')), 15 * 60_000);
+    closers.push(() => clearInterval(checkpoints));
+  }
+  closers.push(() => stopQueues());
+  // This process only queues mail (outbox rows); its sender sends on demand (the test message) and, with the inline
+  // worker, polls the outbox too. Row locks let any number of senders share the outbox without sending twice.
   const mail = createMailSender({ dataSource, smtpUrl: config.smtpUrl, from: config.mailFrom, logger, retry: config.mailRetry });
-  mail.start();
+  if (inlineWorker) mail.start();
   closers.push(() => mail.stop());
   configureStabilityPool(config.stabilityWorkers);
   closers.push(() => closeStabilityPool());

@@ -9,7 +9,8 @@ import path from 'node:path';
 // every call is a no-op.
 
 export const FAULT_POINTS = ['before-copy', 'mid-copy', 'raw-file-parts', 'before-commit', 'result-compute', 'certificate-issue'] as const;
-export type FaultPointName = (typeof FAULT_POINTS)[number];
+/** 'adjustment-run' (after a run's first progress report) is armed by tests/api/worker-kill.test.ts, not the harness. */
+export type FaultPointName = (typeof FAULT_POINTS)[number] | 'adjustment-run';
 
 let armed: string | null = process.env.NODE_ENV === 'production' ? null : (process.env.CHRONOLEVEL_FAULT_POINT ?? null);
 const fired = new Set<string>();

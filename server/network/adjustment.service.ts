@@ -9,6 +9,7 @@ import { recordAudit } from '../audit/audit.service';
 import type { Actor } from '../auth/actor';
 import { authorize } from '../auth/permissions';
 import { AdjustmentRunEntity, BenchmarkEntity, HeightDatumEntity, type AdjustmentRunRow } from '../db/entities/network.entities';
+import { faultPoint } from '../dev/fault-point';
 import { AppError, Invalid, NotFound } from '../http/errors';
 import { adjustNetwork, AdjustmentInputError, type AdjustmentInput, type AdjustmentStage, type NetworkObservation, type NetworkPoint } from '../science/adjustment/gauss-markov';
 import { normalisedError } from '../science/agreement';
@@ -327,6 +328,7 @@ export async function executeRun(dataSource: DataSource, runId: string, onProgre
   if (!run || run.state === 'done' || run.state === 'failed') return;
   await repo.update({ id: runId }, { state: 'running', startedAt: new Date(), progress: 0.02, stage: 'loading inputs' });
   await onProgress?.(0.02, 'loading inputs');
+  await faultPoint('adjustment-run'); // test-only kill point (server/dev/fault-point.ts); a no-op unless armed
   let lastWrite = 0;
   const pending: Promise<unknown>[] = [];
   try {
