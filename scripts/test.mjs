@@ -19,6 +19,8 @@ const needs = [
   // Certificate tests: NSS certutil gives pdfsig the institute root; openssl checks time-stamps, CMS and CRLs.
   ['/usr/bin/certutil', 'libnss3-tools'],
   ['/usr/bin/openssl', 'openssl'],
+  // The two-process topology test runs two HTTP processes behind Debian's haproxy.
+  ['/usr/sbin/haproxy', 'haproxy'],
 ].filter(([bin]) => !fs.existsSync(bin));
 if (needs.length && isRoot) {
   const pkgs = needs.map(([, p]) => p);

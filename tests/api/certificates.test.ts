@@ -406,7 +406,7 @@ describe('issuing', () => {
       expect(audit).toHaveLength(1);
       // The next certificate is signed with a new key under the same root and verifies.
       const fresh = await acceptedCampaign(t, 'After the key withdrawal', '2026-09-01T00:00:00Z');
-      const issued = await request(t.app).post(`/api/v1/campaigns/${fresh}/certificates`).set('authorization', `Bearer ${coordinator}`).send({});
+      const issued = await request(t.app).post(`/api/v1/campaigns/${fresh}/certificates`).set('authorization', `Bearer ${coordinator}`).send({ comment: 'Certified after review.', justification: 'Test campaign: its exceptions are accepted for the test.' });
       expect(issued.status).toBe(201);
       const newPdf = await download(issued.body.certificate.number);
       const ok = await verifyFile(newPdf);

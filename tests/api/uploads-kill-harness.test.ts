@@ -118,7 +118,8 @@ async function startServer(faultPoint: FaultPointName | null): Promise<Server> {
   };
   if (faultPoint) env.CHRONOLEVEL_FAULT_POINT = faultPoint;
   const child = spawn(process.execPath, ['--import', 'tsx', 'tests/helpers/upload-server.ts'], {
-    env: { ...process.env, ...env, CHRONOLEVEL_CHILD_ENV: JSON.stringify(env) }, stdio: ['ignore', 'pipe', 'inherit'],
+    // the result is computed by a job: the child runs a worker too, so the kill point inside the computation is reached
+    env: { ...process.env, ...env, CHRONOLEVEL_CHILD_ENV: JSON.stringify(env), CHRONOLEVEL_CHILD_WORKER: '1' }, stdio: ['ignore', 'pipe', 'inherit'],
   });
   children.add(child);
   const exited = new Promise<void>((r) => child.once('exit', () => r()));

@@ -3,6 +3,7 @@ import pino from 'pino';
 import { createApp } from '../../server/app';
 import { loadConfig } from '../../server/config';
 import { openDatabase } from '../../server/db/data-source';
+import { startWorker } from '../../server/jobs/worker';
 import { createMailSender } from '../../server/mail/outbox';
 
 // The app alone in its own process, for tests that kill the server mid-upload and for the ingest benchmark
@@ -13,6 +14,8 @@ const ds = await openDatabase(config.databaseUrl, { migrate: false, pool: { max:
 const logger = pino({ level: 'silent' });
 const mail = createMailSender({ dataSource: ds, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
 const app = createApp({ config, dataSource: ds, logger, mail });
+// A job worker in the same process when asked (CHRONOLEVEL_CHILD_WORKER=1): a kill then takes both down together.
+if (process.env.CHRONOLEVEL_CHILD_WORKER === '1') await startWorker({ dataSource: ds, databaseUrl: config.databaseUrl, logger, pollingIntervalSeconds: 0.5 });
 // Which process answered, for tests that run several behind a load balancer.
 const instance = process.env.CHRONOLEVEL_INSTANCE ?? '';
 const server = http.createServer((req, res) => {
