@@ -160,7 +160,7 @@ function streamUpload(port: number, campaignId: string): Promise<number> {
   });
 }
 
-function post(port: number, pathName: string, token: string): Promise<number> {
+function post(port: number, pathName: string, token: string, body: object = {}): Promise<number> {
   return new Promise((resolve) => {
     const req = http.request({ host: '127.0.0.1', port, method: 'POST', path: pathName, headers: { authorization: `Bearer ${token}`, 'content-type': 'application/json' } }, (res) => {
       res.resume();
@@ -168,7 +168,7 @@ function post(port: number, pathName: string, token: string): Promise<number> {
       res.on('error', () => resolve(0));
     });
     req.on('error', () => resolve(0));
-    req.end('{}');
+    req.end(JSON.stringify(body));
   });
 }
 
@@ -231,19 +231,21 @@ describe.each(['sigkill-server', 'stop-postgres'] as const)('kill harness (%s)',
     const server = await startServer(point);
     const answer = UPLOAD_POINTS.has(point) ? streamUpload(server.port, campaignId)
       : point === 'result-compute' ? post(server.port, `/api/v1/campaigns/${campaignId}/result/recompute`, coordinator)
-        : post(server.port, `/api/v1/campaigns/${campaignId}/certificates`, coordinator);
+        : post(server.port, `/api/v1/campaigns/${campaignId}/certificates`, coordinator, { comment: 'Certified after review.', justification: 'Kill-harness campaign: its exceptions are accepted for the test.' });
     await until(() => server.faults.includes(point), 120_000, `fault point ${point}`);
 
     if (mode === 'sigkill-server') {
       server.child.kill('SIGKILL');
       await server.exited;
-      expect(await answer).toBe(0);
+      // a result is computed by a job: the request was answered (202, queued) before the worker reached the point
+      expect(await answer).toBe(point === 'result-compute' ? 202 : 0);
     } else {
       pgCtl(['-D', dataDir, '-m', 'immediate', '-w', 'stop']);
       await startPg();
       fs.writeFileSync(resumeFileFor(server.child.pid!), '');
       const status = await answer;
-      expect(status === 0 || status >= 400).toBe(true); // the request fails; it never reports success
+      // the request fails, never reporting success (a result request was only queued: 202)
+      expect(status === 0 || status >= 400 || (point === 'result-compute' && status === 202)).toBe(true);
       // the surviving server recovers: database reachable, pool back at its baseline
       await until(async () => {
         const h = await health(server.port);
