@@ -83,7 +83,7 @@ ${people}
   }
 });
 // One worker process beside the HTTP process (adjustment runs, mail, audit checkpoints), started once the server is
-// up (migrations applied, local mail catcher listening); it connects with the same application-role DATABASE_URL.
+// up (migrations applied, local test mailbox listening); it connects with the same application-role DATABASE_URL.
 let worker = null;
 const startWorkerProcess = () => {
   worker = spawn(process.execPath, ['--import', 'tsx', 'server/jobs/worker.ts'], { stdio: ['inherit', 'inherit', 'inherit', 'ipc'], env });
