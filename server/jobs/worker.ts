@@ -15,7 +15,19 @@ import { ADJUSTMENT_QUEUE, RESULT_QUEUE, startBoss, type AdjustmentJob, type Res
 
 export type Worker = { stop: () => Promise<void> };
 
+let outageGuard = false;
+
 export async function startWorker(opts: { dataSource: DataSource; databaseUrl: string; logger?: Logger; pollingIntervalSeconds?: number; reapIntervalMs?: number }): Promise<Worker> {
+  // While PostgreSQL is away, pg-boss's own bookkeeping (marking a failed job) rejects outside any handler of ours.
+  // A database outage must not end the worker process: log it; pg-boss and the orphan reaper resume when it returns.
+  if (!outageGuard) {
+    outageGuard = true;
+    process.on('unhandledRejection', (e) => {
+      const code = (e as { code?: string } | null)?.code;
+      if (code && ['ECONNREFUSED', 'ECONNRESET', '57P01', '57P03', 'EPIPE'].includes(code)) opts.logger?.warn({ err: e }, 'database unreachable; the worker waits for it');
+      else throw e;
+    });
+  }
   const boss = await startBoss(opts.databaseUrl);
   await boss.work<AdjustmentJob>(ADJUSTMENT_QUEUE, { pollingIntervalSeconds: opts.pollingIntervalSeconds ?? 0.5, batchSize: 1 }, async (jobs) => {
     for (const job of jobs) {

@@ -202,7 +202,8 @@ async function snapshot(campaignId: string): Promise<Snapshot> {
             (SELECT count(*)::int FROM comparison_result WHERE campaign_id = $1) AS results,
             (SELECT count(*)::int FROM certificate WHERE campaign_id = $1) AS certificates,
             (SELECT coalesce(sum(last_serial), 0)::int FROM certificate_serial) AS serials,
-            (SELECT count(*)::int FROM audit_event) AS "auditEvents"`,
+            -- every event, except results of other campaigns that a retried job may finish meanwhile
+            (SELECT count(*)::int FROM audit_event WHERE NOT (action = 'result.computed' AND entity_id IS DISTINCT FROM $1::text)) AS "auditEvents"`,
     [campaignId],
   );
   return r;
