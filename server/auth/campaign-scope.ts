@@ -4,13 +4,14 @@ import type { Actor } from './actor';
 // Who sees which campaign — one rule for detail routes and every aggregate (lists, results, uploads, certificates,
 // the network's reconciliation, map and adjustment runs). Written down in docs/decisions/0004-campaign-visibility.md.
 //   operator     the campaigns of their own institute (it owns clock A or clock B), in any state
-//   coordinator  accepted and certified campaigns, and submitted / in-review ones (to review them)
+//   coordinator  accepted and certified campaigns, submitted / in-review ones (to review them) and returned ones
+//                (reviewed and sent back: the reviewer follows them until they come back)
 //   auditor      accepted and certified campaigns
 //   admin        as the coordinator
 // Anything else is answered as if it did not exist (404), so ids cannot be probed.
 
 export const publishedStates: readonly CampaignState[] = ['accepted', 'certified'];
-export const reviewStates: readonly CampaignState[] = ['submitted', 'in_review'];
+export const reviewStates: readonly CampaignState[] = ['submitted', 'in_review', 'returned'];
 
 export type CampaignOwnership = { state: CampaignState | string; instituteId: string | null; partnerInstituteId: string | null };
 

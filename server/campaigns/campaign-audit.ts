@@ -1,5 +1,6 @@
 import type { DataSource } from 'typeorm';
 import type { Actor } from '../auth/actor';
+import { canSeeCampaign } from '../auth/campaign-scope';
 import { authorize } from '../auth/permissions';
 import { toAuditEventDto } from '../audit/audit.service';
 import { AuditEventEntity } from '../db/entities/core.entities';
@@ -14,7 +15,10 @@ const MAX_EVENTS = 5000;
 
 export async function campaignAuditTrail(dataSource: DataSource, actor: Actor, campaignId: string) {
   authorize(actor, 'audit:read');
-  if (!(await dataSource.getRepository(CampaignEntity).existsBy({ id: campaignId }))) throw new NotFound('Campaign');
+  // The same visibility rule as the campaign itself (server/auth/campaign-scope.ts): a campaign the caller may not
+  // see has no audit trail for them either.
+  const campaign = await dataSource.getRepository(CampaignEntity).findOne({ where: { id: campaignId }, relations: { clockB: true } });
+  if (!campaign || !canSeeCampaign(actor, { state: campaign.state, instituteId: campaign.instituteId, partnerInstituteId: campaign.clockB?.instituteId ?? null })) throw new NotFound('Campaign');
   const rows = await dataSource
     .getRepository(AuditEventEntity)
     .createQueryBuilder('a')

@@ -39,7 +39,8 @@ export function createSessionsService(dataSource: DataSource) {
     async end(actor: Actor, id: string) {
       authorize(actor, 'users:write');
       await dataSource.transaction(async (m) => {
-        const rows: { user_id: string | null }[] = await m.query(
+        // TypeORM answers a DELETE … RETURNING with [rows, count], not with the rows alone.
+        const [rows]: [{ user_id: string | null }[], number] = await m.query(
           `DELETE FROM "session" WHERE encode(sha256(convert_to(sid, 'UTF8')), 'hex') = $1 RETURNING sess -> 'passport' ->> 'user' AS user_id`,
           [id],
         );

@@ -109,8 +109,9 @@ export function createUsersService(dataSource: DataSource) {
         if (!user) throw new NotFound('User');
         if (!active) {
           if (!user.deactivatedAt) await repo.update({ id }, { deactivatedAt: new Date() });
-          const sessions: unknown[] = await m.query(`DELETE FROM "session" WHERE sess -> 'passport' ->> 'user' = $1 RETURNING sid`, [id]);
-          const tokens: unknown[] = await m.query('UPDATE api_token SET revoked_at = now() WHERE user_id = $1 AND revoked_at IS NULL RETURNING id', [id]);
+          // TypeORM answers DELETE/UPDATE … RETURNING with [rows, count].
+          const [sessions]: [unknown[], number] = await m.query(`DELETE FROM "session" WHERE sess -> 'passport' ->> 'user' = $1 RETURNING sid`, [id]);
+          const [tokens]: [unknown[], number] = await m.query('UPDATE api_token SET revoked_at = now() WHERE user_id = $1 AND revoked_at IS NULL RETURNING id', [id]);
           await recordAudit(m, actor, { action: 'user.deactivated', entityType: 'user', entityId: id, instituteId: user.instituteId, details: { sessionsEnded: sessions.length, tokensRevoked: tokens.length } });
         } else {
           if (user.deactivatedAt) await repo.update({ id }, { deactivatedAt: null });

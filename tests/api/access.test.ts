@@ -6,6 +6,7 @@ import { permissionTable } from '../../server/auth/permissions';
 import { computeCampaignResult } from '../../server/results/results.service';
 import { apiRoutes } from '../../server/routes';
 import { createTestApp, tokenFor, type TestApp } from '../helpers/test-app';
+import { acceptAsReviewer } from '../helpers/accepted-campaign';
 
 // Table-driven: every route that exists, for every role that must be refused.
 let t: TestApp;
@@ -77,10 +78,11 @@ describe('access matrix (every route × six callers)', () => {
     obj.draftName = 'HMO Yb⁺/Sr local ratio, December 2026';
     obj.acceptedName = 'HMO Yb⁺/Sr local ratio, October 2026';
     // The coordinator accepts Highridge's in-review campaign, its result is computed (as the worker would) and certified.
-    const accepted = await request(t.app).post(`/api/v1/campaigns/${obj.accepted}/accept`).set('authorization', `Bearer ${tokens.coordinator}`).send({});
+    const accepted = await acceptAsReviewer(t, obj.accepted, tokens.coordinator);
     expect(accepted.status, accepted.text).toBe(200);
     await t.ds.transaction((m) => computeCampaignResult(m, obj.accepted, { actor: null, now: new Date() }));
-    const issued = await request(t.app).post(`/api/v1/campaigns/${obj.accepted}/certificates`).set('authorization', `Bearer ${tokens.coordinator}`).send({});
+    const issued = await request(t.app).post(`/api/v1/campaigns/${obj.accepted}/certificates`).set('authorization', `Bearer ${tokens.coordinator}`)
+      .send({ comment: 'Certified after review.', justification: 'Test campaign: its exceptions are accepted for the test.' });
     expect(issued.status, issued.text).toBe(201);
     obj.certificate = issued.body.certificate.number;
     obj.series = await one('SELECT id FROM ratio_series WHERE campaign_id = $1', obj.accepted);
