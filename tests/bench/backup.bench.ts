@@ -11,6 +11,7 @@ import { backupDatabase, restoreDatabase } from '../../server/db/backup';
 import { openDatabase } from '../../server/db/data-source';
 import { migrateDatabase } from '../../server/db/roles';
 import { seedDemo } from '../../seeds/demo';
+import { startBenchTsa, stopBenchTsa } from './bench-tsa';
 
 const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'chronolevel-backup-bench-'));
 process.env.PG_FSYNC = 'on';
@@ -21,6 +22,7 @@ try {
   const { migrationUrl, appUrl } = prepareRoles({ port, database: 'chronolevel' });
   await migrateDatabase({ migrationUrl, appRole: APP_ROLE });
   const ds = await openDatabase(appUrl, { migrate: false });
+  await startBenchTsa(tmp);
   await seedDemo(ds);
   const [size] = await ds.query(`SELECT pg_size_pretty(pg_database_size(current_database())) AS size,
     (SELECT count(*) FROM ratio_sample)::int AS samples, (SELECT count(*) FROM audit_event)::int AS events, (SELECT count(*) FROM certificate)::int AS certificates`);
@@ -38,6 +40,7 @@ try {
   console.log(`restore (new db + pg_restore): ${r.seconds.toFixed(2)} s`);
   console.log(`audit-verify on the restored copy: ${verifyMs.toFixed(0)} ms, ${chain.ok ? 'intact' : 'BROKEN'}`);
 } finally {
+  await stopBenchTsa();
   cluster.stop();
   fs.rmSync(tmp, { recursive: true, force: true });
 }

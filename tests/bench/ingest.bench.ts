@@ -14,6 +14,7 @@ import { createSelfSignedCertificate } from '../../server/dev/self-signed';
 import { issueToken } from '../../server/tokens/tokens.service';
 import { seedDemo } from '../../seeds/demo';
 import { insertUploadCampaign } from '../helpers/uploads-campaign';
+import { startBenchTsa, stopBenchTsa } from './bench-tsa';
 
 const ROWS = Number(process.env.INGEST_ROWS ?? 1_000_000);
 const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'chronolevel-ingest-bench-'));
@@ -54,6 +55,7 @@ async function main() {
   const port = await freePort();
   const cluster = await startCluster({ dataDir: path.join(tmp, 'pg'), port, database: 'bench', log: () => {} });
   const ds = await openDatabase(cluster.url);
+  await startBenchTsa(tmp);
   await seedDemo(ds);
   const campaignId = await insertUploadCampaign(ds);
   const [{ id: userId }] = await ds.query("SELECT id FROM app_user WHERE email = 'ines.varga@saltmarsh-lab.invalid'");
@@ -114,6 +116,7 @@ async function main() {
     child.kill(process.env.CHILD_STOP === 'TERM' ? 'SIGTERM' : 'SIGKILL');
     await new Promise((r) => setTimeout(r, 1500));
     await ds.destroy();
+    await stopBenchTsa();
     cluster.stop();
     fs.rmSync(tmp, { recursive: true, force: true });
   }

@@ -15,6 +15,7 @@ import { issueToken } from '../../server/tokens/tokens.service';
 import { seedDemo } from '../../seeds/demo';
 import { scaleDemo } from '../../seeds/scale.seed';
 import { startHaproxy } from '../helpers/haproxy';
+import { startBenchTsa, stopBenchTsa } from './bench-tsa';
 
 const SECONDS = Number(process.env.LOAD_SECONDS ?? 30);
 const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'chronolevel-load-bench-'));
@@ -61,6 +62,7 @@ async function main() {
   const cluster = await startCluster({ dataDir: path.join(tmp, 'pg'), port, database: 'load', log: () => {} });
   const ds = await openDatabase(cluster.url);
   const t = performance.now();
+  await startBenchTsa(tmp);
   await seedDemo(ds);
   const sizes = await scaleDemo(ds);
   console.log(`scaled demo in ${((performance.now() - t) / 1000).toFixed(1)} s: ${JSON.stringify(sizes)}`);
@@ -107,6 +109,7 @@ async function main() {
     await lb?.stop();
     for (const c of children) c.kill('SIGTERM');
     await new Promise((r) => setTimeout(r, 2000));
+    await stopBenchTsa();
     cluster.stop();
     fs.rmSync(tmp, { recursive: true, force: true });
   }

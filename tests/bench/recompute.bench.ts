@@ -14,6 +14,7 @@ import { computeResultBody } from '../../server/results/compute-result';
 import { computeCampaignResult, loadCampaignSamples } from '../../server/results/results.service';
 import { seedDemo } from '../../seeds/demo';
 import { loadCampaignForUpload, storeSeries } from '../../server/uploads/uploads.service';
+import { startBenchTsa, stopBenchTsa } from './bench-tsa';
 
 const ROWS = Number(process.env.RECOMPUTE_ROWS ?? 1_000_000);
 const tmp = fs.mkdtempSync(path.join(os.tmpdir(), 'chronolevel-recompute-bench-'));
@@ -43,6 +44,7 @@ async function main() {
   const cluster = await startCluster({ dataDir: path.join(tmp, 'pg'), port, database: 'bench', log: () => {} });
   const ds = await openDatabase(cluster.url);
   try {
+    await startBenchTsa(tmp);
     await seedDemo(ds);
     const [{ id: campaignId }] = await ds.query("SELECT id FROM campaign WHERE state = 'draft' AND name LIKE 'SCL–HMO%' LIMIT 1");
     let t = performance.now();
@@ -87,6 +89,7 @@ async function main() {
     console.log(`peak RSS of this process: ${(Number(/VmHWM:\s+(\d+)/.exec(fs.readFileSync('/proc/self/status', 'utf8'))?.[1] ?? 0) / 1024).toFixed(0)} MB`);
   } finally {
     await ds.destroy();
+    await stopBenchTsa();
     await cluster.stop();
     fs.rmSync(tmp, { recursive: true, force: true });
   }
