@@ -1,4 +1,4 @@
-import { copyFileSync, mkdirSync } from 'node:fs';
+import { mkdirSync } from 'node:fs';
 import type { Browser, Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { caughtMail } from '../helpers/test-app';
@@ -31,7 +31,6 @@ async function signedIn(email: string, path: string): Promise<Page> {
   await signInWithBrowser(page, srv.baseUrl, email, path);
   return page;
 }
-const keep = (name: string) => copyFileSync(`test-results/${name}.png`, `/work/shots/after/${name}.png`);
 async function mailAbout(subject: string) {
   for (let i = 0; i < 40; i++) {
     const hit = (await caughtMail()).filter((m) => m.subject.includes(subject));
@@ -87,7 +86,6 @@ describe('review safeguards', () => {
     await timeline.getByText(series.sha256).waitFor();
     expect(await timeline.getByText('Checklist item ticked').count()).toBe(4);
     await screenshot(page, 'review-audit-trail');
-    keep('review-audit-trail');
     await page.context().close();
   });
 
@@ -146,7 +144,7 @@ describe('offset-over-time plot', () => {
     if (decimals[0] > 0) expect(ticks.some((t) => !t.endsWith('0'))).toBe(true);
     await plot.scrollIntoViewIfNeeded();
     await screenshot(page, 'plot-campaign-whole');
-    await plot.screenshot({ path: '/work/shots/after/campaign-plot.png' });
+    await plot.screenshot({ path: 'test-results/campaign-plot.png' });
 
     const box = (await plot.boundingBox())!;
     const refetch = page.waitForRequest((r) => r.url().includes('/series?') && r.url().includes('fromMjd='));
@@ -159,7 +157,7 @@ describe('offset-over-time plot', () => {
     await page.getByTestId('series-extremes').waitFor();
     await expect(page.getByTestId('plot-range').textContent()).resolves.toContain('(zoomed)');
     await page.waitForTimeout(300);
-    await plot.screenshot({ path: '/work/shots/after/campaign-plot-zoomed.png' });
+    await plot.screenshot({ path: 'test-results/campaign-plot-zoomed.png' });
     await screenshot(page, 'plot-campaign-zoomed');
 
     // The wheel zooms further around the pointer; "Whole series" goes back.
@@ -195,7 +193,6 @@ describe('network map', () => {
     await page.getByTestId('coastline').waitFor();
     await page.waitForTimeout(500);
     await screenshot(page, 'map-whole');
-    keep('map-whole');
     expect(overlapping(await labelBoxes(page))).toEqual([]);
     // A geodesic is sampled into many segments; the old drawing was one quadratic curve.
     const d = (await page.getByTestId('link-path').first().getAttribute('d'))!;
@@ -231,7 +228,6 @@ describe('network map', () => {
     await page.waitForTimeout(500);
     expect(overlapping(await labelBoxes(page))).toEqual([]);
     await screenshot(page, 'map-zoomed');
-    keep('map-zoomed');
     await page.keyboard.press('0');
     expect(await zoom()).toBe(1);
     await page.context().close();
@@ -250,7 +246,6 @@ describe('navigation', () => {
     expect(await page.getByText('Problem:').count()).toBe(0);
     await expect(page.getByTestId('not-found').textContent()).resolves.toContain('/sites/new');
     await screenshot(page, 'nav-not-found');
-    keep('nav-not-found');
     await page.context().close();
   });
 
@@ -266,7 +261,6 @@ describe('navigation', () => {
     await expect(page.getByTestId('verify-verdict').textContent()).resolves.toBe('Changed after signing');
     await expect(page.getByTestId('verify-result').textContent()).resolves.toMatch(/changed after signing/i);
     await screenshot(page, 'nav-verify-signed-in');
-    keep('nav-verify-signed-in');
     await page.context().close();
   });
 });
