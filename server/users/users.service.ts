@@ -25,7 +25,7 @@ export function toUserDto(u: UserRow) {
 }
 
 /**
- * Just-in-time provisioning. Who is authoritative (docs/decisions/0004-role-authority.md): the identity
+ * Just-in-time provisioning. Who is authoritative (docs/decisions/0006-role-authority.md): the identity
  * provider for identity (e-mail, display name) and for the role and institute of a person signing in for the
  * first time; from then on the local administrator. A later assertion with another role or institute changes
  * nothing here (the caller logs it), so a role set in the administration page stays.

@@ -10,7 +10,7 @@ import { createTestApp, signInAs, tokenFor, type TestApp } from '../helpers/test
 
 // Sessions and accounts (OWASP ASVS 4.0.3 V3.3.1 logout/expiry, V3.3.2 absolute and idle lifetimes, V3.3.4
 // administrators can end sessions, V3.5 token expiry) and the role-authority rule of
-// docs/decisions/0004-role-authority.md.
+// docs/decisions/0006-role-authority.md.
 type LogLine = { securityEvent?: string; reason?: string };
 const logLines: LogLine[] = [];
 const logger = pino({ level: 'info' }, { write: (s: string) => void logLines.push(JSON.parse(s) as LogLine) });
