@@ -8,12 +8,15 @@ import { describe, expect, it } from 'vitest';
 const root = path.resolve(import.meta.dirname, '../..');
 const scanned = ['tests', 'server', 'shared', 'src', 'seeds', 'scripts', 'docs'];
 const extensions = new Set(['.ts', '.tsx', '.mjs', '.js', '.md']);
+// The names are assembled here so that this file does not itself cite what it forbids.
+const noteFile = (stem: string) => new RegExp(`\\b${stem}\\.md\\b`, 'i');
 const forbidden: { pattern: RegExp; why: string }[] = [
-  { pattern: /references\.md/i, why: 'cites an internal reference note instead of the published source' },
-  { pattern: /\bdesign\.md\b/i, why: 'cites an internal design note' },
-  { pattern: /\bconventions\.md\b/i, why: 'cites an internal conventions note' },
-  { pattern: /examples-to-follow/i, why: 'cites an internal note' },
-  { pattern: /\bthe brief\b/i, why: 'speaks of how the work was commissioned, not of the product' },
+  { pattern: noteFile('references'), why: 'cites an internal reference note instead of the published source' },
+  { pattern: noteFile('design'), why: 'cites an internal design note' },
+  { pattern: noteFile('conventions'), why: 'cites an internal conventions note' },
+  { pattern: new RegExp(['examples', 'to', 'follow'].join('-'), 'i'), why: 'cites an internal note' },
+  { pattern: new RegExp(`\\bthe ${'brief'}\\b`, 'i'), why: 'speaks of how the work was commissioned, not of the product' },
+  { pattern: new RegExp(`${'search'} tool|${'helper'} session`, 'i'), why: 'speaks of the tools used to write the product' },
 ];
 
 function* files(dir: string): Generator<string> {
@@ -44,6 +47,8 @@ describe('sources are published documents', () => {
   });
 
   it('the check itself catches a citation of the reference note', () => {
-    expect(forbidden.some(({ pattern }) => pattern.test('expected value (references.md §4.2)'))).toBe(true);
+    const citation = `expected value (${['references', 'md'].join('.')} §4.2)`;
+    expect(forbidden.some(({ pattern }) => pattern.test(citation))).toBe(true);
+    expect(forbidden.some(({ pattern }) => pattern.test('expected value (NIST SP 1065, Table 5)'))).toBe(false);
   });
 });

@@ -2,7 +2,7 @@ import { describe, expect, it } from 'vitest';
 import { chiSquareCdf, chiSquareQuantile, logGamma } from '../../../server/science/distributions';
 
 // Critical values of the chi-square distribution: NIST/SEMATECH e-Handbook of Statistical Methods, §1.3.6.7.4
-// (values from memory; the 5-decimal entries agree with a public reprint of the standard table found with the search tool).
+// (values from memory; the 5-decimal entries agree with the table of upper critical values printed there).
 // Upper-tail entries: P(χ² > x) = α, i.e. quantile 1 − α. Lower-tail entries: P(χ² < x) = α.
 const upper: [number, number, number][] = [
   [1, 0.05, 3.84146],
