@@ -23,7 +23,7 @@ export function ReconciliationPage() {
         <>
           <Panel title="Potential differences per clock link">
             <p className="mb-2 text-xs text-ink-500">
-              Levelling side: adjustment run {r.levellingRunId ? <Link to={`/network/runs/${r.levellingRunId}`}>of {when(r.levellingRunAt)}</Link> : '—'} without clock observations.
+              Levelling side: adjustment run {r.levellingRunId ? <Link to={`/network/runs/${r.levellingRunId}`}>of {when(r.levellingRunAt)}</Link> : '—'} without clock observations.{' '}
               {typeset('Eₙ = (ΔC_clock − ΔC_levelling) / √(U_clock² + U_levelling²) (ISO 13528);')} |Eₙ| ≤ 1 means agreement. Eₙ is given only where both sites' heights are in one datum or levelling connects their datums; otherwise the levelled ΔC contains the unknown offset between the datums.
             </p>
             <div className="overflow-x-auto">
