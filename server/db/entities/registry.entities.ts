@@ -127,6 +127,8 @@ export interface ClockRow {
   species: SpeciesCode;
   nominalFrequencyHz: string;
   notes: string;
+  /** Stationary: always at siteId. Transportable: siteId is its home base; where it stood when is in clock_deployment. */
+  mobility: 'stationary' | 'transportable';
   currentBudgetVersion: number;
   createdAt: Date;
   updatedAt: Date;
@@ -143,6 +145,7 @@ export const ClockEntity = new EntitySchema<ClockRow>({
     species: { type: 'text' },
     nominalFrequencyHz: { name: 'nominal_frequency_hz', type: 'text' },
     notes: { type: 'text', default: '' },
+    mobility: { type: 'text', default: 'stationary' },
     currentBudgetVersion: { name: 'current_budget_version', type: 'int' },
     createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
     updatedAt: { name: 'updated_at', type: 'timestamptz', updateDate: true },
@@ -161,6 +164,8 @@ export interface ClockBudgetVersionRow {
   totalCorrection: number;
   totalUncertainty: number;
   comment: string | null;
+  /** The deployment this evaluation was made for (a transportable clock re-evaluated at a remote site); null: not tied. */
+  deploymentId: string | null;
   createdByUserId: string | null;
   createdBy: string;
   createdAt: Date;
@@ -176,9 +181,44 @@ export const ClockBudgetVersionEntity = new EntitySchema<ClockBudgetVersionRow>(
     totalCorrection: { name: 'total_correction', type: 'float8' },
     totalUncertainty: { name: 'total_uncertainty', type: 'float8' },
     comment: { type: 'text', nullable: true },
+    deploymentId: { name: 'deployment_id', type: 'uuid', nullable: true },
     createdByUserId: { name: 'created_by_user_id', type: 'uuid', nullable: true },
     createdBy: { name: 'created_by', type: 'text' },
     createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
+  },
+});
+
+export interface ClockDeploymentRow {
+  id: string;
+  clockId: string;
+  siteId: string;
+  site?: SiteRow;
+  arrivedAt: Date;
+  /** null: still there. */
+  departedAt: Date | null;
+  note: string;
+  createdByUserId: string | null;
+  createdBy: string;
+  createdAt: Date;
+  updatedAt: Date;
+}
+export const ClockDeploymentEntity = new EntitySchema<ClockDeploymentRow>({
+  name: 'ClockDeployment',
+  tableName: 'clock_deployment',
+  columns: {
+    id: { type: 'uuid', primary: true, generated: 'uuid' },
+    clockId: { name: 'clock_id', type: 'uuid' },
+    siteId: { name: 'site_id', type: 'uuid' },
+    arrivedAt: { name: 'arrived_at', type: 'timestamptz' },
+    departedAt: { name: 'departed_at', type: 'timestamptz', nullable: true },
+    note: { type: 'text', default: '' },
+    createdByUserId: { name: 'created_by_user_id', type: 'uuid', nullable: true },
+    createdBy: { name: 'created_by', type: 'text' },
+    createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
+    updatedAt: { name: 'updated_at', type: 'timestamptz', updateDate: true },
+  },
+  relations: {
+    site: { type: 'many-to-one', target: 'Site', joinColumn: { name: 'site_id' } },
   },
 });
 
@@ -249,6 +289,17 @@ export interface CampaignRow {
   clockB?: ClockRow;
   linkId: string;
   link?: FibreLinkRow;
+  /** remote: clocks at different sites, the result is a potential difference; side-by-side: the offset between the clocks. */
+  role: 'remote' | 'side-by-side';
+  /** Where clock A and clock B stood during the period (from their deployments; a database trigger fills the registered sites when omitted). */
+  siteAId: string;
+  siteA?: SiteRow;
+  siteBId: string;
+  siteB?: SiteRow;
+  /** Side-by-side only: C(site B) − C(site A) between the clocks' reference points [m²/s²], its standard uncertainty and source. */
+  localDeltaC_m2s2: number | null;
+  localDeltaCUncertainty_m2s2: number | null;
+  localTieSource: string | null;
   periodStart: Date;
   periodEnd: Date;
   referenceRatio: string;
@@ -286,6 +337,12 @@ export const CampaignEntity = new EntitySchema<CampaignRow>({
     clockAId: { name: 'clock_a_id', type: 'uuid' },
     clockBId: { name: 'clock_b_id', type: 'uuid' },
     linkId: { name: 'link_id', type: 'uuid' },
+    role: { type: 'text', default: 'remote' },
+    siteAId: { name: 'site_a_id', type: 'uuid' },
+    siteBId: { name: 'site_b_id', type: 'uuid' },
+    localDeltaC_m2s2: { name: 'local_delta_c_m2s2', type: 'float8', nullable: true },
+    localDeltaCUncertainty_m2s2: { name: 'local_delta_c_u_m2s2', type: 'float8', nullable: true },
+    localTieSource: { name: 'local_tie_source', type: 'text', nullable: true },
     periodStart: { name: 'period_start', type: 'timestamptz' },
     periodEnd: { name: 'period_end', type: 'timestamptz' },
     referenceRatio: { name: 'reference_ratio', type: 'text' },
@@ -314,6 +371,8 @@ export const CampaignEntity = new EntitySchema<CampaignRow>({
     clockA: { type: 'many-to-one', target: 'Clock', joinColumn: { name: 'clock_a_id' } },
     clockB: { type: 'many-to-one', target: 'Clock', joinColumn: { name: 'clock_b_id' } },
     link: { type: 'many-to-one', target: 'FibreLink', joinColumn: { name: 'link_id' } },
+    siteA: { type: 'many-to-one', target: 'Site', joinColumn: { name: 'site_a_id' } },
+    siteB: { type: 'many-to-one', target: 'Site', joinColumn: { name: 'site_b_id' } },
     budgetVersionA: { type: 'many-to-one', target: 'ClockBudgetVersion', joinColumn: { name: 'budget_version_a_id' } },
     budgetVersionB: { type: 'many-to-one', target: 'ClockBudgetVersion', joinColumn: { name: 'budget_version_b_id' } },
   },
@@ -344,4 +403,44 @@ export const CampaignEventEntity = new EntitySchema<CampaignEventRow>({
   },
 });
 
-export const registryEntities = [SiteEntity, QuasigeoidGridEntity, ClockEntity, ClockBudgetVersionEntity, ReferenceFrequencyEntity, FibreLinkEntity, CampaignEntity, CampaignEventEntity];
+export interface CalibrationChainRow {
+  id: string;
+  name: string;
+  instituteId: string;
+  transportableClockId: string;
+  referenceClockId: string;
+  remoteCampaignId: string;
+  beforeCampaignId: string | null;
+  afterCampaignId: string | null;
+  /** Entered transport reproducibility (fractional standard uncertainty) and its source; null: from the before/after difference. */
+  transportReproducibility: number | null;
+  transportReproducibilitySource: string | null;
+  notes: string;
+  createdByUserId: string | null;
+  createdBy: string;
+  createdAt: Date;
+  updatedAt: Date;
+}
+export const CalibrationChainEntity = new EntitySchema<CalibrationChainRow>({
+  name: 'CalibrationChain',
+  tableName: 'calibration_chain',
+  columns: {
+    id: { type: 'uuid', primary: true, generated: 'uuid' },
+    name: { type: 'text' },
+    instituteId: { name: 'institute_id', type: 'uuid' },
+    transportableClockId: { name: 'transportable_clock_id', type: 'uuid' },
+    referenceClockId: { name: 'reference_clock_id', type: 'uuid' },
+    remoteCampaignId: { name: 'remote_campaign_id', type: 'uuid' },
+    beforeCampaignId: { name: 'before_campaign_id', type: 'uuid', nullable: true },
+    afterCampaignId: { name: 'after_campaign_id', type: 'uuid', nullable: true },
+    transportReproducibility: { name: 'transport_reproducibility', type: 'float8', nullable: true },
+    transportReproducibilitySource: { name: 'transport_reproducibility_source', type: 'text', nullable: true },
+    notes: { type: 'text', default: '' },
+    createdByUserId: { name: 'created_by_user_id', type: 'uuid', nullable: true },
+    createdBy: { name: 'created_by', type: 'text' },
+    createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
+    updatedAt: { name: 'updated_at', type: 'timestamptz', updateDate: true },
+  },
+});
+
+export const registryEntities = [SiteEntity, QuasigeoidGridEntity, ClockEntity, ClockBudgetVersionEntity, ClockDeploymentEntity, CalibrationChainEntity, ReferenceFrequencyEntity, FibreLinkEntity, CampaignEntity, CampaignEventEntity];

@@ -17,6 +17,7 @@ import { ReviewDesk1765700000000 } from './1765700000000-review-desk';
 import { ListIndexes1765800000000 } from './1765800000000-list-indexes';
 import { SamplePartitions1765800001000 } from './1765800001000-sample-partitions';
 import { UploadProgress1765800002000 } from './1765800002000-upload-progress';
+import { TransportableClocks1766000000000 } from './1766000000000-transportable-clocks';
 
 // Every migration, in order. Add new ones at the end (file name: <timestamp>-<what>.ts).
 export const migrations = [
@@ -39,4 +40,5 @@ export const migrations = [
   ListIndexes1765800000000,
   SamplePartitions1765800001000,
   UploadProgress1765800002000,
+  TransportableClocks1766000000000,
 ];
