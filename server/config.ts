@@ -37,6 +37,13 @@ const envSchema = z.object({
   TSA_ROOT_CERT_FILE: z.string().optional(),
   DB_POOL_MAX: z.coerce.number().int().min(2).max(500).default(20),
   DB_IDLE_IN_TRANSACTION_TIMEOUT_MS: z.coerce.number().int().min(1000).default(60_000),
+  /** hot standbys for read routes, comma-separated postgres:// URLs (docs/operations.md, "Read replicas") */
+  DATABASE_REPLICA_URLS: z.string().optional(),
+  /** a standby further behind than this takes no reads (they go to the primary) */
+  REPLICA_MAX_LAG_SECONDS: z.coerce.number().positive().default(10),
+  REPLICA_CHECK_INTERVAL_MS: z.coerce.number().int().min(50).default(1000),
+  /** after a write, its caller reads from the primary until a standby has replayed it, at most this long */
+  REPLICA_READ_AFTER_WRITE_SECONDS: z.coerce.number().int().min(1).default(60),
   /** longest time one upload's COPY may run (a slow client included) before PostgreSQL cancels it */
   UPLOAD_STATEMENT_TIMEOUT_MS: z.coerce.number().int().min(1000).default(20 * 60_000),
   /** a file part that sends no byte for this long is treated as abandoned */
@@ -86,7 +93,7 @@ export type AppConfig = {
   devServicesOffLoopback: boolean;
   tsaUrl: string;
   tsaRootCertFile: string;
-  db: { poolMax: number; idleInTransactionTimeoutMs: number };
+  db: { poolMax: number; idleInTransactionTimeoutMs: number; replicas?: { urls: string[]; maxLagSeconds: number; checkIntervalMs: number; readAfterWriteSeconds: number } };
   upload: { statementTimeoutMs: number; idleTimeoutMs: number; maxLineBytes: number; sectionsLimitBytes: number };
   /** requests per minute per caller (user, else client address); `enabled: false` turns every limiter off */
   rateLimits: { enabled: boolean; signInPerMinute: number; verifyPerMinute: number; calcPerMinute: number; uploadsPerMinute: number };
@@ -108,6 +115,10 @@ export function persistentSecret(secretsDir: string, name: string): string {
 export function loadConfig(env: NodeJS.ProcessEnv = process.env): AppConfig {
   const e = envSchema.parse(env);
   const secretsDir = path.resolve(e.SECRETS_DIR);
+  const replicaUrls = (e.DATABASE_REPLICA_URLS ?? '').split(',').map((u) => u.trim()).filter(Boolean);
+  for (const u of replicaUrls) {
+    if (!/^postgres(ql)?:\/\//.test(u)) throw new Error(`DATABASE_REPLICA_URLS: "${u.replace(/\/\/[^@]*@/, '//…@')}" is not a postgres:// URL`);
+  }
   return {
     env: e.NODE_ENV,
     host: e.HOST,
@@ -133,7 +144,12 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): AppConfig {
     devServicesOffLoopback: e.DEV_SERVICES_OFF_LOOPBACK === '1',
     tsaUrl: e.TSA_URL.replace(/\/$/, ''),
     tsaRootCertFile: e.TSA_ROOT_CERT_FILE ?? path.join(secretsDir, 'tsa', 'tsa-root.pem'),
-    db: { poolMax: e.DB_POOL_MAX, idleInTransactionTimeoutMs: e.DB_IDLE_IN_TRANSACTION_TIMEOUT_MS },
+    db: {
+      poolMax: e.DB_POOL_MAX, idleInTransactionTimeoutMs: e.DB_IDLE_IN_TRANSACTION_TIMEOUT_MS,
+      replicas: replicaUrls.length
+        ? { urls: replicaUrls, maxLagSeconds: e.REPLICA_MAX_LAG_SECONDS, checkIntervalMs: e.REPLICA_CHECK_INTERVAL_MS, readAfterWriteSeconds: e.REPLICA_READ_AFTER_WRITE_SECONDS }
+        : undefined,
+    },
     upload: {
       statementTimeoutMs: e.UPLOAD_STATEMENT_TIMEOUT_MS, idleTimeoutMs: e.UPLOAD_IDLE_TIMEOUT_MS, maxLineBytes: e.UPLOAD_MAX_LINE_BYTES,
       sectionsLimitBytes: e.SECTIONS_UPLOAD_LIMIT_BYTES,

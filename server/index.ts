@@ -3,6 +3,7 @@ import type { Server } from 'node:http';
 import { createApp } from './app';
 import { loadConfig } from './config';
 import { openDatabase } from './db/data-source';
+import { replicationHealth } from './db/replicas';
 import { startHousekeeping } from './maintenance/housekeeping';
 import { closeStabilityPool, configureStabilityPool } from './calc/stability-pool';
 import { startFakeIdp } from './dev/fake-idp';
@@ -49,7 +50,9 @@ async function main() {
   const dataSource = await openDatabase(config.databaseUrl, {
     migrate: !migrationUrl && process.env.CHRONOLEVEL_MIGRATED !== '1',
     pool: { max: config.db.poolMax, idleInTransactionTimeoutMs: config.db.idleInTransactionTimeoutMs },
+    replicas: config.db.replicas,
   });
+  if (config.db.replicas) logger.info({ replicas: replicationHealth(dataSource).replicas }, 'read replicas configured');
   closers.push(() => dataSource.destroy());
   for (const w of await privilegeWarnings(dataSource)) logger.warn(`WARNING: ${w}`);
   if (process.env.CHRONOLEVEL_SEED !== '0') {

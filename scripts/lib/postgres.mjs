@@ -114,6 +114,38 @@ export async function startCluster({ dataDir, port, database, log = console.log 
   return { url: `postgres://chronolevel@127.0.0.1:${port}/${database}`, port, stop };
 }
 
+/**
+ * A hot standby of a running cluster (started by startCluster) on 127.0.0.1:port: `pg_basebackup -R` (a base backup
+ * that writes standby.signal and primary_conninfo) streams from the primary over loopback, then the standby starts.
+ * Returns { url, port, stop, start, sql } where sql(text) runs a statement on the standby as the superuser.
+ */
+export async function startStandby({ primaryPort, dataDir, port, log = console.log }) {
+  const binDir = ensurePostgresBinaries(log);
+  fs.mkdirSync(path.dirname(dataDir), { recursive: true });
+  if (isRoot) {
+    const user = ensureUnprivilegedUser();
+    fs.mkdirSync(dataDir, { recursive: true });
+    execFileSync('chown', ['-R', `${user}:`, dataDir]);
+  }
+  const b = runPg(binDir, 'pg_basebackup', ['-h', '127.0.0.1', '-p', String(primaryPort), '-U', 'chronolevel', '-D', dataDir, '-R', '-X', 'stream', '-c', 'fast']);
+  if (b.status !== 0) throw new Error(`pg_basebackup failed: ${b.stderr || b.stdout}`);
+  fs.chmodSync(dataDir, 0o700);
+  const logFile = path.join(dataDir, 'server.log');
+  const opts = `-c listen_addresses=127.0.0.1 -p ${port} -k ${dataDir} -c fsync=${process.env.PG_FSYNC ?? 'on'} -c max_connections=200 -c hot_standby=on -c wal_receiver_status_interval=1s`;
+  const start = () => {
+    const r = runPg(binDir, 'pg_ctl', ['-D', dataDir, '-l', logFile, '-o', opts, '-w', '-t', '60', 'start']);
+    if (r.status !== 0) {
+      const tail = fs.existsSync(logFile) ? fs.readFileSync(logFile, 'utf8').split('\n').slice(-15).join('\n') : '';
+      throw new Error(`standby did not start: ${r.stderr || r.stdout}\n${tail}`);
+    }
+  };
+  const stop = () => {
+    runPg(binDir, 'pg_ctl', ['-D', dataDir, '-m', 'fast', '-w', 'stop']);
+  };
+  start();
+  return { url: `postgres://chronolevel@127.0.0.1:${port}/postgres`, port, start, stop };
+}
+
 // Two roles instead of the superuser (see docs/operations.md, "Database roles"): the owner runs migrations and owns
 // the schema; the application role has ordinary DML, but only INSERT and SELECT on the audit tables, and as a
 // non-owner cannot ALTER the tables or DISABLE their triggers. Roles are cluster-wide, so databases cloned with

@@ -6,6 +6,7 @@ import type { Strategy as SamlStrategy } from '@node-saml/passport-saml';
 import type { DataSource } from 'typeorm';
 import type { AppConfig } from '../config';
 import { Unauthenticated } from '../http/errors';
+import { noteWrite } from '../db/replicas';
 import { decodeSamlResponse, inspectSamlResponse, reasonFromLibraryError, SAML_LIMITS, SamlRefusal, scanSamlXml } from './saml-guard';
 import { callbackUrlOf, idpIssuerOf, newRequestId, pendingRequestId } from './saml';
 
@@ -109,10 +110,13 @@ export function createAuthRouter(strategy: SamlStrategy, ctx: { config: AppConfi
           req.session.signedInAt = Date.now();
           req.session.save((saveErr) => {
             if (saveErr) return next(saveErr);
-            res.clearCookie(BINDING_COOKIE, cookieOptions);
-            req.log.info({ securityEvent: 'saml.accepted', userId: user.id }, 'signed in');
-            const relay = safeReturnPath(req.body?.RelayState);
-            res.redirect(303, relay);
+            // with read replicas: this person's next reads see the account sign-in may have just made or updated
+            noteWrite(dataSource, user.id).then(() => {
+              res.clearCookie(BINDING_COOKIE, cookieOptions);
+              req.log.info({ securityEvent: 'saml.accepted', userId: user.id }, 'signed in');
+              const relay = safeReturnPath(req.body?.RelayState);
+              res.redirect(303, relay);
+            }, next);
           });
         });
       })(req, res, next);

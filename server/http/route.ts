@@ -3,6 +3,7 @@ import { z } from 'zod';
 import type { Actor } from '../auth/actor';
 import { authorize, type Permission } from '../auth/permissions';
 import type { AppDeps } from '../deps';
+import { onDatabase, type DbAccess } from '../db/replicas';
 import { Invalid, Unauthenticated } from './errors';
 
 type Method = 'get' | 'post' | 'put' | 'patch' | 'delete';
@@ -40,6 +41,12 @@ export type RouteSpec<B = unknown, Q = unknown, P = unknown> = {
   formFields?: Record<string, Record<string, unknown>>;
   /** further problem statuses the route answers with (409, 413, …), beyond 400/401/403/404 */
   problems?: number[];
+  /**
+   * Where its queries go when read replicas are configured (docs/decisions/0009-read-replicas.md): 'read' (the
+   * default for GET) may use a standby; 'primary' reads on the primary; 'write' (the default for other methods) runs
+   * on the primary and keeps the caller's next reads there until a standby has replayed the write.
+   */
+  db?: DbAccess;
   handler: (ctx: RouteContext<B, Q, P>) => Promise<unknown>;
 };
 
@@ -74,7 +81,8 @@ export function mountRoutes(router: Router, routes: RouteSpec[], deps: AppDeps):
         const params = parsePart(spec.params, req.params, 'params');
         const query = parsePart(spec.query, req.query, 'query');
         const body = spec.multipart ? undefined : parsePart(spec.body, req.body ?? {}, 'body');
-        const result = await spec.handler({ actor: actor as Actor, body, query, params, req, res, deps });
+        const access = spec.db ?? (spec.method === 'get' ? 'read' : 'write');
+        const result = await onDatabase(deps.dataSource, access, actor?.userId ?? null, () => spec.handler({ actor: actor as Actor, body, query, params, req, res, deps }));
         if (spec.raw) return;
         if (result === undefined) {
           res.status(spec.successStatus ?? 204).end();

@@ -79,6 +79,7 @@ export const foundationRoutes = [
   route({
     method: 'get', path: '/api/v1/dev/mailbox', summary: 'Messages caught by the local test mailbox (development)', tag: 'admin', permission: 'mailbox:read',
     response: z.array(z.object({ id: z.number(), receivedAt: z.string(), from: z.string(), to: z.array(z.string()), subject: z.string(), text: z.string() })),
+    db: 'primary', // sends the queued mail first (outbox rows are updated): never on a read replica
     handler: async ({ deps }) => {
       await deps.mail.flush();
       const res = await fetch(`${deps.config.mailboxUrl}/messages`).catch(() => null);

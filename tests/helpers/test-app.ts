@@ -60,7 +60,7 @@ export async function createTestApp(
     LOG_LEVEL: 'silent',
     ...opts.env,
   });
-  const ds = await openDatabase(databaseUrl, { migrate: false });
+  const ds = await openDatabase(databaseUrl, { migrate: false, replicas: config.db.replicas });
   if (opts.seed !== false && !opts.databaseUrl) await seedDemo(ds);
   const logger = opts.logger ?? pino({ level: 'silent' });
   const mail = createMailSender({ dataSource: ds, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
