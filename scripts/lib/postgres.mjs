@@ -117,7 +117,7 @@ export async function startCluster({ dataDir, port, database, log = console.log 
 /**
  * A hot standby of a running cluster (started by startCluster) on 127.0.0.1:port: `pg_basebackup -R` (a base backup
  * that writes standby.signal and primary_conninfo) streams from the primary over loopback, then the standby starts.
- * Returns { url, port, stop, start, sql } where sql(text) runs a statement on the standby as the superuser.
+ * Returns { url, port, stop, start } (start again after a stop: the standby resumes streaming).
  */
 export async function startStandby({ primaryPort, dataDir, port, log = console.log }) {
   const binDir = ensurePostgresBinaries(log);
