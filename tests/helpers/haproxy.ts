@@ -17,14 +17,23 @@ export function haproxyBinary(): string {
   return bin;
 }
 
-export async function startHaproxy(opts: { port: number; backends: number[] }): Promise<{ url: string; stop: () => Promise<void> }> {
+export type HaproxyServerStats = { name: string; status: string; checksDown: number; downtimeSeconds: number; responses5xx: number; sessions: number };
+export type HaproxyStats = { servers: HaproxyServerStats[]; frontend5xx: number; backend5xx: number; noServerAvailable: number };
+
+/**
+ * `checkPath` is the health check haproxy sends every 500 ms (default: the liveness check, which does not degrade
+ * under load). `statsPort` opens haproxy's statistics page on loopback so a caller can read check failures and which
+ * 5xx answers came from the balancer itself rather than from an HTTP process.
+ */
+export async function startHaproxy(opts: { port: number; backends: number[]; checkPath?: string; statsPort?: number }): Promise<{ url: string; stop: () => Promise<void>; stats: () => Promise<HaproxyStats> }> {
   const dir = fs.mkdtempSync(path.join(os.tmpdir(), 'chronolevel-haproxy-'));
   const cfg = path.join(dir, 'haproxy.cfg');
   fs.writeFileSync(cfg, [
     'global', '  maxconn 4096',
     'defaults', '  mode http', '  timeout connect 5s', '  timeout client 120s', '  timeout server 120s', '  option http-keep-alive',
     'frontend api', `  bind 127.0.0.1:${opts.port}`, '  default_backend app',
-    'backend app', '  balance roundrobin', '  option httpchk GET /api/health', '  http-check expect status 200',
+    ...(opts.statsPort ? ['frontend stats', `  bind 127.0.0.1:${opts.statsPort}`, '  stats enable', '  stats uri /stats'] : []),
+    'backend app', '  balance roundrobin', `  option httpchk GET ${opts.checkPath ?? '/api/live'}`, '  http-check expect status 200',
     ...opts.backends.map((p, i) => `  server app${i} 127.0.0.1:${p} check inter 500ms`),
     '',
   ].join('\n'));
@@ -47,7 +56,26 @@ export async function startHaproxy(opts: { port: number; backends: number[] }): 
   }
   // Let the health checks mark every backend up.
   await new Promise((r) => setTimeout(r, 1200));
+  const stats = async (): Promise<HaproxyStats> => {
+    if (!opts.statsPort) throw new Error('haproxy was started without statsPort');
+    const csv = await (await fetch(`http://127.0.0.1:${opts.statsPort}/stats;csv`)).text();
+    const [head, ...rows] = csv.replace(/^# /, '').trim().split('\n').map((l) => l.split(','));
+    const col = (row: string[], name: string) => row[head.indexOf(name)] ?? '';
+    const num = (row: string[], name: string) => Number(col(row, name) || 0);
+    const app = rows.filter((r) => col(r, 'pxname') === 'app');
+    const backend = app.find((r) => col(r, 'svname') === 'BACKEND');
+    const frontend = rows.find((r) => col(r, 'pxname') === 'api' && col(r, 'svname') === 'FRONTEND');
+    const servers = app.filter((r) => col(r, 'svname').startsWith('app')).map((r) => ({
+      name: col(r, 'svname'), status: col(r, 'status'), checksDown: num(r, 'chkdown'), downtimeSeconds: num(r, 'downtime'),
+      responses5xx: num(r, 'hrsp_5xx'), sessions: num(r, 'stot'),
+    }));
+    const backend5xx = backend ? num(backend, 'hrsp_5xx') : 0;
+    // 5xx answers that no HTTP process sent: haproxy's own "no server is available" (503) and the like
+    const frontend5xx = frontend ? num(frontend, 'hrsp_5xx') : 0;
+    return { servers, frontend5xx, backend5xx, noServerAvailable: frontend5xx - servers.reduce((a, s) => a + s.responses5xx, 0) };
+  };
   return {
+    stats,
     url: `http://127.0.0.1:${opts.port}`,
     stop: async () => {
       child.kill('SIGTERM');
