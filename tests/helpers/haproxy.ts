@@ -25,16 +25,19 @@ export type HaproxyStats = { servers: HaproxyServerStats[]; frontend5xx: number;
  * under load). `statsPort` opens haproxy's statistics page on loopback so a caller can read check failures and which
  * 5xx answers came from the balancer itself rather than from an HTTP process.
  */
-export async function startHaproxy(opts: { port: number; backends: number[]; checkPath?: string; statsPort?: number }): Promise<{ url: string; stop: () => Promise<void>; stats: () => Promise<HaproxyStats> }> {
+export async function startHaproxy(opts: { port: number; backends: number[]; checkPath?: string; statsPort?: number; maxConnPerServer?: number }): Promise<{ url: string; stop: () => Promise<void>; stats: () => Promise<HaproxyStats> }> {
   const dir = fs.mkdtempSync(path.join(os.tmpdir(), 'chronolevel-haproxy-'));
   const cfg = path.join(dir, 'haproxy.cfg');
   fs.writeFileSync(cfg, [
     'global', '  maxconn 4096',
-    'defaults', '  mode http', '  timeout connect 5s', '  timeout client 120s', '  timeout server 120s', '  option http-keep-alive',
+    // `timeout check`: without it haproxy gives a check only `inter` to answer, and a busy event loop misses that.
+    // Per-server maxconn lets haproxy queue the excess (timeout queue) instead of piling it onto a process.
+    'defaults', '  mode http', '  timeout connect 5s', '  timeout client 120s', '  timeout server 120s', '  timeout check 3s', '  timeout queue 60s', '  option http-keep-alive',
     'frontend api', `  bind 127.0.0.1:${opts.port}`, '  default_backend app',
     ...(opts.statsPort ? ['frontend stats', `  bind 127.0.0.1:${opts.statsPort}`, '  stats enable', '  stats uri /stats'] : []),
     'backend app', '  balance roundrobin', `  option httpchk GET ${opts.checkPath ?? '/api/live'}`, '  http-check expect status 200',
-    ...opts.backends.map((p, i) => `  server app${i} 127.0.0.1:${p} check inter 500ms`),
+    `  default-server check inter 500ms fall 3 rise 2 maxconn ${opts.maxConnPerServer ?? 32}`,
+    ...opts.backends.map((p, i) => `  server app${i} 127.0.0.1:${p}`),
     '',
   ].join('\n'));
   const child: ChildProcess = spawn(haproxyBinary(), ['-f', cfg, '-db'], { stdio: ['ignore', 'ignore', 'pipe'] });
