@@ -121,6 +121,7 @@ async function main() {
         measured: `${c.rps.toFixed(0)} req/s; p97.5 ${c.p95} ms; ${c.errors} + ${c.non2xx} (${c.fromBalancer} from haproxy)`,
         target: at200 ? 'p95 < 200 ms, 0 errors' : '0 errors',
         met: at200 ? c.p95 < 200 && c.errors + c.non2xx === 0 : c.errors + c.non2xx === 0,
+        load: Number(c.load),
       });
     }
   } finally {
