@@ -25,12 +25,12 @@ import { findActorByUserId } from './users/users.service';
 
 /**
  * One concise line per API request when it finishes: method, path (never the query string, which could hold a
- * secret), status, milliseconds and the actor's id. No headers; nothing for static assets or /api/health.
+ * secret), status, milliseconds and the actor's id. No headers; nothing for static assets, /api/health or /api/live.
  */
 export function requestLine(logger: AppDeps['logger']) {
   return (req: Request, res: Response, next: NextFunction) => {
     const p = req.originalUrl.split('?')[0];
-    if (!(p.startsWith('/api/') || p.startsWith('/auth/')) || p === '/api/health') return next();
+    if (!(p.startsWith('/api/') || p.startsWith('/auth/')) || p === '/api/health' || p === '/api/live') return next();
     const t0 = process.hrtime.bigint();
     res.once('finish', () => {
       const ms = Math.round(Number(process.hrtime.bigint() - t0) / 1e5) / 10;

@@ -45,4 +45,14 @@ export const healthRoutes = [
     },
     raw: true,
   }),
+  // For load balancers: "this process answers HTTP". It never touches the database and never degrades under load,
+  // so a balancer that checks it keeps a busy process in rotation; /api/health stays the honest readiness report.
+  route({
+    method: 'get', path: '/api/live', summary: 'Liveness for load balancers: the process answers (no database access; never 503 under load)', tag: 'health', permission: 'public',
+    response: z.object({ status: z.literal('alive'), uptimeSeconds: z.number() }),
+    handler: async ({ res }) => {
+      res.status(200).json({ status: 'alive', uptimeSeconds: Math.round(process.uptime()) });
+    },
+    raw: true,
+  }),
 ];

@@ -5,7 +5,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { UserEntity } from '../../server/db/entities/core.entities';
 import { createTestApp, tokenFor, type TestApp } from '../helpers/test-app';
 
-// One concise line per API request (method, path, status, ms, actor), no headers, nothing for /api/health or static files.
+// One concise line per API request (method, path, status, ms, actor), no headers, nothing for /api/health, /api/live or static files.
 const lines: Record<string, unknown>[] = [];
 const raw: string[] = [];
 const sink = new Writable({
@@ -62,9 +62,10 @@ describe('request log', () => {
     expect(mine).toEqual([expect.objectContaining({ method: 'GET', path: '/api/v1/me', status: 401, actor: null })]);
   });
 
-  it('writes nothing for /api/health or a static asset', async () => {
+  it('writes nothing for /api/health, the balancer\'s /api/live or a static asset', async () => {
     const before = lines.length;
     await request(t.app).get('/api/health');
+    expect((await request(t.app).get('/api/live')).status).toBe(200);
     await request(t.app).get('/assets/index-abc123.js');
     await new Promise((r) => setImmediate(r));
     expect(lines.slice(before).filter((l) => l.msg === 'request')).toEqual([]);
