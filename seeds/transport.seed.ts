@@ -78,7 +78,7 @@ export const transportSeeder: Seeder = {
     const sr1Budget = await manager.getRepository(ClockBudgetVersionEntity).findOneByOrFail({ clockId: sr1.id, version: sr1.currentBudgetVersion });
 
     const site = async (s: { institute: string; name: string; ref: string; lat: number; lon: number; normalHeightM: number; zeta: number; uZeta: number; tie: [string, number, number]; at: string }) => {
-      const coords = [s.lon, s.lat, s.normalHeightM + s.zeta];
+      const coords = [Math.round(s.lon * 1e7) / 1e7, Math.round(s.lat * 1e7) / 1e7, Math.round((s.normalHeightM + s.zeta) * 1000) / 1000];
       const p = toGrs80Geodetic('EPSG:4937', coords);
       return sites.save({
         instituteId: instituteIds[s.institute], name: s.name, referencePoint: s.ref, crs: 'EPSG:4937', coordinates: coords,

@@ -58,7 +58,7 @@ export function SitePage() {
         <SiteTiePanel site={s} canEdit={canChangeInstituteRecord(me.data, s.institute.id)} />
       </div>
       {canChangeInstituteRecord(me.data, s.institute.id) && <EditSitePanel site={s} />}
-      <Panel title="Clocks at this site">
+      <Panel title="Clocks registered here (home site)">
         <ul className="text-sm">{clocks.data?.items.map((c) => <li key={c.id}><Link to={`/clocks/${c.id}`}>{c.name}</Link> · {c.speciesLabel}</li>)}</ul>
         {clocks.data?.items.length === 0 && <p className="text-sm text-ink-500">None yet.</p>}
       </Panel>
