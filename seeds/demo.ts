@@ -5,6 +5,7 @@ import { demoInstitutes, demoPeople } from './people';
 import { certificatesSeeder } from './certificates.seed';
 import { networkSeeder } from './network.seed';
 import { registrySeeder } from './registry.seed';
+import { transportSeeder } from './transport.seed';
 import { uploadsSeeder } from './uploads.seed';
 
 // Loads the invented demo scenario into an empty database. Every name, place and number here is made up.
@@ -46,6 +47,7 @@ export async function seedDemo(ds: DataSource, log: (msg: string) => void = () =
 }
 
 featureSeeders.push(registrySeeder);
+featureSeeders.push(transportSeeder);
 featureSeeders.push(uploadsSeeder);
 // The levelling network goes last: its stored demo adjustment run includes the sites' ties when the registry is seeded.
 featureSeeders.push(networkSeeder);

@@ -145,6 +145,27 @@ export const resultBodySchema = z.object({
   stability: z.object({ tau0Seconds: z.number(), points: z.array(stabilityPointSchema), note: z.string() }),
   timeSeries: z.array(seriesPointSchema),
   method: z.object({ statement: z.string(), sources: z.array(z.string()) }),
+  /**
+   * Side-by-side campaigns only: the offset between the two clocks, y − ΔC_local/c², with the local tie it was
+   * corrected for (standard uncertainties, k and p stated). Null (or absent in older results) for a remote campaign.
+   */
+  sideBySide: z.object({
+    offset: z.number(),
+    standardUncertainty: z.number(),
+    expandedUncertainty: z.number(),
+    coverageFactor: z.number(),
+    coverageProbability: z.number(),
+    yMeasured: z.number(),
+    uYMeasured: z.number(),
+    localDeltaC_m2s2: z.number(),
+    localDeltaCUncertainty_m2s2: z.number(),
+    localTieY: z.number(),
+    localTieSource: z.string(),
+    sites: z.object({ a: z.string(), b: z.string() }),
+    formula: z.string(),
+    sources: z.array(z.string()),
+    offsetText: z.string(),
+  }).nullable().optional(),
   /** What the result takes for granted: correlations, corrections applied by the labs, tide model, frames. */
   assumptions: z.array(z.string()),
   cautions: z.array(z.string()),

@@ -9,7 +9,10 @@ import type { ComparisonResultDto } from '../../shared/results';
 export function reviewExceptions(result: ComparisonResultDto['result'] | null, minUptimeFraction: number, noResultReason?: string): ReviewException[] {
   if (!result) return [{ code: 'no-result', text: `No result could be computed${noResultReason ? `: ${noResultReason}` : ''}.` }];
   const out: ReviewException[] = [];
-  if (!result.geodesy) out.push({ code: 'no-comparison', text: 'The result holds no geodetic height difference, so no Eₙ can be stated.' });
+  // A side-by-side campaign measures the offset between two clocks: no geodetic comparison is expected of it.
+  if (result.sideBySide) {
+    // nothing to compare with the levelling
+  } else if (!result.geodesy) out.push({ code: 'no-comparison', text: 'The result holds no geodetic height difference, so no Eₙ can be stated.' });
   else if (!result.geodesy.agreed) out.push({ code: 'en-not-agreed', text: `Eₙ = ${result.geodesy.en.toFixed(2)}: clock and levelling do not agree (|Eₙ| > 1).` });
   const uptime = result.samples.uptimeFraction;
   if (uptime < minUptimeFraction) {

@@ -13,6 +13,7 @@ import { stabilityPointDto } from '../calc/calc.service';
 import { coverageText, formatForUncertainty } from '../../shared/number-text';
 import { convertPotentialDifference, tidePotentialSeries, type TideSystem } from '../science/tides';
 import { ScienceInputError } from '../science/errors';
+import { sideBySideOffset } from '../science/side-by-side';
 import { registeredHeightDifference, TideSystemNotStated } from '../science/registered-heights';
 import { formatScientific } from '../certificates/pdf/number-format';
 import { faultPointSync } from '../dev/fault-point';
@@ -52,9 +53,10 @@ const MAX_SERIES_POINTS = 1500;
  * Revision of the computation and of the stored result's shape within one software version; a stored result of an
  * older revision is recomputed. 2: τ0 snapped to the microsecond, empty series buckets kept as nulls. 3: noise identified
  * at each τ, u(ȳ) by noise type with its EDF, k = t_p(ν_eff), Hadamard/total deviation, assumptions. 4: registered
- * heights converted between tide systems, with the correlation model for ζ and h.
+ * heights converted between tide systems, with the correlation model for ζ and h. 5: sites from the campaign
+ * (where the clocks were deployed), side-by-side section with the offset corrected for the local tie.
  */
-const RESULT_REVISION = 4;
+const RESULT_REVISION = 5;
 
 /** Share of u_c² above which the reference-ratio term is said to dominate (more than half the variance). */
 const REFERENCE_RATIO_DOMINANT_SHARE = 0.5;
@@ -72,6 +74,7 @@ export function inputHashOf(campaign: CampaignForResult, files: readonly InputFi
     link: [campaign.link.id, campaign.link.fractionalUncertainty],
     sites: [site(campaign.clockA), site(campaign.clockB)],
     period: [campaign.periodStart, campaign.periodEnd],
+    role: [campaign.role, campaign.localTie?.deltaC_m2s2 ?? null, campaign.localTie?.uncertainty_m2s2 ?? null],
     softwareVersion,
     resultRevision: RESULT_REVISION,
   };
@@ -305,7 +308,32 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
     };
   }
 
+  let sideBySide: ResultBody['sideBySide'] = null;
+  if (campaign.role === 'side-by-side' && campaign.localTie) {
+    const o = sideBySideOffset(yMean, uY, { deltaC_m2s2: campaign.localTie.deltaC_m2s2, uDeltaC_m2s2: campaign.localTie.uncertainty_m2s2 }, k);
+    sideBySide = {
+      offset: o.offset,
+      standardUncertainty: o.standardUncertainty,
+      expandedUncertainty: o.expandedUncertainty,
+      coverageFactor: k,
+      coverageProbability: COVERAGE_PROBABILITY_K2,
+      yMeasured: o.yMeasured,
+      uYMeasured: o.uYMeasured,
+      localDeltaC_m2s2: campaign.localTie.deltaC_m2s2,
+      localDeltaCUncertainty_m2s2: campaign.localTie.uncertainty_m2s2,
+      localTieY: o.yLocal,
+      localTieSource: campaign.localTie.source,
+      sites: { a: a.site.name, b: b.site.name },
+      formula: 'offset = y − ΔC_local/c², u² = u²(y) + (u(ΔC_local)/c²)² (uncorrelated inputs); ΔC_local = C(site B) − C(site A)',
+      sources: ['Redshift relation y = ΔC/c² to first order (docs/science.md; IERS Conventions 2010, TN 36, ch. 10)', 'JCGM 100:2008 (GUM), eq. 10'],
+      offsetText: formatForUncertainty(o.offset, o.standardUncertainty),
+    };
+  }
+
   const cautions: string[] = [];
+  if (sideBySide) {
+    cautions.push(`Side-by-side campaign: the result is the offset between ${b.name} and ${a.name} (corrected for the local tie), not a potential difference. The ΔC and ΔH figures below include that offset; the campaign does not enter the network adjustment or the reconciliation.`);
+  }
   const referenceShare = budget.lines[4].varianceShare;
   if (referenceShare > REFERENCE_RATIO_DOMINANT_SHARE) {
     cautions.push(`The reference-ratio term dominates the combined uncertainty (${(100 * referenceShare).toFixed(0)} % of u_c²): the result is limited by the value of R0 (${campaign.referenceRatio.source}), not by the comparison.`);
@@ -380,6 +408,7 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
       method: 'H_B = C_B/γ̄_B with C_B = C_A + ΔC and C_A = H_A·γ̄_A (GRS80 mean normal gravity along each normal plumb line, Heiskanen & Moritz 1967 eq. 4-42); ΔH = H_B − H_A (normal heights).',
     },
     geodesy,
+    sideBySide,
     otherTideSystems,
     w0Convention: {
       name: 'IHRS W0 (heights)',

@@ -7,6 +7,7 @@ import type {
 import type { z } from 'zod';
 import type { updateClockSchema, updateLinkSchema } from '../../shared/registry';
 import { api } from '../lib/api-client';
+import type { ClockDeployments, CreateDeployment, Deployment, SiteClocks, UpdateDeployment } from '../../shared/deployments';
 
 type UpdateClock = z.input<typeof updateClockSchema>;
 type UpdateLink = z.input<typeof updateLinkSchema>;
@@ -25,6 +26,8 @@ export const registryKeys = {
   references: () => [...registryKeys.all, 'references'] as const,
   links: (p: RegistryListParams) => [...registryKeys.all, 'links', p] as const,
   link: (id: string) => [...registryKeys.all, 'link', id] as const,
+  deployments: (clockId: string) => [...registryKeys.all, 'deployments', clockId] as const,
+  siteClocks: (siteId: string) => [...registryKeys.all, 'site-clocks', siteId] as const,
 };
 
 export function queryString(p: Record<string, unknown>) {
@@ -66,3 +69,12 @@ export const useCreateLink = () => useRegistryMutation((body: CreateLink) => api
 export const useCreateReference = () => useRegistryMutation((body: ReferenceFrequencyInput) => api<ReferenceFrequency>('/api/v1/reference-frequencies', { body }));
 export const useUpdateReference = () =>
   useRegistryMutation(({ id, body }: { id: string; body: Partial<ReferenceFrequencyInput> }) => api<ReferenceFrequency>(`/api/v1/reference-frequencies/${id}`, { method: 'PATCH', body }));
+export const useDeployments = (clockId: string) =>
+  useQuery({ queryKey: registryKeys.deployments(clockId), queryFn: () => api<ClockDeployments>(`/api/v1/clocks/${clockId}/deployments`) });
+export const useSiteClocks = (siteId: string) => useQuery({ queryKey: registryKeys.siteClocks(siteId), queryFn: () => api<SiteClocks>(`/api/v1/sites/${siteId}/clocks`) });
+export const useAddDeployment = () =>
+  useRegistryMutation(({ clockId, body }: { clockId: string; body: CreateDeployment }) => api<Deployment>(`/api/v1/clocks/${clockId}/deployments`, { body }));
+export const useUpdateDeployment = () =>
+  useRegistryMutation(({ clockId, id, body }: { clockId: string; id: string; body: UpdateDeployment }) => api<Deployment>(`/api/v1/clocks/${clockId}/deployments/${id}`, { method: 'PATCH', body }));
+export const useRemoveDeployment = () =>
+  useRegistryMutation(({ clockId, id }: { clockId: string; id: string }) => api<{ deleted: true }>(`/api/v1/clocks/${clockId}/deployments/${id}`, { method: 'DELETE' }));

@@ -3,7 +3,7 @@ import { MeasuredRatioChoice } from './measured-ratio-choice';
 import { useState, type ReactNode } from 'react';
 import { useForm } from 'react-hook-form';
 import { Link, useParams } from 'react-router';
-import { campaignStateLabels, referenceRatioOverride, updateCampaignSchema, type Campaign, type ReferenceRatioOverride, type UpdateCampaign } from '../../../shared/campaigns';
+import { campaignRoleLabels, campaignStateLabels, referenceRatioOverride, updateCampaignSchema, type Campaign, type ReferenceRatioOverride, type UpdateCampaign } from '../../../shared/campaigns';
 import { useCampaign, useCampaignAction, useTickChecklist, useUpdateCampaign, type CampaignAction } from '../../api/campaigns';
 import { ConfirmDialog, type ConfirmField } from '../../components/confirm-dialog';
 import { typeset } from '../../components/typeset';
@@ -198,7 +198,7 @@ function CampaignReview({ campaign: c }: { campaign: Campaign }) {
   );
 }
 
-function ClockFacts({ label, clock, budget, current }: { label: string; clock: Campaign['clockA']; budget: Campaign['budgetA']; current: number }) {
+function ClockFacts({ label, clock, budget, current, site }: { label: string; clock: Campaign['clockA']; budget: Campaign['budgetA']; current: number; site: Campaign['siteA'] }) {
   return (
     <div>
       <h3 className="mb-1 text-sm font-semibold text-ink-700">{label}</h3>
@@ -207,7 +207,7 @@ function ClockFacts({ label, clock, budget, current }: { label: string; clock: C
         ['Institute', clock.institute.code],
         ['Species', clock.speciesLabel],
         ['Nominal frequency', <span key="f" className="font-mono" title={clock.nominalFrequencyHz}>{groupDigits(clock.nominalFrequencyHz)} Hz</span>],
-        ['Site', <Link key="s" to={`/sites/${clock.site.id}`}>{clock.site.name}</Link>],
+        ['Site during the campaign', <Link key="s" to={`/sites/${site.id}`} data-testid={`${label.startsWith('Clock A') ? 'site-a' : 'site-b'}`}>{site.name}</Link>],
         ['Budget', <span key="b">version {budget.version}{current !== budget.version ? <span className="text-brass-600"> (version {current} is newer)</span> : ''}, standard uncertainty u = {sci(budget.totalUncertainty)} (k = 1)</span>],
       ]} />
     </div>
@@ -218,11 +218,13 @@ function CampaignOverview({ campaign: c }: { campaign: Campaign }) {
   return (
     <Panel title="Campaign">
       <div className="grid gap-5 md:grid-cols-2">
-        <ClockFacts label="Clock A (owner)" clock={c.clockA} budget={c.budgetA} current={c.currentBudgetVersionA} />
-        <ClockFacts label="Clock B" clock={c.clockB} budget={c.budgetB} current={c.currentBudgetVersionB} />
+        <ClockFacts label="Clock A (owner)" clock={c.clockA} budget={c.budgetA} current={c.currentBudgetVersionA} site={c.siteA} />
+        <ClockFacts label="Clock B" clock={c.clockB} budget={c.budgetB} current={c.currentBudgetVersionB} site={c.siteB} />
       </div>
       <div className="mt-4 border-t border-paper-200 pt-4">
         <Facts items={[
+          ['Role', <span key="role" data-testid="campaign-role-fact">{campaignRoleLabels[c.role]}</span>],
+          ...(c.localTie ? [['Local tie ΔC = C(site B) − C(site A)', <span key="tie" data-testid="local-tie">{c.localTie.deltaC_m2s2.toFixed(4)} m²/s² ± {c.localTie.uncertainty_m2s2.toFixed(4)} m²/s² (standard, k = 1) · {c.localTie.source}</span>] as [string, React.ReactNode]] : []),
           ['Link', <Link key="l" to={`/links/${c.link.id}`}>{c.link.name}</Link>],
           ['Period', `${c.periodStart.slice(0, 16).replace('T', ' ')} – ${c.periodEnd.slice(0, 16).replace('T', ' ')} UTC`],
           ['Reference ratio ν_B/ν_A', <span key="r" className="font-mono" data-testid="reference-ratio">{c.referenceRatio.value}</span>],

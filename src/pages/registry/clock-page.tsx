@@ -8,6 +8,7 @@ import { useAddBudgetVersion, useBudgetVersions, useClock } from '../../api/regi
 import { Button, EmptyState, Field, inputClass, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { BudgetEditor, BudgetTable } from './budget-editor';
+import { DeploymentsPanel } from './deployments-panel';
 import { canChangeInstituteRecord, EditClockPanel } from './registry-forms';
 import { applyServerErrors, Facts, FormError, groupDigits, sci } from './registry-ui';
 
@@ -33,6 +34,7 @@ export function ClockPage() {
           ['Kind', clockKindLabels[c.kind]],
           ['Species / transition', c.speciesLabel],
           ['Nominal frequency', <span key="f" className="font-mono" title={c.nominalFrequencyHz}>{groupDigits(c.nominalFrequencyHz)} Hz</span>],
+          ['Mobility', <span key="m" data-testid="clock-mobility-fact">{c.mobility === 'transportable' ? 'Transportable (site below is its home base)' : 'Stationary'}</span>],
           ['Site', <Link key="s" to={`/sites/${c.site.id}`}>{c.site.name}</Link>],
           ['Notes', c.notes || '—'],
         ]} />
@@ -50,6 +52,7 @@ export function ClockPage() {
           </>
         ) : null}
       </Panel>
+      <DeploymentsPanel clockId={c.id} />
       {canEdit && <EditClockPanel clock={c} />}
       <Panel title="Version history">
         <VersionHistory versions={versions.data ?? []} />

@@ -54,7 +54,7 @@ function NewClockForm({ onDone }: { onDone: () => void }) {
   const [formError, setFormError] = useState<string | null>(null);
   const { register, control, handleSubmit, watch, setError, formState: { errors } } = useForm<CreateClock>({
     resolver: zodResolver(createClockSchema) as never,
-    defaultValues: { kind: 'optical_lattice', species: 'Sr87', nominalFrequencyHz: '', notes: '', budget: [{ effect: 'Blackbody radiation', correction: 0, uncertainty: 0, type: 'B', note: '' }] },
+    defaultValues: { kind: 'optical_lattice', species: 'Sr87', nominalFrequencyHz: '', notes: '', mobility: 'stationary', budget: [{ effect: 'Blackbody radiation', correction: 0, uncertainty: 0, type: 'B', note: '' }] },
   });
   const rows = watch('budget') ?? [];
   return (

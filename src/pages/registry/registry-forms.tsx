@@ -197,8 +197,8 @@ function EditFormFooter({ error, saving, onCancel }: { error: string | null; sav
 
 type UpdateClock = z.input<typeof updateClockSchema>;
 
-export type ClockFieldValues = { name: string; kind: (typeof clockKinds)[number]; species: (typeof speciesCodes)[number]; nominalFrequencyHz: string; notes: string };
-export const clockFieldNames = ['name', 'kind', 'species', 'nominalFrequencyHz', 'notes'] as const;
+export type ClockFieldValues = { name: string; kind: (typeof clockKinds)[number]; species: (typeof speciesCodes)[number]; nominalFrequencyHz: string; notes: string; mobility: 'stationary' | 'transportable' };
+export const clockFieldNames = ['name', 'kind', 'species', 'nominalFrequencyHz', 'notes', 'mobility'] as const;
 
 /** Name, kind, species, nominal frequency and notes; the site and the budget stay with the caller. */
 export function ClockFields({ register, errors, siteField }: { register: UseFormRegister<ClockFieldValues>; errors: FieldErrors<ClockFieldValues>; siteField?: ReactNode }) {
@@ -216,6 +216,12 @@ export function ClockFields({ register, errors, siteField }: { register: UseForm
         <input className={`${inputClass} font-mono`} inputMode="decimal" {...register('nominalFrequencyHz')} />
       </Field>
       <Field label="Notes" error={errors.notes?.message}><input className={inputClass} {...register('notes')} /></Field>
+      <Field label="Mobility" hint="a transportable clock records where it stood and when (deployments)" error={errors.mobility?.message}>
+        <select className={selectClass} {...register('mobility')} data-testid="clock-mobility">
+          <option value="stationary">Stationary (always at its site)</option>
+          <option value="transportable">Transportable (deployments)</option>
+        </select>
+      </Field>
     </div>
   );
 }
@@ -234,7 +240,7 @@ function EditClockForm({ clock, onDone }: { clock: Clock; onDone: () => void }) 
   const [formError, setFormError] = useState<string | null>(null);
   const { register, handleSubmit, setError, formState: { errors } } = useForm<ClockFieldValues, unknown, UpdateClock>({
     resolver: zodResolver(updateClockSchema) as unknown as Resolver<ClockFieldValues, unknown, UpdateClock>,
-    defaultValues: { name: clock.name, kind: clock.kind, species: clock.species, nominalFrequencyHz: clock.nominalFrequencyHz, notes: clock.notes },
+    defaultValues: { name: clock.name, kind: clock.kind, species: clock.species, nominalFrequencyHz: clock.nominalFrequencyHz, notes: clock.notes, mobility: clock.mobility },
   });
   return (
     <form className="space-y-4" data-testid="edit-clock-form" onSubmit={handleSubmit((body) => {

@@ -1,7 +1,7 @@
 import { Link, useParams } from 'react-router';
 import type { Site } from '../../../shared/registry';
 import { useMe } from '../../api/account';
-import { useClocks, useLinks, useSite } from '../../api/registry';
+import { useClocks, useLinks, useSite, useSiteClocks } from '../../api/registry';
 import { EmptyState, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { canChangeInstituteRecord, EditSitePanel } from './registry-forms';
@@ -14,6 +14,7 @@ export function SitePage() {
   const me = useMe();
   const site = useSite(id);
   const clocks = useClocks({ page: 1, pageSize: 50, order: 'asc', q: '', siteId: id });
+  const visits = useSiteClocks(id);
   const links = useLinks({ page: 1, pageSize: 50, order: 'asc', q: '', siteId: id });
   if (site.isPending) return <p className="text-ink-500">Loading…</p>;
   if (site.isError) return <EmptyState title="This site could not be loaded">{describeError(site.error)}</EmptyState>;
@@ -57,9 +58,25 @@ export function SitePage() {
         <SiteTiePanel site={s} canEdit={canChangeInstituteRecord(me.data, s.institute.id)} />
       </div>
       {canChangeInstituteRecord(me.data, s.institute.id) && <EditSitePanel site={s} />}
-      <Panel title="Clocks at this site">
+      <Panel title="Clocks registered here (home site)">
         <ul className="text-sm">{clocks.data?.items.map((c) => <li key={c.id}><Link to={`/clocks/${c.id}`}>{c.name}</Link> · {c.speciesLabel}</li>)}</ul>
         {clocks.data?.items.length === 0 && <p className="text-sm text-ink-500">None yet.</p>}
+      </Panel>
+      <Panel title="Clocks that stood here">
+        <table className="min-w-full text-sm" data-testid="site-clock-visits">
+          <thead className="text-left text-ink-500"><tr><th className="py-1">Clock</th><th>Arrived (UTC)</th><th>Departed (UTC)</th><th>Note</th></tr></thead>
+          <tbody>
+            {visits.data?.map((v, i) => (
+              <tr key={`${v.clock.id}-${i}`} className="border-t border-paper-200">
+                <td className="py-1.5"><Link to={`/clocks/${v.clock.id}`}>{v.clock.name}</Link> <span className="text-xs text-ink-500">{v.clock.mobility}</span></td>
+                <td className="font-mono">{v.arrivedAt ? v.arrivedAt.slice(0, 16).replace('T', ' ') : 'always (stationary)'}</td>
+                <td className="font-mono">{v.arrivedAt ? (v.departedAt ? v.departedAt.slice(0, 16).replace('T', ' ') : 'still there') : '—'}</td>
+                <td className="text-ink-600">{v.note}</td>
+              </tr>
+            ))}
+          </tbody>
+        </table>
+        {visits.data?.length === 0 && <p className="text-sm text-ink-500">No clock has stood here.</p>}
       </Panel>
       <Panel title="Fibre links">
         <ul className="text-sm">{links.data?.items.map((l) => <li key={l.id}><Link to={`/links/${l.id}`}>{l.name}</Link> · {l.siteA.name} – {l.siteB.name}</li>)}</ul>

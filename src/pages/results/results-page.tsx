@@ -30,6 +30,28 @@ function Quantity({ label, q, unit, testId }: { label: string; q: Expanded; unit
   );
 }
 
+/** Side-by-side campaigns: the offset between the clocks once the local tie's redshift is removed. */
+function SideBySidePanel({ r }: { r: ResultBody }) {
+  const s = r.sideBySide;
+  if (!s) return null;
+  return (
+    <Panel title="Side-by-side: offset between the clocks">
+      <p className="font-mono text-lg text-ink-900" data-testid="side-by-side-offset">{e(s.offset, 3)} ± {e(s.expandedUncertainty, 2)}</p>
+      <p className="text-xs text-ink-500">y(B) − y(A) of the clocks, expanded uncertainty U = k·u with k = {s.coverageFactor.toFixed(2)}, p = {(100 * s.coverageProbability).toFixed(2)} %; standard uncertainty u = {e(s.standardUncertainty, 2)}</p>
+      <table className="mt-3 min-w-full text-sm">
+        <tbody>
+          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Sites (A, B)</td><td>{s.sites.a} · {s.sites.b}</td></tr>
+          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Measured y (tides removed)</td><td className="font-mono">{e(s.yMeasured, 4)} ± {e(s.uYMeasured, 2)} (k = 1)</td></tr>
+          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Local tie ΔC_local</td><td className="font-mono">{s.localDeltaC_m2s2.toFixed(4)} ± {s.localDeltaCUncertainty_m2s2.toFixed(4)} m²/s² (k = 1) → ΔC/c² = {e(s.localTieY, 4)}</td></tr>
+          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Source of the tie</td><td>{s.localTieSource}</td></tr>
+          <tr className="border-t border-paper-200"><td className="py-1.5 text-ink-600">Method</td><td>{s.formula}. {s.sources.join('; ')}.</td></tr>
+        </tbody>
+      </table>
+      <Caution>Not a potential difference: this campaign does not enter the network adjustment. Verify the local tie against your national datum authority and your lab’s quality procedures.</Caution>
+    </Panel>
+  );
+}
+
 function Agreement({ r }: { r: ResultBody }) {
   const g = r.geodesy;
   if (!g) return <Panel title="Agreement with the sites’ registered normal heights (geodesy)"><p className="text-sm">No geodetic uncertainty is registered for the sites, so Eₙ cannot be formed.</p></Panel>;
@@ -203,6 +225,7 @@ export function ResultsPage() {
         <Quantity label="Normal-height difference ΔH = H_B − H_A" q={r.deltaH_m} unit="m" testId="result-dh" />
       </section>
 
+      <SideBySidePanel r={r} />
       <Agreement r={r} />
 
       <Panel title="Fractional offset over time">
