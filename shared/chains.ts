@@ -98,3 +98,13 @@ export const chainResultSchema = z.object({
 export type ChainResult = z.infer<typeof chainResultSchema>;
 
 export const chainCsvColumns = ['section', 'quantity', 'value', 'standard_uncertainty', 'expanded_uncertainty', 'unit', 'note'] as const;
+
+/** What the create form may offer: transportable clocks, and the campaigns of them you may see with their roles. */
+export const chainCandidatesSchema = z.object({
+  clocks: z.array(z.object({ id: z.string().uuid(), name: z.string(), instituteCode: z.string(), mobility: z.enum(['stationary', 'transportable']) })),
+  campaigns: z.array(z.object({
+    id: z.string().uuid(), name: z.string(), role: z.enum(['remote', 'side-by-side']), state: z.string(),
+    clockAId: z.string().uuid(), clockBId: z.string().uuid(), clockAName: z.string(), clockBName: z.string(), periodStart: z.string(), periodEnd: z.string(),
+  })),
+});
+export type ChainCandidates = z.infer<typeof chainCandidatesSchema>;

@@ -1,4 +1,4 @@
-import { chainListQuery, chainResultSchema, chainSchema, createChainSchema, updateChainSchema } from '../../shared/chains';
+import { chainCandidatesSchema, chainListQuery, chainResultSchema, chainSchema, createChainSchema, updateChainSchema } from '../../shared/chains';
 import { idParamsSchema, pageOf } from '../../shared/http';
 import type { AppDeps } from '../deps';
 import { route } from '../http/route';
@@ -17,6 +17,11 @@ export const chainRoutes = [
     method: 'post', path: '/api/v1/chains', summary: 'Create a calibration chain of a transportable clock (coordinator, or the clock’s institute)', tag: 'chains', permission: 'chains:write',
     body: createChainSchema, response: chainSchema, successStatus: 201, problems: [409],
     handler: ({ actor, body, deps }) => svc(deps).create(actor, body),
+  }),
+  route({
+    method: 'get', path: '/api/v1/chains/candidates', summary: 'Transportable clocks and their campaigns you may see, for building a chain', tag: 'chains', permission: 'campaigns:read',
+    response: chainCandidatesSchema,
+    handler: ({ actor, deps }) => svc(deps).candidates(actor),
   }),
   route({
     method: 'get', path: '/api/v1/chains/:id', summary: 'One calibration chain', tag: 'chains', permission: 'campaigns:read',

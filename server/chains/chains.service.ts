@@ -1,5 +1,5 @@
 import type { DataSource, EntityManager } from 'typeorm';
-import type { Chain, ChainListQuery, ChainResult, CreateChain, UpdateChain } from '../../shared/chains';
+import type { Chain, ChainCandidates, ChainListQuery, ChainResult, CreateChain, UpdateChain } from '../../shared/chains';
 import type { Page } from '../../shared/http';
 import { recordAudit } from '../audit/audit.service';
 import type { Actor } from '../auth/actor';
@@ -107,6 +107,21 @@ export function createChainsService(dataSource: DataSource) {
   }
 
   const service = {
+    async candidates(actor: Actor): Promise<ChainCandidates> {
+      authorize(actor, 'campaigns:read');
+      const m = dataSource.manager;
+      const clocks = await m.getRepository(ClockEntity).find({ where: { mobility: 'transportable' }, relations: { institute: true }, order: { name: 'ASC' } });
+      const ids = clocks.map((c) => c.id);
+      if (ids.length === 0) return { clocks: [], campaigns: [] };
+      const rows = await m.getRepository(CampaignEntity).find({ where: [...ids.map((id) => ({ clockAId: id })), ...ids.map((id) => ({ clockBId: id }))], relations: { clockA: true, clockB: true }, order: { periodStart: 'ASC' } });
+      return {
+        clocks: clocks.map((c) => ({ id: c.id, name: c.name, instituteCode: c.institute?.code ?? '', mobility: c.mobility })),
+        campaigns: rows.filter((c) => canSeeCampaign(actor, ownership(c))).map((c) => ({
+          id: c.id, name: c.name, role: c.role, state: c.state, clockAId: c.clockAId, clockBId: c.clockBId, clockAName: c.clockA?.name ?? '', clockBName: c.clockB?.name ?? '', periodStart: c.periodStart.toISOString(), periodEnd: c.periodEnd.toISOString(),
+        })),
+      };
+    },
+
     async list(actor: Actor, q: ChainListQuery): Promise<Page<Chain>> {
       authorize(actor, 'campaigns:read');
       const m = dataSource.manager;
