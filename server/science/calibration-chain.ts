@@ -291,7 +291,7 @@ export function calibrationChain(input: ChainInput): ChainResult {
   }));
 
   // Shared with comparisons outside the chain: every keyed input that remains (not own, not transport).
-  const shared = list.filter((q) => !q.key.startsWith('own:') && q.key !== 'transport' && q.c !== 0).map((q) => {
+  const shared = list.filter((q) => !q.key.startsWith('own:') && q.key !== 'transport' && q.c !== 0 && q.u > 0).map((q) => {
     const sigma = q.unit === 'm2/s2' ? q.u : C2_M2_PER_S2 * q.u;
     return { key: q.key, label: q.label, sigma_m2s2: sigma, coefficient: sigma > 0 ? (q.c * q.u) / sigma : 0 };
   });
