@@ -6,6 +6,7 @@ import { certificatesSeeder } from './certificates.seed';
 import { chainsSeeder } from './chains.seed';
 import { networkSeeder } from './network.seed';
 import { registrySeeder } from './registry.seed';
+import { transportSeeder } from './transport.seed';
 import { uploadsSeeder } from './uploads.seed';
 
 // Loads the invented demo scenario into an empty database. Every name, place and number here is made up.
@@ -47,6 +48,7 @@ export async function seedDemo(ds: DataSource, log: (msg: string) => void = () =
 }
 
 featureSeeders.push(registrySeeder);
+featureSeeders.push(transportSeeder);
 featureSeeders.push(uploadsSeeder);
 // Calibration chains join accepted campaigns; before the network so the demo run includes the chain.
 featureSeeders.push(chainsSeeder);

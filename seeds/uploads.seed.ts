@@ -6,6 +6,7 @@ import { meanNormalGravity } from '../server/science/normal-gravity';
 import { tidePotentialSeries, type TideSite } from '../server/science/tides';
 import { loadCampaignForUpload, storeSeries } from '../server/uploads/uploads.service';
 import type { Seeder } from './demo';
+import { TRANSPORT_OFFSETS } from './transport.seed';
 
 // INVENTED demo ratio series for the seeded campaigns that are past the draft stage: 10 s spacing, white frequency
 // noise of 3e-16/√τ, the gravitational redshift of the invented height difference between the two clocks' sites
@@ -59,18 +60,22 @@ export const uploadsSeeder: Seeder = {
   run: async ({ manager }) => {
     const client = (manager.queryRunner as unknown as { databaseConnection: pg.PoolClient }).databaseConnection;
     const campaigns = (await manager.query(`
-      SELECT c.id, c.name, c.state, sa.latitude_deg AS lat_a, sb.latitude_deg AS lat_b,
+      SELECT c.id, c.name, c.state, c.role, c.local_delta_c_m2s2 AS local_dc, sa.latitude_deg AS lat_a, sb.latitude_deg AS lat_b,
              sa.longitude_deg AS lon_a, sb.longitude_deg AS lon_b, sa.ellipsoidal_height_m AS eh_a, sb.ellipsoidal_height_m AS eh_b,
              sa.ellipsoidal_height_m - sa.quasigeoid_height_m AS h_a, sb.ellipsoidal_height_m - sb.quasigeoid_height_m AS h_b
-        FROM campaign c JOIN clock ca ON ca.id = c.clock_a_id JOIN clock cb ON cb.id = c.clock_b_id
-        JOIN site sa ON sa.id = ca.site_id JOIN site sb ON sb.id = cb.site_id
-       WHERE c.state <> 'draft' ORDER BY c.period_start`)) as { id: string; name: string; state: string; lat_a: number; lat_b: number; lon_a: number; lon_b: number; eh_a: number; eh_b: number; h_a: number; h_b: number }[];
+        FROM campaign c JOIN site sa ON sa.id = c.site_a_id JOIN site sb ON sb.id = c.site_b_id
+       WHERE c.state <> 'draft' ORDER BY c.period_start`)) as { id: string; name: string; state: string; role: string; local_dc: number | null; lat_a: number; lat_b: number; lon_a: number; lon_b: number; eh_a: number; eh_b: number; h_a: number; h_b: number }[];
+    // The transportable-clock campaigns take the generator seeds after all others, so the other series stay as they were.
+    campaigns.sort((x, y) => Number(TRANSPORT_OFFSETS.has(x.name)) - Number(TRANSPORT_OFFSETS.has(y.name)));
     let n = 0;
     for (const c of campaigns) {
       const campaign = (await loadCampaignForUpload(manager, c.id))!;
       // ΔC = C_B − C_A with C = γ̄·H at each site (mean normal gravity along the plumb line), so the invented
       // series agrees with the sites' registered normal heights.
-      const yGrav = (meanNormalGravity(c.lat_b, c.h_b) * c.h_b - meanNormalGravity(c.lat_a, c.h_a) * c.h_a) / C2_M2_PER_S2;
+      // A side-by-side campaign sees its entered local tie instead; the transportable clock's invented offset is added.
+      const yGrav = (c.role === 'side-by-side' && c.local_dc !== null
+        ? c.local_dc / C2_M2_PER_S2
+        : (meanNormalGravity(c.lat_b, c.h_b) * c.h_b - meanNormalGravity(c.lat_a, c.h_a) * c.h_a) / C2_M2_PER_S2) + (TRANSPORT_OFFSETS.get(c.name) ?? 0);
       const sites = {
         a: { latitudeDeg: c.lat_a, longitudeDeg: c.lon_a, ellipsoidalHeightM: c.eh_a },
         b: { latitudeDeg: c.lat_b, longitudeDeg: c.lon_b, ellipsoidalHeightM: c.eh_b },

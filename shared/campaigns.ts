@@ -48,6 +48,26 @@ export const referenceRatioChoice = z
   });
 export type ReferenceRatioChoice = z.infer<typeof referenceRatioChoice>;
 
+export const campaignRoles = ['remote', 'side-by-side'] as const;
+export type CampaignRole = (typeof campaignRoles)[number];
+export const campaignRoleLabels: Record<CampaignRole, string> = { remote: 'Remote (clocks at different sites)', 'side-by-side': 'Side by side (offset between the clocks)' };
+
+/**
+ * The local tie of a side-by-side campaign, ΔC_local = C(site of B) − C(site of A): entered with its source, derived
+ * from both sites' ties to one benchmark with a stated gravity, or zero when both clocks stand at the same site.
+ */
+export const localTieInput = z.discriminatedUnion('kind', [
+  z.object({
+    kind: z.literal('entered'),
+    deltaC_m2s2: z.number().refine(Number.isFinite, 'must be a finite number').refine((v) => Math.abs(v) < 1000, 'a local tie is smaller than 1000 m²/s² (about 100 m)'),
+    uncertainty_m2s2: z.number().refine((v) => Number.isFinite(v) && v >= 0, 'must not be negative'),
+    source: nameText(3, 500),
+  }),
+  z.object({ kind: z.literal('benchmarks'), gravity_m_s2: z.number().min(9.7).max(9.9).default(9.81) }),
+  z.object({ kind: z.literal('same-site') }),
+]);
+export type LocalTieInput = z.input<typeof localTieInput>;
+
 const campaignFields = {
   name: nameText(2, 120),
   clockAId: z.string().uuid(),
@@ -58,12 +78,16 @@ const campaignFields = {
   operatorNotes: z.string().trim().max(4000).default(''),
   /** Omit (or null) for the default: ν_B/ν_A from the reference-frequency table; or a registered measured ratio. */
   referenceRatio: referenceRatioChoice.nullable().default(null),
+  role: z.enum(campaignRoles).default('remote'),
+  /** Side-by-side only (required there; refused for a remote campaign). */
+  localTie: localTieInput.nullable().default(null),
 };
 
 export const createCampaignSchema = z
   .object(campaignFields)
   .refine((c) => Date.parse(c.periodEnd) > Date.parse(c.periodStart), { path: ['periodEnd'], message: 'must be after the period start' })
-  .refine((c) => c.clockAId !== c.clockBId, { path: ['clockBId'], message: 'clock B must differ from clock A' });
+  .refine((c) => c.clockAId !== c.clockBId, { path: ['clockBId'], message: 'clock B must differ from clock A' })
+  .refine((c) => c.role === 'side-by-side' || c.localTie === null, { path: ['localTie'], message: 'only a side-by-side campaign has a local tie' });
 export type CreateCampaign = z.input<typeof createCampaignSchema>;
 
 export const updateCampaignSchema = z.object({
@@ -76,6 +100,8 @@ export const updateCampaignSchema = z.object({
   /** Re-pin the budgets to these versions (numbers); only while the campaign is editable. */
   budgetVersionA: z.number().int().min(1).optional(),
   budgetVersionB: z.number().int().min(1).optional(),
+  role: z.enum(campaignRoles).optional(),
+  localTie: localTieInput.nullable().optional(),
 });
 export type UpdateCampaign = z.infer<typeof updateCampaignSchema>;
 
@@ -142,6 +168,10 @@ export const campaignSummarySchema = z.object({
   link: z.object({ id: z.string().uuid(), name: z.string() }),
   periodStart: z.string(),
   periodEnd: z.string(),
+  role: z.enum(campaignRoles),
+  /** Where clock A and clock B stood during the period (from their deployments). */
+  siteA: z.object({ id: z.string().uuid(), name: z.string() }),
+  siteB: z.object({ id: z.string().uuid(), name: z.string() }),
   updatedAt: z.string(),
 });
 export type CampaignSummary = z.infer<typeof campaignSummarySchema>;
@@ -149,6 +179,8 @@ export type CampaignSummary = z.infer<typeof campaignSummarySchema>;
 export const campaignSchema = campaignSummarySchema.extend({
   operatorNotes: z.string(),
   referenceRatio: referenceRatioSchema,
+  /** Side-by-side: ΔC_local = C(site B) − C(site A) [m²/s²], standard uncertainty (k = 1) and source; null for remote. */
+  localTie: z.object({ deltaC_m2s2: z.number(), uncertainty_m2s2: z.number(), source: z.string() }).nullable(),
   budgetA: budgetVersionSchema,
   budgetB: budgetVersionSchema,
   currentBudgetVersionA: z.number().int(),

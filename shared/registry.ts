@@ -181,6 +181,8 @@ export const budgetVersionSchema = z.object({
   createdBy: z.string(),
   createdAt: z.string(),
   comment: z.string().nullable(),
+  /** The deployment this evaluation was made for; null: not tied to one. */
+  deploymentId: z.string().uuid().nullable(),
 });
 export type BudgetVersion = z.infer<typeof budgetVersionSchema>;
 
@@ -191,11 +193,18 @@ export const createClockSchema = z.object({
   species: speciesSchema,
   nominalFrequencyHz: decimalString(20),
   notes: z.string().trim().max(2000).default(''),
+  /** Stationary: always at its site. Transportable: the site is its home base; where it stood when is in its deployments. */
+  mobility: z.enum(['stationary', 'transportable']).default('stationary'),
   budget: budgetRowsSchema.default([]),
 });
 export type CreateClock = z.input<typeof createClockSchema>;
 export const updateClockSchema = patchOf(createClockSchema.omit({ siteId: true, budget: true }));
-export const newBudgetVersionSchema = z.object({ rows: budgetRowsSchema, comment: optionalText(500) });
+export const newBudgetVersionSchema = z.object({
+  rows: budgetRowsSchema,
+  comment: optionalText(500),
+  /** The deployment of this clock the evaluation was made for (a transportable clock re-evaluated at a remote site). */
+  deploymentId: z.string().uuid().nullable().default(null),
+});
 export type NewBudgetVersion = z.input<typeof newBudgetVersionSchema>;
 
 export const clockSchema = z.object({
@@ -206,6 +215,7 @@ export const clockSchema = z.object({
   speciesLabel: z.string(),
   nominalFrequencyHz: z.string(),
   notes: z.string(),
+  mobility: z.enum(['stationary', 'transportable']),
   site: z.object({ id: z.string().uuid(), name: z.string() }),
   institute: z.object({ id: z.string().uuid(), code: z.string(), name: z.string() }),
   currentBudget: budgetVersionSchema.nullable(),

@@ -41,6 +41,7 @@ import { rss } from '../science/uncertainty';
 import { currentBudget, linkDistances, normalHeightOf, toBudgetDto } from '../registry/registry.service';
 import { requestResultComputation } from '../results/result-requests';
 import { campaignScopeCondition, canSeeCampaign } from '../auth/campaign-scope';
+import { resolveCampaignSites, resolveLocalTie } from './campaign-sites';
 
 // Campaign rules: owning institute = clock A's institute; the lab edits only while draft or returned; the
 // coordinating institute reviews; every change is audited and every state change lands on the timeline.
@@ -111,7 +112,9 @@ function withCampaignJoins(qb: SelectQueryBuilder<CampaignRow>) {
     .leftJoinAndSelect('cb.institute', 'ib')
     .leftJoinAndSelect('c.link', 'l')
     .leftJoinAndSelect('l.siteA', 'lsa')
-    .leftJoinAndSelect('l.siteB', 'lsb');
+    .leftJoinAndSelect('l.siteB', 'lsb')
+    .leftJoinAndSelect('c.siteA', 'csa')
+    .leftJoinAndSelect('c.siteB', 'csb');
 }
 
 async function loadCampaign(m: EntityManager, id: string, lock = false): Promise<CampaignRow> {
@@ -158,6 +161,9 @@ function toSummary(c: CampaignRow) {
     link: { id: c.linkId, name: c.link?.name ?? '' },
     periodStart: c.periodStart.toISOString(),
     periodEnd: c.periodEnd.toISOString(),
+    role: c.role,
+    siteA: { id: c.siteAId, name: c.siteA?.name ?? '' },
+    siteB: { id: c.siteBId, name: c.siteB?.name ?? '' },
     updatedAt: c.updatedAt.toISOString(),
   };
 }
@@ -180,6 +186,9 @@ async function toDetail(m: EntityManager, actor: Actor, c: CampaignRow, policy: 
       isDefault: c.referenceRatioJustification === null,
       justification: c.referenceRatioJustification,
     },
+    localTie: c.role === 'side-by-side' && c.localDeltaC_m2s2 !== null
+      ? { deltaC_m2s2: c.localDeltaC_m2s2, uncertainty_m2s2: c.localDeltaCUncertainty_m2s2 ?? 0, source: c.localTieSource ?? '' }
+      : null,
     budgetA: toBudgetDto(c.budgetVersionA!),
     budgetB: toBudgetDto(c.budgetVersionB!),
     currentBudgetVersionA: c.clockA!.currentBudgetVersion,
@@ -261,6 +270,9 @@ export type CampaignForResult = {
   clockB: ClockForResult;
   link: { id: string; name: string; fibreLengthKm: number; fractionalUncertainty: number; geodesicDistanceKm: number; chordDistanceKm: number; siteAId: string; siteBId: string };
   referenceRatio: { value: string; relativeUncertainty: number; source: string; justification: string | null };
+  role: CampaignRow['role'];
+  /** Side-by-side: ΔC_local = C(site B) − C(site A) with its standard uncertainty and source. */
+  localTie: { deltaC_m2s2: number; uncertainty_m2s2: number; source: string } | null;
 };
 
 function siteForResult(s: SiteRow): SiteForResult {
@@ -295,7 +307,8 @@ function siteForResult(s: SiteRow): SiteForResult {
  */
 export async function getCampaignForResult(manager: EntityManager, id: string): Promise<CampaignForResult> {
   const c = await loadCampaign(manager, id);
-  const clock = (k: ClockRow, b: NonNullable<CampaignRow['budgetVersionA']>): ClockForResult => ({
+  // The site is where the clock stood during the campaign (its deployment), not necessarily its registered home site.
+  const clock = (k: ClockRow, b: NonNullable<CampaignRow['budgetVersionA']>, site: SiteRow): ClockForResult => ({
     id: k.id,
     name: k.name,
     kind: k.kind,
@@ -304,7 +317,7 @@ export async function getCampaignForResult(manager: EntityManager, id: string): 
     nominalFrequencyHz: k.nominalFrequencyHz,
     instituteId: k.instituteId,
     instituteCode: k.institute?.code ?? '',
-    site: siteForResult(k.site!),
+    site: siteForResult(site),
     budget: { id: b.id, version: b.version, rows: b.rows, totalCorrection: b.totalCorrection, totalUncertainty: b.totalUncertainty, createdAt: b.createdAt.toISOString() },
   });
   const l = c.link!;
@@ -315,10 +328,12 @@ export async function getCampaignForResult(manager: EntityManager, id: string): 
     instituteId: c.instituteId,
     periodStart: c.periodStart.toISOString(),
     periodEnd: c.periodEnd.toISOString(),
-    clockA: clock(c.clockA!, c.budgetVersionA!),
-    clockB: clock(c.clockB!, c.budgetVersionB!),
+    clockA: clock(c.clockA!, c.budgetVersionA!, c.siteA!),
+    clockB: clock(c.clockB!, c.budgetVersionB!, c.siteB!),
     link: { id: l.id, name: l.name, fibreLengthKm: l.fibreLengthKm, fractionalUncertainty: l.fractionalUncertainty, siteAId: l.siteAId, siteBId: l.siteBId, ...linkDistances(l.siteA!, l.siteB!) },
     referenceRatio: { value: c.referenceRatio, relativeUncertainty: c.referenceRatioRelativeUncertainty, source: c.referenceRatioSource, justification: c.referenceRatioJustification },
+    role: c.role,
+    localTie: c.role === 'side-by-side' && c.localDeltaC_m2s2 !== null ? { deltaC_m2s2: c.localDeltaC_m2s2, uncertainty_m2s2: c.localDeltaCUncertainty_m2s2 ?? 0, source: c.localTieSource ?? '' } : null,
   };
 }
 
@@ -341,11 +356,12 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
   const { dataSource, config } = deps;
   const detail = (m: EntityManager, actor: Actor, c: CampaignRow) => toDetail(m, actor, c, config);
 
-  async function checkLinkJoinsClocks(m: EntityManager, linkId: string, a: ClockRow, b: ClockRow) {
+  /** The link must join the sites where the clocks stood during the campaign. */
+  async function checkLinkJoinsClocks(m: EntityManager, linkId: string, siteAId: string, siteBId: string) {
     const link = await m.getRepository(FibreLinkEntity).findOneBy({ id: linkId });
     if (!link) throw new Invalid('Unknown fibre link.', [{ path: 'body.linkId', message: 'no such link' }]);
     const ends = new Set([link.siteAId, link.siteBId]);
-    const joins = a.siteId === b.siteId ? ends.has(a.siteId) : ends.has(a.siteId) && ends.has(b.siteId);
+    const joins = siteAId === siteBId ? ends.has(siteAId) : ends.has(siteAId) && ends.has(siteBId);
     if (!joins) throw new Invalid('The link must join the sites of clock A and clock B.', [{ path: 'body.linkId', message: 'does not join the two clocks’ sites' }]);
     return link;
   }
@@ -513,7 +529,9 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
         const a = await clockOrInvalid(m, body.clockAId, 'body.clockAId');
         const b = await clockOrInvalid(m, body.clockBId, 'body.clockBId');
         if (a.instituteId !== actor.instituteId) throw new Forbidden('Clock A must belong to your institute: the owning institute is clock A’s.');
-        await checkLinkJoinsClocks(m, body.linkId, a, b);
+        const sites = await resolveCampaignSites(m, a, b, new Date(body.periodStart), new Date(body.periodEnd));
+        const tie = await resolveLocalTie(m, body.role, body.localTie, sites.siteAId, sites.siteBId);
+        await checkLinkJoinsClocks(m, body.linkId, sites.siteAId, sites.siteBId);
         const ratio = body.referenceRatio
           ? body.referenceRatio.measuredRatioId
             ? await ratioFromMeasured(m, { measuredRatioId: body.referenceRatio.measuredRatioId, justification: body.referenceRatio.justification }, a.species, b.species)
@@ -530,6 +548,9 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
             linkId: body.linkId,
             periodStart: new Date(body.periodStart),
             periodEnd: new Date(body.periodEnd),
+            role: body.role,
+            ...sites,
+            ...tie,
             operatorNotes: body.operatorNotes,
             ...ratio,
             budgetVersionAId: budgetA.id,
@@ -543,7 +564,7 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
         await addEvent(m, actor, saved.id, null, 'draft', 'created');
         await recordAudit(m, actor, {
           action: 'campaign.created', entityType: 'campaign', entityId: saved.id, instituteId: a.instituteId,
-          details: { name: body.name, clockA: a.name, clockB: b.name, referenceRatio: ratio.referenceRatio, budgetVersionA: budgetA.version, budgetVersionB: budgetB.version },
+          details: { name: body.name, clockA: a.name, clockB: b.name, role: body.role, siteAId: sites.siteAId, siteBId: sites.siteBId, localTie: tie, referenceRatio: ratio.referenceRatio, budgetVersionA: budgetA.version, budgetVersionB: budgetB.version },
         });
         return detail(m, actor, await loadCampaign(m, saved.id));
       });
@@ -565,9 +586,21 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
         const start = patch.periodStart ?? c.periodStart;
         const end = patch.periodEnd ?? c.periodEnd;
         if (end <= start) throw new Invalid('The period must end after it starts.', [{ path: 'body.periodEnd', message: 'must be after the period start' }]);
-        if (body.linkId !== undefined) {
-          await checkLinkJoinsClocks(m, body.linkId, c.clockA!, c.clockB!);
-          patch.linkId = body.linkId;
+        // A changed period may put a transportable clock at another site: resolve the sites again, then the tie and link.
+        const sites = await resolveCampaignSites(m, c.clockA!, c.clockB!, start, end);
+        if (sites.siteAId !== c.siteAId || sites.siteBId !== c.siteBId) Object.assign(patch, sites);
+        const role = body.role ?? c.role;
+        const sitesMoved = sites.siteAId !== c.siteAId || sites.siteBId !== c.siteBId;
+        if (body.role !== undefined || body.localTie !== undefined || sitesMoved) {
+          const keptTie = c.role === 'side-by-side' && c.localDeltaC_m2s2 !== null && !sitesMoved && c.siteAId !== c.siteBId
+            ? { kind: 'entered' as const, deltaC_m2s2: c.localDeltaC_m2s2, uncertainty_m2s2: c.localDeltaCUncertainty_m2s2 ?? 0, source: c.localTieSource ?? 'as stored' }
+            : null;
+          const tieInput = body.localTie !== undefined ? body.localTie : role === 'remote' ? null : keptTie;
+          Object.assign(patch, { role, ...(await resolveLocalTie(m, role, tieInput, sites.siteAId, sites.siteBId)) });
+        }
+        if (body.linkId !== undefined || sitesMoved) {
+          await checkLinkJoinsClocks(m, body.linkId ?? c.linkId, sites.siteAId, sites.siteBId);
+          if (body.linkId !== undefined) patch.linkId = body.linkId;
         }
         if (body.referenceRatio !== undefined) {
           Object.assign(

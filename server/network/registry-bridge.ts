@@ -91,13 +91,17 @@ export async function loadLinks(m: EntityManager): Promise<ClockLink[]> {
   return rows.map((r) => ({ id: r.id, name: r.name, siteAId: r.a, siteBId: r.b }));
 }
 
-/** Campaigns a coordinator accepted (or certified): clock A's site and clock B's site, through the campaign's link. */
+/**
+ * Remote campaigns a coordinator accepted (or certified): the sites where clock A and clock B stood during the
+ * campaign (from their deployments), through the campaign's link. Side-by-side campaigns measure the offset between
+ * two clocks, not a potential difference, so they never enter the adjustment or the reconciliation as one.
+ */
 export async function loadAcceptedCampaigns(m: EntityManager): Promise<AcceptedCampaign[]> {
   if (!(await tableExists(m, 'campaign')) || !(await tableExists(m, 'clock'))) return [];
   const rows: { id: string; name: string; link: string; a: string; b: string; state: string; inst: string | null; partner: string | null }[] = await m.query(`
-    SELECT c.id, c.name, c.link_id AS link, ca.site_id AS a, cb.site_id AS b, c.state, c.institute_id AS inst, cb.institute_id AS partner
-    FROM campaign c JOIN clock ca ON ca.id = c.clock_a_id JOIN clock cb ON cb.id = c.clock_b_id
-    WHERE c.state IN ('accepted','certified') ORDER BY c.period_end DESC`);
+    SELECT c.id, c.name, c.link_id AS link, c.site_a_id AS a, c.site_b_id AS b, c.state, c.institute_id AS inst, cb.institute_id AS partner
+    FROM campaign c JOIN clock cb ON cb.id = c.clock_b_id
+    WHERE c.state IN ('accepted','certified') AND c.role <> 'side-by-side' ORDER BY c.period_end DESC`);
   return rows.map((r) => ({ id: r.id, name: r.name, linkId: r.link, siteAId: r.a, siteBId: r.b, state: r.state, instituteId: r.inst, partnerInstituteId: r.partner }));
 }
 

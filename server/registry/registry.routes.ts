@@ -24,6 +24,8 @@ import {
 } from '../../shared/registry';
 import { route } from '../http/route';
 import { createRegistryService } from './registry.service';
+import { createDeploymentsService } from './deployments.service';
+import { clockDeploymentsSchema, createDeploymentSchema, deploymentParamsSchema, deploymentSchema, siteClocksSchema, updateDeploymentSchema } from '../../shared/deployments';
 
 // Registry routes: coordinate systems, sites, quasigeoid grids, clocks and budgets, reference frequencies, fibre links.
 const svc = (ds: Parameters<typeof createRegistryService>[0]) => createRegistryService(ds);
@@ -96,6 +98,32 @@ export const registryRoutes = [
     method: 'post', path: '/api/v1/clocks/:id/budget-versions', summary: 'Save a changed budget as a new immutable version', tag: 'registry', permission: 'registry:write',
     params: idParamsSchema, body: newBudgetVersionSchema, response: budgetVersionSchema, successStatus: 201,
     handler: ({ actor, params, body, deps }) => svc(deps.dataSource).addBudgetVersion(actor, params.id, body),
+  }),
+  // deployments of transportable clocks
+  route({
+    method: 'get', path: '/api/v1/clocks/:id/deployments', summary: 'Where a clock stood and when (its deployments, oldest first)', tag: 'registry', permission: 'registry:read',
+    params: idParamsSchema, response: clockDeploymentsSchema,
+    handler: ({ actor, params, deps }) => createDeploymentsService(deps.dataSource).list(actor, params.id),
+  }),
+  route({
+    method: 'post', path: '/api/v1/clocks/:id/deployments', summary: 'Record a deployment of a transportable clock of your institute (no overlaps)', tag: 'registry', permission: 'registry:write',
+    params: idParamsSchema, body: createDeploymentSchema, response: deploymentSchema, successStatus: 201,
+    handler: ({ actor, params, body, deps }) => createDeploymentsService(deps.dataSource).create(actor, params.id, body),
+  }),
+  route({
+    method: 'patch', path: '/api/v1/clocks/:id/deployments/:deploymentId', summary: 'Change a deployment (site, arrival, departure, note)', tag: 'registry', permission: 'registry:write',
+    params: deploymentParamsSchema, body: updateDeploymentSchema, response: deploymentSchema,
+    handler: ({ actor, params, body, deps }) => createDeploymentsService(deps.dataSource).update(actor, params.id, params.deploymentId, body),
+  }),
+  route({
+    method: 'delete', path: '/api/v1/clocks/:id/deployments/:deploymentId', summary: 'Remove a deployment no budget version was evaluated for', tag: 'registry', permission: 'registry:write',
+    params: deploymentParamsSchema, response: z.object({ deleted: z.literal(true) }),
+    handler: ({ actor, params, deps }) => createDeploymentsService(deps.dataSource).remove(actor, params.id, params.deploymentId),
+  }),
+  route({
+    method: 'get', path: '/api/v1/sites/:id/clocks', summary: 'Clocks that stood at a site, with their arrival and departure', tag: 'registry', permission: 'registry:read',
+    params: idParamsSchema, response: siteClocksSchema,
+    handler: ({ actor, params, deps }) => createDeploymentsService(deps.dataSource).atSite(actor, params.id),
   }),
   // reference frequencies
   route({

@@ -31,6 +31,7 @@ import type { Actor } from '../auth/actor';
 import { authorize, requireSameInstitute } from '../auth/permissions';
 import {
   ClockBudgetVersionEntity,
+  ClockDeploymentEntity,
   ClockEntity,
   FibreLinkEntity,
   QuasigeoidGridEntity,
@@ -150,6 +151,7 @@ export function toBudgetDto(b: ClockBudgetVersionRow) {
     createdBy: b.createdBy,
     createdAt: b.createdAt.toISOString(),
     comment: b.comment,
+    deploymentId: b.deploymentId ?? null,
   };
 }
 
@@ -162,6 +164,7 @@ export function toClockDto(c: ClockRow, budget: ClockBudgetVersionRow | null) {
     speciesLabel: speciesLabels[c.species],
     nominalFrequencyHz: c.nominalFrequencyHz,
     notes: c.notes,
+    mobility: c.mobility,
     site: { id: c.siteId, name: c.site?.name ?? '' },
     institute: { id: c.instituteId, code: c.institute?.code ?? '', name: c.institute?.name ?? '' },
     currentBudget: budget ? toBudgetDto(budget) : null,
@@ -418,7 +421,7 @@ export function createRegistryService(dataSource: DataSource) {
         if (!site) throw new Invalid('Unknown site.', [{ path: 'body.siteId', message: 'no such site' }]);
         requireSameInstitute(actor, site.instituteId);
         const repo = m.getRepository(ClockEntity);
-        const clock = await uniqueName(repo.save(repo.create({ siteId: site.id, instituteId: site.instituteId, name: body.name, kind: body.kind, species: body.species, nominalFrequencyHz: body.nominalFrequencyHz, notes: body.notes, currentBudgetVersion: 1 })), 'A clock with this name exists.');
+        const clock = await uniqueName(repo.save(repo.create({ siteId: site.id, instituteId: site.instituteId, name: body.name, kind: body.kind, species: body.species, nominalFrequencyHz: body.nominalFrequencyHz, notes: body.notes, mobility: body.mobility, currentBudgetVersion: 1 })), 'A clock with this name exists.');
         await m.getRepository(ClockBudgetVersionEntity).insert({ clockId: clock.id, version: 1, rows: body.budget, ...budgetTotals(body.budget), comment: 'first version', createdByUserId: actor.userId, createdBy: actor.displayName });
         await recordAudit(m, actor, { action: 'clock.created', entityType: 'clock', entityId: clock.id, instituteId: site.instituteId, details: { name: body.name, species: body.species, nominalFrequencyHz: body.nominalFrequencyHz, budgetRows: body.budget.length } });
         const fresh = await loadClock(m, clock.id);
@@ -434,7 +437,7 @@ export function createRegistryService(dataSource: DataSource) {
       return dataSource.transaction(async (m) => {
         const c = await loadClock(m, id, true);
         requireSameInstitute(actor, c.instituteId);
-        const before = { name: c.name, kind: c.kind, species: c.species, nominalFrequencyHz: c.nominalFrequencyHz, notes: c.notes };
+        const before = { name: c.name, kind: c.kind, species: c.species, nominalFrequencyHz: c.nominalFrequencyHz, notes: c.notes, mobility: c.mobility };
         const patch = Object.fromEntries(Object.entries(body).filter(([, v]) => v !== undefined));
         await uniqueName(m.getRepository(ClockEntity).update({ id }, patch), 'A clock with this name exists.');
         await recordAudit(m, actor, { action: 'clock.updated', entityType: 'clock', entityId: id, instituteId: c.instituteId, details: { before, after: patch } });
@@ -457,7 +460,10 @@ export function createRegistryService(dataSource: DataSource) {
         requireSameInstitute(actor, c.instituteId);
         const version = c.currentBudgetVersion + 1;
         const totals = budgetTotals(body.rows);
-        await m.getRepository(ClockBudgetVersionEntity).insert({ clockId, version, rows: body.rows, ...totals, comment: body.comment, createdByUserId: actor.userId, createdBy: actor.displayName });
+        if (body.deploymentId !== null && !(await m.getRepository(ClockDeploymentEntity).existsBy({ id: body.deploymentId, clockId }))) {
+          throw new Invalid('Unknown deployment of this clock.', [{ path: 'body.deploymentId', message: 'no such deployment of this clock' }]);
+        }
+        await m.getRepository(ClockBudgetVersionEntity).insert({ clockId, version, rows: body.rows, ...totals, comment: body.comment, deploymentId: body.deploymentId, createdByUserId: actor.userId, createdBy: actor.displayName });
         await m.getRepository(ClockEntity).update({ id: clockId }, { currentBudgetVersion: version });
         await recordAudit(m, actor, { action: 'clock.budget-version-added', entityType: 'clock', entityId: clockId, instituteId: c.instituteId, details: { version, rows: body.rows.length, ...totals } });
         return toBudgetDto(await m.getRepository(ClockBudgetVersionEntity).findOneByOrFail({ clockId, version }));
