@@ -7,7 +7,8 @@ import { latestResultForCampaign } from '../results/results.service';
 import { calibrationChain, type ChainComparison, type ChainInputTerm } from '../science/calibration-chain';
 import { ScienceInputError } from '../science/errors';
 import { cFromNormalHeight, meanNormalGravity, normalHeightFromC } from '../science/normal-gravity';
-import { publishedStates } from '../auth/campaign-scope';
+import { canSeeCampaign, publishedStates } from '../auth/campaign-scope';
+import type { Actor } from '../auth/actor';
 import { normalHeightOf } from '../registry/registry.service';
 
 // Reads a chain's campaigns and their latest comparison results, turns each result's budget into chain inputs (naming
@@ -25,6 +26,10 @@ export async function loadChainCampaigns(m: EntityManager, row: CalibrationChain
     after: row.afterCampaignId ? byId.get(row.afterCampaignId) ?? null : null,
   };
 }
+
+export const campaignOwnership = (c: CampaignRow) => ({ state: c.state, instituteId: c.instituteId, partnerInstituteId: c.clockB?.instituteId ?? null });
+/** A chain is visible to whoever may see every one of its campaigns (server/auth/campaign-scope.ts). */
+export const canSeeChain = (actor: Actor, cs: ChainCampaigns) => [cs.remote, cs.before, cs.after].every((c) => !c || canSeeCampaign(actor, campaignOwnership(c)));
 
 export const chainAccepted = (c: ChainCampaigns) => [c.remote, c.before, c.after].every((x) => !x || (publishedStates as readonly string[]).includes(x.state));
 

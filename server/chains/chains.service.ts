@@ -10,7 +10,7 @@ import { CalibrationChainEntity, CampaignEntity, ClockEntity, type CalibrationCh
 import { csvLine } from '../http/csv';
 import { AppError, Conflict, Invalid, NotFound } from '../http/errors';
 import { ScienceInputError } from '../science/errors';
-import { chainAccepted, ChainNotReady, computeChain, loadChainCampaigns, type ChainCampaigns } from './chain-compute';
+import { campaignOwnership, canSeeChain, chainAccepted, ChainNotReady, computeChain, loadChainCampaigns, type ChainCampaigns } from './chain-compute';
 
 // Calibration chains: who may see, create, change and delete them, and their result and exports.
 // Visibility: a chain is visible only to someone who may see every campaign it uses (server/auth/campaign-scope.ts).
@@ -22,8 +22,7 @@ export class ChainResultNotReady extends AppError {
   }
 }
 
-const ownership = (c: CampaignRow) => ({ state: c.state, instituteId: c.instituteId, partnerInstituteId: c.clockB?.instituteId ?? null });
-const canSeeChain = (actor: Actor, cs: ChainCampaigns) => [cs.remote, cs.before, cs.after].every((c) => !c || canSeeCampaign(actor, ownership(c)));
+const ownership = campaignOwnership;
 
 async function toDto(m: EntityManager, row: CalibrationChainRow, cs: ChainCampaigns): Promise<Chain> {
   const clocks = new Map((await m.getRepository(ClockEntity).find({ where: [{ id: row.transportableClockId }, { id: row.referenceClockId }], relations: { institute: true } })).map((c) => [c.id, c]));

@@ -19,7 +19,7 @@ import { datumOffsetTerms } from '../science/adjustment/datum-offsets';
 import { loadSectionsWithBenchmarks } from './network.service';
 import { clockDeltaCFor, loadAcceptedCampaigns, loadLinks, loadSites } from './registry-bridge';
 import { canSeeCampaign } from '../auth/campaign-scope';
-import { computeChain, loadAcceptedChains } from '../chains/chain-compute';
+import { canSeeChain, computeChain, loadAcceptedChains } from '../chains/chain-compute';
 
 // Adjustment runs: gather the inputs (sections, site ties, accepted clock comparisons), store them with the options in
 // an immutable run row, let a pg-boss worker adjust them (server/jobs/worker.ts), and read the results back for the
@@ -192,13 +192,13 @@ export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptio
       observationMeta[id] = { label: `calibration chain ${ch.row.name}` };
       observations.push(ob);
       entered.chains.push({ id: ch.row.id, name: ch.row.name, observationId: id, campaignIds: r.inputs.map((x) => x.campaignId) });
-      for (const x of r.inputs) viaChain.set(x.campaignId, ch.row.id);
+      for (const x of r.inputs) {
+        viaChain.set(x.campaignId, ch.row.id);
+        entered.campaigns.push({ id: x.campaignId, name: x.campaign, via: 'chain', chainId: ch.row.id });
+      }
     }
     for (const c of await loadAcceptedCampaigns(m)) {
-      if (viaChain.has(c.id)) {
-        if (!entered.campaigns.some((x) => x.id === c.id)) entered.campaigns.push({ id: c.id, name: c.name, via: 'chain', chainId: viaChain.get(c.id)! });
-        continue;
-      }
+      if (viaChain.has(c.id)) continue;
       if (!siteDatum.has(c.siteAId) || !siteDatum.has(c.siteBId)) continue;
       if (clockCampaigns.some((x) => x.campaignId === c.id)) continue;
       if (c.siteAId === c.siteBId) {
@@ -475,8 +475,12 @@ export function createAdjustmentService(dataSource: DataSource) {
       // network's adjusted points, and of the clock observations only those of campaigns they may see.
       const seen = new Set((await loadAcceptedCampaigns(dataSource.manager)).filter((c) => canSeeCampaign(actor, c)).map((c) => c.id));
       const visible = new Set([...seen].map((id) => `clock:${id}`));
-      // A chain is shown when every campaign it uses is.
-      for (const ch of result.entered?.chains ?? []) if (ch.campaignIds.every((id) => seen.has(id))) visible.add(ch.observationId);
+      // A chain is shown when every campaign it uses is (side-by-side ones included).
+      for (const ch of await loadAcceptedChains(dataSource.manager)) {
+        if (!canSeeChain(actor, ch.campaigns)) continue;
+        visible.add(`chain:${ch.row.id}`);
+        for (const c of [ch.campaigns.remote, ch.campaigns.before, ch.campaigns.after]) if (c) seen.add(c.id);
+      }
       const shown = (o: { id: string }) => !(o.id.startsWith('clock:') || o.id.startsWith('chain:')) || visible.has(o.id);
       const entered = result.entered && {
         ...result.entered,
@@ -514,9 +518,8 @@ export function createAdjustmentService(dataSource: DataSource) {
       // Accepted calibration chains are rows of their own (source 'chain'), shown when every campaign they use is.
       type Item = { source: 'campaign' | 'chain'; c: { id: string; name: string; linkId: string; siteAId: string; siteBId: string }; dc?: { deltaC_m2s2: number; standardUncertainty_m2s2: number; tideSystem: TideSystem | null }; expandedU?: number };
       const items: Item[] = campaigns.map((c) => ({ source: 'campaign', c }));
-      const seen = new Set(campaigns.map((c) => c.id));
       for (const ch of await loadAcceptedChains(m)) {
-        if (![ch.campaigns.remote, ch.campaigns.before, ch.campaigns.after].every((x) => !x || seen.has(x.id))) continue;
+        if (!canSeeChain(actor, ch.campaigns)) continue;
         try {
           const r = await computeChain(m, ch.row, ch.campaigns);
           items.push({

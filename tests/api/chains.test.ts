@@ -60,12 +60,21 @@ describe('the demo chain', () => {
     expect(w).toBeCloseTo(1, 12);
     expect(r.deltaC_m2s2.expandedUncertainty).toBeCloseTo(r.deltaC_m2s2.coverageFactor * r.deltaC_m2s2.standardUncertainty, 9);
     expect(r.deltaC_m2s2.coverageProbability).toBeCloseTo(0.9545, 4);
-    const [tBudget] = await t.ds.query('SELECT id FROM clock_budget_version WHERE clock_id = $1 ORDER BY version DESC LIMIT 1', [parts.T]);
-    const tLine = r.lines.find((l: { key: string }) => l.key === `budget:${tBudget.id}`);
-    if (tLine) {
-      expect(tLine.sensitivity_m2s2).toBe(0);
-      expect(tLine.cancels).toBe(true);
-    }
+    // The reference clock's pinned budget version is the same in all three campaigns: it cancels exactly (sensitivity
+    // −c² + w_b·c² + w_a·c² = 0). T's campaigns pin three versions (re-evaluated at each deployment): three quantities
+    // whose sensitivities, +c² for the remote one and −w·c² for each calibration, sum to zero but do not cancel singly.
+    const pinned: { a: string; b: string }[] = await t.ds.query('SELECT budget_version_a_id AS a, budget_version_b_id AS b FROM campaign WHERE id = ANY($1::uuid[])', [[parts.remote, parts.before, parts.after]]);
+    const clockOf: { id: string; clock: string }[] = await t.ds.query('SELECT id, clock_id AS clock FROM clock_budget_version WHERE id = ANY($1::uuid[])', [pinned.flatMap((p) => [p.a, p.b])]);
+    const rVersions = new Set(clockOf.filter((x) => x.clock === parts.R).map((x) => x.id));
+    const tVersions = new Set(clockOf.filter((x) => x.clock === parts.T).map((x) => x.id));
+    expect(rVersions.size).toBe(1);
+    const rLine = r.lines.find((l: { key: string }) => l.key === `budget:${[...rVersions][0]}`);
+    expect(rLine.sensitivity_m2s2).toBe(0);
+    expect(rLine.cancels).toBe(true);
+    const tLines = r.lines.filter((l: { key: string }) => [...tVersions].some((v) => l.key === `budget:${v}`));
+    expect(tLines.length).toBe(tVersions.size);
+    const tSum = tLines.reduce((s: number, l: { sensitivity_m2s2: number }) => s + l.sensitivity_m2s2, 0);
+    expect(Math.abs(tSum) / C2).toBeLessThan(1e-12);
     // Both calibrations exist: the before/after difference with its E_n = d/U(d), U = 2u (ISO 13528:2015 §9.7).
     expect(r.beforeAfter).not.toBeNull();
     expect(r.beforeAfter.en).toBeCloseTo(r.beforeAfter.difference / (2 * r.beforeAfter.standardUncertainty), 9);
@@ -86,18 +95,31 @@ describe('the demo chain', () => {
   });
 
   it('enters the adjustment as one observation; its campaigns do not enter again', async () => {
+    // What-if for this test: the demo's Harbour Light benchmark is not part of the levelling network, so tie the gauge
+    // house to the benchmark of the SCL clock hall (5.75 m lower, as the invented sites are) to let the chain in.
+    await t.ds.query(`UPDATE site h SET benchmark_code = s.benchmark_code, tie_height_difference_m = s.tie_height_difference_m - 5.75, tie_u_m = 0.002
+      FROM site s WHERE s.name = 'SCL clock hall' AND h.name = 'Harbour Light tide-gauge station'`);
     const inputs = await gatherInputs(t.ds.manager, adjustmentOptionsSchema.parse({ includeClocks: true }));
     const ids = inputs.adjustment.observations.map((o) => o.id);
-    expect(ids).toContain(`chain:${chainId}`);
+    expect(ids, JSON.stringify(inputs.excluded)).toContain(`chain:${chainId}`);
     for (const c of [parts.remote, parts.before, parts.after]) expect(ids).not.toContain(`clock:${c}`);
     expect(inputs.entered!.chains.map((c) => c.id)).toEqual([chainId]);
     expect(inputs.entered!.campaigns.filter((c) => c.via === 'chain').map((c) => c.id).sort()).toEqual([parts.remote, parts.before, parts.after].sort());
     expect(inputs.entered!.clocks.map((c) => c.id)).toContain(parts.T);
+    // One observation from the reference clock's site to the remote site, with the link as a shared parameter.
+    const ob = inputs.adjustment.observations.find((o) => o.id === `chain:${chainId}`)!;
+    const [link] = await t.ds.query("SELECT id FROM fibre_link WHERE name = 'SCL–Harbour Light'");
+    expect(ob.terms!.map((x) => x.name)).toContain(`link:${link.id}`);
+    // The reconciliation has a row of its own for the chain (source 'chain').
+    const rec = await get('/api/v1/network/reconciliation', coordinator);
+    expect(rec.status).toBe(200);
+    const row = rec.body.rows.find((x: { source?: string; chainId?: string }) => x.source === 'chain' && x.chainId === chainId);
+    expect(row, JSON.stringify(rec.body.rows.map((x: { campaignLabel: string }) => x.campaignLabel))).toBeDefined();
   });
 });
 
 describe('creating chains', () => {
-  const post = (body: unknown, token = coordinator) => request(t.app).post('/api/v1/chains').set('authorization', `Bearer ${token}`).send(body);
+  const post = (body: object, token = coordinator) => request(t.app).post('/api/v1/chains').set('authorization', `Bearer ${token}`).send(body);
   const base = () => ({ name: 'NGCO-TSr1 test chain', transportableClockId: parts.T, referenceClockId: parts.R, remoteCampaignId: parts.remote });
 
   it('refuses a second chain on the same remote campaign (409), nothing stored', async () => {
