@@ -61,7 +61,12 @@ export class ChainNotReady extends Error {
   }
 }
 
-const fmtE = (x: number, d = 2) => x.toExponential(d).replace('e', '×10^');
+const SUPERSCRIPT = new Map([...'0123456789'].map((d, i) => [d, '⁰¹²³⁴⁵⁶⁷⁸⁹'[i]]).concat([['-', '⁻'], ['+', '']]));
+/** 4.14×10⁻¹⁸ */
+const fmtE = (x: number, d = 2) => {
+  const [m, e] = x.toExponential(d).split('e');
+  return `${m.replace('-', '−')}×10${[...e].map((ch) => SUPERSCRIPT.get(ch) ?? ch).join('')}`;
+};
 
 export async function computeChain(m: EntityManager, row: CalibrationChainRow, cs?: ChainCampaigns): Promise<ChainResult> {
   const c = cs ?? await loadChainCampaigns(m, row);

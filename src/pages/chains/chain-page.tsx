@@ -60,7 +60,7 @@ export function ChainPage() {
                 <p>{r.beforeAfter.agreed ? '✓' : '✕'} {r.beforeAfter.statement}</p>
               </div>
             ) : <p className="text-sm">One calibration only: no before/after check; the transport reproducibility was entered.</p>}
-            <table className="mt-2 text-sm">
+            <table className="mt-2 text-sm [&_td]:py-0.5">
               <thead><tr><th className="pr-4 text-left">Calibration</th><th className="pr-4 text-right">offset o</th><th className="pr-4 text-right">u (unshared)</th><th className="pr-4 text-right">weight</th><th className="text-left">local tie</th></tr></thead>
               <tbody>{r.calibrations.map((k) => (
                 <tr key={k.which}><td className="pr-4">{k.which}</td><td className="pr-4 text-right">{sci(k.offset, 4)}</td><td className="pr-4 text-right">{sci(k.unsharedUncertainty)}</td><td className="pr-4 text-right">{k.weight.toFixed(3)}</td>
@@ -70,7 +70,7 @@ export function ChainPage() {
             <p className="mt-1 text-xs text-ink-500">Transport term: u = {sci(r.transport.standardUncertainty)} ({r.transport.source}{r.transport.degreesOfFreedom !== null ? `, ν = ${r.transport.degreesOfFreedom}` : ''}).</p>
           </Panel>
           <Panel title="Budget of ΔC (GUM, shared inputs grouped)">
-            <table className="w-full text-sm" data-testid="chain-budget">
+            <table className="w-full text-sm [&_td]:px-2 [&_td]:py-0.5 [&_th]:px-2" data-testid="chain-budget">
               <thead><tr className="text-left"><th>Input</th><th>Type</th><th className="text-right">u(xᵢ)</th><th className="text-right">cᵢ (m²/s² per unit)</th><th className="text-right">|cᵢ|·u(xᵢ) (m²/s²)</th><th className="text-right">share</th><th className="text-right">ν</th><th>enters</th></tr></thead>
               <tbody>{r.lines.map((l) => (
                 <tr key={l.key} className={l.cancels ? 'text-ink-400' : ''}>
