@@ -61,7 +61,7 @@ export class ChainNotReady extends Error {
   }
 }
 
-const SUPERSCRIPT = new Map([...'0123456789'].map((d, i) => [d, '⁰¹²³⁴⁵⁶⁷⁸⁹'[i]]).concat([['-', '⁻'], ['+', '']]));
+const SUPERSCRIPT = new Map<string, string>([...[...'0123456789'].map((d, i): [string, string] => [d, '⁰¹²³⁴⁵⁶⁷⁸⁹'[i]]), ['-', '⁻'], ['+', '']]);
 /** 4.14×10⁻¹⁸ */
 const fmtE = (x: number, d = 2) => {
   const [m, e] = x.toExponential(d).split('e');
