@@ -3,6 +3,7 @@ import { recordAudit } from '../server/audit/audit.service';
 import { InstituteEntity, UserEntity } from '../server/db/entities/core.entities';
 import { demoInstitutes, demoPeople } from './people';
 import { certificatesSeeder } from './certificates.seed';
+import { chainsSeeder } from './chains.seed';
 import { networkSeeder } from './network.seed';
 import { registrySeeder } from './registry.seed';
 import { transportSeeder } from './transport.seed';
@@ -49,6 +50,8 @@ export async function seedDemo(ds: DataSource, log: (msg: string) => void = () =
 featureSeeders.push(registrySeeder);
 featureSeeders.push(transportSeeder);
 featureSeeders.push(uploadsSeeder);
+// Calibration chains join accepted campaigns; before the network so the demo run includes the chain.
+featureSeeders.push(chainsSeeder);
 // The levelling network goes last: its stored demo adjustment run includes the sites' ties when the registry is seeded.
 featureSeeders.push(networkSeeder);
 // The demo certificate needs accepted campaigns with uploaded series (and their results): after every other seed.

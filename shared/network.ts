@@ -257,6 +257,15 @@ export const runResultSchema = z.object({
   tideConversions: z.array(z.object({ label: z.string(), from: tideSystemSchema, to: tideSystemSchema, shift_m2s2: z.number() })).optional(),
   /** Inputs left out, with the reason (e.g. a clock result whose tide system is not stated). */
   excluded: z.array(z.object({ label: z.string(), reason: z.string() })).optional(),
+  /** What entered the run (runs stored before this was kept have none). */
+  entered: z.object({
+    clocks: z.array(z.object({ id: z.string(), name: z.string(), campaigns: z.number().int() })),
+    /** via 'chain': the campaign entered through the calibration chain chainId, not as an observation of its own. */
+    campaigns: z.array(z.object({ id: z.string(), name: z.string(), via: z.enum(['direct', 'chain']), chainId: z.string().nullable() })),
+    chains: z.array(z.object({ id: z.string(), name: z.string(), observationId: z.string(), campaignIds: z.array(z.string()) })),
+    /** Ratio closures that entered the run (filled by the closures feature). */
+    closures: z.array(z.object({ id: z.string(), name: z.string() }).passthrough()),
+  }).optional(),
 });
 export type RunResult = z.infer<typeof runResultSchema>;
 
@@ -287,6 +296,9 @@ export const reconciliationVerdicts = ['agreed', 'not-agreed', 'not-comparable',
 export const reconciliationVerdictSchema = z.enum(reconciliationVerdicts);
 export type ReconciliationVerdict = z.infer<typeof reconciliationVerdictSchema>;
 export const reconciliationRowSchema = z.object({
+  /** A campaign's own clock ΔC, or a calibration chain's (then campaignId is the chain's id and chainId says so). */
+  source: z.enum(['campaign', 'chain']).optional(),
+  chainId: z.string().nullable().optional(),
   linkId: z.string(),
   linkLabel: z.string(),
   campaignId: z.string(),

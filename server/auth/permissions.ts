@@ -23,6 +23,8 @@ export const permissionTable = {
   'campaigns:read': everyone,
   'campaigns:write': ['operator'],
   'campaigns:review': ['coordinator'],
+  // Calibration chains: the coordinator, and operators of the transportable clock's institute (checked by the service).
+  'chains:write': ['operator', 'coordinator'],
   'references:write': ['coordinator'],
   'network:read': everyone,
   'network:write': ['coordinator'],

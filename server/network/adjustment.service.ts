@@ -19,6 +19,7 @@ import { datumOffsetTerms } from '../science/adjustment/datum-offsets';
 import { loadSectionsWithBenchmarks } from './network.service';
 import { clockDeltaCFor, loadAcceptedCampaigns, loadLinks, loadSites } from './registry-bridge';
 import { canSeeCampaign } from '../auth/campaign-scope';
+import { canSeeChain, computeChain, loadAcceptedChains } from '../chains/chain-compute';
 
 // Adjustment runs: gather the inputs (sections, site ties, accepted clock comparisons), store them with the options in
 // an immutable run row, let a pg-boss worker adjust them (server/jobs/worker.ts), and read the results back for the
@@ -49,7 +50,10 @@ export type StoredInputs = {
   referenceDatum?: string | null;
   tideConversions?: { label: string; from: TideSystem; to: TideSystem; shift_m2s2: number; pointCode?: string }[];
   excluded?: { label: string; reason: string }[];
+  /** What entered the run: clocks, campaigns (directly or through a chain), calibration chains, ratio closures. */
+  entered?: RunEntered;
 };
+export type RunEntered = NonNullable<RunResult['entered']>;
 
 export const sitePoint = (siteId: string) => `site:${siteId}`;
 
@@ -150,10 +154,57 @@ export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptio
   const clockCampaigns: StoredInputs['clockCampaigns'] = [];
   const offsets = new Set<string>();
   const shared = new Map<string, { sigma: number; label: string }>();
+  const entered: RunEntered = { clocks: [], campaigns: [], chains: [], closures: [] };
   if (options.includeClocks) {
+    // Accepted calibration chains first: each is one observation, and the campaigns it uses do not enter again.
+    const viaChain = new Map<string, string>();
+    for (const ch of await loadAcceptedChains(m)) {
+      const id = `chain:${ch.row.id}`;
+      let r;
+      try {
+        r = await computeChain(m, ch.row, ch.campaigns);
+      } catch (e) {
+        excluded.push({ label: `calibration chain ${ch.row.name}`, reason: e instanceof Error ? e.message : String(e) });
+        continue;
+      }
+      const da = siteDatum.get(r.fromSite.id);
+      const db = siteDatum.get(r.toSite.id);
+      if (!da || !db) {
+        excluded.push({ label: `calibration chain ${ch.row.name}`, reason: 'a site of the chain has no local tie to a benchmark of the network' });
+        continue;
+      }
+      if (da.system === null || db.system === null) {
+        excluded.push({ label: `calibration chain ${ch.row.name}`, reason: 'the tide system of a datum is not stated' });
+        continue;
+      }
+      // The chain's ΔC is mean-tide (its comparisons' results are); converted to each end's datum system as for campaigns.
+      const shift = potentialShiftFromMeanTide(db.system, db.latitudeDeg) - potentialShiftFromMeanTide(da.system, da.latitudeDeg);
+      if (shift !== 0) tideConversions.push({ label: `calibration chain ${ch.row.name}`, from: 'mean-tide', to: da.system === db.system ? da.system : db.system, shift_m2s2: shift });
+      const terms: NonNullable<NetworkObservation['terms']> = r.shared.map((t) => ({ name: t.key, coefficient: t.coefficient }));
+      for (const t of r.shared) if (!shared.has(t.key)) shared.set(t.key, { sigma: t.sigma_m2s2, label: t.label });
+      const ob: NetworkObservation = { id, kind: 'clock', from: sitePoint(r.fromSite.id), to: sitePoint(r.toSite.id), deltaC: r.deltaC_m2s2.value + shift, sigma: Math.max(r.own_m2s2, 0.01 * r.deltaC_m2s2.standardUncertainty), terms };
+      // (Floor: 1 % of u_c keeps a weight when everything is shared, as for campaigns.)
+      if (da.name !== db.name && options.datumOffsets && referenceDatum !== null && da.name !== null && db.name !== null) {
+        const offsetTerms = datumOffsetTerms(da.name, db.name, referenceDatum);
+        for (const t of offsetTerms) offsets.add(t.name);
+        ob.terms = [...offsetTerms, ...terms];
+      }
+      observationMeta[id] = { label: `calibration chain ${ch.row.name}` };
+      observations.push(ob);
+      entered.chains.push({ id: ch.row.id, name: ch.row.name, observationId: id, campaignIds: r.inputs.map((x) => x.campaignId) });
+      for (const x of r.inputs) {
+        viaChain.set(x.campaignId, ch.row.id);
+        entered.campaigns.push({ id: x.campaignId, name: x.campaign, via: 'chain', chainId: ch.row.id });
+      }
+    }
     for (const c of await loadAcceptedCampaigns(m)) {
+      if (viaChain.has(c.id)) continue;
       if (!siteDatum.has(c.siteAId) || !siteDatum.has(c.siteBId)) continue;
       if (clockCampaigns.some((x) => x.campaignId === c.id)) continue;
+      if (c.siteAId === c.siteBId) {
+        excluded.push({ label: `clock comparison ${c.name}`, reason: 'side by side at one site: it measures the offset between the clocks, not a potential difference (it enters through a calibration chain)' });
+        continue;
+      }
       const dc = await clockDeltaCFor(m, c.id);
       if (!dc) continue;
       const da = siteDatum.get(c.siteAId)!;
@@ -187,7 +238,9 @@ export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptio
       observationMeta[id] = { label: `clock comparison ${c.name}` };
       observations.push(ob);
       clockCampaigns.push({ campaignId: c.id, observationId: id, crossesDatums: crosses });
+      entered.campaigns.push({ id: c.id, name: c.name, via: 'direct', chainId: null });
     }
+    entered.clocks = await clocksOf(m, entered.campaigns.map((c) => c.id));
   }
   // A benchmark no section reaches carries no information; leaving it out keeps it from counting as a datum-less part.
   const used = new Set(observations.flatMap((o) => [o.from, o.to]));
@@ -215,8 +268,17 @@ export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptio
     },
     pointMeta, observationMeta, clockCampaigns,
     sharedLabels: Object.fromEntries([...shared].map(([name, v]) => [name, v.label])),
-    referenceDatum, tideConversions: keptConversions, excluded,
+    referenceDatum, tideConversions: keptConversions, excluded, entered,
   };
+}
+
+/** The clocks of the campaigns that entered a run (each once, by name). */
+async function clocksOf(m: EntityManager, campaignIds: string[]): Promise<RunEntered['clocks']> {
+  if (campaignIds.length === 0) return [];
+  const rows: { id: string; name: string; n: string }[] = await m.query(`
+    SELECT k.id, k.name, count(*)::text AS n FROM campaign c JOIN clock k ON k.id IN (c.clock_a_id, c.clock_b_id)
+    WHERE c.id = ANY($1::uuid[]) GROUP BY k.id, k.name ORDER BY k.name`, [campaignIds]);
+  return rows.map((r) => ({ id: r.id, name: r.name, campaigns: Number(r.n) }));
 }
 
 /** Parts of the network that no datum point reaches (union–find); checked before a run is queued. */
@@ -318,6 +380,7 @@ export function computeRunResult(inputs: StoredInputs, onProgress?: (fraction: n
     referenceDatum: inputs.referenceDatum ?? null,
     tideConversions: (inputs.tideConversions ?? []).map((t) => ({ label: t.label, from: t.from, to: t.to, shift_m2s2: t.shift_m2s2 })),
     excluded: inputs.excluded ?? [],
+    entered: inputs.entered,
   };
 }
 
@@ -410,11 +473,23 @@ export function createAdjustmentService(dataSource: DataSource) {
       if (!result || actor.role !== 'operator') return { ...toRunDto(r), result };
       // A run with clock observations holds other institutes' campaigns (label, ΔC, residual): an operator gets the
       // network's adjusted points, and of the clock observations only those of campaigns they may see.
-      const visible = new Set((await loadAcceptedCampaigns(dataSource.manager)).filter((c) => canSeeCampaign(actor, c)).map((c) => `clock:${c.id}`));
-      const shown = (o: { id: string }) => !o.id.startsWith('clock:') || visible.has(o.id);
+      const seen = new Set((await loadAcceptedCampaigns(dataSource.manager)).filter((c) => canSeeCampaign(actor, c)).map((c) => c.id));
+      const visible = new Set([...seen].map((id) => `clock:${id}`));
+      // A chain is shown when every campaign it uses is (side-by-side ones included).
+      for (const ch of await loadAcceptedChains(dataSource.manager)) {
+        if (!canSeeChain(actor, ch.campaigns)) continue;
+        visible.add(`chain:${ch.row.id}`);
+        for (const c of [ch.campaigns.remote, ch.campaigns.before, ch.campaigns.after]) if (c) seen.add(c.id);
+      }
+      const shown = (o: { id: string }) => !(o.id.startsWith('clock:') || o.id.startsWith('chain:')) || visible.has(o.id);
+      const entered = result.entered && {
+        ...result.entered,
+        campaigns: result.entered.campaigns.filter((c) => seen.has(c.id)),
+        chains: result.entered.chains.filter((c) => visible.has(c.observationId)),
+      };
       return {
         ...toRunDto(r),
-        result: { ...result, observations: result.observations.filter(shown), snooping: { ...result.snooping, suspects: result.snooping.suspects.filter(shown) } },
+        result: { ...result, entered, observations: result.observations.filter(shown), snooping: { ...result.snooping, suspects: result.snooping.suspects.filter(shown) } },
       };
     },
 
@@ -440,14 +515,32 @@ export function createAdjustmentService(dataSource: DataSource) {
         return null;
       };
       const rows: Reconciliation['rows'] = [];
-      for (const c of campaigns) {
-        const dc = await clockDeltaCFor(m, c.id);
+      // Accepted calibration chains are rows of their own (source 'chain'), shown when every campaign they use is.
+      type Item = { source: 'campaign' | 'chain'; c: { id: string; name: string; linkId: string; siteAId: string; siteBId: string }; dc?: { deltaC_m2s2: number; standardUncertainty_m2s2: number; tideSystem: TideSystem | null }; expandedU?: number };
+      const items: Item[] = campaigns.map((c) => ({ source: 'campaign', c }));
+      for (const ch of await loadAcceptedChains(m)) {
+        if (!canSeeChain(actor, ch.campaigns)) continue;
+        try {
+          const r = await computeChain(m, ch.row, ch.campaigns);
+          items.push({
+            source: 'chain', c: { id: ch.row.id, name: ch.row.name, linkId: ch.campaigns.remote.linkId, siteAId: r.fromSite.id, siteBId: r.toSite.id },
+            dc: { deltaC_m2s2: r.deltaC_m2s2.value, standardUncertainty_m2s2: r.deltaC_m2s2.standardUncertainty, tideSystem: r.tideSystem },
+            expandedU: r.deltaC_m2s2.expandedUncertainty,
+          });
+        } catch {
+          // A chain whose campaigns have no result yet has nothing to compare.
+        }
+      }
+      for (const item of items) {
+        const c = item.c;
+        const dc = item.dc ?? await clockDeltaCFor(m, c.id);
         if (!dc) continue;
         const a = byCode.get(sitePoint(c.siteAId));
         const b = byCode.get(sitePoint(c.siteBId));
         const siteA = sites.get(c.siteAId);
         const siteB = sites.get(c.siteBId);
-        const clockU = 2 * dc.standardUncertainty_m2s2;
+        // Campaigns: k = 2; a chain: its own k = t_p(ν_eff).
+        const clockU = item.expandedU ?? 2 * dc.standardUncertainty_m2s2;
         let levellingDeltaC: number | null = null;
         let levellingSigma: number | null = null;
         let sigmaIgnoringCov: number | null = null;
@@ -515,7 +608,8 @@ export function createAdjustmentService(dataSource: DataSource) {
           if (crosses) note = `${a!.datumName} and ${b!.datumName} are joined by levelling, so the levelled ΔC spans both datums`;
         }
         rows.push({
-          linkId: c.linkId, linkLabel: links.get(c.linkId)?.name ?? c.linkId, campaignId: c.id, campaignLabel: c.name,
+          source: item.source, chainId: item.source === 'chain' ? c.id : null,
+          linkId: c.linkId, linkLabel: links.get(c.linkId)?.name ?? c.linkId, campaignId: c.id, campaignLabel: item.source === 'chain' ? `chain: ${c.name}` : c.name,
           fromSite: siteA ? siteLabel(siteA) : c.siteAId, toSite: siteB ? siteLabel(siteB) : c.siteBId,
           fromDatum: a?.datumName ?? null, toDatum: b?.datumName ?? null,
           crossesDatums: crosses, comparable, verdict, clockDeltaC_m2s2: dc.deltaC_m2s2, clockExpandedU_m2s2: clockU,

@@ -7,6 +7,7 @@ const all: readonly Role[] = ['operator', 'coordinator', 'auditor', 'admin'];
 export const navItems: NavItem[] = [
   { to: '/', label: 'Overview', roles: all, group: 'work' },
   { to: '/campaigns', label: 'Campaigns', roles: ['operator', 'coordinator', 'auditor'], group: 'work' },
+  { to: '/chains', label: 'Calibration chains', roles: ['operator', 'coordinator', 'auditor'], group: 'work' },
   { to: '/sites', label: 'Sites', roles: ['operator', 'coordinator', 'auditor'], group: 'work' },
   { to: '/clocks', label: 'Clocks', roles: ['operator', 'coordinator', 'auditor'], group: 'work' },
   { to: '/links', label: 'Fibre links', roles: ['operator', 'coordinator', 'auditor'], group: 'work' },

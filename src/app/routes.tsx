@@ -26,6 +26,8 @@ import { LinkPage, LinksPage } from '../pages/registry/links-page';
 import { ReferenceDataPage } from '../pages/registry/reference-data-page';
 import { CampaignsPage } from '../pages/campaigns/campaigns-page';
 import { CampaignPage } from '../pages/campaigns/campaign-page';
+import { ChainsPage } from '../pages/chains/chains-page';
+import { ChainPage } from '../pages/chains/chain-page';
 
 /** Client routes; features add theirs here (and a nav entry in nav.ts). */
 export const featureRoutes: RouteObject[] = [
@@ -56,5 +58,7 @@ export const featureRoutes: RouteObject[] = [
   { path: 'reference-data', element: <ReferenceDataPage /> },
   { path: 'campaigns', element: <CampaignsPage /> },
   { path: 'campaigns/:id', element: <CampaignPage /> },
+  { path: 'chains', element: <ChainsPage /> },
+  { path: 'chains/:id', element: <ChainPage /> },
   { path: '*', element: <NotFoundPage /> },
 ];

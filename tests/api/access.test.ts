@@ -61,7 +61,9 @@ const principals: Principal[] = ['anonymous', 'operator-own', 'operator-other', 
 const roleOf: Record<Exclude<Principal, 'anonymous'>, Role> = { 'operator-own': 'operator', 'operator-other': 'operator', coordinator: 'coordinator', auditor: 'auditor', admin: 'admin' };
 const matrixTokens = new Map<Principal, string>();
 const GUESSED = '00000000-0000-4000-8000-00000000beef';
-const obj = { draft: '', accepted: '', acceptedName: '', draftName: '', series: '', site: '', clock: '', link: '', benchmark: '', section: '', datum: '', run: '', refFreq: '', user: '', certificate: '' };
+const obj = { draft: '', accepted: '', acceptedName: '', draftName: '', series: '', site: '', clock: '', link: '', benchmark: '', section: '', datum: '', run: '', refFreq: '', user: '', certificate: '', chain: '' };
+/** Who may see the demo calibration chain (every campaign of it visible: server/auth/campaign-scope.ts). */
+const chainVisible = new Map<Principal, boolean>();
 let cells = 0;
 const matrixLog: { principal: Principal; method: string; path: string; status: number; expected: number[] }[] = [];
 
@@ -95,6 +97,31 @@ describe('access matrix (every route × six callers)', () => {
     obj.run = await one("SELECT id FROM adjustment_run WHERE state = 'done' ORDER BY created_at DESC LIMIT 1");
     obj.refFreq = await one('SELECT id FROM reference_frequency LIMIT 1');
     obj.user = await one("SELECT id FROM app_user WHERE email = 'mira.ostrowe@highridge-obs.invalid'");
+    // The demo calibration chain (NGCO's transportable clock) and, from its campaigns, who may see it.
+    const chainRow = (await t.ds.query("SELECT id FROM calibration_chain ORDER BY created_at LIMIT 1"))[0] as { id: string } | undefined;
+    obj.chain = chainRow?.id ?? '';
+    const parts: { state: string; inst: string; partner: string }[] = chainRow ? await t.ds.query(`
+      SELECT c.state, c.institute_id AS inst, cb.institute_id AS partner FROM calibration_chain ch
+      JOIN campaign c ON c.id IN (ch.remote_campaign_id, ch.before_campaign_id, ch.after_campaign_id) JOIN clock cb ON cb.id = c.clock_b_id
+      WHERE ch.id = $1`, [chainRow.id]) : [];
+    const instOf = async (email: string) => ((await t.ds.query('SELECT institute_id AS i FROM app_user WHERE email = $1', [email]))[0] as { i: string }).i;
+    const own = await instOf('mira.ostrowe@highridge-obs.invalid');
+    const other = await instOf(people.operator);
+    const published = parts.every((x) => x.state === 'accepted' || x.state === 'certified');
+    const reviewable = parts.every((x) => ['accepted', 'certified', 'submitted', 'in_review', 'returned'].includes(x.state));
+    // The chain's result is computed from its campaigns' results (as the worker would have stored them).
+    if (chainRow) {
+      const ids: { id: string }[] = await t.ds.query('SELECT unnest(ARRAY[remote_campaign_id, before_campaign_id, after_campaign_id]) AS id FROM calibration_chain WHERE id = $1', [chainRow.id]);
+      for (const { id } of ids.filter((x) => x.id)) {
+        const has = await t.ds.query('SELECT 1 FROM comparison_result WHERE campaign_id = $1', [id]);
+        if (has.length === 0) await t.ds.transaction((m) => computeCampaignResult(m, id, { actor: null, now: new Date() }));
+      }
+    }
+    chainVisible.set('operator-own', !!chainRow && parts.every((x) => x.inst === own || x.partner === own));
+    chainVisible.set('operator-other', !!chainRow && parts.every((x) => x.inst === other || x.partner === other));
+    chainVisible.set('coordinator', !!chainRow && reviewable);
+    chainVisible.set('admin', !!chainRow && reviewable);
+    chainVisible.set('auditor', !!chainRow && published);
   }, 120_000);
 
   afterAll(() => {
@@ -119,6 +146,7 @@ describe('access matrix (every route × six callers)', () => {
       if (path.startsWith('/api/v1/network/runs/')) return obj.run;
       if (path.startsWith('/api/v1/reference-frequencies/')) return obj.refFreq;
       if (path.startsWith('/api/v1/users/')) return obj.user;
+      if (path.startsWith('/api/v1/chains/')) return obj.chain || GUESSED;
       return GUESSED;
     };
     return path
@@ -146,6 +174,8 @@ describe('access matrix (every route × six callers)', () => {
       return bodyOk ? [403, 404] : [400];
     }
     if (r.path.endsWith('/progress')) return [404];
+    // A chain is visible to whoever may see every one of its campaigns; its result is computed from theirs.
+    if (r.path.startsWith('/api/v1/chains/:id')) return chainVisible.get(p) ? [200] : [404];
     if (r.query && !r.query.safeParse({}).success) return [400];
     if (campaignBound(r.path)) {
       if (!seesCampaign(p, r.path.startsWith('/api/v1/campaigns/:id') ? campaign : 'accepted')) return [404];

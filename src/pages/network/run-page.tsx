@@ -1,5 +1,5 @@
 import { useState } from 'react';
-import { useNavigate, useParams } from 'react-router';
+import { Link, useNavigate, useParams } from 'react-router';
 import { useRun } from '../../api/network';
 import { ResidualPlot } from '../../components/plots/residual-plot';
 import { Caution, Panel } from '../../components/ui';
@@ -75,6 +75,7 @@ export function RunPage() {
               <p className="mt-2 text-sm" data-testid="datum-offsets">Datum offsets, one per datum against the reference datum {res.referenceDatum ?? ''} (C in that datum − C in the reference; ± standard deviation, k = 1): {res.datumOffsets.map((d) => `${d.name}: ${fmt(d.value_m2s2, 3)} ± ${fmt(d.sigma_m2s2, 3)} m²/s² (${fmt(d.valueMm, 0)} ± ${fmt(d.sigmaMm, 0)} mm)`).join('; ')}</p>
             )}
           </Panel>
+          {res.entered && <EnteredPanel entered={res.entered} />}
           {(res.sharedParameters?.length ?? 0) > 0 && (
             <Panel title="Shared systematic parameters">
               <p className="mb-2 text-xs text-ink-500">
@@ -151,5 +152,33 @@ export function RunPage() {
         </>
       )}
     </>
+  );
+}
+
+/** What entered the run: clocks, campaigns (directly or through a chain), calibration chains and ratio closures. */
+function EnteredPanel({ entered }: { entered: NonNullable<NonNullable<ReturnType<typeof useRun>['data']>['result']>['entered'] & object }) {
+  const chainName = new Map(entered.chains.map((c) => [c.id, c.name]));
+  return (
+    <Panel title="What entered this run">
+      <div className="grid gap-4 text-sm md:grid-cols-2" data-testid="run-entered">
+        <div>
+          <h3 className="font-semibold">Clocks ({entered.clocks.length})</h3>
+          <ul className="list-disc pl-5">{entered.clocks.map((c) => <li key={c.id}>{c.name} · {plural(c.campaigns, 'campaign')}</li>)}</ul>
+        </div>
+        <div>
+          <h3 className="font-semibold">Calibration chains ({entered.chains.length})</h3>
+          <p className="text-xs text-ink-500">Each chain is one observation; the campaigns it uses do not enter again.</p>
+          <ul className="list-disc pl-5">{entered.chains.map((c) => <li key={c.id}><Link to={`/chains/${c.id}`}>{c.name}</Link> · {plural(c.campaignIds.length, 'campaign')}</li>)}</ul>
+        </div>
+        <div>
+          <h3 className="font-semibold">Campaigns ({entered.campaigns.length})</h3>
+          <ul className="list-disc pl-5">{entered.campaigns.map((c) => <li key={c.id}><Link to={`/campaigns/${c.id}`}>{c.name}</Link>{c.via === 'chain' ? ` · through the chain ${chainName.get(c.chainId ?? '') ?? ''}` : ' · as its own observation'}</li>)}</ul>
+        </div>
+        <div>
+          <h3 className="font-semibold">Ratio closures ({entered.closures.length})</h3>
+          <ul className="list-disc pl-5">{entered.closures.map((c) => <li key={c.id}>{c.name}</li>)}</ul>
+        </div>
+      </div>
+    </Panel>
   );
 }

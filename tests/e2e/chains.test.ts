@@ -1,0 +1,50 @@
+import type { Browser } from 'playwright-core';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { computeCampaignResult } from '../../server/results/results.service';
+import { launchBrowser, screenshot, signInWithBrowser, startE2eServer, type E2eServer } from '../helpers/browser';
+
+// The coordinator opens the demo calibration chain: ΔC with U, k and p, the before/after check with its Eₙ and the
+// budget in which the transportable clock's own systematic cancels. Numbers on the page are checked against the API.
+
+let srv: E2eServer;
+let browser: Browser;
+beforeAll(async () => {
+  srv = await startE2eServer();
+  browser = await launchBrowser();
+  // The chain is computed from its campaigns' results (as the result worker would have stored them).
+  const ids: { id: string }[] = await srv.ds.query("SELECT unnest(ARRAY[remote_campaign_id, before_campaign_id, after_campaign_id]) AS id FROM calibration_chain WHERE name = 'NGCO-TSr1 Harbour Light chain (April–June 2026)'");
+  for (const { id } of ids.filter((x) => x.id)) {
+    const has = await srv.ds.query('SELECT 1 FROM comparison_result WHERE campaign_id = $1', [id]);
+    if (has.length === 0) await srv.ds.transaction((m) => computeCampaignResult(m, id, { actor: null, now: new Date() }));
+  }
+}, 180_000);
+afterAll(async () => {
+  await browser?.close();
+  await srv?.stop();
+});
+
+describe('calibration chain pages', () => {
+  it('the coordinator opens the demo chain’s result', async () => {
+    const context = await browser.newContext({ viewport: { width: 1400, height: 1200 } });
+    const page = await context.newPage();
+    await signInWithBrowser(page, srv.baseUrl, 'ansel.brandt@geopotential-office.invalid', '/chains');
+    await page.getByRole('link', { name: 'NGCO-TSr1 Harbour Light chain (April–June 2026)' }).click();
+    await page.getByTestId('chain-result').waitFor();
+    const id = page.url().split('/').pop()!;
+    const r = await page.evaluate(async (i) => (await fetch(`/api/v1/chains/${i}/result`)).json(), id);
+    const text = await page.getByTestId('chain-result').textContent();
+    const fmt = (v: number) => (v < 0 ? `−${Math.abs(v).toFixed(3)}` : v.toFixed(3));
+    expect(text).toContain(`${fmt(r.deltaC_m2s2.value)} m²/s²`);
+    expect(text).toContain(`U = ${fmt(r.deltaC_m2s2.expandedUncertainty)} m²/s²`);
+    await expect(page.getByText(/k = \d\.\d\d, p = 95\.45 %/).first().isVisible()).resolves.toBe(true);
+    await expect(page.getByTestId('before-after').textContent()).resolves.toContain(`E_n = ${r.beforeAfter.en.toFixed(2)}`);
+    await expect(page.getByTestId('chain-budget').textContent()).resolves.toContain('cancels exactly');
+    await expect(page.getByText('verify against your national datum authority', { exact: false }).first().isVisible()).resolves.toBe(true);
+    await screenshot(page, 'chain-result');
+    await page.goto(`${srv.baseUrl}/chains`);
+    await page.getByRole('button', { name: 'New chain' }).click();
+    await page.getByText('New calibration chain').waitFor();
+    await screenshot(page, 'chain-new-form');
+    await context.close();
+  }, 120_000);
+});
