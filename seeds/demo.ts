@@ -6,6 +6,7 @@ import { certificatesSeeder } from './certificates.seed';
 import { networkSeeder } from './network.seed';
 import { registrySeeder } from './registry.seed';
 import { uploadsSeeder } from './uploads.seed';
+import { closuresSeeder } from './closures.seed';
 
 // Loads the invented demo scenario into an empty database. Every name, place and number here is made up.
 // Feature seeders run after the people, in order; each receives the transaction and the institutes by code.
@@ -51,3 +52,5 @@ featureSeeders.push(uploadsSeeder);
 featureSeeders.push(networkSeeder);
 // The demo certificate needs accepted campaigns with uploaded series (and their results): after every other seed.
 featureSeeders.push(certificatesSeeder);
+// Ratio closures of the loops of simultaneous campaigns, from the seeded series (as the closure job would).
+featureSeeders.push(closuresSeeder);

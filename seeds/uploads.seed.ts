@@ -64,7 +64,7 @@ export const uploadsSeeder: Seeder = {
              sa.ellipsoidal_height_m - sa.quasigeoid_height_m AS h_a, sb.ellipsoidal_height_m - sb.quasigeoid_height_m AS h_b
         FROM campaign c JOIN clock ca ON ca.id = c.clock_a_id JOIN clock cb ON cb.id = c.clock_b_id
         JOIN site sa ON sa.id = ca.site_id JOIN site sb ON sb.id = cb.site_id
-       WHERE c.state <> 'draft' ORDER BY c.period_start`)) as { id: string; name: string; state: string; lat_a: number; lat_b: number; lon_a: number; lon_b: number; eh_a: number; eh_b: number; h_a: number; h_b: number }[];
+       WHERE c.state <> 'draft' ORDER BY c.created_at`)) as { id: string; name: string; state: string; lat_a: number; lat_b: number; lon_a: number; lon_b: number; eh_a: number; eh_b: number; h_a: number; h_b: number }[];
     let n = 0;
     for (const c of campaigns) {
       const campaign = (await loadCampaignForUpload(manager, c.id))!;

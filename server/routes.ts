@@ -12,7 +12,8 @@ import { certificateRoutes } from './certificates/certificates.routes';
 import { mailOutboxRoutes } from './mail/outbox.routes';
 import { pkiRoutes } from './certificates/pki.routes';
 import { measuredRatioRoutes } from './registry/measured-ratios';
+import { closureRoutes } from './closures/closures.routes';
 
 // Every API route of the product, in one list: Express, OpenAPI and the access tests read it.
 // Feature folders export their own arrays; add them here.
-export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes, ...calcRoutes, ...resultsRoutes, ...networkRoutes, ...adjustCalcRoutes, ...registryRoutes, ...campaignRoutes, ...uploadRoutes, ...certificateRoutes, ...mailOutboxRoutes, ...pkiRoutes, ...measuredRatioRoutes];
+export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes, ...calcRoutes, ...resultsRoutes, ...networkRoutes, ...adjustCalcRoutes, ...registryRoutes, ...campaignRoutes, ...uploadRoutes, ...certificateRoutes, ...mailOutboxRoutes, ...pkiRoutes, ...measuredRatioRoutes, ...closureRoutes];
