@@ -8,6 +8,7 @@ import { networkSeeder } from './network.seed';
 import { registrySeeder } from './registry.seed';
 import { transportSeeder } from './transport.seed';
 import { uploadsSeeder } from './uploads.seed';
+import { closuresSeeder } from './closures.seed';
 
 // Loads the invented demo scenario into an empty database. Every name, place and number here is made up.
 // Feature seeders run after the people, in order; each receives the transaction and the institutes by code.
@@ -56,3 +57,5 @@ featureSeeders.push(chainsSeeder);
 featureSeeders.push(networkSeeder);
 // The demo certificate needs accepted campaigns with uploaded series (and their results): after every other seed.
 featureSeeders.push(certificatesSeeder);
+// Ratio closures of the loops of simultaneous campaigns, from the seeded series (as the closure job would).
+featureSeeders.push(closuresSeeder);

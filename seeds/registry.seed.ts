@@ -119,6 +119,7 @@ export const registrySeeder: Seeder = {
 
     const links = manager.getRepository(FibreLinkEntity);
     const longLink = await links.save({ name: 'SCL–HMO long-haul', siteAId: scl.id, siteBId: hmo.id, fibreLengthKm: 420.6, fractionalUncertainty: 3e-19, notes: 'Invented: shared telecom fibre with two bidirectional amplifiers.', createdAt: day('2026-01-19T13:00:00Z'), updatedAt: day('2026-01-19T13:00:00Z') });
+    const ionLink = await links.save({ name: 'SCL–HMO ion lab', siteAId: scl.id, siteBId: hmoIon.id, fibreLengthKm: 421.3, fractionalUncertainty: 3e-19, notes: 'Invented: second fibre pair of the long-haul cable, spliced through to the ion lab.', createdAt: day('2026-01-19T13:20:00Z'), updatedAt: day('2026-01-19T13:20:00Z') });
     const localLink = await links.save({ name: 'HMO local', siteAId: hmo.id, siteBId: hmoIon.id, fibreLengthKm: 0.42, fractionalUncertainty: 1e-20, notes: 'Invented: noise-cancelled campus fibre.', createdAt: day('2026-01-19T13:10:00Z'), updatedAt: day('2026-01-19T13:10:00Z') });
 
     const srRatio = await defaultReferenceRatio(manager, 'Sr87', 'Sr87');
@@ -168,8 +169,15 @@ export const registrySeeder: Seeder = {
     ]);
     await campaign('SCL–HMO Sr run January 2027', sr1, sr2, longLink, '2027-01-11T00:00:00Z', '2027-01-29T00:00:00Z', 'Invented demo campaign, being prepared.', [ev('draft', '2026-11-30T10:00:00Z', ines, 'created')]);
     await campaign('HMO Yb⁺/Sr local ratio, December 2026', sr2, yb, localLink, '2026-12-07T00:00:00Z', '2026-12-18T00:00:00Z', 'Invented demo campaign, being prepared.', [ev('draft', '2026-11-29T09:00:00Z', mira, 'created')]);
+    // A three-clock loop: SCL-Sr1 → HMO-Sr2 → HMO-YbIon → SCL-Sr1, all three compared over the same days of October 2026.
+    await campaign('SCL–HMO Sr October run 2026', sr1, sr2, longLink, '2026-10-12T00:00:00Z', '2026-10-23T00:00:00Z', 'Invented demo campaign, run alongside the HMO local Yb⁺/Sr comparison to close the loop of three clocks.', [
+      ev('draft', '2026-10-28T08:00:00Z', ines, 'created'), ev('submitted', '2026-10-30T10:00:00Z', ines), ev('in_review', '2026-11-02T09:00:00Z', ansel),
+    ]);
+    await campaign('SCL–HMO ion lab Yb⁺/Sr, October 2026', sr1, yb, ionLink, '2026-10-12T00:00:00Z', '2026-10-23T00:00:00Z', 'Invented demo campaign over the second fibre pair, third side of the loop of three clocks.', [
+      ev('draft', '2026-10-29T08:00:00Z', ines, 'created'), ev('submitted', '2026-10-31T10:00:00Z', ines), ev('in_review', '2026-11-03T09:00:00Z', ansel),
+    ]);
     history.sort((x, y) => x.at.getTime() - y.at.getTime());
     for (const h of history) await recordAudit(manager, h.actor, h.input);
-    await recordAudit(manager, null, { action: 'demo.registry-seeded', entityType: 'database', details: { scenario: 'invented demo registry: 3 sites, 3 clocks, 2 links, 7 campaigns' } });
+    await recordAudit(manager, null, { action: 'demo.registry-seeded', entityType: 'database', details: { scenario: 'invented demo registry: 3 sites, 3 clocks, 3 links, 9 campaigns' } });
   },
 };

@@ -64,7 +64,7 @@ export const uploadsSeeder: Seeder = {
              sa.longitude_deg AS lon_a, sb.longitude_deg AS lon_b, sa.ellipsoidal_height_m AS eh_a, sb.ellipsoidal_height_m AS eh_b,
              sa.ellipsoidal_height_m - sa.quasigeoid_height_m AS h_a, sb.ellipsoidal_height_m - sb.quasigeoid_height_m AS h_b
         FROM campaign c JOIN site sa ON sa.id = c.site_a_id JOIN site sb ON sb.id = c.site_b_id
-       WHERE c.state <> 'draft' ORDER BY c.period_start`)) as { id: string; name: string; state: string; role: string; local_dc: number | null; lat_a: number; lat_b: number; lon_a: number; lon_b: number; eh_a: number; eh_b: number; h_a: number; h_b: number }[];
+       WHERE c.state <> 'draft' ORDER BY c.created_at, c.period_start, c.name`)) as { id: string; name: string; state: string; role: string; local_dc: number | null; lat_a: number; lat_b: number; lon_a: number; lon_b: number; eh_a: number; eh_b: number; h_a: number; h_b: number }[];
     // The transportable-clock campaigns take the generator seeds after all others, so the other series stay as they were.
     campaigns.sort((x, y) => Number(TRANSPORT_OFFSETS.has(x.name)) - Number(TRANSPORT_OFFSETS.has(y.name)));
     let n = 0;

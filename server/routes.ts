@@ -13,7 +13,8 @@ import { mailOutboxRoutes } from './mail/outbox.routes';
 import { pkiRoutes } from './certificates/pki.routes';
 import { measuredRatioRoutes } from './registry/measured-ratios';
 import { chainRoutes } from './chains/chains.routes';
+import { closureRoutes } from './closures/closures.routes';
 
 // Every API route of the product, in one list: Express, OpenAPI and the access tests read it.
 // Feature folders export their own arrays; add them here.
-export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes, ...calcRoutes, ...resultsRoutes, ...networkRoutes, ...adjustCalcRoutes, ...registryRoutes, ...campaignRoutes, ...uploadRoutes, ...certificateRoutes, ...mailOutboxRoutes, ...pkiRoutes, ...measuredRatioRoutes, ...chainRoutes];
+export const apiRoutes: RouteSpec[] = [...healthRoutes, ...foundationRoutes, ...calcRoutes, ...resultsRoutes, ...networkRoutes, ...adjustCalcRoutes, ...registryRoutes, ...campaignRoutes, ...uploadRoutes, ...certificateRoutes, ...mailOutboxRoutes, ...pkiRoutes, ...measuredRatioRoutes, ...chainRoutes, ...closureRoutes];

@@ -124,7 +124,7 @@ export type AcceptCampaign = z.infer<typeof acceptCampaignSchema>;
 export const issueCertificateSchema = z.object({ comment: reviewerComment, justification: justificationField });
 export type IssueCertificateBody = z.infer<typeof issueCertificateSchema>;
 
-export const reviewExceptionSchema = z.object({ code: z.enum(['no-result', 'no-comparison', 'en-not-agreed', 'low-uptime']), text: z.string() });
+export const reviewExceptionSchema = z.object({ code: z.enum(['no-result', 'no-comparison', 'en-not-agreed', 'low-uptime', 'closure-failing']), text: z.string() });
 export type ReviewException = z.infer<typeof reviewExceptionSchema>;
 
 export const returnCampaignSchema = z.object({ reason: z.string().trim().min(5, 'give the lab a reason').max(4000) });

@@ -35,6 +35,7 @@ import { enqueueMail } from '../mail/outbox';
 import { labAddresses, mailDate } from '../mail/mail-text';
 import { computeCampaignResult, latestResultForCampaign } from '../results/results.service';
 import { reviewExceptions } from './review-rules';
+import { closureExceptions, requestClosureComputation } from '../closures/closures.service';
 import { ScienceInputError } from '../science/errors';
 import { parsePositiveDecimal, ratioOfFrequencies, MAX_REFERENCE_SIGNIFICANT_DIGITS } from '../science/fractional-offset';
 import { rss } from '../science/uncertainty';
@@ -202,7 +203,7 @@ async function toDetail(m: EntityManager, actor: Actor, c: CampaignRow, policy: 
         const tick = Object.hasOwn(checklist, item) ? checklist[item] : null;
         return { item, label: reviewChecklistLabels[item], checked: !!tick, by: tick?.by ?? null, at: tick?.at ?? null };
       }),
-      exceptions: latest ? reviewExceptions(latest.result, policy.reviewMinUptimeFraction) : [],
+      exceptions: latest ? reviewExceptions(latest.result, policy.reviewMinUptimeFraction, undefined, await closureExceptions(m, actor, c.id)) : await closureExceptions(m, actor, c.id),
       resultComputed: latest !== null,
       minUptimeFraction: policy.reviewMinUptimeFraction,
       fourEyes: policy.reviewFourEyes,
@@ -409,7 +410,7 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
           if (!(e instanceof Conflict)) throw e;
           why = e.message.replace(/\.$/, '');
         }
-        const exceptions = reviewExceptions(result, config.reviewMinUptimeFraction, why);
+        const exceptions = reviewExceptions(result, config.reviewMinUptimeFraction, why, await closureExceptions(m, actor, id));
         if (exceptions.length && !a.justification) {
           throw new Invalid(`Accepting needs a written justification: ${exceptions.map((x) => x.text).join(' ')}`, [
             { path: 'body.justification', message: `required: ${exceptions.map((x) => x.code).join(', ')}` },
@@ -429,6 +430,7 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
       await recordAudit(m, actor, { action: `campaign.${t.to}`, entityType: 'campaign', entityId: id, instituteId: c.instituteId, details });
       if (kind === 'accept' && (await m.query('SELECT 1 FROM ratio_series WHERE campaign_id = $1 LIMIT 1', [id])).length > 0) {
         await requestResultComputation(m, config.databaseUrl, actor, id, 'accept');
+        await requestClosureComputation(m, config.databaseUrl, 'accept', id);
       }
       if (kind === 'submit') {
         await enqueueMail(m, {

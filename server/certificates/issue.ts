@@ -2,6 +2,7 @@ import { createHash, randomUUID } from 'node:crypto';
 import type { EntityManager } from 'typeorm';
 import { formatCertificateNumber, type CertificateSnapshot, type ReviewDecision } from '../../shared/certificates';
 import { certificationExceptions } from '../campaigns/review-rules';
+import { closureExceptions } from '../closures/closures.service';
 import { CampaignEntity } from '../db/entities/registry.entities';
 import { labAddresses, mailDate } from '../mail/mail-text';
 import { recordAudit } from '../audit/audit.service';
@@ -90,7 +91,7 @@ async function reviewDecision(ctx: IssueContext, campaignId: string, body: Snaps
   if (ctx.config.reviewFourEyes && c.acceptedByUserId && c.acceptedByUserId === ctx.actor.userId) {
     throw new Forbidden(`Four-eyes rule: you accepted this campaign (${mailDate(c.acceptedAt ?? new Date())}), so another coordinator must issue its certificate.`);
   }
-  const exceptions = certificationExceptions(body, ctx.config.reviewMinUptimeFraction);
+  const exceptions = certificationExceptions(body, ctx.config.reviewMinUptimeFraction, await closureExceptions(ctx.manager, ctx.actor, campaignId));
   const earlier = previous?.justifications.find((j) => j.stage === 'certification');
   const text = decision.justification ?? (exceptions.length ? earlier?.text : undefined);
   if (exceptions.length && !text) {

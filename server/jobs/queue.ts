@@ -9,12 +9,17 @@ export type AdjustmentJob = { runId: string };
 export const RESULT_QUEUE = 'result-compute';
 export type ResultJob = { campaignId: string; requestedByUserId: string | null; force: boolean };
 
+/** Finds the loops of simultaneous campaigns and computes their ratio closures (after a result, on acceptance). */
+export const CLOSURE_QUEUE = 'closure-compute';
+export type ClosureJob = { reason: 'result' | 'accept' | 'recompute'; campaignId: string | null };
+
 export async function startBoss(databaseUrl: string, opts: { supervise?: boolean } = {}): Promise<PgBoss> {
   const boss = new PgBoss({ connectionString: databaseUrl, max: 4, supervise: opts.supervise ?? true, schedule: false, application_name: 'chronolevel-jobs' });
   boss.on('error', () => undefined); // transient errors are retried by pg-boss itself; job failures are stored on the run
   await boss.start();
   await boss.createQueue(ADJUSTMENT_QUEUE, { name: ADJUSTMENT_QUEUE, retryLimit: 2, retryDelay: 5, expireInMinutes: 60 });
   await boss.createQueue(RESULT_QUEUE, { name: RESULT_QUEUE, retryLimit: 2, retryDelay: 5, expireInMinutes: 30 });
+  await boss.createQueue(CLOSURE_QUEUE, { name: CLOSURE_QUEUE, retryLimit: 2, retryDelay: 5, expireInMinutes: 30 });
   return boss;
 }
 

@@ -4,7 +4,8 @@ import type { Logger } from 'pino';
 import type { DataSource } from 'typeorm';
 import { executeRun } from '../network/adjustment.service';
 import { runResultJob } from '../results/result-worker';
-import { ADJUSTMENT_QUEUE, RESULT_QUEUE, startBoss, type AdjustmentJob, type ResultJob } from './queue';
+import { recomputeClosures } from '../closures/closures.service';
+import { ADJUSTMENT_QUEUE, CLOSURE_QUEUE, RESULT_QUEUE, startBoss, type AdjustmentJob, type ClosureJob, type ResultJob } from './queue';
 
 // The worker: takes 'adjustment-run' jobs (progress into the run row) and 'result-compute' jobs (progress into
 // result_request) from the queue and executes them.
@@ -44,6 +45,16 @@ export async function startWorker(opts: { dataSource: DataSource; databaseUrl: s
         opts.logger?.info({ campaignId: job.data.campaignId, jobId: job.id }, 'result computation started');
         await runResultJob(opts.dataSource, job.id, job.data);
         opts.logger?.info({ campaignId: job.data.campaignId, jobId: job.id }, 'result computation finished');
+        // A new result can change the closures of every loop the campaign is in.
+        await boss.send(CLOSURE_QUEUE, { reason: 'result', campaignId: job.data.campaignId } satisfies ClosureJob);
+      });
+    }
+  });
+  await boss.work<ClosureJob>(CLOSURE_QUEUE, { pollingIntervalSeconds: opts.pollingIntervalSeconds ?? 0.5, batchSize: 1 }, async (jobs) => {
+    for (const job of jobs) {
+      await withJobLock(opts.dataSource, job.id, async () => {
+        const done = await opts.dataSource.transaction((m) => recomputeClosures(m, { now: new Date() }));
+        opts.logger?.info({ jobId: job.id, reason: job.data.reason, campaignId: job.data.campaignId, ...done }, 'ratio closures computed');
       });
     }
   });
@@ -101,7 +112,7 @@ async function markGivenUp(dataSource: DataSource, queue: string, jobId: string,
 export async function reapOrphanedJobs(boss: PgBoss, dataSource: DataSource, logger?: Logger): Promise<number> {
   const active = (await dataSource.query(
     `SELECT id, name, data FROM pgboss.job WHERE name = ANY($1) AND state = 'active' AND started_on < now() - $2 * interval '1 second'`,
-    [[ADJUSTMENT_QUEUE, RESULT_QUEUE], ORPHAN_GRACE_SECONDS],
+    [[ADJUSTMENT_QUEUE, RESULT_QUEUE, CLOSURE_QUEUE], ORPHAN_GRACE_SECONDS],
   )) as { id: string; name: string; data: Record<string, unknown> }[];
   let reaped = 0;
   for (const job of active) {

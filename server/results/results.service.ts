@@ -20,7 +20,7 @@ import { computeResultBody, inputHashOf, SOFTWARE_VERSION, type InputFile, type 
 // store a new row (history is kept). Computation runs in POSTs and jobs only (result-requests.ts, result-worker.ts):
 // reading a result never writes; it answers the stored result for the current inputs or says why there is none.
 
-async function loadFiles(manager: EntityManager, campaignId: string): Promise<InputFile[]> {
+export async function loadFiles(manager: EntityManager, campaignId: string): Promise<InputFile[]> {
   const rows: { id: string; file_name: string; sha256: string; row_count: number }[] = await manager.query(
     'SELECT id, file_name, sha256, row_count FROM ratio_series WHERE campaign_id = $1 ORDER BY created_at, id',
     [campaignId],

@@ -18,6 +18,8 @@ import { RunPage } from '../pages/network/run-page';
 import { ReconciliationPage } from '../pages/network/reconciliation-page';
 import { MapPage } from '../pages/network/map-page';
 import { BenchmarkPage } from '../pages/network/benchmark-page';
+import { ClosuresPage } from '../pages/network/closures-page';
+import { ClosurePage } from '../pages/network/closure-page';
 import { SitesPage } from '../pages/registry/sites-page';
 import { SitePage } from '../pages/registry/site-page';
 import { ClocksPage } from '../pages/registry/clocks-page';
@@ -48,6 +50,8 @@ export const featureRoutes: RouteObject[] = [
   { path: 'network/runs/:id', element: <RunPage /> },
   { path: 'network/reconciliation', element: <ReconciliationPage /> },
   { path: 'network/map', element: <MapPage /> },
+  { path: 'network/closures', element: <ClosuresPage /> },
+  { path: 'network/closures/:id', element: <ClosurePage /> },
   { path: 'network/benchmarks/:id', element: <BenchmarkPage /> },
   { path: 'sites', element: <SitesPage /> },
   { path: 'sites/:id', element: <SitePage /> },

@@ -61,7 +61,7 @@ const principals: Principal[] = ['anonymous', 'operator-own', 'operator-other', 
 const roleOf: Record<Exclude<Principal, 'anonymous'>, Role> = { 'operator-own': 'operator', 'operator-other': 'operator', coordinator: 'coordinator', auditor: 'auditor', admin: 'admin' };
 const matrixTokens = new Map<Principal, string>();
 const GUESSED = '00000000-0000-4000-8000-00000000beef';
-const obj = { draft: '', accepted: '', acceptedName: '', draftName: '', series: '', site: '', clock: '', link: '', benchmark: '', section: '', datum: '', run: '', refFreq: '', user: '', certificate: '', chain: '' };
+const obj = { draft: '', accepted: '', acceptedName: '', draftName: '', series: '', site: '', clock: '', link: '', benchmark: '', section: '', datum: '', run: '', refFreq: '', user: '', certificate: '', chain: '', closure: '' };
 /** Who may see the demo calibration chain (every campaign of it visible: server/auth/campaign-scope.ts). */
 const chainVisible = new Map<Principal, boolean>();
 let cells = 0;
@@ -122,6 +122,13 @@ describe('access matrix (every route × six callers)', () => {
     chainVisible.set('coordinator', !!chainRow && reviewable);
     chainVisible.set('admin', !!chainRow && reviewable);
     chainVisible.set('auditor', !!chainRow && published);
+    // The demo loop's closure (HMO-Sr2 → HMO-YbIon → SCL-Sr1): its other two campaigns are accepted too, so every
+    // caller who sees accepted campaigns sees it; Saltmarsh's lab does not (the HMO local campaign is Highridge's alone).
+    for (const name of ['SCL–HMO Sr October run 2026', 'SCL–HMO ion lab Yb⁺/Sr, October 2026']) {
+      const res = await acceptAsReviewer(t, await one('SELECT id FROM campaign WHERE name = $1', name), tokens.coordinator);
+      expect(res.status, res.text).toBe(200);
+    }
+    obj.closure = await one('SELECT closure_id AS id FROM ratio_closure_campaign WHERE campaign_id = $1', obj.accepted);
   }, 120_000);
 
   afterAll(() => {
@@ -147,6 +154,7 @@ describe('access matrix (every route × six callers)', () => {
       if (path.startsWith('/api/v1/reference-frequencies/')) return obj.refFreq;
       if (path.startsWith('/api/v1/users/')) return obj.user;
       if (path.startsWith('/api/v1/chains/')) return obj.chain || GUESSED;
+      if (path.startsWith('/api/v1/network/closures/')) return obj.closure;
       return GUESSED;
     };
     return path
@@ -155,7 +163,7 @@ describe('access matrix (every route × six callers)', () => {
   }
 
   /** Campaign-bound records: visible by the campaign rule (server/auth/campaign-scope.ts). */
-  const campaignBound = (path: string) => /^\/api\/v1\/(campaigns\/:id|uploads\/:id(?!\/progress)|certificates\/:number)/.test(path);
+  const campaignBound = (path: string) => /^\/api\/v1\/(campaigns\/:id|uploads\/:id(?!\/progress)|certificates\/:number|network\/closures\/:id)/.test(path);
   function seesCampaign(p: Principal, campaign: 'draft' | 'accepted'): boolean {
     if (p === 'operator-own') return true;
     if (p === 'operator-other' || p === 'anonymous') return false;

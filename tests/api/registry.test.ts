@@ -242,7 +242,7 @@ describe('fibre links', () => {
 
   it('lists the demo links sorted by fibre length', async () => {
     const res = await as('auditor').get('/api/v1/links?sort=fibreLengthKm&order=asc&q=HMO');
-    expect(res.body.items.map((l: { name: string }) => l.name)).toEqual(['HMO local', 'SCL–HMO long-haul']);
+    expect(res.body.items.map((l: { name: string }) => l.name)).toEqual(['HMO local', 'SCL–HMO long-haul', 'SCL–HMO ion lab']);
     // demo geometry: the two labs are about 300 km apart (invented scenario)
     expect(res.body.items[1].geodesicDistanceKm).toBeGreaterThan(250);
     expect(res.body.items[1].geodesicDistanceKm).toBeLessThan(350);

@@ -19,6 +19,7 @@ import { SamplePartitions1765800001000 } from './1765800001000-sample-partitions
 import { UploadProgress1765800002000 } from './1765800002000-upload-progress';
 import { TransportableClocks1766000000000 } from './1766000000000-transportable-clocks';
 import { ReadAfterWrite1766000900000 } from './1766000900000-read-after-write';
+import { RatioClosures1766030000000 } from './1766030000000-ratio-closures';
 
 // Every migration, in order. Add new ones at the end (file name: <timestamp>-<what>.ts).
 export const migrations = [
@@ -43,4 +44,5 @@ export const migrations = [
   UploadProgress1765800002000,
   TransportableClocks1766000000000,
   ReadAfterWrite1766000900000,
+  RatioClosures1766030000000,
 ];

@@ -11,6 +11,7 @@ import { Button, EmptyState, Field, inputClass, Panel } from '../../components/u
 import { isoMinute, plural } from '../../lib/format';
 import { describeError } from '../../lib/api-client';
 import { CampaignCertificatesPanel } from '../certificates/campaign-certificates-panel';
+import { CampaignClosuresPanel } from '../network/campaign-closures-panel';
 import { CampaignUploadsPanel } from '../uploads/campaign-uploads-panel';
 import { BudgetTable } from '../registry/budget-editor';
 import { applyServerErrors, Facts, FormError, groupDigits, sci } from '../registry/registry-ui';
@@ -35,6 +36,7 @@ export function CampaignPage() {
       <CampaignBudgets campaign={c} />
       <CampaignUploadsPanel campaignId={c.id} campaignState={c.state} canUpload={c.allowed.edit} />
       <CampaignCertificatesPanel campaignId={c.id} campaignState={c.state} exceptions={c.review.exceptions} fourEyes={c.review.fourEyes} resultComputed={c.review.resultComputed} />
+      <CampaignClosuresPanel campaignId={c.id} />
       <CampaignTimeline campaign={c} />
       <StandardUncertaintyCaution />
     </>

@@ -6,6 +6,7 @@ const tabs = [
   ['/network/loops', 'Loops'],
   ['/network/runs', 'Adjustment runs'],
   ['/network/reconciliation', 'Reconciliation'],
+  ['/network/closures', 'Clock-ratio closures'],
   ['/network/map', 'Map'],
 ] as const;
 
