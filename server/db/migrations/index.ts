@@ -18,6 +18,7 @@ import { ListIndexes1765800000000 } from './1765800000000-list-indexes';
 import { SamplePartitions1765800001000 } from './1765800001000-sample-partitions';
 import { UploadProgress1765800002000 } from './1765800002000-upload-progress';
 import { TransportableClocks1766000000000 } from './1766000000000-transportable-clocks';
+import { SiteTiePotential1766050000000 } from './1766050000000-site-tie-potential';
 
 // Every migration, in order. Add new ones at the end (file name: <timestamp>-<what>.ts).
 export const migrations = [
@@ -41,4 +42,5 @@ export const migrations = [
   SamplePartitions1765800001000,
   UploadProgress1765800002000,
   TransportableClocks1766000000000,
+  SiteTiePotential1766050000000,
 ];

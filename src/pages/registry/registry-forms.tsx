@@ -33,7 +33,7 @@ export type SiteForm = {
   name: string; instituteId?: string; referencePoint: string; crs: string; coordinates: (number | undefined)[]; ellipsoidalHeightUncertaintyM: number;
   ellipsoidalCrustSystem?: '' | (typeof registryTideSystems)[number] | null;
   quasigeoid: { source: 'entered' | 'grid'; heightM?: number; uncertaintyM?: number; gridId?: string; tideSystem?: '' | (typeof registryTideSystems)[number] | null };
-  benchmarkTie: { benchmarkCode?: string; heightDifferenceM?: number; uncertaintyM?: number } | null;
+  benchmarkTie: { benchmarkCode?: string; heightDifferenceM?: number; uncertaintyM?: number; deltaC_m2s2?: number; uncertaintyC_m2s2?: number; source?: string } | null;
 };
 
 /** The shared schema decides; this only turns the flat form into its shape (empty height, empty tie → none). */
@@ -143,7 +143,10 @@ function siteToForm(s: Site): SiteForm {
     quasigeoid: s.quasigeoid.source === 'grid'
       ? { source: 'grid', gridId: s.quasigeoid.gridId ?? undefined }
       : { source: 'entered', heightM: s.quasigeoid.heightM, uncertaintyM: s.quasigeoid.uncertaintyM, tideSystem: s.quasigeoid.tideSystem ?? '' },
-    benchmarkTie: s.benchmarkTie ? { ...s.benchmarkTie } : {},
+    // a ΔC tie (set on the site page) passes through unchanged; this form edits Δh ties
+    benchmarkTie: s.benchmarkTie
+      ? Object.fromEntries(Object.entries(s.benchmarkTie).filter(([k, v]) => v !== null && k !== 'quantity'))
+      : {},
   };
 }
 
