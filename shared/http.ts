@@ -35,6 +35,10 @@ export function pageOf<T extends z.ZodTypeAny>(item: T) {
   return z.object({ items: z.array(item), total: z.number().int(), page: z.number().int(), pageSize: z.number().int() });
 }
 export type Page<T> = { items: T[]; total: number; page: number; pageSize: number };
+/** A list that is always answered whole (short reference lists) in the same envelope as a paged list. */
+export function wholePage<T>(items: T[]): Page<T> {
+  return { items, total: items.length, page: 1, pageSize: Math.max(items.length, 1) };
+}
 
 export const idParamsSchema = z.object({ id: z.string().uuid() });
 

@@ -42,11 +42,29 @@ const quasigeoidInput = z.discriminatedUnion('source', [
   z.object({ source: z.literal('grid'), gridId: z.string().uuid() }),
 ]);
 
+/**
+ * A local tie from a benchmark to the site's reference point: either the height difference Δh (m, σ in m) or the
+ * geopotential-number difference ΔC = C_site − C_benchmark (m²/s², σ in m²/s²; C = W₀ − W, so ΔC ≈ γ·Δh, positive
+ * when the site is higher). A ΔC tie names its source.
+ */
 const benchmarkTieInput = z
   .object({
     benchmarkCode: nameText(1, 60),
-    heightDifferenceM: finite.refine((v) => Math.abs(v) < 10_000, 'a local tie is shorter than 10 km of height'),
-    uncertaintyM: nonNegative,
+    heightDifferenceM: finite.refine((v) => Math.abs(v) < 10_000, 'a local tie is shorter than 10 km of height').optional(),
+    uncertaintyM: nonNegative.optional(),
+    deltaC_m2s2: finite.refine((v) => Math.abs(v) < 100_000, 'a local tie is shorter than 10 km of height (|ΔC| < 100 000 m²/s²)').optional(),
+    uncertaintyC_m2s2: nonNegative.optional(),
+    source: nameText(2, 300).optional(),
+  })
+  .superRefine((t, ctx) => {
+    const byHeight = t.heightDifferenceM !== undefined;
+    const byPotential = t.deltaC_m2s2 !== undefined;
+    if (byHeight === byPotential) ctx.addIssue({ code: 'custom', path: ['heightDifferenceM'], message: 'give either Δh (heightDifferenceM) or ΔC (deltaC_m2s2), not both or neither' });
+    if (byHeight && t.uncertaintyM === undefined) ctx.addIssue({ code: 'custom', path: ['uncertaintyM'], message: 'σ(Δh) is required with Δh' });
+    if (byPotential && t.uncertaintyC_m2s2 === undefined) ctx.addIssue({ code: 'custom', path: ['uncertaintyC_m2s2'], message: 'σ(ΔC) is required with ΔC' });
+    if (byPotential && t.source === undefined) ctx.addIssue({ code: 'custom', path: ['source'], message: 'a ΔC tie names its source' });
+    if (byHeight && t.uncertaintyC_m2s2 !== undefined) ctx.addIssue({ code: 'custom', path: ['uncertaintyC_m2s2'], message: 'σ(ΔC) belongs to a ΔC tie' });
+    if (byPotential && t.uncertaintyM !== undefined) ctx.addIssue({ code: 'custom', path: ['uncertaintyM'], message: 'σ(Δh) belongs to a Δh tie' });
   })
   .nullable()
   .default(null);
@@ -96,7 +114,13 @@ export const siteSchema = z.object({
   /** Crust system of the ellipsoidal height (null: not stated). */
   ellipsoidalCrustSystem: z.enum(registryTideSystems).nullable().optional(),
   normalHeight: z.object({ valueM: z.number(), uncertaintyM: z.number(), k: z.literal(1), formula: z.string() }),
-  benchmarkTie: z.object({ benchmarkCode: z.string(), heightDifferenceM: z.number(), uncertaintyM: z.number() }).nullable(),
+  benchmarkTie: z.object({
+    benchmarkCode: z.string(),
+    quantity: z.enum(['height', 'potential']),
+    heightDifferenceM: z.number().nullable(), uncertaintyM: z.number().nullable(),
+    deltaC_m2s2: z.number().nullable(), uncertaintyC_m2s2: z.number().nullable(),
+    source: z.string().nullable(),
+  }).nullable(),
   createdAt: z.string(),
   updatedAt: z.string(),
 });

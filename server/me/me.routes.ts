@@ -1,6 +1,6 @@
 import { z } from 'zod';
 import { adminApiTokenSchema, adminTokenQuerySchema, apiTokenSchema, auditEventSchema, createApiTokenSchema, createdApiTokenSchema, createInstituteSchema, instituteSchema, meSchema, sessionIdParamsSchema, sessionSchema, updateInstituteSchema, updateUserSchema, userListQuery, userSchema } from '../../shared/auth';
-import { idParamsSchema, pageOf, pageQuerySchema } from '../../shared/http';
+import { idParamsSchema, pageOf, pageQuerySchema, wholePage } from '../../shared/http';
 import { toAuditEventDto } from '../audit/audit.service';
 import { AuditEventEntity, InstituteEntity } from '../db/entities/core.entities';
 import { route } from '../http/route';
@@ -27,8 +27,8 @@ export const foundationRoutes = [
   }),
   route({
     method: 'get', path: '/api/v1/institutes', summary: 'All institutes', tag: 'institutes', permission: 'institutes:read',
-    response: z.array(instituteSchema),
-    handler: ({ actor, deps }) => createInstitutesService(deps.dataSource).list(actor),
+    response: pageOf(instituteSchema),
+    handler: async ({ actor, deps }) => wholePage(await createInstitutesService(deps.dataSource).list(actor)),
   }),
   route({
     method: 'post', path: '/api/v1/institutes', summary: 'Register an institute', tag: 'institutes', permission: 'institutes:write',
@@ -47,8 +47,8 @@ export const foundationRoutes = [
   }),
   route({
     method: 'get', path: '/api/v1/me/tokens', summary: 'My API tokens', tag: 'account', permission: 'tokens:own',
-    response: z.array(apiTokenSchema),
-    handler: ({ actor, deps }) => createTokensService(deps.dataSource).listOwn(actor),
+    response: pageOf(apiTokenSchema),
+    handler: async ({ actor, deps }) => wholePage(await createTokensService(deps.dataSource).listOwn(actor)),
   }),
   route({
     method: 'post', path: '/api/v1/me/tokens', summary: 'Create an API token (secret shown once)', tag: 'account', permission: 'tokens:own',
@@ -78,13 +78,13 @@ export const foundationRoutes = [
   }),
   route({
     method: 'get', path: '/api/v1/dev/mailbox', summary: 'Messages caught by the local test mailbox (development)', tag: 'admin', permission: 'mailbox:read',
-    response: z.array(z.object({ id: z.number(), receivedAt: z.string(), from: z.string(), to: z.array(z.string()), subject: z.string(), text: z.string() })),
+    response: pageOf(z.object({ id: z.number(), receivedAt: z.string(), from: z.string(), to: z.array(z.string()), subject: z.string(), text: z.string() })),
     db: 'primary', // sends the queued mail first (outbox rows are updated): never on a read replica
     handler: async ({ deps }) => {
       await deps.mail.flush();
       const res = await fetch(`${deps.config.mailboxUrl}/messages`).catch(() => null);
       if (!res?.ok) throw new Unavailable('The local test mailbox is not reachable.');
-      return ((await res.json()) as unknown[]).reverse();
+      return wholePage(((await res.json()) as unknown[]).reverse());
     },
   }),
   // Accounts, tokens and sessions (administrators).

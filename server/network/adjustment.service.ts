@@ -136,7 +136,7 @@ export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptio
   const siteDatum = new Map<string, { name: string | null; system: TideSystem | null; latitudeDeg: number }>();
   for (const site of sites) {
     const bm = site.benchmarkCode ? inUse.get(site.benchmarkCode) : undefined;
-    if (!bm || site.tieHeightDifferenceM === null) continue;
+    if (!bm || (site.tieHeightDifferenceM === null && site.tieDeltaC_m2s2 === null)) continue;
     const code = sitePoint(site.id);
     const g = normalGravityAtHeight(site.latitudeDeg, bm.knownNormalHeightM ?? bm.ellipsoidalHeightM);
     points.push({ code });
@@ -144,7 +144,11 @@ export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptio
     siteDatum.set(site.id, { name: bm.datum?.name ?? null, system: bm.datum?.tideSystem ?? null, latitudeDeg: site.latitudeDeg });
     const id = `tie:${site.id}`;
     observationMeta[id] = { label: `local tie ${bm.code} → ${siteLabel(site)}` };
-    observations.push({ id, kind: 'tie', from: bm.code, to: code, deltaC: g * site.tieHeightDifferenceM, sigma: g * Math.max(site.tieUncertaintyM ?? 0, TIE_SIGMA_FLOOR_M) });
+    // A tie given as ΔC is used as it stands (C = W₀ − W: ΔC = C_site − C_bm); one given as Δh becomes γ·Δh.
+    const tie = site.tieDeltaC_m2s2 !== null
+      ? { deltaC: site.tieDeltaC_m2s2, sigma: Math.max(site.tieUncertaintyC_m2s2 ?? 0, g * TIE_SIGMA_FLOOR_M) }
+      : { deltaC: g * site.tieHeightDifferenceM!, sigma: g * Math.max(site.tieUncertaintyM ?? 0, TIE_SIGMA_FLOOR_M) };
+    observations.push({ id, kind: 'tie', from: bm.code, to: code, ...tie });
   }
 
   // Reference datum for the offsets: the datum of the first fixed benchmark that the levelling reaches.

@@ -1,5 +1,4 @@
-import { z } from 'zod';
-import { idParamsSchema, pageOf, pageQuerySchema } from '../../shared/http';
+import { idParamsSchema, pageOf, pageQuerySchema, wholePage } from '../../shared/http';
 import {
   adjustmentOptionsSchema, adjustmentRunDetailSchema, adjustmentRunSchema, benchmarkInputSchema, benchmarkListQuerySchema, benchmarkSchema,
   heightDatumInputSchema, heightDatumSchema, loopReportSchema, loopsQuerySchema, networkMapSchema, reconciliationSchema, sectionInputSchema,
@@ -16,8 +15,8 @@ import { readSectionsUpload, uploadSections } from './sections-upload';
 export const networkRoutes = [
   route({
     method: 'get', path: '/api/v1/network/datums', summary: 'Height datums', tag: 'network', permission: 'network:read',
-    response: z.array(heightDatumSchema),
-    handler: ({ actor, deps }) => createNetworkService(deps.dataSource).listDatums(actor),
+    response: pageOf(heightDatumSchema),
+    handler: async ({ actor, deps }) => wholePage(await createNetworkService(deps.dataSource).listDatums(actor)),
   }),
   route({
     method: 'post', path: '/api/v1/network/datums', summary: 'Define a height datum', tag: 'network', permission: 'network:write',
@@ -103,7 +102,7 @@ export const networkRoutes = [
     handler: ({ actor, params, deps }) => createAdjustmentService(deps.dataSource).getRun(actor, params.id),
   }),
   route({
-    method: 'get', path: '/api/v1/network/reconciliation', summary: 'Clock-derived against levelled potential differences (E_n)', tag: 'network', permission: 'network:read',
+    method: 'get', path: '/api/v1/network/reconciliation', summary: 'Clock-derived against levelled potential differences (Eₙ)', tag: 'network', permission: 'network:read',
     response: reconciliationSchema,
     handler: ({ actor, deps }) => createAdjustmentService(deps.dataSource).reconciliation(actor),
   }),

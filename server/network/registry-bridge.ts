@@ -9,6 +9,8 @@ import { C2_M2_PER_S2 } from '../science/constants';
 export type SiteTie = {
   id: string; name: string; instituteCode: string; latitudeDeg: number; longitudeDeg: number;
   benchmarkCode: string | null; tieHeightDifferenceM: number | null; tieUncertaintyM: number | null;
+  /** A tie given directly as ΔC = C_site − C_benchmark (m²/s²), with σ (m²/s²); null when given as Δh. */
+  tieDeltaC_m2s2: number | null; tieUncertaintyC_m2s2: number | null;
 };
 export type ClockLink = { id: string; name: string; siteAId: string; siteBId: string };
 export type AcceptedCampaign = { id: string; name: string; linkId: string; siteAId: string; siteBId: string; state: string; instituteId: string | null; partnerInstituteId: string | null };
@@ -79,10 +81,10 @@ async function tableExists(m: EntityManager, table: string): Promise<boolean> {
 
 export async function loadSites(m: EntityManager): Promise<SiteTie[]> {
   if (!(await tableExists(m, 'site'))) return [];
-  const rows: { id: string; name: string; code: string; lat: number; lon: number; bm: string | null; dh: number | null; u: number | null }[] = await m.query(`
-    SELECT s.id, s.name, i.code, s.latitude_deg AS lat, s.longitude_deg AS lon, s.benchmark_code AS bm, s.tie_height_difference_m AS dh, s.tie_u_m AS u
+  const rows: { id: string; name: string; code: string; lat: number; lon: number; bm: string | null; dh: number | null; u: number | null; dc: number | null; uc: number | null }[] = await m.query(`
+    SELECT s.id, s.name, i.code, s.latitude_deg AS lat, s.longitude_deg AS lon, s.benchmark_code AS bm, s.tie_height_difference_m AS dh, s.tie_u_m AS u, s.tie_delta_c_m2s2 AS dc, s.tie_u_c_m2s2 AS uc
     FROM site s JOIN institute i ON i.id = s.institute_id ORDER BY i.code, s.name`);
-  return rows.map((r) => ({ id: r.id, name: r.name, instituteCode: r.code, latitudeDeg: r.lat, longitudeDeg: r.lon, benchmarkCode: r.bm, tieHeightDifferenceM: r.dh, tieUncertaintyM: r.u }));
+  return rows.map((r) => ({ id: r.id, name: r.name, instituteCode: r.code, latitudeDeg: r.lat, longitudeDeg: r.lon, benchmarkCode: r.bm, tieHeightDifferenceM: r.dh, tieUncertaintyM: r.u, tieDeltaC_m2s2: r.dc, tieUncertaintyC_m2s2: r.uc }));
 }
 
 export async function loadLinks(m: EntityManager): Promise<ClockLink[]> {

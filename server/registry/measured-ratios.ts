@@ -1,8 +1,8 @@
 import Decimal from 'decimal.js';
 import type { DataSource, EntityManager } from 'typeorm';
-import { z } from 'zod';
 import { measuredRatioInput, measuredRatioSchema, type MeasuredRatio, type MeasuredRatioChoice, type MeasuredRatioInput } from '../../shared/measured-ratios';
 import { speciesLabels, type SpeciesCode } from '../../shared/registry';
+import { pageOf, wholePage } from '../../shared/http';
 import { recordAudit } from '../audit/audit.service';
 import type { Actor } from '../auth/actor';
 import { authorize } from '../auth/permissions';
@@ -74,8 +74,8 @@ const svc = (ds: DataSource) => createMeasuredRatioService(ds);
 export const measuredRatioRoutes = [
   route({
     method: 'get', path: '/api/v1/measured-frequency-ratios', summary: 'Directly measured optical frequency ratios (reference data)', tag: 'registry',
-    permission: 'registry:read', response: z.array(measuredRatioSchema),
-    handler: ({ actor, deps }) => svc(deps.dataSource).list(actor),
+    permission: 'registry:read', response: pageOf(measuredRatioSchema),
+    handler: async ({ actor, deps }) => wholePage(await svc(deps.dataSource).list(actor)),
   }),
   route({
     method: 'post', path: '/api/v1/measured-frequency-ratios', summary: 'Register a directly measured optical frequency ratio with its publication', tag: 'registry',

@@ -1,5 +1,4 @@
-import { z } from 'zod';
-import { idParamsSchema, pageOf } from '../../shared/http';
+import { idParamsSchema, pageOf, wholePage } from '../../shared/http';
 import {
   budgetVersionSchema,
   clockSchema,
@@ -33,8 +32,8 @@ const svc = (ds: Parameters<typeof createRegistryService>[0]) => createRegistryS
 export const registryRoutes = [
   route({
     method: 'get', path: '/api/v1/crs', summary: 'Coordinate reference systems accepted for site coordinates', tag: 'registry', permission: 'registry:read',
-    response: z.array(crsEntrySchema),
-    handler: async ({ actor, deps }) => svc(deps.dataSource).crsList(actor),
+    response: pageOf(crsEntrySchema),
+    handler: async ({ actor, deps }) => wholePage(await svc(deps.dataSource).crsList(actor)),
   }),
   // sites
   route({
@@ -60,8 +59,8 @@ export const registryRoutes = [
   // quasigeoid grids
   route({
     method: 'get', path: '/api/v1/quasigeoid-grids', summary: 'Quasigeoid grids available for interpolation', tag: 'registry', permission: 'registry:read',
-    response: z.array(quasigeoidGridSchema),
-    handler: ({ actor, deps }) => svc(deps.dataSource).listGrids(actor),
+    response: pageOf(quasigeoidGridSchema),
+    handler: async ({ actor, deps }) => wholePage(await svc(deps.dataSource).listGrids(actor)),
   }),
   route({
     method: 'post', path: '/api/v1/quasigeoid-grids', summary: 'Upload a quasigeoid grid (text layout of docs/formats/quasigeoid-grid.md)', tag: 'registry', permission: 'references:write',
@@ -91,8 +90,8 @@ export const registryRoutes = [
   }),
   route({
     method: 'get', path: '/api/v1/clocks/:id/budget-versions', summary: 'All budget versions of a clock, newest first', tag: 'registry', permission: 'registry:read',
-    params: idParamsSchema, response: z.array(budgetVersionSchema),
-    handler: ({ actor, params, deps }) => svc(deps.dataSource).listBudgetVersions(actor, params.id),
+    params: idParamsSchema, response: pageOf(budgetVersionSchema),
+    handler: async ({ actor, params, deps }) => wholePage(await svc(deps.dataSource).listBudgetVersions(actor, params.id)),
   }),
   route({
     method: 'post', path: '/api/v1/clocks/:id/budget-versions', summary: 'Save a changed budget as a new immutable version', tag: 'registry', permission: 'registry:write',
@@ -128,8 +127,8 @@ export const registryRoutes = [
   // reference frequencies
   route({
     method: 'get', path: '/api/v1/reference-frequencies', summary: 'Reference frequencies used for default reference ratios', tag: 'registry', permission: 'registry:read',
-    response: z.array(referenceFrequencySchema),
-    handler: ({ actor, deps }) => svc(deps.dataSource).listReferences(actor),
+    response: pageOf(referenceFrequencySchema),
+    handler: async ({ actor, deps }) => wholePage(await svc(deps.dataSource).listReferences(actor)),
   }),
   route({
     method: 'post', path: '/api/v1/reference-frequencies', summary: 'Add a reference frequency', tag: 'registry', permission: 'references:write',

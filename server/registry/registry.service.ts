@@ -84,6 +84,18 @@ export function normalHeightOf(s: Pick<SiteRow, 'ellipsoidalHeightM' | 'ellipsoi
   return { valueM: s.ellipsoidalHeightM - s.quasigeoidHeightM, uncertaintyM: rss([s.ellipsoidalHeightUncertaintyM, s.quasigeoidUncertaintyM]) };
 }
 
+/** The stored columns of a local tie (Δh or ΔC, never both); null removes the tie. */
+function tieColumns(tie: { benchmarkCode: string; heightDifferenceM?: number; uncertaintyM?: number; deltaC_m2s2?: number; uncertaintyC_m2s2?: number; source?: string } | null | undefined) {
+  return {
+    benchmarkCode: tie?.benchmarkCode ?? null,
+    tieHeightDifferenceM: tie?.heightDifferenceM ?? null,
+    tieUncertaintyM: tie?.heightDifferenceM !== undefined ? (tie.uncertaintyM ?? null) : null,
+    tieDeltaC_m2s2: tie?.deltaC_m2s2 ?? null,
+    tieUncertaintyC_m2s2: tie?.deltaC_m2s2 !== undefined ? (tie.uncertaintyC_m2s2 ?? null) : null,
+    tieSource: tie?.source ?? null,
+  };
+}
+
 export function toSiteDto(s: SiteRow, gridName: string | null = null) {
   let crsLabel = s.crs;
   let crsKind: ReturnType<typeof resolveCrs>['kind'] | null = null;
@@ -114,7 +126,10 @@ export function toSiteDto(s: SiteRow, gridName: string | null = null) {
     ellipsoidalCrustSystem: s.ellipsoidalCrustSystem ?? null,
     normalHeight: { ...normalHeightOf(s), k: 1 as const, formula: 'H = h − ζ; u(H) = √(u(h)² + u(ζ)²)' },
     benchmarkTie:
-      s.benchmarkCode !== null ? { benchmarkCode: s.benchmarkCode, heightDifferenceM: s.tieHeightDifferenceM ?? 0, uncertaintyM: s.tieUncertaintyM ?? 0 } : null,
+      s.benchmarkCode === null ? null
+        : s.tieDeltaC_m2s2 !== null
+          ? { benchmarkCode: s.benchmarkCode, quantity: 'potential' as const, heightDifferenceM: null, uncertaintyM: null, deltaC_m2s2: s.tieDeltaC_m2s2, uncertaintyC_m2s2: s.tieUncertaintyC_m2s2 ?? 0, source: s.tieSource }
+          : { benchmarkCode: s.benchmarkCode, quantity: 'height' as const, heightDifferenceM: s.tieHeightDifferenceM ?? 0, uncertaintyM: s.tieUncertaintyM ?? 0, deltaC_m2s2: null, uncertaintyC_m2s2: null, source: s.tieSource },
     createdAt: s.createdAt.toISOString(),
     updatedAt: s.updatedAt.toISOString(),
   };
@@ -329,9 +344,7 @@ export function createRegistryService(dataSource: DataSource) {
             ellipsoidalCrustSystem: body.ellipsoidalCrustSystem ?? null,
             ...pos,
             ...zeta,
-            benchmarkCode: body.benchmarkTie?.benchmarkCode ?? null,
-            tieHeightDifferenceM: body.benchmarkTie?.heightDifferenceM ?? null,
-            tieUncertaintyM: body.benchmarkTie?.uncertaintyM ?? null,
+            ...tieColumns(body.benchmarkTie),
           }),
         ), 'A site of this institute already has that name.');
         await recordAudit(m, actor, { action: 'site.created', entityType: 'site', entityId: saved.id, instituteId, details: { name: body.name, crs: body.crs, coordinates: body.coordinates } });
@@ -358,9 +371,7 @@ export function createRegistryService(dataSource: DataSource) {
         if (body.quasigeoid) Object.assign(s, await quasigeoidFor(m, body.quasigeoid, s.latitudeDeg, s.longitudeDeg));
         else if (moved && s.quasigeoidGridId) Object.assign(s, await quasigeoidFor(m, { source: 'grid', gridId: s.quasigeoidGridId }, s.latitudeDeg, s.longitudeDeg));
         if (body.benchmarkTie !== undefined) {
-          s.benchmarkCode = body.benchmarkTie?.benchmarkCode ?? null;
-          s.tieHeightDifferenceM = body.benchmarkTie?.heightDifferenceM ?? null;
-          s.tieUncertaintyM = body.benchmarkTie?.uncertaintyM ?? null;
+          Object.assign(s, tieColumns(body.benchmarkTie));
         }
         await uniqueName(m.getRepository(SiteEntity).save(s), 'A site of this institute already has that name.');
         const after = await siteDto(m, await loadSite(m, id));

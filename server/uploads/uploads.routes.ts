@@ -1,5 +1,4 @@
-import { z } from 'zod';
-import { idParamsSchema } from '../../shared/http';
+import { idParamsSchema, pageOf, wholePage } from '../../shared/http';
 import { campaignIdParamsSchema, ratioSeriesSchema, seriesPlotSchema, seriesQuerySchema, uploadPreviewSchema, uploadProgressSchema, uploadQuerySchema } from '../../shared/uploads';
 import { route } from '../http/route';
 import { createUploadsService } from './uploads.service';
@@ -31,8 +30,8 @@ export const uploadRoutes = [
   }),
   route({
     method: 'get', path: '/api/v1/campaigns/:id/uploads', summary: 'Series uploaded to a campaign', tag: 'uploads', permission: 'campaigns:read',
-    params: campaignIdParamsSchema, response: z.array(ratioSeriesSchema),
-    handler: ({ actor, params, deps }) => createUploadsService(deps).list(actor, params.id),
+    params: campaignIdParamsSchema, response: pageOf(ratioSeriesSchema),
+    handler: async ({ actor, params, deps }) => wholePage(await createUploadsService(deps).list(actor, params.id)),
   }),
   route({
     method: 'get', path: '/api/v1/uploads/:id/progress', summary: 'Progress of an upload in flight (id chosen by the client)', tag: 'uploads', permission: 'campaigns:write',

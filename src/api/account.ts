@@ -45,7 +45,7 @@ export function useSignOut() {
   });
 }
 
-export const useTokens = () => useQuery({ queryKey: accountKeys.tokens(), queryFn: () => api<ApiToken[]>('/api/v1/me/tokens') });
+export const useTokens = () => useQuery({ queryKey: accountKeys.tokens(), queryFn: () => api<Page<ApiToken>>('/api/v1/me/tokens').then((p) => p.items) });
 export function useCreateToken() {
   const qc = useQueryClient();
   return useMutation({
@@ -61,7 +61,7 @@ export function useRevokeToken() {
   });
 }
 
-export const useInstitutes = () => useQuery({ queryKey: adminKeys.institutes(), queryFn: () => api<Institute[]>('/api/v1/institutes') });
+export const useInstitutes = () => useQuery({ queryKey: adminKeys.institutes(), queryFn: () => api<Page<Institute>>('/api/v1/institutes').then((p) => p.items) });
 export const useUsers = (params: { page: number; pageSize: number; sort?: string; order?: string; q?: string }) =>
   useQuery({
     queryKey: adminKeys.users(params),
@@ -71,7 +71,7 @@ export const useUsers = (params: { page: number; pageSize: number; sort?: string
 export const useMailbox = () =>
   useQuery({
     queryKey: adminKeys.mailbox(),
-    queryFn: () => api<{ id: number; receivedAt: string; from: string; to: string[]; subject: string; text: string }[]>('/api/v1/dev/mailbox'),
+    queryFn: () => api<Page<{ id: number; receivedAt: string; from: string; to: string[]; subject: string; text: string }>>('/api/v1/dev/mailbox').then((p) => p.items),
     refetchInterval: 5000,
   });
 

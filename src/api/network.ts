@@ -27,7 +27,7 @@ function qs(p: Record<string, unknown>) {
   return s.toString();
 }
 
-export const datumsQuery = queryOptions({ queryKey: networkKeys.datums(), queryFn: () => api<HeightDatum[]>('/api/v1/network/datums') });
+export const datumsQuery = queryOptions({ queryKey: networkKeys.datums(), queryFn: () => api<Page<HeightDatum>>('/api/v1/network/datums').then((p) => p.items) });
 export const useDatums = () => useQuery(datumsQuery);
 export const useBenchmarks = (p: ListParams) =>
   useQuery({ queryKey: networkKeys.benchmarks(p), queryFn: () => api<Page<Benchmark>>(`/api/v1/network/benchmarks?${qs(p)}`), placeholderData: keepPreviousData });

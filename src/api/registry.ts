@@ -36,17 +36,17 @@ export function queryString(p: Record<string, unknown>) {
   return s.toString();
 }
 
-export const useCrsList = () => useQuery({ queryKey: registryKeys.crs(), queryFn: () => api<CrsEntry[]>('/api/v1/crs'), staleTime: Infinity });
+export const useCrsList = () => useQuery({ queryKey: registryKeys.crs(), queryFn: () => api<Page<CrsEntry>>('/api/v1/crs').then((p) => p.items), staleTime: Infinity });
 export const useSites = (p: RegistryListParams) =>
   useQuery({ queryKey: registryKeys.sites(p), queryFn: () => api<Page<Site>>(`/api/v1/sites?${queryString(p)}`), placeholderData: keepPreviousData });
 export const useSite = (id: string) => useQuery({ queryKey: registryKeys.site(id), queryFn: () => api<Site>(`/api/v1/sites/${id}`) });
-export const useGrids = () => useQuery({ queryKey: registryKeys.grids(), queryFn: () => api<QuasigeoidGrid[]>('/api/v1/quasigeoid-grids') });
+export const useGrids = () => useQuery({ queryKey: registryKeys.grids(), queryFn: () => api<Page<QuasigeoidGrid>>('/api/v1/quasigeoid-grids').then((p) => p.items) });
 export const useClocks = (p: RegistryListParams) =>
   useQuery({ queryKey: registryKeys.clocks(p), queryFn: () => api<Page<Clock>>(`/api/v1/clocks?${queryString(p)}`), placeholderData: keepPreviousData });
 export const useClock = (id: string) => useQuery({ queryKey: registryKeys.clock(id), queryFn: () => api<Clock>(`/api/v1/clocks/${id}`) });
 export const useBudgetVersions = (clockId: string) =>
-  useQuery({ queryKey: registryKeys.budgets(clockId), queryFn: () => api<BudgetVersion[]>(`/api/v1/clocks/${clockId}/budget-versions`) });
-export const useReferences = () => useQuery({ queryKey: registryKeys.references(), queryFn: () => api<ReferenceFrequency[]>('/api/v1/reference-frequencies') });
+  useQuery({ queryKey: registryKeys.budgets(clockId), queryFn: () => api<Page<BudgetVersion>>(`/api/v1/clocks/${clockId}/budget-versions`).then((p) => p.items) });
+export const useReferences = () => useQuery({ queryKey: registryKeys.references(), queryFn: () => api<Page<ReferenceFrequency>>('/api/v1/reference-frequencies').then((p) => p.items) });
 export const useLinks = (p: RegistryListParams) =>
   useQuery({ queryKey: registryKeys.links(p), queryFn: () => api<Page<Link>>(`/api/v1/links?${queryString(p)}`), placeholderData: keepPreviousData });
 export const useLink = (id: string) => useQuery({ queryKey: registryKeys.link(id), queryFn: () => api<Link>(`/api/v1/links/${id}`) });

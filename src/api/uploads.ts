@@ -1,5 +1,5 @@
 import { keepPreviousData, useMutation, useQuery, useQueryClient, type QueryClient } from '@tanstack/react-query';
-import type { Problem } from '../../shared/http';
+import type { Page, Problem } from '../../shared/http';
 import type { RatioSeries, SeriesPlot, UploadPreview, UploadProgress } from '../../shared/uploads';
 import { api, ApiError } from '../lib/api-client';
 import { accountKeys } from './account';
@@ -12,7 +12,7 @@ export const uploadKeys = {
 };
 
 export const useCampaignUploads = (campaignId: string) =>
-  useQuery({ queryKey: uploadKeys.list(campaignId), queryFn: () => api<RatioSeries[]>(`/api/v1/campaigns/${campaignId}/uploads`) });
+  useQuery({ queryKey: uploadKeys.list(campaignId), queryFn: () => api<Page<RatioSeries>>(`/api/v1/campaigns/${campaignId}/uploads`).then((p) => p.items) });
 
 /** The server's decimation of one series, for the whole span or for the range zoomed into (refetched per range). */
 export const useSeriesPlot = (seriesId: string | null, points = 1500, range: { fromMjd: number; toMjd: number } | null = null) =>

@@ -187,7 +187,7 @@ describe('institutes', () => {
   it('lets the administrator edit an institute (code fixed), audited', async () => {
     const admin = await signInAs(t, ADMIN);
     const list = await admin.agent.get('/api/v1/institutes');
-    const inst = list.body.find((i: { code: string }) => i.code === 'SCL');
+    const inst = list.body.items.find((i: { code: string }) => i.code === 'SCL');
     const res = await admin.agent.patch(`/api/v1/institutes/${inst.id}`).set('x-csrf-token', admin.csrf).send({ city: 'Harbourton' });
     expect(res.status).toBe(200);
     expect(res.body).toMatchObject({ code: 'SCL', name: inst.name, city: 'Harbourton' });

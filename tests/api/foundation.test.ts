@@ -53,7 +53,7 @@ describe('API tokens', () => {
     const stored: { token_hash: string }[] = await t.ds.query('SELECT token_hash FROM api_token');
     expect(stored.some((s) => s.token_hash === token)).toBe(false);
     const list = await request(t.app).get('/api/v1/me/tokens').set('authorization', `Bearer ${token}`);
-    await request(t.app).delete(`/api/v1/me/tokens/${list.body[0].id}`).set('authorization', `Bearer ${token}`).expect(204);
+    await request(t.app).delete(`/api/v1/me/tokens/${list.body.items[0].id}`).set('authorization', `Bearer ${token}`).expect(204);
     expect((await request(t.app).get('/api/v1/me').set('authorization', `Bearer ${token}`)).status).toBe(401);
   });
 });

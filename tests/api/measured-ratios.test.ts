@@ -53,7 +53,7 @@ describe('measured frequency ratios', () => {
     expect(JSON.stringify(bad.body)).toContain('source');
     const list = await as('hmo').get('/api/v1/measured-frequency-ratios');
     expect(list.status).toBe(200);
-    expect(list.body.map((r: { id: string }) => r.id)).toEqual(expect.arrayContaining([direct.id, inverted.id]));
+    expect(list.body.items.map((r: { id: string }) => r.id)).toEqual(expect.arrayContaining([direct.id, inverted.id]));
   });
 
   it('never become the default: a campaign without a choice keeps the reference-frequency ratio', async () => {

@@ -57,14 +57,14 @@ afterAll(async () => {
 
 async function datumId(name: string): Promise<string> {
   const res = await request(t.app).get('/api/v1/network/datums').set(bearer(auditor));
-  return res.body.find((d: { name: string }) => d.name === name).id;
+  return res.body.items.find((d: { name: string }) => d.name === name).id;
 }
 
 describe('datums and benchmarks', () => {
   it('lists the two invented datums with their tide systems', async () => {
     const res = await request(t.app).get('/api/v1/network/datums').set(bearer(auditor));
     expect(res.status).toBe(200);
-    expect(res.body.map((d: { name: string; tideSystem: string }) => `${d.name}/${d.tideSystem}`).sort()).toEqual(['Coastal Datum 1987/zero-tide', 'Highland Datum 2004/mean-tide']);
+    expect(res.body.items.map((d: { name: string; tideSystem: string }) => `${d.name}/${d.tideSystem}`).sort()).toEqual(['Coastal Datum 1987/zero-tide', 'Highland Datum 2004/mean-tide']);
   });
 
   it('creates a datum and a benchmark entered as normal height in UTM, stores entered and GRS80 values', async () => {

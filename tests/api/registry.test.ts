@@ -171,8 +171,8 @@ describe('clocks and budget versions', () => {
     expect(v2.body.version).toBe(2);
     expect(v2.body.totalUncertainty).toBeCloseTo(13e-18, 30); // √(3² + 4² + 12²) = 13 (×1e-18)
     const hist = await as('auditor').get(`/api/v1/clocks/${clockId}/budget-versions`);
-    expect(hist.body.map((v: { version: number }) => v.version)).toEqual([2, 1]);
-    expect(hist.body[1].rows).toHaveLength(2);
+    expect(hist.body.items.map((v: { version: number }) => v.version)).toEqual([2, 1]);
+    expect(hist.body.items[1].rows).toHaveLength(2);
     const clock = await as('auditor').get(`/api/v1/clocks/${clockId}`);
     expect(clock.body.currentBudget.version).toBe(2);
     await expect(t.ds.query('UPDATE clock_budget_version SET total_uncertainty = 0 WHERE clock_id = $1', [clockId])).rejects.toThrow(/immutable/);
@@ -190,18 +190,18 @@ describe('clocks and budget versions', () => {
 describe('reference frequencies', () => {
   it('holds the CIPM 2009 values in use and the 2021 values marked as from memory — CIPM 2009 Recommendation 2', async () => {
     const res = await as('auditor').get('/api/v1/reference-frequencies');
-    const inUse = (s: string) => res.body.find((r: { species: string; inUse: boolean }) => r.species === s && r.inUse);
+    const inUse = (s: string) => res.body.items.find((r: { species: string; inUse: boolean }) => r.species === s && r.inUse);
     // CIPM 2009 Recommendation 2 (list of standard frequencies) — ⁸⁷Sr 429 228 004 229 873.7 Hz (u_r 1e-15); ¹⁷¹Yb⁺ E3 642 121 496 772 657 Hz (6e-14); Cs exact.
     expect(inUse('Sr87')).toMatchObject({ frequencyHz: '429228004229873.7', relativeUncertainty: 1e-15 });
     expect(inUse('Yb171+E3')).toMatchObject({ frequencyHz: '642121496772657', relativeUncertainty: 6e-14 });
     expect(inUse('Cs133')).toMatchObject({ frequencyHz: '9192631770', relativeUncertainty: 0 });
-    const memory = res.body.filter((r: { source: string }) => /from memory/.test(r.source));
+    const memory = res.body.items.filter((r: { source: string }) => /from memory/.test(r.source));
     expect(memory.length).toBeGreaterThanOrEqual(6);
     expect(memory.every((r: { inUse: boolean; source: string }) => !r.inUse && /confirm against the BIPM list/.test(r.source))).toBe(true);
   });
 
   it('only the coordinator changes the table; one value in use per species', async () => {
-    const list = (await as('coord').get('/api/v1/reference-frequencies')).body;
+    const list = (await as('coord').get('/api/v1/reference-frequencies')).body.items;
     const memSr = list.find((r: { species: string; inUse: boolean }) => r.species === 'Sr87' && !r.inUse);
     expect((await as('scl').patch(`/api/v1/reference-frequencies/${memSr.id}`, { inUse: true })).status).toBe(403);
     const bad = await as('coord').post('/api/v1/reference-frequencies', { species: 'Hg199', frequencyHz: 1.1e15, relativeUncertainty: 1e-15, source: 'x' });

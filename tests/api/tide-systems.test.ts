@@ -86,7 +86,7 @@ describe('tide systems of site heights and grids', () => {
 
   it('the demo grid states zero-tide and the default correlation length', async () => {
     const grids = await request(t.app).get('/api/v1/quasigeoid-grids').set(bearer(operator));
-    expect(grids.body[0].tideSystem).toBe('zero-tide');
-    expect(grids.body[0].correlationLengthKm).toBeNull();
+    expect(grids.body.items[0].tideSystem).toBe('zero-tide');
+    expect(grids.body.items[0].correlationLengthKm).toBeNull();
   });
 });

@@ -153,7 +153,8 @@ describe('access', () => {
   it('lets clock B’s lab read the list, auditors once the campaign is accepted, but not other labs', async () => {
     const list = await request(t.app).get(`/api/v1/campaigns/${campaignId}/uploads`).set('authorization', `Bearer ${otherLab}`);
     expect(list.status).toBe(200);
-    expect(list.body.length).toBeGreaterThan(0);
+    expect(list.body.items.length).toBeGreaterThan(0);
+    expect(list.body.total).toBe(list.body.items.length);
     // a draft is the lab's own work: auditors see accepted and certified campaigns only (docs/decisions/0004)
     expect((await request(t.app).get(`/api/v1/campaigns/${campaignId}/uploads`).set('authorization', `Bearer ${auditor}`)).status).toBe(404);
     const foreign = await insertUploadCampaign(t.ds, { instituteCode: 'HMO', otherInstituteCode: 'HMO' });

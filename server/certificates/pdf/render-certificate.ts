@@ -43,6 +43,11 @@ export const STANDING_CAUTIONS = [
 ];
 
 /** "k = 2.13, p = 95.45 %, ν_eff = 17" beside an expanded uncertainty; older snapshots state only k. */
+/** The unit of u(xᵢ) in the budget table: a dash for a dimensionless input (stored as "1"), otherwise the unit. */
+export function unitCell(unit: string | undefined): string {
+  return !unit || /^1\b/.test(unit.trim()) ? '—' : unit;
+}
+
 function coverageNote(q: { coverageFactor: number; coverageProbability?: number; effectiveDegreesOfFreedom?: number | null }): string {
   if (q.coverageProbability === undefined) return `k = ${q.coverageFactor}`;
   return coverageText({ coverageFactor: q.coverageFactor, coverageProbability: q.coverageProbability, effectiveDegreesOfFreedom: q.effectiveDegreesOfFreedom ?? null });
@@ -538,16 +543,16 @@ function renderBody(doc: Doc, s: CertificateSnapshot): void {
       { header: 'Component', width: 203 },
       { header: 'Type', width: 30 },
       { header: 'u(xᵢ)', width: 62, align: 'right' },
-      { header: 'Unit', width: 28 },
-      { header: 'cᵢ', width: 80, align: 'right' },
-      { header: `|cᵢ|·u(xᵢ) (${s.budget.outputUnit})`, width: CONTENT_WIDTH - 203 - 30 - 62 - 28 - 80, align: 'right' },
+      { header: 'Unit', width: 40 },
+      { header: 'cᵢ', width: 68, align: 'right' },
+      { header: `|cᵢ|·u(xᵢ) (${s.budget.outputUnit})`, width: CONTENT_WIDTH - 203 - 30 - 62 - 40 - 68, align: 'right' },
     ],
     [
       ...s.budget.rows.map((r) => [
         r.component,
         r.type,
         formatScientific(r.standardUncertainty, 2),
-        r.unit,
+        unitCell(r.unit),
         formatScientific(r.sensitivity, 4),
         formatScientific(r.contribution, 2),
       ]),

@@ -35,6 +35,10 @@ export interface SiteRow {
   benchmarkCode: string | null;
   tieHeightDifferenceM: number | null;
   tieUncertaintyM: number | null;
+  /** A tie given as ΔC = C_site − C_benchmark (m²/s²) instead of Δh, with its standard uncertainty. */
+  tieDeltaC_m2s2: number | null;
+  tieUncertaintyC_m2s2: number | null;
+  tieSource: string | null;
   createdAt: Date;
   updatedAt: Date;
 }
@@ -65,6 +69,9 @@ export const SiteEntity = new EntitySchema<SiteRow>({
     benchmarkCode: { name: 'benchmark_code', type: 'text', nullable: true },
     tieHeightDifferenceM: { name: 'tie_height_difference_m', type: 'float8', nullable: true },
     tieUncertaintyM: { name: 'tie_u_m', type: 'float8', nullable: true },
+    tieDeltaC_m2s2: { name: 'tie_delta_c_m2s2', type: 'float8', nullable: true },
+    tieUncertaintyC_m2s2: { name: 'tie_u_c_m2s2', type: 'float8', nullable: true },
+    tieSource: { name: 'tie_source', type: 'text', nullable: true },
     createdAt: { name: 'created_at', type: 'timestamptz', createDate: true },
     updatedAt: { name: 'updated_at', type: 'timestamptz', updateDate: true },
   },

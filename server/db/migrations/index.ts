@@ -20,6 +20,7 @@ import { UploadProgress1765800002000 } from './1765800002000-upload-progress';
 import { TransportableClocks1766000000000 } from './1766000000000-transportable-clocks';
 import { ReadAfterWrite1766000900000 } from './1766000900000-read-after-write';
 import { RatioClosures1766030000000 } from './1766030000000-ratio-closures';
+import { SiteTiePotential1766050000000 } from './1766050000000-site-tie-potential';
 
 // Every migration, in order. Add new ones at the end (file name: <timestamp>-<what>.ts).
 export const migrations = [
@@ -45,4 +46,5 @@ export const migrations = [
   TransportableClocks1766000000000,
   ReadAfterWrite1766000900000,
   RatioClosures1766030000000,
+  SiteTiePotential1766050000000,
 ];

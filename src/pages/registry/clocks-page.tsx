@@ -66,7 +66,7 @@ function NewClockForm({ onDone }: { onDone: () => void }) {
           onError: (e) => setFormError(applyServerErrors(e, setError, ['siteId', ...clockFieldNames, 'budget'])),
         });
       })}>
-        <ClockFields register={register as unknown as UseFormRegister<ClockFieldValues>} errors={errors} siteField={(
+        <ClockFields register={register as unknown as UseFormRegister<ClockFieldValues>} errors={errors} species={watch('species')} siteField={(
           <Field label="Site" error={errors.siteId?.message}>
             <select className={selectClass} {...register('siteId')}>
               <option value="">choose…</option>

@@ -6,9 +6,9 @@ import type { Me } from '../../../shared/auth';
 import {
   registryTideSystems,
   clockKindLabels, clockKinds, speciesCodes, speciesLabels, updateClockSchema, updateLinkSchema, updateSiteSchema,
-  type Clock, type Link as FibreLink, type Site, type UpdateSite,
+  type Clock, type Link as FibreLink, type ReferenceFrequency, type Site, type UpdateSite,
 } from '../../../shared/registry';
-import { useCrsList, useGrids, useUpdateClock, useUpdateLink, useUpdateSite } from '../../api/registry';
+import { useCrsList, useGrids, useReferences, useUpdateClock, useUpdateLink, useUpdateSite } from '../../api/registry';
 import { Button, Field, inputClass, Panel } from '../../components/ui';
 import { applyServerErrors, FormError, selectClass } from './registry-ui';
 
@@ -33,7 +33,7 @@ export type SiteForm = {
   name: string; instituteId?: string; referencePoint: string; crs: string; coordinates: (number | undefined)[]; ellipsoidalHeightUncertaintyM: number;
   ellipsoidalCrustSystem?: '' | (typeof registryTideSystems)[number] | null;
   quasigeoid: { source: 'entered' | 'grid'; heightM?: number; uncertaintyM?: number; gridId?: string; tideSystem?: '' | (typeof registryTideSystems)[number] | null };
-  benchmarkTie: { benchmarkCode?: string; heightDifferenceM?: number; uncertaintyM?: number } | null;
+  benchmarkTie: { benchmarkCode?: string; heightDifferenceM?: number; uncertaintyM?: number; deltaC_m2s2?: number; uncertaintyC_m2s2?: number; source?: string } | null;
 };
 
 /** The shared schema decides; this only turns the flat form into its shape (empty height, empty tie → none). */
@@ -143,7 +143,10 @@ function siteToForm(s: Site): SiteForm {
     quasigeoid: s.quasigeoid.source === 'grid'
       ? { source: 'grid', gridId: s.quasigeoid.gridId ?? undefined }
       : { source: 'entered', heightM: s.quasigeoid.heightM, uncertaintyM: s.quasigeoid.uncertaintyM, tideSystem: s.quasigeoid.tideSystem ?? '' },
-    benchmarkTie: s.benchmarkTie ? { ...s.benchmarkTie } : {},
+    // a ΔC tie (set on the site page) passes through unchanged; this form edits Δh ties
+    benchmarkTie: s.benchmarkTie
+      ? Object.fromEntries(Object.entries(s.benchmarkTie).filter(([k, v]) => v !== null && k !== 'quantity'))
+      : {},
   };
 }
 
@@ -201,7 +204,9 @@ export type ClockFieldValues = { name: string; kind: (typeof clockKinds)[number]
 export const clockFieldNames = ['name', 'kind', 'species', 'nominalFrequencyHz', 'notes', 'mobility'] as const;
 
 /** Name, kind, species, nominal frequency and notes; the site and the budget stay with the caller. */
-export function ClockFields({ register, errors, siteField }: { register: UseFormRegister<ClockFieldValues>; errors: FieldErrors<ClockFieldValues>; siteField?: ReactNode }) {
+export function ClockFields({ register, errors, siteField, species }: { register: UseFormRegister<ClockFieldValues>; errors: FieldErrors<ClockFieldValues>; siteField?: ReactNode; species?: string }) {
+  const references = useReferences();
+  const hint = nominalFrequencyHint(species, references.data);
   return (
     <div className="grid gap-3 md:grid-cols-3">
       <Field label="Clock name" error={errors.name?.message}><input className={inputClass} {...register('name')} /></Field>
@@ -212,7 +217,7 @@ export function ClockFields({ register, errors, siteField }: { register: UseForm
       <Field label="Species / transition" error={errors.species?.message}>
         <select className={selectClass} {...register('species')}>{speciesCodes.map((s) => <option key={s} value={s}>{speciesLabels[s]}</option>)}</select>
       </Field>
-      <Field label="Nominal frequency (Hz, decimal)" hint="up to 20 significant digits, e.g. 429228004229873.7" error={errors.nominalFrequencyHz?.message}>
+      <Field label="Nominal frequency (Hz, decimal)" hint={hint} error={errors.nominalFrequencyHz?.message}>
         <input className={`${inputClass} font-mono`} inputMode="decimal" {...register('nominalFrequencyHz')} />
       </Field>
       <Field label="Notes" error={errors.notes?.message}><input className={inputClass} {...register('notes')} /></Field>
@@ -224,6 +229,14 @@ export function ClockFields({ register, errors, siteField }: { register: UseForm
       </Field>
     </div>
   );
+}
+
+/** The hint beside the nominal frequency: the reference frequency in use for the chosen species, if the table has one. */
+export function nominalFrequencyHint(species: string | undefined, references: ReferenceFrequency[] | undefined): string {
+  const inUse = species ? references?.find((r) => r.species === species && r.inUse) : undefined;
+  return inUse
+    ? `up to 20 significant digits; reference value for ${inUse.speciesLabel}: ${inUse.frequencyHz}`
+    : 'up to 20 significant digits (no reference value in use for this species)';
 }
 
 export function EditClockPanel({ clock }: { clock: Clock }) {
@@ -238,7 +251,7 @@ export function EditClockPanel({ clock }: { clock: Clock }) {
 function EditClockForm({ clock, onDone }: { clock: Clock; onDone: () => void }) {
   const update = useUpdateClock();
   const [formError, setFormError] = useState<string | null>(null);
-  const { register, handleSubmit, setError, formState: { errors } } = useForm<ClockFieldValues, unknown, UpdateClock>({
+  const { register, handleSubmit, watch, setError, formState: { errors } } = useForm<ClockFieldValues, unknown, UpdateClock>({
     resolver: zodResolver(updateClockSchema) as unknown as Resolver<ClockFieldValues, unknown, UpdateClock>,
     defaultValues: { name: clock.name, kind: clock.kind, species: clock.species, nominalFrequencyHz: clock.nominalFrequencyHz, notes: clock.notes, mobility: clock.mobility },
   });
@@ -247,7 +260,7 @@ function EditClockForm({ clock, onDone }: { clock: Clock; onDone: () => void }) 
       setFormError(null);
       update.mutate({ id: clock.id, body }, { onSuccess: onDone, onError: (err) => setFormError(applyServerErrors(err, setError, clockFieldNames)) });
     })}>
-      <ClockFields register={register} errors={errors} />
+      <ClockFields register={register} errors={errors} species={watch('species')} />
       <EditFormFooter error={formError} saving={update.isPending} onCancel={onDone} />
     </form>
   );

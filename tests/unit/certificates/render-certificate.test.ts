@@ -3,7 +3,7 @@ import { mkdtempSync, readdirSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import path from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { renderCertificatePdf, STANDING_CAUTIONS } from '../../../server/certificates/pdf/render-certificate';
+import { renderCertificatePdf, STANDING_CAUTIONS, unitCell } from '../../../server/certificates/pdf/render-certificate';
 import { certificateSnapshotSchema, formatCertificateNumber } from '../../../shared/certificates';
 import type { CertificateSnapshot } from '../../../shared/certificates';
 import { longSnapshot, sampleSnapshot } from './fixtures/sample-snapshot';
@@ -131,6 +131,17 @@ describe.skipIf(!hasPoppler)(popplerSuite, () => {
     for (const item of required) expect(text, item).toContain(flat(item));
     // GUM 7.2.6: U is rounded to two significant digits; the budget shows U = 2·u_c.
     expect(text).toContain('Expanded uncertainty U, k = 2 0.71');
+  });
+
+  it('fills the unit column of the budget: a dash for dimensionless inputs, the unit otherwise (no bare "1")', () => {
+    const text = flat(rendered.sample.text);
+    // The four dimensionless rows (sensitivity c² = 8.988 × 10¹⁶ m²/s²) show a dash; the tide row keeps m²/s².
+    expect(text.match(/10⁻\S+ — 8\.988 × 10¹⁶/g)?.length).toBe(4);
+    expect(text).toMatch(/Solid-Earth and ocean tide model B [^A-Za-z]{0,40}m²\/s² Combined/);
+    expect(text).not.toMatch(/Unit 1\b/);
+    expect(unitCell('1')).toBe('—');
+    expect(unitCell('1 (fractional)')).toBe('—');
+    expect(unitCell('m²/s²')).toBe('m²/s²');
   });
 
   it('prints the certificate number and "page x of y" in the footer of every page', () => {
