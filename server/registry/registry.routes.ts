@@ -1,3 +1,4 @@
+import { z } from 'zod';
 import { idParamsSchema, pageOf, wholePage } from '../../shared/http';
 import {
   budgetVersionSchema,
