@@ -8,6 +8,10 @@ export type AdjustmentJob = { runId: string };
 /** Computes a campaign's comparison result (after an upload, an acceptance or a request to recompute). */
 export const RESULT_QUEUE = 'result-compute';
 export type ResultJob = { campaignId: string; requestedByUserId: string | null; force: boolean };
+/** Renders, time-stamps, signs and stores a certificate asked for over HTTP (table certificate_request). */
+export const CERTIFICATE_QUEUE = 'certificate-issue';
+export type CertificateJob = { requestId: string };
+export const JOB_QUEUES = [ADJUSTMENT_QUEUE, RESULT_QUEUE, CERTIFICATE_QUEUE];
 
 export async function startBoss(databaseUrl: string, opts: { supervise?: boolean } = {}): Promise<PgBoss> {
   const boss = new PgBoss({ connectionString: databaseUrl, max: 4, supervise: opts.supervise ?? true, schedule: false, application_name: 'chronolevel-jobs' });
@@ -15,6 +19,7 @@ export async function startBoss(databaseUrl: string, opts: { supervise?: boolean
   await boss.start();
   await boss.createQueue(ADJUSTMENT_QUEUE, { name: ADJUSTMENT_QUEUE, retryLimit: 2, retryDelay: 5, expireInMinutes: 60 });
   await boss.createQueue(RESULT_QUEUE, { name: RESULT_QUEUE, retryLimit: 2, retryDelay: 5, expireInMinutes: 30 });
+  await boss.createQueue(CERTIFICATE_QUEUE, { name: CERTIFICATE_QUEUE, retryLimit: 2, retryDelay: 2, expireInMinutes: 15 });
   return boss;
 }
 

@@ -18,6 +18,7 @@ import { ListIndexes1765800000000 } from './1765800000000-list-indexes';
 import { SamplePartitions1765800001000 } from './1765800001000-sample-partitions';
 import { UploadProgress1765800002000 } from './1765800002000-upload-progress';
 import { TransportableClocks1766000000000 } from './1766000000000-transportable-clocks';
+import { JobsProgress1766080000000 } from './1766080000000-jobs-progress';
 
 // Every migration, in order. Add new ones at the end (file name: <timestamp>-<what>.ts).
 export const migrations = [
@@ -41,4 +42,5 @@ export const migrations = [
   SamplePartitions1765800001000,
   UploadProgress1765800002000,
   TransportableClocks1766000000000,
+  JobsProgress1766080000000,
 ];
