@@ -152,7 +152,9 @@ export async function issueInline(manager: EntityManager, config: AppConfig, act
 /** The worker's side: one 'certificate-issue' job. */
 export async function runCertificateJob(dataSource: DataSource, config: AppConfig, job: CertificateJob): Promise<'issued' | 'already-done'> {
   const stage = progressWriter(dataSource, 'certificate-issue', job.requestId);
-  await dataSource.query(`UPDATE certificate_request SET state = 'running', started_at = coalesce(started_at, now()) WHERE id = $1 AND state = 'queued'`, [job.requestId]);
+  const [open]: { state: string }[] = await dataSource.query(
+    `UPDATE certificate_request SET state = 'running', started_at = coalesce(started_at, now()) WHERE id = $1 AND state IN ('queued', 'running') RETURNING state`, [job.requestId]);
+  if (!open) return 'already-done'; // finished (or gone) already: a duplicate delivery changes nothing
   await stage('checking the campaign and its result', 0.1);
   try {
     const did = await dataSource.transaction((m) => carryOutCertificateRequest(m, config, job.requestId, { onStage: stage }));
