@@ -6,7 +6,7 @@ import { recordAudit } from '../audit/audit.service';
 import type { Actor } from '../auth/actor';
 import { authorize } from '../auth/permissions';
 import type { AppConfig } from '../config';
-import { AppError, NotFound } from '../http/errors';
+import { AppError, Conflict, NotFound } from '../http/errors';
 import { progressWriter, readProgress, writeProgress } from '../jobs/progress';
 import { CERTIFICATE_QUEUE, queueFor, type CertificateJob } from '../jobs/queue';
 import { findActorByUserId } from '../users/users.service';
@@ -27,7 +27,12 @@ export type CertificateRequestRow = {
 };
 
 /** At request time the checks read the stored result; computing is the worker's. */
-const readOnlySource: IssueContext['loadSource'] = (manager, campaignId) => loadStoredCertificateSource(manager, campaignId);
+const readOnlySource = (manager: EntityManager, campaignId: string) => loadStoredCertificateSource(manager, campaignId);
+
+/** A reissue needs the campaign's current result stored (the results page shows its progress while it computes). */
+function loadCertificateSourceRefusingToCompute(campaignId: string): never {
+  throw new Conflict('The campaign’s result for its current inputs is not computed yet; a worker computes it (the results page shows its progress). Reissue when it is there.', { campaignId });
+}
 
 export const progressUrlOf = (id: string) => `/api/v1/certificate-requests/${id}/progress`;
 
@@ -54,7 +59,7 @@ async function toProgress(manager: Pick<EntityManager, 'query'>, row: Certificat
 }
 
 export function createCertificateRequests(dataSource: DataSource, config: AppConfig) {
-  async function record(manager: EntityManager, actor: Actor, v: { kind: 'issue' | 'reissue'; campaignId: string; previousNumber: string | null; comment: string; justification: string | undefined }) {
+  async function record(manager: EntityManager, actor: Actor, v: { kind: 'issue' | 'reissue'; campaignId: string; previousNumber: string | null; comment: string; justification: string | undefined; resultPending?: boolean }) {
     // One open request per campaign: asking again while it is open answers with that request (idempotent POST).
     await manager.query('SELECT pg_advisory_xact_lock(hashtext($1))', [`certificate-request:${v.campaignId}`]);
     const open = await openRequestFor(manager, v.campaignId);
@@ -72,7 +77,7 @@ export function createCertificateRequests(dataSource: DataSource, config: AppCon
     await writeProgress(manager, 'certificate-issue', id, 'waiting for a worker', 0);
     await recordAudit(manager, actor, {
       action: v.kind === 'issue' ? 'certificate.requested' : 'certificate.reissue-requested', entityType: 'campaign', entityId: v.campaignId,
-      details: { requestId: id, previousNumber: v.previousNumber, comment: v.comment, justification: v.justification ?? null },
+      details: { requestId: id, previousNumber: v.previousNumber, comment: v.comment, justification: v.justification ?? null, resultPending: v.resultPending ?? false },
     });
     const [row]: CertificateRequestRow[] = await manager.query('SELECT * FROM certificate_request WHERE id = $1', [id]);
     return { request: await toProgress(manager, row), progressUrl: progressUrlOf(id) };
@@ -83,8 +88,8 @@ export function createCertificateRequests(dataSource: DataSource, config: AppCon
     async requestIssue(actor: Actor, campaignId: string, decision: { comment: string; justification?: string }) {
       authorize(actor, 'certificates:issue');
       return dataSource.transaction(async (manager) => {
-        await precheckIssue({ manager, config, actor, loadSource: readOnlySource }, campaignId, decision);
-        return record(manager, actor, { kind: 'issue', campaignId, previousNumber: null, comment: decision.comment, justification: decision.justification });
+        const check = await precheckIssue({ manager, config, actor, loadSource: readOnlySource }, campaignId, decision);
+        return record(manager, actor, { kind: 'issue', campaignId, previousNumber: null, comment: decision.comment, justification: decision.justification, resultPending: check.resultPending });
       });
     },
 
@@ -92,7 +97,7 @@ export function createCertificateRequests(dataSource: DataSource, config: AppCon
     async requestReissue(actor: Actor, number: string, reason: string, justification?: string) {
       authorize(actor, 'certificates:issue');
       return dataSource.transaction(async (manager) => {
-        const { campaignId } = await precheckReissue({ manager, config, actor, loadSource: readOnlySource }, number, reason, justification);
+        const { campaignId } = await precheckReissue({ manager, config, actor, loadSource: async (m, id) => (await readOnlySource(m, id)) ?? loadCertificateSourceRefusingToCompute(id) }, number, reason, justification);
         return record(manager, actor, { kind: 'reissue', campaignId, previousNumber: number, comment: reason, justification });
       });
     },

@@ -163,15 +163,15 @@ export async function loadCertificateSource(manager: EntityManager, campaignId: 
 
 /**
  * The same from the stored result only (reads, never computes): what the HTTP request checks a certificate request
- * against, so no science runs on the HTTP event loop. No stored result for the current inputs: 409 result-pending.
+ * against, so no science runs on the HTTP event loop. Null when no result is stored for the current inputs.
  */
-export async function loadStoredCertificateSource(manager: EntityManager, campaignId: string): Promise<CertificateSource> {
+export async function loadStoredCertificateSource(manager: EntityManager, campaignId: string): Promise<CertificateSource | null> {
   const campaign = await getCampaignForResult(manager, campaignId);
   if (campaign.state !== 'accepted' && campaign.state !== 'certified') {
     throw new Conflict(`Only an accepted campaign can be certified; this one is '${campaign.state}'.`, { state: campaign.state });
   }
   const result = await storedCurrentResult(manager, campaignId);
-  if (!result) throw new Conflict('The campaign’s result for its current inputs is not computed yet (a worker computes it; the results page shows its progress). Ask for the certificate when it is there.', { resultPending: true });
+  if (!result) return null;
   return sourceFrom(manager, campaign, result);
 }
 

@@ -87,11 +87,16 @@ export type CertifyDecision = { comment: string; justification?: string };
  * person who accepted may not certify) and a written justification when the campaign has review exceptions.
  * Kept out of the result fingerprint: the same result certified again is the same certificate.
  */
-async function reviewDecision(ctx: IssueContext, campaignId: string, body: SnapshotBody, decision: CertifyDecision, previous?: ReviewDecision): Promise<ReviewDecision> {
+async function acceptanceOf(ctx: Pick<IssueContext, 'manager' | 'config' | 'actor'>, campaignId: string) {
   const c = (await ctx.manager.getRepository(CampaignEntity).findOneBy({ id: campaignId })) ?? { acceptedByUserId: null, acceptedBy: null, acceptedAt: null, acceptanceComment: null, acceptanceJustification: null, acceptanceExceptions: [] };
   if (ctx.config.reviewFourEyes && c.acceptedByUserId && c.acceptedByUserId === ctx.actor.userId) {
     throw new Forbidden(`Four-eyes rule: you accepted this campaign (${mailDate(c.acceptedAt ?? new Date())}), so another coordinator must issue its certificate.`);
   }
+  return c;
+}
+
+async function reviewDecision(ctx: Pick<IssueContext, 'manager' | 'config' | 'actor'>, campaignId: string, body: SnapshotBody, decision: CertifyDecision, previous?: ReviewDecision): Promise<ReviewDecision> {
+  const c = await acceptanceOf(ctx, campaignId);
   const exceptions = certificationExceptions(body, ctx.config.reviewMinUptimeFraction);
   const earlier = previous?.justifications.find((j) => j.stage === 'certification');
   const text = decision.justification ?? (exceptions.length ? earlier?.text : undefined);
@@ -280,18 +285,30 @@ export async function reissueCertificate(ctx: IssueContext, number: string, reas
  * campaign has exceptions, four-eyes). Writes nothing; the job repeats every check when it issues.
  * Returns the number of the valid certificate that already covers the same result, if any.
  */
-export async function precheckIssue(ctx: Omit<IssueContext, 'markCertified'>, campaignId: string, decision: CertifyDecision): Promise<{ existingNumber: string | null }> {
+export async function precheckIssue(
+  ctx: Omit<IssueContext, 'markCertified' | 'loadSource'> & { loadSource: (...a: Parameters<LoadSource>) => Promise<CertificateSource | null> },
+  campaignId: string, decision: CertifyDecision,
+): Promise<{ existingNumber: string | null; resultPending: boolean }> {
   const source = await ctx.loadSource(ctx.manager, campaignId, ctx.actor, ctx.now ?? new Date());
+  if (!source) {
+    // No stored result for the current inputs yet (the worker computes it first): the rules that need the result
+    // (the justification of its exceptions) are checked by the job, which fails the request naming them.
+    const campaign = await ctx.manager.getRepository(CampaignEntity).findOneBy({ id: campaignId });
+    if (!campaign) throw new NotFound('Campaign');
+    if (campaign.state !== 'accepted') throw new Conflict(`Only an accepted campaign can be certified; this one is '${campaign.state}'.`, { state: campaign.state });
+    await acceptanceOf(ctx, campaignId);
+    return { existingNumber: null, resultPending: true };
+  }
   const current = await ctx.manager.getRepository(CertificateEntity).findOneBy({ campaignId, state: 'valid' });
   if (current) {
-    if (current.resultFingerprint === fingerprintOf(source)) return { existingNumber: current.number };
+    if (current.resultFingerprint === fingerprintOf(source)) return { existingNumber: current.number, resultPending: false };
     throw new Conflict(`The campaign changed since certificate ${current.number} was issued; reissue that certificate instead.`, { number: current.number });
   }
   if (source.campaignState !== 'accepted' && source.campaignState !== 'certified') {
     throw new Conflict(`Only an accepted campaign can be certified; this one is '${source.campaignState}'.`, { state: source.campaignState });
   }
-  await reviewDecision({ ...ctx, markCertified: async () => undefined }, campaignId, source.body, decision);
-  return { existingNumber: null };
+  await reviewDecision(ctx, campaignId, source.body, decision);
+  return { existingNumber: null, resultPending: false };
 }
 
 /** The reissue's checks at request time (see precheckIssue); returns the campaign of the certificate. */
@@ -307,7 +324,7 @@ export async function precheckReissue(ctx: Omit<IssueContext, 'markCertified'>, 
     throw new Conflict(`The campaign is '${source.campaignState}'; a certificate can be reissued only for an accepted or certified campaign.`, { state: source.campaignState });
   }
   const [prevSnapshot] = await ctx.manager.query(`SELECT snapshot->'review' AS review FROM certificate WHERE id = $1`, [previous.id]) as { review: ReviewDecision | null }[];
-  await reviewDecision({ ...ctx, markCertified: async () => undefined }, previous.campaignId, source.body, { comment: reason, justification }, prevSnapshot?.review ?? undefined);
+  await reviewDecision(ctx, previous.campaignId, source.body, { comment: reason, justification }, prevSnapshot?.review ?? undefined);
   return { campaignId: previous.campaignId };
 }
 
