@@ -2,8 +2,7 @@ import path from 'node:path';
 import type { Actor } from '../server/auth/actor';
 import { loadConfig } from '../server/config';
 import { UserEntity } from '../server/db/entities/core.entities';
-import { loadCertificateSource, markCertified } from '../server/certificates/certificate-source';
-import { issueCertificate } from '../server/certificates/issue';
+import { issueInline } from '../server/certificates/certificate-requests';
 import type { Seeder } from './demo';
 
 // Demo certificate: the coordinator of the invented scenario certifies one accepted campaign with uploaded series, so an
@@ -31,7 +30,8 @@ export const certificatesSeeder: Seeder = {
       SESSION_SECRET: process.env.SESSION_SECRET ?? 'unused-by-the-certificate-seed',
       SECRETS_DIR: path.resolve(process.env.SECRETS_DIR ?? '.secrets'),
     });
-    await issueCertificate({ manager, config, actor, loadSource: loadCertificateSource, markCertified }, campaignId, {
+    // Seeds run before any worker: the request is carried out here, in the seed's transaction, as a worker would.
+    await issueInline(manager, config, actor, campaignId, {
       comment: 'Demo: reviewed against the pinned budgets and the uploaded series.',
       justification: 'Demo: the invented scenario certifies this campaign as it stands; a real review would explain each exception here.',
     });

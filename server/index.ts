@@ -63,7 +63,7 @@ async function main() {
   // one beside this process). CHRONOLEVEL_INLINE_WORKER=1 runs them inside this process instead (single-process use).
   const inlineWorker = process.env.CHRONOLEVEL_INLINE_WORKER === '1';
   if (inlineWorker) {
-    const worker = await startWorker({ dataSource, databaseUrl: config.databaseUrl, logger });
+    const worker = await startWorker({ dataSource, databaseUrl: config.databaseUrl, config, logger });
     closers.push(() => worker.stop());
     // Besides the checkpoint every 100 events, one every 15 minutes when anything was added (no-op otherwise).
     const checkpoints = setInterval(() => void writeAuditCheckpoint(dataSource, 'every 15 minutes').catch((e) => logger.error({ err: e }, 'audit checkpoint failed')), 15 * 60_000);

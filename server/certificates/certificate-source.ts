@@ -6,7 +6,7 @@ import type { Actor } from '../auth/actor';
 import { getCampaignForResult, markCampaignCertified, type CampaignForResult, type ClockForResult } from '../campaigns/campaigns.service';
 import { InstituteEntity } from '../db/entities/core.entities';
 import { Conflict } from '../http/errors';
-import { computeCampaignResult, latestResultForCampaign } from '../results/results.service';
+import { computeCampaignResult, latestResultForCampaign, storedCurrentResult } from '../results/results.service';
 import type { CertificateSource, SnapshotBody } from './certificate-source.types';
 
 // Turns a campaign and its latest stored result into what a certificate shows. No number is recomputed here:
@@ -158,6 +158,25 @@ export async function loadCertificateSource(manager: EntityManager, campaignId: 
   // Always build from the stored row, so a fresh computation and a later read give the same certificate body.
   const result = current.fresh ? await latestResultForCampaign(manager, campaignId) : current;
   if (!result || result.id !== current.id) throw new Conflict('The campaign’s result changed while the certificate was being prepared; try again.');
+  return sourceFrom(manager, campaign, result);
+}
+
+/**
+ * The same from the stored result only (reads, never computes): what the HTTP request checks a certificate request
+ * against, so no science runs on the HTTP event loop. Null when no result is stored for the current inputs.
+ */
+export async function loadStoredCertificateSource(manager: EntityManager, campaignId: string): Promise<CertificateSource | null> {
+  const campaign = await getCampaignForResult(manager, campaignId);
+  if (campaign.state !== 'accepted' && campaign.state !== 'certified') {
+    throw new Conflict(`Only an accepted campaign can be certified; this one is '${campaign.state}'.`, { state: campaign.state });
+  }
+  const result = await storedCurrentResult(manager, campaignId);
+  if (!result) return null;
+  return sourceFrom(manager, campaign, result);
+}
+
+async function sourceFrom(manager: EntityManager, campaign: Awaited<ReturnType<typeof getCampaignForResult>>, result: NonNullable<Awaited<ReturnType<typeof latestResultForCampaign>>>): Promise<CertificateSource> {
+  const campaignId = campaign.id;
   const institutes = await manager.getRepository(InstituteEntity).find();
   const names = new Map(institutes.map((i) => [i.id, i.name]));
   return {

@@ -1,15 +1,16 @@
 import busboy from 'busboy';
 import type { Request } from 'express';
-import { z } from 'zod';
 import {
   campaignIdParamsSchema, certificateDetailSchema, certificateListQuerySchema, certificateNumberParamsSchema, certificateSummarySchema,
   reissueCertificateSchema, revokeCertificateSchema, VERIFY_UPLOAD_LIMIT_BYTES, verificationResultSchema, verifyByNumberQuerySchema,
 } from '../../shared/certificate-registry';
 import { issueCertificateSchema } from '../../shared/campaigns';
 import { certificateSnapshotSchema } from '../../shared/certificates';
-import { pageOf } from '../../shared/http';
+import { idParamsSchema, pageOf } from '../../shared/http';
+import { certificateRequestAcceptedSchema, certificateRequestProgressSchema } from '../../shared/jobs';
 import { Invalid, PayloadTooLarge } from '../http/errors';
 import { route } from '../http/route';
+import { createCertificateRequests } from './certificate-requests';
 import { createCertificatesService } from './certificates.service';
 import { createVerificationService } from './verification.service';
 
@@ -49,18 +50,22 @@ function readUploadedPdf(req: Request, limitBytes: number): Promise<Buffer> {
   });
 }
 
-const issuedResponse = z.object({ created: z.boolean(), certificate: certificateSummarySchema });
-
 /** Public verification, by file or by number: 30 checks a minute per address, counted in PostgreSQL. */
 // Verification is rate-limited per caller by the middleware in server/http/rate-limits.ts (RATE_LIMIT_VERIFY_PER_MINUTE).
 export const certificateRoutes = [
   route({
-    method: 'post', path: '/api/v1/campaigns/:id/certificates', summary: 'Issue the certificate of an accepted campaign (comment required; 201, or 200 with the existing one when nothing changed)',
-    tag: 'certificates', permission: 'certificates:issue', params: campaignIdParamsSchema, body: issueCertificateSchema, response: issuedResponse, raw: true,
+    method: 'post', path: '/api/v1/campaigns/:id/certificates',
+    summary: 'Ask for the certificate of an accepted campaign (comment required; review rules checked now). 202 with the request; a worker renders, time-stamps and signs it; Location: its progress',
+    tag: 'certificates', permission: 'certificates:issue', params: campaignIdParamsSchema, body: issueCertificateSchema, response: certificateRequestAcceptedSchema, raw: true,
     handler: async ({ actor, params, body, res, deps }) => {
-      const out = await createCertificatesService(deps.dataSource, deps.config).issue(actor, params.id, body);
-      res.status(out.created ? 201 : 200).location(`/api/v1/certificates/${out.certificate.number}`).json(out);
+      const out = await createCertificateRequests(deps.dataSource, deps.config).requestIssue(actor, params.id, body);
+      res.status(202).location(out.progressUrl).json(out);
     },
+  }),
+  route({
+    method: 'get', path: '/api/v1/certificate-requests/:id/progress', summary: 'How far an issue or reissue request got (stage, fraction; the certificate number when done)',
+    tag: 'certificates', permission: 'certificates:issue', params: idParamsSchema, response: certificateRequestProgressSchema,
+    handler: ({ actor, params, deps }) => createCertificateRequests(deps.dataSource, deps.config).progress(actor, params.id),
   }),
   route({
     method: 'post', path: '/api/v1/certificates/verify', summary: 'Verify a certificate file (public; multipart field "file")',
@@ -106,10 +111,14 @@ export const certificateRoutes = [
     handler: ({ actor, params, deps }) => createCertificatesService(deps.dataSource, deps.config).snapshot(actor, params.number),
   }),
   route({
-    method: 'post', path: '/api/v1/certificates/:number/reissue', summary: 'Issue the next revision after a correction; the current one is marked replaced',
+    method: 'post', path: '/api/v1/certificates/:number/reissue',
+    summary: 'Ask for the next revision after a correction (202 with the request; a worker issues it and marks the current one replaced; Location: its progress)',
     tag: 'certificates', permission: 'certificates:issue', params: certificateNumberParamsSchema, body: reissueCertificateSchema,
-    response: certificateSummarySchema, successStatus: 201,
-    handler: ({ actor, params, body, deps }) => createCertificatesService(deps.dataSource, deps.config).reissue(actor, params.number, body.reason, body.justification),
+    response: certificateRequestAcceptedSchema, raw: true,
+    handler: async ({ actor, params, body, res, deps }) => {
+      const out = await createCertificateRequests(deps.dataSource, deps.config).requestReissue(actor, params.number, body.reason, body.justification);
+      res.status(202).location(out.progressUrl).json(out);
+    },
   }),
   route({
     method: 'post', path: '/api/v1/certificates/:number/revoke', summary: 'Withdraw a certificate (reason required)',

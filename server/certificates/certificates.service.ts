@@ -6,10 +6,10 @@ import { authorize } from '../auth/permissions';
 import type { AppConfig } from '../config';
 import { CertificateEntity, type CertificateRow } from '../db/entities/certificates.entities';
 import { NotFound } from '../http/errors';
-import { loadCertificateSource, markCertified } from './certificate-source';
-import { instituteNames, issueCertificate, reissueCertificate, revokeCertificate, type CertifyDecision } from './issue';
+import { instituteNames, revokeCertificate } from './issue';
 
-// The certificate registry as the API sees it: coordinators issue, reissue and withdraw; everyone with
+// The certificate registry as the API sees it: coordinators withdraw (issue and reissue are jobs:
+// certificate-requests.ts); everyone with
 // 'certificates:read' reads, operators only the certificates of their own institute's clocks.
 
 type Institutes = Awaited<ReturnType<typeof instituteNames>>;
@@ -73,22 +73,6 @@ export function createCertificatesService(dataSource: DataSource, config: AppCon
   }
 
   return {
-    async issue(actor: Actor, campaignId: string, decision: CertifyDecision) {
-      authorize(actor, 'certificates:issue');
-      return dataSource.transaction(async (manager) => {
-        const outcome = await issueCertificate({ manager, config, actor, loadSource: loadCertificateSource, markCertified }, campaignId, decision);
-        return { created: outcome.created, certificate: await toCertificateSummary(manager, outcome.row) };
-      });
-    },
-
-    async reissue(actor: Actor, number: string, reason: string, justification?: string) {
-      authorize(actor, 'certificates:issue');
-      return dataSource.transaction(async (manager) => {
-        const row = await reissueCertificate({ manager, config, actor, loadSource: loadCertificateSource, markCertified }, number, reason, justification);
-        return toCertificateSummary(manager, row);
-      });
-    },
-
     async revoke(actor: Actor, number: string, reason: string) {
       authorize(actor, 'certificates:issue');
       return dataSource.transaction(async (manager) => toCertificateSummary(manager, await revokeCertificate({ manager, config, actor }, number, reason)));

@@ -33,6 +33,8 @@ export interface IssueContext {
   loadSource: LoadSource;
   markCertified: MarkCertified;
   now?: Date;
+  /** Told each stage as it starts (the certificate job records it as durable progress). */
+  onStage?: (stage: string, fraction: number) => Promise<void>;
 }
 
 /** Key order fixed, so the same inputs always give the same fingerprint. */
@@ -86,11 +88,16 @@ export type CertifyDecision = { comment: string; justification?: string };
  * person who accepted may not certify) and a written justification when the campaign has review exceptions.
  * Kept out of the result fingerprint: the same result certified again is the same certificate.
  */
-async function reviewDecision(ctx: IssueContext, campaignId: string, body: SnapshotBody, decision: CertifyDecision, previous?: ReviewDecision): Promise<ReviewDecision> {
+async function acceptanceOf(ctx: Pick<IssueContext, 'manager' | 'config' | 'actor'>, campaignId: string) {
   const c = (await ctx.manager.getRepository(CampaignEntity).findOneBy({ id: campaignId })) ?? { acceptedByUserId: null, acceptedBy: null, acceptedAt: null, acceptanceComment: null, acceptanceJustification: null, acceptanceExceptions: [] };
   if (ctx.config.reviewFourEyes && c.acceptedByUserId && c.acceptedByUserId === ctx.actor.userId) {
     throw new Forbidden(`Four-eyes rule: you accepted this campaign (${mailDate(c.acceptedAt ?? new Date())}), so another coordinator must issue its certificate.`);
   }
+  return c;
+}
+
+async function reviewDecision(ctx: Pick<IssueContext, 'manager' | 'config' | 'actor'>, campaignId: string, body: SnapshotBody, decision: CertifyDecision, previous?: ReviewDecision): Promise<ReviewDecision> {
+  const c = await acceptanceOf(ctx, campaignId);
   const exceptions = certificationExceptions(body, ctx.config.reviewMinUptimeFraction, await closureExceptions(ctx.manager, ctx.actor, campaignId));
   const earlier = previous?.justifications.find((j) => j.stage === 'certification');
   const text = decision.justification ?? (exceptions.length ? earlier?.text : undefined);
@@ -126,7 +133,9 @@ async function renderAndSign(ctx: IssueContext, body: SnapshotBody, number: stri
     verificationUrl: verificationUrlFor(ctx.config, number),
     review,
   };
+  await ctx.onStage?.('rendering the PDF', 0.3);
   const unsigned = await renderCertificatePdf(snapshot);
+  await ctx.onStage?.('time-stamping and signing', 0.55);
   const { pdf, signingKeySerial } = await signCertificate(ctx.manager, ctx.config, unsigned, {
     reason: revision > 1 ? `Certificate ${number} (revision ${revision})` : `Certificate ${number}`,
     location: institute?.city ?? issuingInstitute,
@@ -192,6 +201,7 @@ export async function issueCertificate(ctx: IssueContext, campaignId: string, de
   const number = formatCertificateNumber(year, serial, 1);
   const { snapshot, pdf, pdfSha256, signingKeySerial } = await renderAndSign(ctx, source.body, number, 1, issuedAt, review);
   await faultPoint('certificate-issue'); // test-only kill point: serial taken, PDF signed, nothing inserted yet
+  await ctx.onStage?.('storing the certificate', 0.9);
   const row = await insertRow(manager, actor, source, fingerprint, { number, year, serial, revision: 1, issuedAt, snapshot, pdf, pdfSha256, signingKeySerial });
   await recordAudit(manager, actor, {
     action: 'certificate.issued', entityType: 'certificate', entityId: number,
@@ -252,6 +262,7 @@ export async function reissueCertificate(ctx: IssueContext, number: string, reas
   const [prevSnapshot] = await manager.query(`SELECT snapshot->'review' AS review FROM certificate WHERE id = $1`, [previous.id]) as { review: ReviewDecision | null }[];
   const review = await reviewDecision(ctx, previous.campaignId, source.body, { comment: reason, justification }, prevSnapshot?.review ?? undefined);
   const { snapshot, pdf, pdfSha256, signingKeySerial } = await renderAndSign(ctx, source.body, newNumber, revision, issuedAt, review);
+  await ctx.onStage?.('storing the certificate', 0.9);
   const id = randomUUID();
   // The pointer's foreign key is deferred, so the old row can step aside before the new valid one arrives.
   await manager.getRepository(CertificateEntity).update({ id: previous.id }, { state: 'superseded', supersededBy: id, supersededAt: issuedAt });
@@ -267,6 +278,55 @@ export async function reissueCertificate(ctx: IssueContext, number: string, reas
       `What was corrected: ${reason}\n\nThe earlier file no longer stands on its own; use ${newNumber}.\n` +
       `SHA-256 of the new signed file: ${pdfSha256}\nVerify it at ${verificationUrlFor(ctx.config, newNumber)}\n`);
   return row;
+}
+
+/**
+ * The checks of an issue made when it is asked for (the HTTP request), before any work: the campaign is visible,
+ * accepted (or certified with an unchanged result), and the review-desk rules hold (comment, justification when the
+ * campaign has exceptions, four-eyes). Writes nothing; the job repeats every check when it issues.
+ * Returns the number of the valid certificate that already covers the same result, if any.
+ */
+export async function precheckIssue(
+  ctx: Omit<IssueContext, 'markCertified' | 'loadSource'> & { loadSource: (...a: Parameters<LoadSource>) => Promise<CertificateSource | null> },
+  campaignId: string, decision: CertifyDecision,
+): Promise<{ existingNumber: string | null; resultPending: boolean }> {
+  const source = await ctx.loadSource(ctx.manager, campaignId, ctx.actor, ctx.now ?? new Date());
+  if (!source) {
+    // No stored result for the current inputs yet (the worker computes it first): the rules that need the result
+    // (the justification of its exceptions) are checked by the job, which fails the request naming them.
+    const campaign = await ctx.manager.getRepository(CampaignEntity).findOneBy({ id: campaignId });
+    if (!campaign) throw new NotFound('Campaign');
+    if (campaign.state !== 'accepted') throw new Conflict(`Only an accepted campaign can be certified; this one is '${campaign.state}'.`, { state: campaign.state });
+    await acceptanceOf(ctx, campaignId);
+    return { existingNumber: null, resultPending: true };
+  }
+  const current = await ctx.manager.getRepository(CertificateEntity).findOneBy({ campaignId, state: 'valid' });
+  if (current) {
+    if (current.resultFingerprint === fingerprintOf(source)) return { existingNumber: current.number, resultPending: false };
+    throw new Conflict(`The campaign changed since certificate ${current.number} was issued; reissue that certificate instead.`, { number: current.number });
+  }
+  if (source.campaignState !== 'accepted' && source.campaignState !== 'certified') {
+    throw new Conflict(`Only an accepted campaign can be certified; this one is '${source.campaignState}'.`, { state: source.campaignState });
+  }
+  await reviewDecision(ctx, campaignId, source.body, decision);
+  return { existingNumber: null, resultPending: false };
+}
+
+/** The reissue's checks at request time (see precheckIssue); returns the campaign of the certificate. */
+export async function precheckReissue(ctx: Omit<IssueContext, 'markCertified'>, number: string, reason: string, justification?: string): Promise<{ campaignId: string }> {
+  const previous = await ctx.manager.getRepository(CertificateEntity).findOneBy({ number });
+  if (!previous) throw new NotFound(`Certificate ${number}`);
+  if (previous.state === 'superseded') {
+    throw new Conflict(`Certificate ${number} was already replaced; reissue the newest revision ${await newestRevisionNumber(ctx.manager, previous.year, previous.serial)}.`);
+  }
+  if (previous.state === 'revoked') throw new Conflict(`Certificate ${number} was withdrawn and cannot be reissued; issue a new certificate for the campaign.`);
+  const source = await ctx.loadSource(ctx.manager, previous.campaignId, ctx.actor, ctx.now ?? new Date());
+  if (source.campaignState !== 'accepted' && source.campaignState !== 'certified') {
+    throw new Conflict(`The campaign is '${source.campaignState}'; a certificate can be reissued only for an accepted or certified campaign.`, { state: source.campaignState });
+  }
+  const [prevSnapshot] = await ctx.manager.query(`SELECT snapshot->'review' AS review FROM certificate WHERE id = $1`, [previous.id]) as { review: ReviewDecision | null }[];
+  await reviewDecision(ctx, previous.campaignId, source.body, { comment: reason, justification }, prevSnapshot?.review ?? undefined);
+  return { campaignId: previous.campaignId };
 }
 
 export async function revokeCertificate(ctx: Pick<IssueContext, 'manager' | 'config' | 'actor' | 'now'>, number: string, reason: string): Promise<CertificateRow> {

@@ -8,10 +8,13 @@ export type AdjustmentJob = { runId: string };
 /** Computes a campaign's comparison result (after an upload, an acceptance or a request to recompute). */
 export const RESULT_QUEUE = 'result-compute';
 export type ResultJob = { campaignId: string; requestedByUserId: string | null; force: boolean };
-
+/** Renders, time-stamps, signs and stores a certificate asked for over HTTP (table certificate_request). */
+export const CERTIFICATE_QUEUE = 'certificate-issue';
+export type CertificateJob = { requestId: string };
 /** Finds the loops of simultaneous campaigns and computes their ratio closures (after a result, on acceptance). */
 export const CLOSURE_QUEUE = 'closure-compute';
 export type ClosureJob = { reason: 'result' | 'accept' | 'recompute'; campaignId: string | null };
+export const JOB_QUEUES = [ADJUSTMENT_QUEUE, RESULT_QUEUE, CLOSURE_QUEUE, CERTIFICATE_QUEUE];
 
 export async function startBoss(databaseUrl: string, opts: { supervise?: boolean } = {}): Promise<PgBoss> {
   const boss = new PgBoss({ connectionString: databaseUrl, max: 4, supervise: opts.supervise ?? true, schedule: false, application_name: 'chronolevel-jobs' });
@@ -20,6 +23,7 @@ export async function startBoss(databaseUrl: string, opts: { supervise?: boolean
   await boss.createQueue(ADJUSTMENT_QUEUE, { name: ADJUSTMENT_QUEUE, retryLimit: 2, retryDelay: 5, expireInMinutes: 60 });
   await boss.createQueue(RESULT_QUEUE, { name: RESULT_QUEUE, retryLimit: 2, retryDelay: 5, expireInMinutes: 30 });
   await boss.createQueue(CLOSURE_QUEUE, { name: CLOSURE_QUEUE, retryLimit: 2, retryDelay: 5, expireInMinutes: 30 });
+  await boss.createQueue(CERTIFICATE_QUEUE, { name: CERTIFICATE_QUEUE, retryLimit: 2, retryDelay: 2, expireInMinutes: 15 });
   return boss;
 }
 

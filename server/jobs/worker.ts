@@ -2,13 +2,16 @@ import { pathToFileURL } from 'node:url';
 import type PgBoss from 'pg-boss';
 import type { Logger } from 'pino';
 import type { DataSource } from 'typeorm';
+import { runCertificateJob } from '../certificates/certificate-requests';
+import type { AppConfig } from '../config';
 import { executeRun } from '../network/adjustment.service';
 import { runResultJob } from '../results/result-worker';
 import { recomputeClosures } from '../closures/closures.service';
-import { ADJUSTMENT_QUEUE, CLOSURE_QUEUE, RESULT_QUEUE, startBoss, type AdjustmentJob, type ClosureJob, type ResultJob } from './queue';
+import { ADJUSTMENT_QUEUE, CERTIFICATE_QUEUE, CLOSURE_QUEUE, JOB_QUEUES, RESULT_QUEUE, startBoss, type AdjustmentJob, type CertificateJob, type ClosureJob, type ResultJob } from './queue';
 
-// The worker: takes 'adjustment-run' jobs (progress into the run row) and 'result-compute' jobs (progress into
-// result_request) from the queue and executes them.
+// The worker: takes 'adjustment-run' jobs (progress into the run row), 'result-compute' jobs (state in
+// result_request, stage and fraction in job_progress) and 'certificate-issue' jobs (certificate_request and
+// job_progress) from the queue and executes them.
 // `npm start` runs one as a process of its own beside the HTTP process (`npm run worker`); CHRONOLEVEL_INLINE_WORKER=1
 // runs one inside the HTTP process instead. More workers, on this or other machines, run
 //   DATABASE_URL=postgres://… npm run worker
@@ -18,7 +21,8 @@ export type Worker = { stop: () => Promise<void> };
 
 let outageGuard = false;
 
-export async function startWorker(opts: { dataSource: DataSource; databaseUrl: string; logger?: Logger; pollingIntervalSeconds?: number; reapIntervalMs?: number }): Promise<Worker> {
+/** `config` (signing key, time-stamp authority, review rules) is needed for certificate jobs; without it this worker leaves them to others. */
+export async function startWorker(opts: { dataSource: DataSource; databaseUrl: string; config?: AppConfig; logger?: Logger; pollingIntervalSeconds?: number; reapIntervalMs?: number }): Promise<Worker> {
   // While PostgreSQL is away, pg-boss's own bookkeeping (marking a failed job) rejects outside any handler of ours.
   // A database outage must not end the worker process: log it; pg-boss and the orphan reaper resume when it returns.
   if (!outageGuard) {
@@ -58,6 +62,18 @@ export async function startWorker(opts: { dataSource: DataSource; databaseUrl: s
       });
     }
   });
+  const config = opts.config;
+  if (config) {
+    await boss.work<CertificateJob>(CERTIFICATE_QUEUE, { pollingIntervalSeconds: opts.pollingIntervalSeconds ?? 0.5, batchSize: 1 }, async (jobs) => {
+      for (const job of jobs) {
+        await withJobLock(opts.dataSource, job.id, async () => {
+          opts.logger?.info({ requestId: job.data.requestId, jobId: job.id }, 'certificate issue started');
+          const outcome = await runCertificateJob(opts.dataSource, config, job.data);
+          opts.logger?.info({ requestId: job.data.requestId, jobId: job.id, outcome }, 'certificate issue finished');
+        });
+      }
+    });
+  }
   // Jobs of workers that are gone are handed back at start and then every few seconds (see reapOrphanedJobs).
   const reap = () => reapOrphanedJobs(boss, opts.dataSource, opts.logger).catch((e) => opts.logger?.error({ err: e }, 'looking for orphaned jobs failed'));
   await reap();
@@ -105,6 +121,8 @@ async function markGivenUp(dataSource: DataSource, queue: string, jobId: string,
     );
   } else if (queue === RESULT_QUEUE) {
     await dataSource.query(`UPDATE result_request SET state = 'failed', finished_at = now(), error = $2 WHERE job_id = $1 AND state IN ('queued', 'running')`, [jobId, message]);
+  } else if (queue === CERTIFICATE_QUEUE) {
+    await dataSource.query(`UPDATE certificate_request SET state = 'failed', finished_at = now(), error = $2 WHERE id = $1 AND state IN ('queued', 'running')`, [data.requestId, message]);
   }
 }
 
@@ -112,7 +130,7 @@ async function markGivenUp(dataSource: DataSource, queue: string, jobId: string,
 export async function reapOrphanedJobs(boss: PgBoss, dataSource: DataSource, logger?: Logger): Promise<number> {
   const active = (await dataSource.query(
     `SELECT id, name, data FROM pgboss.job WHERE name = ANY($1) AND state = 'active' AND started_on < now() - $2 * interval '1 second'`,
-    [[ADJUSTMENT_QUEUE, RESULT_QUEUE, CLOSURE_QUEUE], ORPHAN_GRACE_SECONDS],
+    [JOB_QUEUES, ORPHAN_GRACE_SECONDS],
   )) as { id: string; name: string; data: Record<string, unknown> }[];
   let reaped = 0;
   for (const job of active) {
@@ -126,7 +144,7 @@ export async function reapOrphanedJobs(boss: PgBoss, dataSource: DataSource, log
         reaped++;
         const after = await boss.getJobById(job.name, job.id);
         if (after?.state === 'failed') await markGivenUp(dataSource, job.name, job.id, job.data);
-        logger?.warn({ queue: job.name, jobId: job.id, runId: job.data.runId, campaignId: job.data.campaignId, retried: after?.state !== 'failed' }, 'job of a stopped worker handed back');
+        logger?.warn({ queue: job.name, jobId: job.id, runId: job.data.runId, campaignId: job.data.campaignId, requestId: job.data.requestId, retried: after?.state !== 'failed' }, 'job of a stopped worker handed back');
       } finally {
         await qr.query('SELECT pg_advisory_unlock($1, hashtext($2))', [JOB_LOCK_CLASS, job.id]);
       }
@@ -150,13 +168,13 @@ async function main() {
     migrate: false,
     pool: { max: config.db.poolMax, idleInTransactionTimeoutMs: config.db.idleInTransactionTimeoutMs },
   });
-  const worker = await startWorker({ dataSource, databaseUrl: config.databaseUrl, logger });
+  const worker = await startWorker({ dataSource, databaseUrl: config.databaseUrl, config, logger });
   // The periodic work of a deployment lives in the workers: the mail outbox sender (row locks let any number of
   // senders share it) and the 15-minute audit checkpoint (a no-op when nothing was added since the last one).
   const mail = createMailSender({ dataSource, smtpUrl: config.smtpUrl, from: config.mailFrom, logger, retry: config.mailRetry });
   mail.start();
   const checkpoints = setInterval(() => void writeAuditCheckpoint(dataSource, 'every 15 minutes').catch((e) => logger.error({ err: e }, 'audit checkpoint failed')), 15 * 60_000);
-  logger.info('worker waiting for jobs (adjustment runs, result computations), sending mail, writing audit checkpoints');
+  logger.info('worker waiting for jobs (adjustment runs, result computations, certificates), sending mail, writing audit checkpoints');
   process.send?.({ workerReady: true });
   let stopping = false;
   const stop = async () => {

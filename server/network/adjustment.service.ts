@@ -1,3 +1,4 @@
+import type { JobProgress } from '../../shared/jobs';
 import crypto from 'node:crypto';
 import type { DataSource, EntityManager } from 'typeorm';
 import type { PageQuery } from '../../shared/http';
@@ -468,6 +469,18 @@ export function createAdjustmentService(dataSource: DataSource) {
         order: { createdAt: 'DESC' }, skip: (q.page - 1) * q.pageSize, take: q.pageSize,
       });
       return { items: rows.map(toRunDto), total, page: q.page, pageSize: q.pageSize };
+    },
+    /** The run's durable progress (stage and fraction in its row, written by the worker as it goes). Reads only. */
+    async runProgress(actor: Actor, id: string): Promise<JobProgress> {
+      authorize(actor, 'network:read');
+      const r = await dataSource.getRepository(AdjustmentRunEntity).findOne({ where: { id }, select: { id: true, state: true, stage: true, progress: true, error: true, createdAt: true, startedAt: true, finishedAt: true } });
+      if (!r) throw new NotFound('Adjustment run');
+      const open = r.state === 'queued' || r.state === 'running';
+      const error = r.error ? String((r.error as { message?: unknown }).message ?? JSON.stringify(r.error)) : null;
+      return {
+        state: r.state as JobProgress['state'], stage: r.stage ?? r.state, fraction: Math.min(1, Math.max(0, Number(r.progress ?? 0))),
+        updatedAt: (r.finishedAt ?? r.startedAt ?? r.createdAt).toISOString(), error, retryAfterSeconds: open ? 1 : null,
+      };
     },
     async getRun(actor: Actor, id: string): Promise<AdjustmentRunDetail> {
       authorize(actor, 'network:read');

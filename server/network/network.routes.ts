@@ -1,3 +1,5 @@
+import { z } from 'zod';
+import { jobProgressSchema } from '../../shared/jobs';
 import { idParamsSchema, pageOf, pageQuerySchema, wholePage } from '../../shared/http';
 import {
   adjustmentOptionsSchema, adjustmentRunDetailSchema, adjustmentRunSchema, benchmarkInputSchema, benchmarkListQuerySchema, benchmarkSchema,
@@ -100,6 +102,11 @@ export const networkRoutes = [
     method: 'get', path: '/api/v1/network/runs/:id', summary: 'One adjustment run with its progress and results', tag: 'network', permission: 'network:read',
     params: idParamsSchema, response: adjustmentRunDetailSchema,
     handler: ({ actor, params, deps }) => createAdjustmentService(deps.dataSource).getRun(actor, params.id),
+  }),
+  route({
+    method: 'get', path: '/api/v1/network/runs/:id/progress', summary: 'How far an adjustment run got (stage, fraction)', tag: 'network', permission: 'network:read',
+    params: idParamsSchema, response: jobProgressSchema,
+    handler: ({ actor, params, deps }) => createAdjustmentService(deps.dataSource).runProgress(actor, params.id),
   }),
   route({
     method: 'get', path: '/api/v1/network/reconciliation', summary: 'Clock-derived against levelled potential differences (Eₙ)', tag: 'network', permission: 'network:read',

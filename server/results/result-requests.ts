@@ -1,5 +1,6 @@
 import type { EntityManager } from 'typeorm';
 import type { Actor } from '../auth/actor';
+import { writeProgress } from '../jobs/progress';
 import { queueFor, RESULT_QUEUE, type ResultJob } from '../jobs/queue';
 
 // Results are computed by a job, never by a read. An upload, an acceptance or a request to recompute (all POSTs)
@@ -25,6 +26,7 @@ export async function requestResultComputation(manager: EntityManager, databaseU
      RETURNING requested_at`,
     [campaignId, jobId, reason, actor?.userId ?? null],
   );
+  await writeProgress(manager, 'result-compute', campaignId, 'waiting for a worker', 0);
   return { campaignId, state: 'queued' as const, reason, requestedAt: row.requested_at.toISOString() };
 }
 

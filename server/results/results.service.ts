@@ -8,6 +8,8 @@ import { canSeeCampaign } from '../auth/campaign-scope';
 import { authorize } from '../auth/permissions';
 import { recordAudit } from '../audit/audit.service';
 import { getCampaignForResult, type CampaignForResult } from '../campaigns/campaigns.service';
+import type { JobProgress } from '../../shared/jobs';
+import { readProgress } from '../jobs/progress';
 import { ComparisonResultEntity, type ComparisonResultRow } from '../db/entities/results.entities';
 import { csvLine } from '../http/csv';
 import { AppError, Conflict, NotFound } from '../http/errors';
@@ -126,12 +128,22 @@ export async function latestResultForCampaign(manager: EntityManager, campaignId
   return row ? toDto(row, false) : null;
 }
 
+/** The stored result for the campaign's current inputs, or null; reads only, never computes. */
+export async function storedCurrentResult(manager: EntityManager, campaignId: string): Promise<ComparisonResultDto | null> {
+  const campaign = await getCampaignForResult(manager, campaignId);
+  const inputHash = inputHashOf(campaign, await loadFiles(manager, campaignId));
+  const latest = await latestResultForCampaign(manager, campaignId);
+  return latest && latest.inputHash === inputHash ? latest : null;
+}
+
 export interface ComputeOptions {
   actor: Actor | null;
   /** Time of computation (the caller's clock). */
   now: Date;
   /** Recompute even when the stored result's input hash still matches. */
   force?: boolean;
+  /** Told each stage as it starts (the worker records it as durable progress). */
+  onStage?: (stage: string, fraction: number) => Promise<void>;
 }
 
 /**
@@ -147,15 +159,18 @@ export async function computeCampaignResult(manager: EntityManager, campaignId: 
     if (latest && latest.inputHash === inputHash) return latest;
   }
   if (files.length === 0) throw new Conflict('This campaign has no uploaded ratio series yet: upload data before asking for a result.');
+  await opts.onStage?.('loading samples', 0.1);
   const samples = await loadCampaignSamples(manager, campaignId, files);
   let result: ResultBody;
   try {
+    await opts.onStage?.('computing stability, tides and budget', 0.4);
     result = computeResultBody({ campaign, files, samples });
   } catch (e) {
     if (e instanceof ScienceInputError) throw new Conflict(`No result can be computed from this campaign's data: ${e.message}`);
     throw e;
   }
   const computedBy = opts.actor ? opts.actor.displayName : 'system';
+  await opts.onStage?.('storing the result', 0.9);
   const inserted = await manager.getRepository(ComparisonResultEntity).save({
     campaignId, inputHash, constants: SOFTWARE_CONSTANTS as unknown as Record<string, unknown>, softwareVersion: SOFTWARE_VERSION,
     computedAt: opts.now, computedBy, result,
@@ -261,5 +276,23 @@ export function createResultsService(dataSource: DataSource, databaseUrl: string
       });
     },
     csv: async (actor: Actor, campaignId: string) => resultToCsv(await current(actor, campaignId)),
+    /** How far the campaign's last result request got (stage and fraction from job_progress). Reads only. */
+    progress: async (actor: Actor, campaignId: string): Promise<JobProgress> => {
+      authorize(actor, 'campaigns:read');
+      const m = dataSource.manager;
+      requireCampaignVisible(actor, await getCampaignForResult(m, campaignId));
+      const request = await readResultRequest(m, campaignId);
+      if (!request) return { state: 'not-requested', stage: 'not asked for', fraction: 0, updatedAt: null, error: null, retryAfterSeconds: null };
+      const p = await readProgress(m, 'result-compute', campaignId);
+      const open = request.state === 'queued' || request.state === 'running';
+      return {
+        state: request.state,
+        stage: request.state === 'done' ? 'finished' : request.state === 'failed' ? 'failed' : (p?.stage ?? (request.state === 'queued' ? 'waiting for a worker' : 'running')),
+        fraction: request.state === 'done' ? 1 : open ? (p?.fraction ?? 0) : 0,
+        updatedAt: (p?.updated_at ?? request.finished_at ?? request.started_at ?? request.requested_at).toISOString(),
+        error: request.error,
+        retryAfterSeconds: open ? RESULT_POLL_SECONDS : null,
+      };
+    },
   };
 }

@@ -3,6 +3,7 @@ import type { AuditEvent } from '../../shared/auth';
 import type { CampaignSummary } from '../../shared/campaigns';
 import type { CertificateDetail, CertificateListQuery, CertificateSummary, VerificationResult } from '../../shared/certificate-registry';
 import type { CertificateSnapshot } from '../../shared/certificates';
+import { JOB_POLL_SECONDS, type CertificateRequestAccepted, type CertificateRequestProgress } from '../../shared/jobs';
 import type { TrustAnchorInfo } from '../../shared/certificate-signature';
 import type { Page, Problem } from '../../shared/http';
 import { api, ApiError } from '../lib/api-client';
@@ -73,14 +74,28 @@ function useCertificateMutation<V, R>(fn: (v: V) => Promise<R>) {
   return useMutation({ mutationFn: fn, onSuccess: () => qc.invalidateQueries({ queryKey: certificateKeys.all }) });
 }
 
+/** Issue and reissue answer 202 with the request; a worker renders, time-stamps and signs (useCertificateRequestProgress). */
 export const useIssueCertificate = () =>
   useCertificateMutation((v: { campaignId: string; comment: string; justification?: string }) =>
-    api<{ created: boolean; certificate: CertificateSummary }>(`/api/v1/campaigns/${v.campaignId}/certificates`, { method: 'POST', body: { comment: v.comment, justification: v.justification } }),
+    api<CertificateRequestAccepted>(`/api/v1/campaigns/${v.campaignId}/certificates`, { method: 'POST', body: { comment: v.comment, justification: v.justification } }),
   );
 export const useReissueCertificate = () =>
   useCertificateMutation((v: { number: string; reason: string }) =>
-    api<CertificateSummary>(`/api/v1/certificates/${encodeURIComponent(v.number)}/reissue`, { body: { reason: v.reason } }),
+    api<CertificateRequestAccepted>(`/api/v1/certificates/${encodeURIComponent(v.number)}/reissue`, { body: { reason: v.reason } }),
   );
+
+/**
+ * Polls a certificate request's progress every second until it is done or failed. The caller refreshes the
+ * certificate lists when its dialog closes (refreshing earlier would unmount the dialog that shows the link).
+ */
+export function useCertificateRequestProgress(progressUrl: string | null) {
+  return useQuery({
+    queryKey: ['certificate-request', progressUrl],
+    enabled: progressUrl !== null,
+    queryFn: () => api<CertificateRequestProgress>(progressUrl!),
+    refetchInterval: (q) => (q.state.data && (q.state.data.state === 'done' || q.state.data.state === 'failed') ? false : JOB_POLL_SECONDS * 1000),
+  });
+}
 export const useRevokeCertificate = () =>
   useCertificateMutation((v: { number: string; reason: string }) =>
     api<CertificateSummary>(`/api/v1/certificates/${encodeURIComponent(v.number)}/revoke`, { body: { reason: v.reason } }),

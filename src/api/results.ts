@@ -1,5 +1,6 @@
 import { useMutation, useQuery, useQueryClient } from '@tanstack/react-query';
 import type { Problem } from '../../shared/http';
+import { JOB_POLL_SECONDS, type JobProgress } from '../../shared/jobs';
 import { resultNotReadyCodes, type ComparisonResultDto, type ResultRequest } from '../../shared/results';
 import { ApiError, api } from '../lib/api-client';
 
@@ -34,6 +35,15 @@ export const useCampaignResult = (campaignId: string) =>
       const seconds = Number((data.problem as { retryAfterSeconds?: number }).retryAfterSeconds ?? 2);
       return Math.max(1, seconds) * 1000;
     },
+  });
+
+/** The worker's stage and fraction for the campaign's result, polled every second while `enabled` (a computation is pending). */
+export const useResultProgress = (campaignId: string, enabled: boolean) =>
+  useQuery({
+    queryKey: [...resultKeys.campaign(campaignId), 'progress'],
+    queryFn: () => api<JobProgress>(`/api/v1/campaigns/${campaignId}/result/progress`),
+    enabled,
+    refetchInterval: enabled ? JOB_POLL_SECONDS * 1000 : false,
   });
 
 export function useRecomputeResult(campaignId: string) {

@@ -7,6 +7,7 @@ import { computeCampaignResult } from '../../server/results/results.service';
 import { apiRoutes } from '../../server/routes';
 import { createTestApp, tokenFor, type TestApp } from '../helpers/test-app';
 import { acceptAsReviewer } from '../helpers/accepted-campaign';
+import { issuedCertificate } from '../helpers/certificates';
 
 // Table-driven: every route that exists, for every role that must be refused.
 let t: TestApp;
@@ -61,7 +62,7 @@ const principals: Principal[] = ['anonymous', 'operator-own', 'operator-other', 
 const roleOf: Record<Exclude<Principal, 'anonymous'>, Role> = { 'operator-own': 'operator', 'operator-other': 'operator', coordinator: 'coordinator', auditor: 'auditor', admin: 'admin' };
 const matrixTokens = new Map<Principal, string>();
 const GUESSED = '00000000-0000-4000-8000-00000000beef';
-const obj = { draft: '', accepted: '', acceptedName: '', draftName: '', series: '', site: '', clock: '', link: '', benchmark: '', section: '', datum: '', run: '', refFreq: '', user: '', certificate: '', chain: '', closure: '' };
+const obj = { draft: '', accepted: '', acceptedName: '', draftName: '', series: '', site: '', clock: '', link: '', benchmark: '', section: '', datum: '', run: '', refFreq: '', user: '', certificate: '', chain: '', closure: '', certificateRequest: '' };
 /** Who may see the demo calibration chain (every campaign of it visible: server/auth/campaign-scope.ts). */
 const chainVisible = new Map<Principal, boolean>();
 let cells = 0;
@@ -83,10 +84,10 @@ describe('access matrix (every route × six callers)', () => {
     const accepted = await acceptAsReviewer(t, obj.accepted, tokens.coordinator);
     expect(accepted.status, accepted.text).toBe(200);
     await t.ds.transaction((m) => computeCampaignResult(m, obj.accepted, { actor: null, now: new Date() }));
-    const issued = await request(t.app).post(`/api/v1/campaigns/${obj.accepted}/certificates`).set('authorization', `Bearer ${tokens.coordinator}`)
-      .send({ comment: 'Certified after review.', justification: 'Test campaign: its exceptions are accepted for the test.' });
-    expect(issued.status, issued.text).toBe(201);
-    obj.certificate = issued.body.certificate.number;
+    const issued = await issuedCertificate(t, tokens.coordinator, `/api/v1/campaigns/${obj.accepted}/certificates`,
+      { comment: 'Certified after review.', justification: 'Test campaign: its exceptions are accepted for the test.' });
+    obj.certificate = issued.certificate.number;
+    obj.certificateRequest = issued.res.body.request.id;
     obj.series = await one('SELECT id FROM ratio_series WHERE campaign_id = $1', obj.accepted);
     obj.site = await one("SELECT id FROM site WHERE name = 'HMO ion lab'");
     obj.clock = await one("SELECT id FROM clock WHERE name = 'HMO-YbIon'");
@@ -152,6 +153,7 @@ describe('access matrix (every route × six callers)', () => {
       if (path.startsWith('/api/v1/network/datums/')) return obj.datum;
       if (path.startsWith('/api/v1/network/runs/')) return obj.run;
       if (path.startsWith('/api/v1/reference-frequencies/')) return obj.refFreq;
+      if (path.startsWith('/api/v1/certificate-requests/')) return obj.certificateRequest;
       if (path.startsWith('/api/v1/users/')) return obj.user;
       if (path.startsWith('/api/v1/chains/')) return obj.chain || GUESSED;
       if (path.startsWith('/api/v1/network/closures/')) return obj.closure;
@@ -181,7 +183,7 @@ describe('access matrix (every route × six callers)', () => {
       const bodyOk = !r.body || r.body.safeParse({}).success;
       return bodyOk ? [403, 404] : [400];
     }
-    if (r.path.endsWith('/progress')) return [404];
+    if (r.path === '/api/v1/uploads/:id/progress') return [404];
     // A chain is visible to whoever may see every one of its campaigns; its result is computed from theirs.
     if (r.path.startsWith('/api/v1/chains/:id')) return chainVisible.get(p) ? [200] : [404];
     if (r.query && !r.query.safeParse({}).success) return [400];

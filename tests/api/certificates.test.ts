@@ -16,6 +16,7 @@ import { fingerprintSha256, pemToDer } from '../../server/certificates/pki/der';
 import { createCertificate } from '../../server/certificates/pki/x509';
 import { latestResultForCampaign } from '../../server/results/results.service';
 import { acceptedCampaign } from '../helpers/accepted-campaign';
+import { issuedCertificate, requestCertificate } from '../helpers/certificates';
 import { caughtMail, createTestApp, tokenFor, type TestApp } from '../helpers/test-app';
 
 // The certificate registry end to end: issue, idempotence, reissue, withdrawal, public verification of files and of
@@ -92,13 +93,16 @@ describe('issuing', () => {
   let pdf: Buffer;
 
   it('issues a signed certificate for an accepted campaign and certifies the campaign in the same transaction', async () => {
-    const res = await request(t.app).post(`/api/v1/campaigns/${campaignId}/certificates`).set('authorization', `Bearer ${coordinator}`).send({ comment: 'Certified after review.', justification: 'Test campaign: its exceptions are accepted for the test.' });
-    expect(res.status).toBe(201);
-    expect(res.body.created).toBe(true);
-    number = res.body.certificate.number;
+    // The request answers 202 with the progress resource; the worker renders, time-stamps, signs and stores.
+    const out = await issuedCertificate(t, coordinator, `/api/v1/campaigns/${campaignId}/certificates`, { comment: 'Certified after review.', justification: 'Test campaign: its exceptions are accepted for the test.' });
+    expect(out.res.body.request).toMatchObject({ kind: 'issue', campaignId });
+    expect(out.progress).toMatchObject({ state: 'done', stage: 'finished', fraction: 1, created: true });
+    number = out.certificate.number;
     const year = new Date().getUTCFullYear();
     expect(number).toMatch(new RegExp(`^CL-${year}-\\d{5}-r1$`));
-    expect(res.body.certificate.state).toBe('valid');
+    expect(out.certificate.state).toBe('valid');
+    const requested = await t.ds.query(`SELECT details FROM audit_event WHERE action = 'certificate.requested' AND entity_id = $1`, [campaignId]);
+    expect(requested).toHaveLength(1);
 
     const [row] = await t.ds.query(`SELECT state, revision, pdf_sha256, pdf, snapshot, campaign_id FROM certificate WHERE number = $1`, [number]);
     expect(row.state).toBe('valid');
@@ -128,11 +132,10 @@ describe('issuing', () => {
     expect(sha256(pdf)).toBe(row.pdf_sha256);
   });
 
-  it('answers 200 with the same certificate when the certified campaign has not changed', async () => {
-    const res = await request(t.app).post(`/api/v1/campaigns/${campaignId}/certificates`).set('authorization', `Bearer ${coordinator}`).send({ comment: 'Certified after review.', justification: 'Test campaign: its exceptions are accepted for the test.' });
-    expect(res.status).toBe(200);
-    expect(res.body.created).toBe(false);
-    expect(res.body.certificate.number).toBe(number);
+  it('finishes with the same certificate (created false) when the certified campaign has not changed', async () => {
+    const out = await requestCertificate(t, coordinator, `/api/v1/campaigns/${campaignId}/certificates`, { comment: 'Certified after review.', justification: 'Test campaign: its exceptions are accepted for the test.' });
+    expect(out.res.status).toBe(202);
+    expect(out.progress).toMatchObject({ state: 'done', created: false, certificateNumber: number });
     const [{ count }] = await t.ds.query(`SELECT count(*)::int AS count FROM certificate WHERE campaign_id = $1`, [campaignId]);
     expect(count).toBe(1);
   });
@@ -299,10 +302,9 @@ describe('issuing', () => {
     it('reissues as revision 2 and marks revision 1 superseded with a pointer', async () => {
       const noReason = await request(t.app).post(`/api/v1/certificates/${number}/reissue`).set('authorization', `Bearer ${coordinator}`).send({});
       expect(noReason.status).toBe(400);
-      const res = await request(t.app).post(`/api/v1/certificates/${number}/reissue`).set('authorization', `Bearer ${coordinator}`)
-        .send({ reason: 'Corrected the link name in the clock record' });
-      expect(res.status).toBe(201);
-      r2 = res.body.number;
+      const out = await issuedCertificate(t, coordinator, `/api/v1/certificates/${number}/reissue`, { reason: 'Corrected the link name in the clock record' });
+      expect(out.res.body.request).toMatchObject({ kind: 'reissue', previousNumber: number });
+      r2 = out.certificate.number;
       expect(r2).toBe(number.replace(/-r1$/, '-r2'));
       const rows = await t.ds.query(`SELECT number, state, superseded_by, (SELECT number FROM certificate n WHERE n.id = c.superseded_by) AS by FROM certificate c WHERE campaign_id = $1 ORDER BY revision`, [campaignId]);
       expect(rows.map((r: { state: string }) => r.state)).toEqual(['superseded', 'valid']);
@@ -368,10 +370,9 @@ describe('issuing', () => {
     });
 
     it('issues a fresh certificate (new serial) for the campaign after the withdrawal', async () => {
-      const res = await request(t.app).post(`/api/v1/campaigns/${campaignId}/certificates`).set('authorization', `Bearer ${coordinator}`).send({ comment: 'Certified after review.', justification: 'Test campaign: its exceptions are accepted for the test.' });
-      expect(res.status).toBe(201);
-      expect(res.body.certificate.number).not.toBe(number);
-      expect(res.body.certificate.serial).toBe(Number(/-(\d{5})-/.exec(number)![1]) + 1);
+      const { certificate } = await issuedCertificate(t, coordinator, `/api/v1/campaigns/${campaignId}/certificates`, { comment: 'Certified after review.', justification: 'Test campaign: its exceptions are accepted for the test.' });
+      expect(certificate.number).not.toBe(number);
+      expect((certificate as unknown as { serial: number }).serial).toBe(Number(/-(\d{5})-/.exec(number)![1]) + 1);
     });
   });
 
@@ -406,9 +407,8 @@ describe('issuing', () => {
       expect(audit).toHaveLength(1);
       // The next certificate is signed with a new key under the same root and verifies.
       const fresh = await acceptedCampaign(t, 'After the key withdrawal', '2026-09-01T00:00:00Z');
-      const issued = await request(t.app).post(`/api/v1/campaigns/${fresh}/certificates`).set('authorization', `Bearer ${coordinator}`).send({ comment: 'Certified after review.', justification: 'Test campaign: its exceptions are accepted for the test.' });
-      expect(issued.status).toBe(201);
-      const newPdf = await download(issued.body.certificate.number);
+      const issued = await issuedCertificate(t, coordinator, `/api/v1/campaigns/${fresh}/certificates`, { comment: 'Certified after review.', justification: 'Test campaign: its exceptions are accepted for the test.' });
+      const newPdf = await download(issued.certificate.number);
       const ok = await verifyFile(newPdf);
       expect(ok.body.verdict).toBe('valid');
       expect(ok.body.signature.signer.serial).not.toBe(res.body.serial);

@@ -10,6 +10,7 @@ import { certificateSnapshotSchema } from '../../shared/certificates';
 import { adjustmentOptionsSchema } from '../../shared/network';
 import { gatherInputs } from '../../server/network/adjustment.service';
 import { acceptAsReviewer, campaignInReview } from '../helpers/accepted-campaign';
+import { issuedCertificate } from '../helpers/certificates';
 import { caughtMail, createTestApp, tokenFor, type TestApp } from '../helpers/test-app';
 
 // The review desk: the reviewer's checklist, comments and justifications before accept and issue, the four-eyes
@@ -96,10 +97,13 @@ describe('accepting', () => {
     expect(same.status).toBe(403);
     expect(same.body.detail).toMatch(/four-eyes/i);
     expect(await stateOf(id)).toBe('accepted');
-    const other = await post('coord2', `/api/v1/campaigns/${id}/certificates`, { comment: 'Second reviewer agrees.', justification: 'Exceptions reviewed in the meeting.' });
-    expect(other.status).toBe(201);
+    // the rules are checked when the certificate is asked for: the refused request left no request and no job behind
+    expect(await t.ds.query('SELECT id FROM certificate_request WHERE campaign_id = $1', [id])).toEqual([]);
+    const other = await issuedCertificate(t, tok.coord2, `/api/v1/campaigns/${id}/certificates`, { comment: 'Second reviewer agrees.', justification: 'Exceptions reviewed in the meeting.' });
     expect(await stateOf(id)).toBe('certified');
-    const [cert] = await t.ds.query('SELECT snapshot, pdf FROM certificate WHERE number = $1', [other.body.certificate.number]);
+    const [requested] = await t.ds.query(`SELECT details FROM audit_event WHERE action = 'certificate.requested' AND entity_id = $1`, [id]);
+    expect(requested.details).toMatchObject({ comment: 'Second reviewer agrees.', justification: 'Exceptions reviewed in the meeting.' });
+    const [cert] = await t.ds.query('SELECT snapshot, pdf FROM certificate WHERE number = $1', [other.certificate.number]);
     const snap = certificateSnapshotSchema.parse(cert.snapshot);
     expect(snap.review).toMatchObject({ acceptedBy: 'Ansel Brandt', acceptanceComment: 'Budgets and series checked against the log.', certifiedBy: 'Lea Moreau', certificationComment: 'Second reviewer agrees.' });
     // Exceptions and justifications go together: none without the other.

@@ -3,6 +3,8 @@ import request from 'supertest';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { stopQueues } from '../../server/jobs/queue';
 import { computeRunResult, type StoredInputs } from '../../server/network/adjustment.service';
+import { acceptedCampaign } from '../helpers/accepted-campaign';
+import { waitForCertificateRequest, waitForResult } from '../helpers/certificates';
 import { createTestApp, tokenFor, type TestApp } from '../helpers/test-app';
 
 // A worker process is killed (SIGKILL) while it executes an adjustment run: a second worker takes the job over
@@ -17,7 +19,8 @@ function startWorkerProcess(extraEnv: Record<string, string> = {}): Promise<Work
   const env = {
     ...process.env,
     DATABASE_URL: t.databaseUrl, SESSION_SECRET: 'worker-kill-session-secret-0123456789', IDP_CERT_FILE: t.config.idpCertFile,
-    SECRETS_DIR: t.config.secretsDir, SMTP_URL: t.config.smtpUrl, LOG_LEVEL: 'info', NODE_ENV: 'test', ...extraEnv,
+    SECRETS_DIR: t.config.secretsDir, SMTP_URL: t.config.smtpUrl, TSA_URL: t.config.tsaUrl, TSA_ROOT_CERT_FILE: t.config.tsaRootCertFile,
+    LOG_LEVEL: 'info', NODE_ENV: 'test', ...extraEnv,
   };
   const child = spawn(process.execPath, ['--import', 'tsx', 'server/jobs/worker.ts'], { env, stdio: ['ignore', 'pipe', 'inherit'] });
   children.push(child);
@@ -110,6 +113,69 @@ describe('worker killed during an adjustment run', () => {
     expect(direct.sigma0).not.toBeNull();
     expect(stored.sigma0).toBeCloseTo(direct.sigma0!, 12);
     expect(stored.result.points.map((p: { code: string; c_m2s2: number }) => [p.code, p.c_m2s2])).toEqual(direct.points.map((p) => [p.code, p.c_m2s2]));
+
+    second.child.kill('SIGTERM');
+    await second.exited;
+  });
+});
+
+// The same for a certificate: the worker is killed after it took a serial number, rendered, time-stamped and signed
+// the PDF, inside the transaction that would store it. Another worker takes the job over; the request ends done
+// with exactly one certificate (its serial the next one: the killed attempt's serial was rolled back with it), one
+// 'certificate.issued' audit event and one set of participant mails.
+describe('worker killed while it issues a certificate', () => {
+  it('is retried by another worker and issues exactly one certificate', { timeout: 180_000 }, async () => {
+    const coordinator = await tokenFor(t, 'ansel.brandt@geopotential-office.invalid');
+    const campaignId = await acceptedCampaign(t, 'Worker kill certificate campaign', '2026-10-12T00:00:00Z');
+    const first = await startWorkerProcess({ CHRONOLEVEL_FAULT_POINT: 'certificate-issue' });
+    expect((await waitForResult(t, coordinator, campaignId)).state).toBe('done'); // the first worker computed it
+    const [{ last: serialBefore }] = await t.ds.query('SELECT coalesce(max(last_serial), 0)::int AS last FROM certificate_serial WHERE year = $1', [new Date().getUTCFullYear()]);
+    const post = await request(t.app).post(`/api/v1/campaigns/${campaignId}/certificates`).set({ authorization: `Bearer ${coordinator}` })
+      .send({ comment: 'Certified after review.', justification: 'Test campaign: its exceptions are accepted for the test.' });
+    expect(post.status, post.text).toBe(202);
+    const requestId = post.body.request.id as string;
+    expect(post.headers.location).toBe(`/api/v1/certificate-requests/${requestId}/progress`);
+    for (let i = 0; i < 600 && !first.faults.includes('certificate-issue'); i++) await sleep(100);
+    expect(first.faults).toEqual(['certificate-issue']);
+    // durable progress while the worker sits inside its transaction: signed, not yet stored
+    const during = await request(t.app).get(post.headers.location as string).set({ authorization: `Bearer ${coordinator}` });
+    expect(during.body).toMatchObject({ state: 'running', stage: 'time-stamping and signing', certificateNumber: null });
+    expect(during.body.fraction).toBeGreaterThan(0);
+    expect(during.body.fraction).toBeLessThan(1);
+
+    first.child.kill('SIGKILL');
+    await first.exited;
+    const jobsSql = `SELECT id, state, retry_count FROM pgboss.job WHERE name = 'certificate-issue' AND data->>'requestId' = $1
+      UNION ALL SELECT id, state, retry_count FROM pgboss.archive WHERE name = 'certificate-issue' AND data->>'requestId' = $1`;
+    expect((await t.ds.query(jobsSql, [requestId]))[0].state).toBe('active');
+    expect(await t.ds.query('SELECT id FROM certificate WHERE campaign_id = $1', [campaignId])).toEqual([]);
+
+    const second = await startWorkerProcess();
+    const done = await waitForCertificateRequest(t, coordinator, post.headers.location as string, 120_000);
+    expect(done).toMatchObject({ state: 'done', stage: 'finished', fraction: 1, created: true });
+
+    const certs = await t.ds.query('SELECT number, serial FROM certificate WHERE campaign_id = $1', [campaignId]);
+    expect(certs).toHaveLength(1);
+    expect(certs[0].number).toBe(done.certificateNumber);
+    expect(certs[0].serial).toBe(serialBefore + 1);
+    const jobs = await t.ds.query(jobsSql, [requestId]);
+    expect(jobs).toHaveLength(1);
+    expect(jobs[0]).toMatchObject({ state: 'completed', retry_count: 1 });
+    expect(first.lines.filter((l) => l.msg === 'certificate issue finished')).toEqual([]);
+    expect(second.lines.filter((l) => l.msg === 'certificate issue finished' && l.requestId === requestId)).toHaveLength(1);
+    const [{ n: issuedEvents }] = await t.ds.query(`SELECT count(*)::int AS n FROM audit_event WHERE action = 'certificate.issued' AND details->>'campaignId' = $1`, [campaignId]);
+    expect(issuedEvents).toBe(1);
+    const [{ n: mails }] = await t.ds.query('SELECT count(*)::int AS n FROM mail_outbox WHERE subject LIKE $1', [`%(certificate ${done.certificateNumber})`]);
+    const [{ n: distinct }] = await t.ds.query('SELECT count(DISTINCT to_address)::int AS n FROM mail_outbox WHERE subject LIKE $1', [`%(certificate ${done.certificateNumber})`]);
+    expect(mails).toBeGreaterThan(0);
+    expect(mails).toBe(distinct); // one mail per participant, not one per attempt
+    const [{ state }] = await t.ds.query('SELECT state FROM campaign WHERE id = $1', [campaignId]);
+    expect(state).toBe('certified');
+
+    // a duplicate delivery of the finished job changes nothing
+    const { runCertificateJob } = await import('../../server/certificates/certificate-requests');
+    expect(await runCertificateJob(t.ds, t.config, { requestId })).toBe('already-done');
+    expect(await t.ds.query('SELECT id FROM certificate WHERE campaign_id = $1', [campaignId])).toHaveLength(1);
 
     second.child.kill('SIGTERM');
     await second.exited;

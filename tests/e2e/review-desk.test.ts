@@ -104,7 +104,7 @@ describe('review safeguards', () => {
     await page.context().close();
   });
 
-  it('issuing a certificate asks for a comment in a dialog that says what will happen', async () => {
+  it('issuing a certificate asks for a comment in a dialog that says what will happen, shows the worker’s progress, then the certificate', async () => {
     const id = await idOf('SCL–HMO Sr summer run 2026');
     const page = await signedIn(COORDINATOR, `/campaigns/${id}`);
     await page.getByRole('button', { name: 'Issue certificate…' }).click();
@@ -115,8 +115,21 @@ describe('review safeguards', () => {
     if ((await why.count()) > 0) await why.fill('Demo campaign: the exception was discussed with both labs.');
     await screenshot(page, 'review-issue-dialog');
     await dialog.getByRole('button', { name: 'Issue and sign' }).click();
-    await page.waitForURL(/\/certificates\/CL-/, { timeout: 240_000 });
+    // A worker renders, time-stamps and signs; the dialog shows its progress, then links to the certificate.
+    const bar = dialog.getByRole('progressbar', { name: 'Issuing the certificate' });
+    await bar.waitFor({ timeout: 30_000 });
+    expect(Number(await bar.getAttribute('aria-valuenow'))).toBeGreaterThanOrEqual(0);
+    expect(await bar.getAttribute('aria-valuetext')).toMatch(/ %$/);
+    await screenshot(page, 'review-issue-progress');
+    const link = dialog.getByRole('link', { name: /^certificate CL-/ });
+    await link.waitFor({ timeout: 240_000 });
+    expect(await bar.getAttribute('aria-valuenow')).toBe('100');
+    await screenshot(page, 'review-issue-done');
+    await link.click();
+    await page.waitForURL(/\/certificates\/CL-/, { timeout: 30_000 });
     const number = decodeURIComponent(new URL(page.url()).pathname.split('/').pop()!);
+    await page.getByTestId('certificate-number').filter({ hasText: number }).waitFor({ timeout: 30_000 });
+    await screenshot(page, 'review-issue-certificate');
     const [row] = await srv.ds.query('SELECT snapshot FROM certificate WHERE number = $1', [number]);
     expect(row.snapshot.review.certificationComment).toBe('Certified after the review of 2026-07-09.');
     const mails = await mailAbout(`certificate ${number}`);

@@ -24,7 +24,7 @@ export async function startE2eServer(): Promise<E2eServer> {
   const t = await createTestApp({ env: { PUBLIC_URL: baseUrl, PORT: String(port) }, logger });
   t.deps.mail.start(500);
   // as `npm start` does: one job worker in the process (result computations, adjustment runs)
-  const worker = await startWorker({ dataSource: t.ds, databaseUrl: t.databaseUrl, pollingIntervalSeconds: 0.5 });
+  const worker = await startWorker({ dataSource: t.ds, databaseUrl: t.databaseUrl, config: t.config, pollingIntervalSeconds: 0.5 });
   const server: Server = await new Promise((resolve) => {
     const s = t.app.listen(port, '127.0.0.1', () => resolve(s));
   });

@@ -8,6 +8,7 @@ import { loadConfig, type AppConfig } from '../../server/config';
 import { openDatabase } from '../../server/db/data-source';
 import type { AppDeps } from '../../server/deps';
 import { stopQueues } from '../../server/jobs/queue';
+import { startWorker, type Worker } from '../../server/jobs/worker';
 import { createMailSender } from '../../server/mail/outbox';
 import { issueToken } from '../../server/tokens/tokens.service';
 import { UserEntity } from '../../server/db/entities/core.entities';
@@ -24,6 +25,8 @@ export type TestApp = {
   databaseUrl: string;
   /** the owner role's URL for this database (migrations; tests that tamper with the audit trail) */
   ownerUrl: string;
+  /** Starts one in-process job worker for this app (once; stopped by close), as `npm start` runs one beside the HTTP process. */
+  startJobs: () => Promise<void>;
   close: () => Promise<void>;
 };
 
@@ -66,9 +69,15 @@ export async function createTestApp(
   const mail = createMailSender({ dataSource: ds, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
   const deps: AppDeps = { config, dataSource: ds, logger, mail };
   const app = createApp(deps);
+  let worker: Promise<Worker> | null = null;
   return {
     app, ds, deps, config, databaseUrl, ownerUrl,
+    startJobs: async () => {
+      worker ??= startWorker({ dataSource: ds, databaseUrl, config, logger, pollingIntervalSeconds: 0.5 });
+      await worker;
+    },
     close: async () => {
+      if (worker) await (await worker).stop();
       mail.stop();
       await stopQueues(); // uploads and acceptances put result jobs on the queue through a sending connection
       await app.locals.closeSessionPool?.();

@@ -15,7 +15,7 @@ const logger = pino({ level: 'silent' });
 const mail = createMailSender({ dataSource: ds, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
 const app = createApp({ config, dataSource: ds, logger, mail });
 // A job worker in the same process when asked (CHRONOLEVEL_CHILD_WORKER=1): a kill then takes both down together.
-if (process.env.CHRONOLEVEL_CHILD_WORKER === '1') await startWorker({ dataSource: ds, databaseUrl: config.databaseUrl, logger, pollingIntervalSeconds: 0.5 });
+if (process.env.CHRONOLEVEL_CHILD_WORKER === '1') await startWorker({ dataSource: ds, databaseUrl: config.databaseUrl, config, logger, pollingIntervalSeconds: 0.5 });
 // Which process answered, for tests that run several behind a load balancer.
 const instance = process.env.CHRONOLEVEL_INSTANCE ?? '';
 const server = http.createServer((req, res) => {

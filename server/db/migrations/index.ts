@@ -21,6 +21,7 @@ import { TransportableClocks1766000000000 } from './1766000000000-transportable-
 import { ReadAfterWrite1766000900000 } from './1766000900000-read-after-write';
 import { RatioClosures1766030000000 } from './1766030000000-ratio-closures';
 import { SiteTiePotential1766050000000 } from './1766050000000-site-tie-potential';
+import { JobsProgress1766080000000 } from './1766080000000-jobs-progress';
 
 // Every migration, in order. Add new ones at the end (file name: <timestamp>-<what>.ts).
 export const migrations = [
@@ -47,4 +48,5 @@ export const migrations = [
   ReadAfterWrite1766000900000,
   RatioClosures1766030000000,
   SiteTiePotential1766050000000,
+  JobsProgress1766080000000,
 ];

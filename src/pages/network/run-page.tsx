@@ -1,6 +1,7 @@
 import { useState } from 'react';
 import { Link, useNavigate, useParams } from 'react-router';
 import { useRun } from '../../api/network';
+import { ProgressBar } from '../../components/progress-bar';
 import { ResidualPlot } from '../../components/plots/residual-plot';
 import { Caution, Panel } from '../../components/ui';
 import { fmt, when } from './format';
@@ -21,12 +22,10 @@ export function RunPage() {
       <h1>Adjustment run of {when(r.createdAt)}</h1>
       <NetworkNav />
       <Panel title="Progress">
-        <div className="flex items-center gap-3 text-sm">
-          <div className="h-3 w-72 overflow-hidden rounded bg-paper-200" role="progressbar" aria-valuenow={Math.round(r.progress * 100)} aria-valuemin={0} aria-valuemax={100}>
-            <div className={`h-3 ${r.state === 'failed' ? 'bg-disagree-600' : 'bg-ink-600'}`} style={{ width: `${Math.round(r.progress * 100)}%` }} />
-          </div>
-          <span data-testid="run-state">{r.state === 'done' ? '✓ finished' : r.state === 'failed' ? '✕ failed' : `${r.state}: ${r.stage ?? ''} (${Math.round(r.progress * 100)} %)`}</span>
+        <div className="max-w-md">
+          <ProgressBar label="Adjustment run" progress={{ state: r.state, stage: r.state === 'done' ? 'finished' : (r.stage ?? r.state), fraction: r.progress, error: null }} />
         </div>
+        <p className="mt-1 text-sm" data-testid="run-state">{r.state === 'done' ? '✓ finished' : r.state === 'failed' ? '✕ failed' : `${r.state}: ${r.stage ?? ''} (${Math.round(r.progress * 100)} %)`}</p>
         {r.error && <p role="alert" className="mt-2 text-sm text-disagree-800">{r.error.message}</p>}
         <p className="mt-2 text-xs text-ink-500">
           Inputs: {plural(r.inputSummary.benchmarks, 'benchmark')}, {plural(r.inputSummary.sections, 'section')}, {plural(r.inputSummary.ties, 'local tie')}, {plural(r.inputSummary.clocks, 'clock comparison')} ·

@@ -2,7 +2,8 @@ import { Link, useParams } from 'react-router';
 import { coverageText } from '../../../shared/number-text';
 import type { ComparisonResultDto, ResultBody } from '../../../shared/results';
 import { useMe } from '../../api/account';
-import { resultCsvUrl, useCampaignResult, useRecomputeResult, type CampaignResultState } from '../../api/results';
+import { resultCsvUrl, useCampaignResult, useRecomputeResult, useResultProgress, type CampaignResultState } from '../../api/results';
+import { ProgressBar } from '../../components/progress-bar';
 import { AllanPlot } from '../../components/plots/allan-plot';
 import { typeset } from '../../components/typeset';
 import { Button, Caution, EmptyState, Panel } from '../../components/ui';
@@ -148,6 +149,13 @@ function download(name: string, data: ComparisonResultDto) {
   URL.revokeObjectURL(url);
 }
 
+/** The worker's progress on the result while it is computed. */
+function PendingProgress({ campaignId }: { campaignId: string }) {
+  const progress = useResultProgress(campaignId, true);
+  const p = progress.data ?? { state: 'queued' as const, stage: 'waiting for a worker', fraction: 0, error: null };
+  return <div className="mt-3 max-w-md"><ProgressBar label="Computing the result" progress={p} /></div>;
+}
+
 /** No current result: being computed (a job; the page asks again every few seconds), failed, or not asked for yet. */
 function ResultNotReady(props: { campaignId: string; state: Extract<CampaignResultState, { kind: 'not-ready' }>; canRecompute: boolean; recompute: () => void; recomputing: boolean; error: Error | null }) {
   const { state } = props;
@@ -162,6 +170,7 @@ function ResultNotReady(props: { campaignId: string; state: Extract<CampaignResu
           {title}
         </h1>
         <p className="mt-2 text-sm text-ink-700">{state.problem.detail}</p>
+        {pending && <PendingProgress campaignId={props.campaignId} />}
         {pending && <p className="mt-1 text-xs text-ink-500">This page looks again every few seconds; a campaign with millions of samples takes a little while.</p>}
         {!pending && props.canRecompute && (
           <Button className="mt-3" variant="quiet" onClick={props.recompute} disabled={props.recomputing}>{props.recomputing ? 'Asking…' : 'Compute the result'}</Button>
