@@ -1,4 +1,3 @@
-import { z } from 'zod';
 import { jobProgressSchema } from '../../shared/jobs';
 import { idParamsSchema, pageOf, pageQuerySchema, wholePage } from '../../shared/http';
 import {
