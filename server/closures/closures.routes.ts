@@ -1,6 +1,5 @@
-import { z } from 'zod';
 import { closureDetailSchema, closureListQuerySchema, closureSummarySchema } from '../../shared/closures';
-import { idParamsSchema, pageOf } from '../../shared/http';
+import { idParamsSchema, pageOf, wholePage } from '../../shared/http';
 import { route } from '../http/route';
 import { createClosuresService } from './closures.service';
 
@@ -40,7 +39,7 @@ export const closureRoutes = [
   }),
   route({
     method: 'get', path: '/api/v1/campaigns/:id/closures', summary: 'The clock-ratio closures a campaign is part of', tag: 'campaigns', permission: 'campaigns:read',
-    params: idParamsSchema, response: z.array(closureSummarySchema),
-    handler: ({ actor, params, deps }) => createClosuresService(deps.dataSource).forCampaign(actor, params.id),
+    params: idParamsSchema, response: pageOf(closureSummarySchema),
+    handler: async ({ actor, params, deps }) => wholePage(await createClosuresService(deps.dataSource).forCampaign(actor, params.id)),
   }),
 ];

@@ -21,5 +21,5 @@ export function useClosure(id: string) {
 }
 
 export function useCampaignClosures(campaignId: string) {
-  return useQuery({ queryKey: closureKeys.ofCampaign(campaignId), queryFn: () => api<ClosureSummary[]>(`/api/v1/campaigns/${campaignId}/closures`) });
+  return useQuery({ queryKey: closureKeys.ofCampaign(campaignId), queryFn: async () => (await api<Page<ClosureSummary>>(`/api/v1/campaigns/${campaignId}/closures`)).items });
 }

@@ -117,12 +117,12 @@ describe('loops made through the API', () => {
     expect(listFailing.body.items.map((c: { id: string }) => c.id)).toContain(bad.closureId);
     expect(listFailing.body.items.map((c: { id: string }) => c.id)).not.toContain(ok.closureId);
     const ofCampaign = await get(`/api/v1/campaigns/${bad.c2}/closures`, tok.mira);
-    expect(ofCampaign.body.map((c: { id: string }) => c.id)).toEqual([bad.closureId]);
+    expect(ofCampaign.body.items.map((c: { id: string }) => c.id)).toEqual([bad.closureId]);
 
     // Isolation: the loop holds a campaign of Highridge alone (HMO-Sr2 → HMO-YbIon), so Saltmarsh's lab does not see it.
     expect((await get(`/api/v1/network/closures/${bad.closureId}`, tok.ines)).status).toBe(404);
     expect((await get('/api/v1/network/closures', tok.ines)).body.items.map((c: { id: string }) => c.id)).not.toContain(bad.closureId);
-    expect((await get(`/api/v1/campaigns/${bad.c1}/closures`, tok.ines)).body).toEqual([]);
+    expect((await get(`/api/v1/campaigns/${bad.c1}/closures`, tok.ines)).body).toMatchObject({ items: [], total: 0 });
     expect((await get(`/api/v1/network/closures/${bad.closureId}/export.csv`, tok.ines)).status).toBe(404);
     // Drafts are the labs' own: neither the coordinator nor the auditor sees these closures yet.
     expect((await get(`/api/v1/network/closures/${bad.closureId}`, tok.ansel)).status).toBe(404);
