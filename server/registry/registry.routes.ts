@@ -122,8 +122,8 @@ export const registryRoutes = [
   }),
   route({
     method: 'get', path: '/api/v1/sites/:id/clocks', summary: 'Clocks that stood at a site, with their arrival and departure', tag: 'registry', permission: 'registry:read',
-    params: idParamsSchema, response: siteClocksSchema,
-    handler: ({ actor, params, deps }) => createDeploymentsService(deps.dataSource).atSite(actor, params.id),
+    params: idParamsSchema, response: pageOf(siteClocksSchema.element),
+    handler: async ({ actor, params, deps }) => wholePage(await createDeploymentsService(deps.dataSource).atSite(actor, params.id)),
   }),
   // reference frequencies
   route({

@@ -71,7 +71,7 @@ export const useUpdateReference = () =>
   useRegistryMutation(({ id, body }: { id: string; body: Partial<ReferenceFrequencyInput> }) => api<ReferenceFrequency>(`/api/v1/reference-frequencies/${id}`, { method: 'PATCH', body }));
 export const useDeployments = (clockId: string) =>
   useQuery({ queryKey: registryKeys.deployments(clockId), queryFn: () => api<ClockDeployments>(`/api/v1/clocks/${clockId}/deployments`) });
-export const useSiteClocks = (siteId: string) => useQuery({ queryKey: registryKeys.siteClocks(siteId), queryFn: () => api<SiteClocks>(`/api/v1/sites/${siteId}/clocks`) });
+export const useSiteClocks = (siteId: string) => useQuery({ queryKey: registryKeys.siteClocks(siteId), queryFn: async () => (await api<Page<SiteClocks[number]>>(`/api/v1/sites/${siteId}/clocks`)).items });
 export const useAddDeployment = () =>
   useRegistryMutation(({ clockId, body }: { clockId: string; body: CreateDeployment }) => api<Deployment>(`/api/v1/clocks/${clockId}/deployments`, { body }));
 export const useUpdateDeployment = () =>

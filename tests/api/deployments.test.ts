@@ -56,8 +56,8 @@ describe('deployments', () => {
     }
     const atHarbour = await as('auditor').get(`/api/v1/sites/${ids['Harbour Light tide-gauge station']}/clocks`);
     expect(atHarbour.status).toBe(200);
-    expect(atHarbour.body).toEqual([expect.objectContaining({ clock: expect.objectContaining({ name: 'NGCO-TSr1' }), arrivedAt: '2026-04-28T16:00:00.000Z', departedAt: '2026-05-29T08:00:00.000Z' })]);
-    const atHall = (await as('auditor').get(`/api/v1/sites/${ids['SCL clock hall']}/clocks`)).body as { clock: { name: string }; arrivedAt: string | null }[];
+    expect(atHarbour.body.items).toEqual([expect.objectContaining({ clock: expect.objectContaining({ name: 'NGCO-TSr1' }), arrivedAt: '2026-04-28T16:00:00.000Z', departedAt: '2026-05-29T08:00:00.000Z' })]);
+    const atHall = (await as('auditor').get(`/api/v1/sites/${ids['SCL clock hall']}/clocks`)).body.items as { clock: { name: string }; arrivedAt: string | null }[];
     expect(atHall.find((r) => r.clock.name === 'SCL-Sr1')?.arrivedAt).toBeNull();
   });
 

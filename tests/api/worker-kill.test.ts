@@ -95,7 +95,12 @@ describe('worker killed during an adjustment run', () => {
     expect(row).toMatchObject({ state: 'done', stage: 'finished', progress: 1, has_result: true });
 
     // exactly once: one job, completed on its second attempt; the killed worker never finished it, the second did once
-    const jobs = await t.ds.query(jobsSql, [runId]);
+    // pg-boss marks the job completed just after the run's own transaction commits
+    let jobs = await t.ds.query(jobsSql, [runId]);
+    for (let i = 0; i < 200 && jobs[0]?.state === 'active'; i++) {
+      await sleep(100);
+      jobs = await t.ds.query(jobsSql, [runId]);
+    }
     expect(jobs).toHaveLength(1);
     expect(jobs[0]).toMatchObject({ state: 'completed', retry_count: 1 });
     expect(first.lines.filter((l) => l.msg === 'adjustment run finished')).toEqual([]);
@@ -126,6 +131,11 @@ describe('worker killed during an adjustment run', () => {
 describe('worker killed while it issues a certificate', () => {
   it('is retried by another worker and issues exactly one certificate', { timeout: 180_000 }, async () => {
     const coordinator = await tokenFor(t, 'ansel.brandt@geopotential-office.invalid');
+    // no worker of the test before may take this job
+    for (const c of children) if (c.exitCode === null && c.signalCode === null) {
+      c.kill('SIGKILL');
+      await new Promise((r) => c.once('exit', r));
+    }
     const campaignId = await acceptedCampaign(t, 'Worker kill certificate campaign', '2026-10-12T00:00:00Z');
     const first = await startWorkerProcess({ CHRONOLEVEL_FAULT_POINT: 'certificate-issue' });
     expect((await waitForResult(t, coordinator, campaignId)).state).toBe('done'); // the first worker computed it

@@ -46,7 +46,11 @@ describe('auditor journey', () => {
     await dialog.getByLabel(/Comment for the certificate/).fill('Reviewed and certified for the audit.');
     await dialog.getByLabel(/Justification|Why certify/).fill('Audit demo: any exception was discussed with both labs.');
     await dialog.getByRole('button', { name: 'Issue and sign' }).click();
-    await page.getByTestId('certificate-number').waitFor({ timeout: 180_000 });
+    // A worker renders, time-stamps and signs; the dialog then links to the certificate.
+    const link = dialog.getByRole('link', { name: /^certificate CL-/ });
+    await link.waitFor({ timeout: 180_000 });
+    await link.click();
+    await page.getByTestId('certificate-number').waitFor({ timeout: 30_000 });
     number = (await page.getByTestId('certificate-number').textContent())!.trim();
     expect(number).toMatch(/^CL-\d{4}-\d{5}-r1$/);
     await expect(page.getByTestId('certificate-state').textContent()).resolves.toContain('Valid');

@@ -100,7 +100,7 @@ describe('registry and campaign pages', () => {
     await page.getByTestId('site-title').getByText('SCL roof pillar north').waitFor();
     // The entered values are named by axis, with units.
     await page.getByTestId('entered-coordinates').getByText('501000 m').waitFor();
-    await page.getByText('Northing N').waitFor();
+    await page.getByText('Northing N', { exact: true }).waitFor();
     await page.getByText('5931000 m').waitFor();
     const after = Number((await page.getByTestId('grs80-lat').textContent())!.replace('°', ''));
     // Expected values from proj4 (npm reference library) with the EPSG:25832 definition, ETRS89 / UTM zone 32N
