@@ -119,9 +119,12 @@ export const transportSeeder: Seeder = {
     const versions = manager.getRepository(ClockBudgetVersionEntity);
     const budgetVersion = async (version: number, rows: BudgetRow[], comment: string, deploymentId: string, at: string) =>
       versions.save({ clockId: tsr.id, version, rows, ...budgetTotals(rows), comment, deploymentId, createdByUserId: ansel.id, createdBy: ansel.name, createdAt: day(at) });
+    // All three campaigns of the chain pin version 1, the evaluation in force at the first calibration, so NGCO-TSr1's
+    // systematic offset is the same quantity in each and cancels in the chain; versions 2 and 3 record the
+    // re-evaluations at Harbour Light and back at the trailer bay (tied to those deployments) for later campaigns.
     const v1 = await budgetVersion(1, tsrBudget(2.0e-18, 2.2e-18, 1.0e-18), 'first version, evaluated at the SCL trailer bay', d1.id, '2026-03-31T10:00:00Z');
-    const v2 = await budgetVersion(2, tsrBudget(2.4e-18, 2.2e-18, 1.5e-18), 're-evaluated at Harbour Light after transport (warmer gauge house)', d2.id, '2026-04-30T11:00:00Z');
-    const v3 = await budgetVersion(3, tsrBudget(2.0e-18, 2.2e-18, 1.5e-18), 're-evaluated back at the SCL trailer bay', d3.id, '2026-06-03T12:00:00Z');
+    await budgetVersion(2, tsrBudget(2.4e-18, 2.2e-18, 1.5e-18), 're-evaluated at Harbour Light after transport (warmer gauge house)', d2.id, '2026-04-30T11:00:00Z');
+    await budgetVersion(3, tsrBudget(2.0e-18, 2.2e-18, 1.5e-18), 're-evaluated back at the SCL trailer bay', d3.id, '2026-06-03T12:00:00Z');
 
     const links = manager.getRepository(FibreLinkEntity);
     const bayLink = await links.save({ name: 'SCL hall–trailer bay', siteAId: hall.id, siteBId: trailer.id, fibreLengthKm: 0.15, fractionalUncertainty: 1e-20, notes: 'Invented: noise-cancelled patch fibre from lab 2 to the trailer bay.', createdAt: day('2026-03-28T09:00:00Z'), updatedAt: day('2026-03-28T09:00:00Z') });
@@ -152,9 +155,9 @@ export const transportSeeder: Seeder = {
     const accepted = (created: string, submitted: string, review: string, acceptedAt: string): Step[] => [['draft', created, ines], ['submitted', submitted, ines], ['in_review', review, ansel], ['accepted', acceptedAt, ansel]];
     await campaign(TRANSPORT_CAMPAIGNS.before, 'side-by-side', trailer, bayLink, v1, '2026-04-06T00:00:00Z', '2026-04-17T00:00:00Z',
       'Invented demo campaign: calibration of NGCO-TSr1 against SCL-Sr1 before transport; local tie from the SCL survey note.', accepted('2026-04-01T09:00:00Z', '2026-04-20T10:00:00Z', '2026-04-21T08:30:00Z', '2026-04-23T15:00:00Z'));
-    await campaign(TRANSPORT_CAMPAIGNS.remote, 'remote', harbour, harbourLink, v2, '2026-05-06T00:00:00Z', '2026-05-20T00:00:00Z',
+    await campaign(TRANSPORT_CAMPAIGNS.remote, 'remote', harbour, harbourLink, v1, '2026-05-06T00:00:00Z', '2026-05-20T00:00:00Z',
       'Invented demo campaign: NGCO-TSr1 at the Harbour Light gauge house, compared with SCL-Sr1 over the coast-road fibre.', accepted('2026-04-30T12:00:00Z', '2026-05-22T09:30:00Z', '2026-05-25T08:00:00Z', '2026-05-28T14:00:00Z'));
-    await campaign(TRANSPORT_CAMPAIGNS.after, 'side-by-side', trailer, bayLink, v3, '2026-06-08T00:00:00Z', '2026-06-19T00:00:00Z',
+    await campaign(TRANSPORT_CAMPAIGNS.after, 'side-by-side', trailer, bayLink, v1, '2026-06-08T00:00:00Z', '2026-06-19T00:00:00Z',
       'Invented demo campaign: closing calibration of NGCO-TSr1 against SCL-Sr1 after transport.', accepted('2026-06-03T13:00:00Z', '2026-06-22T10:00:00Z', '2026-06-23T08:15:00Z', '2026-06-25T16:30:00Z'));
     for (const d of [d1, d2, d3]) {
       await recordAudit(manager, ansel.actor, { action: 'clock.deployment-added', entityType: 'clock', entityId: tsr.id, instituteId: tsr.instituteId, details: { deploymentId: d.id, siteId: d.siteId, arrivedAt: d.arrivedAt.toISOString(), departedAt: d.departedAt?.toISOString() ?? null, note: d.note }, at: d.arrivedAt });

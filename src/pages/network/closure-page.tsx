@@ -21,7 +21,7 @@ export function ClosurePage() {
           p = {(d.coverageProbability * 100).toFixed(2)} %{d.effectiveDegreesOfFreedom ? `, ν_eff = ${Math.floor(d.effectiveDegreesOfFreedom)}` : ''}), Eₙ = {d.en.toFixed(2)}
         </p>
         <dl className="grid grid-cols-[max-content_1fr] gap-x-4 text-sm">
-          <dt>Common time</dt><dd>{day(d.commonStart)} – {day(d.commonEnd)}; {d.commonSamples} common slots of τ0 = {d.tau0Seconds} s</dd>
+          <dt>Common time</dt><dd>{day(d.commonStart)} – {day(d.commonEnd)}; {d.commonSamples} common slots of τ0 = {Number(d.tau0Seconds.toPrecision(6))} s</dd>
           <dt>Σ s·y</dt><dd>{sci(d.sumY, 3)} (u_stat = {d.statisticalUncertainty === null ? 'none' : sci(d.statisticalUncertainty)})</dd>
           <dt>Σ s·ln R0</dt><dd>{d.referenceRatioTerm === 0 ? '0 (reference ratios consistent)' : sci(d.referenceRatioTerm, 3)}</dd>
           <dt>u_c</dt><dd>{sci(d.standardUncertainty)} (dimensionless)</dd>
@@ -47,8 +47,8 @@ export function ClosurePage() {
           <tbody>
             {d.budget.map((b) => (
               <tr key={b.component} className="border-b border-paper-200">
-                <td>{b.component}</td><td>{b.type}</td><td className="text-right">{sci(b.standardUncertainty)}</td><td className="text-right">{b.sensitivity}</td>
-                <td className="text-right">{b.contribution === 0 ? '0 (cancels)' : sci(b.contribution)}</td><td className="text-xs text-ink-600">{b.note}</td>
+                <td>{b.component}</td><td>{b.type}</td><td className="whitespace-nowrap text-right">{sci(b.standardUncertainty)}</td><td className="text-right">{b.sensitivity}</td>
+                <td className="whitespace-nowrap text-right">{b.contribution === 0 ? '0 (cancels)' : sci(b.contribution)}</td><td className="text-xs text-ink-600">{b.note}</td>
               </tr>
             ))}
           </tbody>
