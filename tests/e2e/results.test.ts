@@ -91,6 +91,31 @@ describe('results page', () => {
     await expect(page.getByRole('note').first().textContent()).resolves.toContain('Caution');
     await expect(page.getByRole('link', { name: 'Export CSV' }).getAttribute('href')).resolves.toBe(`/api/v1/campaigns/${campaignId}/result.csv`);
     await screenshot(page, 'results-coordinator');
+
+    // Zoom into a time range by dragging across the plot: fewer buckets are drawn, the min–max band appears, the
+    // range label says so; the keyboard's 0 returns to the whole series.
+    const caption = page.getByTestId('y-series-caption');
+    const buckets = async () => Number(/\((\d+) buckets/.exec((await caption.textContent()) ?? '')?.[1]);
+    const whole = await buckets();
+    expect(whole).toBeGreaterThan(20);
+    expect(await page.getByTestId('y-series-band').count()).toBe(0);
+    const plot = page.getByTestId('y-series-plot');
+    await plot.scrollIntoViewIfNeeded();
+    const box = (await plot.boundingBox())!;
+    await page.mouse.move(box.x + box.width * 0.3, box.y + box.height / 2);
+    await page.mouse.down();
+    await page.mouse.move(box.x + box.width * 0.5, box.y + box.height / 2, { steps: 5 });
+    await page.mouse.up();
+    await expect(page.getByTestId('y-series-range').textContent()).resolves.toContain('(zoomed)');
+    const zoomed = await buckets();
+    expect(zoomed).toBeLessThan(whole * 0.4);
+    expect(zoomed).toBeGreaterThanOrEqual(3);
+    expect(await page.getByTestId('y-series-band').count()).toBe(1);
+    await screenshot(page, 'results-plot-zoomed');
+    await plot.focus();
+    await page.keyboard.press('0');
+    await expect(page.getByTestId('y-series-range').textContent()).resolves.toContain('(whole series)');
+    expect(await buckets()).toBe(whole);
     await context.close();
   }, 60_000);
 

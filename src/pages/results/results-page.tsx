@@ -9,7 +9,7 @@ import { typeset } from '../../components/typeset';
 import { Button, Caution, EmptyState, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { fixed, sci, sig } from '../../lib/format';
-import { TidePlot, YSeriesPlot } from './y-series-plot';
+import { ResultSeriesPlots } from './y-series-plot';
 
 // The comparison result of one campaign: what was measured, how uncertain, and whether it agrees with geodesy.
 
@@ -238,9 +238,7 @@ export function ResultsPage() {
       <Agreement r={r} />
 
       <Panel title="Fractional offset over time">
-        <YSeriesPlot series={r.timeSeries} correctedMeanY={r.fractionalOffset.y} />
-        <h3 className="mt-4 text-sm font-medium text-ink-700">Tide correction alone</h3>
-        <TidePlot series={r.timeSeries} />
+        <ResultSeriesPlots series={r.timeSeries} correctedMeanY={r.fractionalOffset.y} />
         <p className="mt-2 text-xs text-ink-500">
           Tide: {r.tide.model} Mean tidal part removed: {e(r.tide.meanCorrectionY)}; peak-to-peak {e(r.tide.peakToPeakY)}; model uncertainty {e(r.tide.modelUncertaintyY)} ({r.tide.uncertaintyRule}).
         </p>
