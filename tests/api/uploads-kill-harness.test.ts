@@ -201,10 +201,15 @@ async function snapshot(campaignId: string): Promise<Snapshot> {
             (SELECT count(*)::int FROM ratio_series_file) AS "fileParts",
             (SELECT count(*)::int FROM comparison_result WHERE campaign_id = $1) AS results,
             (SELECT count(*)::int FROM certificate WHERE campaign_id = $1) AS certificates,
-            (SELECT coalesce(sum(last_serial), 0)::int FROM certificate_serial) AS serials,
-            -- every event, except results of other campaigns that a retried job may finish meanwhile and ratio
-            -- closures (jobs of their own, queued by earlier acceptances)
-            (SELECT count(*)::int FROM audit_event WHERE NOT (action = 'result.computed' AND entity_id IS DISTINCT FROM $1::text) AND action <> 'closure.computed') AS "auditEvents"`,
+            -- serial numbers taken, less those of other campaigns' certificates (a certificate request queued in an
+            -- earlier scenario is retried by this scenario's worker and may take one meanwhile)
+            ((SELECT coalesce(sum(last_serial), 0)::int FROM certificate_serial)
+              - (SELECT count(DISTINCT (year, serial))::int FROM certificate WHERE campaign_id <> $1)) AS serials,
+            -- every event, except what retried jobs of earlier scenarios may finish meanwhile for other campaigns
+            -- (results, certificates and their state changes) and ratio closures (jobs queued by earlier acceptances)
+            (SELECT count(*)::int FROM audit_event WHERE NOT (action = 'result.computed' AND entity_id IS DISTINCT FROM $1::text) AND action <> 'closure.computed'
+               AND NOT (entity_type = 'campaign' AND entity_id IS DISTINCT FROM $1::text)
+               AND NOT (entity_type = 'certificate' AND details->>'campaignId' IS DISTINCT FROM $1::text)) AS "auditEvents"`,
     [campaignId],
   );
   return r;
