@@ -263,8 +263,8 @@ export const runResultSchema = z.object({
     /** via 'chain': the campaign entered through the calibration chain chainId, not as an observation of its own. */
     campaigns: z.array(z.object({ id: z.string(), name: z.string(), via: z.enum(['direct', 'chain']), chainId: z.string().nullable() })),
     chains: z.array(z.object({ id: z.string(), name: z.string(), observationId: z.string(), campaignIds: z.array(z.string()) })),
-    /** Ratio closures that entered the run (filled by the closures feature). */
-    closures: z.array(z.object({ id: z.string(), name: z.string() }).passthrough()),
+    /** Ratio closures of the campaigns that entered (every campaign of the loop entered): checks, not observations. */
+    closures: z.array(z.object({ id: z.string(), name: z.string(), en: z.number().optional(), agreed: z.boolean().optional() }).passthrough()),
   }).optional(),
 });
 export type RunResult = z.infer<typeof runResultSchema>;

@@ -246,6 +246,7 @@ export async function gatherInputs(m: EntityManager, options: AdjustmentRunOptio
       entered.campaigns.push({ id: c.id, name: c.name, via: 'direct', chainId: null });
     }
     entered.clocks = await clocksOf(m, entered.campaigns.map((c) => c.id));
+    entered.closures = await closuresOf(m, entered.campaigns.map((c) => c.id));
   }
   // A benchmark no section reaches carries no information; leaving it out keeps it from counting as a datum-less part.
   const used = new Set(observations.flatMap((o) => [o.from, o.to]));
@@ -284,6 +285,19 @@ async function clocksOf(m: EntityManager, campaignIds: string[]): Promise<RunEnt
     SELECT k.id, k.name, count(*)::text AS n FROM campaign c JOIN clock k ON k.id IN (c.clock_a_id, c.clock_b_id)
     WHERE c.id = ANY($1::uuid[]) GROUP BY k.id, k.name ORDER BY k.name`, [campaignIds]);
   return rows.map((r) => ({ id: r.id, name: r.name, campaigns: Number(r.n) }));
+}
+
+/**
+ * The stored ratio closures whose every campaign entered the run: checks of the clock inputs (a closure is not an
+ * observation of the adjustment; it tests that the ratios the campaigns contribute are consistent around a loop).
+ */
+async function closuresOf(m: EntityManager, campaignIds: string[]): Promise<RunEntered['closures']> {
+  if (campaignIds.length === 0) return [];
+  const rows: { id: string; name: string; en: number; agreed: boolean }[] = await m.query(`
+    SELECT rc.id, rc.label AS name, rc.en, rc.agreed FROM ratio_closure rc
+     WHERE NOT EXISTS (SELECT 1 FROM ratio_closure_campaign x WHERE x.closure_id = rc.id AND NOT (x.campaign_id = ANY($1::uuid[])))
+     ORDER BY rc.label`, [campaignIds]);
+  return rows.map((r) => ({ id: r.id, name: r.name, en: r.en, agreed: r.agreed }));
 }
 
 /** Parts of the network that no datum point reaches (union–find); checked before a run is queued. */

@@ -4,6 +4,8 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { reviewChecklistItems } from '../../shared/campaigns';
 import { recomputeClosures } from '../../server/closures/closures.service';
 import { computeCampaignResult } from '../../server/results/results.service';
+import { gatherInputs } from '../../server/network/adjustment.service';
+import { adjustmentOptionsSchema } from '../../shared/network';
 import { createTestApp, tokenFor, type TestApp } from '../helpers/test-app';
 
 // Clock-ratio closures through the API: the invented demo loop, a consistent and an inconsistent loop made here
@@ -96,6 +98,27 @@ describe('the demo loop', () => {
 });
 
 describe('loops made through the API', () => {
+  it('an adjustment run lists the closures whose every campaign entered it, as checks with their Eₙ', async () => {
+    const list = await get('/api/v1/network/closures', tok.ansel);
+    const demo = list.body.items.find((c: { label: string }) => c.label === 'HMO-Sr2 → HMO-YbIon → SCL-Sr1 → HMO-Sr2');
+    const legs: { campaign_id: string }[] = await t.ds.query('SELECT campaign_id FROM ratio_closure_campaign WHERE closure_id = $1', [demo.id]);
+    // What-if for this test: the loop's three campaigns accepted (in the demo one of them is still in review).
+    await t.ds.query("UPDATE campaign SET state = 'accepted' WHERE id = ANY($1::uuid[]) AND state NOT IN ('accepted', 'certified')", [legs.map((l) => l.campaign_id)]);
+    // Their results, as the worker stores them on acceptance.
+    for (const l of legs) await t.ds.transaction((m) => computeCampaignResult(m, l.campaign_id, { actor: null, now: new Date() }));
+    const inputs = await gatherInputs(t.ds.manager, adjustmentOptionsSchema.parse({ includeClocks: true }));
+    const enteredIds = new Set(inputs.entered!.campaigns.map((c) => c.id));
+    const listed = inputs.entered!.closures.find((c) => c.id === demo.id);
+    expect(legs.map((l) => enteredIds.has(l.campaign_id)), JSON.stringify(inputs.excluded)).toEqual([true, true, true]);
+    expect(listed).toMatchObject({ name: demo.label, agreed: true });
+    expect(Math.abs(listed!.en!)).toBeLessThan(1);
+    // Every listed closure's campaigns all entered.
+    for (const c of inputs.entered!.closures) {
+      const ls: { campaign_id: string }[] = await t.ds.query('SELECT campaign_id FROM ratio_closure_campaign WHERE closure_id = $1', [c.id]);
+      expect(ls.every((l) => enteredIds.has(l.campaign_id))).toBe(true);
+    }
+  });
+
   it('a consistent loop (ε0 = 0) agrees; an inconsistent one (ε0 = 5e-17) fails, with the hand-checked budget', async () => {
     const ok = await loopWithClosure('closure test A', '2026-08-03T00:00:00Z', 0);
     const bad = await loopWithClosure('closure test B', '2026-08-10T00:00:00Z', 5e-17);

@@ -175,7 +175,10 @@ function EnteredPanel({ entered }: { entered: NonNullable<NonNullable<ReturnType
         </div>
         <div>
           <h3 className="font-semibold">Ratio closures ({entered.closures.length})</h3>
-          <ul className="list-disc pl-5">{entered.closures.map((c) => <li key={c.id}>{c.name}</li>)}</ul>
+          <p className="text-xs text-ink-500">Loops whose every campaign entered: checks of the clock ratios, not observations of the adjustment.</p>
+          <ul className="list-disc pl-5">{entered.closures.map((c) => (
+            <li key={c.id}><Link to={`/network/closures/${c.id}`}>{c.name}</Link>{c.en !== undefined ? ` · Eₙ = ${c.en.toFixed(2)}${c.agreed ? ' (closes)' : ' (does not close)'}` : ''}</li>
+          ))}</ul>
         </div>
       </div>
     </Panel>
