@@ -109,7 +109,7 @@ export async function computeChain(m: EntityManager, row: CalibrationChainRow, c
   const coverage = { coverageFactor: r.coverageFactor, coverageProbability: r.coverageProbability, effectiveDegreesOfFreedom: r.effectiveDegreesOfFreedom };
   const name = new Map(parts.map(([, cmp]) => [cmp.id, cmp.name]));
   const cautions: string[] = [];
-  if (r.beforeAfter && !r.beforeAfter.agreed) cautions.push(`The before and after calibrations differ by more than their expanded uncertainty (|E_n| = ${Math.abs(r.beforeAfter.en).toFixed(2)} > 1): T changed during the transport; the transport term carries that change, check the clock’s logs before using the chain.`);
+  if (r.beforeAfter && !r.beforeAfter.agreed) cautions.push(`The before and after calibrations differ by more than their expanded uncertainty (|Eₙ| = ${Math.abs(r.beforeAfter.en).toFixed(2)} > 1): T changed during the transport; the transport term carries that change, check the clock’s logs before using the chain.`);
   const trShare = r.lines.find((l) => l.key === 'transport')?.varianceShare ?? 0;
   if (trShare > 0.5) cautions.push(`The transport reproducibility dominates the chain (${(100 * trShare).toFixed(0)} % of u_c²).`);
   const notCancelled = r.lines.filter((l) => l.key === `budget:${results[0]!.result[tIsA ? 'clockA' : 'clockB'].budget.id}` && !l.cancels);
@@ -136,7 +136,7 @@ export async function computeChain(m: EntityManager, row: CalibrationChainRow, c
     transport: r.transport,
     beforeAfter: en ? {
       ...en, coverageFactor: 2,
-      statement: `${en.agreed ? 'Consistent' : 'Not consistent'}: d = o_after − o_before = ${fmtE(en.difference)} with U(d) = ${fmtE(en.expandedUncertainty)} (k = 2, p ≈ 95 %), E_n = ${en.en.toFixed(2)}.`,
+      statement: `${en.agreed ? 'Consistent' : 'Not consistent'}: d = o_after − o_before = ${fmtE(en.difference)} with U(d) = ${fmtE(en.expandedUncertainty)} (k = 2, p ≈ 95 %), Eₙ = ${en.en.toFixed(2)}.`,
     } : null,
     lines: r.lines.map((l) => ({ ...l, enters: l.enters.map((e) => ({ ...e, comparison: name.get(e.comparisonId) ?? e.comparisonId })) })),
     covariances: r.covariances,
@@ -147,7 +147,7 @@ export async function computeChain(m: EntityManager, row: CalibrationChainRow, c
       : `${T.name} is in every comparison of the chain with the same sign once each comparison is read as “${T.name} relative to its partner”. Its systematic offset b_T (and that of the reference clock) is the same input quantity in the remote comparison and in the side-by-side calibration, with sensitivities +c² and −c²·(w_before + w_after) = −c², so it cancels exactly: it appears in the budget with sensitivity 0. What T does not keep constant between calibration and remote comparison enters as the transport reproducibility term.`,
     method: {
       statement: `ΔC = c²·(y_remote − ȳ_side-by-side), ȳ = weighted mean of the calibrated offsets o = y − ΔC_local/c² (weights inverse to the variance the calibrations do not share); shared inputs grouped into one quantity each (law of propagation for correlated inputs), Welch–Satterthwaite ν_eff and k = t_p(ν_eff); ${coverageText(coverage)}.`,
-      sources: ['JCGM 100:2008 (GUM) §5.2.2 eq. (13), §4.3.7, G.4.1, G.3', 'Mehlstäubler et al. 2018, Rep. Prog. Phys. 81:064401 (chronometric levelling)', 'ISO 13528:2015 §9.7 (E_n)', 'Heiskanen & Moritz 1967, Physical Geodesy, ch. 4'],
+      sources: ['JCGM 100:2008 (GUM) §5.2.2 eq. (13), §4.3.7, G.4.1, G.3', 'Mehlstäubler et al. 2018, Rep. Prog. Phys. 81:064401 (chronometric levelling)', 'ISO 13528:2015 §9.7 (Eₙ)', 'Heiskanen & Moritz 1967, Physical Geodesy, ch. 4'],
     },
     assumptions: [
       'Each comparison’s y is its own stored result: the periodic solid-Earth tide at each site removed sample by sample (mean-tide, permanent part kept).',

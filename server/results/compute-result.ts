@@ -281,8 +281,8 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
       agreed: agreement.agreed,
       differenceM: agreement.difference,
       statement: agreement.agreed
-        ? `Agreed: |E_n| = ${Math.abs(agreement.en).toFixed(2)} ≤ 1 — the clock and the geodetic height differences agree within their expanded uncertainties (clocks ${coverageText(coverage)}; geodesy k = 2).`
-        : `Not agreed: |E_n| = ${Math.abs(agreement.en).toFixed(2)} > 1 — the clock and the geodetic height differences differ by more than their combined expanded uncertainty (clocks ${coverageText(coverage)}; geodesy k = 2).`,
+        ? `Agreed: |Eₙ| = ${Math.abs(agreement.en).toFixed(2)} ≤ 1 — the clock and the geodetic height differences agree within their expanded uncertainties (clocks ${coverageText(coverage)}; geodesy k = 2).`
+        : `Not agreed: |Eₙ| = ${Math.abs(agreement.en).toFixed(2)} > 1 — the clock and the geodetic height differences differ by more than their combined expanded uncertainty (clocks ${coverageText(coverage)}; geodesy k = 2).`,
     };
   }
 
@@ -346,7 +346,7 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
   if (campaign.referenceRatio.justification) cautions.push(`Reference ratio chosen with justification: ${campaign.referenceRatio.justification}`);
   if (averagingTimeSeconds / Math.max(periodSeconds, 1) < 0.5) cautions.push(`Uptime is ${((100 * averagingTimeSeconds) / periodSeconds).toFixed(1)} % of the campaign period.`);
   if (geoTideNote) cautions.push(geoTideNote);
-  if (geodesy && !geodesy.agreed) cautions.push('The clock result does not agree with the geodetic height difference (|E_n| > 1): check both before using either.');
+  if (geodesy && !geodesy.agreed) cautions.push('The clock result does not agree with the geodetic height difference (|Eₙ| > 1): check both before using either.');
 
   return {
     campaign: { id: campaign.id, name: campaign.name, periodStart: campaign.periodStart, periodEnd: campaign.periodEnd },
@@ -424,7 +424,7 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
     timeSeries: decimate(epochMjd, y, valid, tideY),
     method: {
       statement:
-        'y = R/R0 − 1 per sample (decimal arithmetic), periodic tide removed per sample, mean over valid samples, statistical uncertainty of the mean from the noise identified at each τ (white FM fitted over all white-FM τ; flicker or random-walk FM floors bounded at the longest τ with adequate EDF), GUM budget with uncorrelated inputs and k = t_p(ν_eff), ΔC = c²·y (first order), ΔH via GRS80 mean normal gravity, E_n against the sites’ registered normal heights (geodesy).',
+        'y = R/R0 − 1 per sample (decimal arithmetic), periodic tide removed per sample, mean over valid samples, statistical uncertainty of the mean from the noise identified at each τ (white FM fitted over all white-FM τ; flicker or random-walk FM floors bounded at the longest τ with adequate EDF), GUM budget with uncorrelated inputs and k = t_p(ν_eff), ΔC = c²·y (first order), ΔH via GRS80 mean normal gravity, Eₙ against the sites’ registered normal heights (geodesy).',
       sources: [
         'IEEE Std 1139-2008; NIST SP 1065 (Riley 2008)',
         'Greenhall & Riley 2003, Uncertainty of stability variances based on finite differences (35th PTTI)',
@@ -432,7 +432,7 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
         'IERS Conventions 2010 (TN 36), ch. 6–7',
         'Moritz 2000, Geodetic Reference System 1980, J Geod 74',
         'Heiskanen & Moritz 1967, Physical Geodesy, ch. 4',
-        'ISO 13528:2015 §9.7 / ISO/IEC 17043:2010 Annex B (E_n)',
+        'ISO 13528:2015 §9.7 / ISO/IEC 17043:2010 Annex B (Eₙ)',
         'IAG Resolution No. 1 (2015), IHRS',
       ],
     },

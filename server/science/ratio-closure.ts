@@ -407,10 +407,10 @@ export function computeClosure(legs: readonly ClosureLegInput[], opts: { commonS
 
 export const CLOSURE_METHOD = {
   statement:
-    'ε = Σ s_i·y_i + Σ s_i·ln R0_i over the common time on a common τ0 grid (slot means of each campaign’s valid, tide-corrected samples; a slot counts when every campaign has one); shared clock budget versions are single GUM inputs with summed sensitivities (a clock in two legs with opposite signs cancels), one fibre-link input per leg, the tide model where the corrections do not cancel; u_c by JCGM 100:2008 eq. 10, k = t_p(ν_eff) for p = 95.45 %, E_n = ε/U against the expected closure 0.',
+    'ε = Σ s_i·y_i + Σ s_i·ln R0_i over the common time on a common τ0 grid (slot means of each campaign’s valid, tide-corrected samples; a slot counts when every campaign has one); shared clock budget versions are single GUM inputs with summed sensitivities (a clock in two legs with opposite signs cancels), one fibre-link input per leg, the tide model where the corrections do not cancel; u_c by JCGM 100:2008 eq. 10, k = t_p(ν_eff) for p = 95.45 %, Eₙ = ε/U against the expected closure 0.',
   sources: [
     'JCGM 100:2008 (GUM), §5.1.3, eq. (10), §6.2.1, G.4.1, G.6.4',
-    'ISO 13528:2015 §9.7 (E_n)',
+    'ISO 13528:2015 §9.7 (Eₙ)',
     'NIST SP 1065 (Riley 2008), §5.2',
     'Diestel, Graph Theory, 5th ed. 2017, §1.9 (cycle space, fundamental cycles)',
   ],

@@ -37,7 +37,7 @@ describe('calibration chain pages', () => {
     expect(text).toContain(`${fmt(r.deltaC_m2s2.value)} m²/s²`);
     expect(text).toContain(`U = ${fmt(r.deltaC_m2s2.expandedUncertainty)} m²/s²`);
     await expect(page.getByText(/k = \d\.\d\d, p = 95\.45 %/).first().isVisible()).resolves.toBe(true);
-    await expect(page.getByTestId('before-after').textContent()).resolves.toContain(`E_n = ${r.beforeAfter.en.toFixed(2)}`);
+    await expect(page.getByTestId('before-after').textContent()).resolves.toContain(`Eₙ = ${r.beforeAfter.en.toFixed(2)}`);
     await expect(page.getByTestId('chain-budget').textContent()).resolves.toContain('cancels exactly');
     await expect(page.getByText('verify against your national datum authority', { exact: false }).first().isVisible()).resolves.toBe(true);
     await screenshot(page, 'chain-result');
