@@ -63,17 +63,72 @@ export function bucketsFromOverview(overview: Float64Array, stats: Float64Array 
   return out;
 }
 
-// A series never changes once stored, so its overview can be kept in memory (the few most recently plotted).
+/** Fine blocks merged into one coarse block, at most (16 ⇒ ≈ 1024 samples per coarse block). */
+export const COARSE_FACTOR = 16;
+
+/**
+ * The coarse level of a plot summary: runs of up to COARSE_FACTOR consecutive blocks merged, a run ending before any
+ * space between blocks wider than twice the sampling interval τ0, so no coarse block bridges a gap. min and max merge
+ * exactly; mean and M2 merge with the pairwise formulas of Chan, Golub & LeVeque (1983, eq. 2.1), as the buckets do.
+ */
+export function coarsenOverview(overview: Float64Array, stats: Float64Array, tau0Seconds: number): { overview: Float64Array; stats: Float64Array } {
+  const fine = Math.floor(overview.length / 5);
+  const out = new Float64Array(5 * fine); // room even if every space splits
+  const outStats = new Float64Array(2 * fine);
+  const maxStep = tau0Seconds > 0 ? (2 * tau0Seconds) / 86_400 : Infinity;
+  let blocks = 0;
+  let inRun = 0;
+  let first = 0, last = 0, lo = NaN, hi = NaN, n = 0, mean = NaN, m2 = NaN;
+  const close = () => {
+    if (inRun === 0) return;
+    out.set([first, last, lo, hi, n], blocks * 5);
+    outStats.set([mean, m2], blocks * 2);
+    blocks++;
+    inRun = 0;
+  };
+  for (let b = 0; b < fine; b++) {
+    const i = b * 5;
+    if (inRun > 0 && (inRun >= COARSE_FACTOR || overview[i] - last > maxStep)) close();
+    const bn = overview[i + 4];
+    if (inRun === 0) {
+      first = overview[i]; lo = NaN; hi = NaN; n = 0; mean = NaN; m2 = NaN;
+    }
+    last = overview[i + 1];
+    inRun++;
+    if (bn === 0) continue;
+    const bMean = stats[b * 2];
+    const bM2 = stats[b * 2 + 1];
+    if (n === 0) {
+      lo = overview[i + 2]; hi = overview[i + 3]; mean = bMean; m2 = bM2;
+    } else {
+      lo = Math.min(lo, overview[i + 2]);
+      hi = Math.max(hi, overview[i + 3]);
+      const total = n + bn;
+      const delta = bMean - mean;
+      mean += (delta * bn) / total;
+      m2 += bM2 + (delta * delta * n * bn) / total;
+    }
+    n += bn;
+  }
+  close();
+  return { overview: out.slice(0, blocks * 5), stats: outStats.slice(0, blocks * 2) };
+}
+
+// A series never changes once stored, so its summaries can be kept in memory (the few most recently plotted).
 type Overview = { blocks: Float64Array; stats: Float64Array | null };
-const overviewCache = new Map<string, Overview>();
+const overviewCache = new Map<string, Overview | null>();
 const asFloats = (b: Buffer) => new Float64Array(b.buffer.slice(b.byteOffset, b.byteOffset + b.byteLength));
-async function overviewOf(ds: DataSource, id: string): Promise<Overview> {
-  const hit = overviewCache.get(id);
-  if (hit) return hit;
-  const [row] = (await ds.query('SELECT overview, overview_stats FROM ratio_series WHERE id = $1', [id])) as { overview: Buffer; overview_stats: Buffer | null }[];
-  const o = { blocks: asFloats(row.overview), stats: row.overview_stats ? asFloats(row.overview_stats) : null };
-  overviewCache.set(id, o);
-  if (overviewCache.size > 16) overviewCache.delete(overviewCache.keys().next().value!);
+async function overviewOf(ds: DataSource, id: string, level: 'fine' | 'coarse'): Promise<Overview | null> {
+  const key = `${level}:${id}`;
+  const hit = overviewCache.get(key);
+  if (hit !== undefined) return hit;
+  const sql = level === 'fine'
+    ? 'SELECT overview AS blocks, overview_stats AS stats FROM ratio_series WHERE id = $1'
+    : 'SELECT overview_coarse AS blocks, overview_coarse_stats AS stats FROM ratio_series WHERE id = $1';
+  const [row] = (await ds.query(sql, [id])) as { blocks: Buffer | null; stats: Buffer | null }[];
+  const o = row?.blocks ? { blocks: asFloats(row.blocks), stats: row.stats ? asFloats(row.stats) : null } : null;
+  overviewCache.set(key, o);
+  if (overviewCache.size > 32) overviewCache.delete(overviewCache.keys().next().value!);
   return o;
 }
 
@@ -91,8 +146,15 @@ export async function decimateSeries(
   const count = Math.max(10, Math.min(q.points, Math.floor(inRange / 2)));
   const bucketDays = (toMjd - fromMjd) / count;
   const head = { seriesId: s.id, fromMjd, toMjd, bucketDays, sampleCount: s.rowCount, unit: '1' as const, firstMjd: s.firstMjd, lastMjd: s.lastMjd };
-  const { blocks, stats } = await overviewOf(ds, s.id);
-  const fromOverview = bucketsFromOverview(blocks, stats, fromMjd, bucketDays, count);
+  // The coarse level first when the range holds enough coarse blocks (≥ 4 per bucket, as bucketsFromOverview asks),
+  // then the fine level, then the samples themselves.
+  if (inRange / (64 * COARSE_FACTOR) >= 4 * count) {
+    const coarse = await overviewOf(ds, s.id, 'coarse');
+    const fromCoarse = coarse && bucketsFromOverview(coarse.blocks, coarse.stats, fromMjd, bucketDays, count);
+    if (fromCoarse) return { ...head, buckets: fromCoarse };
+  }
+  const fine = await overviewOf(ds, s.id, 'fine');
+  const fromOverview = fine && bucketsFromOverview(fine.blocks, fine.stats, fromMjd, bucketDays, count);
   if (fromOverview) return { ...head, buckets: fromOverview };
   const rows = (await ds.query(
     `SELECT least(floor((mjd - $2) / $4)::int, $5 - 1) AS k,

@@ -15,11 +15,13 @@ import { faultPoint } from '../dev/fault-point';
 import { openSpool } from './raw-file-spool';
 import { exportSamplesCsv } from './samples-export';
 import { buildPreview } from './ratio-series-format';
-import { decimateSeries } from './series-plot';
+import { coarsenOverview, decimateSeries } from './series-plot';
 import { createUploadProgressStore } from './upload-progress';
 import type { UploadProgress } from '../../shared/uploads';
 import { requestResultComputation } from '../results/result-requests';
 import { canSeeCampaign } from '../auth/campaign-scope';
+
+const floatBytes = (a: Float64Array) => Buffer.from(a.buffer, a.byteOffset, a.byteLength);
 
 // Uploads of frequency-ratio series: who may upload (lab staff of the campaign's owning institute, campaign draft or
 // returned), the one transaction (COPY rows + raw file + series row + audit event), previews, lists and plot data.
@@ -155,14 +157,15 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
     }
     input.onProgress?.({ phase: 'storing' });
     const storedMapping = { ...mapping, delimiter: summary.delimiter, hasHeader: summary.hasHeader, header: summary.header };
+    const coarse = coarsenOverview(summary.overview, summary.overviewStats, summary.tau0Seconds);
     const { rows } = await client.query<SeriesDbRow>(
       `INSERT INTO ratio_series (id, campaign_id, file_name, sha256, byte_size, row_count, valid_count, first_mjd, last_mjd,
-         uptime_fraction, tau0_seconds, mapping, invented, created_by_user_id, created_by, overview, overview_stats)
-       VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12,$13,$14,$15,$16,$17) RETURNING ${SERIES_COLUMNS}`,
+         uptime_fraction, tau0_seconds, mapping, invented, created_by_user_id, created_by, overview, overview_stats, overview_coarse, overview_coarse_stats)
+       VALUES ($1,$2,$3,$4,$5,$6,$7,$8,$9,$10,$11,$12,$13,$14,$15,$16,$17,$18,$19) RETURNING ${SERIES_COLUMNS}`,
       [seriesId, input.campaign.id, input.fileName.slice(0, 250), summary.sha256, summary.byteSize, summary.rowCount, summary.validCount,
         summary.firstMjd, summary.lastMjd, summary.uptimeFraction, summary.tau0Seconds, JSON.stringify(storedMapping),
-        input.invented ?? false, actor?.userId ?? null, actorLabel(actor), Buffer.from(summary.overview.buffer, summary.overview.byteOffset, summary.overview.byteLength),
-        Buffer.from(summary.overviewStats.buffer, summary.overviewStats.byteOffset, summary.overviewStats.byteLength)],
+        input.invented ?? false, actor?.userId ?? null, actorLabel(actor), floatBytes(summary.overview), floatBytes(summary.overviewStats),
+        floatBytes(coarse.overview), floatBytes(coarse.stats)],
     );
     await spool.copyInto(client, seriesId);
     return rows[0];
