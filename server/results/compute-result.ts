@@ -85,6 +85,9 @@ export function inputHashOf(campaign: CampaignForResult, files: readonly InputFi
 function dropRepeatedEpochs(s: SampleArrays): { samples: SampleArrays; dropped: number } {
   let keep = 0;
   const n = s.epochMjd.length;
+  let repeats = false;
+  for (let i = 1; i < n && !repeats; i++) if (Math.abs(s.epochMjd[i] - s.epochMjd[i - 1]) < 1e-9) repeats = true;
+  if (!repeats) return { samples: s, dropped: 0 }; // the usual case: no copy of 10⁷ samples
   const e = new Float64Array(n);
   const y = new Float64Array(n);
   const v = new Uint8Array(n);

@@ -33,28 +33,101 @@ export async function loadFiles(manager: EntityManager, campaignId: string): Pro
 type SeriesColumns = { epochMjd: Float64Array; y: Float64Array; valid: Uint8Array };
 
 const COPY_SIGNATURE = Buffer.from('PGCOPY\n\xff\r\n\0', 'latin1');
+const ROW_BYTES = 31; // int16 field count, then (int32 length + value) for float8, float8, bool
 
-/** Parses PostgreSQL's binary COPY output of (float8, float8, bool) rows (PostgreSQL docs, COPY, "Binary Format"). */
-export function parseBinaryCopy(buf: Buffer): SeriesColumns {
-  if (buf.length < 19 || !buf.subarray(0, 11).equals(COPY_SIGNATURE)) throw new Error('not a binary COPY stream');
-  let o = 15;
-  o += 4 + buf.readInt32BE(o);
-  const rows = Math.floor((buf.length - o) / 31);
-  const epochMjd = new Float64Array(rows);
-  const y = new Float64Array(rows);
-  const valid = new Uint8Array(rows);
+/**
+ * Incremental parser of PostgreSQL's binary COPY output of (float8, float8, bool) rows (PostgreSQL docs, COPY,
+ * "Binary Format"): chunks are parsed as they arrive into columns sized from the expected row count, so a series of
+ * 10⁷ rows never exists twice in memory (once as chunks, once concatenated).
+ */
+export function createBinaryCopyReader(expectedRows = 0) {
+  let cap = Math.max(expectedRows, 256);
+  let epochMjd = new Float64Array(cap);
+  let y = new Float64Array(cap);
+  let valid = new Uint8Array(cap);
   let n = 0;
-  while (o + 2 <= buf.length) {
-    const fields = buf.readInt16BE(o);
-    if (fields === -1) break;
-    if (fields !== 3 || buf.readInt32BE(o + 2) !== 8 || buf.readInt32BE(o + 14) !== 8 || buf.readInt32BE(o + 26) !== 1) throw new Error('unexpected row layout in COPY stream');
-    epochMjd[n] = buf.readDoubleBE(o + 6);
-    y[n] = buf.readDoubleBE(o + 18);
-    valid[n] = buf[o + 30];
-    n++;
-    o += 31;
+  let headerRead = false;
+  let ended = false;
+  let tail: Buffer | null = null;
+  const grow = () => {
+    cap *= 2;
+    const e2 = new Float64Array(cap); e2.set(epochMjd); epochMjd = e2;
+    const y2 = new Float64Array(cap); y2.set(y); y = y2;
+    const v2 = new Uint8Array(cap); v2.set(valid); valid = v2;
+  };
+  return {
+    push(chunk: Buffer): void {
+      if (ended) return;
+      const buf = tail ? Buffer.concat([tail, chunk]) : chunk;
+      tail = null;
+      let o = 0;
+      if (!headerRead) {
+        if (buf.length < 19) {
+          tail = Buffer.from(buf);
+          return;
+        }
+        if (!buf.subarray(0, 11).equals(COPY_SIGNATURE)) throw new Error('not a binary COPY stream');
+        const ext = buf.readInt32BE(15);
+        if (buf.length < 19 + ext) {
+          tail = Buffer.from(buf);
+          return;
+        }
+        o = 19 + ext;
+        headerRead = true;
+      }
+      const view = new DataView(buf.buffer, buf.byteOffset, buf.byteLength);
+      const len = buf.length;
+      while (o + 2 <= len) {
+        const fields = view.getInt16(o);
+        if (fields === -1) {
+          ended = true;
+          return;
+        }
+        if (o + ROW_BYTES > len) break;
+        if (fields !== 3 || view.getInt32(o + 2) !== 8 || view.getInt32(o + 14) !== 8 || view.getInt32(o + 26) !== 1) throw new Error('unexpected row layout in COPY stream');
+        if (n === cap) grow();
+        epochMjd[n] = view.getFloat64(o + 6);
+        y[n] = view.getFloat64(o + 18);
+        valid[n] = buf[o + 30];
+        n++;
+        o += ROW_BYTES;
+      }
+      if (o < len) tail = Buffer.from(buf.subarray(o));
+    },
+    finish(): SeriesColumns {
+      if (!ended && (tail?.length ?? 0) > 0) throw new Error('the COPY stream ended inside a row');
+      return { epochMjd: epochMjd.subarray(0, n), y: y.subarray(0, n), valid: valid.subarray(0, n) };
+    },
+  };
+}
+
+/** Parses a whole binary COPY output of (float8, float8, bool) rows at once. */
+export function parseBinaryCopy(buf: Buffer): SeriesColumns {
+  const r = createBinaryCopyReader(Math.floor(buf.length / ROW_BYTES));
+  r.push(buf);
+  return r.finish();
+}
+
+/** The rows in ascending epoch order: returned as they are when already ascending (the usual case), else sorted. */
+export function inEpochOrder(c: SeriesColumns): SeriesColumns {
+  const n = c.epochMjd.length;
+  let ascending = true;
+  for (let i = 1; i < n; i++) {
+    if (!(c.epochMjd[i] > c.epochMjd[i - 1])) {
+      ascending = false;
+      break;
+    }
   }
-  return { epochMjd: epochMjd.subarray(0, n), y: y.subarray(0, n), valid: valid.subarray(0, n) };
+  if (ascending) return c;
+  const order = Uint32Array.from({ length: n }, (_, i) => i).sort((a, b) => c.epochMjd[a] - c.epochMjd[b] || a - b);
+  const out: SeriesColumns = { epochMjd: new Float64Array(n), y: new Float64Array(n), valid: new Uint8Array(n) };
+  for (let k = 0; k < n; k++) {
+    const i = order[k];
+    out.epochMjd[k] = c.epochMjd[i];
+    out.y[k] = c.y[i];
+    out.valid[k] = c.valid[i];
+  }
+  return out;
 }
 
 /** Merges per-series columns (each ascending) into one ascending series; on equal epochs the earlier series comes first. */
@@ -76,11 +149,11 @@ function mergeSeries(parts: SeriesColumns[]): SampleArrays {
   return out;
 }
 
-async function withPgClient<T>(manager: EntityManager, fn: (client: pg.ClientBase) => Promise<T>): Promise<T> {
-  if (manager.queryRunner) return fn((await manager.queryRunner.connect()) as pg.ClientBase);
+async function withPgClient<T>(manager: EntityManager, fn: (client: pg.ClientBase, inTransaction: boolean) => Promise<T>): Promise<T> {
+  if (manager.queryRunner) return fn((await manager.queryRunner.connect()) as pg.ClientBase, manager.queryRunner.isTransactionActive);
   const qr = manager.connection.createQueryRunner();
   try {
-    return await fn((await qr.connect()) as pg.ClientBase);
+    return await fn((await qr.connect()) as pg.ClientBase, false);
   } finally {
     await qr.release();
   }
@@ -88,19 +161,24 @@ async function withPgClient<T>(manager: EntityManager, fn: (client: pg.ClientBas
 
 /**
  * All samples of a campaign's uploads in epoch order (earlier upload first on a tie). Each series is read with a
- * binary COPY in primary-key order (no sort, no million row objects, doubles bit-exact) and the series are merged.
+ * binary COPY (no million row objects, doubles bit-exact) and parsed as it streams; the series are then merged.
+ * A series is stored by one COPY in epoch order, so its rows come back in that order from a plain scan of its
+ * partition: the query asks for no sort (which for 10⁷ rows spilled to disk), and the order is checked here, the
+ * rare unordered read (a synchronised or parallel scan) being sorted in memory.
  */
 export async function loadCampaignSamples(manager: EntityManager, campaignId: string, files?: InputFile[]): Promise<SampleArrays> {
   const series = files ?? (await loadFiles(manager, campaignId));
-  const parts = await withPgClient(manager, async (client) => {
+  const parts = await withPgClient(manager, async (client, inTransaction) => {
+    // a scan that starts mid-table (synchronize_seqscans) or runs in parallel would return the rows out of order
+    if (inTransaction) await client.query('SET LOCAL synchronize_seqscans = off; SET LOCAL max_parallel_workers_per_gather = 0');
     const out: SeriesColumns[] = [];
     for (const f of series) {
       // The id comes from our own table (a uuid), never from the request, so inlining it in COPY is safe.
       if (!/^[0-9a-f-]{36}$/.test(f.seriesId)) throw new Error('unexpected series id');
-      const stream = client.query(copyTo(`COPY (SELECT mjd, y, valid FROM ratio_sample WHERE series_id = '${f.seriesId}' ORDER BY mjd) TO STDOUT (FORMAT binary)`));
-      const chunks: Buffer[] = [];
-      for await (const chunk of stream) chunks.push(chunk as Buffer);
-      out.push(parseBinaryCopy(Buffer.concat(chunks)));
+      const stream = client.query(copyTo(`COPY (SELECT mjd, y, valid FROM ratio_sample WHERE series_id = '${f.seriesId}') TO STDOUT (FORMAT binary)`));
+      const reader = createBinaryCopyReader(f.sampleCount);
+      for await (const chunk of stream) reader.push(chunk as Buffer);
+      out.push(inEpochOrder(reader.finish()));
     }
     return out;
   });

@@ -870,6 +870,10 @@ export function estimateLinearDrift(y: Float64Array, tau0Seconds: number, valid?
     ssr += (y[i] - yBar - bPerSample * (i - tBar)) ** 2;
   }
   const uPerSample = Math.sqrt(ssr / (n - 2) / stt);
-  const detrended = Float64Array.from(y, (v, i) => (Number.isFinite(v) ? v - bPerSample * (i - tBar) : v));
+  const detrended = new Float64Array(y.length);
+  for (let i = 0; i < y.length; i++) {
+    const v = y[i];
+    detrended[i] = Number.isFinite(v) ? v - bPerSample * (i - tBar) : v;
+  }
   return { slopePerSecond: bPerSample / tau0Seconds, slopeUncertaintyPerSecond: uPerSample / tau0Seconds, referenceEpochSeconds: tBar * tau0Seconds, detrended };
 }

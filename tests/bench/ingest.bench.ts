@@ -183,7 +183,7 @@ async function main() {
     console.log(`  plot data (2000 buckets over ${ROWS} samples): first ${plot1.first.toFixed(0)} ms, median ${plot1.median.toFixed(0)} ms`);
 
     // the job worker in its own process computes the queued results (the HTTP process never does)
-    worker = spawn(process.execPath, ['--import', 'tsx', 'server/jobs/worker.ts'], { env: { ...process.env, ...env, LOG_LEVEL: 'error' }, stdio: ['ignore', 'inherit', 'inherit'] });
+    worker = spawn(process.execPath, [...(process.env.WORKER_NODE_ARGS ?? '').split(' ').filter(Boolean), '--import', 'tsx', 'server/jobs/worker.ts'], { env: { ...process.env, ...env, LOG_LEVEL: 'error' }, stdio: ['ignore', 'inherit', 'inherit'] });
     for (const c of sideCampaigns) {
       const s = await resultSeconds(ds, c, 300_000);
       console.log(`  result of a ${ROWS}-sample campaign in the worker: ${s.toFixed(2)} s`);
