@@ -5,6 +5,7 @@ import { useChain, useChainResult, useDeleteChain } from '../../api/chains';
 import { Button, Caution, EmptyState, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { Facts, sci } from '../registry/registry-ui';
+import { ChainCertificatesPanel } from '../certificates/chain-certificates-panel';
 
 const fixed = (v: number, d = 3) => (v < 0 ? `−${Math.abs(v).toFixed(d)}` : v.toFixed(d));
 
@@ -89,6 +90,7 @@ export function ChainPage() {
           </Panel>
         </>
       )}
+      <ChainCertificatesPanel chainId={c.id} chainAccepted={c.state === 'accepted'} needsJustification={!!r?.beforeAfter && !r.beforeAfter.agreed} />
       <Caution />
     </>
   );
