@@ -5,6 +5,7 @@ import { launchBrowser, screenshot, signInWithBrowser, startE2eServer, type E2eS
 
 // The coordinator opens the demo calibration chain: ΔC with U, k and p, the before/after check with its Eₙ and the
 // budget in which the transportable clock's own systematic cancels. Numbers on the page are checked against the API.
+// Then certifies the chain and finds the chain certificate and its signed PDF.
 
 let srv: E2eServer;
 let browser: Browser;
@@ -41,6 +42,32 @@ describe('calibration chain pages', () => {
     await expect(page.getByTestId('chain-budget').textContent()).resolves.toContain('cancels exactly');
     await expect(page.getByText('verify against your national datum authority', { exact: false }).first().isVisible()).resolves.toBe(true);
     await screenshot(page, 'chain-result');
+
+    // Every campaign of the chain is accepted: the coordinator certifies the chain and follows the job to the file.
+    await page.getByTestId('certify-chain').click();
+    const dialog = page.getByTestId('confirm-dialog');
+    await expect(dialog.getByTestId('confirm-consequences').textContent()).resolves.toContain('why its systematic offset cancels');
+    await dialog.getByLabel(/Comment for the certificate/).fill('Chain reviewed: both calibrations, the deployments and the pinned budgets.');
+    await dialog.getByRole('button', { name: 'Issue and sign' }).click();
+    const bar = dialog.getByRole('progressbar', { name: 'Issuing the certificate' });
+    await bar.waitFor({ timeout: 30_000 });
+    const link = dialog.getByRole('link', { name: /^certificate CL-/ });
+    await link.waitFor({ timeout: 180_000 });
+    await screenshot(page, 'chain-certify-dialog');
+    const number = (await link.textContent())!.replace('certificate ', '');
+    await link.click();
+    await page.getByTestId('certificate-number').waitFor();
+    await expect(page.getByTestId('certificate-number').textContent()).resolves.toBe(number);
+    await expect(page.getByTestId('chain-certificate').isVisible()).resolves.toBe(true);
+    await expect(page.getByTestId('download-pdf').getAttribute('href')).resolves.toBe(`/api/v1/certificates/${number}/pdf`);
+    await screenshot(page, 'chain-certificate-page');
+    // Back on the chain page the certificate is listed with its download link, and no second certify action is offered.
+    await page.goto(`${srv.baseUrl}/chains/${id}`);
+    await page.getByTestId('chain-certificates').waitFor();
+    await expect(page.getByTestId('chain-certificates').textContent()).resolves.toContain(number);
+    await expect(page.getByTestId('chain-certificate-pdf').first().getAttribute('href')).resolves.toBe(`/api/v1/certificates/${number}/pdf`);
+    await expect(page.getByTestId('certify-chain').count()).resolves.toBe(0);
+    await screenshot(page, 'chain-with-certificate');
     await page.goto(`${srv.baseUrl}/chains`);
     await page.getByRole('button', { name: 'New chain' }).click();
     await page.getByText('New calibration chain').waitFor();
