@@ -1,7 +1,9 @@
 import type { Browser } from 'playwright-core';
+import request from 'supertest';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { computeCampaignResult } from '../../server/results/results.service';
 import { launchBrowser, screenshot, signInWithBrowser, startE2eServer, type E2eServer } from '../helpers/browser';
+import { tokenFor } from '../helpers/test-app';
 
 // The coordinator opens the demo calibration chain: ΔC with U, k and p, the before/after check with its Eₙ and the
 // budget in which the transportable clock's own systematic cancels. Numbers on the page are checked against the API.
@@ -17,6 +19,13 @@ beforeAll(async () => {
   for (const { id } of ids.filter((x) => x.id)) {
     const has = await srv.ds.query('SELECT 1 FROM comparison_result WHERE campaign_id = $1', [id]);
     if (has.length === 0) await srv.ds.transaction((m) => computeCampaignResult(m, id, { actor: null, now: new Date() }));
+  }
+  // The demo seed certified the chain; withdraw that certificate so the coordinator can certify the chain here.
+  const token = await tokenFor(srv, 'ansel.brandt@geopotential-office.invalid');
+  const seeded: { number: string }[] = await srv.ds.query("SELECT c.number FROM certificate c JOIN calibration_chain ch ON ch.id = c.chain_id WHERE ch.name = 'NGCO-TSr1 Harbour Light chain (April–June 2026)' AND c.state = 'valid'");
+  for (const { number } of seeded) {
+    const res = await request(srv.app).post(`/api/v1/certificates/${number}/revoke`).set('authorization', `Bearer ${token}`).send({ reason: 'Withdrawn by the browser test to certify the chain again.' });
+    expect(res.status).toBe(200);
   }
 }, 180_000);
 afterAll(async () => {

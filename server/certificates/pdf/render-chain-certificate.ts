@@ -237,8 +237,11 @@ function renderBody(doc: Doc, s: ChainCertificateSnapshot): void {
   sectionHeading(flow, ++n, 'Assumptions');
   for (const a of s.assumptions) paragraph(flow, `• ${a}`, { size: 8.5 });
 
-  sectionHeading(flow, n + 1, 'Cautions');
-  bullets(flow, [...STANDING_CAUTIONS, ...s.cautions.filter((c) => !/national datum authority/.test(c))]);
+  // The cautions stay together on one page (with the heading), never one left behind.
+  const cautions = [...STANDING_CAUTIONS, ...s.cautions.filter((c) => !/national datum authority/.test(c))];
+  const cautionsHeight = cautions.reduce((sum, c) => sum + measure(doc, c, CONTENT_WIDTH - 14, { size: 9 }) + 4, 0);
+  sectionHeading(flow, n + 1, 'Cautions', cautionsHeight);
+  bullets(flow, cautions);
 
   signatureBlock(flow, s);
 }
