@@ -42,6 +42,12 @@ export const certificateSummarySchema = z.object({
 });
 export type CertificateSummary = z.infer<typeof certificateSummarySchema>;
 
+/** Value, U and k; p and ν_eff where the snapshot records them (null ν_eff: infinite). */
+const detailQuantity = z.object({
+  value: z.number(), expandedUncertainty: z.number(), coverageFactor: z.number(),
+  coverageProbability: z.number().optional(), effectiveDegreesOfFreedom: z.number().nullable().optional(),
+});
+
 export const certificateDetailSchema = certificateSummarySchema.extend({
   /** Every revision with the same year and serial, oldest first (this one included). */
   revisions: z.array(z.object({ number: z.string(), revision: z.number().int(), state: certificateStateSchema, issuedAt: z.iso.datetime() })),
@@ -49,8 +55,8 @@ export const certificateDetailSchema = certificateSummarySchema.extend({
   latestNumber: z.string().nullable(),
   auditChainHead: z.string(),
   measurementPeriod: z.object({ start: z.string(), end: z.string() }),
-  deltaC_m2s2: z.object({ value: z.number(), expandedUncertainty: z.number(), coverageFactor: z.number() }),
-  deltaH_m: z.object({ value: z.number(), expandedUncertainty: z.number(), coverageFactor: z.number() }),
+  deltaC_m2s2: detailQuantity,
+  deltaH_m: detailQuantity,
   /** Campaign: Eₙ against the registered heights. Chain: Eₙ of its before/after calibrations (null with one calibration). */
   En: z.number().nullable(),
   agreed: z.boolean().nullable(),

@@ -80,13 +80,18 @@ function scopeCondition(actor: Actor): { sql: string; params: Record<string, unk
 }
 
 /** The detail's figures of a chain certificate: its ΔC, ΔH, the period its campaigns span and the before/after Eₙ. */
+const figure = (q: ChainCertificateSnapshot['deltaC_m2s2']) => ({
+  value: q.value, expandedUncertainty: q.expandedUncertainty, coverageFactor: q.coverageFactor,
+  coverageProbability: q.coverageProbability, effectiveDegreesOfFreedom: q.effectiveDegreesOfFreedom,
+});
+
 function chainFigures(s: ChainCertificateSnapshot) {
   const starts = s.campaigns.map((c) => c.period.start).sort();
   const ends = s.campaigns.map((c) => c.period.end).sort();
   return {
     measurementPeriod: { start: starts[0], end: ends[ends.length - 1] },
-    deltaC_m2s2: { value: s.deltaC_m2s2.value, expandedUncertainty: s.deltaC_m2s2.expandedUncertainty, coverageFactor: s.deltaC_m2s2.coverageFactor },
-    deltaH_m: { value: s.deltaH_m.value, expandedUncertainty: s.deltaH_m.expandedUncertainty, coverageFactor: s.deltaH_m.coverageFactor },
+    deltaC_m2s2: figure(s.deltaC_m2s2),
+    deltaH_m: figure(s.deltaH_m),
     En: s.beforeAfter?.En ?? null,
     agreed: s.beforeAfter?.agreed ?? null,
     chain: { fromSite: s.fromSite, toSite: s.toSite, campaigns: s.campaigns.map((c) => ({ id: c.campaignId, label: c.label, role: c.role })) },

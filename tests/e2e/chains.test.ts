@@ -74,7 +74,9 @@ describe('calibration chain pages', () => {
     await page.goto(`${srv.baseUrl}/chains/${id}`);
     await page.getByTestId('chain-certificates').waitFor();
     await expect(page.getByTestId('chain-certificates').textContent()).resolves.toContain(number);
-    await expect(page.getByTestId('chain-certificate-pdf').first().getAttribute('href')).resolves.toBe(`/api/v1/certificates/${number}/pdf`);
+    // The seeded (withdrawn) certificate is listed too; the new one has its own download link.
+    const item = page.getByTestId('chain-certificates').locator('li', { hasText: number });
+    await expect(item.getByTestId('chain-certificate-pdf').getAttribute('href')).resolves.toBe(`/api/v1/certificates/${number}/pdf`);
     await expect(page.getByTestId('certify-chain').count()).resolves.toBe(0);
     await screenshot(page, 'chain-with-certificate');
     await page.goto(`${srv.baseUrl}/chains`);
