@@ -78,6 +78,7 @@ describe('calibration chain pages', () => {
     const item = page.getByTestId('chain-certificates').locator('li', { hasText: number });
     await expect(item.getByTestId('chain-certificate-pdf').getAttribute('href')).resolves.toBe(`/api/v1/certificates/${number}/pdf`);
     await expect(page.getByTestId('certify-chain').count()).resolves.toBe(0);
+    await expect(page.getByRole('button', { name: 'Delete' }).count()).resolves.toBe(0); // a certified chain stays
     await screenshot(page, 'chain-with-certificate');
     await page.goto(`${srv.baseUrl}/chains`);
     await page.getByRole('button', { name: 'New chain' }).click();
