@@ -2,12 +2,14 @@ import path from 'node:path';
 import type { Actor } from '../server/auth/actor';
 import { loadConfig } from '../server/config';
 import { UserEntity } from '../server/db/entities/core.entities';
-import { issueInline } from '../server/certificates/certificate-requests';
+import { issueChainInline, issueInline } from '../server/certificates/certificate-requests';
+import { DEMO_CHAIN_NAME } from './chains.seed';
 import type { Seeder } from './demo';
 
 // Demo certificate: the coordinator of the invented scenario certifies one accepted campaign with uploaded series, so an
 // auditor finds a signed PDF to download and verify. Its result is the stored one, or is computed here through the
-// results service when no seed stored it. Runs after the campaign, upload and result seeds.
+// results service when no seed stored it. Runs after the campaign, upload and result seeds. Then the demo calibration
+// chain's certificate.
 
 const DEMO_COORDINATOR = 'ansel.brandt@geopotential-office.invalid';
 
@@ -35,5 +37,17 @@ export const certificatesSeeder: Seeder = {
       comment: 'Demo: reviewed against the pinned budgets and the uploaded series.',
       justification: 'Demo: the invented scenario certifies this campaign as it stands; a real review would explain each exception here.',
     });
+    // The demo calibration chain is certified too, when every campaign of it is accepted (their results are computed
+    // here as the worker would), so the chain page and the auditor's list show a signed chain certificate.
+    const [chain]: { id: string }[] = await manager.query(
+      `SELECT ch.id FROM calibration_chain ch WHERE ch.name = $1 AND NOT EXISTS (
+         SELECT 1 FROM campaign c WHERE c.id IN (ch.remote_campaign_id, ch.before_campaign_id, ch.after_campaign_id) AND c.state NOT IN ('accepted', 'certified'))`,
+      [DEMO_CHAIN_NAME],
+    );
+    if (chain) {
+      await issueChainInline(manager, config, actor, chain.id, {
+        comment: 'Demo: chain reviewed against both side-by-side calibrations, the deployment record and the pinned budget version of the transportable clock.',
+      });
+    }
   },
 };

@@ -23,7 +23,10 @@ export const certificateSummarySchema = z.object({
   year: z.number().int(),
   serial: z.number().int(),
   revision: z.number().int(),
-  campaignId: z.string().uuid(),
+  /** A campaign's certificate, or a calibration chain's; campaignLabel is then the chain's name. */
+  kind: z.enum(['campaign', 'chain']),
+  campaignId: z.string().uuid().nullable(),
+  chainId: z.string().uuid().nullable(),
   campaignLabel: z.string(),
   instituteA: instituteRef,
   instituteB: instituteRef,
@@ -39,6 +42,12 @@ export const certificateSummarySchema = z.object({
 });
 export type CertificateSummary = z.infer<typeof certificateSummarySchema>;
 
+/** Value, U and k; p and ν_eff where the snapshot records them (null ν_eff: infinite). */
+const detailQuantity = z.object({
+  value: z.number(), expandedUncertainty: z.number(), coverageFactor: z.number(),
+  coverageProbability: z.number().optional(), effectiveDegreesOfFreedom: z.number().nullable().optional(),
+});
+
 export const certificateDetailSchema = certificateSummarySchema.extend({
   /** Every revision with the same year and serial, oldest first (this one included). */
   revisions: z.array(z.object({ number: z.string(), revision: z.number().int(), state: certificateStateSchema, issuedAt: z.iso.datetime() })),
@@ -46,10 +55,16 @@ export const certificateDetailSchema = certificateSummarySchema.extend({
   latestNumber: z.string().nullable(),
   auditChainHead: z.string(),
   measurementPeriod: z.object({ start: z.string(), end: z.string() }),
-  deltaC_m2s2: z.object({ value: z.number(), expandedUncertainty: z.number(), coverageFactor: z.number() }),
-  deltaH_m: z.object({ value: z.number(), expandedUncertainty: z.number(), coverageFactor: z.number() }),
-  En: z.number(),
-  agreed: z.boolean(),
+  deltaC_m2s2: detailQuantity,
+  deltaH_m: detailQuantity,
+  /** Campaign: Eₙ against the registered heights. Chain: Eₙ of its before/after calibrations (null with one calibration). */
+  En: z.number().nullable(),
+  agreed: z.boolean().nullable(),
+  /** Chain certificates: what the Eₙ above compares, and the campaigns the chain is built from. */
+  chain: z.object({
+    fromSite: z.string(), toSite: z.string(),
+    campaigns: z.array(z.object({ id: z.string().uuid(), label: z.string(), role: z.string() })),
+  }).nullable().optional(),
 });
 export type CertificateDetail = z.infer<typeof certificateDetailSchema>;
 
@@ -62,6 +77,8 @@ export const certificateListQuerySchema = z.object({
   state: certificateStateSchema.optional(),
   instituteId: z.string().uuid().optional(),
   campaignId: z.string().uuid().optional(),
+  chainId: z.string().uuid().optional(),
+  kind: z.enum(['campaign', 'chain']).optional(),
   /** Issued on or after this date (ISO 8601 date or date-time, UTC). */
   issuedFrom: z.iso.date().or(z.iso.datetime()).optional(),
   /** Issued before the end of this date. */
@@ -106,6 +123,8 @@ export const verificationResultSchema = z.object({
       state: certificateStateSchema,
       issuedAt: z.iso.datetime(),
       issuingInstitute: z.string(),
+      /** 'chain': the certificate of a calibration chain (campaignLabel is the chain's name). */
+      kind: z.enum(['campaign', 'chain']).optional(),
       campaignLabel: z.string(),
       pdfSha256: z.string(),
       supersededByNumber: z.string().nullable(),

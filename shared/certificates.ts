@@ -148,3 +148,154 @@ export function formatCertificateNumber(year: number, serial: number, revision: 
   if (!Number.isInteger(revision) || revision < 0) throw new RangeError(`revision ${revision} must be a non-negative integer`);
   return `CL-${year}-${String(serial).padStart(5, '0')}-r${revision}`;
 }
+
+// ---------------------------------------------------------------------------------------------------------------
+// Chain certificates: the certificate of a calibration chain (a remote comparison of a transportable clock T with one
+// or two side-by-side calibrations of T against the same reference clock). Its own snapshot kind, versioned; the
+// numbers are those of the chain computation (server/chains/chain-compute.ts), frozen at issue time.
+
+export const CHAIN_SNAPSHOT_VERSION = 1;
+
+/** Value with u_c, U = k·u_c, k, p and ν_eff (JCGM 100:2008 G.6.4, G.4.1); ν_eff null when infinite. */
+const chainQuantity = z.object({
+  value: z.number(),
+  standardUncertainty: z.number().nonnegative(),
+  expandedUncertainty: z.number().nonnegative(),
+  coverageFactor: z.number().positive(),
+  coverageProbability: z.number().gt(0).lt(1),
+  effectiveDegreesOfFreedom: z.number().positive().nullable(),
+});
+
+const chainClockSchema = z.object({ name: z.string().min(1), institute: z.string().min(1), species: z.string().min(1) });
+
+export const chainCampaignPartSchema = z.object({
+  campaignId: z.string().uuid(),
+  label: z.string().min(1),
+  role: z.enum(['remote', 'side-by-side-before', 'side-by-side-after']),
+  state: z.string().min(1),
+  clockA: z.string().min(1),
+  clockB: z.string().min(1),
+  siteA: z.string().min(1),
+  siteB: z.string().min(1),
+  period: z.object({ start: z.iso.datetime(), end: z.iso.datetime() }),
+  /** Which clock of the comparison is the transportable clock T. */
+  transportableIs: z.enum(['A', 'B']),
+  /** The comparison's tide-corrected fractional offset y and its standard uncertainty. */
+  y: z.number(),
+  standardUncertaintyY: z.number().nonnegative(),
+  /** The budget version of T pinned by the campaign (the one its result was computed with). */
+  transportableBudgetVersion: z.number().int().positive(),
+  /** The partner's (reference clock's) pinned budget version. */
+  partnerBudgetVersion: z.number().int().positive(),
+  resultId: z.string().uuid(),
+  /** Side by side only: the local potential difference between the two clocks' reference points. */
+  localTie: z.object({ deltaC_m2s2: z.number(), standardUncertainty_m2s2: z.number().nonnegative(), source: z.string().min(1) }).nullable(),
+});
+
+export const chainBudgetRowSchema = z.object({
+  label: z.string().min(1),
+  type: z.enum(['A', 'B']),
+  /** Unit of xᵢ ("1" for a fractional quantity). */
+  unit: z.string().min(1),
+  standardUncertainty: z.number().nonnegative(),
+  /** ∂ΔC/∂xᵢ in m²/s² per unit of xᵢ, summed over every comparison the input enters (0: cancels). */
+  sensitivity_m2s2: z.number(),
+  /** |cᵢ|·u(xᵢ), m²/s². */
+  contribution_m2s2: z.number().nonnegative(),
+  varianceShare: z.number().min(0).max(1),
+  /** ν of the input; null when infinite (type B taken as exactly known). */
+  degreesOfFreedom: z.number().positive().nullable(),
+  cancels: z.boolean(),
+  /** The campaigns the input enters. */
+  enters: z.array(z.string()),
+});
+
+export const chainCertificateSnapshotSchema = z
+  .object({
+    kind: z.literal('chain'),
+    schemaVersion: z.literal(CHAIN_SNAPSHOT_VERSION),
+    certificateNumber: certificateNumberSchema,
+    revision: z.number().int().nonnegative(),
+    issueDate: z.iso.datetime(),
+    issuingInstitute: z.string().min(1),
+    participants: z.array(z.string().min(1)).min(1),
+    chain: z.object({
+      id: z.string().uuid(),
+      name: z.string().min(1),
+      transportableClock: chainClockSchema,
+      referenceClock: chainClockSchema,
+      notes: z.string(),
+    }),
+    /** ΔC = C(to) − C(from): from the partner's site to the site where T stood in the remote comparison. */
+    fromSite: z.string().min(1),
+    toSite: z.string().min(1),
+    deltaC_m2s2: chainQuantity,
+    deltaH_m: chainQuantity.extend({ method: z.string().min(1) }),
+    yRemote: z.number(),
+    ySideBySide: z.number(),
+    yChain: z.number(),
+    campaigns: z.array(chainCampaignPartSchema).min(2),
+    deployments: z.array(z.object({ site: z.string().min(1), arrivedAt: z.iso.datetime(), departedAt: z.iso.datetime().nullable(), note: z.string() })),
+    cancellation: z.object({
+      /** T's systematic offset is one quantity in every comparison (one budget version pinned): sensitivity exactly 0. */
+      transportableCancels: z.boolean(),
+      transportableBudgetVersions: z.array(z.number().int().positive()).min(1),
+      statement: z.string().min(1),
+    }),
+    calibrations: z.array(z.object({
+      which: z.enum(['before', 'after']),
+      offset: z.number(),
+      unsharedUncertainty: z.number().nonnegative(),
+      weight: z.number().min(0).max(1),
+    })).min(1),
+    transport: z.object({
+      /** Fractional standard uncertainty of T's transport reproducibility, and the same × c² in m²/s². */
+      standardUncertainty: z.number().nonnegative(),
+      standardUncertainty_m2s2: z.number().nonnegative(),
+      origin: z.enum(['entered', 'before-after']),
+      source: z.string().min(1),
+      degreesOfFreedom: z.number().positive().nullable(),
+    }),
+    beforeAfter: z.object({
+      difference: z.number(),
+      standardUncertainty: z.number().nonnegative(),
+      expandedUncertainty: z.number().nonnegative(),
+      coverageFactor: z.literal(2),
+      En: z.number(),
+      agreed: z.boolean(),
+      statement: z.string().min(1),
+    }).nullable(),
+    budget: z.object({
+      outputUnit: z.literal('m²/s²'),
+      rows: z.array(chainBudgetRowSchema).min(1),
+      combinedStandardUncertainty: z.number().nonnegative(),
+      coverageFactor: z.number().positive(),
+      coverageProbability: z.number().gt(0).lt(1),
+      effectiveDegreesOfFreedom: z.number().positive().nullable(),
+    }),
+    tideSystem: z.enum(['mean-tide', 'zero-tide', 'tide-free']),
+    /** How tides were treated in the comparisons the chain is built from. */
+    tides: z.string().min(1),
+    softwareVersion: z.string().min(1),
+    auditChainHead: sha256Hex,
+    method: z.object({ statement: z.string().min(1), sources: z.array(z.string().min(1)).min(1) }),
+    assumptions: z.array(z.string().min(1)),
+    cautions: z.array(z.string().min(1)),
+    signer: z.object({ name: z.string().min(1), role: z.string().min(1) }),
+    verificationUrl: z.url(),
+    review: reviewDecisionSchema.optional(),
+  })
+  .superRefine((s, ctx) => {
+    const m = CERTIFICATE_NUMBER_PATTERN.exec(s.certificateNumber);
+    if (m && Number(m[3]) !== s.revision) {
+      ctx.addIssue({ code: 'custom', path: ['revision'], message: `revision ${s.revision} does not match certificate number ${s.certificateNumber}` });
+    }
+    if (s.campaigns.filter((c) => c.role === 'remote').length !== 1) ctx.addIssue({ code: 'custom', path: ['campaigns'], message: 'exactly one remote campaign' });
+  });
+
+export type ChainCertificateSnapshot = z.infer<typeof chainCertificateSnapshotSchema>;
+
+/** Either kind of snapshot, as GET …/certificates/:number/snapshot answers it (a chain's carries kind: 'chain'). */
+export const anyCertificateSnapshotSchema = z.union([chainCertificateSnapshotSchema, certificateSnapshotSchema]);
+export type AnyCertificateSnapshot = z.infer<typeof anyCertificateSnapshotSchema>;
+export const isChainSnapshot = (s: AnyCertificateSnapshot): s is ChainCertificateSnapshot => 'kind' in s && s.kind === 'chain';

@@ -20,7 +20,9 @@ export type JobProgress = z.infer<typeof jobProgressSchema>;
 export const certificateRequestProgressSchema = jobProgressSchema.extend({
   id: z.string().uuid(),
   kind: z.enum(['issue', 'reissue']),
-  campaignId: z.string().uuid(),
+  /** The campaign, or the calibration chain, the certificate is for (one of the two is set). */
+  campaignId: z.string().uuid().nullable(),
+  chainId: z.string().uuid().nullable(),
   previousNumber: z.string().nullable(),
   requestedAt: z.string(),
   /** The certificate once the request is done (an unchanged result gives the existing certificate: created false). */

@@ -12,6 +12,8 @@ import { CERTIFICATE_QUEUE, queueFor, type CertificateJob } from '../jobs/queue'
 import { findActorByUserId } from '../users/users.service';
 import { loadCertificateSource, loadStoredCertificateSource, markCertified } from './certificate-source';
 import { issueCertificate, precheckIssue, precheckReissue, reissueCertificate, type IssueContext } from './issue';
+import { loadStoredChainCertificateSource } from './chain-certificate-source';
+import { issueChainCertificate, precheckChainIssue, precheckChainReissue, reissueChainCertificate } from './chain-issue';
 
 // Certificates are issued by a job. The HTTP request checks everything a person can get wrong (the campaign's
 // state, the comment, the justification, the four-eyes rule), records the request and puts the job on the queue
@@ -21,7 +23,7 @@ import { issueCertificate, precheckIssue, precheckReissue, reissueCertificate, t
 // still open and issues it once; a duplicate delivery finds it done and does nothing.
 
 export type CertificateRequestRow = {
-  id: string; kind: 'issue' | 'reissue'; campaign_id: string; previous_number: string | null; comment: string; justification: string | null;
+  id: string; kind: 'issue' | 'reissue'; campaign_id: string | null; chain_id: string | null; previous_number: string | null; comment: string; justification: string | null;
   requested_by: string; requested_at: Date; state: 'queued' | 'running' | 'done' | 'failed'; job_id: string | null; certificate_id: string | null;
   created: boolean | null; error: string | null;
 };
@@ -36,8 +38,13 @@ function loadCertificateSourceRefusingToCompute(campaignId: string): never {
 
 export const progressUrlOf = (id: string) => `/api/v1/certificate-requests/${id}/progress`;
 
-async function openRequestFor(manager: EntityManager, campaignId: string): Promise<CertificateRequestRow | null> {
-  const rows: CertificateRequestRow[] = await manager.query(`SELECT * FROM certificate_request WHERE campaign_id = $1 AND state IN ('queued', 'running')`, [campaignId]);
+/** What a request is for: a campaign's certificate or a calibration chain's. */
+type Subject = { campaignId: string; chainId?: undefined } | { chainId: string; campaignId?: undefined };
+
+async function openRequestFor(manager: EntityManager, subject: Subject): Promise<CertificateRequestRow | null> {
+  const rows: CertificateRequestRow[] = subject.chainId
+    ? await manager.query(`SELECT * FROM certificate_request WHERE chain_id = $1 AND state IN ('queued', 'running')`, [subject.chainId])
+    : await manager.query(`SELECT * FROM certificate_request WHERE campaign_id = $1 AND state IN ('queued', 'running')`, [subject.campaignId]);
   return rows[0] ?? null;
 }
 
@@ -46,7 +53,7 @@ async function toProgress(manager: Pick<EntityManager, 'query'>, row: Certificat
   const [cert]: { number: string }[] = row.certificate_id ? await manager.query('SELECT number FROM certificate WHERE id = $1', [row.certificate_id]) : [];
   const open = row.state === 'queued' || row.state === 'running';
   return {
-    id: row.id, kind: row.kind, campaignId: row.campaign_id, previousNumber: row.previous_number, requestedAt: row.requested_at.toISOString(),
+    id: row.id, kind: row.kind, campaignId: row.campaign_id, chainId: row.chain_id, previousNumber: row.previous_number, requestedAt: row.requested_at.toISOString(),
     state: row.state,
     stage: row.state === 'done' ? 'finished' : row.state === 'failed' ? 'failed' : (p?.stage ?? 'waiting for a worker'),
     fraction: row.state === 'done' ? 1 : (p?.fraction ?? 0),
@@ -59,10 +66,10 @@ async function toProgress(manager: Pick<EntityManager, 'query'>, row: Certificat
 }
 
 export function createCertificateRequests(dataSource: DataSource, config: AppConfig) {
-  async function record(manager: EntityManager, actor: Actor, v: { kind: 'issue' | 'reissue'; campaignId: string; previousNumber: string | null; comment: string; justification: string | undefined; resultPending?: boolean }) {
-    // One open request per campaign: asking again while it is open answers with that request (idempotent POST).
-    await manager.query('SELECT pg_advisory_xact_lock(hashtext($1))', [`certificate-request:${v.campaignId}`]);
-    const open = await openRequestFor(manager, v.campaignId);
+  async function record(manager: EntityManager, actor: Actor, v: Subject & { kind: 'issue' | 'reissue'; previousNumber: string | null; comment: string; justification: string | undefined; resultPending?: boolean }) {
+    // One open request per campaign (or chain): asking again while it is open answers with that request (idempotent POST).
+    await manager.query('SELECT pg_advisory_xact_lock(hashtext($1))', [`certificate-request:${v.chainId ?? v.campaignId}`]);
+    const open = await openRequestFor(manager, v);
     if (open) return { request: await toProgress(manager, open), progressUrl: progressUrlOf(open.id) };
     const id = randomUUID();
     const boss = await queueFor(config.databaseUrl);
@@ -70,13 +77,14 @@ export function createCertificateRequests(dataSource: DataSource, config: AppCon
       db: { executeSql: async (text: string, values: unknown[]) => ({ rows: (await manager.query(text, values)) as unknown[] }) },
     });
     await manager.query(
-      `INSERT INTO certificate_request (id, kind, campaign_id, previous_number, comment, justification, requested_by, state, job_id)
-       VALUES ($1, $2, $3, $4, $5, $6, $7, 'queued', $8)`,
-      [id, v.kind, v.campaignId, v.previousNumber, v.comment, v.justification ?? null, actor.userId, jobId],
+      `INSERT INTO certificate_request (id, kind, campaign_id, chain_id, previous_number, comment, justification, requested_by, state, job_id)
+       VALUES ($1, $2, $3, $4, $5, $6, $7, $8, 'queued', $9)`,
+      [id, v.kind, v.campaignId ?? null, v.chainId ?? null, v.previousNumber, v.comment, v.justification ?? null, actor.userId, jobId],
     );
     await writeProgress(manager, 'certificate-issue', id, 'waiting for a worker', 0);
     await recordAudit(manager, actor, {
-      action: v.kind === 'issue' ? 'certificate.requested' : 'certificate.reissue-requested', entityType: 'campaign', entityId: v.campaignId,
+      action: v.kind === 'issue' ? 'certificate.requested' : 'certificate.reissue-requested',
+      entityType: v.chainId ? 'calibration_chain' : 'campaign', entityId: (v.chainId ?? v.campaignId)!,
       details: { requestId: id, previousNumber: v.previousNumber, comment: v.comment, justification: v.justification ?? null, resultPending: v.resultPending ?? false },
     });
     const [row]: CertificateRequestRow[] = await manager.query('SELECT * FROM certificate_request WHERE id = $1', [id]);
@@ -93,10 +101,24 @@ export function createCertificateRequests(dataSource: DataSource, config: AppCon
       });
     },
 
+    /** POST …/chains/:id/certificates: the same for a calibration chain (202). */
+    async requestChainIssue(actor: Actor, chainId: string, decision: { comment: string; justification?: string }) {
+      authorize(actor, 'certificates:issue');
+      return dataSource.transaction(async (manager) => {
+        const check = await precheckChainIssue({ manager, config, actor, loadStored: loadStoredChainCertificateSource }, chainId, decision);
+        return record(manager, actor, { kind: 'issue', chainId, previousNumber: null, comment: decision.comment, justification: decision.justification, resultPending: check.resultPending });
+      });
+    },
+
     /** POST …/certificates/:number/reissue: checks, records and queues (202). */
     async requestReissue(actor: Actor, number: string, reason: string, justification?: string) {
       authorize(actor, 'certificates:issue');
       return dataSource.transaction(async (manager) => {
+        const [kind]: { kind: string }[] = await manager.query('SELECT kind FROM certificate WHERE number = $1', [number]);
+        if (kind?.kind === 'chain') {
+          const { chainId } = await precheckChainReissue({ manager, config, actor, loadStored: loadStoredChainCertificateSource }, number, reason, justification);
+          return record(manager, actor, { kind: 'reissue', chainId, previousNumber: number, comment: reason, justification });
+        }
         const { campaignId } = await precheckReissue({ manager, config, actor, loadSource: async (m, id) => (await readOnlySource(m, id)) ?? loadCertificateSourceRefusingToCompute(id) }, number, reason, justification);
         return record(manager, actor, { kind: 'reissue', campaignId, previousNumber: number, comment: reason, justification });
       });
@@ -127,8 +149,17 @@ export async function carryOutCertificateRequest(
   const ctx: IssueContext = { manager, config, actor, loadSource: loadCertificateSource, markCertified, onStage: opts.onStage };
   let certificateId: string;
   let created = true;
-  if (row.kind === 'issue') {
-    const out = await issueCertificate(ctx, row.campaign_id, { comment: row.comment, justification: row.justification ?? undefined });
+  if (row.chain_id) {
+    const chainCtx = { manager, config, actor, onStage: opts.onStage };
+    if (row.kind === 'issue') {
+      const out = await issueChainCertificate(chainCtx, row.chain_id, { comment: row.comment, justification: row.justification ?? undefined });
+      certificateId = out.row.id;
+      created = out.created;
+    } else {
+      certificateId = (await reissueChainCertificate(chainCtx, row.previous_number!, row.comment, row.justification ?? undefined)).id;
+    }
+  } else if (row.kind === 'issue') {
+    const out = await issueCertificate(ctx, row.campaign_id!, { comment: row.comment, justification: row.justification ?? undefined });
     certificateId = out.row.id;
     created = out.created;
   } else {
@@ -148,6 +179,19 @@ export async function issueInline(manager: EntityManager, config: AppConfig, act
   await manager.query(
     `INSERT INTO certificate_request (id, kind, campaign_id, comment, justification, requested_by, state, started_at) VALUES ($1, 'issue', $2, $3, $4, $5, 'running', now())`,
     [id, campaignId, decision.comment, decision.justification ?? null, actor.userId],
+  );
+  await carryOutCertificateRequest(manager, config, id, { actor });
+  await writeProgress(manager, 'certificate-issue', id, 'finished', 1);
+  return id;
+}
+
+/** As issueInline, for a calibration chain (the demo seed's chain certificate). */
+export async function issueChainInline(manager: EntityManager, config: AppConfig, actor: Actor, chainId: string, decision: { comment: string; justification?: string }): Promise<string> {
+  await precheckChainIssue({ manager, config, actor, loadStored: loadStoredChainCertificateSource }, chainId, decision);
+  const id = randomUUID();
+  await manager.query(
+    `INSERT INTO certificate_request (id, kind, chain_id, comment, justification, requested_by, state, started_at) VALUES ($1, 'issue', $2, $3, $4, $5, 'running', now())`,
+    [id, chainId, decision.comment, decision.justification ?? null, actor.userId],
   );
   await carryOutCertificateRequest(manager, config, id, { actor });
   await writeProgress(manager, 'certificate-issue', id, 'finished', 1);

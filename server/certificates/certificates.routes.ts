@@ -5,7 +5,7 @@ import {
   reissueCertificateSchema, revokeCertificateSchema, VERIFY_UPLOAD_LIMIT_BYTES, verificationResultSchema, verifyByNumberQuerySchema,
 } from '../../shared/certificate-registry';
 import { issueCertificateSchema } from '../../shared/campaigns';
-import { certificateSnapshotSchema } from '../../shared/certificates';
+import { anyCertificateSnapshotSchema } from '../../shared/certificates';
 import { idParamsSchema, pageOf } from '../../shared/http';
 import { certificateRequestAcceptedSchema, certificateRequestProgressSchema } from '../../shared/jobs';
 import { Invalid, PayloadTooLarge } from '../http/errors';
@@ -63,6 +63,15 @@ export const certificateRoutes = [
     },
   }),
   route({
+    method: 'post', path: '/api/v1/chains/:id/certificates',
+    summary: 'Ask for the certificate of a calibration chain whose campaigns are all accepted or certified (comment required; rules checked now). 202 with the request; a worker renders, time-stamps and signs it; Location: its progress',
+    tag: 'certificates', permission: 'certificates:issue', params: idParamsSchema, body: issueCertificateSchema, response: certificateRequestAcceptedSchema, raw: true, problems: [409],
+    handler: async ({ actor, params, body, res, deps }) => {
+      const out = await createCertificateRequests(deps.dataSource, deps.config).requestChainIssue(actor, params.id, body);
+      res.status(202).location(out.progressUrl).json(out);
+    },
+  }),
+  route({
     method: 'get', path: '/api/v1/certificate-requests/:id/progress', summary: 'How far an issue or reissue request got (stage, fraction; the certificate number when done)',
     tag: 'certificates', permission: 'certificates:issue', params: idParamsSchema, response: certificateRequestProgressSchema,
     handler: ({ actor, params, deps }) => createCertificateRequests(deps.dataSource, deps.config).progress(actor, params.id),
@@ -82,7 +91,7 @@ export const certificateRoutes = [
     },
   }),
   route({
-    method: 'get', path: '/api/v1/certificates', summary: 'Certificates (filter by state, institute, campaign, issue date)',
+    method: 'get', path: '/api/v1/certificates', summary: 'Certificates of campaigns and of calibration chains (filter by kind, state, institute, campaign, chain, issue date)',
     tag: 'certificates', permission: 'certificates:read', query: certificateListQuerySchema, response: pageOf(certificateSummarySchema),
     handler: ({ actor, query, deps }) => createCertificatesService(deps.dataSource, deps.config).list(actor, query),
   }),
@@ -107,7 +116,7 @@ export const certificateRoutes = [
   }),
   route({
     method: 'get', path: '/api/v1/certificates/:number/snapshot', summary: 'The frozen data the certificate was rendered from (JSON)',
-    tag: 'certificates', permission: 'certificates:read', params: certificateNumberParamsSchema, response: certificateSnapshotSchema,
+    tag: 'certificates', permission: 'certificates:read', params: certificateNumberParamsSchema, response: anyCertificateSnapshotSchema,
     handler: ({ actor, params, deps }) => createCertificatesService(deps.dataSource, deps.config).snapshot(actor, params.number),
   }),
   route({

@@ -38,7 +38,7 @@ export interface IssueContext {
 }
 
 /** Key order fixed, so the same inputs always give the same fingerprint. */
-function canonicalJson(value: unknown): string {
+export function canonicalJson(value: unknown): string {
   if (Array.isArray(value)) return `[${value.map(canonicalJson).join(',')}]`;
   if (value && typeof value === 'object') {
     return `{${Object.keys(value as object)
@@ -61,7 +61,7 @@ async function lockCampaign(manager: EntityManager, campaignId: string): Promise
   await manager.query(`SELECT pg_advisory_xact_lock(hashtext($1))`, [`certificate:${campaignId}`]);
 }
 
-async function nextSerial(manager: EntityManager, year: number): Promise<number> {
+export async function nextSerial(manager: EntityManager, year: number): Promise<number> {
   const rows: { last_serial: number }[] = await manager.query(
     `INSERT INTO certificate_serial (year, last_serial) VALUES ($1, 1)
      ON CONFLICT (year) DO UPDATE SET last_serial = certificate_serial.last_serial + 1
@@ -71,7 +71,7 @@ async function nextSerial(manager: EntityManager, year: number): Promise<number>
   return rows[0].last_serial;
 }
 
-async function auditChainHead(manager: EntityManager): Promise<string> {
+export async function auditChainHead(manager: EntityManager): Promise<string> {
   const last = await manager.getRepository(AuditEventEntity).find({ order: { id: 'DESC' }, take: 1 });
   // An empty trail has no head; 64 zeros says so without breaking the snapshot schema.
   return last[0]?.hash || '0'.repeat(64);
@@ -172,8 +172,9 @@ async function participantAddresses(manager: EntityManager, config: AppConfig, r
   return [...new Set([...(await labAddresses(manager, [row.instituteAId, row.instituteBId])), config.coordinatorMail])];
 }
 
-async function notify(manager: EntityManager, config: AppConfig, row: CertificateRow, subject: string, text: string) {
-  for (const to of await participantAddresses(manager, config, row)) {
+export async function notify(manager: EntityManager, config: AppConfig, row: Pick<CertificateRow, 'instituteAId' | 'instituteBId'> & { extraInstituteIds?: string[] }, subject: string, text: string) {
+  const extra = row.extraInstituteIds?.length ? await labAddresses(manager, row.extraInstituteIds) : [];
+  for (const to of [...new Set([...(await participantAddresses(manager, config, row)), ...extra])]) {
     await enqueueMail(manager, { to, subject, text });
   }
 }
@@ -202,7 +203,7 @@ export async function issueCertificate(ctx: IssueContext, campaignId: string, de
   const { snapshot, pdf, pdfSha256, signingKeySerial } = await renderAndSign(ctx, source.body, number, 1, issuedAt, review);
   await faultPoint('certificate-issue'); // test-only kill point: serial taken, PDF signed, nothing inserted yet
   await ctx.onStage?.('storing the certificate', 0.9);
-  const row = await insertRow(manager, actor, source, fingerprint, { number, year, serial, revision: 1, issuedAt, snapshot, pdf, pdfSha256, signingKeySerial });
+  const row = await insertRow(manager, actor, campaignSubject(source), fingerprint, { number, year, serial, revision: 1, issuedAt, snapshot, pdf, pdfSha256, signingKeySerial });
   await recordAudit(manager, actor, {
     action: 'certificate.issued', entityType: 'certificate', entityId: number,
     details: { campaignId, resultId: source.resultId, pdfSha256, auditChainHead: snapshot.auditChainHead, comment: review.certificationComment, exceptions: review.exceptions, justifications: review.justifications },
@@ -216,15 +217,26 @@ export async function issueCertificate(ctx: IssueContext, campaignId: string, de
   return { created: true, row };
 }
 
-async function insertRow(
-  manager: EntityManager, actor: Actor, source: CertificateSource, fingerprint: string,
+/** What the registry row says the certificate is about: a campaign, or a calibration chain. */
+export type CertificateSubject = {
+  kind: 'campaign' | 'chain'; campaignId: string | null; chainId: string | null; resultId: string | null;
+  instituteAId: string | null; instituteBId: string | null; campaignLabel: string;
+};
+
+const campaignSubject = (source: CertificateSource): CertificateSubject => ({
+  kind: 'campaign', campaignId: source.campaignId, chainId: null, resultId: source.resultId,
+  instituteAId: source.instituteAId, instituteBId: source.instituteBId, campaignLabel: source.campaignLabel,
+});
+
+export async function insertRow(
+  manager: EntityManager, actor: Actor, source: CertificateSubject, fingerprint: string,
   v: { id?: string; number: string; year: number; serial: number; revision: number; issuedAt: Date; snapshot: CertificateSnapshot; pdf: Buffer; pdfSha256: string; signingKeySerial: string },
 ): Promise<CertificateRow> {
   const repo = manager.getRepository(CertificateEntity);
   const id = v.id ?? randomUUID();
   await repo.insert({
     id, number: v.number, year: v.year, serial: v.serial, revision: v.revision,
-    campaignId: source.campaignId, resultId: source.resultId, resultFingerprint: fingerprint,
+    kind: source.kind, campaignId: source.campaignId, chainId: source.chainId, resultId: source.resultId, resultFingerprint: fingerprint,
     instituteAId: source.instituteAId, instituteBId: source.instituteBId, campaignLabel: source.campaignLabel,
     state: 'valid', issuedBy: actor.userId, issuedByLabel: actorLabel(actor), issuedAt: v.issuedAt,
     pdf: v.pdf, pdfSha256: v.pdfSha256, pdfBytes: v.pdf.length, snapshot: v.snapshot as never,
@@ -233,13 +245,19 @@ async function insertRow(
   return repo.findOneByOrFail({ id });
 }
 
-async function lockByNumber(manager: EntityManager, number: string): Promise<CertificateRow> {
+/** The campaign of a campaign certificate (a chain certificate is reissued by chain-issue.ts). */
+function campaignOf(row: CertificateRow): string {
+  if (row.kind !== 'campaign' || !row.campaignId) throw new Conflict(`Certificate ${row.number} is a chain certificate; it is reissued from its chain.`);
+  return row.campaignId;
+}
+
+export async function lockByNumber(manager: EntityManager, number: string): Promise<CertificateRow> {
   const row = await manager.getRepository(CertificateEntity).createQueryBuilder('c').setLock('pessimistic_write').where('c.number = :number', { number }).getOne();
   if (!row) throw new NotFound(`Certificate ${number}`);
   return row;
 }
 
-async function newestRevisionNumber(manager: EntityManager, year: number, serial: number): Promise<string> {
+export async function newestRevisionNumber(manager: EntityManager, year: number, serial: number): Promise<string> {
   const newest = await manager.getRepository(CertificateEntity).findOne({ where: { year, serial }, order: { revision: 'DESC' } });
   return newest!.number;
 }
@@ -251,28 +269,29 @@ export async function reissueCertificate(ctx: IssueContext, number: string, reas
     throw new Conflict(`Certificate ${number} was already replaced; reissue the newest revision ${await newestRevisionNumber(manager, previous.year, previous.serial)}.`);
   }
   if (previous.state === 'revoked') throw new Conflict(`Certificate ${number} was withdrawn and cannot be reissued; issue a new certificate for the campaign.`);
-  await lockCampaign(manager, previous.campaignId);
+  const campaignId = campaignOf(previous);
+  await lockCampaign(manager, campaignId);
   const issuedAt = ctx.now ?? new Date();
-  const source = await ctx.loadSource(manager, previous.campaignId, actor, issuedAt);
+  const source = await ctx.loadSource(manager, campaignId, actor, issuedAt);
   if (source.campaignState !== 'accepted' && source.campaignState !== 'certified') {
     throw new Conflict(`The campaign is '${source.campaignState}'; a certificate can be reissued only for an accepted or certified campaign.`, { state: source.campaignState });
   }
   const revision = previous.revision + 1;
   const newNumber = formatCertificateNumber(previous.year, previous.serial, revision);
   const [prevSnapshot] = await manager.query(`SELECT snapshot->'review' AS review FROM certificate WHERE id = $1`, [previous.id]) as { review: ReviewDecision | null }[];
-  const review = await reviewDecision(ctx, previous.campaignId, source.body, { comment: reason, justification }, prevSnapshot?.review ?? undefined);
+  const review = await reviewDecision(ctx, campaignId, source.body, { comment: reason, justification }, prevSnapshot?.review ?? undefined);
   const { snapshot, pdf, pdfSha256, signingKeySerial } = await renderAndSign(ctx, source.body, newNumber, revision, issuedAt, review);
   await ctx.onStage?.('storing the certificate', 0.9);
   const id = randomUUID();
   // The pointer's foreign key is deferred, so the old row can step aside before the new valid one arrives.
   await manager.getRepository(CertificateEntity).update({ id: previous.id }, { state: 'superseded', supersededBy: id, supersededAt: issuedAt });
-  const row = await insertRow(manager, actor, source, fingerprintOf(source), { id, number: newNumber, year: previous.year, serial: previous.serial, revision, issuedAt, snapshot, pdf, pdfSha256, signingKeySerial });
-  await recordAudit(manager, actor, { action: 'certificate.superseded', entityType: 'certificate', entityId: number, details: { campaignId: previous.campaignId, supersededBy: newNumber, reason } });
+  const row = await insertRow(manager, actor, campaignSubject(source), fingerprintOf(source), { id, number: newNumber, year: previous.year, serial: previous.serial, revision, issuedAt, snapshot, pdf, pdfSha256, signingKeySerial });
+  await recordAudit(manager, actor, { action: 'certificate.superseded', entityType: 'certificate', entityId: number, details: { campaignId: campaignId, supersededBy: newNumber, reason } });
   await recordAudit(manager, actor, {
     action: 'certificate.reissued', entityType: 'certificate', entityId: newNumber,
-    details: { campaignId: previous.campaignId, supersedes: number, reason, resultId: source.resultId, pdfSha256, auditChainHead: snapshot.auditChainHead },
+    details: { campaignId: campaignId, supersedes: number, reason, resultId: source.resultId, pdfSha256, auditChainHead: snapshot.auditChainHead },
   });
-  if (source.campaignState !== 'certified') await ctx.markCertified(manager, previous.campaignId, actor);
+  if (source.campaignState !== 'certified') await ctx.markCertified(manager, campaignId, actor);
   await notify(manager, ctx.config, row, `Certificate ${number} replaced by ${newNumber}`,
     `Certificate ${number} for the campaign "${source.campaignLabel}" has been replaced by revision ${revision}, ${newNumber}, issued by ${actor.displayName} on ${mailDate(issuedAt)}.\n\n` +
       `What was corrected: ${reason}\n\nThe earlier file no longer stands on its own; use ${newNumber}.\n` +
@@ -320,13 +339,14 @@ export async function precheckReissue(ctx: Omit<IssueContext, 'markCertified'>, 
     throw new Conflict(`Certificate ${number} was already replaced; reissue the newest revision ${await newestRevisionNumber(ctx.manager, previous.year, previous.serial)}.`);
   }
   if (previous.state === 'revoked') throw new Conflict(`Certificate ${number} was withdrawn and cannot be reissued; issue a new certificate for the campaign.`);
-  const source = await ctx.loadSource(ctx.manager, previous.campaignId, ctx.actor, ctx.now ?? new Date());
+  const campaignId = campaignOf(previous);
+  const source = await ctx.loadSource(ctx.manager, campaignId, ctx.actor, ctx.now ?? new Date());
   if (source.campaignState !== 'accepted' && source.campaignState !== 'certified') {
     throw new Conflict(`The campaign is '${source.campaignState}'; a certificate can be reissued only for an accepted or certified campaign.`, { state: source.campaignState });
   }
   const [prevSnapshot] = await ctx.manager.query(`SELECT snapshot->'review' AS review FROM certificate WHERE id = $1`, [previous.id]) as { review: ReviewDecision | null }[];
-  await reviewDecision(ctx, previous.campaignId, source.body, { comment: reason, justification }, prevSnapshot?.review ?? undefined);
-  return { campaignId: previous.campaignId };
+  await reviewDecision(ctx, campaignId, source.body, { comment: reason, justification }, prevSnapshot?.review ?? undefined);
+  return { campaignId: campaignId };
 }
 
 export async function revokeCertificate(ctx: Pick<IssueContext, 'manager' | 'config' | 'actor' | 'now'>, number: string, reason: string): Promise<CertificateRow> {
@@ -338,7 +358,7 @@ export async function revokeCertificate(ctx: Pick<IssueContext, 'manager' | 'con
   }
   const revokedAt = ctx.now ?? new Date();
   await manager.getRepository(CertificateEntity).update({ id: row.id }, { state: 'revoked', revokedAt, revokedBy: actor.userId, revocationReason: reason });
-  await recordAudit(manager, actor, { action: 'certificate.revoked', entityType: 'certificate', entityId: number, details: { campaignId: row.campaignId, reason } });
+  await recordAudit(manager, actor, { action: 'certificate.revoked', entityType: 'certificate', entityId: number, details: { campaignId: row.campaignId, chainId: row.chainId, reason } });
   const fresh = await manager.getRepository(CertificateEntity).findOneByOrFail({ id: row.id });
   await notify(manager, ctx.config, fresh, `Certificate ${number} withdrawn`,
     `Certificate ${number} for the campaign "${row.campaignLabel}" was withdrawn on ${mailDate(revokedAt)} by ${actor.displayName}.\n\n` +

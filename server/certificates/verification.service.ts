@@ -47,6 +47,7 @@ async function describe(manager: EntityManager, row: CertificateRow) {
     state: row.state,
     issuedAt: row.issuedAt.toISOString(),
     issuingInstitute: (snapshot?.snapshot as unknown as CertificateSnapshot | undefined)?.issuingInstitute ?? '',
+    kind: row.kind,
     campaignLabel: row.campaignLabel,
     pdfSha256: row.pdfSha256,
     supersededByNumber: superseding?.number ?? null,
@@ -73,6 +74,12 @@ export async function trustAnchors(manager: EntityManager, config: AppConfig): P
     ...(legacy ? { legacyCertificatePem: legacy } : {}),
     ...(crl ? { currentCrl: crl.der } : {}),
   };
+}
+
+/** The headline for a registered certificate, saying when it is a chain certificate. */
+function headlineFor(row: CertificateRow, verdict: VerificationVerdict): string {
+  const text = headlines[verdict];
+  return row.kind === 'chain' ? text.replace(/^This certificate/, 'This chain certificate').replace('but the certificate', 'but the chain certificate') : text;
 }
 
 function stateVerdict(row: CertificateRow): VerificationVerdict {
@@ -124,7 +131,7 @@ export function createVerificationService(dataSource: DataSource, config: AppCon
       }
       const certificate = await describe(manager, row);
       const verdict = stateVerdict(row);
-      return { ...base, verdict, headline: headlines[verdict], reason: stateReason(certificate), certificate };
+      return { ...base, verdict, headline: headlineFor(row, verdict), reason: stateReason(certificate), certificate };
     },
 
     async verifyNumber(number: string, sha256: string): Promise<VerificationResult> {
@@ -141,7 +148,7 @@ export function createVerificationService(dataSource: DataSource, config: AppCon
       const keyNote = revokedAt ? `the key that signed this certificate was withdrawn on ${revokedAt} after a compromise; upload the file to check whether its time-stamp predates the compromise` : null;
       const stateNote = verdict === 'valid' ? null : 'check the file itself (upload it) for the newer revision or the reason for the withdrawal';
       const reason = [stateNote, keyNote].filter(Boolean).join('; ') || null;
-      return { ...base, verdict, headline: headlines[verdict], reason };
+      return { ...base, verdict, headline: headlineFor(row, verdict), reason };
     },
   };
 }

@@ -34,7 +34,7 @@ export const chainRoutes = [
     handler: ({ actor, params, body, deps }) => svc(deps).update(actor, params.id, body),
   }),
   route({
-    method: 'delete', path: '/api/v1/chains/:id', summary: 'Delete a calibration chain (its campaigns stay)', tag: 'chains', permission: 'chains:write',
+    method: 'delete', path: '/api/v1/chains/:id', summary: 'Delete a calibration chain (its campaigns stay; refused once it has a certificate)', tag: 'chains', permission: 'chains:write', problems: [409],
     params: idParamsSchema, successStatus: 204,
     handler: async ({ actor, params, deps }) => { await svc(deps).remove(actor, params.id); },
   }),

@@ -193,6 +193,10 @@ export function createChainsService(dataSource: DataSource) {
       authorize(actor, 'chains:write');
       await dataSource.transaction(async (m) => {
         const { row } = await writable(m, actor, id);
+        // Certificates are never deleted, and each names its chain: a certified chain stays.
+        const [cert]: { number: string }[] = await m.query("SELECT number FROM certificate WHERE chain_id = $1 ORDER BY (state = 'valid') DESC, issued_at DESC LIMIT 1", [id]);
+        const [req]: { id: string }[] = cert ? [] : await m.query('SELECT id FROM certificate_request WHERE chain_id = $1 LIMIT 1', [id]);
+        if (cert || req) throw new Conflict(cert ? `The chain has certificate ${cert.number}; a certified chain cannot be deleted (withdraw the certificate if it must no longer be relied on).` : 'A certificate was asked for this chain; it cannot be deleted.', cert ? { number: cert.number } : {});
         await m.getRepository(CalibrationChainEntity).delete({ id });
         await recordAudit(m, actor, { action: 'chain.delete', entityType: 'calibration_chain', entityId: id, instituteId: row.instituteId, details: { name: row.name } });
       });

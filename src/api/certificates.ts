@@ -2,7 +2,7 @@ import { keepPreviousData, useMutation, useQuery, useQueryClient } from '@tansta
 import type { AuditEvent } from '../../shared/auth';
 import type { CampaignSummary } from '../../shared/campaigns';
 import type { CertificateDetail, CertificateListQuery, CertificateSummary, VerificationResult } from '../../shared/certificate-registry';
-import type { CertificateSnapshot } from '../../shared/certificates';
+import type { AnyCertificateSnapshot } from '../../shared/certificates';
 import { JOB_POLL_SECONDS, type CertificateRequestAccepted, type CertificateRequestProgress } from '../../shared/jobs';
 import type { TrustAnchorInfo } from '../../shared/certificate-signature';
 import type { Page, Problem } from '../../shared/http';
@@ -14,6 +14,7 @@ export const certificateKeys = {
   detail: (number: string) => [...certificateKeys.all, 'detail', number] as const,
   snapshot: (number: string) => [...certificateKeys.all, 'snapshot', number] as const,
   forCampaign: (campaignId: string) => [...certificateKeys.all, 'campaign', campaignId] as const,
+  forChain: (chainId: string) => [...certificateKeys.all, 'chain', chainId] as const,
   audit: (campaignId: string) => [...certificateKeys.all, 'audit', campaignId] as const,
   awaiting: () => [...certificateKeys.all, 'awaiting'] as const,
 };
@@ -41,6 +42,12 @@ export const useCampaignCertificates = (campaignId: string) =>
     queryFn: () => api<Page<CertificateSummary>>(`/api/v1/certificates?${queryString({ campaignId, page: 1, pageSize: 50, sort: 'issuedAt', order: 'asc' })}`),
   });
 
+export const useChainCertificates = (chainId: string) =>
+  useQuery({
+    queryKey: certificateKeys.forChain(chainId),
+    queryFn: () => api<Page<CertificateSummary>>(`/api/v1/certificates?${queryString({ chainId, kind: 'chain', page: 1, pageSize: 50, sort: 'issuedAt', order: 'asc' })}`),
+  });
+
 /** Accepted campaigns: the ones a coordinator may certify (kept under the certificate keys so issuing refreshes it). */
 export const useCampaignsAwaitingCertificate = (enabled: boolean) =>
   useQuery({
@@ -55,7 +62,7 @@ export const useCertificate = (number: string) =>
 export const useCertificateSnapshot = (number: string, enabled: boolean) =>
   useQuery({
     queryKey: certificateKeys.snapshot(number),
-    queryFn: () => api<CertificateSnapshot>(`/api/v1/certificates/${encodeURIComponent(number)}/snapshot`),
+    queryFn: () => api<AnyCertificateSnapshot>(`/api/v1/certificates/${encodeURIComponent(number)}/snapshot`),
     enabled,
   });
 
@@ -78,6 +85,10 @@ function useCertificateMutation<V, R>(fn: (v: V) => Promise<R>) {
 export const useIssueCertificate = () =>
   useCertificateMutation((v: { campaignId: string; comment: string; justification?: string }) =>
     api<CertificateRequestAccepted>(`/api/v1/campaigns/${v.campaignId}/certificates`, { method: 'POST', body: { comment: v.comment, justification: v.justification } }),
+  );
+export const useIssueChainCertificate = () =>
+  useCertificateMutation((v: { chainId: string; comment: string; justification?: string }) =>
+    api<CertificateRequestAccepted>(`/api/v1/chains/${v.chainId}/certificates`, { method: 'POST', body: { comment: v.comment, justification: v.justification } }),
   );
 export const useReissueCertificate = () =>
   useCertificateMutation((v: { number: string; reason: string }) =>

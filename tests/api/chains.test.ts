@@ -139,22 +139,31 @@ describe('creating chains', () => {
   });
 
   it('with one calibration, the transport reproducibility must be entered', async () => {
-    await request(t.app).delete(`/api/v1/chains/${chainId}`).set('authorization', `Bearer ${coordinator}`).expect(204);
+    // The demo chain is certified by the demo seed, so it stays (a certified chain is never deleted): the rule is
+    // checked on a new chain (refused before anything else is looked at) and on the demo chain changed to one calibration.
     const missing = await post({ ...base(), afterCampaignId: parts.after });
     expect(missing.status).toBe(400);
     expect(missing.body.issues.map((i: { path: string }) => i.path)).toContain('body.transportReproducibility');
-    const ok = await post({ ...base(), afterCampaignId: parts.after, transportReproducibility: 2e-18, transportReproducibilitySource: 'lab transport study (invented)' });
-    expect(ok.status, ok.text).toBe(201);
-    const [row] = await t.ds.query('SELECT * FROM calibration_chain WHERE id = $1', [ok.body.id]);
+    const patch = (body: object) => request(t.app).patch(`/api/v1/chains/${chainId}`).set('authorization', `Bearer ${coordinator}`).send(body);
+    const stillMissing = await patch({ beforeCampaignId: null });
+    expect(stillMissing.status).toBe(400);
+    expect(stillMissing.body.issues.map((i: { path: string }) => i.path)).toContain('body.transportReproducibility');
+    const ok = await patch({ beforeCampaignId: null, transportReproducibility: 2e-18, transportReproducibilitySource: 'lab transport study (invented)' });
+    expect(ok.status, ok.text).toBe(200);
+    const [row] = await t.ds.query('SELECT * FROM calibration_chain WHERE id = $1', [chainId]);
     expect(row.transport_reproducibility).toBe(2e-18);
-    const audit = await t.ds.query("SELECT action FROM audit_event WHERE entity_id = $1", [ok.body.id]);
-    expect(audit.map((a: { action: string }) => a.action)).toContain('chain.create');
-    const r = await get(`/api/v1/chains/${ok.body.id}/result`, coordinator);
+    expect(row.before_campaign_id).toBeNull();
+    const audit = await t.ds.query("SELECT action FROM audit_event WHERE entity_id = $1", [chainId]);
+    expect(audit.map((a: { action: string }) => a.action)).toContain('chain.update');
+    const r = await get(`/api/v1/chains/${chainId}/result`, coordinator);
     expect(r.status, r.text).toBe(200);
     expect(r.body.beforeAfter).toBeNull();
     expect(r.body.transport).toMatchObject({ origin: 'entered', standardUncertainty: 2e-18 });
     const line = r.body.lines.find((l: { key: string }) => l.key === 'transport');
     expect(line.contribution_m2s2).toBeCloseTo(C2 * 2e-18, 9);
+    // The certified chain cannot be deleted.
+    const del = await request(t.app).delete(`/api/v1/chains/${chainId}`).set('authorization', `Bearer ${coordinator}`);
+    expect(del.status).toBe(409);
   });
 
   it('lab staff of another institute than T’s may not create one', async () => {

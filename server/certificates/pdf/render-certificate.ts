@@ -18,13 +18,13 @@ import {
 // before it is placed, and a page is started when it would not fit, so text never overlaps; the
 // footer with "page x of y" is drawn in a second pass over the buffered pages.
 
-type Doc = PDFKit.PDFDocument;
+export type Doc = PDFKit.PDFDocument;
 
-const PAGE = { width: 595.28, height: 841.89 };
-const MARGIN = { top: 58, bottom: 70, left: 56, right: 56 };
-const CONTENT_WIDTH = PAGE.width - MARGIN.left - MARGIN.right;
+export const PAGE = { width: 595.28, height: 841.89 };
+export const MARGIN = { top: 58, bottom: 70, left: 56, right: 56 };
+export const CONTENT_WIDTH = PAGE.width - MARGIN.left - MARGIN.right;
 
-const COLOUR = {
+export const COLOUR = {
   ink: '#1c2630',
   teal: '#0d5c63',
   slate: '#5d6b78',
@@ -34,7 +34,7 @@ const COLOUR = {
   alert: '#9b3d1c',
 };
 
-const FONT = { regular: 'NotoSans', semi: 'NotoSans-SemiBold' };
+export const FONT = { regular: 'NotoSans', semi: 'NotoSans-SemiBold' };
 
 /** Standing cautions printed on every certificate, whatever the campaign says. */
 export const STANDING_CAUTIONS = [
@@ -48,7 +48,7 @@ export function unitCell(unit: string | undefined): string {
   return !unit || /^1\b/.test(unit.trim()) ? '—' : unit;
 }
 
-function coverageNote(q: { coverageFactor: number; coverageProbability?: number; effectiveDegreesOfFreedom?: number | null }): string {
+export function coverageNote(q: { coverageFactor: number; coverageProbability?: number; effectiveDegreesOfFreedom?: number | null }): string {
   if (q.coverageProbability === undefined) return `k = ${q.coverageFactor}`;
   return coverageText({ coverageFactor: q.coverageFactor, coverageProbability: q.coverageProbability, effectiveDegreesOfFreedom: q.effectiveDegreesOfFreedom ?? null });
 }
@@ -58,7 +58,7 @@ function yText(s: CertificateSnapshot): string {
   return s.fractionalOffset.yText ?? formatScientific(s.fractionalOffset.y, 5);
 }
 
-class Flow {
+export class Flow {
   y = MARGIN.top;
 
   constructor(readonly doc: Doc) {}
@@ -82,7 +82,7 @@ class Flow {
   }
 }
 
-interface TextStyle {
+export interface TextStyle {
   font?: string;
   size?: number;
   colour?: string;
@@ -94,12 +94,12 @@ function applyStyle(doc: Doc, style: TextStyle): void {
   doc.font(style.font ?? FONT.regular).fontSize(style.size ?? 9).fillColor(style.colour ?? COLOUR.ink);
 }
 
-function measure(doc: Doc, text: string, width: number, style: TextStyle): number {
+export function measure(doc: Doc, text: string, width: number, style: TextStyle): number {
   applyStyle(doc, style);
   return doc.heightOfString(text, { width, lineGap: style.lineGap ?? 1.5 });
 }
 
-function put(doc: Doc, text: string, x: number, y: number, width: number, style: TextStyle): number {
+export function put(doc: Doc, text: string, x: number, y: number, width: number, style: TextStyle): number {
   applyStyle(doc, style);
   const height = doc.heightOfString(text, { width, lineGap: style.lineGap ?? 1.5 });
   doc.text(text, x, y, { width, align: style.align ?? 'left', lineGap: style.lineGap ?? 1.5 });
@@ -109,7 +109,7 @@ function put(doc: Doc, text: string, x: number, y: number, width: number, style:
 // ---------------------------------------------------------------------------------------------
 // Blocks
 
-function sectionHeading(flow: Flow, number: number, title: string, minFollowing = 40): void {
+export function sectionHeading(flow: Flow, number: number, title: string, minFollowing = 40): void {
   const { doc } = flow;
   const text = `${number}   ${title}`;
   const h = measure(doc, text, CONTENT_WIDTH, { font: FONT.semi, size: 11.5 });
@@ -122,7 +122,7 @@ function sectionHeading(flow: Flow, number: number, title: string, minFollowing 
   flow.y += 7;
 }
 
-function paragraph(flow: Flow, text: string, style: TextStyle = {}, width = CONTENT_WIDTH, x = MARGIN.left): void {
+export function paragraph(flow: Flow, text: string, style: TextStyle = {}, width = CONTENT_WIDTH, x = MARGIN.left): void {
   const { doc } = flow;
   const full = { size: 9, lineGap: 2, ...style };
   const h = measure(doc, text, width, full);
@@ -140,7 +140,7 @@ function paragraph(flow: Flow, text: string, style: TextStyle = {}, width = CONT
 }
 
 /** Label–value rows; labels in slate on the left, values wrap in their own column. */
-function keyValues(flow: Flow, rows: [string, string][], labelWidth = 150, valueSize = 9): void {
+export function keyValues(flow: Flow, rows: [string, string][], labelWidth = 150, valueSize = 9): void {
   const { doc } = flow;
   const valueWidth = CONTENT_WIDTH - labelWidth - 10;
   for (const [label, value] of rows) {
@@ -154,14 +154,14 @@ function keyValues(flow: Flow, rows: [string, string][], labelWidth = 150, value
   }
 }
 
-interface Column {
+export interface Column {
   header: string;
   width: number;
   align?: 'left' | 'right';
 }
 
 /** A table whose rows are measured cell by cell; the header repeats after a page break. */
-function table(flow: Flow, columns: Column[], rows: string[][], options: { boldLastRows?: number; size?: number } = {}): void {
+export function table(flow: Flow, columns: Column[], rows: string[][], options: { boldLastRows?: number; size?: number } = {}): void {
   const { doc } = flow;
   const size = options.size ?? 8.5;
   const pad = 4;
@@ -216,7 +216,7 @@ function table(flow: Flow, columns: Column[], rows: string[][], options: { boldL
 // ---------------------------------------------------------------------------------------------
 // Vector graphics
 
-function drawQrCode(doc: Doc, url: string, x: number, y: number, size: number): void {
+export function drawQrCode(doc: Doc, url: string, x: number, y: number, size: number): void {
   const qr = QRCode.create(url, { errorCorrectionLevel: 'M' });
   const n = qr.modules.size;
   const quiet = 2;
@@ -461,7 +461,7 @@ function resultPanel(flow: Flow, s: CertificateSnapshot): void {
   flow.y = top + panelHeight + 4;
 }
 
-function drawFurniture(doc: Doc, s: CertificateSnapshot): void {
+export function drawFurniture(doc: Doc, s: Pick<CertificateSnapshot, 'certificateNumber'>): void {
   const range = doc.bufferedPageRange();
   for (let i = range.start; i < range.start + range.count; i++) {
     doc.switchToPage(i);
@@ -629,7 +629,7 @@ function renderBody(doc: Doc, s: CertificateSnapshot): void {
 }
 
 /** Who accepted and certified, and — when the campaign had review exceptions — why it was certified anyway. */
-function reviewSection(flow: Flow, number: number, r: NonNullable<CertificateSnapshot['review']>): void {
+export function reviewSection(flow: Flow, number: number, r: NonNullable<CertificateSnapshot['review']>): void {
   sectionHeading(flow, number, 'Review decision');
   keyValues(flow, [
     ['Accepted by', r.acceptedBy ? `${r.acceptedBy}${r.acceptanceComment ? `: ${r.acceptanceComment}` : ''}` : '—'],
@@ -639,7 +639,7 @@ function reviewSection(flow: Flow, number: number, r: NonNullable<CertificateSna
   ]);
 }
 
-function signatureBlock(flow: Flow, s: CertificateSnapshot): void {
+export function signatureBlock(flow: Flow, s: Pick<CertificateSnapshot, 'issuingInstitute' | 'signer' | 'verificationUrl'>): void {
   const { doc } = flow;
   const lines: [string, TextStyle][] = [
     [`Signed for ${s.issuingInstitute}`, { size: 8, colour: COLOUR.slate }],
@@ -669,15 +669,34 @@ function signatureBlock(flow: Flow, s: CertificateSnapshot): void {
  */
 export async function renderCertificatePdf(input: CertificateSnapshot): Promise<Buffer> {
   const snapshot = parseCertificateSnapshot(input);
+  return buildCertificatePdf({
+    number: snapshot.certificateNumber, issueDate: snapshot.issueDate, issuingInstitute: snapshot.issuingInstitute, softwareVersion: snapshot.softwareVersion,
+    title: `Certificate ${snapshot.certificateNumber}: geopotential difference from an optical clock comparison`,
+    subject: `Chronometric levelling certificate ${snapshot.certificateNumber}`,
+    keywords: `${snapshot.certificateNumber}; chronometric levelling; geopotential difference`,
+    snapshotJson: snapshot, csv: resultCsv(snapshot),
+    body: (doc) => renderBody(doc, snapshot),
+  });
+}
+
+/**
+ * The PDF shell every certificate kind shares: fonts, document information (with /CertificateNumber for the
+ * verifier), the body drawn by `body`, the page furniture, and the PDF/A-3 parts with the snapshot and CSV attached.
+ */
+export async function buildCertificatePdf(o: {
+  number: string; issueDate: string; issuingInstitute: string; softwareVersion: string; title: string; subject: string; keywords: string;
+  snapshotJson: unknown; csv: string; body: (doc: Doc) => void;
+}): Promise<Buffer> {
+  const snapshot = { certificateNumber: o.number };
   const fonts = loadCertificateFonts();
-  const issued = new Date(snapshot.issueDate);
+  const issued = new Date(o.issueDate);
   const info = {
-    Title: `Certificate ${snapshot.certificateNumber}: geopotential difference from an optical clock comparison`,
-    Author: snapshot.issuingInstitute,
-    Subject: `Chronometric levelling certificate ${snapshot.certificateNumber}`,
-    Keywords: `${snapshot.certificateNumber}; chronometric levelling; geopotential difference`,
-    Creator: `Chronolevel ${snapshot.softwareVersion}`,
-    Producer: `Chronolevel ${snapshot.softwareVersion} (pdfkit)`,
+    Title: o.title,
+    Author: o.issuingInstitute,
+    Subject: o.subject,
+    Keywords: o.keywords,
+    Creator: `Chronolevel ${o.softwareVersion}`,
+    Producer: `Chronolevel ${o.softwareVersion} (pdfkit)`,
   };
   const doc = new PDFDocument({
     // PDF/A-3 (ISO 19005-3) builds on PDF 1.7.
@@ -701,7 +720,7 @@ export async function renderCertificatePdf(input: CertificateSnapshot): Promise<
 
   doc.registerFont(FONT.regular, fonts.regular);
   doc.registerFont(FONT.semi, fonts.semiBold);
-  renderBody(doc, snapshot);
+  o.body(doc);
   drawFurniture(doc, snapshot);
   addArchivalParts(doc, {
     title: info.Title, author: info.Author, subject: info.Subject, keywords: info.Keywords, creator: info.Creator, producer: info.Producer,
@@ -710,12 +729,12 @@ export async function renderCertificatePdf(input: CertificateSnapshot): Promise<
       {
         name: `${snapshot.certificateNumber}.snapshot.json`, mime: 'application/json', relationship: 'Source',
         description: 'Machine-readable snapshot the certificate was rendered from (schema: certificate-snapshot)',
-        data: Buffer.from(`${JSON.stringify(snapshot, null, 2)}\n`, 'utf8'),
+        data: Buffer.from(`${JSON.stringify(o.snapshotJson, null, 2)}\n`, 'utf8'),
       },
       {
         name: `${snapshot.certificateNumber}.result.csv`, mime: 'text/csv', relationship: 'Data',
         description: 'Result quantities with units and uncertainties (CSV, RFC 4180)',
-        data: Buffer.from(resultCsv(snapshot), 'utf8'),
+        data: Buffer.from(o.csv, 'utf8'),
       },
     ],
   });

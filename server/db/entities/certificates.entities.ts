@@ -11,7 +11,10 @@ export interface CertificateRow {
   year: number;
   serial: number;
   revision: number;
-  campaignId: string;
+  /** A campaign's certificate, or a calibration chain's (migration 1766100000000): exactly one of the two ids is set. */
+  kind: 'campaign' | 'chain';
+  campaignId: string | null;
+  chainId: string | null;
   resultId: string | null;
   /** SHA-256 over the inputs the snapshot was built from; an unchanged campaign has the same fingerprint. */
   resultFingerprint: string;
@@ -42,7 +45,9 @@ export const CertificateEntity = new EntitySchema<CertificateRow>({
     year: { type: 'int' },
     serial: { type: 'int' },
     revision: { type: 'int' },
-    campaignId: { name: 'campaign_id', type: 'uuid' },
+    kind: { type: 'text', default: 'campaign' },
+    campaignId: { name: 'campaign_id', type: 'uuid', nullable: true },
+    chainId: { name: 'chain_id', type: 'uuid', nullable: true },
     resultId: { name: 'result_id', type: 'text', nullable: true },
     resultFingerprint: { name: 'result_fingerprint', type: 'text' },
     instituteAId: { name: 'institute_a_id', type: 'uuid', nullable: true },

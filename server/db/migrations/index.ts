@@ -22,6 +22,7 @@ import { ReadAfterWrite1766000900000 } from './1766000900000-read-after-write';
 import { RatioClosures1766030000000 } from './1766030000000-ratio-closures';
 import { SiteTiePotential1766050000000 } from './1766050000000-site-tie-potential';
 import { JobsProgress1766080000000 } from './1766080000000-jobs-progress';
+import { ChainCertificates1766100000000 } from './1766100000000-chain-certificates';
 import { SeriesOverviewCoarse1766130000000 } from './1766130000000-series-overview-coarse';
 
 // Every migration, in order. Add new ones at the end (file name: <timestamp>-<what>.ts).
@@ -50,5 +51,6 @@ export const migrations = [
   RatioClosures1766030000000,
   SiteTiePotential1766050000000,
   JobsProgress1766080000000,
+  ChainCertificates1766100000000,
   SeriesOverviewCoarse1766130000000,
 ];

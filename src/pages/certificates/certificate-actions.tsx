@@ -15,7 +15,7 @@ import { notify } from '../../lib/notices';
 // signs, and the dialog shows its progress until the certificate exists, then links to it.
 
 /** The worker's progress on a request, then the certificate (or why there is none). */
-function RequestProgress({ progressUrl, onOpen }: { progressUrl: string; onOpen: () => void }) {
+export function RequestProgress({ progressUrl, onOpen }: { progressUrl: string; onOpen: () => void }) {
   const progress = useCertificateRequestProgress(progressUrl);
   const p = progress.data;
   if (!p) return <p className="text-sm text-ink-500">Request recorded; waiting for its progress…</p>;

@@ -26,7 +26,8 @@ export function CertificatePage() {
     <>
       <header className="flex flex-wrap items-start justify-between gap-4">
         <div>
-          <p className="text-sm text-ink-500"><Link to="/certificates">Certificates</Link> / {c.campaignLabel}</p>
+          <p className="text-sm text-ink-500"><Link to="/certificates">Certificates</Link> / {c.kind === 'chain' && c.chainId ? <>chain <Link to={`/chains/${c.chainId}`}>{c.campaignLabel}</Link></> : c.campaignLabel}</p>
+          {c.kind === 'chain' && <p className="mt-1 inline-block rounded bg-ink-100 px-2 py-0.5 text-xs font-medium text-ink-700" data-testid="chain-certificate">Chain certificate: a transportable clock’s remote comparison with its side-by-side calibrations</p>}
           <h1 className="font-mono" data-testid="certificate-number">{c.number}</h1>
           <p className="mt-1 flex items-center gap-2 text-sm" data-testid="certificate-state"><CertificateStateBadge state={c.state} /> issued {c.issuedAt.replace('T', ' ').slice(0, 16)} UTC by {c.issuedBy.replace(/ <.*$/, '')}</p>
         </div>
@@ -51,10 +52,13 @@ export function CertificatePage() {
       <div className="grid gap-5 md:grid-cols-2">
         <Panel title="Result">
           <dl className="grid grid-cols-[minmax(0,15rem)_1fr] gap-x-4 gap-y-1.5 text-sm">
-            <dt className="text-ink-500">Geopotential difference ΔC</dt><dd>{formatExpanded(c.deltaC_m2s2, 'm²/s²')}</dd>
+            <dt className="text-ink-500">Geopotential difference ΔC{c.chain ? ` = C(${c.chain.toSite}) − C(${c.chain.fromSite})` : ''}</dt><dd>{formatExpanded(c.deltaC_m2s2, 'm²/s²')}</dd>
             <dt className="text-ink-500">Normal-height difference ΔH</dt><dd>{formatExpanded(c.deltaH_m, 'm')}</dd>
-            <dt className="text-ink-500">Eₙ against the sites’ registered normal heights (geodesy)</dt><dd>{fixed(c.En, 2)} {c.agreed ? '(|Eₙ| ≤ 1: agrees)' : '(|Eₙ| > 1: does not agree)'}</dd>
-            <dt className="text-ink-500">Measurement period</dt><dd>{c.measurementPeriod.start.slice(0, 10)} to {c.measurementPeriod.end.slice(0, 10)}</dd>
+            {c.kind === 'chain'
+              ? <><dt className="text-ink-500">Eₙ of the before/after calibrations</dt><dd>{c.En === null ? 'one calibration: no before/after check' : `${fixed(c.En, 2)} ${c.agreed ? '(|Eₙ| ≤ 1: consistent)' : '(|Eₙ| > 1: not consistent)'}`}</dd></>
+              : <><dt className="text-ink-500">Eₙ against the sites’ registered normal heights (geodesy)</dt><dd>{c.En === null ? '—' : fixed(c.En, 2)} {c.agreed ? '(|Eₙ| ≤ 1: agrees)' : '(|Eₙ| > 1: does not agree)'}</dd></>}
+            <dt className="text-ink-500">{c.kind === 'chain' ? 'Campaigns span' : 'Measurement period'}</dt><dd>{c.measurementPeriod.start.slice(0, 10)} to {c.measurementPeriod.end.slice(0, 10)}</dd>
+            {c.chain && <><dt className="text-ink-500">Campaigns</dt><dd><ul>{c.chain.campaigns.map((x) => <li key={x.id}>{x.role.replace(/-/g, ' ')}: <Link to={`/campaigns/${x.id}`}>{x.label}</Link></li>)}</ul></dd></>}
             <dt className="text-ink-500">{c.instituteA && c.instituteB && c.instituteA.id !== c.instituteB.id ? 'Institutes' : 'Institute'}</dt><dd>{[...new Set([c.instituteA?.name, c.instituteB?.name].filter(Boolean))].join(' and ')}</dd>
           </dl>
         </Panel>
@@ -65,7 +69,7 @@ export function CertificatePage() {
             <dt className="text-ink-500">Audit-trail head at issue</dt><dd className="break-all font-mono text-xs">{groupHex(c.auditChainHead)}</dd>
           </dl>
           <p className="mt-3 text-sm">
-            {role !== 'operator' && <><Link to={`/audit/campaigns/${c.campaignId}`}>Audit trail of the campaign</Link> · </>}
+            {role !== 'operator' && c.campaignId && <><Link to={`/audit/campaigns/${c.campaignId}`}>Audit trail of the campaign</Link> · </>}
             <Link to={`/verify?number=${encodeURIComponent(c.number)}&sha256=${c.pdfSha256}`}>Public check</Link>
           </p>
         </Panel>
@@ -93,10 +97,10 @@ export function CertificatePage() {
           </div>
         )}
         {showSnapshot && !snapshot.data && <p className="mt-3 text-sm text-ink-500">Loading…</p>}
-        {showSnapshot && snapshot.data && !raw && <SnapshotTable snapshot={snapshot.data} />}
+        {showSnapshot && snapshot.data && !raw && ('timeSeries' in snapshot.data ? <SnapshotTable snapshot={snapshot.data} /> : <p className="mt-3 text-sm text-ink-600">A chain certificate’s snapshot: see the raw JSON.</p>)}
         {showSnapshot && snapshot.data && raw && (
           <pre className="mt-3 max-h-[28rem] overflow-auto rounded-md bg-ink-900 p-3 text-xs text-ink-50" data-testid="snapshot-json">
-            {JSON.stringify({ ...snapshot.data, timeSeries: `[${snapshot.data.timeSeries.length} points]` }, null, 2)}
+            {JSON.stringify('timeSeries' in snapshot.data ? { ...snapshot.data, timeSeries: `[${snapshot.data.timeSeries.length} points]` } : snapshot.data, null, 2)}
           </pre>
         )}
       </Panel>

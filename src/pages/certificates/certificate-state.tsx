@@ -1,4 +1,5 @@
 import { certificateStateLabels, type CertificateState } from '../../../shared/certificate-registry';
+import { coverageText } from '../../../shared/number-text';
 
 const styles: Record<CertificateState, { mark: string; cls: string }> = {
   valid: { mark: '✓', cls: 'bg-agree-100 text-agree-800' },
@@ -17,8 +18,11 @@ export function CertificateStateBadge({ state }: { state: CertificateState }) {
   );
 }
 
-/** Expanded quantity as the certificate prints it: value ± U (k = 2) unit. */
-export function formatExpanded(q: { value: number; expandedUncertainty: number; coverageFactor: number }, unit: string): string {
+/** Expanded quantity as the certificate prints it: value ± U unit (k, and p and ν_eff where recorded). */
+export function formatExpanded(q: { value: number; expandedUncertainty: number; coverageFactor: number; coverageProbability?: number; effectiveDegreesOfFreedom?: number | null }, unit: string): string {
   const decimals = q.expandedUncertainty > 0 ? Math.max(0, 1 - Math.floor(Math.log10(q.expandedUncertainty))) : 3;
-  return `${q.value.toFixed(decimals).replace(/^-/, '−')} ± ${q.expandedUncertainty.toFixed(decimals)} ${unit} (k = ${q.coverageFactor})`;
+  const coverage = q.coverageProbability !== undefined
+    ? coverageText({ coverageFactor: q.coverageFactor, coverageProbability: q.coverageProbability, effectiveDegreesOfFreedom: q.effectiveDegreesOfFreedom ?? null })
+    : `k = ${Number.isInteger(q.coverageFactor) ? q.coverageFactor : q.coverageFactor.toFixed(2)}`;
+  return `${q.value.toFixed(decimals).replace(/^-/, '−')} ± ${q.expandedUncertainty.toFixed(decimals)} ${unit} (${coverage})`;
 }

@@ -12,7 +12,12 @@ import { CertificateStateBadge } from './certificate-state';
 const col = createColumnHelper<CertificateSummary>();
 const columns = [
   col.accessor('number', { header: 'Number', cell: (c) => <Link to={`/certificates/${c.getValue()}`} className="font-mono">{c.getValue()}</Link> }),
-  col.accessor('campaignLabel', { header: 'Campaign' }),
+  col.accessor('campaignLabel', {
+    header: 'Campaign or chain',
+    cell: (c) => (c.row.original.kind === 'chain'
+      ? <span><span className="mr-1 rounded bg-ink-100 px-1.5 py-0.5 text-xs font-medium text-ink-700">chain</span>{c.row.original.chainId ? <Link to={`/chains/${c.row.original.chainId}`}>{c.getValue()}</Link> : c.getValue()}</span>
+      : c.getValue()),
+  }),
   col.accessor((r) => [r.instituteA?.code, r.instituteB?.code].filter(Boolean).join(' – '), { id: 'institutes', header: 'Institutes', enableSorting: false }),
   col.accessor('state', {
     header: 'State',
@@ -57,12 +62,13 @@ export function CertificatesPage() {
   const institutes = useInstitutes();
   const [table, setTable] = useState<TableState>({ page: 1, pageSize: 20, sort: 'issuedAt', order: 'desc', q: '' });
   const [state, setState] = useState<CertificateState | ''>('');
+  const [kind, setKind] = useState<'campaign' | 'chain' | ''>('');
   const [instituteId, setInstituteId] = useState('');
   const [issuedFrom, setIssuedFrom] = useState('');
   const [issuedTo, setIssuedTo] = useState('');
   const list = useCertificates({
     page: table.page, pageSize: table.pageSize, sort: table.sort as never, order: table.order, q: table.q || undefined,
-    state: state || undefined, instituteId: instituteId || undefined, issuedFrom: issuedFrom || undefined, issuedTo: issuedTo || undefined,
+    state: state || undefined, kind: kind || undefined, instituteId: instituteId || undefined, issuedFrom: issuedFrom || undefined, issuedTo: issuedTo || undefined,
   });
   const reset = <T,>(set: (v: T) => void) => (v: T) => { set(v); setTable((t) => ({ ...t, page: 1 })); };
   return (
@@ -73,7 +79,14 @@ export function CertificatesPage() {
       </header>
       {me.data?.role === 'coordinator' && <AwaitingPanel />}
       <Panel>
-        <div className="mb-4 grid gap-3 md:grid-cols-4">
+        <div className="mb-4 grid gap-3 md:grid-cols-5">
+          <Field label="Kind">
+            <select className={inputClass} value={kind} onChange={(e) => reset(setKind)(e.target.value as 'campaign' | 'chain' | '')} aria-label="Kind">
+              <option value="">any</option>
+              <option value="campaign">campaign</option>
+              <option value="chain">calibration chain</option>
+            </select>
+          </Field>
           <Field label="State">
             <select className={inputClass} value={state} onChange={(e) => reset(setState)(e.target.value as CertificateState | '')} aria-label="State">
               <option value="">any</option>
@@ -90,7 +103,7 @@ export function CertificatesPage() {
           <Field label="Issued to (YYYY-MM-DD)"><IsoDateInput value={issuedTo} onChange={reset(setIssuedTo)} /></Field>
         </div>
         <DataTable columns={columns as never} rows={list.data?.items ?? []} total={list.data?.total ?? 0} state={table} onState={setTable}
-          loading={list.isFetching} filterLabel="Filter by number, campaign or SHA-256" />
+          loading={list.isFetching} filterLabel="Filter by number, campaign or chain, or SHA-256" />
       </Panel>
       <p className="text-sm text-ink-600">Someone sent you a certificate file? <Link to="/verify">Check it on the public verification page</Link>.</p>
       <Caution />

@@ -2,9 +2,11 @@ import { Link, useNavigate, useParams } from 'react-router';
 import { coverageText } from '../../../shared/number-text';
 import { useMe } from '../../api/account';
 import { useChain, useChainResult, useDeleteChain } from '../../api/chains';
+import { useChainCertificates } from '../../api/certificates';
 import { Button, Caution, EmptyState, Panel } from '../../components/ui';
 import { describeError } from '../../lib/api-client';
 import { Facts, sci } from '../registry/registry-ui';
+import { ChainCertificatesPanel } from '../certificates/chain-certificates-panel';
 
 const fixed = (v: number, d = 3) => (v < 0 ? `−${Math.abs(v).toFixed(d)}` : v.toFixed(d));
 
@@ -14,6 +16,8 @@ export function ChainPage() {
   const result = useChainResult(id);
   const me = useMe();
   const del = useDeleteChain();
+  // A chain with a certificate is never deleted (the certificate names it): no Delete action then.
+  const certified = (useChainCertificates(id).data?.total ?? 0) > 0;
   const navigate = useNavigate();
   if (chain.isPending) return <p className="text-ink-500">Loading…</p>;
   if (chain.isError) return <EmptyState title="This chain could not be loaded">{describeError(chain.error)}</EmptyState>;
@@ -32,7 +36,7 @@ export function ChainPage() {
         <div className="flex gap-2">
           <a className="rounded-md border border-ink-200 px-3 py-1.5 text-sm" href={`/api/v1/chains/${c.id}/result.csv`}>CSV</a>
           <a className="rounded-md border border-ink-200 px-3 py-1.5 text-sm" href={`/api/v1/chains/${c.id}/result.json`}>JSON</a>
-          {canWrite && <Button variant="danger" onClick={async () => { if (window.confirm('Delete this chain? Its campaigns stay.')) { await del.mutateAsync(c.id); navigate('/chains'); } }}>Delete</Button>}
+          {canWrite && !certified && <Button variant="danger" onClick={async () => { if (window.confirm('Delete this chain? Its campaigns stay.')) { await del.mutateAsync(c.id); navigate('/chains'); } }}>Delete</Button>}
         </div>
       </header>
       <Panel title="Parts">
@@ -89,6 +93,7 @@ export function ChainPage() {
           </Panel>
         </>
       )}
+      <ChainCertificatesPanel chainId={c.id} chainAccepted={c.state === 'accepted'} needsJustification={!!r?.beforeAfter && !r.beforeAfter.agreed} />
       <Caution />
     </>
   );

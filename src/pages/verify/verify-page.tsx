@@ -70,7 +70,9 @@ function ResultPanel({ result }: { result: VerificationResult }) {
         {c && (
           <>
             <dt className="text-ink-500">Certificate</dt><dd className="font-mono">{c.number}</dd>
-            <dt className="text-ink-500">Campaign</dt><dd>{c.campaignLabel}</dd>
+            {c.kind === 'chain'
+              ? <><dt className="text-ink-500">Kind</dt><dd data-testid="verify-kind">chain certificate (calibration chain of a transportable clock)</dd><dt className="text-ink-500">Chain</dt><dd>{c.campaignLabel}</dd></>
+              : <><dt className="text-ink-500">Campaign</dt><dd>{c.campaignLabel}</dd></>}
             <dt className="text-ink-500">Issued by</dt><dd>{c.issuingInstitute} on {c.issuedAt.slice(0, 10)}</dd>
             <dt className="text-ink-500">Registered SHA-256</dt><dd className="break-all font-mono text-xs">{c.pdfSha256}</dd>
           </>
