@@ -18,6 +18,23 @@ const onProgress = (fraction, stage) => {
   parentPort.postMessage({ type: 'progress', fraction, stage });
 };
 
+/**
+ * JSON.stringify(result), with the (long) observations array written in slices and a progress report between them,
+ * so that a result of 300 000 observations does not leave a silent second or two.
+ */
+function stringifyInChunks(result) {
+  const { observations, ...rest } = result;
+  const head = JSON.stringify(rest);
+  const parts = [head.slice(0, -1), head.length > 2 ? ',"observations":[' : '"observations":['];
+  for (let i = 0; i < observations.length; i += 20_000) {
+    const slice = JSON.stringify(observations.slice(i, i + 20_000));
+    parts.push(i > 0 ? ',' : '', slice.slice(1, -1));
+    parentPort.postMessage({ type: 'progress', fraction: 1, stage: 'preparing results' });
+  }
+  parts.push(']}');
+  return parts.join('');
+}
+
 try {
   onProgress(0, 'reading inputs');
   const inputs = JSON.parse(workerData.inputsJson);
@@ -27,7 +44,7 @@ try {
     sigma0: result.sigma0, degreesOfFreedom: result.degreesOfFreedom,
     globalTestPassed: result.globalTest?.passed ?? null, suspects: result.snooping.suspects.length,
   };
-  parentPort.postMessage({ type: 'done', resultJson: JSON.stringify(result), summary });
+  parentPort.postMessage({ type: 'done', resultJson: stringifyInChunks(result), summary });
 } catch (e) {
   if (e instanceof AdjustmentInputError) parentPort.postMessage({ type: 'failed', message: e.message, detail: e.detail });
   else parentPort.postMessage({ type: 'failed', message: e instanceof Error ? e.message : String(e) });
