@@ -19,19 +19,27 @@ const onProgress = (fraction, stage) => {
 };
 
 /**
- * JSON.stringify(result), with the (long) observations array written in slices and a progress report between them,
- * so that a result of 300 000 observations does not leave a silent second or two.
+ * JSON.stringify(result), with each long top-level array (observations, points) written in slices and a progress report
+ * between them, so that a result of 300 000 observations does not leave a silent second or two.
  */
 function stringifyInChunks(result) {
-  const { observations, ...rest } = result;
-  const head = JSON.stringify(rest);
-  const parts = [head.slice(0, -1), head.length > 2 ? ',"observations":[' : '"observations":['];
-  for (let i = 0; i < observations.length; i += 20_000) {
-    const slice = JSON.stringify(observations.slice(i, i + 20_000));
-    parts.push(i > 0 ? ',' : '', slice.slice(1, -1));
-    parentPort.postMessage({ type: 'progress', fraction: 1, stage: 'preparing results' });
+  const SLICE = 10_000;
+  const parts = [];
+  for (const [key, value] of Object.entries(result)) {
+    if (value === undefined) continue;
+    parts.push(parts.length ? ',' : '{', JSON.stringify(key), ':');
+    if (!Array.isArray(value) || value.length <= SLICE) {
+      parts.push(JSON.stringify(value));
+      continue;
+    }
+    parts.push('[');
+    for (let i = 0; i < value.length; i += SLICE) {
+      parts.push(i > 0 ? ',' : '', JSON.stringify(value.slice(i, i + SLICE)).slice(1, -1));
+      parentPort.postMessage({ type: 'progress', fraction: 1, stage: 'preparing results' });
+    }
+    parts.push(']');
   }
-  parts.push(']}');
+  parts.push(parts.length ? '}' : '{}');
   return parts.join('');
 }
 

@@ -14,6 +14,7 @@ function ownValue<T>(table: Record<string, T>, key: string): T | undefined {
 export function computeRunResult(inputs: StoredInputs, onProgress?: (fraction: number, stage: AdjustmentStage) => void): RunResult {
   const t0 = performance.now();
   const res = adjustNetwork({ ...inputs.adjustment, options: { ...inputs.adjustment.options, onProgress } });
+  onProgress?.(1, 'statistical tests');
   const points = res.points.map((p) => {
     const meta = ownValue(inputs.pointMeta, p.code);
     if (!meta) throw new Error(`stored inputs lack the point ${p.code}`);
@@ -24,6 +25,7 @@ export function computeRunResult(inputs: StoredInputs, onProgress?: (fraction: n
       datum: p.datum, knownC_m2s2: p.knownC ?? null,
     };
   });
+  onProgress?.(1, 'statistical tests');
   const observations = res.observations.map((o) => ({
     id: o.id ?? String(o.index), kind: o.kind, from: o.from, to: o.to, label: ownValue(inputs.observationMeta, o.id ?? '')?.label ?? `${o.from} → ${o.to}`,
     deltaC_m2s2: o.deltaC, sigma_m2s2: inputs.adjustment.observations[o.index].sigma, residual_m2s2: o.residual, redundancy: o.redundancy,

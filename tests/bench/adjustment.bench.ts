@@ -28,11 +28,14 @@ for (const n of benchmarks) {
   const stageStart = new Map<string, number>();
   const stageOrder: string[] = [];
   const writes: number[] = [];
+  const writeStages: string[] = [];
   const t0 = performance.now();
   writes.push(t0);
+  writeStages.push('start');
   // The job's throttle (250 ms); a write takes ~1 ms of PostgreSQL round trip in the job, a tick here.
-  const progress = throttledProgress(async () => {
+  const progress = throttledProgress(async (_fraction, stage) => {
     writes.push(performance.now());
+    writeStages.push(stage);
     await new Promise((r) => setImmediate(r));
   }, 250);
   const { resultJson, summary } = await runInThread(json, (fraction, stage) => {
@@ -45,9 +48,16 @@ for (const n of benchmarks) {
   await progress.flush();
   const t1 = performance.now();
   writes.push(t1);
+  writeStages.push('end');
   const resultMb = resultJson.length / 2 ** 20;
   let longestGap = 0;
-  for (let i = 1; i < writes.length; i++) longestGap = Math.max(longestGap, writes[i] - writes[i - 1]);
+  let gapAt = '';
+  for (let i = 1; i < writes.length; i++) {
+    if (writes[i] - writes[i - 1] > longestGap) {
+      longestGap = writes[i] - writes[i - 1];
+      gapAt = `${writeStages[i - 1]} → ${writeStages[i]}`;
+    }
+  }
   const stageMs = stageOrder.map((s, i) => {
     const end = i + 1 < stageOrder.length ? (stageStart.get(stageOrder[i + 1]) as number) : t1;
     return `${s.split(' ')[0]} ${(end - (stageStart.get(s) as number)).toFixed(0)}`;
@@ -65,7 +75,7 @@ for (const n of benchmarks) {
       ' ' + stageMs.join(', ').padEnd(78),
       (l1 - l0).toFixed(0).padStart(7),
       rss.toFixed(0).padStart(11),
-      longestGap.toFixed(0).padStart(21),
+      `${longestGap.toFixed(0).padStart(21)} (${gapAt})`,
     ].join(' '),
   );
   if (n === benchmarks[benchmarks.length - 1]) {

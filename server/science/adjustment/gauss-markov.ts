@@ -427,7 +427,9 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
   for (const sp of core.sharedParameters) sharedValue.set(sp.name, sp.value);
   const byOriginal = new Map<number, AdjustedObservation>();
   core.observations.forEach((o, j) => byOriginal.set(obsMap[j], { ...o, index: obsMap[j] }));
+  progress(reported, 'statistical tests');
   const observations: AdjustedObservation[] = input.observations.map((ob, k) => {
+    if ((k & 65535) === 65535) progress(reported, 'statistical tests');
     const kept = byOriginal.get(k);
     if (kept) return kept;
     const rem = removedObs.get(k)!;
@@ -950,6 +952,7 @@ function adjustCore(
     return { residual, sigmaResidual, redundancy: rr, standardizedResidual: w };
   };
 
+  progress(0.99, 'statistical tests');
   const outPoints: AdjustedPoint[] = points.map((pt, i) => {
     const u = unknownOfPoint[i];
     const c = u >= 0 ? c0[i] + dx[u] : c0[i];
@@ -965,7 +968,9 @@ function adjustCore(
     return res;
   });
 
+  progress(0.99, 'statistical tests');
   const outObs: AdjustedObservation[] = observations.map((ob, k) => {
+    if ((k & 65535) === 65535) progress(0.99, 'statistical tests');
     const a = analyse(v[k], ob.sigma, r[k]);
     const res: AdjustedObservation = {
       index: k,
@@ -984,6 +989,7 @@ function adjustCore(
     return res;
   });
 
+  progress(0.99, 'statistical tests');
   const outFixed = weightedIdx.map((i, s) => ({
     pointIndex: i,
     code: points[i].code,
