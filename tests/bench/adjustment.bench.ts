@@ -2,9 +2,10 @@
 // job runs it: stored-inputs JSON into the adjustment worker thread (server/network/adjustment-thread.ts), progress
 // through the same throttle the job uses to write job_progress (here the "write" records its time instead of going to
 // PostgreSQL). Run: npx tsx tests/bench/adjustment.bench.ts [sizes…] — prints times per stage, peak RSS of the whole
-// process (threads included) and the longest interval between two progress writes (start and end included); it does
+// process (threads included; reset per size where Linux allows) and the longest interval between two progress writes (start and end included); it does
 // not pass or fail. Targets at 100 000 benchmarks / ≈ 300 000 observations: < 10 s, RSS < 2 GB, progress ≤ 1 s apart.
 
+import fs from 'node:fs';
 import type { StoredInputs } from '../../server/network/adjustment.service';
 import { runInThread } from '../../server/network/adjustment-thread';
 import { throttledProgress } from '../../server/jobs/progress';
@@ -16,7 +17,18 @@ const sizes = process.argv.slice(2).map(Number).filter((n) => n > 0);
 const benchmarks = sizes.length > 0 ? sizes : [10_000, 30_000, 100_000];
 
 console.log('benchmarks  observations  result MB   total ms  stages (ms)                                                                    loops ms  peak RSS MB  longest write gap ms');
+/** Each size's own peak: collect the previous size's garbage and reset VmHWM (Linux, clear_refs value 5). */
+function resetPeak(): void {
+  (globalThis as { gc?: () => void }).gc?.();
+  try {
+    fs.writeFileSync('/proc/self/clear_refs', '5');
+  } catch {
+    // not Linux, or not allowed: the peak then covers the sizes before as well
+  }
+}
+
 for (const n of benchmarks) {
+  resetPeak();
   const net = gridNetwork(1234 + n, n);
   const inputs: StoredInputs = {
     adjustment: { points: net.points, observations: net.observations },
