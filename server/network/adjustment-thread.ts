@@ -22,7 +22,8 @@ const stopped = new WeakSet<Worker>();
 export type RunSummary = { sigma0: number | null; degreesOfFreedom: number; globalTestPassed: boolean | null; suspects: number };
 type ThreadMessage =
   | { type: 'progress'; fraction: number; stage: string }
-  | { type: 'done'; resultJson: string; summary: RunSummary }
+  | { type: 'chunk'; text: string }
+  | { type: 'done'; summary: RunSummary }
   | { type: 'failed'; message: string; detail?: AdjustmentInputErrorDetail };
 
 /**
@@ -35,6 +36,7 @@ export function runInThread(inputsJson: string, onProgress: (fraction: number, s
     const worker = new Worker(workerFile, { workerData: { inputsJson } });
     live.add(worker);
     let settled = false;
+    let chunks: string[] = [];
     const settle = (f: () => void) => {
       if (settled) return;
       settled = true;
@@ -44,7 +46,12 @@ export function runInThread(inputsJson: string, onProgress: (fraction: number, s
     };
     worker.on('message', (m: ThreadMessage) => {
       if (m.type === 'progress') onProgress(m.fraction, m.stage);
-      else if (m.type === 'done') settle(() => resolve({ resultJson: m.resultJson, summary: m.summary }));
+      else if (m.type === 'chunk') chunks.push(m.text);
+      else if (m.type === 'done') {
+        const resultJson = chunks.join('');
+        chunks = [];
+        settle(() => resolve({ resultJson, summary: m.summary }));
+      }
       else settle(() => reject(m.detail ? new AdjustmentInputError(m.message, m.detail) : new Error(m.message)));
     });
     worker.on('error', (e) => settle(() => reject(e)));

@@ -1,6 +1,6 @@
 // Worker-thread entry of an adjustment run (started by server/network/adjustment-thread.ts). Loads the run-result
 // module through tsx, adjusts, posts progress at most every 100 ms (and at every change of stage), then the result as
-// JSON text (stringified here, off the job's event loop) or the adjustment's input error as data.
+// JSON text in pieces (stringified here, off the job's event loop) or the adjustment's input error as data.
 import { parentPort, workerData } from 'node:worker_threads';
 import { register } from 'tsx/esm/api';
 
@@ -19,40 +19,43 @@ const onProgress = (fraction, stage) => {
 };
 
 /**
- * JSON.stringify(result), with each long top-level array (observations, points) written in slices and a progress report
- * between them, so that a result of 300 000 observations does not leave a silent second or two.
+ * Posts JSON.stringify(result) in pieces ('chunk' messages, joined by the job): each long top-level array (observations,
+ * points) is written in slices with a progress report between them, so that a result of 300 000 observations leaves no
+ * silent second and the thread never holds the whole text.
  */
-function stringifyInChunks(result) {
+function postResultInChunks(result) {
   const SLICE = 10_000;
-  const parts = [];
+  let first = true;
+  const post = (text) => parentPort.postMessage({ type: 'chunk', text });
   for (const [key, value] of Object.entries(result)) {
     if (value === undefined) continue;
-    parts.push(parts.length ? ',' : '{', JSON.stringify(key), ':');
+    const lead = `${first ? '{' : ','}${JSON.stringify(key)}:`;
+    first = false;
     if (!Array.isArray(value) || value.length <= SLICE) {
-      parts.push(JSON.stringify(value));
+      post(lead + JSON.stringify(value));
       continue;
     }
-    parts.push('[');
     for (let i = 0; i < value.length; i += SLICE) {
-      parts.push(i > 0 ? ',' : '', JSON.stringify(value.slice(i, i + SLICE)).slice(1, -1));
+      const slice = JSON.stringify(value.slice(i, i + SLICE)).slice(1, -1);
+      post((i === 0 ? `${lead}[` : ',') + slice + (i + SLICE >= value.length ? ']' : ''));
       parentPort.postMessage({ type: 'progress', fraction: 1, stage: 'preparing results' });
     }
-    parts.push(']');
   }
-  parts.push(parts.length ? '}' : '{}');
-  return parts.join('');
+  post(first ? '{}' : '}');
 }
 
 try {
   onProgress(0, 'reading inputs');
-  const inputs = JSON.parse(workerData.inputsJson);
+  let inputs = JSON.parse(workerData.inputsJson);
   const result = computeRunResult(inputs, onProgress);
+  inputs = null; // the network's objects may go before the result is written out
   parentPort.postMessage({ type: 'progress', fraction: 1, stage: 'statistical tests' });
   const summary = {
     sigma0: result.sigma0, degreesOfFreedom: result.degreesOfFreedom,
     globalTestPassed: result.globalTest?.passed ?? null, suspects: result.snooping.suspects.length,
   };
-  parentPort.postMessage({ type: 'done', resultJson: stringifyInChunks(result), summary });
+  postResultInChunks(result);
+  parentPort.postMessage({ type: 'done', summary });
 } catch (e) {
   if (e instanceof AdjustmentInputError) parentPort.postMessage({ type: 'failed', message: e.message, detail: e.detail });
   else parentPort.postMessage({ type: 'failed', message: e instanceof Error ? e.message : String(e) });
