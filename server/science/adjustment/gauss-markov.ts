@@ -346,8 +346,8 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
   let pass = run(span(0, mode === 'iterative' ? 0.92 : 1), mode === 'iterative');
   const initial = { sigma0: pass.core.sigma0, degreesOfFreedom: pass.core.degreesOfFreedom, globalTest: pass.core.globalTest };
   if (mode === 'iterative' && pass.core.screened.length > 0) {
-    // Apply the screened sequence (each w is the one the full iteration would compute at that step), then re-adjust
-    // exactly once; the loop below continues with full adjustments should anything still exceed the critical value.
+    // Apply the screened sequence (each w is the one the full iteration would compute at that step), then adjust once
+    // without those rows; the loop below continues with full adjustments should anything still exceed the critical value.
     const { core, obsMap } = pass;
     const staged: SnoopingRemoval[] = core.screened.map((c, j) => {
       const removal: SnoopingRemoval = { step: j + 1, source: c.source, index: c.source === 'observation' ? obsMap[c.index] : c.index, standardizedResidual: c.w };
@@ -882,7 +882,8 @@ function adjustCore(
 
   // Screening for Baarda's iteration without re-factorising: removing row k is a rank-one downdate of N, so with
   // z = Q·a_k (Sherman–Morrison) x' = x + p_k·v_k/r_k·z, v_i' = v_i + p_k·v_k/r_k·(a_iᵀz), r_i' = r_i − p_i·p_k·(a_iᵀz)²/r_k,
-  // Ω' = Ω − p_k·v_k²/r_k. Q after several removals is Q_0 + Σ c_j·z_j·z_jᵀ. The caller re-adjusts exactly afterwards.
+  // Ω' = Ω − p_k·v_k²/r_k. Q after several removals is Q_0 + Σ c_j·z_j·z_jᵀ. The caller then
+  // adjusts without the screened rows, reusing this factor and inverse with these downdates (see Downdate).
   const screened: { source: 'observation' | 'fixedPoint'; index: number; w: number }[] = [];
   let downdate: Downdate | undefined;
   if (screen && dof > 0) {
