@@ -4,7 +4,7 @@ import type { DataSource, EntityManager } from 'typeorm';
 // and subject (a campaign for results, a certificate request for certificates). Workers write it with the data
 // source's own connections, outside the job's transaction, so every HTTP process sees it while the job runs.
 
-export type JobKind = 'result-compute' | 'certificate-issue';
+export type JobKind = 'result-compute' | 'certificate-issue' | 'adjustment-run';
 export type JobProgressRow = { stage: string; fraction: number; updated_at: Date; error: string | null };
 
 type Runner = Pick<DataSource | EntityManager, 'query'>;
@@ -28,5 +28,47 @@ export async function readProgress(db: Runner, kind: JobKind, subjectId: string)
 export function progressWriter(db: Runner, kind: JobKind, subjectId: string) {
   return async (stage: string, fraction: number) => {
     await writeProgress(db, kind, subjectId, stage, fraction).catch(() => undefined);
+  };
+}
+
+/**
+ * Progress from a computation that reports far more often than it should be written: writes at most one report per
+ * `intervalMs` (the newest one), one write at a time, and `flush` writes the last report before it resolves.
+ */
+export function throttledProgress(write: (fraction: number, stage: string) => Promise<void>, intervalMs = 300) {
+  let pending: { fraction: number; stage: string } | null = null;
+  let inFlight: Promise<void> | null = null;
+  let timer: NodeJS.Timeout | null = null;
+  let last = 0;
+  const pump = () => {
+    if (inFlight || !pending) return;
+    const { fraction, stage } = pending;
+    pending = null;
+    last = Date.now();
+    inFlight = write(fraction, stage).catch(() => undefined).finally(() => {
+      inFlight = null;
+      schedule();
+    });
+  };
+  const schedule = () => {
+    if (!pending || inFlight || timer) return;
+    timer = setTimeout(() => {
+      timer = null;
+      pump();
+    }, Math.max(0, last + intervalMs - Date.now()));
+  };
+  return {
+    report(fraction: number, stage: string) {
+      pending = { fraction, stage };
+      schedule();
+    },
+    async flush() {
+      if (timer) clearTimeout(timer);
+      timer = null;
+      while (inFlight || pending) {
+        if (inFlight) await inFlight;
+        else pump();
+      }
+    },
   };
 }

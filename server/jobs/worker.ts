@@ -5,6 +5,7 @@ import type { DataSource } from 'typeorm';
 import { runCertificateJob } from '../certificates/certificate-requests';
 import type { AppConfig } from '../config';
 import { executeRun } from '../network/adjustment.service';
+import { stopAdjustmentThreads } from '../network/adjustment-thread';
 import { runResultJob } from '../results/result-worker';
 import { recomputeClosures } from '../closures/closures.service';
 import { ADJUSTMENT_QUEUE, CERTIFICATE_QUEUE, CLOSURE_QUEUE, JOB_QUEUES, RESULT_QUEUE, startBoss, type AdjustmentJob, type CertificateJob, type ClosureJob, type ResultJob } from './queue';
@@ -81,6 +82,8 @@ export async function startWorker(opts: { dataSource: DataSource; databaseUrl: s
   return {
     stop: async () => {
       clearInterval(reaper);
+      // A run in progress is left open: its thread ends here, its job fails and another worker retries it.
+      await stopAdjustmentThreads();
       await boss.stop({ graceful: false, wait: true });
     },
   };

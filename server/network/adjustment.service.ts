@@ -12,24 +12,25 @@ import { authorize } from '../auth/permissions';
 import { AdjustmentRunEntity, BenchmarkEntity, HeightDatumEntity, type AdjustmentRunRow } from '../db/entities/network.entities';
 import { faultPoint } from '../dev/fault-point';
 import { AppError, Invalid, NotFound } from '../http/errors';
-import { adjustNetwork, AdjustmentInputError, type AdjustmentInput, type AdjustmentStage, type NetworkObservation, type NetworkPoint } from '../science/adjustment/gauss-markov';
+import { adjustNetwork, AdjustmentInputError, type AdjustmentInput, type NetworkObservation, type NetworkPoint } from '../science/adjustment/gauss-markov';
 import { normalisedError } from '../science/agreement';
-import { meanNormalGravity, normalGravityAtHeight, normalHeightFromC } from '../science/normal-gravity';
+import { normalGravityAtHeight } from '../science/normal-gravity';
 import { convertPotential, potentialShiftFromMeanTide } from '../science/tides';
 import { datumOffsetTerms } from '../science/adjustment/datum-offsets';
 import { loadSectionsWithBenchmarks } from './network.service';
 import { clockDeltaCFor, loadAcceptedCampaigns, loadLinks, loadSites } from './registry-bridge';
 import { canSeeCampaign } from '../auth/campaign-scope';
 import { canSeeChain, computeChain, loadAcceptedChains } from '../chains/chain-compute';
+import { computeRunResult } from './run-result';
+import { AdjustmentThreadStopped, runInThread } from './adjustment-thread';
+import { readProgress, throttledProgress, writeProgress } from '../jobs/progress';
+
+export { computeRunResult };
 
 // Adjustment runs: gather the inputs (sections, site ties, accepted clock comparisons), store them with the options in
 // an immutable run row, let a pg-boss worker adjust them (server/jobs/worker.ts), and read the results back for the
 // run pages, the reconciliation of clocks with levelling and the map.
 
-/** A stored (JSON) lookup table read by a key that may be anything a person typed: own properties only. */
-function ownValue<T>(table: Record<string, T>, key: string): T | undefined {
-  return Object.hasOwn(table, key) ? table[key] : undefined;
-}
 export class NetworkNotConnected extends AppError {
   constructor(message: string, parts: { codes: string[]; count: number }[]) {
     super(422, 'network-not-connected', 'Part of the network has no datum', message, { parts });
@@ -349,94 +350,45 @@ export function toRunDto(r: AdjustmentRunRow): AdjustmentRun {
   };
 }
 
-/** Runs the adjustment on stored inputs and shapes the result for storage (pure apart from the clock). */
-export function computeRunResult(inputs: StoredInputs, onProgress?: (fraction: number, stage: AdjustmentStage) => void): RunResult {
-  const t0 = performance.now();
-  const res = adjustNetwork({ ...inputs.adjustment, options: { ...inputs.adjustment.options, onProgress } });
-  const points = res.points.map((p) => {
-    const meta = ownValue(inputs.pointMeta, p.code);
-    if (!meta) throw new Error(`stored inputs lack the point ${p.code}`);
-    const h = normalHeightFromC(p.c, meta.latitudeDeg);
-    return {
-      code: p.code, kind: meta.kind, label: meta.label, datumName: meta.datumName, latitudeDeg: meta.latitudeDeg,
-      c_m2s2: p.c, sigmaC_m2s2: p.sigma, normalHeightM: h, sigmaHeightM: p.sigma / meanNormalGravity(meta.latitudeDeg, h),
-      datum: p.datum, knownC_m2s2: p.knownC ?? null,
-    };
-  });
-  const observations = res.observations.map((o) => ({
-    id: o.id ?? String(o.index), kind: o.kind, from: o.from, to: o.to, label: ownValue(inputs.observationMeta, o.id ?? '')?.label ?? `${o.from} → ${o.to}`,
-    deltaC_m2s2: o.deltaC, sigma_m2s2: inputs.adjustment.observations[o.index].sigma, residual_m2s2: o.residual, redundancy: o.redundancy,
-    standardizedResidual: o.standardizedResidual, suspected: o.suspected, removedAtStep: o.removedAtStep, sharedEffect_m2s2: o.sharedEffect,
-  }));
-  const g = 9.81;
-  // σ policy: a-priori σ (σ0 = 1) unless the global test rejects a too-large vᵀPv; then σ·σ̂0 (common practice:
-  // the a-priori weights are then too optimistic; never scaled down when σ̂0 < 1).
-  const scaleApplied = !!(res.globalTest && res.globalTest.statistic > res.globalTest.upper && res.sigma0 !== null);
-  const factor = scaleApplied ? (res.sigma0 as number) : 1;
-  const labelOf = (s: { id?: string; code?: string; from?: string; to?: string; source: string }) =>
-    s.source === 'observation' ? ownValue(inputs.observationMeta, s.id ?? '')?.label ?? `${s.from} → ${s.to}` : `fixed point ${s.code}`;
-  return {
-    points, observations,
-    datumOffsets: res.datumOffsets.map((d) => ({ name: d.name, value_m2s2: d.value, sigma_m2s2: d.sigma, valueMm: (d.value / g) * 1000, sigmaMm: (d.sigma / g) * 1000 })),
-    unknowns: res.unknowns, degreesOfFreedom: res.degreesOfFreedom, vtpv: res.vtpv, sigma0: res.sigma0,
-    globalTest: res.globalTest ? { statistic: res.globalTest.statistic, lower: res.globalTest.lower, critical: res.globalTest.critical, alpha: res.globalTest.alpha, passed: res.globalTest.passed } : null,
-    snooping: {
-      alpha0: res.snooping.alpha0, criticalValue: res.snooping.criticalValue,
-      suspects: res.snooping.removals.map((s) => ({ id: s.id ?? s.code ?? String(s.index), label: labelOf(s), standardizedResidual: s.standardizedResidual, step: s.step })),
-      stoppedEarly: res.snooping.stoppedEarly,
-      initial: { sigma0: res.snooping.initial.sigma0, degreesOfFreedom: res.snooping.initial.degreesOfFreedom, globalTestPassed: res.snooping.initial.globalTest?.passed ?? null },
-    },
-    redundancySum: res.observations.reduce((a, o) => a + (o.removedAtStep === null ? o.redundancy : 0), 0) + res.fixedPointObservations.reduce((a, o) => a + (o.removedAtStep === null ? o.redundancy : 0), 0),
-    elapsedMs: performance.now() - t0,
-    sharedParameters: res.sharedParameters.map((p) => ({
-      name: p.name, label: inputs.sharedLabels?.[p.name] ?? p.name, value_m2s2: p.value, sigma_m2s2: p.sigma, priorSigma_m2s2: p.priorSigma, observations: p.observations,
-    })),
-    differences: res.differences.map((d) => ({ from: d.from, to: d.to, deltaC_m2s2: d.deltaC, sigma_m2s2: d.sigma, sigmaIgnoringCovariance_m2s2: d.sigmaIgnoringCovariance })),
-    sigmaScale: {
-      applied: scaleApplied, factor,
-      rule: 'σ on the a-priori scale (σ0 = 1) unless the global χ² test rejects a too-large vᵀPv; then every σ is multiplied by σ̂0.',
-    },
-    referenceDatum: inputs.referenceDatum ?? null,
-    tideConversions: (inputs.tideConversions ?? []).map((t) => ({ label: t.label, from: t.from, to: t.to, shift_m2s2: t.shift_m2s2 })),
-    excluded: inputs.excluded ?? [],
-    entered: inputs.entered,
-  };
-}
-
 /** The job body: executes one queued run and stores its result or its failure; never leaves it 'running'. */
-export async function executeRun(dataSource: DataSource, runId: string, onProgress?: (fraction: number, stage: string) => Promise<void> | void) {
+export async function executeRun(dataSource: DataSource, runId: string) {
   const repo = dataSource.getRepository(AdjustmentRunEntity);
-  const run = await repo.findOneBy({ id: runId });
+  // The inputs as text: parsed in the adjustment thread, not on this event loop.
+  const [run] = (await dataSource.query('SELECT state, inputs::text AS inputs FROM adjustment_run WHERE id = $1', [runId])) as { state: string; inputs: string }[];
   if (!run || run.state === 'done' || run.state === 'failed') return;
+  // Progress goes to job_progress (kind 'adjustment-run') and to the run row, which the run pages read.
+  const write = async (fraction: number, stage: string) => {
+    await writeProgress(dataSource, 'adjustment-run', runId, stage, fraction);
+    await repo.update({ id: runId, state: 'running' }, { progress: fraction, stage });
+  };
   await repo.update({ id: runId }, { state: 'running', startedAt: new Date(), progress: 0.02, stage: 'loading inputs' });
-  await onProgress?.(0.02, 'loading inputs');
+  await writeProgress(dataSource, 'adjustment-run', runId, 'loading inputs', 0.02);
   await faultPoint('adjustment-run'); // test-only kill point (server/dev/fault-point.ts); a no-op unless armed
-  let lastWrite = 0;
-  const pending: Promise<unknown>[] = [];
+  const progress = throttledProgress(write, PROGRESS_INTERVAL_MS);
   try {
-    const result = computeRunResult(run.inputs as unknown as StoredInputs, (fraction, stage) => {
-      // adjustNetwork is synchronous: these writes are queued and land as it yields; the last stage wins.
-      if (fraction - lastWrite < 0.1 && fraction < 1) return;
-      lastWrite = fraction;
-      pending.push(Promise.resolve(onProgress?.(0.05 + 0.85 * fraction, stage)));
-      pending.push(repo.update({ id: runId, state: 'running' }, { progress: 0.05 + 0.85 * fraction, stage }));
-    });
-    await Promise.all(pending);
-    await repo.update({ id: runId }, { progress: 0.95, stage: 'storing results' });
-    await onProgress?.(0.95, 'storing results');
-    await repo.update({ id: runId }, {
-      state: 'done', progress: 1, stage: 'finished', result: result as never, finishedAt: new Date(),
-      sigma0: result.sigma0, degreesOfFreedom: result.degreesOfFreedom, globalTestPassed: result.globalTest?.passed ?? null,
-      suspects: result.snooping.suspects.length,
-    });
+    const { resultJson, summary } = await runInThread(run.inputs, (fraction, stage) => progress.report(0.05 + 0.85 * fraction, stage));
+    await progress.flush();
+    await write(0.95, 'storing results');
+    await dataSource.query(
+      `UPDATE adjustment_run SET state = 'done', progress = 1, stage = 'finished', result = $2::jsonb, finished_at = now(),
+         sigma0 = $3, degrees_of_freedom = $4, global_test_passed = $5, suspects = $6 WHERE id = $1`,
+      [runId, resultJson, summary.sigma0, summary.degreesOfFreedom, summary.globalTestPassed, summary.suspects],
+    );
+    await writeProgress(dataSource, 'adjustment-run', runId, 'finished', 1);
   } catch (e) {
-    await Promise.allSettled(pending);
+    await progress.flush();
+    // A thread stopped with its worker: the job fails and is retried; the run stays open for the retry.
+    if (e instanceof AdjustmentThreadStopped) throw e;
     const error = e instanceof AdjustmentInputError
       ? { message: e.message, reason: e.detail.reason, ...(e.detail.parts ? { parts: e.detail.parts } : {}) }
       : { message: e instanceof Error ? e.message : String(e) };
     await repo.update({ id: runId }, { state: 'failed', stage: 'failed', error: error as never, finishedAt: new Date() });
+    await writeProgress(dataSource, 'adjustment-run', runId, 'failed', 1, error.message);
   }
 }
+
+/** Progress of a run is written at most this often (ms); the thread reports about every 100 ms. */
+const PROGRESS_INTERVAL_MS = 250;
 
 export type Enqueue = (runId: string) => Promise<void>;
 
@@ -491,9 +443,11 @@ export function createAdjustmentService(dataSource: DataSource) {
       if (!r) throw new NotFound('Adjustment run');
       const open = r.state === 'queued' || r.state === 'running';
       const error = r.error ? String((r.error as { message?: unknown }).message ?? JSON.stringify(r.error)) : null;
+      // While it runs, the worker's durable progress row (written about every 250 ms) says how far and when.
+      const live = r.state === 'running' ? await readProgress(dataSource, 'adjustment-run', id) : null;
       return {
-        state: r.state as JobProgress['state'], stage: r.stage ?? r.state, fraction: Math.min(1, Math.max(0, Number(r.progress ?? 0))),
-        updatedAt: (r.finishedAt ?? r.startedAt ?? r.createdAt).toISOString(), error, retryAfterSeconds: open ? 1 : null,
+        state: r.state as JobProgress['state'], stage: live?.stage ?? r.stage ?? r.state, fraction: Math.min(1, Math.max(0, Number(live?.fraction ?? r.progress ?? 0))),
+        updatedAt: (live?.updated_at ?? r.finishedAt ?? r.startedAt ?? r.createdAt).toISOString(), error, retryAfterSeconds: open ? 1 : null,
       };
     },
     async getRun(actor: Actor, id: string): Promise<AdjustmentRunDetail> {

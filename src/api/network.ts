@@ -1,5 +1,6 @@
 import { keepPreviousData, queryOptions, useMutation, useQuery, useQueryClient } from '@tanstack/react-query';
 import type { Page } from '../../shared/http';
+import type { JobProgress } from '../../shared/jobs';
 import type {
   AdjustmentOptionsInput, AdjustmentRun, AdjustmentRunDetail, Benchmark, BenchmarkInput, HeightDatum, HeightDatumInput, LoopReport,
   NetworkMap, Reconciliation, Section, SectionInput, SectionUploadResult,
@@ -17,6 +18,7 @@ export const networkKeys = {
   loops: (datumId?: string) => [...networkKeys.all, 'loops', datumId ?? 'all'] as const,
   runs: (p: object) => [...networkKeys.all, 'runs', p] as const,
   run: (id: string) => [...networkKeys.all, 'run', id] as const,
+  runProgress: (id: string) => [...networkKeys.all, 'run', id, 'progress'] as const,
   reconciliation: () => [...networkKeys.all, 'reconciliation'] as const,
   map: () => [...networkKeys.all, 'map'] as const,
 };
@@ -41,12 +43,25 @@ export const useRuns = (p: { page: number; pageSize: number }) =>
     queryKey: networkKeys.runs(p), queryFn: () => api<Page<AdjustmentRun>>(`/api/v1/network/runs?${qs(p)}`),
     refetchInterval: (q) => (q.state.data?.items.some((r) => r.state === 'queued' || r.state === 'running') ? 1000 : false),
   });
-/** Polls while the run is queued or running, so the page shows its progress. */
+/** The run with its results; while it is open the page polls the light progress route and refetches this once it ends. */
 export const useRun = (id: string) =>
   useQuery({
     queryKey: networkKeys.run(id), queryFn: () => api<AdjustmentRunDetail>(`/api/v1/network/runs/${id}`),
-    refetchInterval: (q) => (q.state.data && (q.state.data.state === 'done' || q.state.data.state === 'failed') ? false : 700),
+    refetchInterval: (q) => (q.state.data && (q.state.data.state === 'done' || q.state.data.state === 'failed') ? false : 5000),
   });
+/** The run's durable progress (stage, fraction, written by the worker about every 250 ms), polled every 500 ms while open. */
+export const useRunProgress = (id: string, open: boolean) => {
+  const qc = useQueryClient();
+  return useQuery({
+    queryKey: networkKeys.runProgress(id), enabled: open,
+    queryFn: async () => {
+      const p = await api<JobProgress>(`/api/v1/network/runs/${id}/progress`);
+      if (p.state === 'done' || p.state === 'failed') await qc.invalidateQueries({ queryKey: networkKeys.run(id), exact: true });
+      return p;
+    },
+    refetchInterval: (q) => (q.state.data && (q.state.data.state === 'done' || q.state.data.state === 'failed') ? false : 500),
+  });
+};
 export const useReconciliation = () => useQuery({ queryKey: networkKeys.reconciliation(), queryFn: () => api<Reconciliation>('/api/v1/network/reconciliation') });
 export const useNetworkMap = () => useQuery({ queryKey: networkKeys.map(), queryFn: () => api<NetworkMap>('/api/v1/network/map') });
 

@@ -3,6 +3,7 @@ import request from 'supertest';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { stopQueues } from '../../server/jobs/queue';
 import { startWorker, type Worker } from '../../server/jobs/worker';
+import { adjustmentThreadCount } from '../../server/network/adjustment-thread';
 import { chiSquareQuantile } from '../../server/science/distributions';
 import { createTestApp, tokenFor, type TestApp } from '../helpers/test-app';
 
@@ -197,6 +198,10 @@ describe('adjustment runs through the job queue', () => {
     expect(r.globalTest.critical).toBeCloseTo(chiSquareQuantile(0.975, r.degreesOfFreedom), 9);
     const [row] = await t.ds.query('SELECT state, degrees_of_freedom, suspects, result IS NOT NULL AS has FROM adjustment_run WHERE id = $1', [run.id]);
     expect(row).toEqual({ state: 'done', degrees_of_freedom: r.degreesOfFreedom, suspects: r.snooping.suspects.length, has: true });
+    // durable progress in job_progress, and the run's worker thread is gone
+    const [progress] = await t.ds.query("SELECT stage, fraction FROM job_progress WHERE kind = 'adjustment-run' AND subject_id = $1", [run.id]);
+    expect(progress).toEqual({ stage: 'finished', fraction: 1 });
+    expect(adjustmentThreadCount()).toBe(0);
     await expect(t.ds.query("UPDATE adjustment_run SET stage = 'x' WHERE id = $1", [run.id])).rejects.toThrow(/cannot be changed/);
     await expect(t.ds.query('DELETE FROM adjustment_run WHERE id = $1', [run.id])).rejects.toThrow(/kept for good/);
   });

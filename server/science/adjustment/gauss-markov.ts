@@ -21,9 +21,11 @@ import {
   SingularMatrixError,
   solve,
   symmetricFromTriplets,
+  type LdlFactor,
+  type SelectedInverse,
   type SymmetricCsc,
 } from './sparse-ldl';
-import type { Ordering } from './ordering';
+import { approximateMinimumDegree, type Ordering } from './ordering';
 
 export type ObservationKind = 'levelling' | 'tie' | 'clock';
 
@@ -74,10 +76,13 @@ export interface DifferenceRequest {
 export type AdjustmentStage =
   | 'validation'
   | 'assembly'
-  | 'ordering and factorisation'
+  | 'ordering'
+  | 'factorisation'
   | 'solution'
   | 'selected inversion'
-  | 'statistical tests';
+  | 'statistical tests'
+  | 'outlier screening'
+  | 'adjustment after removals';
 
 export interface AdjustmentOptions {
   /** Significance level of the two-sided global χ² test. Default 0.05. */
@@ -100,6 +105,10 @@ export interface AdjustmentOptions {
   snooping?: 'iterative' | 'none';
   /** Upper bound on removals by the iteration. Default 50. */
   maxRemovals?: number;
+  /**
+   * Called often (every few hundred columns of the factorisation and inversion, every few thousand observations of the
+   * tests, every screening step) with the share done (0..1, never decreasing) and the stage; it must not throw.
+   */
   onProgress?: (fraction: number, stage: AdjustmentStage) => void;
 }
 
@@ -282,6 +291,11 @@ export class AdjustmentInputError extends Error {
 }
 
 const NAMED_CODES = 5;
+/**
+ * Screened removals are applied by rank-one downdates only when every removed row had r ≥ this; c = p/r then stays
+ * within 1000·p, so the rounding of the updates stays far below the tolerances of the tests (common practice).
+ */
+const DOWNDATE_MIN_REDUNDANCY = 1e-3;
 /** Below this a redundancy number is treated as zero: rounding noise of 1 − p·q (common practice). */
 const REDUNDANCY_FLOOR = 1e-10;
 
@@ -290,7 +304,14 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
   const mode = options.snooping ?? 'iterative';
   const maxRemovals = options.maxRemovals ?? 50;
   if (!(Number.isInteger(maxRemovals) && maxRemovals >= 0)) throw invalid('options.maxRemovals', 'maxRemovals must be a whole number ≥ 0');
-  const progress = options.onProgress ?? (() => undefined);
+  const report = options.onProgress ?? (() => undefined);
+  // Fractions reported never go back: a pass maps its own 0..1 into [lo, hi] of the whole.
+  let reported = 0;
+  const progress = (fraction: number, stage: AdjustmentStage): void => {
+    if (fraction > reported) reported = fraction;
+    report(reported, stage);
+  };
+  const span = (lo: number, hi: number, stage?: AdjustmentStage) => (f: number, s: AdjustmentStage) => progress(lo + (hi - lo) * f, stage ?? s);
   const nObsAll = input.observations.length;
   const removedObs = new Map<number, SnoopingRemoval>();
   const removedFixed = new Map<number, SnoopingRemoval>();
@@ -301,7 +322,7 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
   // same from pass to pass (a removed weighted fixed value leaves its point an unknown), so the fill-reducing ordering
   // of the first pass is reused.
   let ordering: Ordering | undefined;
-  const run = (report: boolean, screen = false) => {
+  const run = (onProgress: (fraction: number, stage: AdjustmentStage) => void, screen = false, downdated?: Downdate) => {
     const obsMap: number[] = [];
     for (let k = 0; k < nObsAll; k++) if (!removedObs.has(k)) obsMap.push(k);
     const points = input.points.map((p, i) => {
@@ -311,21 +332,22 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
     });
     const core = adjustCore(
       { points, observations: obsMap.map((k) => input.observations[k]), options },
-      report ? progress : () => undefined,
+      onProgress,
       obsMap,
       ordering,
       screen,
       Math.max(0, maxRemovals - removals.length),
+      downdated,
     );
     ordering = core.ordering;
     return { core, obsMap };
   };
 
-  let pass = run(true, mode === 'iterative');
+  let pass = run(span(0, mode === 'iterative' ? 0.92 : 1), mode === 'iterative');
   const initial = { sigma0: pass.core.sigma0, degreesOfFreedom: pass.core.degreesOfFreedom, globalTest: pass.core.globalTest };
   if (mode === 'iterative' && pass.core.screened.length > 0) {
-    // Apply the screened sequence (each w is the one the full iteration would compute at that step), then re-adjust
-    // exactly once; the loop below continues with full adjustments should anything still exceed the critical value.
+    // Apply the screened sequence (each w is the one the full iteration would compute at that step), then adjust once
+    // without those rows; the loop below continues with full adjustments should anything still exceed the critical value.
     const { core, obsMap } = pass;
     const staged: SnoopingRemoval[] = core.screened.map((c, j) => {
       const removal: SnoopingRemoval = { step: j + 1, source: c.source, index: c.source === 'observation' ? obsMap[c.index] : c.index, standardizedResidual: c.w };
@@ -338,13 +360,18 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
       return removal;
     });
     for (const r of staged) (r.source === 'observation' ? removedObs : removedFixed).set(r.index, r);
+    // The adjustment without the screened rows reuses the factor and selected inverse with the screening's rank-one
+    // downdates (x' refined against the assembled N', Q' = Q + Σ c_s z_s z_sᵀ). A removal whose redundancy number was
+    // small makes c_s large and the update less accurate: then the adjustment is computed afresh instead.
+    const dd = core.downdate && core.downdate.minRedundancy >= DOWNDATE_MIN_REDUNDANCY ? core.downdate : undefined;
+    const after = span(0.92, 1, 'adjustment after removals');
     try {
-      pass = run(false);
+      pass = run(after, false, dd);
       removals.push(...staged);
     } catch (e) {
       if (!(e instanceof AdjustmentInputError)) throw e;
       for (const r of staged) (r.source === 'observation' ? removedObs : removedFixed).delete(r.index);
-      pass = run(false);
+      pass = run(after);
     }
   }
   if (mode === 'iterative') {
@@ -378,7 +405,7 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
         removedFixed.set(chosen.index, removal);
       }
       try {
-        const next = run(false);
+        const next = run(span(0.92, 1, 'adjustment after removals'));
         removals.push(removal);
         pass = next;
       } catch (e) {
@@ -400,7 +427,9 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
   for (const sp of core.sharedParameters) sharedValue.set(sp.name, sp.value);
   const byOriginal = new Map<number, AdjustedObservation>();
   core.observations.forEach((o, j) => byOriginal.set(obsMap[j], { ...o, index: obsMap[j] }));
+  progress(reported, 'statistical tests');
   const observations: AdjustedObservation[] = input.observations.map((ob, k) => {
+    if ((k & 65535) === 65535) progress(reported, 'statistical tests');
     const kept = byOriginal.get(k);
     if (kept) return kept;
     const rem = removedObs.get(k)!;
@@ -501,13 +530,29 @@ interface CoreResult {
   criticalValue: number;
   factorNonZeros: number;
   ordering: Ordering;
-  /** Removals found by rank-one screening (indices local to this pass), in order; verified by an exact re-adjustment. */
+  /** Removals found by rank-one screening (indices local to this pass), in order. */
   screened: { source: 'observation' | 'fixedPoint'; index: number; w: number }[];
+  /** This pass's factor and selected inverse with the screening's rank-one downdates, for the adjustment without the screened rows. */
+  downdate?: Downdate;
+}
+
+/**
+ * N⁻¹ after removing the screened rows, as Q + Σ c_s z_s z_sᵀ (sequential Sherman–Morrison, z_s = Q_{s−1} a_s,
+ * c_s = p_s / r_s with r_s the redundancy number at removal s).
+ */
+interface Downdate {
+  factor: LdlFactor;
+  inverse: SelectedInverse;
+  zs: Float64Array[];
+  cs: number[];
+  /** Smallest r_s among the removals: a small one amplifies rounding in c_s. */
+  minRedundancy: number;
 }
 
 /** One least-squares adjustment (no iteration). `obsPath` maps observation positions to the caller's indices for messages. */
 function adjustCore(
   input: AdjustmentInput, progress: (fraction: number, stage: AdjustmentStage) => void, obsPath: number[], ordering?: Ordering, screen = false, screenBudget = 0,
+  downdated?: Downdate,
 ): CoreResult {
   const options = input.options ?? {};
   const alpha = options.alpha ?? 0.05;
@@ -608,7 +653,7 @@ function adjustCore(
 
   checkConnectivity(points, obsFrom, obsTo, role);
 
-  progress(0.05, 'assembly');
+  progress(0.02, 'assembly');
   const c0 = approximateValues(points, obsFrom, obsTo, observations, role);
 
   // Unknowns: free and weighted points, then datum offsets, then shared parameters.
@@ -662,6 +707,21 @@ function adjustCore(
     for (let p = termPtr[k]; p < termPtr[k + 1]; p++) { idx[m] = firstParamUnknown + termSlot[p]; coef[m] = termCoef[p]; m++; }
     return m;
   };
+  // The design matrix A by rows (CSR), for the loops that read every row many times.
+  const aPtr = new Int32Array(nObs + 1);
+  const aCol = new Int32Array(2 * nObs + termPtr[nObs]);
+  const aVal = new Float64Array(aCol.length);
+  for (let k = 0; k < nObs; k++) {
+    const m = obsUnknowns(k);
+    let at = aPtr[k];
+    for (let s = 0; s < m; s++, at++) { aCol[at] = idx[s]; aVal[at] = coef[s]; }
+    aPtr[k + 1] = at;
+  }
+  const rowTimes = (k: number, vec: Float64Array): number => {
+    let d = 0;
+    for (let p = aPtr[k]; p < aPtr[k + 1]; p++) d += aVal[p] * vec[aCol[p]];
+    return d;
+  };
   for (let k = 0; k < nObs; k++) {
     const m = obsUnknowns(k);
     const p = weight[k];
@@ -691,45 +751,93 @@ function adjustCore(
   });
   const normal = symmetricFromTriplets(nUnknowns, tr, tc, tv, nt);
 
-  progress(0.15, 'ordering and factorisation');
-  let factor;
-  try {
-    factor = factorize(normal, ordering && ordering.perm.length === nUnknowns ? { ordering } : {});
-  } catch (e) {
-    if (e instanceof SingularMatrixError) {
-      throw new AdjustmentInputError(
-        `normal equations are singular at unknown ${unknownNames[e.column]}: the observations do not determine it`,
-        { reason: 'singular', unknown: unknownNames[e.column] },
-      );
+  let factor: LdlFactor;
+  let solveN: (b: Float64Array) => Float64Array;
+  if (downdated) {
+    // N' = N − Σ p_s a_s a_sᵀ: N'⁻¹ b = N⁻¹ b + Σ c_s z_s (z_sᵀ b) with the screening's z_s = Q_{s−1} a_s, c_s = p_s / r_s.
+    factor = downdated.factor;
+    const { zs, cs } = downdated;
+    solveN = (b) => {
+      const x = solve(factor, b);
+      for (let s2 = 0; s2 < zs.length; s2++) {
+        const zv = zs[s2];
+        let d = 0;
+        for (let u = 0; u < nUnknowns; u++) d += zv[u] * b[u];
+        const f = cs[s2] * d;
+        if (f !== 0) for (let u = 0; u < nUnknowns; u++) x[u] += f * zv[u];
+      }
+      return x;
+    };
+  } else {
+    progress(0.05, 'ordering');
+    const usable = ordering && ordering.perm.length === nUnknowns ? ordering : approximateMinimumDegree(normal, (f) => progress(0.05 + 0.15 * f, 'ordering'));
+    progress(0.2, 'factorisation');
+    try {
+      factor = factorize(normal, { ordering: usable, onColumns: (f) => progress(0.2 + 0.25 * f, 'factorisation') });
+    } catch (e) {
+      if (e instanceof SingularMatrixError) {
+        throw new AdjustmentInputError(
+          `normal equations are singular at unknown ${unknownNames[e.column]}: the observations do not determine it`,
+          { reason: 'singular', unknown: unknownNames[e.column] },
+        );
+      }
+      throw e;
     }
-    throw e;
+    const f0 = factor;
+    solveN = (b) => solve(f0, b);
   }
 
   progress(0.45, 'solution');
-  const dx = solve(factor, rhs);
-  // One step of iterative refinement recovers the digits lost to the condition number of N.
+  const dx = solveN(rhs);
+  // One step of iterative refinement recovers the digits lost to the condition number of N (and to the downdates).
   const resid = symmetricResidual(normal, dx, rhs);
-  const corr = solve(factor, resid);
+  const corr = solveN(resid);
   for (let j = 0; j < nUnknowns; j++) dx[j] += corr[j];
 
-  progress(0.5, 'selected inversion');
-  const z = selectedInverse(factor);
+  progress(0.47, 'selected inversion');
+  const z: SelectedInverse = downdated ? downdated.inverse : selectedInverse(factor, (f) => progress(0.47 + 0.33 * f, 'selected inversion'));
+  // Q = N⁻¹ on the pattern of the factor; after downdates Q' = Q + Σ c_s z_s z_sᵀ (same pattern: removing rows only
+  // removes entries of N).
+  const lowRank = downdated ?? null;
+  const entry = (i: number, j: number): number => {
+    let e = inverseEntry(z, i, j);
+    if (i === j && diagLowRank) return e + diagLowRank[i];
+    if (lowRank && !Number.isNaN(e)) for (let s2 = 0; s2 < lowRank.zs.length; s2++) e += lowRank.cs[s2] * lowRank.zs[s2][i] * lowRank.zs[s2][j];
+    return e;
+  };
   // Q entries outside the factor's pattern come from one extra solve N·q = e_j per column (cached).
   const columns = new Map<number, Float64Array>();
   const q = (i: number, j: number): number => {
-    const e = inverseEntry(z, i, j);
+    const e = entry(i, j);
     if (!Number.isNaN(e)) return e;
     let col = columns.get(j);
     if (!col) {
       const unit = new Float64Array(nUnknowns);
       unit[j] = 1;
-      col = solve(factor, unit);
+      col = solveN(unit);
       columns.set(j, col);
     }
     return col[i];
   };
 
-  progress(0.85, 'statistical tests');
+  progress(0.8, 'statistical tests');
+  // With downdates, aᵀQ'a = aᵀQa + Σ_s c_s (aᵀz_s)², and diag Q' likewise; one z_s at a time keeps the reads local.
+  let obsLowRank: Float64Array | null = null;
+  let diagLowRank: Float64Array | null = null;
+  if (lowRank) {
+    obsLowRank = new Float64Array(nObs);
+    diagLowRank = new Float64Array(nUnknowns);
+    for (let s2 = 0; s2 < lowRank.zs.length; s2++) {
+      const zv = lowRank.zs[s2];
+      const c = lowRank.cs[s2];
+      for (let u = 0; u < nUnknowns; u++) diagLowRank[u] += c * zv[u] * zv[u];
+      for (let k = 0; k < nObs; k++) {
+        const d = rowTimes(k, zv);
+        obsLowRank[k] += c * d * d;
+      }
+      progress(0.8, 'statistical tests');
+    }
+  }
   const v = new Float64Array(nObs);
   const r = new Float64Array(nObs);
   const sharedEffect = new Float64Array(nObs);
@@ -743,6 +851,8 @@ function adjustCore(
       if (idx[s] >= firstSharedUnknown) sharedEffect[k] += coef[s] * dx[idx[s]];
       for (let t = 0; t < m; t++) qaa += coef[s] * coef[t] * inverseEntry(z, idx[s], idx[t]);
     }
+    if (obsLowRank) qaa += obsLowRank[k];
+    if ((k & 16383) === 16383) progress(0.8 + (0.05 * k) / nObs, 'statistical tests');
     v[k] = ax - l0[k];
     r[k] = 1 - weight[k] * qaa;
     vtpv += weight[k] * v[k] * v[k];
@@ -752,7 +862,7 @@ function adjustCore(
   weightedIdx.forEach((i, s) => {
     const u = unknownOfPoint[i];
     pv[s] = dx[u] - pseudoL0[s];
-    pr[s] = 1 - pseudoWeight[s] * inverseEntry(z, u, u);
+    pr[s] = 1 - pseudoWeight[s] * entry(u, u);
     vtpv += pseudoWeight[s] * pv[s] * pv[s];
   });
   shared.forEach((sp, j) => {
@@ -772,9 +882,12 @@ function adjustCore(
 
   // Screening for Baarda's iteration without re-factorising: removing row k is a rank-one downdate of N, so with
   // z = Q·a_k (Sherman–Morrison) x' = x + p_k·v_k/r_k·z, v_i' = v_i + p_k·v_k/r_k·(a_iᵀz), r_i' = r_i − p_i·p_k·(a_iᵀz)²/r_k,
-  // Ω' = Ω − p_k·v_k²/r_k. Q after several removals is Q_0 + Σ c_j·z_j·z_jᵀ. The caller re-adjusts exactly afterwards.
+  // Ω' = Ω − p_k·v_k²/r_k. Q after several removals is Q_0 + Σ c_j·z_j·z_jᵀ. The caller then
+  // adjusts without the screened rows, reusing this factor and inverse with these downdates (see Downdate).
   const screened: { source: 'observation' | 'fixedPoint'; index: number; w: number }[] = [];
+  let downdate: Downdate | undefined;
   if (screen && dof > 0) {
+    progress(0.85, 'outlier screening');
     const nRows = nObs + nPseudo;
     const rv = new Float64Array(nRows);
     const rr = new Float64Array(nRows);
@@ -785,13 +898,11 @@ function adjustCore(
     weightedIdx.forEach((i, s2) => { rv[nObs + s2] = pv[s2]; rr[nObs + s2] = pr[s2]; rp[nObs + s2] = pseudoWeight[s2]; rs[nObs + s2] = points[i].sigmaFixed as number; });
     const rowDot = (row: number, vec: Float64Array): number => {
       if (row >= nObs) return vec[unknownOfPoint[weightedIdx[row - nObs]]];
-      const m = obsUnknowns(row);
-      let d = 0;
-      for (let s2 = 0; s2 < m; s2++) d += coef[s2] * vec[idx[s2]];
-      return d;
+      return rowTimes(row, vec);
     };
     const zs: Float64Array[] = [];
     const cs: number[] = [];
+    let minRedundancy = 1;
     let dofLeft = dof;
     for (let step = 0; step < screenBudget && dofLeft > 0; step++) {
       let best = -1;
@@ -809,14 +920,18 @@ function adjustCore(
       const a = new Float64Array(nUnknowns);
       if (best >= nObs) a[unknownOfPoint[weightedIdx[best - nObs]]] = 1;
       else { const m = obsUnknowns(best); for (let s2 = 0; s2 < m; s2++) a[idx[s2]] += coef[s2]; }
+      // a has a few non-zeros: z_jᵀa is read at those only.
+      const aIdx: number[] = [];
+      for (let u = 0; u < nUnknowns; u++) if (a[u] !== 0) aIdx.push(u);
       const z = solve(factor, a);
       for (let j = 0; j < zs.length; j++) {
         let d = 0;
-        for (let u = 0; u < nUnknowns; u++) d += zs[j][u] * a[u];
+        for (const u of aIdx) d += zs[j][u] * a[u];
         const f = cs[j] * d;
         if (f !== 0) for (let u = 0; u < nUnknowns; u++) z[u] += f * zs[j][u];
       }
       const c = rp[best] / rr[best];
+      if (rr[best] < minRedundancy) minRedundancy = rr[best];
       const g = c * rv[best];
       for (let i = 0; i < nRows; i++) {
         if (gone[i]) continue;
@@ -826,7 +941,9 @@ function adjustCore(
       }
       zs.push(z);
       cs.push(c);
+      progress(0.85 + (0.15 * (step + 1)) / Math.max(screenBudget, 1), 'outlier screening');
     }
+    if (zs.length > 0) downdate = { factor, inverse: z, zs, cs, minRedundancy };
   }
 
   const analyse = (residual: number, sigma: number, redundancy: number): Omit<ResidualAnalysis, 'suspected' | 'removedAtStep'> => {
@@ -836,10 +953,11 @@ function adjustCore(
     return { residual, sigmaResidual, redundancy: rr, standardizedResidual: w };
   };
 
+  progress(0.99, 'statistical tests');
   const outPoints: AdjustedPoint[] = points.map((pt, i) => {
     const u = unknownOfPoint[i];
     const c = u >= 0 ? c0[i] + dx[u] : c0[i];
-    const sigma = u >= 0 ? Math.sqrt(Math.max(inverseEntry(z, u, u), 0)) : 0;
+    const sigma = u >= 0 ? Math.sqrt(Math.max(entry(u, u), 0)) : 0;
     const res: AdjustedPoint = {
       code: pt.code,
       c,
@@ -851,7 +969,9 @@ function adjustCore(
     return res;
   });
 
+  progress(0.99, 'statistical tests');
   const outObs: AdjustedObservation[] = observations.map((ob, k) => {
+    if ((k & 65535) === 65535) progress(0.99, 'statistical tests');
     const a = analyse(v[k], ob.sigma, r[k]);
     const res: AdjustedObservation = {
       index: k,
@@ -870,6 +990,7 @@ function adjustCore(
     return res;
   });
 
+  progress(0.99, 'statistical tests');
   const outFixed = weightedIdx.map((i, s) => ({
     pointIndex: i,
     code: points[i].code,
@@ -882,12 +1003,12 @@ function adjustCore(
 
   const outOffsets: AdjustedDatumOffset[] = offsetNames.map((name, k) => {
     const u = firstParamUnknown + k;
-    const sigma = Math.sqrt(Math.max(inverseEntry(z, u, u), 0));
+    const sigma = Math.sqrt(Math.max(entry(u, u), 0));
     return { name, value: dx[u], sigma, sigmaScaled: sigma0 === null ? null : sigma * sigma0 };
   });
   const outShared: AdjustedSharedParameter[] = shared.map((sp, j) => {
     const u = firstSharedUnknown + j;
-    return { name: sp.name, value: dx[u], sigma: Math.sqrt(Math.max(inverseEntry(z, u, u), 0)), priorSigma: sp.sigma, observations: sharedUse[j] };
+    return { name: sp.name, value: dx[u], sigma: Math.sqrt(Math.max(entry(u, u), 0)), priorSigma: sp.sigma, observations: sharedUse[j] };
   });
 
   const outDiffs: AdjustedDifference[] = (options.differences ?? []).map((d, j) => {
@@ -897,8 +1018,8 @@ function adjustCore(
     if (t === undefined) throw invalid(`options.differences[${j}].to`, `unknown point ${d.to}`);
     const uf = unknownOfPoint[f];
     const ut = unknownOfPoint[t];
-    const qff = uf >= 0 ? inverseEntry(z, uf, uf) : 0;
-    const qtt = ut >= 0 ? inverseEntry(z, ut, ut) : 0;
+    const qff = uf >= 0 ? entry(uf, uf) : 0;
+    const qtt = ut >= 0 ? entry(ut, ut) : 0;
     const qft = uf >= 0 && ut >= 0 && uf !== ut ? q(ut, uf) : uf >= 0 && uf === ut ? qff : 0;
     return {
       from: d.from,
@@ -928,6 +1049,7 @@ function adjustCore(
     ordering: factor.ordering,
     screened,
   };
+  if (downdate) result.downdate = downdate;
   if (heldPoint !== undefined) result.heldPoint = heldPoint;
   return result;
 }

@@ -32,7 +32,7 @@ export interface Ordering {
  * (indistinguishable nodes) and dense-row postponement; those save time on meshes with many
  * identical rows but do not change the kind of ordering. Ties are broken last-in-first-out.
  */
-export function approximateMinimumDegree(pattern: SymmetricPattern): Ordering {
+export function approximateMinimumDegree(pattern: SymmetricPattern, onPivots?: (fraction: number) => void): Ordering {
   const n = pattern.n;
   const perm = new Int32Array(n);
   const inversePerm = new Int32Array(n);
@@ -127,8 +127,10 @@ export function approximateMinimumDegree(pattern: SymmetricPattern): Ordering {
       for (const e of elemAdj[i]) {
         if (deadElement[e]) continue;
         if (wStamp[e] !== k) {
+          // A live element holds uneliminated variables only (eliminating one of its variables absorbs it), so
+          // |L_e| is its length: no scan of L_e per pivot.
           wStamp[e] = k;
-          w[e] = countLive(elemVars[e] as Int32Array, eliminated);
+          w[e] = (elemVars[e] as Int32Array).length;
         }
         w[e]--;
       }
@@ -137,19 +139,22 @@ export function approximateMinimumDegree(pattern: SymmetricPattern): Ordering {
     for (let q = 0; q < lpSize; q++) {
       const i = lpArr[q];
       let extSum = 0;
-      const newElems: number[] = [];
-      for (const e of elemAdj[i]) {
+      // Compact E_i in place (dead and absorbed elements out), then add p.
+      const elems = elemAdj[i];
+      let ne = 0;
+      for (let t = 0; t < elems.length; t++) {
+        const e = elems[t];
         if (deadElement[e]) continue;
         if (w[e] <= 0) {
           deadElement[e] = 1; // L_e ⊆ L_p: e adds nothing that p does not already hold.
           elemVars[e] = null;
           continue;
         }
-        newElems.push(e);
+        elems[ne++] = e;
         extSum += w[e];
       }
-      newElems.push(p);
-      elemAdj[i] = newElems;
+      elems.length = ne;
+      elems.push(p);
 
       // Variable edges now represented by element p are dropped.
       const adj = varAdj[i];
@@ -165,14 +170,9 @@ export function approximateMinimumDegree(pattern: SymmetricPattern): Ordering {
       insert(i);
       if (degree[i] < minDeg) minDeg = degree[i];
     }
+    if (onPivots && (k & 1023) === 1023) onPivots(k / n);
   }
   return { perm, inversePerm };
-}
-
-function countLive(vars: Int32Array, eliminated: Uint8Array): number {
-  let c = 0;
-  for (let q = 0; q < vars.length; q++) if (!eliminated[vars[q]]) c++;
-  return c;
 }
 
 /** Identity ordering, for comparisons and tests. */

@@ -44,9 +44,31 @@ export interface LdlFactor {
  */
 export const DEFAULT_PIVOT_TOLERANCE = 1e-12;
 
+/** Called now and then with the share of the work done (0..1), for progress reports; must not throw. */
+export type ColumnProgress = (fraction: number) => void;
+/** Progress is reported every PROGRESS_MASK + 1 columns. */
+const PROGRESS_MASK = 255;
+
+/**
+ * Work of each column, |L_j|² + 1 (the factorisation and the selected inversion both cost about Σ_j |L_j|²), with the
+ * total in the extra last slot: progress fractions then follow the work, not the column count.
+ */
+function columnWork(colPtr: Int32Array, n: number): Float64Array {
+  const w = new Float64Array(n + 1);
+  let total = 0;
+  for (let j = 0; j < n; j++) {
+    const len = colPtr[j + 1] - colPtr[j];
+    w[j] = len * len + 1;
+    total += w[j];
+  }
+  w[n] = total;
+  return w;
+}
+
 export interface FactorOptions {
   ordering?: Ordering;
   pivotTolerance?: number;
+  onColumns?: ColumnProgress;
 }
 
 /** Elimination tree and column counts of L for P A Pᵀ (Davis 2005, ldl_symbolic). */
@@ -83,6 +105,9 @@ export function factorize(a: SymmetricCsc, options: FactorOptions = {}): LdlFact
   const tol = options.pivotTolerance ?? DEFAULT_PIVOT_TOLERANCE;
   const { parent, colPtr } = symbolicAnalysis(a, ordering);
   const { perm, inversePerm } = ordering;
+  const onColumns = options.onColumns;
+  const weight = onColumns ? columnWork(colPtr, n) : null;
+  let done = 0;
   const nnz = colPtr[n];
   const rowIdx = new Int32Array(nnz);
   const values = new Float64Array(nnz);
@@ -127,6 +152,11 @@ export function factorize(a: SymmetricCsc, options: FactorOptions = {}): LdlFact
     }
     if (!(dk > tol * Math.abs(akk)) || !(akk > 0)) throw new SingularMatrixError(perm[k], dk);
     diag[k] = dk;
+    if (weight) {
+      // Row k completes the work of every column i < k it touched; the columns' own weights approximate that.
+      done += weight[k];
+      if ((k & PROGRESS_MASK) === PROGRESS_MASK) onColumns!(done / weight[n]);
+    }
   }
   return { n, ordering, parent, colPtr, rowIdx, values, diag };
 }
@@ -167,35 +197,52 @@ export interface SelectedInverse {
   diag: Float64Array;
 }
 
-export function selectedInverse(f: LdlFactor): SelectedInverse {
+export function selectedInverse(f: LdlFactor, onColumns?: ColumnProgress): SelectedInverse {
   const n = f.n;
   const { colPtr, rowIdx, values: lx, diag: d } = f;
   const zx = new Float64Array(lx.length);
   const zd = new Float64Array(n);
   const work = new Float64Array(n);
-  const lcol = new Float64Array(n);
-  const inCol = new Int32Array(n).fill(-1);
+  const weight = columnWork(colPtr, n);
+  let done = 0;
 
+  // Column j's rows r_0 < r_1 < … lie, beyond any r_a, inside column r_a (clique property), so Z_{r_b, r_a} (b > a) is
+  // found in column r_a by a galloping search from the previous hit: the work per pair stays near the length of
+  // column j instead of the (often far longer) column r_a.
   for (let j = n - 1; j >= 0; j--) {
     const p0 = colPtr[j];
     const p1 = colPtr[j + 1];
-    for (let p = p0; p < p1; p++) {
-      const i = rowIdx[p];
-      inCol[i] = j;
-      lcol[i] = lx[p];
-      work[i] = 0;
-    }
-    for (let p = p0; p < p1; p++) {
-      const k = rowIdx[p];
-      const lkj = lx[p];
+    for (let p = p0; p < p1; p++) work[rowIdx[p]] = 0;
+    for (let a = p0; a < p1; a++) {
+      const k = rowIdx[a];
+      const lkj = lx[a];
       let accK = zd[k] * lkj;
-      for (let q = colPtr[k]; q < colPtr[k + 1]; q++) {
-        const i = rowIdx[q];
-        if (inCol[i] === j) {
-          const zik = zx[q];
-          work[i] -= zik * lkj;
-          accK += zik * lcol[i];
+      let q = colPtr[k];
+      const qEnd = colPtr[k + 1];
+      for (let b = a + 1; b < p1; b++) {
+        const i = rowIdx[b];
+        if (rowIdx[q] !== i) {
+          // Gallop to the first position with row ≥ i, then bisect.
+          let step = 1;
+          let lo = q;
+          let hi = q + 1;
+          while (hi < qEnd && rowIdx[hi] < i) {
+            lo = hi;
+            step *= 2;
+            hi = q + step;
+          }
+          if (hi > qEnd) hi = qEnd;
+          while (lo < hi) {
+            const mid = (lo + hi) >> 1;
+            if (rowIdx[mid] < i) lo = mid + 1;
+            else hi = mid;
+          }
+          q = lo;
         }
+        const zik = zx[q];
+        work[i] -= zik * lkj;
+        accK += zik * lx[b];
+        q++;
       }
       work[k] -= accK;
     }
@@ -206,6 +253,10 @@ export function selectedInverse(f: LdlFactor): SelectedInverse {
       s -= lx[p] * work[i];
     }
     zd[j] = s;
+    if (onColumns) {
+      done += weight[j];
+      if ((j & PROGRESS_MASK) === 0) onColumns(done / weight[n]);
+    }
   }
   return { factor: f, values: zx, diag: zd };
 }

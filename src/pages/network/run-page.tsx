@@ -1,6 +1,6 @@
 import { useState } from 'react';
 import { Link, useNavigate, useParams } from 'react-router';
-import { useRun } from '../../api/network';
+import { useRun, useRunProgress } from '../../api/network';
 import { ProgressBar } from '../../components/progress-bar';
 import { ResidualPlot } from '../../components/plots/residual-plot';
 import { Caution, Panel } from '../../components/ui';
@@ -11,6 +11,8 @@ import { plural } from '../../lib/format';
 export function RunPage() {
   const { id = '' } = useParams();
   const run = useRun(id);
+  const open = run.data?.state === 'queued' || run.data?.state === 'running';
+  const live = useRunProgress(id, open).data;
   const navigate = useNavigate();
   const [showAll, setShowAll] = useState(false);
   const r = run.data;
@@ -23,9 +25,9 @@ export function RunPage() {
       <NetworkNav />
       <Panel title="Progress">
         <div className="max-w-md">
-          <ProgressBar label="Adjustment run" progress={{ state: r.state, stage: r.state === 'done' ? 'finished' : (r.stage ?? r.state), fraction: r.progress, error: null }} />
+          <ProgressBar label="Adjustment run" progress={open && live ? live : { state: r.state, stage: r.state === 'done' ? 'finished' : (r.stage ?? r.state), fraction: r.progress, error: null }} />
         </div>
-        <p className="mt-1 text-sm" data-testid="run-state">{r.state === 'done' ? '✓ finished' : r.state === 'failed' ? '✕ failed' : `${r.state}: ${r.stage ?? ''} (${Math.round(r.progress * 100)} %)`}</p>
+        <p className="mt-1 text-sm" data-testid="run-state">{r.state === 'done' ? '✓ finished' : r.state === 'failed' ? '✕ failed' : `${live?.state ?? r.state}: ${live?.stage ?? r.stage ?? ''} (${Math.round((live?.fraction ?? r.progress) * 100)} %)`}</p>
         {r.error && <p role="alert" className="mt-2 text-sm text-disagree-800">{r.error.message}</p>}
         <p className="mt-2 text-xs text-ink-500">
           Inputs: {plural(r.inputSummary.benchmarks, 'benchmark')}, {plural(r.inputSummary.sections, 'section')}, {plural(r.inputSummary.ties, 'local tie')}, {plural(r.inputSummary.clocks, 'clock comparison')} ·
