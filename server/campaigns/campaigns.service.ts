@@ -1,4 +1,4 @@
-import type { DataSource, EntityManager, SelectQueryBuilder } from 'typeorm';
+import type { DataSource, EntityManager } from 'typeorm';
 import { ratioFromMeasured } from '../registry/measured-ratios';
 import {
   createCampaignSchema,
@@ -101,35 +101,39 @@ function requireState(c: CampaignRow, allowed: readonly CampaignState[], action:
   if (!allowed.includes(c.state)) throw new Conflict(`Cannot ${action} a campaign that is ${c.state.replace('_', ' ')}.`, { state: c.state, allowedFrom: allowed });
 }
 
-/** The campaign with its institute, clocks (site, institute) and link (both sites): every join many-to-one. */
-function withCampaignJoins(qb: SelectQueryBuilder<CampaignRow>) {
-  return qb
-    .leftJoinAndSelect('c.institute', 'i')
-    .leftJoinAndSelect('c.clockA', 'ca')
-    .leftJoinAndSelect('ca.site', 'sa')
-    .leftJoinAndSelect('ca.institute', 'ia')
-    .leftJoinAndSelect('c.clockB', 'cb')
-    .leftJoinAndSelect('cb.site', 'sb')
-    .leftJoinAndSelect('cb.institute', 'ib')
-    .leftJoinAndSelect('c.link', 'l')
-    .leftJoinAndSelect('l.siteA', 'lsa')
-    .leftJoinAndSelect('l.siteB', 'lsb')
-    .leftJoinAndSelect('c.siteA', 'csa')
-    .leftJoinAndSelect('c.siteB', 'csb');
-}
-
+/**
+ * The campaign with its institute, the sites of the period, the pinned budget versions, both clocks (home site,
+ * institute) and the link (both sites): three small SELECTs. One SELECT joining all fourteen tables cost PostgreSQL
+ * more to plan than to run (about 8 ms of planning against 5 ms of execution on the scaled demo), on every read.
+ */
 async function loadCampaign(m: EntityManager, id: string, lock = false): Promise<CampaignRow> {
   if (lock) {
     const locked = await m.getRepository(CampaignEntity).createQueryBuilder('c').setLock('pessimistic_write').where('c.id = :id', { id }).getOne();
     if (!locked) throw new NotFound('Campaign');
   }
-  // One SELECT with the many-to-one joins: findOne() with relations would page through a DISTINCT sub-select.
-  const c = await withCampaignJoins(m.getRepository(CampaignEntity).createQueryBuilder('c'))
+  const c = await m.getRepository(CampaignEntity).createQueryBuilder('c')
+    .leftJoinAndSelect('c.institute', 'i')
+    .leftJoinAndSelect('c.siteA', 'csa')
+    .leftJoinAndSelect('c.siteB', 'csb')
     .leftJoinAndSelect('c.budgetVersionA', 'va')
     .leftJoinAndSelect('c.budgetVersionB', 'vb')
     .where('c.id = :id', { id })
     .getOne();
   if (!c) throw new NotFound('Campaign');
+  const clocks = await m.getRepository(ClockEntity).createQueryBuilder('k')
+    .leftJoinAndSelect('k.site', 's')
+    .leftJoinAndSelect('k.institute', 'ki')
+    .where('k.id IN (:...ids)', { ids: [c.clockAId, c.clockBId] })
+    .getMany();
+  const clockById = new Map(clocks.map((k) => [k.id, k]));
+  c.clockA = clockById.get(c.clockAId);
+  c.clockB = clockById.get(c.clockBId);
+  const link = await m.getRepository(FibreLinkEntity).createQueryBuilder('l')
+    .leftJoinAndSelect('l.siteA', 'lsa')
+    .leftJoinAndSelect('l.siteB', 'lsb')
+    .where('l.id = :id', { id: c.linkId })
+    .getOne();
+  c.link = link ?? undefined;
   return c;
 }
 
