@@ -418,12 +418,12 @@ async function listCampaigns(dataSource: DataSource, actor: Actor, q: CampaignLi
            (SELECT s.name FROM site s WHERE s.id = p.site_b_id) AS site_b_name
       FROM (SELECT c.id, c.name, c.state, c.institute_id, i.code AS institute_code, c.clock_a_id, c.clock_b_id, c.link_id, c.period_start, c.period_end,
                    c.role, c.site_a_id, c.site_b_id, c.updated_at
-              FROM campaign c LEFT JOIN institute i ON i.id = c.institute_id
+              FROM "campaign" c LEFT JOIN institute i ON i.id = c.institute_id
              WHERE ${filter}
              ORDER BY ${inner} ${dir}, c.id LIMIT ${limit} OFFSET ${offset}) p
      ORDER BY ${outer} ${dir}, p.id`;
   // The text filter needs the institute's code; otherwise the count reads the campaign table (or its index) alone.
-  const countSql = `SELECT count(*)::int AS n FROM campaign c${q.q ? ' LEFT JOIN institute i ON i.id = c.institute_id' : ''} WHERE ${filter}`;
+  const countSql = `SELECT count(*)::int AS n FROM "campaign" c${q.q ? ' LEFT JOIN institute i ON i.id = c.institute_id' : ''} WHERE ${filter}`;
   const [rows, counted]: [CampaignListRow[], { n: number }[]] = await Promise.all([dataSource.query(pageSql, params), dataSource.query(countSql, countParams)]);
   const items = rows.map((r) => ({
     id: r.id,
@@ -589,11 +589,12 @@ export function createCampaignsService(deps: { dataSource: DataSource; config: P
 
     async get(actor: Actor, id: string) {
       authorize(actor, 'campaigns:read');
-      return dataSource.transaction(async (m) => {
-        const c = await loadCampaign(m, id);
-        if (!canRead(actor, c)) throw new NotFound('Campaign');
-        return detail(m, actor, c);
-      });
+      // Plain reads, no transaction: under READ COMMITTED a transaction would give these statements no common
+      // snapshot either, only two more round trips (BEGIN, COMMIT) per read.
+      const m = dataSource.manager;
+      const c = await loadCampaign(m, id);
+      if (!canRead(actor, c)) throw new NotFound('Campaign');
+      return detail(m, actor, c);
     },
 
     async defaultRatio(actor: Actor, clockAId: string, clockBId: string) {
