@@ -34,16 +34,15 @@ export function canSeeCampaign(actor: Actor, c: CampaignOwnership): boolean {
 }
 
 /**
- * The same rule as an SQL condition over the campaign table alone (no join to clock B), for lists and counts that must
- * stay index scans:
- * clock B's institute becomes `clock_b_id = ANY(ARRAY(clocks of the institute))`, which PostgreSQL evaluates once
- * and answers from the clock-B index (a bitmap OR with the institute index). `param` adds a value to the caller's
- * positional parameter list and returns its placeholder ($n).
+ * The same rule as an SQL condition over the campaign table alone, for lists and counts that must stay index scans:
+ * clock B's institute is the campaign's `partner_institute_id`, kept equal to it by triggers (migration
+ * 1766110000000-campaign-list-scope). `param` adds a value to the caller's positional parameter list and returns
+ * its placeholder ($n).
  */
-export function campaignScopeSql(actor: Actor, cols: { state: string; institute: string; clockB: string }, param: (value: unknown) => string): string {
+export function campaignScopeSql(actor: Actor, cols: { state: string; institute: string; partnerInstitute: string }, param: (value: unknown) => string): string {
   if (actor.role === 'operator') {
     const inst = param(actor.instituteId ?? '00000000-0000-0000-0000-000000000000');
-    return `(${cols.institute} = ${inst}::uuid OR ${cols.clockB} = ANY(ARRAY(SELECT k.id FROM clock k WHERE k.institute_id = ${inst}::uuid)))`;
+    return `(${cols.institute} = ${inst}::uuid OR ${cols.partnerInstitute} = ${inst}::uuid)`;
   }
   return `${cols.state} = ANY(${param([...statesVisibleTo(actor)])}::text[])`;
 }

@@ -391,15 +391,16 @@ function listClockRef(id: string, k: ClockRefJson | null) {
 
 /**
  * One page of the campaigns the caller may see, and their number: two statements whatever the page size.
- * The page is found on the campaign table alone (the visibility rule without a join, the sort's index, LIMIT/OFFSET),
- * and only its rows fetch their clocks, sites, link and institute through small correlated sub-selects: a join of
- * all twelve tables made PostgreSQL spend tens of milliseconds planning every request, and the count walked the join.
+ * The page is found on the campaign table and its institute (the visibility rule on the campaign's own columns, the
+ * sort's index, LIMIT/OFFSET), and only its rows fetch their clocks, sites and link through small correlated
+ * sub-selects: a join of all twelve tables made PostgreSQL spend tens of milliseconds planning every request, and
+ * the count walked the join.
  * The answer is the one toSummary() gives for the fully joined campaign (tests/api/campaign-list-parity.test.ts).
  */
 async function listCampaigns(dataSource: DataSource, actor: Actor, q: CampaignListQuery) {
   const params: unknown[] = [];
   const param = (v: unknown) => `$${params.push(v)}`;
-  const where = [campaignScopeSql(actor, { state: 'c.state', institute: 'c.institute_id', clockB: 'c.clock_b_id' }, param)];
+  const where = [campaignScopeSql(actor, { state: 'c.state', institute: 'c.institute_id', partnerInstitute: 'c.partner_institute_id' }, param)];
   if (q.q) {
     const text = param(`%${q.q}%`);
     where.push(`(c.name ILIKE ${text} OR i.code ILIKE ${text} OR EXISTS (SELECT 1 FROM clock k WHERE k.id IN (c.clock_a_id, c.clock_b_id) AND k.name ILIKE ${text}))`);
@@ -418,12 +419,14 @@ async function listCampaigns(dataSource: DataSource, actor: Actor, q: CampaignLi
            (SELECT s.name FROM site s WHERE s.id = p.site_b_id) AS site_b_name
       FROM (SELECT c.id, c.name, c.state, c.institute_id, i.code AS institute_code, c.clock_a_id, c.clock_b_id, c.link_id, c.period_start, c.period_end,
                    c.role, c.site_a_id, c.site_b_id, c.updated_at
-              FROM "campaign" c LEFT JOIN institute i ON i.id = c.institute_id
+              FROM "campaign" c JOIN institute i ON i.id = c.institute_id
              WHERE ${filter}
              ORDER BY ${inner} ${dir}, c.id LIMIT ${limit} OFFSET ${offset}) p
      ORDER BY ${outer} ${dir}, p.id`;
   // The text filter needs the institute's code; otherwise the count reads the campaign table (or its index) alone.
-  const countSql = `SELECT count(*)::int AS n FROM "campaign" c${q.q ? ' LEFT JOIN institute i ON i.id = c.institute_id' : ''} WHERE ${filter}`;
+  // institute_id is NOT NULL and a foreign key, so the inner join keeps every campaign (and lets PostgreSQL walk
+  // the institutes in code order for the sort by institute).
+  const countSql = `SELECT count(*)::int AS n FROM "campaign" c${q.q ? ' JOIN institute i ON i.id = c.institute_id' : ''} WHERE ${filter}`;
   const [rows, counted]: [CampaignListRow[], { n: number }[]] = await Promise.all([dataSource.query(pageSql, params), dataSource.query(countSql, countParams)]);
   const items = rows.map((r) => ({
     id: r.id,

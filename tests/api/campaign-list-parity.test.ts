@@ -120,4 +120,27 @@ describe('campaign list against the visibility rule and the detail route', () =>
     const none = await get('scaledOp', '/api/v1/campaigns?q=nothing-matches-this');
     expect(none.body).toEqual({ items: [], total: 0, page: 1, pageSize: 25 });
   });
+
+  it('lab staff of clock B see the campaign when clock B is changed or moves to their institute (partner institute kept by triggers)', async () => {
+    const [{ id: campaignId, clock_b_id: clockB }] = await t.ds.query(
+      `SELECT c.id, c.clock_b_id FROM campaign c JOIN institute i ON i.id = c.institute_id WHERE i.code LIKE 'S%-X' ORDER BY c.name LIMIT 1`,
+    );
+    const sclInstitute = actors.get('scl')!.instituteId;
+    const seen = async () => (await everyPage('scl', 'sort=name')).items.some((i) => i.id === campaignId);
+    expect(await seen()).toBe(false);
+    // the clock moves to the SCL institute: its campaigns follow
+    const [{ institute_id: before }] = await t.ds.query('SELECT institute_id FROM clock WHERE id = $1', [clockB]);
+    await t.ds.query('UPDATE clock SET institute_id = $1 WHERE id = $2', [sclInstitute, clockB]);
+    expect(await seen()).toBe(true);
+    expect((await get('scl', `/api/v1/campaigns/${campaignId}`)).status).toBe(200);
+    await t.ds.query('UPDATE clock SET institute_id = $1 WHERE id = $2', [before, clockB]);
+    expect(await seen()).toBe(false);
+    // clock B replaced by an SCL clock, and a stray write to the derived column is overwritten
+    const [{ id: sclClock }] = await t.ds.query('SELECT id FROM clock WHERE institute_id = $1 ORDER BY name LIMIT 1', [sclInstitute]);
+    await t.ds.query('UPDATE campaign SET clock_b_id = $1 WHERE id = $2', [sclClock, campaignId]);
+    expect(await seen()).toBe(true);
+    await t.ds.query('UPDATE campaign SET partner_institute_id = $1 WHERE id = $2', [before, campaignId]);
+    expect((await t.ds.query('SELECT partner_institute_id AS p FROM campaign WHERE id = $1', [campaignId]))[0].p).toBe(sclInstitute);
+    expect(await seen()).toBe(true);
+  });
 });

@@ -22,6 +22,7 @@ import { ReadAfterWrite1766000900000 } from './1766000900000-read-after-write';
 import { RatioClosures1766030000000 } from './1766030000000-ratio-closures';
 import { SiteTiePotential1766050000000 } from './1766050000000-site-tie-potential';
 import { JobsProgress1766080000000 } from './1766080000000-jobs-progress';
+import { CampaignListScope1766110000000 } from './1766110000000-campaign-list-scope';
 
 // Every migration, in order. Add new ones at the end (file name: <timestamp>-<what>.ts).
 export const migrations = [
@@ -49,4 +50,5 @@ export const migrations = [
   RatioClosures1766030000000,
   SiteTiePotential1766050000000,
   JobsProgress1766080000000,
+  CampaignListScope1766110000000,
 ];
