@@ -34,12 +34,15 @@ export function canSeeCampaign(actor: Actor, c: CampaignOwnership): boolean {
 }
 
 /**
- * The same rule as a SQL condition for a query builder, given the column expressions of the campaign's state, its
- * owning institute and clock B's institute. Named parameters carry a prefix so they do not clash with the caller's.
+ * The same rule as an SQL condition over the campaign table alone, for lists and counts that must stay index scans:
+ * clock B's institute is the campaign's `partner_institute_id`, kept equal to it by triggers (migration
+ * 1766110000000-campaign-list-scope). `param` adds a value to the caller's positional parameter list and returns
+ * its placeholder ($n).
  */
-export function campaignScopeCondition(actor: Actor, cols: { state: string; institute: string; partnerInstitute: string }): { sql: string; params: Record<string, unknown> } {
+export function campaignScopeSql(actor: Actor, cols: { state: string; institute: string; partnerInstitute: string }, param: (value: unknown) => string): string {
   if (actor.role === 'operator') {
-    return { sql: `(${cols.institute} = :scopeInstitute OR ${cols.partnerInstitute} = :scopeInstitute)`, params: { scopeInstitute: actor.instituteId ?? '00000000-0000-0000-0000-000000000000' } };
+    const inst = param(actor.instituteId ?? '00000000-0000-0000-0000-000000000000');
+    return `(${cols.institute} = ${inst}::uuid OR ${cols.partnerInstitute} = ${inst}::uuid)`;
   }
-  return { sql: `${cols.state} IN (:...scopeStates)`, params: { scopeStates: [...statesVisibleTo(actor)] } };
+  return `${cols.state} = ANY(${param([...statesVisibleTo(actor)])}::text[])`;
 }

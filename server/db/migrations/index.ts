@@ -23,6 +23,7 @@ import { RatioClosures1766030000000 } from './1766030000000-ratio-closures';
 import { SiteTiePotential1766050000000 } from './1766050000000-site-tie-potential';
 import { JobsProgress1766080000000 } from './1766080000000-jobs-progress';
 import { ChainCertificates1766100000000 } from './1766100000000-chain-certificates';
+import { CampaignListScope1766110000000 } from './1766110000000-campaign-list-scope';
 import { SeriesOverviewCoarse1766130000000 } from './1766130000000-series-overview-coarse';
 
 // Every migration, in order. Add new ones at the end (file name: <timestamp>-<what>.ts).
@@ -52,5 +53,6 @@ export const migrations = [
   SiteTiePotential1766050000000,
   JobsProgress1766080000000,
   ChainCertificates1766100000000,
+  CampaignListScope1766110000000,
   SeriesOverviewCoarse1766130000000,
 ];
