@@ -46,3 +46,15 @@ export function campaignScopeSql(actor: Actor, cols: { state: string; institute:
   }
   return `${cols.state} = ANY(${param([...statesVisibleTo(actor)])}::text[])`;
 }
+
+/**
+ * The same rule as a condition for a query builder (named parameters), given the column expressions of the campaign's
+ * state, its owning institute and clock B's institute. Named parameters carry a prefix so they do not clash with the
+ * caller's.
+ */
+export function campaignScopeCondition(actor: Actor, cols: { state: string; institute: string; partnerInstitute: string }): { sql: string; params: Record<string, unknown> } {
+  if (actor.role === 'operator') {
+    return { sql: `(${cols.institute} = :scopeInstitute OR ${cols.partnerInstitute} = :scopeInstitute)`, params: { scopeInstitute: actor.instituteId ?? '00000000-0000-0000-0000-000000000000' } };
+  }
+  return { sql: `${cols.state} IN (:...scopeStates)`, params: { scopeStates: [...statesVisibleTo(actor)] } };
+}
