@@ -408,11 +408,39 @@ function titleBlock(flow: Flow, s: CertificateSnapshot): void {
   flow.y = Math.max(y, top + qrSize + 2 + qrCaptionH) + 14;
 }
 
-function resultPanel(flow: Flow, s: CertificateSnapshot): void {
+export type PanelCell = { label: string; value: string; note: string; alert?: boolean };
+
+/** The result panel at the top of a certificate: four cells in two rows (label, value, note), an alert in red. */
+export function drawResultPanel(flow: Flow, cells: PanelCell[]): void {
   const { doc } = flow;
   const pad = 10;
   const gap = 14;
   const cellWidth = (CONTENT_WIDTH - 2 * pad - gap) / 2;
+  const styles = {
+    label: { size: 7.5, colour: COLOUR.slate } as TextStyle,
+    value: { font: FONT.semi, size: 12.5, lineGap: 0 } as TextStyle,
+    note: { size: 7.5, colour: COLOUR.slate } as TextStyle,
+  };
+  const heights = cells.map(
+    (c) => measure(doc, c.label, cellWidth, styles.label) + 2 + measure(doc, c.value, cellWidth, styles.value) + 2 + measure(doc, c.note, cellWidth, styles.note),
+  );
+  const rowHeights = [Math.max(heights[0], heights[1]), Math.max(heights[2], heights[3])];
+  const panelHeight = 2 * pad + rowHeights[0] + 10 + rowHeights[1];
+  flow.ensure(panelHeight);
+  const top = flow.y;
+  doc.rect(MARGIN.left, top, CONTENT_WIDTH, panelHeight).fill(COLOUR.pale);
+  doc.rect(MARGIN.left, top, 3, panelHeight).fill(COLOUR.teal);
+  cells.forEach((c, i) => {
+    const x = MARGIN.left + pad + (i % 2) * (cellWidth + gap);
+    let y = top + pad + (i >= 2 ? rowHeights[0] + 10 : 0);
+    y += put(doc, c.label, x, y, cellWidth, styles.label) + 2;
+    y += put(doc, c.value, x, y, cellWidth, { ...styles.value, colour: c.alert ? COLOUR.alert : COLOUR.ink }) + 2;
+    put(doc, c.note, x, y, cellWidth, styles.note);
+  });
+  flow.y = top + panelHeight + 4;
+}
+
+function resultPanel(flow: Flow, s: CertificateSnapshot): void {
   const g = s.geodeticComparison;
   const cells: { label: string; value: string; note: string; alert?: boolean }[] = [
     {
@@ -437,28 +465,7 @@ function resultPanel(flow: Flow, s: CertificateSnapshot): void {
       alert: !g.agreed,
     },
   ];
-  const styles = {
-    label: { size: 7.5, colour: COLOUR.slate } as TextStyle,
-    value: { font: FONT.semi, size: 12.5, lineGap: 0 } as TextStyle,
-    note: { size: 7.5, colour: COLOUR.slate } as TextStyle,
-  };
-  const heights = cells.map(
-    (c) => measure(doc, c.label, cellWidth, styles.label) + 2 + measure(doc, c.value, cellWidth, styles.value) + 2 + measure(doc, c.note, cellWidth, styles.note),
-  );
-  const rowHeights = [Math.max(heights[0], heights[1]), Math.max(heights[2], heights[3])];
-  const panelHeight = 2 * pad + rowHeights[0] + 10 + rowHeights[1];
-  flow.ensure(panelHeight);
-  const top = flow.y;
-  doc.rect(MARGIN.left, top, CONTENT_WIDTH, panelHeight).fill(COLOUR.pale);
-  doc.rect(MARGIN.left, top, 3, panelHeight).fill(COLOUR.teal);
-  cells.forEach((c, i) => {
-    const x = MARGIN.left + pad + (i % 2) * (cellWidth + gap);
-    let y = top + pad + (i >= 2 ? rowHeights[0] + 10 : 0);
-    y += put(doc, c.label, x, y, cellWidth, styles.label) + 2;
-    y += put(doc, c.value, x, y, cellWidth, { ...styles.value, colour: c.alert ? COLOUR.alert : COLOUR.ink }) + 2;
-    put(doc, c.note, x, y, cellWidth, styles.note);
-  });
-  flow.y = top + panelHeight + 4;
+  drawResultPanel(flow, cells);
 }
 
 export function drawFurniture(doc: Doc, s: Pick<CertificateSnapshot, 'certificateNumber'>): void {

@@ -1,7 +1,7 @@
 import { chainCertificateSnapshotSchema, type ChainCertificateSnapshot } from '../../../shared/certificates';
 import {
-  buildCertificatePdf, CONTENT_WIDTH, COLOUR, coverageNote, drawQrCode, Flow, FONT, keyValues, MARGIN, measure, paragraph, put,
-  reviewSection, sectionHeading, signatureBlock, STANDING_CAUTIONS, table, unitCell, type Doc, type TextStyle,
+  buildCertificatePdf, CONTENT_WIDTH, COLOUR, coverageNote, drawQrCode, drawResultPanel, Flow, FONT, keyValues, MARGIN, measure, paragraph, put,
+  reviewSection, sectionHeading, signatureBlock, STANDING_CAUTIONS, table, unitCell, type Doc,
 } from './render-certificate';
 import { formatFixed, formatScientific, formatValueWithUncertainty, groupHex } from './number-format';
 
@@ -47,10 +47,6 @@ function titleBlock(flow: Flow, s: ChainCertificateSnapshot): void {
 }
 
 function resultPanel(flow: Flow, s: ChainCertificateSnapshot): void {
-  const { doc } = flow;
-  const pad = 10;
-  const gap = 14;
-  const cellWidth = (CONTENT_WIDTH - 2 * pad - gap) / 2;
   const ba = s.beforeAfter;
   const cells: { label: string; value: string; note: string; alert?: boolean }[] = [
     {
@@ -77,26 +73,7 @@ function resultPanel(flow: Flow, s: ChainCertificateSnapshot): void {
       }
       : { label: 'Before/after calibrations of T', value: 'one calibration', note: 'no before/after check; the transport reproducibility was entered with its source' },
   ];
-  const styles = {
-    label: { size: 7.5, colour: COLOUR.slate } as TextStyle,
-    value: { font: FONT.semi, size: 12.5, lineGap: 0 } as TextStyle,
-    note: { size: 7.5, colour: COLOUR.slate } as TextStyle,
-  };
-  const heights = cells.map((c) => measure(doc, c.label, cellWidth, styles.label) + 2 + measure(doc, c.value, cellWidth, styles.value) + 2 + measure(doc, c.note, cellWidth, styles.note));
-  const rowHeights = [Math.max(heights[0], heights[1]), Math.max(heights[2], heights[3])];
-  const panelHeight = 2 * pad + rowHeights[0] + 10 + rowHeights[1];
-  flow.ensure(panelHeight);
-  const top = flow.y;
-  doc.rect(MARGIN.left, top, CONTENT_WIDTH, panelHeight).fill(COLOUR.pale);
-  doc.rect(MARGIN.left, top, 3, panelHeight).fill(COLOUR.teal);
-  cells.forEach((c, i) => {
-    const x = MARGIN.left + pad + (i % 2) * (cellWidth + gap);
-    let y = top + pad + (i >= 2 ? rowHeights[0] + 10 : 0);
-    y += put(doc, c.label, x, y, cellWidth, styles.label) + 2;
-    y += put(doc, c.value, x, y, cellWidth, { ...styles.value, colour: c.alert ? COLOUR.alert : COLOUR.ink }) + 2;
-    put(doc, c.note, x, y, cellWidth, styles.note);
-  });
-  flow.y = top + panelHeight + 4;
+  drawResultPanel(flow, cells);
 }
 
 function bullets(flow: Flow, items: string[], size = 9): void {
