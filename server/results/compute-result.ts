@@ -8,7 +8,7 @@ import { C2_M2_PER_S2, L_G, W0_IHRS_M2_PER_S2, W0_LG_M2_PER_S2 } from '../scienc
 import { normalisedError } from '../science/agreement';
 import { cFromNormalHeight, meanNormalGravity, normalHeightFromC } from '../science/normal-gravity';
 import { potentialDifferenceFromY } from '../science/redshift';
-import { estimateLinearDrift, gridFromEpochs, meanWithStatisticalUncertainty, stabilityAnalysis, type RegularGrid } from '../science/stability';
+import { estimateLinearDrift, gridFromEpochs, kthSmallest, meanWithStatisticalUncertainty, stabilityAnalysis, type RegularGrid } from '../science/stability';
 import { stabilityPointDto } from '../calc/calc.service';
 import { coverageText, formatForUncertainty } from '../../shared/number-text';
 import { convertPotentialDifference, tidePotentialSeries, type TideSystem } from '../science/tides';
@@ -201,8 +201,8 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
   } catch (e) {
     if (!(e instanceof ScienceInputError)) throw e;
     // Irregular epochs: the statistics then treat the valid samples as contiguous at the median spacing.
-    const spacings = Float64Array.from({ length: n - 1 }, (_, i) => (epochMjd[i + 1] - epochMjd[i]) * 86_400).sort();
-    grid = { y: corrected, valid, tau0Seconds: spacings[Math.floor((n - 1) / 2)], startMjd: epochMjd[0], missingEpochs: 0, invalidSamples: n - validCount };
+    const spacings = Float64Array.from({ length: n - 1 }, (_, i) => (epochMjd[i + 1] - epochMjd[i]) * 86_400);
+    grid = { y: corrected, valid, tau0Seconds: kthSmallest(spacings, Math.floor((n - 1) / 2)), startMjd: epochMjd[0], missingEpochs: 0, invalidSamples: n - validCount };
     gridNote = `Epochs are not on a regular grid (${e.message}); the valid samples are treated as contiguous at the median spacing, which hides dead time from the stability analysis.`;
   }
   if (dropped > 0) gridNote += ` ${dropped} sample(s) repeating an epoch already present (overlapping uploads) were left out.`;

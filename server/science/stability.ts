@@ -148,6 +148,8 @@ export function prepareFrequency(y: Float64Array, valid?: Uint8Array): PreparedF
 interface RawDeviations {
   oavar: number;
   nOverlapping: number;
+  /** Σ d_i² of the overlapping second differences (the interior of the total variance's sum). */
+  sumOverlapping: number;
   avar: number;
   nNonOverlapping: number;
   mvar: number;
@@ -156,50 +158,75 @@ interface RawDeviations {
   nHad: number;
 }
 
-function deviationsForM(p: PreparedFrequency, m: number, scratch: Float64Array): RawDeviations {
+/** Maximal runs of valid samples as [start, end) pairs of y indices: a window is clean iff it lies inside one run. */
+function validRuns(p: PreparedFrequency): Int32Array {
+  const { n, bad } = p;
+  const runs: number[] = [];
+  let start = -1;
+  for (let k = 0; k < n; k++) {
+    const ok = bad[k + 1] === bad[k];
+    if (ok && start < 0) start = k;
+    else if (!ok && start >= 0) {
+      runs.push(start, k);
+      start = -1;
+    }
+  }
+  if (start >= 0) runs.push(start, n);
+  return Int32Array.from(runs);
+}
+
+function deviationsForM(p: PreparedFrequency, m: number, scratch: Float64Array, runs: Int32Array): RawDeviations {
   const { n, prefix: s, bad } = p;
   const lastI = n - 2 * m;
   let sumO = 0;
   let cntO = 0;
   let sumA = 0;
   let cntA = 0;
-  // scratch[i] = Σ_{k<i} d_k: prefix sums of the second differences, for the MDEV inner sums.
-  scratch[0] = 0;
+  let sumM = 0;
+  let cntM = 0;
+  let sumH = 0;
+  let cntH = 0;
+  // One sweep per run of valid samples for OADEV, MDEV and HDEV; a term whose window lies in one run is used, any
+  // other is not (the same rule as bad[end] === bad[start], without looking it up per term):
+  // d_i = x_{i+2m} − 2x_{i+m} + x_i (window y_i … y_{i+2m−1}); scratch holds prefix sums of d within the run for the
+  // MDEV inner sums over d_j … d_{j+m−1} (j = i + 1 − m, window y_j … y_{j+3m−2}); third differences
+  // x_{i+3m} − 3x_{i+2m} + 3x_{i+m} − x_i span y_i … y_{i+3m−1}.
   const twoM = 2 * m;
-  for (let i = 0; i <= lastI; i++) {
-    const d = s[i + twoM] - 2 * s[i + m] + s[i];
-    scratch[i + 1] = scratch[i] + d;
-    if (bad[i + twoM] === bad[i]) {
+  const threeM = 3 * m;
+  for (let r = 0; r < runs.length; r += 2) {
+    const a = runs[r];
+    const b = runs[r + 1];
+    const lastO = b - twoM;
+    if (lastO < a) continue;
+    const lastH = b - threeM;
+    const firstM = a + m - 1;
+    scratch[a] = 0;
+    for (let i = a; i <= lastO; i++) {
+      const si = s[i];
+      const sm = s[i + m];
+      const s2m = s[i + twoM];
+      const d = s2m - 2 * sm + si;
+      const acc = scratch[i] + d;
+      scratch[i + 1] = acc;
       sumO += d * d;
-      cntO++;
+      if (i >= firstM) {
+        const inner = acc - scratch[i + 1 - m];
+        sumM += inner * inner;
+      }
+      if (i <= lastH) {
+        const h = s[i + threeM] - 3 * s2m + 3 * sm - si;
+        sumH += h * h;
+      }
     }
+    cntO += lastO - a + 1;
+    cntM += Math.max(0, lastO - firstM + 1);
+    cntH += Math.max(0, lastH - a + 1);
   }
   for (let i = 0; i <= lastI; i += m) {
     if (bad[i + twoM] === bad[i]) {
-      const d = scratch[i + 1] - scratch[i];
+      const d = s[i + twoM] - 2 * s[i + m] + s[i];
       sumA += d * d;
       cntA++;
-    }
-  }
-  let sumM = 0;
-  let cntM = 0;
-  // The inner sum over d_j … d_{j+m−1} touches y_j … y_{j+3m−2}.
-  const lastJ = n - 3 * m + 1;
-  for (let j = 0; j <= lastJ; j++) {
-    if (bad[j + 3 * m - 1] === bad[j]) {
-      const inner = scratch[j + m] - scratch[j];
-      sumM += inner * inner;
-      cntM++;
-    }
-  }
-  // Third differences of phase, x_{i+3m} − 3x_{i+2m} + 3x_{i+m} − x_i, span y_i … y_{i+3m−1}.
-  let sumH = 0;
-  let cntH = 0;
-  for (let i = 0; i + 3 * m <= n; i++) {
-    if (bad[i + 3 * m] === bad[i]) {
-      const h = s[i + 3 * m] - 3 * s[i + 2 * m] + 3 * s[i + m] - s[i];
-      sumH += h * h;
-      cntH++;
     }
   }
   const m2 = m * m;
@@ -208,6 +235,7 @@ function deviationsForM(p: PreparedFrequency, m: number, scratch: Float64Array):
     nHad: cntH,
     oavar: cntO > 0 ? sumO / (2 * m2 * cntO) : NaN,
     nOverlapping: cntO,
+    sumOverlapping: sumO,
     avar: cntA > 0 ? sumA / (2 * m2 * cntA) : NaN,
     nNonOverlapping: cntA,
     mvar: cntM > 0 ? sumM / (2 * m2 * m2 * cntM) : NaN,
@@ -369,19 +397,20 @@ export function identifyNoiseB1(p: PreparedFrequency, m: number, modOverAllan: n
  * x*_{1−j} = 2x_1 − x_{1+j}, x*_{N+j} = 2x_N − x_{N−j}, and Totvar(τ) = Σ_{i=2}^{N−1} (x*_{i−m} − 2x*_i + x*_{i+m})² / (2τ²(N − 2)).
  * Defined here for records without gaps and m ≤ (N − 1)/2 phase steps.
  */
-function totalVariance(p: PreparedFrequency, m: number): number {
+function totalVariance(p: PreparedFrequency, m: number, overlappingSum: number): number {
   if (p.invalidCount > 0) return NaN;
   const x = p.prefix; // phase in units of τ0, N = n + 1 points x_0 … x_n
   const N = p.n + 1;
   if (2 * m > N - 1) return NaN;
-  const at = (k: number): number => {
-    if (k < 0) return 2 * x[0] - x[-k];
-    if (k > N - 1) return 2 * x[N - 1] - x[2 * (N - 1) - k];
-    return x[k];
-  };
-  let sum = 0;
-  for (let i = 1; i <= N - 2; i++) {
-    const d = at(i - m) - 2 * x[i] + at(i + m);
+  // For m ≤ i ≤ N − 1 − m the term is the overlapping second difference d_{i−m}, so the interior is the OADEV sum
+  // of the same record (no gaps here); only the 2(m − 1) terms that reach into the reflections are added.
+  let sum = overlappingSum;
+  for (let i = 1; i < m; i++) {
+    const d = 2 * x[0] - x[m - i] - 2 * x[i] + x[i + m];
+    sum += d * d;
+  }
+  for (let i = Math.max(N - m, m); i <= N - 2; i++) {
+    const d = x[i - m] - 2 * x[i] + 2 * x[N - 1] - x[2 * (N - 1) - i - m];
     sum += d * d;
   }
   return sum / (2 * m * m * (N - 2));
@@ -435,11 +464,12 @@ export function stabilityAnalysis(input: StabilityInput): StabilityPoint[] {
     if (!Number.isInteger(m) || m < 1) throw new ScienceInputError(`ms[${i}]`, 'averaging factors must be positive integers');
   });
   const scratch = new Float64Array(prepared.n + 1);
+  const runs = validRuns(prepared);
   const points: StabilityPoint[] = [];
   let carried: NoiseType = 'WFM';
   for (const m of [...ms].sort((a, b) => a - b)) {
     if (2 * m > prepared.n) continue;
-    const raw = deviationsForM(prepared, m, scratch);
+    const raw = deviationsForM(prepared, m, scratch, runs);
     const tauSeconds = m * tau0;
     let noiseType: NoiseType = carried;
     let noiseMethod: NoiseMethod = 'carried';
@@ -465,7 +495,7 @@ export function stabilityAnalysis(input: StabilityInput): StabilityPoint[] {
     const [adevLow, adevHigh] = chiSquareInterval(adev, edf, confidence);
     const [mdevLow, mdevHigh] = chiSquareInterval(mdev, edfMdev, confidence);
     const [hdevLow, hdevHigh] = chiSquareInterval(hdev, edfHdev, confidence);
-    const totdev = Math.sqrt(totalVariance(prepared, m));
+    const totdev = Math.sqrt(totalVariance(prepared, m, raw.sumOverlapping));
     const tot = TOTVAR_EDF[noiseType];
     const edfTotdev = Number.isFinite(totdev) ? (tot ? tot[0] * (prepared.n / m) - tot[1] : edf) : NaN;
     const [totdevLow, totdevHigh] = chiSquareInterval(totdev, edfTotdev, confidence);
@@ -520,6 +550,47 @@ export interface RegularGrid {
 const MAX_GRID_POINTS = 100_000_000;
 
 /**
+ * The k-th smallest value (0-based) of `a`, which is reordered: quickselect with a three-way partition, so runs of
+ * equal values (regular epoch spacings) cost one pass each; linear time on average (Hoare 1961, "Algorithm 65: Find",
+ * CACM 4(7):321; three-way partitioning after Dijkstra's Dutch national flag — from memory). Same value as
+ * `a.sort()[k]`. NaN is not expected (spacings of finite epochs).
+ */
+export function kthSmallest(a: Float64Array, k: number): number {
+  if (!(k >= 0 && k < a.length)) throw new RangeError(`k = ${k} outside 0 … ${a.length - 1}`);
+  let lo = 0;
+  let hi = a.length - 1;
+  let seed = 0x9e3779b9;
+  while (lo < hi) {
+    // A pseudo-random pivot (xorshift), so sorted or adversarial orders do not degrade to quadratic time.
+    seed ^= seed << 13;
+    seed ^= seed >>> 17;
+    seed ^= seed << 5;
+    const pivot = a[lo + ((seed >>> 0) % (hi - lo + 1))];
+    let lt = lo;
+    let gt = hi;
+    let i = lo;
+    while (i <= gt) {
+      const v = a[i];
+      if (v < pivot) {
+        a[i] = a[lt];
+        a[lt] = v;
+        lt++;
+        i++;
+      } else if (v > pivot) {
+        a[i] = a[gt];
+        a[gt] = v;
+        gt--;
+      } else i++;
+    }
+    // a[lo … lt−1] < pivot, a[lt … gt] = pivot, a[gt+1 … hi] > pivot
+    if (k < lt) hi = lt - 1;
+    else if (k > gt) lo = gt + 1;
+    else return pivot;
+  }
+  return a[k];
+}
+
+/**
  * Places time-stamped samples on a regular τ0 grid so that dead time is explicit: each slot without a sample,
  * and each sample flagged invalid, becomes a gap (valid = 0). τ0 defaults to the median epoch spacing.
  * Epochs must ascend and sit within ±τ0/4 of a grid slot; two samples in one slot are refused.
@@ -546,8 +617,7 @@ export function gridFromEpochs(epochsMjd: Float64Array, y: Float64Array, valid?:
     if (n < 2) throw new ScienceInputError('tau0Seconds', 'cannot be inferred from a single sample');
     const spacings = new Float64Array(n - 1);
     for (let i = 1; i < n; i++) spacings[i - 1] = (epochsMjd[i] - epochsMjd[i - 1]) * 86_400;
-    spacings.sort();
-    const median = spacings[Math.floor((n - 1) / 2)];
+    const median = kthSmallest(spacings, Math.floor((n - 1) / 2));
     // Epochs in files are rounded (MJD to 1e-9 d ≈ 86 µs), so one spacing is biased and the bias grows with the slot
     // index; the mean of the near-regular spacings telescopes to the span of each run and is unbiased.
     let sum = 0;

@@ -2,6 +2,7 @@ import { describe, expect, it } from 'vitest';
 import {
   frequencyToPhase,
   gridFromEpochs,
+  kthSmallest,
   meanWithStatisticalUncertainty,
   phaseToFrequency,
   stabilityAnalysis,
@@ -286,5 +287,76 @@ describe('gridFromEpochs with rounded epochs', () => {
     const n = 200_000;
     const epochs = Float64Array.from({ length: n }, (_, i) => 61_416 + (i * tau0) / 86_400);
     expect(gridFromEpochs(epochs, new Float64Array(n)).tau0Seconds).toBeCloseTo(tau0, 9);
+  });
+});
+
+describe('kthSmallest (the median spacing of the τ0 grid)', () => {
+  it('equals the k-th element of the sorted array (reference: the language\'s own sort, ECMA-262 %TypedArray%.prototype.sort)', () => {
+    let seed = 12345;
+    const rnd = () => ((seed = (seed * 1103515245 + 12345) % 2147483648) / 2147483648);
+    for (const [len, distinct] of [[1, 1], [2, 2], [7, 3], [1000, 1], [1000, 5], [5001, 5001], [20_000, 40]] as const) {
+      const a = Float64Array.from({ length: len }, () => Math.floor(rnd() * distinct) * 0.5 - 3);
+      const sorted = Float64Array.from(a).sort();
+      for (const k of new Set([0, len - 1, Math.floor((len - 1) / 2), Math.floor(rnd() * len)])) {
+        expect(kthSmallest(Float64Array.from(a), k)).toBe(sorted[k]);
+      }
+    }
+    // Already sorted and reversed inputs.
+    const up = Float64Array.from({ length: 10_001 }, (_, i) => i);
+    expect(kthSmallest(Float64Array.from(up), 5000)).toBe(5000);
+    expect(kthSmallest(Float64Array.from(up).reverse(), 17)).toBe(17);
+    expect(() => kthSmallest(new Float64Array(3), 3)).toThrow(RangeError);
+  });
+});
+
+describe('deviations of a gapped record, against the definitions term by term', () => {
+  // Overlapping ADEV, MDEV and overlapping HDEV written straight from their definitions in phase
+  // (NIST SP 1065, 2008, §5.2.4, §5.2.5 and §5.2.9 — section numbers from memory), each term used only when every
+  // frequency sample it spans is valid; the analysis's one-sweep-per-run sums must give the same values and counts.
+  it('agrees with the direct sums over random gaps', () => {
+    let seed = 99;
+    const rnd = () => (seed = (seed * 16807) % 2147483647) / 2147483647;
+    for (let trial = 0; trial < 6; trial++) {
+      const n = 700 + Math.floor(rnd() * 900);
+      const y = Float64Array.from({ length: n }, () => rnd() - 0.5);
+      const valid = new Uint8Array(n).fill(1);
+      for (let g = 0; g < 3 + trial * 4; g++) {
+        const at = Math.floor(rnd() * n);
+        for (let k = at; k < Math.min(n, at + 1 + Math.floor(rnd() * 25)); k++) valid[k] = 0;
+      }
+      const x = new Float64Array(n + 1);
+      for (let k = 0; k < n; k++) x[k + 1] = x[k] + (valid[k] ? y[k] : 0);
+      const clean = (from: number, count: number) => {
+        for (let k = from; k < from + count; k++) if (!valid[k]) return false;
+        return true;
+      };
+      for (const p of stabilityAnalysis({ y, valid, tau0Seconds: 1 })) {
+        const m = p.m;
+        let sO = 0, cO = 0, sM = 0, cM = 0, sH = 0, cH = 0;
+        for (let i = 0; i + 2 * m <= n; i++) {
+          if (!clean(i, 2 * m)) continue;
+          sO += (x[i + 2 * m] - 2 * x[i + m] + x[i]) ** 2;
+          cO++;
+        }
+        for (let j = 0; j + 3 * m - 1 <= n; j++) {
+          if (!clean(j, 3 * m - 1)) continue;
+          let inner = 0;
+          for (let i = j; i < j + m; i++) inner += x[i + 2 * m] - 2 * x[i + m] + x[i];
+          sM += inner ** 2;
+          cM++;
+        }
+        for (let i = 0; i + 3 * m <= n; i++) {
+          if (!clean(i, 3 * m)) continue;
+          sH += (x[i + 3 * m] - 3 * x[i + 2 * m] + 3 * x[i + m] - x[i]) ** 2;
+          cH++;
+        }
+        expect(p.n).toBe(cO);
+        expect(p.nMdev).toBe(cM);
+        expect(p.nHdev).toBe(cH);
+        if (cO > 0) expect(p.adev! / Math.sqrt(sO / (2 * m * m * cO))).toBeCloseTo(1, 10);
+        if (cM > 0) expect(p.mdev! / Math.sqrt(sM / (2 * m ** 4 * cM))).toBeCloseTo(1, 10);
+        if (cH > 0) expect(p.hdev! / Math.sqrt(sH / (6 * m * m * cH))).toBeCloseTo(1, 10);
+      }
+    }
   });
 });

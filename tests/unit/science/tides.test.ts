@@ -93,6 +93,25 @@ describe('degree-2 tidal potential', () => {
     }
   });
 
+  it('dense 1 s series (potential on a 30 s grid, then a cubic in time) agree with direct evaluation to 1e-8 m²/s² (method bound stated in tides.ts)', () => {
+    const site = { latitudeDeg: 47.1, longitudeDeg: -3.6, ellipsoidalHeightM: 210 };
+    // Two days of 1 s epochs with the millisecond jitter of real time stamps, plus one unsorted epoch at the end.
+    const epochs = Float64Array.from({ length: 172_800 }, (_, i) => 60_700.25 + (i + 1e-3 * Math.sin(i)) / 86_400);
+    epochs[epochs.length - 1] = 60_700.5;
+    const series = tidePotentialSeries(site, epochs, { removePermanent: true });
+    let checked = 0;
+    for (let i = 0; i < epochs.length; i += 331) {
+      expect(Math.abs(series[i] - tidePotentialAt(site, epochs[i], { removePermanent: true }).clock_m2s2)).toBeLessThan(1e-8);
+      checked++;
+    }
+    const lastI = epochs.length - 1;
+    expect(Math.abs(series[lastI] - tidePotentialAt(site, epochs[lastI], { removePermanent: true }).clock_m2s2)).toBeLessThan(1e-8);
+    expect(Math.abs(series[0] - tidePotentialAt(site, epochs[0], { removePermanent: true }).clock_m2s2)).toBeLessThan(1e-8);
+    expect(checked).toBeGreaterThan(500);
+    // The potential does move over the two days (the check is not vacuous).
+    expect(series.reduce((m, v) => Math.max(m, v), -Infinity) - series.reduce((m, v) => Math.min(m, v), Infinity)).toBeGreaterThan(0.5);
+  });
+
   it('scales the direct potential by 1 + k2 − h2 = 0.68745 (IERS 2010 Table 6.3 elastic k20 and §7.1.1 h2) and signs y = −δW/c²', () => {
     const t = tidePotentialAt({ latitudeDeg: 0, longitudeDeg: 0 }, mjdOf('2025-03-14T06:00:00Z'));
     expect(t.clock_m2s2 / t.direct_m2s2).toBeCloseTo(0.68745, 12);
