@@ -31,12 +31,22 @@ function scaledDecimal(text: string): Scaled | null {
 
 export type RatioConversion = { ok: true; y: number } | { ok: false; message: string };
 
+/** What `plain` returns for a cell that is not of the plain form or has too many digits. */
+const NOT_PLAIN = Number.NaN;
+
+/**
+ * The converter: ratio text → y or a reason. Its `plain(bytes, from, to)` reads the ASCII cell bytes[from, to) when it has
+ * the plain form "ddd.ddd" within the accepted digits and returns y; NaN when it has not, or has too many digits
+ * (the converter itself then gives the reason), so a caller falls back to the converter with the cell's text.
+ */
+export type RatioConverter = ((ratioText: string) => RatioConversion) & { plain: (bytes: Uint8Array, from: number, to: number) => number };
+
 const SPLIT = 15; // digits per half: integers below 1e15 are exact in float64
 // Literals are read correctly rounded, so these powers of ten are exact.
 const POW10 = [1, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22];
 
 /** Parses ratios against one reference ratio; returns a function from the ratio text to y (or a reason). */
-export function createRatioConverter(referenceRatio: string): (ratioText: string) => RatioConversion {
+export function createRatioConverter(referenceRatio: string): RatioConverter {
   // Validate the reference once with the science module's rules (positive, ≤ 40 digits, sane exponent).
   const r0Dec = parsePositiveDecimal(referenceRatio, 'referenceRatio', MAX_REFERENCE_SIGNIFICANT_DIGITS);
   const r0 = scaledDecimal(r0Dec.toFixed())!;
@@ -53,33 +63,33 @@ export function createRatioConverter(referenceRatio: string): (ratioText: string
   };
   // Fast path for the usual plain form "ddd.ddd" (no sign, no exponent): digits go straight into the two exact
   // halves without building strings. Anything else takes the general path below.
-  const plain = (text: string): RatioConversion | null => {
-    const n = text.length;
+  const plain = (text: Uint8Array, from: number, to: number): number => {
+    const n = to - from;
     let dot = -1;
-    let first = -1; // index of the first non-zero digit
+    let first = -1; // offset of the first non-zero digit
     for (let i = 0; i < n; i++) {
-      const c = text.charCodeAt(i);
+      const c = text[from + i];
       if (c === 46) {
-        if (dot >= 0) return null;
+        if (dot >= 0) return NOT_PLAIN;
         dot = i;
-      } else if (c < 48 || c > 57) return null;
+      } else if (c < 48 || c > 57) return NOT_PLAIN;
       else if (first < 0 && c !== 48) first = i;
     }
-    if (dot <= 0 || dot === n - 1 || first < 0) return null;
+    if (dot <= 0 || dot === n - 1 || first < 0) return NOT_PLAIN;
     const fracDigits = n - dot - 1;
     const sig = n - first - (first < dot ? 1 : 0);
-    if (sig > MAX_RATIO_SIGNIFICANT_DIGITS) return { ok: false, message: `has ${sig} significant digits; at most ${MAX_RATIO_SIGNIFICANT_DIGITS} are accepted` };
+    if (sig > MAX_RATIO_SIGNIFICANT_DIGITS) return NOT_PLAIN; // the general path states the reason
     const s = Math.max(fracDigits, r0.scale);
     const pad = s - fracDigits;
     const total = n - 1 + pad; // digits of the scaled integer, leading zeros included
     const b = r0At(s);
-    if (total > 2 * SPLIT || b.len > 2 * SPLIT) return null;
+    if (total > 2 * SPLIT || b.len > 2 * SPLIT) return NOT_PLAIN;
     let hi = 0;
     let lo = 0;
     let j = 0;
     for (let i = 0; i < n; i++) {
       if (i === dot) continue;
-      const digit = text.charCodeAt(i) - 48;
+      const digit = text[from + i] - 48;
       if (j < total - SPLIT) hi = hi * 10 + digit;
       else lo = lo * 10 + digit;
       j++;
@@ -89,12 +99,21 @@ export function createRatioConverter(referenceRatio: string): (ratioText: string
       else lo *= 10;
     }
     const diff = (hi - b.hi) * 1e15 + (lo - b.lo);
-    const y = diff === 0 ? 0 : s <= 22 ? diff / POW10[s] / r0Double : Number.parseFloat(`${diff}e${-s}`) / r0Double;
-    return { ok: true, y };
+    return diff === 0 ? 0 : s <= 22 ? diff / POW10[s] / r0Double : Number.parseFloat(`${diff}e${-s}`) / r0Double;
   };
-  return (text: string): RatioConversion => {
-    const fast = plain(text);
-    if (fast) return fast;
+  // a cell of plain ASCII up to 64 characters is copied into bytes for `plain`
+  const scratch = new Uint8Array(64);
+  const convert = (text: string): RatioConversion => {
+    if (text.length <= scratch.length) {
+      let ascii = true;
+      for (let i = 0; i < text.length && ascii; i++) {
+        const c = text.charCodeAt(i);
+        scratch[i] = c;
+        ascii = c < 128;
+      }
+      const fast = ascii ? plain(scratch, 0, text.length) : NOT_PLAIN;
+      if (!Number.isNaN(fast)) return { ok: true, y: fast };
+    }
     const r = scaledDecimal(text);
     if (!r) return { ok: false, message: 'is not a decimal number' };
     if (r.sig > MAX_RATIO_SIGNIFICANT_DIGITS) return { ok: false, message: `has ${r.sig} significant digits; at most ${MAX_RATIO_SIGNIFICANT_DIGITS} are accepted` };
@@ -115,4 +134,5 @@ export function createRatioConverter(referenceRatio: string): (ratioText: string
     const y = diff === 0 ? 0 : s >= 0 && s <= 22 ? diff / POW10[s] / r0Double : Number.parseFloat(`${diff}e${-s}`) / r0Double;
     return { ok: true, y };
   };
+  return Object.assign(convert, { plain });
 }
