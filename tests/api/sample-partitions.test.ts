@@ -1,3 +1,4 @@
+import crypto from 'node:crypto';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { SAMPLE_PARTITIONS } from '../../server/db/migrations/1765800001000-sample-partitions';
 import { createTestApp, type TestApp } from '../helpers/test-app';
@@ -27,5 +28,20 @@ describe('sample storage partitioned by series', () => {
     const plan: { 'QUERY PLAN': string }[] = await t.ds.query(`EXPLAIN SELECT count(*) FROM ratio_sample WHERE series_id = $1`, [rows[0].series_id]);
     const scanned = plan.map((l) => l['QUERY PLAN']).join('\n').match(/ratio_sample_p\d\d/g) ?? [];
     expect(new Set(scanned).size).toBe(1);
+  });
+
+  it('keeps each raw file whole, in parts compressed with LZ4 when the server has it', async () => {
+    const [{ lz4 }] = await t.ds.query("SELECT 'lz4' = ANY (enumvals) AS lz4 FROM pg_settings WHERE name = 'default_toast_compression'");
+    const series: { id: string; sha256: string; byte_size: string }[] = await t.ds.query('SELECT id, sha256, byte_size FROM ratio_series ORDER BY byte_size DESC LIMIT 3');
+    expect(series.length).toBeGreaterThan(0);
+    for (const s of series) {
+      const parts: { bytes: Buffer; how: string | null }[] = await t.ds.query(
+        'SELECT bytes, pg_column_compression(bytes) AS how FROM ratio_series_file WHERE series_id = $1 ORDER BY part', [s.id]);
+      const whole = Buffer.concat(parts.map((p) => p.bytes));
+      expect(whole.length).toBe(Number(s.byte_size));
+      expect(crypto.createHash('sha256').update(whole).digest('hex')).toBe(s.sha256);
+      // a value too short to be moved out of line (under ≈ 2 kB, PostgreSQL docs §73.2 TOAST) is stored as it is
+      for (const p of parts) if (p.bytes.length > 4096) expect(p.how).toBe(lz4 ? 'lz4' : null);
+    }
   });
 });

@@ -33,7 +33,7 @@ function randomFile(seed: number): FileCase {
   const order = ['epoch', 'value', 'flag', 'note'].sort(() => rnd() - 0.5);
   const col = (name: string) => order.indexOf(name) + 1;
   const withFlag = rnd() < 0.7;
-  const mapping: ColumnMapping = { epochColumn: col('epoch'), epochKind: 'mjd', valueColumn: col('value'), valueKind: 'ratio', flagColumn: withFlag ? col('flag') : null };
+  const mapping: ColumnMapping = { epochColumn: col('epoch'), epochKind: 'mjd', valueColumn: col('value'), valueKind: 'ratio', flagColumn: withFlag ? col('flag') : undefined };
   const lines: string[] = [];
   if (rnd() < 0.5) lines.push('# invented test series, µ ✓ – not from any laboratory');
   if (rnd() < 0.8) lines.push(order.join(d));
