@@ -304,60 +304,60 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
   // in float64 and the one division rounds correctly, as Number() does (IEEE 754-2019 §5.12 and §4.3).
   const fastRows = m.epochKind === 'mjd' && !opts.onRow;
   const plainRatio = toY ? toY.plain : null;
+  const plainEnd = toY ? toY.plainEnd : () => 0;
   const fastRow = (b: Buffer, s: number, e: number): boolean => {
     if (expectedColumns < needed || s === e) return false;
     const c0 = b[s];
     if (c0 === 35 || c0 === 32 || c0 === 9) return false; // maybe a comment or a blank line
-    let es = -1, ee = -1, vs = -1, ve = -1, fs = -1, fe = -1;
+    // one pass over the line: each mapped cell is read where it lies, the others skipped
+    let mjd = NaN, y = NaN, valid = true;
     let cells = 0;
     for (let cs = s; ;) {
       let ce = cs;
-      while (ce < e && b[ce] !== dc) ce++;
-      if (cells === ei) { es = cs; ee = ce; }
-      else if (cells === vi) { vs = cs; ve = ce; }
-      else if (cells === fi) { fs = cs; fe = ce; }
+      if (cells === ei) {
+        let digits = 0, dot = -1, whole = 0;
+        for (; ce < e; ce++) {
+          const c = b[ce];
+          if (c === dc) break;
+          if (c === 46) {
+            if (dot >= 0) return false;
+            dot = ce;
+          } else if (c >= 48 && c <= 57) {
+            whole = whole * 10 + (c - 48);
+            digits++;
+          } else return false;
+        }
+        if (digits === 0 || digits > 15) return false;
+        mjd = dot < 0 || dot === ce - 1 ? whole : whole / POW10[ce - dot - 1];
+      } else if (cells === vi) {
+        if (plainRatio) {
+          y = plainRatio(b, cs, e, dc);
+          if (!(Math.abs(y) < 1e-3)) return false; // NaN too: not the plain form
+          ce = plainEnd();
+        } else {
+          while (ce < e && b[ce] !== dc) ce++;
+          if (ce === cs || b[cs] <= 32 || b[ce - 1] <= 32) return false; // a blank at either end: trimmed on the general path
+          const r = parseOffsetCell(b.toString('latin1', cs, ce));
+          if (!r.ok) return false;
+          y = r.value;
+        }
+      } else if (cells === fi) {
+        const f = b[cs];
+        ce = cs + 1;
+        if (ce > e || (ce < e && b[ce] !== dc)) return false;
+        if (f === 49) valid = true;
+        else if (f === 48) valid = false;
+        else return false;
+      } else {
+        while (ce < e && b[ce] !== dc) ce++;
+      }
       cells++;
       if (ce === e) break;
       cs = ce + 1;
     }
-    if (cells !== expectedColumns || ee === es || ve === vs) return false;
-    // the MJD
-    let digits = 0, dot = -1, whole = 0;
-    for (let i = es; i < ee; i++) {
-      const c = b[i];
-      if (c === 46) {
-        if (dot >= 0) return false;
-        dot = i;
-      } else if (c >= 48 && c <= 57) {
-        whole = whole * 10 + (c - 48);
-        digits++;
-      } else return false;
-    }
-    if (digits === 0 || digits > 15) return false;
-    const mjd = dot < 0 || dot === ee - 1 ? whole : whole / POW10[ee - dot - 1];
+    if (cells !== expectedColumns || Number.isNaN(y)) return false;
     if (!(mjd > 15020 && mjd < 88069) || mjd <= lastMjd) return false;
     if ((opts.periodStartMjd !== null && mjd < opts.periodStartMjd) || (opts.periodEndMjd !== null && mjd > opts.periodEndMjd)) return false;
-    // the value
-    let y: number;
-    if (plainRatio) {
-      y = plainRatio(b, vs, ve);
-      if (!(Math.abs(y) < 1e-3)) return false; // NaN too: not the plain form
-    } else {
-      const a0 = b[vs], a1 = b[ve - 1];
-      if (a0 <= 32 || a1 <= 32) return false; // a blank at either end: trimmed on the general path
-      const r = parseOffsetCell(b.toString('latin1', vs, ve));
-      if (!r.ok) return false;
-      y = r.value;
-    }
-    // the flag
-    let valid = true;
-    if (fi >= 0) {
-      if (fe - fs !== 1) return false;
-      const f = b[fs];
-      if (f === 49) valid = true;
-      else if (f === 48) valid = false;
-      else return false;
-    }
     commitRow(mjd, y, valid, false);
     lastLine = lineNo;
     return true;

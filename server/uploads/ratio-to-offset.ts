@@ -35,11 +35,15 @@ export type RatioConversion = { ok: true; y: number } | { ok: false; message: st
 const NOT_PLAIN = Number.NaN;
 
 /**
- * The converter: ratio text → y or a reason. Its `plain(bytes, from, to)` reads the ASCII cell bytes[from, to) when it has
+ * The converter: ratio text → y or a reason. Its `plain(bytes, from, limit, stop)` reads the ASCII cell that starts
+ * at `from` and ends before `limit` or the first byte `stop` (then `plainEnd()` tells where), when it has
  * the plain form "ddd.ddd" within the accepted digits and returns y; NaN when it has not, or has too many digits
  * (the converter itself then gives the reason), so a caller falls back to the converter with the cell's text.
  */
-export type RatioConverter = ((ratioText: string) => RatioConversion) & { plain: (bytes: Uint8Array, from: number, to: number) => number };
+export type RatioConverter = ((ratioText: string) => RatioConversion) & {
+  plain: (bytes: Uint8Array, from: number, limit: number, stop: number) => number;
+  plainEnd: () => number;
+};
 
 const SPLIT = 15; // digits per half: integers below 1e15 are exact in float64
 // Literals are read correctly rounded, so these powers of ten are exact.
@@ -63,18 +67,24 @@ export function createRatioConverter(referenceRatio: string): RatioConverter {
   };
   // Fast path for the usual plain form "ddd.ddd" (no sign, no exponent): digits go straight into the two exact
   // halves without building strings. Anything else takes the general path below.
-  const plain = (text: Uint8Array, from: number, to: number): number => {
-    const n = to - from;
+  let end = 0; // where the last cell read by `plain` ended
+  let lastScale = -1;
+  let lastR0: ReturnType<typeof r0At> | null = null;
+  const plain = (text: Uint8Array, from: number, limit: number, stop: number): number => {
     let dot = -1;
     let first = -1; // offset of the first non-zero digit
-    for (let i = 0; i < n; i++) {
-      const c = text[from + i];
+    let i = from;
+    for (; i < limit; i++) {
+      const c = text[i];
+      if (c === stop) break;
       if (c === 46) {
         if (dot >= 0) return NOT_PLAIN;
-        dot = i;
+        dot = i - from;
       } else if (c < 48 || c > 57) return NOT_PLAIN;
-      else if (first < 0 && c !== 48) first = i;
+      else if (first < 0 && c !== 48) first = i - from;
     }
+    end = i;
+    const n = i - from;
     if (dot <= 0 || dot === n - 1 || first < 0) return NOT_PLAIN;
     const fracDigits = n - dot - 1;
     const sig = n - first - (first < dot ? 1 : 0);
@@ -82,7 +92,11 @@ export function createRatioConverter(referenceRatio: string): RatioConverter {
     const s = Math.max(fracDigits, r0.scale);
     const pad = s - fracDigits;
     const total = n - 1 + pad; // digits of the scaled integer, leading zeros included
-    const b = r0At(s);
+    if (s !== lastScale) {
+      lastR0 = r0At(s);
+      lastScale = s;
+    }
+    const b = lastR0!;
     if (total > 2 * SPLIT || b.len > 2 * SPLIT) return NOT_PLAIN;
     let hi = 0;
     let lo = 0;
@@ -111,7 +125,7 @@ export function createRatioConverter(referenceRatio: string): RatioConverter {
         scratch[i] = c;
         ascii = c < 128;
       }
-      const fast = ascii ? plain(scratch, 0, text.length) : NOT_PLAIN;
+      const fast = ascii ? plain(scratch, 0, text.length, -1) : NOT_PLAIN;
       if (!Number.isNaN(fast)) return { ok: true, y: fast };
     }
     const r = scaledDecimal(text);
@@ -134,5 +148,5 @@ export function createRatioConverter(referenceRatio: string): RatioConverter {
     const y = diff === 0 ? 0 : s >= 0 && s <= 22 ? diff / POW10[s] / r0Double : Number.parseFloat(`${diff}e${-s}`) / r0Double;
     return { ok: true, y };
   };
-  return Object.assign(convert, { plain });
+  return Object.assign(convert, { plain, plainEnd: () => end });
 }
