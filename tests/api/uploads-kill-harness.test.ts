@@ -172,10 +172,11 @@ function post(port: number, pathName: string, token: string, body: object = {}):
   });
 }
 
-async function until(cond: () => boolean | Promise<boolean>, ms: number, what: string) {
+/** Waits for `cond`; a timeout names what was awaited and, when `what` is a function, the state last seen. */
+async function until(cond: () => boolean | Promise<boolean>, ms: number, what: string | (() => string)) {
   const end = Date.now() + ms;
   while (!(await cond())) {
-    if (Date.now() > end) throw new Error(`timed out waiting for ${what}`);
+    if (Date.now() > end) throw new Error(`timed out waiting for ${typeof what === 'string' ? what : what()}`);
     await new Promise((r) => setTimeout(r, 25));
   }
 }
@@ -260,10 +261,12 @@ describe.each(['sigkill-server', 'stop-postgres'] as const)('kill harness (%s)',
           90_000, `the ${requestTable} of the campaign done or failed`);
       }
       // the surviving server recovers: database reachable, pool back at its baseline
+      let lastHealth: unknown = null;
       await until(async () => {
         const h = await health(server.port);
+        lastHealth = h;
         return h?.status === 'ok' && h.pool?.inUse === 0 && h.pool.waiting === 0;
-      }, 20_000, 'the server pool back at its baseline');
+      }, 20_000, () => `the server pool back at its baseline (last /api/health answer: ${JSON.stringify(lastHealth)})`);
       server.child.kill('SIGTERM');
       await server.exited;
       fs.rmSync(resumeFileFor(server.child.pid!), { force: true });
