@@ -293,9 +293,6 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     return { line: l, column: String(col) };
   };
 
-  // Splits complete lines into cells. Plain lines are split on the delimiter directly; a line holding a quote goes
-  // through csv-parse (quoted cells, doubled quotes). Splitting plain lines here instead of streaming every line
-  // through csv-parse keeps a million rows within the ingest budget (csv-parse alone measured ~2 µs per row).
   // The usual data line read in place from the raw bytes of an ASCII chunk, without making strings: the expected
   // number of cells, an MJD of plain digits ("61100.000011574", at most 15 digits), a plain ratio (or an offset cell
   // without surrounding blanks), a flag 1 or 0, an epoch after the previous one and inside the period. For any other
@@ -382,6 +379,9 @@ export async function ingestRatioSeries(file: Readable, sink: Writable, opts: In
     }
   };
 
+  // Splits complete lines into cells. Plain lines are split on the delimiter directly; a line holding a quote goes
+  // through csv-parse (quoted cells, doubled quotes). Splitting plain lines here instead of streaming every line
+  // through csv-parse keeps a million rows within the ingest budget (csv-parse alone measured ~2 µs per row).
   let held = '';
   const feed = (input: string, final = false) => {
     let text = input;
