@@ -1,4 +1,3 @@
-import { randomBytes } from 'node:crypto';
 import { mkdir, readFile, writeFile } from 'node:fs/promises';
 import http from 'node:http';
 import type { AddressInfo } from 'node:net';
@@ -6,7 +5,7 @@ import path from 'node:path';
 import * as asn1js from 'asn1js';
 import * as pkijs from 'pkijs';
 import { createSignedData, signedDataToDer } from '../certificates/pki/cms';
-import { OID, pemToDer, sha256, toArrayBuffer } from '../certificates/pki/der';
+import { OID, pemToDer, randomPositiveInteger, sha256, toArrayBuffer } from '../certificates/pki/der';
 import { TSA_REQUEST_LIMIT_BYTES } from '../certificates/pki/tsp';
 import { createCertificate, createCrl, type KeyAndCertificate } from '../certificates/pki/x509';
 
@@ -53,8 +52,7 @@ export async function timeStampResponse(keys: Pick<TsaKeys, 'root' | 'tsa'>, req
   if (req.messageImprint.hashAlgorithm.algorithmId !== OID.sha256 || req.messageImprint.hashedMessage.valueBlock.valueHexView.byteLength !== 32) {
     return rejection(0 /* badAlg */, 'only SHA-256 imprints are accepted');
   }
-  const serial = randomBytes(12);
-  serial[0] &= 0x7f;
+  const serial = randomPositiveInteger(12);
   const genTime = new Date(Math.floor(now.getTime() / 1000) * 1000);
   const tstInfo = new pkijs.TSTInfo({
     version: 1,

@@ -5,6 +5,7 @@ import forge from 'node-forge';
 import { plainAddPlaceholder } from '@signpdf/placeholder-plain';
 import { P12Signer } from '@signpdf/signer-p12';
 import { SignPdf } from '@signpdf/signpdf';
+import { randomPositiveInteger } from '../pki/der';
 
 // The first releases' signing: a self-signed institute certificate in a P12 and a CMS (RFC 5652) SignedData,
 // detached, embedded as /Contents with /SubFilter adbe.pkcs7.detached (ISO 32000-1:2008 12.8.3.3). Certificates
@@ -58,10 +59,8 @@ function createSelfSignedIdentity(subject: InstituteSubject, passphrase: string,
   const keys = forge.pki.rsa.generateKeyPair({ bits: 3072, e: 0x10001 });
   const cert = forge.pki.createCertificate();
   cert.publicKey = keys.publicKey;
-  // Positive serial: a leading 0x00..0x7f byte keeps the DER INTEGER non-negative (RFC 5280 4.1.2.2).
-  const serial = randomBytes(16);
-  serial[0] &= 0x7f;
-  cert.serialNumber = serial.toString('hex');
+  // Positive serial, DER as it stands (RFC 5280 4.1.2.2).
+  cert.serialNumber = randomPositiveInteger(16).toString('hex');
   cert.validity.notBefore = now;
   cert.validity.notAfter = new Date(now.getTime());
   cert.validity.notAfter.setUTCFullYear(now.getUTCFullYear() + validityYears);

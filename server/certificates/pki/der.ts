@@ -1,4 +1,4 @@
-import { createHash, webcrypto } from 'node:crypto';
+import { createHash, randomBytes, webcrypto } from 'node:crypto';
 import * as asn1js from 'asn1js';
 import * as pkijs from 'pkijs';
 
@@ -8,6 +8,18 @@ export const cryptoEngine = new pkijs.CryptoEngine({ name: 'node-webcrypto', cry
 
 export function toArrayBuffer(bytes: Uint8Array): ArrayBuffer {
   return bytes.buffer.slice(bytes.byteOffset, bytes.byteOffset + bytes.byteLength) as ArrayBuffer;
+}
+
+/**
+ * The content bytes of a random positive INTEGER (serial numbers, nonces) that DER encodes as it is: the first byte
+ * lies in 0x01..0x7f, so the value is positive and its encoding minimal (ITU-T X.690 §8.3.2: the first nine bits are
+ * neither all zero nor all one; RFC 5280 §4.1.2.2: serials are positive). A first byte of 0x00 before one below 0x80
+ * is a padding that strict parsers (OpenSSL among them) refuse.
+ */
+export function randomPositiveInteger(length: number): Buffer {
+  const bytes = randomBytes(length);
+  bytes[0] = 1 + (bytes[0] % 0x7f);
+  return bytes;
 }
 
 export function sha256(bytes: Uint8Array): Buffer {

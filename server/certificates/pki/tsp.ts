@@ -1,8 +1,7 @@
-import { randomBytes } from 'node:crypto';
 import * as asn1js from 'asn1js';
 import * as pkijs from 'pkijs';
 import { signerInfoSignatureVerifies } from './cms';
-import { certificateDer, chainToRoot, OID, parseCertificate, sha256, toArrayBuffer } from './der';
+import { certificateDer, chainToRoot, OID, parseCertificate, randomPositiveInteger, sha256, toArrayBuffer } from './der';
 
 // RFC 3161 time-stamp protocol: the client side (request over HTTP, 3.4) and the checks of a returned token
 // (2.4.2: the imprint, the nonce, the TSA's signature and its certificate's purpose).
@@ -24,8 +23,7 @@ export function buildTimeStampRequest(digest: Buffer, nonce: Buffer): Buffer {
 
 /** Asks the TSA at `url` for a token over `digest` (SHA-256) and returns the token (a CMS ContentInfo, DER). */
 export async function requestTimeStamp(url: string, digest: Buffer, timeoutMs = 10_000): Promise<Buffer> {
-  const nonce = randomBytes(8);
-  nonce[0] &= 0x7f;
+  const nonce = randomPositiveInteger(8);
   const res = await fetch(url, {
     method: 'POST',
     headers: { 'content-type': 'application/timestamp-query', accept: 'application/timestamp-reply' },

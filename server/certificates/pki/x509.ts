@@ -1,8 +1,8 @@
-import { generateKeyPairSync, randomBytes } from 'node:crypto';
+import { generateKeyPairSync } from 'node:crypto';
 import * as asn1js from 'asn1js';
 import forge from 'node-forge';
 import * as pkijs from 'pkijs';
-import { cryptoEngine, OID, parseCertificate, pemToDer, toArrayBuffer } from './der';
+import { cryptoEngine, OID, parseCertificate, pemToDer, randomPositiveInteger, toArrayBuffer } from './der';
 
 // Creating X.509 certificates (RFC 5280) with node-forge and CRLs (RFC 5280 5) with pkijs. Keys are RSA,
 // generated with Node's native generator; certificates are signed once, CRLs at every issue and revocation.
@@ -34,9 +34,7 @@ function forgeName(dn: DistinguishedName): forge.pki.CertificateField[] {
 
 /** Positive serial: a leading 0x00..0x7f byte keeps the DER INTEGER non-negative (RFC 5280 4.1.2.2). */
 function newSerial(): string {
-  const serial = randomBytes(16);
-  serial[0] = (serial[0] & 0x7f) | 0x10;
-  return serial.toString('hex');
+  return randomPositiveInteger(16).toString('hex');
 }
 
 function extensionsFor(profile: CertificateProfile): object[] {
