@@ -11,7 +11,7 @@ import { potentialDifferenceFromY } from '../science/redshift';
 import { estimateLinearDrift, gridFromEpochs, kthSmallest, meanWithStatisticalUncertainty, stabilityAnalysis, type RegularGrid } from '../science/stability';
 import { stabilityPointDto } from '../calc/calc.service';
 import { coverageText, formatForUncertainty } from '../../shared/number-text';
-import { convertPotentialDifference, tidePotentialSeries, type TideSystem } from '../science/tides';
+import { convertPotentialDifference, TideBodyCache, tidePotentialSeries, type TideSystem } from '../science/tides';
 import { ScienceInputError } from '../science/errors';
 import { sideBySideOffset } from '../science/side-by-side';
 import { registeredHeightDifference, TideSystemNotStated } from '../science/registered-heights';
@@ -171,8 +171,10 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
 
   // Tidal part of each clock's y is −δW/c² (C = W0 − W); the comparison sees y_tide(B) − y_tide(A).
   const siteOf = (c: ClockForResult) => ({ latitudeDeg: c.site.latitudeDeg, longitudeDeg: c.site.longitudeDeg, ellipsoidalHeightM: c.site.ellipsoidalHeightM });
-  const wA = tidePotentialSeries(siteOf(a), epochMjd, { removePermanent: true });
-  const wB = tidePotentialSeries(siteOf(b), epochMjd, { removePermanent: true });
+  // the Moon and Sun at the interpolation nodes are the same for both sites: computed once
+  const bodies = new TideBodyCache();
+  const wA = tidePotentialSeries(siteOf(a), epochMjd, { removePermanent: true, bodies });
+  const wB = tidePotentialSeries(siteOf(b), epochMjd, { removePermanent: true, bodies });
   const tideY = new Float64Array(n);
   const corrected = new Float64Array(n);
   let tideMin = Infinity;
