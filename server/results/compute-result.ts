@@ -8,7 +8,7 @@ import { C2_M2_PER_S2, L_G, W0_IHRS_M2_PER_S2, W0_LG_M2_PER_S2 } from '../scienc
 import { normalisedError } from '../science/agreement';
 import { cFromNormalHeight, meanNormalGravity, normalHeightFromC } from '../science/normal-gravity';
 import { potentialDifferenceFromY } from '../science/redshift';
-import { estimateLinearDrift, gridFromEpochs, kthSmallest, meanWithStatisticalUncertainty, stabilityAnalysis, type RegularGrid } from '../science/stability';
+import { fitLinearDrift, gridFromEpochs, kthSmallest, meanWithStatisticalUncertainty, stabilityAnalysis, type RegularGrid } from '../science/stability';
 import { stabilityPointDto } from '../calc/calc.service';
 import { coverageText, formatForUncertainty } from '../../shared/number-text';
 import { convertPotentialDifference, TideBodyCache, tidePotentialSeries, type TideSystem } from '../science/tides';
@@ -304,7 +304,7 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
 
   let drift: ResultBody['fractionalOffset']['drift'] = null;
   if (validCount >= 3) {
-    const d = estimateLinearDrift(grid.y, tau0, grid.valid);
+    const d = fitLinearDrift(grid.y, tau0, grid.valid);
     drift = {
       slopePerDay: d.slopePerSecond * 86_400,
       standardUncertaintyPerDay: d.slopeUncertaintyPerSecond * 86_400,

@@ -926,7 +926,7 @@ export interface LinearDrift {
  * Linear frequency drift y = a + b·(t − t̄) by ordinary least squares over the valid samples (common practice;
  * SP 1065 §6 on drift removal). Removing it leaves the mean at t̄ unchanged and takes the τ¹ drift term out of ADEV.
  */
-export function estimateLinearDrift(y: Float64Array, tau0Seconds: number, valid?: Uint8Array): LinearDrift {
+function leastSquaresDrift(y: Float64Array, valid?: Uint8Array): { bPerSample: number; uPerSample: number; tBar: number } {
   let n = 0;
   let st = 0;
   let sy = 0;
@@ -953,10 +953,26 @@ export function estimateLinearDrift(y: Float64Array, tau0Seconds: number, valid?
     ssr += (y[i] - yBar - bPerSample * (i - tBar)) ** 2;
   }
   const uPerSample = Math.sqrt(ssr / (n - 2) / stt);
+  return { bPerSample, uPerSample, tBar };
+}
+
+/** The drift fit alone, without the detrended copy of y (for callers that only state the drift). */
+export function fitLinearDrift(y: Float64Array, tau0Seconds: number, valid?: Uint8Array): Omit<LinearDrift, 'detrended'> {
+  return inSeconds(leastSquaresDrift(y, valid), tau0Seconds);
+}
+
+function inSeconds(fit: { bPerSample: number; uPerSample: number; tBar: number }, tau0Seconds: number): Omit<LinearDrift, 'detrended'> {
+  return { slopePerSecond: fit.bPerSample / tau0Seconds, slopeUncertaintyPerSecond: fit.uPerSample / tau0Seconds, referenceEpochSeconds: fit.tBar * tau0Seconds };
+}
+
+/** The fit of fitLinearDrift and y with the fitted drift removed about the reference epoch (gaps unchanged). */
+export function estimateLinearDrift(y: Float64Array, tau0Seconds: number, valid?: Uint8Array): LinearDrift {
+  const fit = leastSquaresDrift(y, valid);
+  const { bPerSample, tBar } = fit;
   const detrended = new Float64Array(y.length);
   for (let i = 0; i < y.length; i++) {
     const v = y[i];
     detrended[i] = Number.isFinite(v) ? v - bPerSample * (i - tBar) : v;
   }
-  return { slopePerSecond: bPerSample / tau0Seconds, slopeUncertaintyPerSecond: uPerSample / tau0Seconds, referenceEpochSeconds: tBar * tau0Seconds, detrended };
+  return { ...inSeconds(fit, tau0Seconds), detrended };
 }
