@@ -175,8 +175,9 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
   const bodies = new TideBodyCache();
   const wA = tidePotentialSeries(siteOf(a), epochMjd, { removePermanent: true, bodies });
   const wB = tidePotentialSeries(siteOf(b), epochMjd, { removePermanent: true, bodies });
-  const tideY = new Float64Array(n);
-  const corrected = new Float64Array(n);
+  // the tidal y and the corrected y overwrite the two potential series in place (each value read before written)
+  const tideY = wA;
+  const corrected = wB;
   let tideMin = Infinity;
   let tideMax = -Infinity;
   let tideSum = 0;
