@@ -52,6 +52,17 @@ function makeCsv(file: string, ROWS: number, plain = false) {
 
 type Child = { child: ChildProcess; port: number };
 
+/** CPU seconds (user + system) a process has used so far, from /proc (Linux); NaN elsewhere. */
+function cpuSeconds(pid: number): number {
+  try {
+    const fields = fs.readFileSync(`/proc/${pid}/stat`, 'utf8').replace(/^.*\) /, '').split(' ');
+    // after the command name: state is field 3 of proc(5), utime and stime fields 14 and 15, in clock ticks (100 per second on Linux)
+    return (Number(fields[11]) + Number(fields[12])) / 100;
+  } catch {
+    return NaN;
+  }
+}
+
 function startServer(env: Record<string, string>): Promise<Child> {
   const child = spawn(process.execPath, [...(process.env.CHILD_NODE_ARGS ?? '').split(' ').filter(Boolean), '--import', 'tsx', 'tests/helpers/upload-server.ts'], {
     env: { ...process.env, CHRONOLEVEL_CHILD_ENV: JSON.stringify(env) },
@@ -132,7 +143,7 @@ async function resultSeconds(ds: Awaited<ReturnType<typeof openDatabase>>, campa
       "SELECT stage, extract(epoch FROM updated_at)::float8 AS at FROM job_progress WHERE kind = 'result-compute' AND subject_id = $1", [campaignId]);
     if (p && !seen.some((q) => q.stage === p.stage && q.at === p.at)) seen.push(p);
     if (r?.state === 'done') {
-      const marks = [{ stage: 'started', at: r.started ?? NaN }, ...seen.filter((q) => q.at >= (r.started ?? 0)), { stage: 'done', at: r.finished ?? NaN }];
+      const marks = [{ stage: 'started', at: r.started ?? NaN }, ...seen.filter((q) => q.at >= (r.started ?? 0) && q.at < (r.finished ?? Infinity)), { stage: 'done', at: r.finished ?? NaN }];
       const stages = marks.slice(0, -1).map((q, i) => `${q.stage} ${(marks[i + 1].at - q.at).toFixed(2)} s`).join(', ');
       return { seconds: r.s ?? NaN, stages };
     }
@@ -211,6 +222,7 @@ async function main() {
       const bigMb = fs.statSync(bigFile).size / 1e6;
       console.log(`\ngenerated ${BIG_ROWS} rows, ${bigMb.toFixed(0)} MB in ${((performance.now() - t) / 1000).toFixed(1)} s`);
       const campaignId = await insertUploadCampaign(ds);
+      const workerCpuBefore = cpuSeconds(worker.pid!);
       const u = await upload(server.port, token, campaignId, bigFile);
       const rss = peakRssMb(server.child.pid!);
       const tag = `${(BIG_ROWS / 1e6).toLocaleString('en')} M-row upload (${bigMb.toFixed(0)} MB)`;
@@ -220,7 +232,7 @@ async function main() {
       const { seconds: s, stages } = await resultSeconds(ds, campaignId, 600_000, 50);
       const wRss = peakRssMb(worker.pid!);
       console.log(`  its result in the worker: ${s.toFixed(2)} s, worker peak RSS ${wRss.toFixed(0)} MB (before ${workerBase.toFixed(0)} MB)`);
-      console.log(`    stages: ${stages}`);
+      console.log(`    stages: ${stages}; worker CPU ${(cpuSeconds(worker.pid!) - workerCpuBefore).toFixed(2)} s (user + system, while the upload ran and the result was computed)`);
       reportFigure({ figure: `result of the ${(BIG_ROWS / 1e6).toLocaleString('en')} M-sample campaign in a worker (stability, tides, budget)`, measured: `${s.toFixed(2)} s (worker RSS ${wRss.toFixed(0)} MB)`, target: '< 10 s', met: BIG_ROWS === 10_000_000 ? s < 10 : null });
       const plot = await plotTimes(server.port, token, u.id);
       console.log(`  plot data (2000 buckets over ${u.rowCount} samples): first ${plot.first.toFixed(0)} ms, median ${plot.median.toFixed(0)} ms`);
