@@ -8,10 +8,10 @@ import { C2_M2_PER_S2, L_G, W0_IHRS_M2_PER_S2, W0_LG_M2_PER_S2 } from '../scienc
 import { normalisedError } from '../science/agreement';
 import { cFromNormalHeight, meanNormalGravity, normalHeightFromC } from '../science/normal-gravity';
 import { potentialDifferenceFromY } from '../science/redshift';
-import { estimateLinearDrift, gridFromEpochs, kthSmallest, meanWithStatisticalUncertainty, stabilityAnalysis, type RegularGrid } from '../science/stability';
+import { fitLinearDrift, gridFromEpochs, kthSmallest, meanWithStatisticalUncertainty, stabilityAnalysis, type RegularGrid } from '../science/stability';
 import { stabilityPointDto } from '../calc/calc.service';
 import { coverageText, formatForUncertainty } from '../../shared/number-text';
-import { convertPotentialDifference, tidePotentialSeries, type TideSystem } from '../science/tides';
+import { convertPotentialDifference, TideBodyCache, tidePotentialSeries, type TideSystem } from '../science/tides';
 import { ScienceInputError } from '../science/errors';
 import { sideBySideOffset } from '../science/side-by-side';
 import { registeredHeightDifference, TideSystemNotStated } from '../science/registered-heights';
@@ -171,10 +171,13 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
 
   // Tidal part of each clock's y is −δW/c² (C = W0 − W); the comparison sees y_tide(B) − y_tide(A).
   const siteOf = (c: ClockForResult) => ({ latitudeDeg: c.site.latitudeDeg, longitudeDeg: c.site.longitudeDeg, ellipsoidalHeightM: c.site.ellipsoidalHeightM });
-  const wA = tidePotentialSeries(siteOf(a), epochMjd, { removePermanent: true });
-  const wB = tidePotentialSeries(siteOf(b), epochMjd, { removePermanent: true });
-  const tideY = new Float64Array(n);
-  const corrected = new Float64Array(n);
+  // the Moon and Sun at the interpolation nodes are the same for both sites: computed once
+  const bodies = new TideBodyCache();
+  const wA = tidePotentialSeries(siteOf(a), epochMjd, { removePermanent: true, bodies });
+  const wB = tidePotentialSeries(siteOf(b), epochMjd, { removePermanent: true, bodies });
+  // the tidal y and the corrected y overwrite the two potential series in place (each value read before written)
+  const tideY = wA;
+  const corrected = wB;
   let tideMin = Infinity;
   let tideMax = -Infinity;
   let tideSum = 0;
@@ -302,7 +305,7 @@ export function computeResultBody(inputs: ResultInputs): ResultBody {
 
   let drift: ResultBody['fractionalOffset']['drift'] = null;
   if (validCount >= 3) {
-    const d = estimateLinearDrift(grid.y, tau0, grid.valid);
+    const d = fitLinearDrift(grid.y, tau0, grid.valid);
     drift = {
       slopePerDay: d.slopePerSecond * 86_400,
       standardUncertaintyPerDay: d.slopeUncertaintyPerSecond * 86_400,

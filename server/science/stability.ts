@@ -243,23 +243,14 @@ function deviationsForM(p: PreparedFrequency, m: number, scratch: Float64Array, 
   };
 }
 
-function lag1Autocorrelation(z: Float64Array): { r1: number; pairs: number } {
+/** r1 of z[0 … len−1] around `mean`: Σ of products of adjacent finite deviations over Σ of squared finite deviations. */
+function lag1Autocorrelation(z: Float64Array, len: number, mean: number): { r1: number; pairs: number } {
   // Gaps are NaN; block means of finite data are never infinite, so `v === v` is the gap test.
-  let sum = 0;
-  let cnt = 0;
-  for (let i = 0; i < z.length; i++) {
-    const v = z[i];
-    if (v === v) {
-      sum += v;
-      cnt++;
-    }
-  }
-  const mean = sum / cnt;
   let num = 0;
   let den = 0;
   let pairs = 0;
   let previous = NaN;
-  for (let i = 0; i < z.length; i++) {
+  for (let i = 0; i < len; i++) {
     const a = z[i] - mean;
     if (a !== a) {
       previous = NaN;
@@ -287,27 +278,49 @@ export function identifyNoiseType(p: PreparedFrequency, m: number): NoiseType | 
 /** Distance of 2δ from the nearest whole number above which the ACF call is taken as inconclusive (0.5 = a coin toss). */
 const ACF_INCONCLUSIVE_MARGIN = 0.3;
 
-/** The lag-1 ACF identification with a flag for a conclusive call: 2δ within ±0.3 of a whole number. */
-export function identifyNoiseAcf(p: PreparedFrequency, m: number): { noise: NoiseType; conclusive: boolean } | null {
+/**
+ * The lag-1 ACF identification with a flag for a conclusive call: 2δ within ±0.3 of a whole number; also δ and the
+ * number d of differences taken. `scratch` (at least ⌊n/m⌋ long, contents overwritten) holds the averages and their
+ * differences in place, so a caller looping over m allocates nothing per factor; without it one array is allocated.
+ */
+export function identifyNoiseAcf(p: PreparedFrequency, m: number, scratch?: Float64Array): { noise: NoiseType; conclusive: boolean; delta: number; differences: number } | null {
   const blocks = Math.floor(p.n / m);
   if (blocks < MIN_POINTS_FOR_NOISE_ID) return null;
-  let z: Float64Array = new Float64Array(blocks);
-  for (let k = 0; k < blocks; k++) {
-    const a = k * m;
+  const z = scratch && scratch.length >= blocks ? scratch : new Float64Array(blocks);
+  const { prefix, bad } = p;
+  // the m-averages and the sum of the finite ones in one pass
+  let sum = 0;
+  let cnt = 0;
+  for (let k = 0, a = 0; k < blocks; k++, a += m) {
     const b = a + m;
-    z[k] = p.bad[b] === p.bad[a] ? (p.prefix[b] - p.prefix[a]) / m : NaN;
+    const v = bad[b] === bad[a] ? (prefix[b] - prefix[a]) / m : NaN;
+    z[k] = v;
+    if (v === v) {
+      sum += v;
+      cnt++;
+    }
   }
+  let len = blocks;
   for (let d = 0; d <= 2; d++) {
-    const { r1, pairs } = lag1Autocorrelation(z);
+    const { r1, pairs } = lag1Autocorrelation(z, len, sum / cnt);
     if (pairs < MIN_POINTS_FOR_NOISE_ID - 1) return null;
     const delta = r1 / (1 + r1);
     if (delta < 0.25 || d === 2) {
       const alpha = Math.max(-2, Math.min(2, -Math.round(2 * delta) - 2 * d));
-      return { noise: NOISE_BY_ALPHA[alpha], conclusive: Math.abs(2 * delta - Math.round(2 * delta)) <= ACF_INCONCLUSIVE_MARGIN };
+      return { noise: NOISE_BY_ALPHA[alpha], conclusive: Math.abs(2 * delta - Math.round(2 * delta)) <= ACF_INCONCLUSIVE_MARGIN, delta, differences: d };
     }
-    const next = new Float64Array(z.length - 1);
-    for (let i = 0; i < next.length; i++) next[i] = z[i + 1] - z[i];
-    z = next;
+    // first differences in place (z[i] is read before it is overwritten), with the sum of the finite ones
+    len--;
+    sum = 0;
+    cnt = 0;
+    for (let i = 0; i < len; i++) {
+      const v = z[i + 1] - z[i];
+      z[i] = v;
+      if (v === v) {
+        sum += v;
+        cnt++;
+      }
+    }
   }
   return null;
 }
@@ -474,7 +487,7 @@ export function stabilityAnalysis(input: StabilityInput): StabilityPoint[] {
     let noiseType: NoiseType = carried;
     let noiseMethod: NoiseMethod = 'carried';
     let noiseBlocks = Math.floor(prepared.n / m);
-    const byAcf = identifyNoiseAcf(prepared, m);
+    const byAcf = identifyNoiseAcf(prepared, m, scratch);
     const byB1 = byAcf?.conclusive ? null : identifyNoiseB1(prepared, m, raw.mvar / raw.oavar);
     if (byAcf && (byAcf.conclusive || !byB1)) {
       noiseType = byAcf.noise;
@@ -913,7 +926,7 @@ export interface LinearDrift {
  * Linear frequency drift y = a + b·(t − t̄) by ordinary least squares over the valid samples (common practice;
  * SP 1065 §6 on drift removal). Removing it leaves the mean at t̄ unchanged and takes the τ¹ drift term out of ADEV.
  */
-export function estimateLinearDrift(y: Float64Array, tau0Seconds: number, valid?: Uint8Array): LinearDrift {
+function leastSquaresDrift(y: Float64Array, valid?: Uint8Array): { bPerSample: number; uPerSample: number; tBar: number } {
   let n = 0;
   let st = 0;
   let sy = 0;
@@ -940,10 +953,26 @@ export function estimateLinearDrift(y: Float64Array, tau0Seconds: number, valid?
     ssr += (y[i] - yBar - bPerSample * (i - tBar)) ** 2;
   }
   const uPerSample = Math.sqrt(ssr / (n - 2) / stt);
+  return { bPerSample, uPerSample, tBar };
+}
+
+/** The drift fit alone, without the detrended copy of y (for callers that only state the drift). */
+export function fitLinearDrift(y: Float64Array, tau0Seconds: number, valid?: Uint8Array): Omit<LinearDrift, 'detrended'> {
+  return inSeconds(leastSquaresDrift(y, valid), tau0Seconds);
+}
+
+function inSeconds(fit: { bPerSample: number; uPerSample: number; tBar: number }, tau0Seconds: number): Omit<LinearDrift, 'detrended'> {
+  return { slopePerSecond: fit.bPerSample / tau0Seconds, slopeUncertaintyPerSecond: fit.uPerSample / tau0Seconds, referenceEpochSeconds: fit.tBar * tau0Seconds };
+}
+
+/** The fit of fitLinearDrift and y with the fitted drift removed about the reference epoch (gaps unchanged). */
+export function estimateLinearDrift(y: Float64Array, tau0Seconds: number, valid?: Uint8Array): LinearDrift {
+  const fit = leastSquaresDrift(y, valid);
+  const { bPerSample, tBar } = fit;
   const detrended = new Float64Array(y.length);
   for (let i = 0; i < y.length; i++) {
     const v = y[i];
     detrended[i] = Number.isFinite(v) ? v - bPerSample * (i - tBar) : v;
   }
-  return { slopePerSecond: bPerSample / tau0Seconds, slopeUncertaintyPerSecond: uPerSample / tau0Seconds, referenceEpochSeconds: tBar * tau0Seconds, detrended };
+  return { ...inSeconds(fit, tau0Seconds), detrended };
 }

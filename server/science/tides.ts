@@ -50,6 +50,11 @@ export interface TideOptions {
   h2?: number;
   /** Subtract the time average (the permanent tide), leaving the zero-mean periodic part — right for mean-tide results. */
   removePermanent?: boolean;
+  /**
+   * Body positions already computed at grid nodes, to be shared by the series of several sites over the same epochs
+   * (the positions depend on time only); filled as nodes are computed. Without it each call computes its own.
+   */
+  bodies?: TideBodyCache;
 }
 
 export type Vec3 = [number, number, number];
@@ -67,6 +72,11 @@ interface OfDate {
   moon: Vec3;
   sun: Vec3;
   gastRad: number;
+}
+
+/** Moon and Sun of date and GAST at grid nodes, by the node's day number since J2000 (the exact argument of AstroTime). */
+export class TideBodyCache {
+  readonly nodes = new Map<number, OfDate>();
 }
 
 function ofDate(time: AstroTime): OfDate {
@@ -211,12 +221,13 @@ export function tidePotentialSeries(site: TideSite, epochsMjd: Float64Array, opt
     return out;
   }
   const origin = Math.floor(minMjd / GRID_STEP_DAYS) * GRID_STEP_DAYS - GRID_STEP_DAYS;
-  const cache = new Map<number, OfDate>();
+  const cache = options.bodies?.nodes ?? new Map<number, OfDate>();
   const node = (k: number): OfDate => {
-    let v = cache.get(k);
+    const day = origin + k * GRID_STEP_DAYS - MJD_OF_J2000;
+    let v = cache.get(day);
     if (!v) {
-      v = ofDate(new AstroTime(origin + k * GRID_STEP_DAYS - MJD_OF_J2000));
-      cache.set(k, v);
+      v = ofDate(new AstroTime(day));
+      cache.set(day, v);
     }
     return v;
   };

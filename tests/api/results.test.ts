@@ -138,6 +138,21 @@ describe('campaign result', () => {
     expect(r.tide.meanCorrectionY).toBeCloseTo(tideMean, 22);
     expect(fo.yUncorrected - fo.y).toBeCloseTo(tideMean, 21);
     expect(r.tide.system).toBe('mean-tide');
+    // The same mean from the stored epochs, each site's tide computed on its own: the result computes the Moon and Sun
+    // once for both sites and the corrected y in place, which must not change a bit (same sums in the same order).
+    const stored: { mjd: number; valid: boolean }[] = await t.ds.query(
+      'SELECT s.mjd, s.valid FROM ratio_sample s JOIN ratio_series r ON r.id = s.series_id WHERE r.campaign_id = $1 ORDER BY s.mjd', [campaignId]);
+    const storedEpochs = Float64Array.from(stored, (x) => x.mjd);
+    const at = (c: CampaignForResult['clockA']) => tidePotentialSeries({ latitudeDeg: c.site.latitudeDeg, longitudeDeg: c.site.longitudeDeg, ellipsoidalHeightM: c.site.ellipsoidalHeightM }, storedEpochs, { removePermanent: true });
+    const [ownA, ownB] = [at(campaign.clockA), at(campaign.clockB)];
+    let ownSum = 0;
+    let ownCount = 0;
+    stored.forEach((x, i) => {
+      if (!x.valid) return;
+      ownSum += (ownA[i] - ownB[i]) / C2;
+      ownCount++;
+    });
+    expect(r.tide.meanCorrectionY).toBe(ownSum / ownCount);
     expect(r.samples.valid).toBe(N - Math.floor(N / 1000));
     expect(r.samples.flaggedInvalid).toBe(Math.floor(N / 1000));
     expect(r.samples.tau0Seconds).toBeCloseTo(TAU0, 3); // epochs written with 1e-9 d (86 µs) resolution

@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import {
-  FLICKER_FM_MEAN_FACTOR, estimateLinearDrift, meanWithStatisticalUncertainty, stabilityAnalysis, type StabilityPoint,
+  FLICKER_FM_MEAN_FACTOR, estimateLinearDrift, fitLinearDrift, meanWithStatisticalUncertainty, stabilityAnalysis, type StabilityPoint,
 } from '../../../server/science/stability';
 import { formatForUncertainty } from '../../../shared/number-text';
 import { meanWithStatisticalUncertainty as legacyMean } from '../../helpers/legacy-stability';
@@ -141,6 +141,16 @@ describe('linear drift and digits', () => {
     let raw = 0;
     for (const v of y) raw += v / N;
     expect(mean).toBeCloseTo(raw, 28);
+  });
+
+  it('the fit without the detrended copy states the same slope, uncertainty and reference epoch, with gaps too', () => {
+    const next = gaussianFrom(uniformRng(4));
+    const y = Float64Array.from({ length: 3000 }, (_, i) => -1e-16 + 3e-20 * i + 1e-16 * next());
+    const valid = Uint8Array.from({ length: 3000 }, (_, i) => (i % 97 < 5 ? 0 : 1));
+    y[1234] = NaN;
+    const { detrended, ...full } = estimateLinearDrift(y, 1.5, valid);
+    expect(detrended.length).toBe(3000);
+    expect(fitLinearDrift(y, 1.5, valid)).toEqual(full);
   });
 
   it('y is written so that rounding stays below u/10', () => {

@@ -11,6 +11,7 @@ import {
   heightMeanMinusZeroTideM,
   permanentTidePotential,
   tidePotentialAt,
+  TideBodyCache,
   tidePotentialSeries,
   type Vec3,
 } from '../../../server/science/tides';
@@ -147,6 +148,26 @@ describe('permanent tide (Ekman 1989; IERS Conventions 2010 §7.1.1.2)', () => {
       // ΔC from 45° to lat converted ZT → MT is (C_MT − C_ZT)(lat) − (C_MT − C_ZT)(45°); add back the 45° term.
       const atLat = convertPotentialDifference(0, 45, lat, 'zero-tide', 'mean-tide') - permanentTidePotential(45);
       expect(atLat / normalGravityOnEllipsoid(lat)).toBeCloseTo(heightMeanMinusZeroTideM(lat), 3);
+    }
+  });
+});
+
+describe('body positions shared between the sites of one series', () => {
+  it('leave both series bit-identical to their own computation, and the second site computes no node again', () => {
+    const a = { latitudeDeg: 45.2, longitudeDeg: 10.1, ellipsoidalHeightM: 50 };
+    const b = { latitudeDeg: 46.7, longitudeDeg: 8.3, ellipsoidalHeightM: 900 };
+    // dense (1 s for 2 days: the 30 s potential grid) and sparse (every 7 min for 5 days: the 10 min body grid)
+    const dense = Float64Array.from({ length: 2 * 86_400 }, (_, i) => 61_100 + i / 86_400);
+    const sparse = Float64Array.from({ length: 5 * 206 }, (_, i) => 61_300 + (i * 7) / 1440);
+    for (const epochs of [dense, sparse]) {
+      const bodies = new TideBodyCache();
+      const sharedA = tidePotentialSeries(a, epochs, { removePermanent: true, bodies });
+      const nodes = bodies.nodes.size;
+      expect(nodes).toBeGreaterThan(100);
+      const sharedB = tidePotentialSeries(b, epochs, { removePermanent: true, bodies });
+      expect(bodies.nodes.size).toBe(nodes);
+      expect(Array.from(sharedA)).toEqual(Array.from(tidePotentialSeries(a, epochs, { removePermanent: true })));
+      expect(Array.from(sharedB)).toEqual(Array.from(tidePotentialSeries(b, epochs, { removePermanent: true })));
     }
   });
 });
