@@ -197,7 +197,29 @@ export interface SelectedInverse {
   diag: Float64Array;
 }
 
-export function selectedInverse(f: LdlFactor, onColumns?: ColumnProgress): SelectedInverse {
+/**
+ * Fundamental supernodes of L: columns j and j + 1 share one when struct(L_j) = {j + 1} ∪ struct(L_{j+1}) (Liu, Ng &
+ * Peyton, "On finding supernodes for sparse matrix computations", SIAM J. Matrix Anal. Appl. 14(1), 1993). Answers the
+ * first column of each supernode, then n; the columns of a supernode are consecutive.
+ */
+export function fundamentalSupernodes(f: Pick<LdlFactor, 'n' | 'colPtr' | 'rowIdx'>): Int32Array {
+  const { n, colPtr, rowIdx } = f;
+  const starts = new Int32Array(n + 1);
+  let count = 0;
+  for (let j = 0; j < n; j++) {
+    // struct(L_j) \ {first row} ⊆ struct(L_{first row}) (elimination tree): with first row j and one entry more,
+    // column j − 1 is {j} ∪ struct(L_j).
+    const joinsPrevious = j > 0 && colPtr[j] - colPtr[j - 1] === colPtr[j + 1] - colPtr[j] + 1 && rowIdx[colPtr[j - 1]] === j;
+    if (!joinsPrevious) starts[count++] = j;
+  }
+  starts[count++] = n;
+  return starts.slice(0, count);
+}
+
+/** A dense block of the selected inversion holds at most this many entries (32 MB); longer columns go one by one. */
+export const MAX_INVERSE_BLOCK_ENTRIES = 1 << 22;
+
+export function selectedInverse(f: LdlFactor, onColumns?: ColumnProgress, maxBlockEntries = MAX_INVERSE_BLOCK_ENTRIES): SelectedInverse {
   const n = f.n;
   const { colPtr, rowIdx, values: lx, diag: d } = f;
   const zx = new Float64Array(lx.length);
@@ -205,11 +227,36 @@ export function selectedInverse(f: LdlFactor, onColumns?: ColumnProgress): Selec
   const work = new Float64Array(n);
   const weight = columnWork(colPtr, n);
   let done = 0;
+  const columnDone = (j: number): void => {
+    if (!onColumns) return;
+    done += weight[j];
+    if ((j & PROGRESS_MASK) === 0) onColumns(done / weight[n]);
+  };
 
-  // Column j's rows r_0 < r_1 < … lie, beyond any r_a, inside column r_a (clique property), so Z_{r_b, r_a} (b > a) is
-  // found in column r_a by a galloping search from the previous hit: the work per pair stays near the length of
-  // column j instead of the (often far longer) column r_a.
-  for (let j = n - 1; j >= 0; j--) {
+  // Position of row i in column k at or after q (row i is known to be there): a galloping search, then bisection.
+  const seek = (q: number, qEnd: number, i: number): number => {
+    if (rowIdx[q] === i) return q;
+    let step = 1;
+    let lo = q;
+    let hi = q + 1;
+    while (hi < qEnd && rowIdx[hi] < i) {
+      lo = hi;
+      step *= 2;
+      hi = q + step;
+    }
+    if (hi > qEnd) hi = qEnd;
+    while (lo < hi) {
+      const mid = (lo + hi) >> 1;
+      if (rowIdx[mid] < i) lo = mid + 1;
+      else hi = mid;
+    }
+    return lo;
+  };
+
+  // One column with the sparse recurrence. Column j's rows r_0 < r_1 < … lie, beyond any r_a, inside column r_a (clique
+  // property), so Z_{r_b, r_a} (b > a) is found in column r_a by a galloping search from the previous hit: the work per
+  // pair stays near the length of column j instead of the (often far longer) column r_a.
+  const sparseColumn = (j: number): void => {
     const p0 = colPtr[j];
     const p1 = colPtr[j + 1];
     for (let p = p0; p < p1; p++) work[rowIdx[p]] = 0;
@@ -221,24 +268,7 @@ export function selectedInverse(f: LdlFactor, onColumns?: ColumnProgress): Selec
       const qEnd = colPtr[k + 1];
       for (let b = a + 1; b < p1; b++) {
         const i = rowIdx[b];
-        if (rowIdx[q] !== i) {
-          // Gallop to the first position with row ≥ i, then bisect.
-          let step = 1;
-          let lo = q;
-          let hi = q + 1;
-          while (hi < qEnd && rowIdx[hi] < i) {
-            lo = hi;
-            step *= 2;
-            hi = q + step;
-          }
-          if (hi > qEnd) hi = qEnd;
-          while (lo < hi) {
-            const mid = (lo + hi) >> 1;
-            if (rowIdx[mid] < i) lo = mid + 1;
-            else hi = mid;
-          }
-          q = lo;
-        }
+        q = seek(q, qEnd, i);
         const zik = zx[q];
         work[i] -= zik * lkj;
         accK += zik * lx[b];
@@ -253,9 +283,161 @@ export function selectedInverse(f: LdlFactor, onColumns?: ColumnProgress): Selec
       s -= lx[p] * work[i];
     }
     zd[j] = s;
-    if (onColumns) {
-      done += weight[j];
-      if ((j & PROGRESS_MASK) === 0) onColumns(done / weight[n]);
+  };
+
+  // Inside a supernode J = [t, e] with common rows S (the rows of column e), column j has the rows j + 1 … e followed by
+  // S: its recurrence reads Z on (J ∪ S) × (J ∪ S) only. Z_SS is gathered once (one search per entry, from columns
+  // already done) into a dense symmetric block, and the columns of J are then computed on that block without searches:
+  // local index j − t for column j, |J| + a for S[a].
+  let block = new Float64Array(0);
+  let lcol = new Float64Array(0);
+  let zcol = new Float64Array(0);
+  let ys = new Float64Array(0);
+  const blockColumns = (t: number, e: number): void => {
+    const w = e - t + 1;
+    const sp0 = colPtr[e];
+    const m = colPtr[e + 1] - sp0;
+    const nb = w + m;
+    if (block.length < nb * nb) block = new Float64Array(nb * nb);
+    if (lcol.length < nb) {
+      lcol = new Float64Array(nb);
+      zcol = new Float64Array(nb);
+    }
+    for (let a = 0; a < m; a++) {
+      const k = rowIdx[sp0 + a];
+      const ra = (w + a) * nb;
+      block[ra + w + a] = zd[k];
+      let q = colPtr[k];
+      const qEnd = colPtr[k + 1];
+      for (let b = a + 1; b < m; b++) {
+        q = seek(q, qEnd, rowIdx[sp0 + b]);
+        const zik = zx[q];
+        q++;
+        block[ra + w + b] = zik;
+        block[(w + b) * nb + w + a] = zik;
+      }
+    }
+    // Y = Z_SS · L_SJ for all columns of J at once, four columns per sweep over Z_SS (rows of L_SJ are contiguous in
+    // each column: column t + c holds them from colPtr[t + c] + w − 1 − c on).
+    if (ys.length < w * m) ys = new Float64Array(w * m);
+    let c = 0;
+    for (; c + 4 <= w; c += 4) {
+      const l0 = colPtr[t + c] + w - 1 - c;
+      const l1 = colPtr[t + c + 1] + w - 2 - c;
+      const l2 = colPtr[t + c + 2] + w - 3 - c;
+      const l3 = colPtr[t + c + 3] + w - 4 - c;
+      for (let a = 0; a < m; a++) {
+        const ra = (w + a) * nb + w;
+        let y0 = 0;
+        let y1 = 0;
+        let y2 = 0;
+        let y3 = 0;
+        for (let k = 0; k < m; k++) {
+          const z = block[ra + k];
+          y0 += z * lx[l0 + k];
+          y1 += z * lx[l1 + k];
+          y2 += z * lx[l2 + k];
+          y3 += z * lx[l3 + k];
+        }
+        ys[c * m + a] = y0;
+        ys[(c + 1) * m + a] = y1;
+        ys[(c + 2) * m + a] = y2;
+        ys[(c + 3) * m + a] = y3;
+      }
+    }
+    for (; c < w; c++) {
+      const l0 = colPtr[t + c] + w - 1 - c;
+      for (let a = 0; a < m; a++) {
+        const ra = (w + a) * nb + w;
+        let y0 = 0;
+        for (let k = 0; k < m; k++) y0 += block[ra + k] * lx[l0 + k];
+        ys[c * m + a] = y0;
+      }
+    }
+    for (let j = e; j >= t; j--) {
+      const lj = j - t;
+      const p0 = colPtr[j] - lj - 1; // L entry of local row i (> lj) at p0 + i
+      for (let i = lj + 1; i < nb; i++) lcol[i] = lx[p0 + i];
+      let s = 1 / d[j];
+      const rj = lj * nb;
+      // Rows in J: Z_ij = −Σ_{k > lj} Z_ik L_kj over the whole block row, four rows per sweep of L_j.
+      let i = lj + 1;
+      for (; i + 4 <= w; i += 4) {
+        const r0 = i * nb;
+        const r1 = r0 + nb;
+        const r2 = r1 + nb;
+        const r3 = r2 + nb;
+        let a0 = 0;
+        let a1 = 0;
+        let a2 = 0;
+        let a3 = 0;
+        for (let k = lj + 1; k < nb; k++) {
+          const l = lcol[k];
+          a0 += block[r0 + k] * l;
+          a1 += block[r1 + k] * l;
+          a2 += block[r2 + k] * l;
+          a3 += block[r3 + k] * l;
+        }
+        zcol[i] = -a0;
+        zcol[i + 1] = -a1;
+        zcol[i + 2] = -a2;
+        zcol[i + 3] = -a3;
+      }
+      for (; i < w; i++) {
+        const ri = i * nb;
+        let a0 = 0;
+        for (let k = lj + 1; k < nb; k++) a0 += block[ri + k] * lcol[k];
+        zcol[i] = -a0;
+      }
+      // Rows in S: Z_Sj = −(Y_j + Z_{S,J>j} L_{J>j,j}), Z_{S,k} read along block row k (k in J, symmetric).
+      const yj = lj * m;
+      for (let a = 0; a < m; a++) zcol[w + a] = -ys[yj + a];
+      let k = lj + 1;
+      for (; k + 4 <= w; k += 4) {
+        const q0 = lcol[k];
+        const q1 = lcol[k + 1];
+        const q2 = lcol[k + 2];
+        const q3 = lcol[k + 3];
+        const r0 = k * nb;
+        const r1 = r0 + nb;
+        const r2 = r1 + nb;
+        const r3 = r2 + nb;
+        for (let b = w; b < nb; b++) zcol[b] -= block[r0 + b] * q0 + block[r1 + b] * q1 + block[r2 + b] * q2 + block[r3 + b] * q3;
+      }
+      for (; k < w; k++) {
+        const q0 = lcol[k];
+        const r0 = k * nb;
+        for (let b = w; b < nb; b++) zcol[b] -= block[r0 + b] * q0;
+      }
+      for (let r = lj + 1; r < nb; r++) {
+        const zij = zcol[r];
+        block[r * nb + lj] = zij;
+        block[rj + r] = zij;
+        zx[p0 + r] = zij;
+        s -= lcol[r] * zij;
+      }
+      block[rj + lj] = s;
+      zd[j] = s;
+      columnDone(j);
+    }
+  };
+
+  const starts = fundamentalSupernodes(f);
+  for (let sn = starts.length - 2; sn >= 0; sn--) {
+    const s0 = starts[sn];
+    const e = starts[sn + 1] - 1;
+    // The block side of column j is |L_j| + 1, growing towards s0: the columns that fit are a trailing run t … e.
+    let t = e + 1;
+    while (t > s0) {
+      const side = colPtr[t] - colPtr[t - 1] + 1;
+      if (side * side > maxBlockEntries) break;
+      t--;
+    }
+    if (e - t < 1) t = e + 1; // a lone column gains nothing from the block
+    if (t <= e) blockColumns(t, e);
+    for (let j = t - 1; j >= s0; j--) {
+      sparseColumn(j);
+      columnDone(j);
     }
   }
   return { factor: f, values: zx, diag: zd };
