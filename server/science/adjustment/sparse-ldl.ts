@@ -161,25 +161,60 @@ export function factorize(a: SymmetricCsc, options: FactorOptions = {}): LdlFact
   return { n, ordering, parent, colPtr, rowIdx, values, diag };
 }
 
-/** Solves A x = b with the factor; b in original ordering, result in original ordering. */
+/**
+ * Solves A x = b with the factor; b in original ordering, result in original ordering. The backward sweep goes by
+ * supernodes: x on a supernode's common rows is gathered once, and its columns read x[j + 1 …] directly.
+ */
 export function solve(f: LdlFactor, b: ArrayLike<number>): Float64Array {
   const n = f.n;
   const { perm } = f.ordering;
+  const { colPtr, rowIdx, values } = f;
   const x = new Float64Array(n);
   for (let k = 0; k < n; k++) x[k] = b[perm[k]];
   for (let j = 0; j < n; j++) {
     const xj = x[j];
-    if (xj !== 0) for (let p = f.colPtr[j]; p < f.colPtr[j + 1]; p++) x[f.rowIdx[p]] -= f.values[p] * xj;
+    if (xj !== 0) for (let p = colPtr[j]; p < colPtr[j + 1]; p++) x[rowIdx[p]] -= values[p] * xj;
   }
   for (let j = 0; j < n; j++) x[j] /= f.diag[j];
-  for (let j = n - 1; j >= 0; j--) {
-    let s = x[j];
-    for (let p = f.colPtr[j]; p < f.colPtr[j + 1]; p++) s -= f.values[p] * x[f.rowIdx[p]];
-    x[j] = s;
+  const starts = supernodesOf(f);
+  let xs = new Float64Array(0);
+  for (let sn = starts.length - 2; sn >= 0; sn--) {
+    const s0 = starts[sn];
+    const e = starts[sn + 1] - 1;
+    if (s0 === e) {
+      let s = x[e];
+      for (let p = colPtr[e]; p < colPtr[e + 1]; p++) s -= values[p] * x[rowIdx[p]];
+      x[e] = s;
+      continue;
+    }
+    const pe = colPtr[e];
+    const m = colPtr[e + 1] - pe;
+    if (xs.length < m) xs = new Float64Array(Math.max(m, 2 * xs.length));
+    for (let a = 0; a < m; a++) xs[a] = x[rowIdx[pe + a]];
+    for (let j = e; j >= s0; j--) {
+      const p0 = colPtr[j];
+      const inner = e - j; // rows j + 1 … e come first in column j, then the common rows
+      let s = x[j];
+      for (let q = 0; q < inner; q++) s -= values[p0 + q] * x[j + 1 + q];
+      const ps = p0 + inner;
+      for (let a = 0; a < m; a++) s -= values[ps + a] * xs[a];
+      x[j] = s;
+    }
   }
   const out = new Float64Array(n);
   for (let k = 0; k < n; k++) out[perm[k]] = x[k];
   return out;
+}
+
+const supernodeCache = new WeakMap<LdlFactor, Int32Array>();
+/** fundamentalSupernodes of a factor, computed once per factor. */
+function supernodesOf(f: LdlFactor): Int32Array {
+  let s = supernodeCache.get(f);
+  if (!s) {
+    s = fundamentalSupernodes(f);
+    supernodeCache.set(f, s);
+  }
+  return s;
 }
 
 /**
@@ -422,7 +457,7 @@ export function selectedInverse(f: LdlFactor, onColumns?: ColumnProgress, maxBlo
     }
   };
 
-  const starts = fundamentalSupernodes(f);
+  const starts = supernodesOf(f);
   for (let sn = starts.length - 2; sn >= 0; sn--) {
     const s0 = starts[sn];
     const e = starts[sn + 1] - 1;
