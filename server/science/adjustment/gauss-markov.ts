@@ -425,12 +425,16 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
   for (const d of core.datumOffsets) paramValue.set(d.name, d.value);
   const sharedValue = new Map<string, number>();
   for (const sp of core.sharedParameters) sharedValue.set(sp.name, sp.value);
-  const byOriginal = new Map<number, AdjustedObservation>();
-  core.observations.forEach((o, j) => byOriginal.set(obsMap[j], { ...o, index: obsMap[j] }));
+  // The final pass's observation objects are this function's own: they take their original index in place.
+  const byOriginal: (AdjustedObservation | undefined)[] = new Array(nObsAll);
+  core.observations.forEach((o, j) => {
+    o.index = obsMap[j];
+    byOriginal[obsMap[j]] = o;
+  });
   progress(reported, 'statistical tests');
   const observations: AdjustedObservation[] = input.observations.map((ob, k) => {
     if ((k & 65535) === 65535) progress(reported, 'statistical tests');
-    const kept = byOriginal.get(k);
+    const kept = byOriginal[k];
     if (kept) return kept;
     const rem = removedObs.get(k)!;
     // A removed observation: its discrepancy to the final adjustment, and its w at removal.
@@ -483,8 +487,10 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
     return s;
   });
   let maxRemainingW: number | null = null;
-  for (const o of [...core.observations, ...core.fixedPointObservations]) {
-    if (o.standardizedResidual !== null && (maxRemainingW === null || Math.abs(o.standardizedResidual) > maxRemainingW)) maxRemainingW = Math.abs(o.standardizedResidual);
+  for (const list of [core.observations, core.fixedPointObservations]) {
+    for (const o of list) {
+      if (o.standardizedResidual !== null && (maxRemainingW === null || Math.abs(o.standardizedResidual) > maxRemainingW)) maxRemainingW = Math.abs(o.standardizedResidual);
+    }
   }
   if (mode === 'none') {
     // Test only: every |w| above the critical value is flagged, nothing is removed (no iteration, not Baarda's procedure).
@@ -953,42 +959,51 @@ function adjustCore(
     return { residual, sigmaResidual, redundancy: rr, standardizedResidual: w };
   };
 
-  progress(0.99, 'statistical tests');
-  const outPoints: AdjustedPoint[] = points.map((pt, i) => {
-    const u = unknownOfPoint[i];
-    const c = u >= 0 ? c0[i] + dx[u] : c0[i];
-    const sigma = u >= 0 ? Math.sqrt(Math.max(entry(u, u), 0)) : 0;
-    const res: AdjustedPoint = {
-      code: pt.code,
-      c,
-      sigma,
-      sigmaScaled: sigma0 === null ? null : sigma * sigma0,
-      datum: role[i] === HELD ? 'held' : role[i] === WEIGHTED ? 'weighted' : 'free',
-    };
-    if (pt.fixedC !== undefined) res.knownC = pt.fixedC;
-    return res;
-  });
-
-  progress(0.99, 'statistical tests');
-  const outObs: AdjustedObservation[] = observations.map((ob, k) => {
-    if ((k & 65535) === 65535) progress(0.99, 'statistical tests');
-    const a = analyse(v[k], ob.sigma, r[k]);
-    const res: AdjustedObservation = {
-      index: k,
-      from: ob.from,
-      to: ob.to,
-      kind: ob.kind ?? 'levelling',
-      deltaC: ob.deltaC,
-      ...a,
-      suspected: false,
-      removedAtStep: null,
-      sigmaAdjusted: ob.sigma * Math.sqrt(Math.max(1 - a.redundancy, 0)),
-      sharedEffect: sharedEffect[k],
-      residualTotal: v[k] - sharedEffect[k],
-    };
-    if (ob.id !== undefined) res.id = ob.id;
-    return res;
-  });
+  // The point and observation lists are built when first read: the pass that screens for outliers is followed by the
+  // adjustment without them, and then only that one's lists are ever read.
+  const adjustedC = (i: number): number => (unknownOfPoint[i] >= 0 ? c0[i] + dx[unknownOfPoint[i]] : c0[i]);
+  const shapePoints = (): AdjustedPoint[] => {
+    progress(0.99, 'statistical tests');
+    return points.map((pt, i) => {
+      const u = unknownOfPoint[i];
+      const sigma = u >= 0 ? Math.sqrt(Math.max(entry(u, u), 0)) : 0;
+      const res: AdjustedPoint = {
+        code: pt.code,
+        c: adjustedC(i),
+        sigma,
+        sigmaScaled: sigma0 === null ? null : sigma * sigma0,
+        datum: role[i] === HELD ? 'held' : role[i] === WEIGHTED ? 'weighted' : 'free',
+      };
+      if (pt.fixedC !== undefined) res.knownC = pt.fixedC;
+      return res;
+    });
+  };
+  const shapeObservations = (): AdjustedObservation[] => {
+    progress(0.99, 'statistical tests');
+    return observations.map((ob, k) => {
+      if ((k & 65535) === 65535) progress(0.99, 'statistical tests');
+      const rk = r[k] < REDUNDANCY_FLOOR ? 0 : Math.min(r[k], 1);
+      const sigmaResidual = ob.sigma * Math.sqrt(rk);
+      const res: AdjustedObservation = {
+        index: k,
+        from: ob.from,
+        to: ob.to,
+        kind: ob.kind ?? 'levelling',
+        deltaC: ob.deltaC,
+        residual: v[k],
+        sigmaResidual,
+        redundancy: rk,
+        standardizedResidual: rk > 0 ? v[k] / sigmaResidual : null,
+        suspected: false,
+        removedAtStep: null,
+        sigmaAdjusted: ob.sigma * Math.sqrt(Math.max(1 - rk, 0)),
+        sharedEffect: sharedEffect[k],
+        residualTotal: v[k] - sharedEffect[k],
+      };
+      if (ob.id !== undefined) res.id = ob.id;
+      return res;
+    });
+  };
 
   progress(0.99, 'statistical tests');
   const outFixed = weightedIdx.map((i, s) => ({
@@ -1024,16 +1039,22 @@ function adjustCore(
     return {
       from: d.from,
       to: d.to,
-      deltaC: outPoints[t].c - outPoints[f].c,
+      deltaC: adjustedC(t) - adjustedC(f),
       sigma: Math.sqrt(Math.max(qff + qtt - 2 * qft, 0)),
       sigmaIgnoringCovariance: Math.sqrt(Math.max(qff, 0) + Math.max(qtt, 0)),
     };
   });
 
+  let outPoints: AdjustedPoint[] | undefined;
+  let outObs: AdjustedObservation[] | undefined;
   const result: CoreResult = {
     constraint,
-    points: outPoints,
-    observations: outObs,
+    get points() {
+      return (outPoints ??= shapePoints());
+    },
+    get observations() {
+      return (outObs ??= shapeObservations());
+    },
     fixedPointObservations: outFixed,
     datumOffsets: outOffsets,
     sharedParameters: outShared,
