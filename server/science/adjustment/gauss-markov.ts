@@ -608,17 +608,22 @@ function adjustCore(
   const termPtr = new Int32Array(nObs + 1);
   const termSlot: number[] = [];
   const termCoef: number[] = [];
+  // The field path of a message is only written when there is one to give (no string per observation otherwise).
   observations.forEach((ob, k) => {
-    const path = obsPathOf(k);
     const f = pointIndex.get(ob.from);
     const t = pointIndex.get(ob.to);
-    if (f === undefined) throw invalid(`${path}.from`, `unknown point ${ob.from}`);
-    if (t === undefined) throw invalid(`${path}.to`, `unknown point ${ob.to}`);
-    if (f === t) throw invalid(`${path}.to`, 'observation joins a point to itself');
-    if (!Number.isFinite(ob.deltaC)) throw invalid(`${path}.deltaC`, 'deltaC is not finite');
-    if (!(Number.isFinite(ob.sigma) && ob.sigma > 0)) throw invalid(`${path}.sigma`, 'sigma must be > 0');
+    if (f === undefined) throw invalid(`${obsPathOf(k)}.from`, `unknown point ${ob.from}`);
+    if (t === undefined) throw invalid(`${obsPathOf(k)}.to`, `unknown point ${ob.to}`);
+    if (f === t) throw invalid(`${obsPathOf(k)}.to`, 'observation joins a point to itself');
+    if (!Number.isFinite(ob.deltaC)) throw invalid(`${obsPathOf(k)}.deltaC`, 'deltaC is not finite');
+    if (!(Number.isFinite(ob.sigma) && ob.sigma > 0)) throw invalid(`${obsPathOf(k)}.sigma`, 'sigma must be > 0');
     obsFrom[k] = f;
     obsTo[k] = t;
+    if (ob.datumOffset === undefined && (ob.terms === undefined || ob.terms.length === 0)) {
+      termPtr[k + 1] = termSlot.length;
+      return;
+    }
+    const path = obsPathOf(k);
     const terms: ParameterTerm[] = ob.datumOffset !== undefined ? [{ name: ob.datumOffset, coefficient: 1 }, ...(ob.terms ?? [])] : (ob.terms ?? []);
     const seen = new Map<number, number>();
     terms.forEach((term, s) => {
@@ -848,6 +853,7 @@ function adjustCore(
   const r = new Float64Array(nObs);
   const sharedEffect = new Float64Array(nObs);
   let vtpv = 0;
+  const { inversePerm } = z.factor.ordering;
   for (let k = 0; k < nObs; k++) {
     const m = obsUnknowns(k);
     let ax = 0;
@@ -855,7 +861,9 @@ function adjustCore(
     for (let s = 0; s < m; s++) {
       ax += coef[s] * dx[idx[s]];
       if (idx[s] >= firstSharedUnknown) sharedEffect[k] += coef[s] * dx[idx[s]];
-      for (let t = 0; t < m; t++) qaa += coef[s] * coef[t] * inverseEntry(z, idx[s], idx[t]);
+      // Q is symmetric: each off-diagonal pair read once, counted twice.
+      qaa += coef[s] * coef[s] * z.diag[inversePerm[idx[s]]];
+      for (let t = s + 1; t < m; t++) qaa += 2 * coef[s] * coef[t] * inverseEntry(z, idx[s], idx[t]);
     }
     if (obsLowRank) qaa += obsLowRank[k];
     if ((k & 16383) === 16383) progress(0.8 + (0.05 * k) / nObs, 'statistical tests');
