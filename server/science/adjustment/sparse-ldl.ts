@@ -69,6 +69,8 @@ export interface FactorOptions {
   ordering?: Ordering;
   pivotTolerance?: number;
   onColumns?: ColumnProgress;
+  /** Largest dense panel of factorize, in entries (default MAX_PANEL_ENTRIES); wider supernodes are cut. */
+  maxPanelEntries?: number;
 }
 
 /** Elimination tree and column counts of L for P A Pᵀ (Davis 2005, ldl_symbolic). */
@@ -98,8 +100,11 @@ export function symbolicAnalysis(a: SymmetricPattern, ordering: Ordering): { par
   return { parent, colPtr };
 }
 
-/** Numeric LDLᵀ. Throws SingularMatrixError naming the original column of the first bad pivot. */
-export function factorize(a: SymmetricCsc, options: FactorOptions = {}): LdlFactor {
+/**
+ * Numeric LDLᵀ row by row (up-looking, Davis 2005), the reference for factorize. Throws SingularMatrixError naming the
+ * original column of the first bad pivot.
+ */
+export function factorizeByRows(a: SymmetricCsc, options: FactorOptions = {}): LdlFactor {
   const n = a.n;
   const ordering = options.ordering ?? approximateMinimumDegree(a);
   const tol = options.pivotTolerance ?? DEFAULT_PIVOT_TOLERANCE;
@@ -156,6 +161,196 @@ export function factorize(a: SymmetricCsc, options: FactorOptions = {}): LdlFact
       // Row k completes the work of every column i < k it touched; the columns' own weights approximate that.
       done += weight[k];
       if ((k & PROGRESS_MASK) === PROGRESS_MASK) onColumns!(done / weight[n]);
+    }
+  }
+  return { n, ordering, parent, colPtr, rowIdx, values, diag };
+}
+
+/** A factorisation panel holds at most this many entries (32 MB); wider supernodes are cut into narrower ones. */
+export const MAX_PANEL_ENTRIES = 1 << 22;
+
+/**
+ * Numeric LDLᵀ by supernodes, left-looking (Ng & Peyton, "Block sparse Cholesky algorithms on advanced uniprocessor
+ * computers", SIAM J. Sci. Comput. 14(5), 1993; supernodes: Liu, Ng & Peyton 1993). The pattern of L comes first from the
+ * elimination tree (row k of L is the tree reach of row k of A, Davis 2006 §4.1); each supernode J = [j0, j1] with
+ * common rows S is then computed in a dense column-major panel of (|J| + |S|) × |J|: the columns of A, the updates of
+ * every earlier supernode K with rows in J (L_{R,K}·D_K·L_{U,K}ᵀ, U its rows in J, R its rows from there on), and the
+ * dense LDLᵀ of the panel. Same result as factorizeByRows up to rounding; throws SingularMatrixError naming the original
+ * column of the first bad pivot, as that one does.
+ */
+export function factorize(a: SymmetricCsc, options: FactorOptions = {}): LdlFactor {
+  const n = a.n;
+  const ordering = options.ordering ?? approximateMinimumDegree(a);
+  const tol = options.pivotTolerance ?? DEFAULT_PIVOT_TOLERANCE;
+  const { parent, colPtr } = symbolicAnalysis(a, ordering);
+  const { perm, inversePerm } = ordering;
+  const onColumns = options.onColumns;
+  const weight = onColumns ? columnWork(colPtr, n) : null;
+  let done = 0;
+  const nnz = colPtr[n];
+  const rowIdx = new Int32Array(nnz);
+  const values = new Float64Array(nnz);
+  const diag = new Float64Array(n);
+
+  // Pattern: row k of L = reach of row k of A in the elimination tree; rows arrive in ascending order per column.
+  {
+    const flag = new Int32Array(n);
+    const fill = colPtr.slice(0, n);
+    for (let k = 0; k < n; k++) {
+      flag[k] = k;
+      const kk = perm[k];
+      for (let p = a.colPtr[kk]; p < a.colPtr[kk + 1]; p++) {
+        for (let i = inversePerm[a.rowIdx[p]]; i < k && flag[i] !== k; i = parent[i]) {
+          rowIdx[fill[i]++] = k;
+          flag[i] = k;
+        }
+      }
+    }
+  }
+
+  // Supernodes, cut where a panel would grow beyond the limit.
+  const maxPanel = options.maxPanelEntries ?? MAX_PANEL_ENTRIES;
+  const fundamental = fundamentalSupernodes({ n, colPtr, rowIdx });
+  const startList: number[] = [];
+  for (let s = 0; s + 1 < fundamental.length; s++) {
+    const end = fundamental[s + 1];
+    let t = fundamental[s];
+    while (t < end) {
+      const side = colPtr[t + 1] - colPtr[t] + 1;
+      let e = t + 1;
+      while (e < end && side * (e + 1 - t) <= maxPanel) e++;
+      startList.push(t);
+      t = e;
+    }
+  }
+  startList.push(n);
+  const starts = Int32Array.from(startList);
+  const nSuper = starts.length - 1;
+  const superOf = new Int32Array(n);
+  for (let s = 0; s < nSuper; s++) for (let j = starts[s]; j < starts[s + 1]; j++) superOf[j] = s;
+
+  // Supernode K waits in the list of the supernode holding its next unused common row; nextRow[K] is that row's offset.
+  const head = new Int32Array(nSuper).fill(-1);
+  const link = new Int32Array(nSuper).fill(-1);
+  const nextRow = new Int32Array(nSuper);
+  const rel = new Int32Array(n);
+  let panel = new Float64Array(0);
+  let tmp = new Float64Array(0);
+  let akk = new Float64Array(0);
+
+  for (let sn = 0; sn < nSuper; sn++) {
+    const j0 = starts[sn];
+    const j1 = starts[sn + 1] - 1;
+    const w = j1 - j0 + 1;
+    const sp = colPtr[j1];
+    const m = colPtr[j1 + 1] - sp;
+    const nb = w + m;
+    if (panel.length < nb * w) panel = new Float64Array(Math.max(nb * w, 2 * panel.length));
+    else panel.fill(0, 0, nb * w);
+    if (akk.length < w) akk = new Float64Array(Math.max(w, 2 * akk.length));
+    // Local rows: j0 … j1 first, then S (the rows of column j1 below the supernode).
+    for (let c = 0; c < w; c++) rel[j0 + c] = c;
+    for (let q = 0; q < m; q++) rel[rowIdx[sp + q]] = w + q;
+
+    // Columns of A (lower part, permuted numbering).
+    for (let c = 0; c < w; c++) {
+      const j = j0 + c;
+      const jj = perm[j];
+      const base = c * nb;
+      for (let p = a.colPtr[jj]; p < a.colPtr[jj + 1]; p++) {
+        const i = inversePerm[a.rowIdx[p]];
+        if (i >= j) panel[base + rel[i]] += a.values[p];
+      }
+      akk[c] = panel[base + c];
+    }
+
+    // Updates from the earlier supernodes with rows in J.
+    let k = head[sn];
+    head[sn] = -1;
+    while (k !== -1) {
+      const nextK = link[k];
+      const k0 = starts[k];
+      const k1 = starts[k + 1] - 1;
+      const wk = k1 - k0 + 1;
+      const ks = colPtr[k1]; // common rows of K: rowIdx[ks … ks + mk)
+      const mk = colPtr[k1 + 1] - ks;
+      const a0 = nextRow[k];
+      let a1 = a0;
+      while (a1 < mk && rowIdx[ks + a1] <= j1) a1++;
+      if (tmp.length < mk) tmp = new Float64Array(Math.max(mk, 2 * tmp.length));
+      // Column c' of K holds its common rows from colPtr[k0 + c'] + (wk − 1 − c') on.
+      for (let u = a0; u < a1; u++) {
+        // tmp[r] = Σ_c' L_{r,c'}·d_c'·L_{u,c'} for the rows r = u … mk − 1 of K.
+        for (let r = u; r < mk; r++) tmp[r] = 0;
+        let c = 0;
+        for (; c + 4 <= wk; c += 4) {
+          const b0 = colPtr[k0 + c] + wk - 1 - c;
+          const b1 = colPtr[k0 + c + 1] + wk - 2 - c;
+          const b2 = colPtr[k0 + c + 2] + wk - 3 - c;
+          const b3 = colPtr[k0 + c + 3] + wk - 4 - c;
+          const f0 = values[b0 + u] * diag[k0 + c];
+          const f1 = values[b1 + u] * diag[k0 + c + 1];
+          const f2 = values[b2 + u] * diag[k0 + c + 2];
+          const f3 = values[b3 + u] * diag[k0 + c + 3];
+          for (let r = u; r < mk; r++) tmp[r] += values[b0 + r] * f0 + values[b1 + r] * f1 + values[b2 + r] * f2 + values[b3 + r] * f3;
+        }
+        for (; c < wk; c++) {
+          const b0 = colPtr[k0 + c] + wk - 1 - c;
+          const f0 = values[b0 + u] * diag[k0 + c];
+          for (let r = u; r < mk; r++) tmp[r] += values[b0 + r] * f0;
+        }
+        const base = (rowIdx[ks + u] - j0) * nb;
+        for (let r = u; r < mk; r++) panel[base + rel[rowIdx[ks + r]]] -= tmp[r];
+      }
+      nextRow[k] = a1;
+      if (a1 < mk) {
+        const target = superOf[rowIdx[ks + a1]];
+        link[k] = head[target];
+        head[target] = k;
+      }
+      k = nextK;
+    }
+
+    // Dense LDLᵀ of the panel, column by column (left-looking inside the supernode).
+    for (let c = 0; c < w; c++) {
+      const base = c * nb;
+      let cp = 0;
+      for (; cp + 4 <= c; cp += 4) {
+        const o0 = cp * nb;
+        const o1 = o0 + nb;
+        const o2 = o1 + nb;
+        const o3 = o2 + nb;
+        const f0 = panel[o0 + c] * diag[j0 + cp];
+        const f1 = panel[o1 + c] * diag[j0 + cp + 1];
+        const f2 = panel[o2 + c] * diag[j0 + cp + 2];
+        const f3 = panel[o3 + c] * diag[j0 + cp + 3];
+        for (let r = c; r < nb; r++) panel[base + r] -= panel[o0 + r] * f0 + panel[o1 + r] * f1 + panel[o2 + r] * f2 + panel[o3 + r] * f3;
+      }
+      for (; cp < c; cp++) {
+        const o0 = cp * nb;
+        const f0 = panel[o0 + c] * diag[j0 + cp];
+        for (let r = c; r < nb; r++) panel[base + r] -= panel[o0 + r] * f0;
+      }
+      const j = j0 + c;
+      const dk = panel[base + c];
+      if (!(dk > tol * Math.abs(akk[c])) || !(akk[c] > 0)) throw new SingularMatrixError(perm[j], dk);
+      diag[j] = dk;
+      const out = colPtr[j] - c - 1; // local row r (> c) of column j is L entry out + r
+      for (let r = c + 1; r < nb; r++) {
+        const l = panel[base + r] / dk;
+        panel[base + r] = l;
+        values[out + r] = l;
+      }
+      if (weight) {
+        done += weight[j];
+        if ((j & PROGRESS_MASK) === PROGRESS_MASK) onColumns!(done / weight[n]);
+      }
+    }
+    if (m > 0) {
+      nextRow[sn] = 0;
+      const target = superOf[rowIdx[sp]];
+      link[sn] = head[target];
+      head[target] = sn;
     }
   }
   return { n, ordering, parent, colPtr, rowIdx, values, diag };

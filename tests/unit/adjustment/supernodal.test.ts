@@ -3,7 +3,9 @@ import { Matrix, inverse, solve as denseSolve } from 'ml-matrix';
 import { approximateMinimumDegree, naturalOrdering, type Ordering } from '../../../server/science/adjustment/ordering';
 import {
   factorize,
+  factorizeByRows,
   fundamentalSupernodes,
+  SingularMatrixError,
   inverseEntry,
   selectedInverse,
   solve,
@@ -12,11 +14,13 @@ import {
 } from '../../../server/science/adjustment/sparse-ldl';
 import { mulberry32 } from './network-fixtures';
 
-// The selected inversion computes the columns of a supernode on a dense block (Z_SS gathered once); every entry it
-// returns must equal the dense inverse. Recurrences: Takahashi, Fagan & Chin, PICA 1973 (Z = A⁻¹ on the pattern of L);
-// supernodes: Liu, Ng & Peyton, SIAM J. Matrix Anal. Appl. 14(1), 1993. Reference: ml-matrix (npm) dense inverse, a
-// general linear-algebra library outside this project; agreement to 1e-10 relative is common practice for
-// double-precision solvers on well-conditioned matrices (Golub & Van Loan, Matrix Computations, 4th ed., §4.2.6).
+// Factorisation, solve and selected inversion work on supernodes (dense panels and blocks); every result must equal
+// the dense inverse or solution and the row-by-row factorisation. Factorisation: Ng & Peyton, SIAM J. Sci. Comput.
+// 14(5), 1993 (left-looking supernodal); row-by-row reference: Davis, ACM TOMS 31(4), 2005. Selected inversion:
+// Takahashi, Fagan & Chin, PICA 1973 (Z = A⁻¹ on the pattern of L); supernodes: Liu, Ng & Peyton, SIAM J. Matrix Anal.
+// Appl. 14(1), 1993. Dense reference: ml-matrix (npm), a general linear-algebra library outside this project;
+// agreement to 1e-10 relative (1e-12 between the two factorisations) is common practice for double-precision solvers
+// on well-conditioned matrices (Golub & Van Loan, Matrix Computations, 4th ed., §4.2 for the rounding of LDLᵀ).
 
 /** Weighted Laplacian of a jittered grid with diagonals plus a small positive diagonal (a levelling-like SPD matrix). */
 function gridSpd(seed: number, side: number, extraLinks: number): SymmetricCsc {
@@ -60,7 +64,7 @@ function widestSupernode(starts: Int32Array): number {
   return w;
 }
 
-describe('selected inversion on supernode blocks equals the dense inverse', () => {
+describe('supernodal factorisation, solve and selected inversion against dense and row-by-row references', () => {
   const cases: [string, number, number, number][] = [
     ['grid 14×14, minimum degree', 11, 14, 3],
     ['grid 17×17, minimum degree, long links', 12, 17, 12],
@@ -111,6 +115,58 @@ describe('selected inversion on supernode blocks equals the dense inverse', () =
       let scale = 0;
       for (let i = 0; i < n; i++) scale = Math.max(scale, Math.abs(ref.get(i, 0)));
       for (let i = 0; i < n; i++) expect(Math.abs(x[i] - ref.get(i, 0))).toBeLessThan(1e-10 * scale);
+    }
+  });
+
+  it.each(cases)('%s: supernodal LDLᵀ has the row-by-row pattern and values, also with narrow panels', (label, seed, side, links) => {
+    const a = gridSpd(seed, side, links);
+    const n = a.n;
+    const ordering: Ordering = label.includes('natural') ? naturalOrdering(n) : approximateMinimumDegree(a);
+    const ref = factorizeByRows(a, { ordering });
+    for (const maxPanelEntries of [undefined, 40, 1]) {
+      const f = factorize(a, { ordering, maxPanelEntries });
+      expect(Array.from(f.colPtr)).toEqual(Array.from(ref.colPtr));
+      expect(Array.from(f.rowIdx)).toEqual(Array.from(ref.rowIdx));
+      for (let j = 0; j < n; j++) expect(Math.abs(f.diag[j] - ref.diag[j])).toBeLessThan(1e-12 * ref.diag[j]);
+      // |L_ij|·√(d_j) is bounded by √(a_ii) (A = L D Lᵀ), so an absolute bound on that scale.
+      for (let j = 0; j < n; j++) {
+        for (let p = ref.colPtr[j]; p < ref.colPtr[j + 1]; p++) {
+          expect(Math.abs(f.values[p] - ref.values[p]) * Math.sqrt(ref.diag[j])).toBeLessThan(1e-12 * 10);
+        }
+      }
+    }
+  });
+
+  it('a singular part is reported at the same original column as the row-by-row factorisation', () => {
+    // Two grids side by side: the first with a positive diagonal, the second a pure Laplacian (rank defect 1, common
+    // practice: a connected graph Laplacian has the constant vector as null space).
+    const g = gridSpd(31, 8, 2);
+    const n1 = g.n;
+    const side = 7;
+    const r: number[] = [];
+    const c: number[] = [];
+    const v: number[] = [];
+    for (let j = 0; j < n1; j++) for (let p = g.colPtr[j]; p < g.colPtr[j + 1]; p++) if (g.rowIdx[p] <= j) { r.push(g.rowIdx[p]); c.push(j); v.push(g.values[p]); }
+    for (let i = 0; i < side * side; i++) {
+      const x = i % side;
+      const link = (q: number): void => {
+        r.push(n1 + i, n1 + q, n1 + i);
+        c.push(n1 + i, n1 + q, n1 + q);
+        v.push(1, 1, -1);
+      };
+      if (x + 1 < side) link(i + 1);
+      if (i + side < side * side) link(i + side);
+    }
+    const a = symmetricFromTriplets(n1 + side * side, r, c, v);
+    for (const ordering of [approximateMinimumDegree(a), naturalOrdering(a.n)]) {
+      let byRows: unknown;
+      let bySupernodes: unknown;
+      try { factorizeByRows(a, { ordering }); } catch (e) { byRows = e; }
+      try { factorize(a, { ordering }); } catch (e) { bySupernodes = e; }
+      expect(byRows).toBeInstanceOf(SingularMatrixError);
+      expect(bySupernodes).toBeInstanceOf(SingularMatrixError);
+      expect((bySupernodes as SingularMatrixError).column).toBe((byRows as SingularMatrixError).column);
+      expect((bySupernodes as SingularMatrixError).column).toBeGreaterThanOrEqual(n1);
     }
   });
 
