@@ -938,11 +938,23 @@ function adjustCore(
       const aIdx: number[] = [];
       for (let u = 0; u < nUnknowns; u++) if (a[u] !== 0) aIdx.push(u);
       const z = solve(factor, a);
+      // z += Σ_j c_j (z_jᵀa) z_j, four earlier z_j per sweep over z.
+      const fs = new Float64Array(zs.length);
       for (let j = 0; j < zs.length; j++) {
         let d = 0;
         for (const u of aIdx) d += zs[j][u] * a[u];
-        const f = cs[j] * d;
-        if (f !== 0) for (let u = 0; u < nUnknowns; u++) z[u] += f * zs[j][u];
+        fs[j] = cs[j] * d;
+      }
+      let j4 = 0;
+      for (; j4 + 4 <= zs.length; j4 += 4) {
+        const [z0, z1, z2, z3] = [zs[j4], zs[j4 + 1], zs[j4 + 2], zs[j4 + 3]];
+        const [f0, f1, f2, f3] = [fs[j4], fs[j4 + 1], fs[j4 + 2], fs[j4 + 3]];
+        for (let u = 0; u < nUnknowns; u++) z[u] += f0 * z0[u] + f1 * z1[u] + f2 * z2[u] + f3 * z3[u];
+      }
+      for (; j4 < zs.length; j4++) {
+        const zj = zs[j4];
+        const f = fs[j4];
+        if (f !== 0) for (let u = 0; u < nUnknowns; u++) z[u] += f * zj[u];
       }
       const c = rp[best] / rr[best];
       if (rr[best] < minRedundancy) minRedundancy = rr[best];

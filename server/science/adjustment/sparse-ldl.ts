@@ -356,44 +356,102 @@ export function factorize(a: SymmetricCsc, options: FactorOptions = {}): LdlFact
   return { n, ordering, parent, colPtr, rowIdx, values, diag };
 }
 
-/**
- * Solves A x = b with the factor; b in original ordering, result in original ordering. The backward sweep goes by
- * supernodes: x on a supernode's common rows is gathered once, and its columns read x[j + 1 …] directly.
- */
+/** Solves A x = b with the factor; b in original ordering, result in original ordering. Both sweeps go by supernodes. */
 export function solve(f: LdlFactor, b: ArrayLike<number>): Float64Array {
   const n = f.n;
   const { perm } = f.ordering;
   const { colPtr, rowIdx, values } = f;
   const x = new Float64Array(n);
   for (let k = 0; k < n; k++) x[k] = b[perm[k]];
-  for (let j = 0; j < n; j++) {
-    const xj = x[j];
-    if (xj !== 0) for (let p = colPtr[j]; p < colPtr[j + 1]; p++) x[rowIdx[p]] -= values[p] * xj;
-  }
-  for (let j = 0; j < n; j++) x[j] /= f.diag[j];
   const starts = supernodesOf(f);
   let xs = new Float64Array(0);
+  // Forward: inside a supernode the columns' leading rows are j + 1 … e (read directly); the common rows S collect
+  // the products of all its columns at once (four columns per sweep) and are scattered once.
+  for (let sn = 0; sn + 1 < starts.length; sn++) {
+    const s0 = starts[sn];
+    const e = starts[sn + 1] - 1;
+    let any = false;
+    for (let j = s0; j <= e; j++) {
+      const xj = x[j];
+      if (xj === 0) continue;
+      any = true;
+      const p0 = colPtr[j];
+      const inner = e - j;
+      for (let q = 0; q < inner; q++) x[j + 1 + q] -= values[p0 + q] * xj;
+    }
+    if (!any) continue;
+    const pe = colPtr[e];
+    const m = colPtr[e + 1] - pe;
+    if (m === 0) continue;
+    if (xs.length < m) xs = new Float64Array(Math.max(m, 2 * xs.length));
+    xs.fill(0, 0, m);
+    let j = s0;
+    for (; j + 4 <= e + 1; j += 4) {
+      const q0 = x[j];
+      const q1 = x[j + 1];
+      const q2 = x[j + 2];
+      const q3 = x[j + 3];
+      const b0 = colPtr[j] + e - j;
+      const b1 = colPtr[j + 1] + e - j - 1;
+      const b2 = colPtr[j + 2] + e - j - 2;
+      const b3 = colPtr[j + 3] + e - j - 3;
+      for (let a = 0; a < m; a++) xs[a] += values[b0 + a] * q0 + values[b1 + a] * q1 + values[b2 + a] * q2 + values[b3 + a] * q3;
+    }
+    for (; j <= e; j++) {
+      const q0 = x[j];
+      if (q0 === 0) continue;
+      const b0 = colPtr[j] + e - j;
+      for (let a = 0; a < m; a++) xs[a] += values[b0 + a] * q0;
+    }
+    for (let a = 0; a < m; a++) x[rowIdx[pe + a]] -= xs[a];
+  }
+  for (let j = 0; j < n; j++) x[j] /= f.diag[j];
+  // Backward: x on S is gathered once; the products with S of all columns of the supernode first (four columns per
+  // sweep of x_S), then the triangle inside the supernode from its last column up.
+  let sums = new Float64Array(0);
   for (let sn = starts.length - 2; sn >= 0; sn--) {
     const s0 = starts[sn];
     const e = starts[sn + 1] - 1;
-    if (s0 === e) {
-      let s = x[e];
-      for (let p = colPtr[e]; p < colPtr[e + 1]; p++) s -= values[p] * x[rowIdx[p]];
-      x[e] = s;
-      continue;
-    }
+    const w = e - s0 + 1;
     const pe = colPtr[e];
     const m = colPtr[e + 1] - pe;
     if (xs.length < m) xs = new Float64Array(Math.max(m, 2 * xs.length));
+    if (sums.length < w) sums = new Float64Array(Math.max(w, 2 * sums.length));
     for (let a = 0; a < m; a++) xs[a] = x[rowIdx[pe + a]];
-    for (let j = e; j >= s0; j--) {
-      const p0 = colPtr[j];
-      const inner = e - j; // rows j + 1 … e come first in column j, then the common rows
-      let s = x[j];
-      for (let q = 0; q < inner; q++) s -= values[p0 + q] * x[j + 1 + q];
-      const ps = p0 + inner;
-      for (let a = 0; a < m; a++) s -= values[ps + a] * xs[a];
-      x[j] = s;
+    let j = s0;
+    for (; j + 4 <= e + 1; j += 4) {
+      const b0 = colPtr[j] + e - j;
+      const b1 = colPtr[j + 1] + e - j - 1;
+      const b2 = colPtr[j + 2] + e - j - 2;
+      const b3 = colPtr[j + 3] + e - j - 3;
+      let t0 = 0;
+      let t1 = 0;
+      let t2 = 0;
+      let t3 = 0;
+      for (let a = 0; a < m; a++) {
+        const xa = xs[a];
+        t0 += values[b0 + a] * xa;
+        t1 += values[b1 + a] * xa;
+        t2 += values[b2 + a] * xa;
+        t3 += values[b3 + a] * xa;
+      }
+      sums[j - s0] = t0;
+      sums[j - s0 + 1] = t1;
+      sums[j - s0 + 2] = t2;
+      sums[j - s0 + 3] = t3;
+    }
+    for (; j <= e; j++) {
+      const b0 = colPtr[j] + e - j;
+      let t0 = 0;
+      for (let a = 0; a < m; a++) t0 += values[b0 + a] * xs[a];
+      sums[j - s0] = t0;
+    }
+    for (let jj = e; jj >= s0; jj--) {
+      const p0 = colPtr[jj];
+      const inner = e - jj; // rows jj + 1 … e come first in column jj, then the common rows
+      let s = x[jj] - sums[jj - s0];
+      for (let q = 0; q < inner; q++) s -= values[p0 + q] * x[jj + 1 + q];
+      x[jj] = s;
     }
   }
   const out = new Float64Array(n);
