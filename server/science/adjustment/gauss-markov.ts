@@ -838,9 +838,33 @@ function adjustCore(
   if (lowRank) {
     obsLowRank = new Float64Array(nObs);
     diagLowRank = new Float64Array(nUnknowns);
-    for (let s2 = 0; s2 < lowRank.zs.length; s2++) {
-      const zv = lowRank.zs[s2];
-      const c = lowRank.cs[s2];
+    const { zs, cs } = lowRank;
+    // Four z_s per sweep over the rows of A.
+    let s2 = 0;
+    for (; s2 + 4 <= zs.length; s2 += 4) {
+      const [z0, z1, z2, z3] = [zs[s2], zs[s2 + 1], zs[s2 + 2], zs[s2 + 3]];
+      const [c0s, c1s, c2s, c3s] = [cs[s2], cs[s2 + 1], cs[s2 + 2], cs[s2 + 3]];
+      for (let u = 0; u < nUnknowns; u++) diagLowRank[u] += c0s * z0[u] * z0[u] + c1s * z1[u] * z1[u] + c2s * z2[u] * z2[u] + c3s * z3[u] * z3[u];
+      for (let k = 0; k < nObs; k++) {
+        let d0 = 0;
+        let d1 = 0;
+        let d2 = 0;
+        let d3 = 0;
+        for (let p = aPtr[k]; p < aPtr[k + 1]; p++) {
+          const col = aCol[p];
+          const av = aVal[p];
+          d0 += av * z0[col];
+          d1 += av * z1[col];
+          d2 += av * z2[col];
+          d3 += av * z3[col];
+        }
+        obsLowRank[k] += c0s * d0 * d0 + c1s * d1 * d1 + c2s * d2 * d2 + c3s * d3 * d3;
+      }
+      progress(0.8, 'statistical tests');
+    }
+    for (; s2 < zs.length; s2++) {
+      const zv = zs[s2];
+      const c = cs[s2];
       for (let u = 0; u < nUnknowns; u++) diagLowRank[u] += c * zv[u] * zv[u];
       for (let k = 0; k < nObs; k++) {
         const d = rowTimes(k, zv);
