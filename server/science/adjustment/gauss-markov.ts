@@ -702,9 +702,12 @@ function adjustCore(
     if (m > maxTerms) maxTerms = m;
     maxTriplets += (m * (m + 1)) / 2;
   }
-  const tr = new Int32Array(maxTriplets);
-  const tc = new Int32Array(maxTriplets);
-  const tv = new Float64Array(maxTriplets);
+  // After screened removals the factor and inverse are the screening's (with its downdates): N is not assembled, its
+  // products come from the rows of A (normalTimes).
+  const assemble = !downdated;
+  const tr = new Int32Array(assemble ? maxTriplets : 0);
+  const tc = new Int32Array(assemble ? maxTriplets : 0);
+  const tv = new Float64Array(assemble ? maxTriplets : 0);
   let nt = 0;
   const rhs = new Float64Array(nUnknowns);
   const idx = new Int32Array(Math.max(maxTerms, 2));
@@ -738,7 +741,7 @@ function adjustCore(
     const p = weight[k];
     for (let s = 0; s < m; s++) {
       rhs[idx[s]] += p * coef[s] * l0[k];
-      for (let t = s; t < m; t++) {
+      if (assemble) for (let t = s; t < m; t++) {
         const a = idx[s] < idx[t] ? idx[s] : idx[t];
         const b = idx[s] < idx[t] ? idx[t] : idx[s];
         tr[nt] = a; tc[nt] = b; tv[nt] = p * coef[s] * coef[t]; nt++;
@@ -753,14 +756,32 @@ function adjustCore(
     pseudoWeight[s] = 1 / (sf * sf);
     pseudoL0[s] = (points[i].fixedC as number) - c0[i];
     rhs[u] += pseudoWeight[s] * pseudoL0[s];
-    tr[nt] = u; tc[nt] = u; tv[nt] = pseudoWeight[s]; nt++;
+    if (assemble) { tr[nt] = u; tc[nt] = u; tv[nt] = pseudoWeight[s]; nt++; }
   });
   // Zero-prior pseudo-observations of the shared parameters: s_j = 0 ± σ_j.
   shared.forEach((sp, j) => {
     const u = firstSharedUnknown + j;
-    tr[nt] = u; tc[nt] = u; tv[nt] = 1 / (sp.sigma * sp.sigma); nt++;
+    if (assemble) { tr[nt] = u; tc[nt] = u; tv[nt] = 1 / (sp.sigma * sp.sigma); nt++; }
   });
-  const normal = symmetricFromTriplets(nUnknowns, tr, tc, tv, nt);
+  const normal = assemble ? symmetricFromTriplets(nUnknowns, tr, tc, tv, nt) : null;
+  /** b − N·x with N = AᵀPA + the pseudo-observations' weights + the shared parameters' prior weights, row by row. */
+  const normalResidual = (x: Float64Array, b: Float64Array): Float64Array => {
+    if (normal) return symmetricResidual(normal, x, b);
+    const out = Float64Array.from(b);
+    for (let k = 0; k < nObs; k++) {
+      const t = weight[k] * rowTimes(k, x);
+      for (let p = aPtr[k]; p < aPtr[k + 1]; p++) out[aCol[p]] -= aVal[p] * t;
+    }
+    weightedIdx.forEach((i, s) => {
+      const u = unknownOfPoint[i];
+      out[u] -= pseudoWeight[s] * x[u];
+    });
+    shared.forEach((sp, j) => {
+      const u = firstSharedUnknown + j;
+      out[u] -= x[u] / (sp.sigma * sp.sigma);
+    });
+    return out;
+  };
 
   let factor: LdlFactor;
   let solveN: (b: Float64Array) => Float64Array;
@@ -780,11 +801,12 @@ function adjustCore(
       return x;
     };
   } else {
+    const full = normal as SymmetricCsc; // assembled whenever there is no downdate
     progress(0.05, 'ordering');
-    const usable = ordering && ordering.perm.length === nUnknowns ? ordering : approximateMinimumDegree(normal, (f) => progress(0.05 + 0.15 * f, 'ordering'));
+    const usable = ordering && ordering.perm.length === nUnknowns ? ordering : approximateMinimumDegree(full, (f) => progress(0.05 + 0.15 * f, 'ordering'));
     progress(0.2, 'factorisation');
     try {
-      factor = factorize(normal, { ordering: usable, onColumns: (f) => progress(0.2 + 0.25 * f, 'factorisation') });
+      factor = factorize(full, { ordering: usable, onColumns: (f) => progress(0.2 + 0.25 * f, 'factorisation') });
     } catch (e) {
       if (e instanceof SingularMatrixError) {
         throw new AdjustmentInputError(
@@ -801,7 +823,7 @@ function adjustCore(
   progress(0.45, 'solution');
   const dx = solveN(rhs);
   // One step of iterative refinement recovers the digits lost to the condition number of N (and to the downdates).
-  const resid = symmetricResidual(normal, dx, rhs);
+  const resid = normalResidual(dx, rhs);
   const corr = solveN(resid);
   for (let j = 0; j < nUnknowns; j++) dx[j] += corr[j];
 
