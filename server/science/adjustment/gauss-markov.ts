@@ -322,9 +322,23 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
   // same from pass to pass (a removed weighted fixed value leaves its point an unknown), so the fill-reducing ordering
   // of the first pass is reused.
   let ordering: Ordering | undefined;
-  const run = (onProgress: (fraction: number, stage: AdjustmentStage) => void, screen = false, downdated?: Downdate) => {
+  const run = (
+    onProgress: (fraction: number, stage: AdjustmentStage) => void, screen = false, downdated?: Downdate, previous?: { core: CoreResult; obsMap: number[] },
+  ) => {
     const obsMap: number[] = [];
     for (let k = 0; k < nObsAll; k++) if (!removedObs.has(k)) obsMap.push(k);
+    // A pass over a subset of the previous pass's observations takes their checked and resolved form from it.
+    let reuse: Reuse | undefined;
+    if (previous?.core.prepared) {
+      const from = new Int32Array(obsMap.length);
+      const prev = previous.obsMap;
+      let q = 0;
+      for (let k = 0; k < obsMap.length && q < prev.length; k++) {
+        while (q < prev.length && prev[q] !== obsMap[k]) q++;
+        from[k] = q;
+      }
+      if (q < prev.length) reuse = { prepared: previous.core.prepared, from };
+    }
     const points = input.points.map((p, i) => {
       if (!removedFixed.has(i)) return p;
       const { fixedC: _f, sigmaFixed: _s, ...rest } = p;
@@ -338,6 +352,7 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
       screen,
       Math.max(0, maxRemovals - removals.length),
       downdated,
+      reuse,
     );
     ordering = core.ordering;
     return { core, obsMap };
@@ -361,12 +376,13 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
     });
     for (const r of staged) (r.source === 'observation' ? removedObs : removedFixed).set(r.index, r);
     // The adjustment without the screened rows reuses the factor and selected inverse with the screening's rank-one
-    // downdates (x' refined against the assembled N', Q' = Q + Σ c_s z_s z_sᵀ). A removal whose redundancy number was
-    // small makes c_s large and the update less accurate: then the adjustment is computed afresh instead.
+    // downdates (x' refined against N' = AᵀPA of the kept rows, Q' = Q + Σ c_s z_s z_sᵀ), and the first pass's checked
+    // observations. A removal whose redundancy number was small makes c_s large and the update less accurate: then the
+    // adjustment is computed afresh instead.
     const dd = core.downdate && core.downdate.minRedundancy >= DOWNDATE_MIN_REDUNDANCY ? core.downdate : undefined;
     const after = span(0.92, 1, 'adjustment after removals');
     try {
-      pass = run(after, false, dd);
+      pass = run(after, false, dd, pass);
       removals.push(...staged);
     } catch (e) {
       if (!(e instanceof AdjustmentInputError)) throw e;
@@ -540,6 +556,24 @@ interface CoreResult {
   screened: { source: 'observation' | 'fixedPoint'; index: number; w: number }[];
   /** This pass's factor and selected inverse with the screening's rank-one downdates, for the adjustment without the screened rows. */
   downdate?: Downdate;
+  /** This pass's checked observations, for the adjustment without the screened rows. */
+  prepared?: Prepared;
+}
+
+/** A pass's observations as checked and resolved into point and parameter numbers (pass-local observation numbers). */
+interface Prepared {
+  pointIndex: Map<string, number>;
+  obsFrom: Int32Array;
+  obsTo: Int32Array;
+  termPtr: Int32Array;
+  termSlot: number[];
+  termCoef: number[];
+}
+
+/** Prepared of an earlier pass over the same points and options, with from[k] = its number of this pass's observation k. */
+interface Reuse {
+  prepared: Prepared;
+  from: Int32Array;
 }
 
 /**
@@ -558,7 +592,7 @@ interface Downdate {
 /** One least-squares adjustment (no iteration). `obsPath` maps observation positions to the caller's indices for messages. */
 function adjustCore(
   input: AdjustmentInput, progress: (fraction: number, stage: AdjustmentStage) => void, obsPath: number[], ordering?: Ordering, screen = false, screenBudget = 0,
-  downdated?: Downdate,
+  downdated?: Downdate, reuse?: Reuse,
 ): CoreResult {
   const options = input.options ?? {};
   const alpha = options.alpha ?? 0.05;
@@ -573,8 +607,9 @@ function adjustCore(
   if (!(alpha > 0 && alpha < 1)) throw invalid('options.alpha', 'alpha must lie in (0, 1)');
   if (!(alpha0 > 0 && alpha0 < 1)) throw invalid('options.alphaSnooping', 'alphaSnooping must lie in (0, 1)');
 
-  const pointIndex = new Map<string, number>();
-  points.forEach((pt, i) => {
+  // With `reuse` the points are those of the earlier pass (a removed weighted fixed value only drops fixedC and sigmaFixed).
+  const pointIndex = reuse ? reuse.prepared.pointIndex : new Map<string, number>();
+  if (!reuse) points.forEach((pt, i) => {
     if (typeof pt.code !== 'string' || pt.code.length === 0) throw invalid(`points[${i}].code`, 'point code is empty');
     if (pointIndex.has(pt.code)) throw invalid(`points[${i}].code`, `duplicate point code ${pt.code}`);
     pointIndex.set(pt.code, i);
@@ -608,8 +643,32 @@ function adjustCore(
   const termPtr = new Int32Array(nObs + 1);
   const termSlot: number[] = [];
   const termCoef: number[] = [];
+  const countUses = (ob: NetworkObservation): void => {
+    const terms: ParameterTerm[] = ob.datumOffset !== undefined ? [{ name: ob.datumOffset, coefficient: 1 }, ...(ob.terms ?? [])] : (ob.terms ?? []);
+    for (const term of terms) {
+      const o = offsetIndex.get(term.name);
+      const j = sharedIndex.get(term.name);
+      if (o !== undefined) offsetUse[o]++;
+      else if (j !== undefined) sharedUse[j]++;
+    }
+  };
+  if (reuse) {
+    const { prepared: pr, from } = reuse;
+    for (let k = 0; k < nObs; k++) {
+      const k1 = from[k];
+      obsFrom[k] = pr.obsFrom[k1];
+      obsTo[k] = pr.obsTo[k1];
+      for (let p = pr.termPtr[k1]; p < pr.termPtr[k1 + 1]; p++) {
+        termSlot.push(pr.termSlot[p]);
+        termCoef.push(pr.termCoef[p]);
+      }
+      termPtr[k + 1] = termSlot.length;
+      const ob = observations[k];
+      if (ob.datumOffset !== undefined || (ob.terms !== undefined && ob.terms.length > 0)) countUses(ob);
+    }
+  }
   // The field path of a message is only written when there is one to give (no string per observation otherwise).
-  observations.forEach((ob, k) => {
+  if (!reuse) observations.forEach((ob, k) => {
     const f = pointIndex.get(ob.from);
     const t = pointIndex.get(ob.to);
     if (f === undefined) throw invalid(`${obsPathOf(k)}.from`, `unknown point ${ob.from}`);
@@ -1137,6 +1196,7 @@ function adjustCore(
     screened,
   };
   if (downdate) result.downdate = downdate;
+  if (screen) result.prepared = { pointIndex, obsFrom, obsTo, termPtr, termSlot, termCoef };
   if (heldPoint !== undefined) result.heldPoint = heldPoint;
   return result;
 }
