@@ -850,7 +850,25 @@ function adjustCore(
     const { zs, cs } = downdated;
     solveN = (b) => {
       const x = solve(factor, b);
-      for (let s2 = 0; s2 < zs.length; s2++) {
+      // Four z_s per sweep: their products with b, then x += Σ c_s (z_sᵀb) z_s.
+      let s2 = 0;
+      for (; s2 + 4 <= zs.length; s2 += 4) {
+        const [z0, z1, z2, z3] = [zs[s2], zs[s2 + 1], zs[s2 + 2], zs[s2 + 3]];
+        let d0 = 0;
+        let d1 = 0;
+        let d2 = 0;
+        let d3 = 0;
+        for (let u = 0; u < nUnknowns; u++) {
+          const bu = b[u];
+          d0 += z0[u] * bu;
+          d1 += z1[u] * bu;
+          d2 += z2[u] * bu;
+          d3 += z3[u] * bu;
+        }
+        const [f0, f1, f2, f3] = [cs[s2] * d0, cs[s2 + 1] * d1, cs[s2 + 2] * d2, cs[s2 + 3] * d3];
+        for (let u = 0; u < nUnknowns; u++) x[u] += f0 * z0[u] + f1 * z1[u] + f2 * z2[u] + f3 * z3[u];
+      }
+      for (; s2 < zs.length; s2++) {
         const zv = zs[s2];
         let d = 0;
         for (let u = 0; u < nUnknowns; u++) d += zv[u] * b[u];
