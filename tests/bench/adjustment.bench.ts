@@ -3,7 +3,7 @@
 // through the same throttle the job uses to write job_progress (here the "write" records its time instead of going to
 // PostgreSQL). Run: npx tsx tests/bench/adjustment.bench.ts [sizes…] — prints times per stage, peak RSS of the whole
 // process (threads included; reset per size where Linux allows) and the longest interval between two progress writes (start and end included); it does
-// not pass or fail. Targets at 100 000 benchmarks / ≈ 300 000 observations: < 10 s, RSS < 2 GB, progress ≤ 1 s apart.
+// not pass or fail. It also prints the CPU time of the process over the same interval. Targets at 100 000 benchmarks / ≈ 300 000 observations: < 10 s, RSS < 2 GB, progress ≤ 1 s apart.
 
 import fs from 'node:fs';
 import type { StoredInputs } from '../../server/network/adjustment.service';
@@ -41,6 +41,7 @@ for (const n of benchmarks) {
   const stageOrder: string[] = [];
   const writes: number[] = [];
   const writeStages: string[] = [];
+  const cpu0 = process.cpuUsage();
   const t0 = performance.now();
   writes.push(t0);
   writeStages.push('start');
@@ -59,6 +60,7 @@ for (const n of benchmarks) {
   });
   await progress.flush();
   const t1 = performance.now();
+  const cpu = process.cpuUsage(cpu0);
   writes.push(t1);
   writeStages.push('end');
   const resultMb = resultJson.length / 2 ** 20;
@@ -90,6 +92,9 @@ for (const n of benchmarks) {
       `${longestGap.toFixed(0).padStart(21)} (${gapAt})`,
     ].join(' '),
   );
+  // CPU time of the whole process (both threads) over the same interval: on a shared machine it varies far less with
+  // the other work than the wall time does.
+  console.log(`            CPU ${((cpu.user + cpu.system) / 1000).toFixed(0)} ms (user ${(cpu.user / 1000).toFixed(0)}, system ${(cpu.system / 1000).toFixed(0)})`);
   if (n === benchmarks[benchmarks.length - 1]) {
     const tag = `${n.toLocaleString('en')} benchmarks / ${net.observations.length.toLocaleString('en')} observations`;
     const big = n >= 100_000;

@@ -322,9 +322,23 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
   // same from pass to pass (a removed weighted fixed value leaves its point an unknown), so the fill-reducing ordering
   // of the first pass is reused.
   let ordering: Ordering | undefined;
-  const run = (onProgress: (fraction: number, stage: AdjustmentStage) => void, screen = false, downdated?: Downdate) => {
+  const run = (
+    onProgress: (fraction: number, stage: AdjustmentStage) => void, screen = false, downdated?: Downdate, previous?: { core: CoreResult; obsMap: number[] },
+  ) => {
     const obsMap: number[] = [];
     for (let k = 0; k < nObsAll; k++) if (!removedObs.has(k)) obsMap.push(k);
+    // A pass over a subset of the previous pass's observations takes their checked and resolved form from it.
+    let reuse: Reuse | undefined;
+    if (previous?.core.prepared) {
+      const from = new Int32Array(obsMap.length);
+      const prev = previous.obsMap;
+      let q = 0;
+      for (let k = 0; k < obsMap.length && q < prev.length; k++) {
+        while (q < prev.length && prev[q] !== obsMap[k]) q++;
+        from[k] = q;
+      }
+      if (q < prev.length) reuse = { prepared: previous.core.prepared, from };
+    }
     const points = input.points.map((p, i) => {
       if (!removedFixed.has(i)) return p;
       const { fixedC: _f, sigmaFixed: _s, ...rest } = p;
@@ -338,6 +352,7 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
       screen,
       Math.max(0, maxRemovals - removals.length),
       downdated,
+      reuse,
     );
     ordering = core.ordering;
     return { core, obsMap };
@@ -361,12 +376,13 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
     });
     for (const r of staged) (r.source === 'observation' ? removedObs : removedFixed).set(r.index, r);
     // The adjustment without the screened rows reuses the factor and selected inverse with the screening's rank-one
-    // downdates (x' refined against the assembled N', Q' = Q + Σ c_s z_s z_sᵀ). A removal whose redundancy number was
-    // small makes c_s large and the update less accurate: then the adjustment is computed afresh instead.
+    // downdates (x' refined against N' = AᵀPA of the kept rows, Q' = Q + Σ c_s z_s z_sᵀ), and the first pass's checked
+    // observations. A removal whose redundancy number was small makes c_s large and the update less accurate: then the
+    // adjustment is computed afresh instead.
     const dd = core.downdate && core.downdate.minRedundancy >= DOWNDATE_MIN_REDUNDANCY ? core.downdate : undefined;
     const after = span(0.92, 1, 'adjustment after removals');
     try {
-      pass = run(after, false, dd);
+      pass = run(after, false, dd, pass);
       removals.push(...staged);
     } catch (e) {
       if (!(e instanceof AdjustmentInputError)) throw e;
@@ -425,12 +441,16 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
   for (const d of core.datumOffsets) paramValue.set(d.name, d.value);
   const sharedValue = new Map<string, number>();
   for (const sp of core.sharedParameters) sharedValue.set(sp.name, sp.value);
-  const byOriginal = new Map<number, AdjustedObservation>();
-  core.observations.forEach((o, j) => byOriginal.set(obsMap[j], { ...o, index: obsMap[j] }));
+  // The final pass's observation objects are this function's own: they take their original index in place.
+  const byOriginal: (AdjustedObservation | undefined)[] = new Array(nObsAll);
+  core.observations.forEach((o, j) => {
+    o.index = obsMap[j];
+    byOriginal[obsMap[j]] = o;
+  });
   progress(reported, 'statistical tests');
   const observations: AdjustedObservation[] = input.observations.map((ob, k) => {
     if ((k & 65535) === 65535) progress(reported, 'statistical tests');
-    const kept = byOriginal.get(k);
+    const kept = byOriginal[k];
     if (kept) return kept;
     const rem = removedObs.get(k)!;
     // A removed observation: its discrepancy to the final adjustment, and its w at removal.
@@ -483,8 +503,10 @@ export function adjustNetwork(input: AdjustmentInput): AdjustmentResult {
     return s;
   });
   let maxRemainingW: number | null = null;
-  for (const o of [...core.observations, ...core.fixedPointObservations]) {
-    if (o.standardizedResidual !== null && (maxRemainingW === null || Math.abs(o.standardizedResidual) > maxRemainingW)) maxRemainingW = Math.abs(o.standardizedResidual);
+  for (const list of [core.observations, core.fixedPointObservations]) {
+    for (const o of list) {
+      if (o.standardizedResidual !== null && (maxRemainingW === null || Math.abs(o.standardizedResidual) > maxRemainingW)) maxRemainingW = Math.abs(o.standardizedResidual);
+    }
   }
   if (mode === 'none') {
     // Test only: every |w| above the critical value is flagged, nothing is removed (no iteration, not Baarda's procedure).
@@ -534,6 +556,24 @@ interface CoreResult {
   screened: { source: 'observation' | 'fixedPoint'; index: number; w: number }[];
   /** This pass's factor and selected inverse with the screening's rank-one downdates, for the adjustment without the screened rows. */
   downdate?: Downdate;
+  /** This pass's checked observations, for the adjustment without the screened rows. */
+  prepared?: Prepared;
+}
+
+/** A pass's observations as checked and resolved into point and parameter numbers (pass-local observation numbers). */
+interface Prepared {
+  pointIndex: Map<string, number>;
+  obsFrom: Int32Array;
+  obsTo: Int32Array;
+  termPtr: Int32Array;
+  termSlot: number[];
+  termCoef: number[];
+}
+
+/** Prepared of an earlier pass over the same points and options, with from[k] = its number of this pass's observation k. */
+interface Reuse {
+  prepared: Prepared;
+  from: Int32Array;
 }
 
 /**
@@ -552,7 +592,7 @@ interface Downdate {
 /** One least-squares adjustment (no iteration). `obsPath` maps observation positions to the caller's indices for messages. */
 function adjustCore(
   input: AdjustmentInput, progress: (fraction: number, stage: AdjustmentStage) => void, obsPath: number[], ordering?: Ordering, screen = false, screenBudget = 0,
-  downdated?: Downdate,
+  downdated?: Downdate, reuse?: Reuse,
 ): CoreResult {
   const options = input.options ?? {};
   const alpha = options.alpha ?? 0.05;
@@ -567,8 +607,9 @@ function adjustCore(
   if (!(alpha > 0 && alpha < 1)) throw invalid('options.alpha', 'alpha must lie in (0, 1)');
   if (!(alpha0 > 0 && alpha0 < 1)) throw invalid('options.alphaSnooping', 'alphaSnooping must lie in (0, 1)');
 
-  const pointIndex = new Map<string, number>();
-  points.forEach((pt, i) => {
+  // With `reuse` the points are those of the earlier pass (a removed weighted fixed value only drops fixedC and sigmaFixed).
+  const pointIndex = reuse ? reuse.prepared.pointIndex : new Map<string, number>();
+  if (!reuse) points.forEach((pt, i) => {
     if (typeof pt.code !== 'string' || pt.code.length === 0) throw invalid(`points[${i}].code`, 'point code is empty');
     if (pointIndex.has(pt.code)) throw invalid(`points[${i}].code`, `duplicate point code ${pt.code}`);
     pointIndex.set(pt.code, i);
@@ -602,17 +643,46 @@ function adjustCore(
   const termPtr = new Int32Array(nObs + 1);
   const termSlot: number[] = [];
   const termCoef: number[] = [];
-  observations.forEach((ob, k) => {
-    const path = obsPathOf(k);
+  const countUses = (ob: NetworkObservation): void => {
+    const terms: ParameterTerm[] = ob.datumOffset !== undefined ? [{ name: ob.datumOffset, coefficient: 1 }, ...(ob.terms ?? [])] : (ob.terms ?? []);
+    for (const term of terms) {
+      const o = offsetIndex.get(term.name);
+      const j = sharedIndex.get(term.name);
+      if (o !== undefined) offsetUse[o]++;
+      else if (j !== undefined) sharedUse[j]++;
+    }
+  };
+  if (reuse) {
+    const { prepared: pr, from } = reuse;
+    for (let k = 0; k < nObs; k++) {
+      const k1 = from[k];
+      obsFrom[k] = pr.obsFrom[k1];
+      obsTo[k] = pr.obsTo[k1];
+      for (let p = pr.termPtr[k1]; p < pr.termPtr[k1 + 1]; p++) {
+        termSlot.push(pr.termSlot[p]);
+        termCoef.push(pr.termCoef[p]);
+      }
+      termPtr[k + 1] = termSlot.length;
+      const ob = observations[k];
+      if (ob.datumOffset !== undefined || (ob.terms !== undefined && ob.terms.length > 0)) countUses(ob);
+    }
+  }
+  // The field path of a message is only written when there is one to give (no string per observation otherwise).
+  if (!reuse) observations.forEach((ob, k) => {
     const f = pointIndex.get(ob.from);
     const t = pointIndex.get(ob.to);
-    if (f === undefined) throw invalid(`${path}.from`, `unknown point ${ob.from}`);
-    if (t === undefined) throw invalid(`${path}.to`, `unknown point ${ob.to}`);
-    if (f === t) throw invalid(`${path}.to`, 'observation joins a point to itself');
-    if (!Number.isFinite(ob.deltaC)) throw invalid(`${path}.deltaC`, 'deltaC is not finite');
-    if (!(Number.isFinite(ob.sigma) && ob.sigma > 0)) throw invalid(`${path}.sigma`, 'sigma must be > 0');
+    if (f === undefined) throw invalid(`${obsPathOf(k)}.from`, `unknown point ${ob.from}`);
+    if (t === undefined) throw invalid(`${obsPathOf(k)}.to`, `unknown point ${ob.to}`);
+    if (f === t) throw invalid(`${obsPathOf(k)}.to`, 'observation joins a point to itself');
+    if (!Number.isFinite(ob.deltaC)) throw invalid(`${obsPathOf(k)}.deltaC`, 'deltaC is not finite');
+    if (!(Number.isFinite(ob.sigma) && ob.sigma > 0)) throw invalid(`${obsPathOf(k)}.sigma`, 'sigma must be > 0');
     obsFrom[k] = f;
     obsTo[k] = t;
+    if (ob.datumOffset === undefined && (ob.terms === undefined || ob.terms.length === 0)) {
+      termPtr[k + 1] = termSlot.length;
+      return;
+    }
+    const path = obsPathOf(k);
     const terms: ParameterTerm[] = ob.datumOffset !== undefined ? [{ name: ob.datumOffset, coefficient: 1 }, ...(ob.terms ?? [])] : (ob.terms ?? []);
     const seen = new Map<number, number>();
     terms.forEach((term, s) => {
@@ -691,9 +761,12 @@ function adjustCore(
     if (m > maxTerms) maxTerms = m;
     maxTriplets += (m * (m + 1)) / 2;
   }
-  const tr = new Int32Array(maxTriplets);
-  const tc = new Int32Array(maxTriplets);
-  const tv = new Float64Array(maxTriplets);
+  // After screened removals the factor and inverse are the screening's (with its downdates): N is not assembled, its
+  // products come from the rows of A (normalTimes).
+  const assemble = !downdated;
+  const tr = new Int32Array(assemble ? maxTriplets : 0);
+  const tc = new Int32Array(assemble ? maxTriplets : 0);
+  const tv = new Float64Array(assemble ? maxTriplets : 0);
   let nt = 0;
   const rhs = new Float64Array(nUnknowns);
   const idx = new Int32Array(Math.max(maxTerms, 2));
@@ -727,7 +800,7 @@ function adjustCore(
     const p = weight[k];
     for (let s = 0; s < m; s++) {
       rhs[idx[s]] += p * coef[s] * l0[k];
-      for (let t = s; t < m; t++) {
+      if (assemble) for (let t = s; t < m; t++) {
         const a = idx[s] < idx[t] ? idx[s] : idx[t];
         const b = idx[s] < idx[t] ? idx[t] : idx[s];
         tr[nt] = a; tc[nt] = b; tv[nt] = p * coef[s] * coef[t]; nt++;
@@ -742,14 +815,32 @@ function adjustCore(
     pseudoWeight[s] = 1 / (sf * sf);
     pseudoL0[s] = (points[i].fixedC as number) - c0[i];
     rhs[u] += pseudoWeight[s] * pseudoL0[s];
-    tr[nt] = u; tc[nt] = u; tv[nt] = pseudoWeight[s]; nt++;
+    if (assemble) { tr[nt] = u; tc[nt] = u; tv[nt] = pseudoWeight[s]; nt++; }
   });
   // Zero-prior pseudo-observations of the shared parameters: s_j = 0 ± σ_j.
   shared.forEach((sp, j) => {
     const u = firstSharedUnknown + j;
-    tr[nt] = u; tc[nt] = u; tv[nt] = 1 / (sp.sigma * sp.sigma); nt++;
+    if (assemble) { tr[nt] = u; tc[nt] = u; tv[nt] = 1 / (sp.sigma * sp.sigma); nt++; }
   });
-  const normal = symmetricFromTriplets(nUnknowns, tr, tc, tv, nt);
+  const normal = assemble ? symmetricFromTriplets(nUnknowns, tr, tc, tv, nt) : null;
+  /** b − N·x with N = AᵀPA + the pseudo-observations' weights + the shared parameters' prior weights, row by row. */
+  const normalResidual = (x: Float64Array, b: Float64Array): Float64Array => {
+    if (normal) return symmetricResidual(normal, x, b);
+    const out = Float64Array.from(b);
+    for (let k = 0; k < nObs; k++) {
+      const t = weight[k] * rowTimes(k, x);
+      for (let p = aPtr[k]; p < aPtr[k + 1]; p++) out[aCol[p]] -= aVal[p] * t;
+    }
+    weightedIdx.forEach((i, s) => {
+      const u = unknownOfPoint[i];
+      out[u] -= pseudoWeight[s] * x[u];
+    });
+    shared.forEach((sp, j) => {
+      const u = firstSharedUnknown + j;
+      out[u] -= x[u] / (sp.sigma * sp.sigma);
+    });
+    return out;
+  };
 
   let factor: LdlFactor;
   let solveN: (b: Float64Array) => Float64Array;
@@ -759,7 +850,25 @@ function adjustCore(
     const { zs, cs } = downdated;
     solveN = (b) => {
       const x = solve(factor, b);
-      for (let s2 = 0; s2 < zs.length; s2++) {
+      // Four z_s per sweep: their products with b, then x += Σ c_s (z_sᵀb) z_s.
+      let s2 = 0;
+      for (; s2 + 4 <= zs.length; s2 += 4) {
+        const [z0, z1, z2, z3] = [zs[s2], zs[s2 + 1], zs[s2 + 2], zs[s2 + 3]];
+        let d0 = 0;
+        let d1 = 0;
+        let d2 = 0;
+        let d3 = 0;
+        for (let u = 0; u < nUnknowns; u++) {
+          const bu = b[u];
+          d0 += z0[u] * bu;
+          d1 += z1[u] * bu;
+          d2 += z2[u] * bu;
+          d3 += z3[u] * bu;
+        }
+        const [f0, f1, f2, f3] = [cs[s2] * d0, cs[s2 + 1] * d1, cs[s2 + 2] * d2, cs[s2 + 3] * d3];
+        for (let u = 0; u < nUnknowns; u++) x[u] += f0 * z0[u] + f1 * z1[u] + f2 * z2[u] + f3 * z3[u];
+      }
+      for (; s2 < zs.length; s2++) {
         const zv = zs[s2];
         let d = 0;
         for (let u = 0; u < nUnknowns; u++) d += zv[u] * b[u];
@@ -769,11 +878,12 @@ function adjustCore(
       return x;
     };
   } else {
+    const full = normal as SymmetricCsc; // assembled whenever there is no downdate
     progress(0.05, 'ordering');
-    const usable = ordering && ordering.perm.length === nUnknowns ? ordering : approximateMinimumDegree(normal, (f) => progress(0.05 + 0.15 * f, 'ordering'));
+    const usable = ordering && ordering.perm.length === nUnknowns ? ordering : approximateMinimumDegree(full, (f) => progress(0.05 + 0.15 * f, 'ordering'));
     progress(0.2, 'factorisation');
     try {
-      factor = factorize(normal, { ordering: usable, onColumns: (f) => progress(0.2 + 0.25 * f, 'factorisation') });
+      factor = factorize(full, { ordering: usable, onColumns: (f) => progress(0.2 + 0.25 * f, 'factorisation') });
     } catch (e) {
       if (e instanceof SingularMatrixError) {
         throw new AdjustmentInputError(
@@ -790,7 +900,7 @@ function adjustCore(
   progress(0.45, 'solution');
   const dx = solveN(rhs);
   // One step of iterative refinement recovers the digits lost to the condition number of N (and to the downdates).
-  const resid = symmetricResidual(normal, dx, rhs);
+  const resid = normalResidual(dx, rhs);
   const corr = solveN(resid);
   for (let j = 0; j < nUnknowns; j++) dx[j] += corr[j];
 
@@ -827,9 +937,33 @@ function adjustCore(
   if (lowRank) {
     obsLowRank = new Float64Array(nObs);
     diagLowRank = new Float64Array(nUnknowns);
-    for (let s2 = 0; s2 < lowRank.zs.length; s2++) {
-      const zv = lowRank.zs[s2];
-      const c = lowRank.cs[s2];
+    const { zs, cs } = lowRank;
+    // Four z_s per sweep over the rows of A.
+    let s2 = 0;
+    for (; s2 + 4 <= zs.length; s2 += 4) {
+      const [z0, z1, z2, z3] = [zs[s2], zs[s2 + 1], zs[s2 + 2], zs[s2 + 3]];
+      const [c0s, c1s, c2s, c3s] = [cs[s2], cs[s2 + 1], cs[s2 + 2], cs[s2 + 3]];
+      for (let u = 0; u < nUnknowns; u++) diagLowRank[u] += c0s * z0[u] * z0[u] + c1s * z1[u] * z1[u] + c2s * z2[u] * z2[u] + c3s * z3[u] * z3[u];
+      for (let k = 0; k < nObs; k++) {
+        let d0 = 0;
+        let d1 = 0;
+        let d2 = 0;
+        let d3 = 0;
+        for (let p = aPtr[k]; p < aPtr[k + 1]; p++) {
+          const col = aCol[p];
+          const av = aVal[p];
+          d0 += av * z0[col];
+          d1 += av * z1[col];
+          d2 += av * z2[col];
+          d3 += av * z3[col];
+        }
+        obsLowRank[k] += c0s * d0 * d0 + c1s * d1 * d1 + c2s * d2 * d2 + c3s * d3 * d3;
+      }
+      progress(0.8, 'statistical tests');
+    }
+    for (; s2 < zs.length; s2++) {
+      const zv = zs[s2];
+      const c = cs[s2];
       for (let u = 0; u < nUnknowns; u++) diagLowRank[u] += c * zv[u] * zv[u];
       for (let k = 0; k < nObs; k++) {
         const d = rowTimes(k, zv);
@@ -842,6 +976,7 @@ function adjustCore(
   const r = new Float64Array(nObs);
   const sharedEffect = new Float64Array(nObs);
   let vtpv = 0;
+  const { inversePerm } = z.factor.ordering;
   for (let k = 0; k < nObs; k++) {
     const m = obsUnknowns(k);
     let ax = 0;
@@ -849,7 +984,9 @@ function adjustCore(
     for (let s = 0; s < m; s++) {
       ax += coef[s] * dx[idx[s]];
       if (idx[s] >= firstSharedUnknown) sharedEffect[k] += coef[s] * dx[idx[s]];
-      for (let t = 0; t < m; t++) qaa += coef[s] * coef[t] * inverseEntry(z, idx[s], idx[t]);
+      // Q is symmetric: each off-diagonal pair read once, counted twice.
+      qaa += coef[s] * coef[s] * z.diag[inversePerm[idx[s]]];
+      for (let t = s + 1; t < m; t++) qaa += 2 * coef[s] * coef[t] * inverseEntry(z, idx[s], idx[t]);
     }
     if (obsLowRank) qaa += obsLowRank[k];
     if ((k & 16383) === 16383) progress(0.8 + (0.05 * k) / nObs, 'statistical tests');
@@ -924,11 +1061,23 @@ function adjustCore(
       const aIdx: number[] = [];
       for (let u = 0; u < nUnknowns; u++) if (a[u] !== 0) aIdx.push(u);
       const z = solve(factor, a);
+      // z += Σ_j c_j (z_jᵀa) z_j, four earlier z_j per sweep over z.
+      const fs = new Float64Array(zs.length);
       for (let j = 0; j < zs.length; j++) {
         let d = 0;
         for (const u of aIdx) d += zs[j][u] * a[u];
-        const f = cs[j] * d;
-        if (f !== 0) for (let u = 0; u < nUnknowns; u++) z[u] += f * zs[j][u];
+        fs[j] = cs[j] * d;
+      }
+      let j4 = 0;
+      for (; j4 + 4 <= zs.length; j4 += 4) {
+        const [z0, z1, z2, z3] = [zs[j4], zs[j4 + 1], zs[j4 + 2], zs[j4 + 3]];
+        const [f0, f1, f2, f3] = [fs[j4], fs[j4 + 1], fs[j4 + 2], fs[j4 + 3]];
+        for (let u = 0; u < nUnknowns; u++) z[u] += f0 * z0[u] + f1 * z1[u] + f2 * z2[u] + f3 * z3[u];
+      }
+      for (; j4 < zs.length; j4++) {
+        const zj = zs[j4];
+        const f = fs[j4];
+        if (f !== 0) for (let u = 0; u < nUnknowns; u++) z[u] += f * zj[u];
       }
       const c = rp[best] / rr[best];
       if (rr[best] < minRedundancy) minRedundancy = rr[best];
@@ -953,42 +1102,51 @@ function adjustCore(
     return { residual, sigmaResidual, redundancy: rr, standardizedResidual: w };
   };
 
-  progress(0.99, 'statistical tests');
-  const outPoints: AdjustedPoint[] = points.map((pt, i) => {
-    const u = unknownOfPoint[i];
-    const c = u >= 0 ? c0[i] + dx[u] : c0[i];
-    const sigma = u >= 0 ? Math.sqrt(Math.max(entry(u, u), 0)) : 0;
-    const res: AdjustedPoint = {
-      code: pt.code,
-      c,
-      sigma,
-      sigmaScaled: sigma0 === null ? null : sigma * sigma0,
-      datum: role[i] === HELD ? 'held' : role[i] === WEIGHTED ? 'weighted' : 'free',
-    };
-    if (pt.fixedC !== undefined) res.knownC = pt.fixedC;
-    return res;
-  });
-
-  progress(0.99, 'statistical tests');
-  const outObs: AdjustedObservation[] = observations.map((ob, k) => {
-    if ((k & 65535) === 65535) progress(0.99, 'statistical tests');
-    const a = analyse(v[k], ob.sigma, r[k]);
-    const res: AdjustedObservation = {
-      index: k,
-      from: ob.from,
-      to: ob.to,
-      kind: ob.kind ?? 'levelling',
-      deltaC: ob.deltaC,
-      ...a,
-      suspected: false,
-      removedAtStep: null,
-      sigmaAdjusted: ob.sigma * Math.sqrt(Math.max(1 - a.redundancy, 0)),
-      sharedEffect: sharedEffect[k],
-      residualTotal: v[k] - sharedEffect[k],
-    };
-    if (ob.id !== undefined) res.id = ob.id;
-    return res;
-  });
+  // The point and observation lists are built when first read: the pass that screens for outliers is followed by the
+  // adjustment without them, and then only that one's lists are ever read.
+  const adjustedC = (i: number): number => (unknownOfPoint[i] >= 0 ? c0[i] + dx[unknownOfPoint[i]] : c0[i]);
+  const shapePoints = (): AdjustedPoint[] => {
+    progress(0.99, 'statistical tests');
+    return points.map((pt, i) => {
+      const u = unknownOfPoint[i];
+      const sigma = u >= 0 ? Math.sqrt(Math.max(entry(u, u), 0)) : 0;
+      const res: AdjustedPoint = {
+        code: pt.code,
+        c: adjustedC(i),
+        sigma,
+        sigmaScaled: sigma0 === null ? null : sigma * sigma0,
+        datum: role[i] === HELD ? 'held' : role[i] === WEIGHTED ? 'weighted' : 'free',
+      };
+      if (pt.fixedC !== undefined) res.knownC = pt.fixedC;
+      return res;
+    });
+  };
+  const shapeObservations = (): AdjustedObservation[] => {
+    progress(0.99, 'statistical tests');
+    return observations.map((ob, k) => {
+      if ((k & 65535) === 65535) progress(0.99, 'statistical tests');
+      const rk = r[k] < REDUNDANCY_FLOOR ? 0 : Math.min(r[k], 1);
+      const sigmaResidual = ob.sigma * Math.sqrt(rk);
+      const res: AdjustedObservation = {
+        index: k,
+        from: ob.from,
+        to: ob.to,
+        kind: ob.kind ?? 'levelling',
+        deltaC: ob.deltaC,
+        residual: v[k],
+        sigmaResidual,
+        redundancy: rk,
+        standardizedResidual: rk > 0 ? v[k] / sigmaResidual : null,
+        suspected: false,
+        removedAtStep: null,
+        sigmaAdjusted: ob.sigma * Math.sqrt(Math.max(1 - rk, 0)),
+        sharedEffect: sharedEffect[k],
+        residualTotal: v[k] - sharedEffect[k],
+      };
+      if (ob.id !== undefined) res.id = ob.id;
+      return res;
+    });
+  };
 
   progress(0.99, 'statistical tests');
   const outFixed = weightedIdx.map((i, s) => ({
@@ -1024,16 +1182,22 @@ function adjustCore(
     return {
       from: d.from,
       to: d.to,
-      deltaC: outPoints[t].c - outPoints[f].c,
+      deltaC: adjustedC(t) - adjustedC(f),
       sigma: Math.sqrt(Math.max(qff + qtt - 2 * qft, 0)),
       sigmaIgnoringCovariance: Math.sqrt(Math.max(qff, 0) + Math.max(qtt, 0)),
     };
   });
 
+  let outPoints: AdjustedPoint[] | undefined;
+  let outObs: AdjustedObservation[] | undefined;
   const result: CoreResult = {
     constraint,
-    points: outPoints,
-    observations: outObs,
+    get points() {
+      return (outPoints ??= shapePoints());
+    },
+    get observations() {
+      return (outObs ??= shapeObservations());
+    },
     fixedPointObservations: outFixed,
     datumOffsets: outOffsets,
     sharedParameters: outShared,
@@ -1050,6 +1214,7 @@ function adjustCore(
     screened,
   };
   if (downdate) result.downdate = downdate;
+  if (screen) result.prepared = { pointIndex, obsFrom, obsTo, termPtr, termSlot, termCoef };
   if (heldPoint !== undefined) result.heldPoint = heldPoint;
   return result;
 }
