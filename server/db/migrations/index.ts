@@ -25,6 +25,7 @@ import { JobsProgress1766080000000 } from './1766080000000-jobs-progress';
 import { ChainCertificates1766100000000 } from './1766100000000-chain-certificates';
 import { CampaignListScope1766110000000 } from './1766110000000-campaign-list-scope';
 import { SeriesOverviewCoarse1766130000000 } from './1766130000000-series-overview-coarse';
+import { TokenChangeNotify1766150000000 } from './1766150000000-token-change-notify';
 
 // Every migration, in order. Add new ones at the end (file name: <timestamp>-<what>.ts).
 export const migrations = [
@@ -55,4 +56,5 @@ export const migrations = [
   ChainCertificates1766100000000,
   CampaignListScope1766110000000,
   SeriesOverviewCoarse1766130000000,
+  TokenChangeNotify1766150000000,
 ];
