@@ -265,3 +265,10 @@ export function forgetUserTokens(ds: DataSource, userId: string): void {
 export function forgetToken(ds: DataSource, tokenId: string): void {
   for (const c of caches.get(ds) ?? []) c.dropToken(tokenId);
 }
+
+/** For /api/health: 'on' while this process's cache listens, 'off' while it reads every token from the database. */
+export function tokenCacheState(ds: DataSource): 'on' | 'off' | undefined {
+  const set = caches.get(ds);
+  if (!set?.size) return undefined;
+  return [...set].some((c) => c.enabled) ? 'on' : 'off';
+}
