@@ -10,14 +10,15 @@ import type { Actor } from '../auth/actor';
 // 1766150000000-token-change-notify), whichever connection made it; this process LISTENs on one connection of its own
 // and drops the entries concerned. Changes made through this process also drop them at once after their commit.
 //
-// The race between a notification and the next request is closed by a fence: before a cached entry is used, a
-// `SELECT 1` written on the listening connection after the request arrived must have been answered. PostgreSQL marks
-// every listening session at the commit of a notifying transaction (before the committing client gets its answer)
-// and sends a marked session's notifications before the ReadyForQuery of its next statement (PostgreSQL 15 source,
-// src/backend/tcop/postgres.c, PostgresMain: "if any notifies were received during the just-finished transaction,
-// they'll be seen by the client before ReadyForQuery is"; commands/async.c, SignalBackends called from
-// AtCommit_Notify). node-postgres handles the messages of one connection in order, so the entries a change committed
-// before the request are gone when the fence opens. Concurrent requests share one fence round trip.
+// The race between a notification and the next request is closed by a fence: before a cached entry is used, a ping
+// (`SELECT pg_backend_pid()`) written on the listening connection after the request arrived must have been answered.
+// PostgreSQL signals every listening session right after a notifying transaction commits, before the committing
+// client gets its answer (src/backend/commands/async.c, header comment, step 5: SignalBackends from AtCommit_Notify),
+// and a signalled session sends its notifications before the ReadyForQuery of its next statement
+// (src/backend/tcop/postgres.c, PostgresMain: "if any notifies were received during the just-finished transaction,
+// they'll be seen by the client before ReadyForQuery is"). node-postgres handles the messages of one connection in
+// order, so the entries a change committed before the request are gone when the fence opens. Concurrent requests
+// share one fence round trip. tests/api/token-cache.test.ts and two-processes.test.ts fail without the fence.
 //
 // A lookup made while a change was being applied is not stored: each lookup notes the generation before its SELECT
 // and stores its row only if no entry was dropped since. Without the listening connection (lost, or not yet up) the
@@ -62,6 +63,8 @@ export class TokenCache {
   private retryMs: number;
   private generation = 0;
   private client: pg.Client | null = null;
+  /** the server process of the listening session */
+  private pid = 0;
   private listening = false;
   private stopped = false;
   private retryTimer: NodeJS.Timeout | undefined;
@@ -166,7 +169,14 @@ export class TokenCache {
       if (this.waiting === p) this.waiting = null;
       const c = this.client;
       if (!c || !this.enabled) throw new Error('token cache: not listening');
-      const ping = this.timed(c, c.query('SELECT 1').then(() => undefined));
+      // The same server session must answer (a transaction-pooling proxy in between could hand the ping to another).
+      const ping = this.timed(c, c.query<{ pid: number }>('SELECT pg_backend_pid() AS pid').then(({ rows }) => {
+        if (rows[0]?.pid !== this.pid) {
+          const err = new Error('token cache: the ping was answered by another server session than the one listening');
+          this.lost(c, err);
+          throw err;
+        }
+      }));
       this.inFlight = ping;
       const done = () => {
         if (this.inFlight === ping) this.inFlight = null;
@@ -204,6 +214,9 @@ export class TokenCache {
     try {
       await c.connect();
       await c.query(`LISTEN ${TOKEN_CHANGE_CHANNEL}`);
+      const { rows } = await c.query<{ pid: number; listening: boolean }>('SELECT pg_backend_pid() AS pid, $1 = ANY (pg_listening_channels()) AS listening', [TOKEN_CHANGE_CHANNEL]);
+      if (!rows[0]?.listening) throw new Error('token cache: LISTEN did not take effect on this session (a transaction-pooling proxy in between?)');
+      this.pid = rows[0].pid;
     } catch (e) {
       this.lost(c, e as Error);
       return;
