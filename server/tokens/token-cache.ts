@@ -67,6 +67,7 @@ export class TokenCache {
   private pid = 0;
   private listening = false;
   private stopped = false;
+  private downReported = false;
   private retryTimer: NodeJS.Timeout | undefined;
   /** the fence whose ping was written last (settles at the latest after fenceTimeoutMs) */
   private inFlight: Promise<void> | null = null;
@@ -214,7 +215,7 @@ export class TokenCache {
     try {
       await c.connect();
       await c.query(`LISTEN ${TOKEN_CHANGE_CHANNEL}`);
-      const { rows } = await c.query<{ pid: number; listening: boolean }>('SELECT pg_backend_pid() AS pid, $1 = ANY (pg_listening_channels()) AS listening', [TOKEN_CHANGE_CHANNEL]);
+      const { rows } = await c.query<{ pid: number; listening: boolean }>('SELECT pg_backend_pid() AS pid, EXISTS (SELECT 1 FROM pg_listening_channels() ch WHERE ch = $1) AS listening', [TOKEN_CHANGE_CHANNEL]);
       if (!rows[0]?.listening) throw new Error('token cache: LISTEN did not take effect on this session (a transaction-pooling proxy in between?)');
       this.pid = rows[0].pid;
     } catch (e) {
@@ -224,6 +225,7 @@ export class TokenCache {
     if (this.client !== c || this.stopped) return;
     this.clear(); // nothing learnt before LISTEN took effect is kept
     this.listening = true;
+    this.downReported = false;
     this.retryMs = this.firstRetryMs;
     this.opts.onState?.(true);
   }
@@ -231,11 +233,12 @@ export class TokenCache {
   /** Off and empty at once; a new connection after a delay. */
   private lost(c: pg.Client, err: Error): void {
     if (this.client !== c) return;
-    const was = this.listening;
     this.off();
     c.end().catch(() => undefined);
     if (this.stopped) return;
-    if (was) this.opts.onState?.(false, err);
+    // told once per outage (also when the very first attempt fails), not at every retry
+    if (!this.downReported) this.opts.onState?.(false, err);
+    this.downReported = true;
     this.retryTimer = setTimeout(() => void this.connect(), this.retryMs);
     this.retryTimer.unref();
     this.retryMs = Math.min(this.retryMs * 2, MAX_RETRY_MS);
