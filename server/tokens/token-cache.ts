@@ -219,10 +219,15 @@ export class TokenCache {
       if (!rows[0]?.listening) throw new Error('token cache: LISTEN did not take effect on this session (a transaction-pooling proxy in between?)');
       this.pid = rows[0].pid;
     } catch (e) {
-      this.lost(c, e as Error);
+      if (this.client === c) this.lost(c, e as Error);
+      else c.end().catch(() => undefined);
       return;
     }
-    if (this.client !== c || this.stopped) return;
+    if (this.client !== c || this.stopped) {
+      // stopped (or replaced) while connecting
+      c.end().catch(() => undefined);
+      return;
+    }
     this.clear(); // nothing learnt before LISTEN took effect is kept
     this.listening = true;
     this.downReported = false;
