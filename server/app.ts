@@ -20,6 +20,7 @@ import { mountRateLimits } from './http/rate-limits';
 import { armFaultPoint } from './dev/fault-point';
 import { mountRoutes } from './http/route';
 import { apiRoutes } from './routes';
+import { attachTokenCache, TokenCache } from './tokens/token-cache';
 import { actorFromToken } from './tokens/tokens.service';
 import { findActorByUserId } from './users/users.service';
 
@@ -118,6 +119,16 @@ export function createApp(deps: AppDeps) {
   });
   app.locals.closeSessionPool = () => pool.end();
 
+  // Resolved API tokens, kept by this process while it listens for their changes (server/tokens/token-cache.ts);
+  // stopped with the data source.
+  const tokenCache = new TokenCache({
+    connectionString: (dataSource.options as { url?: string }).url ?? config.databaseUrl,
+    onState: (listening, err) => (listening ? logger.info('token cache on (listening for token changes)') : logger.warn({ err }, 'token cache off until the listening connection is back')),
+  });
+  attachTokenCache(dataSource, tokenCache);
+  app.locals.tokenCache = tokenCache;
+  app.locals.tokenCacheReady = tokenCache.start();
+
   const strategy = createSamlStrategy(config, dataSource);
   passport.serializeUser((user, done) => done(null, (user as { id: string }).id));
   passport.deserializeUser((id: string, done) => done(null, { id }));
@@ -127,7 +138,7 @@ export function createApp(deps: AppDeps) {
     try {
       const secret = bearerSecret(req);
       if (secret !== null) {
-        req.actor = await actorFromToken(dataSource, secret);
+        req.actor = await actorFromToken(dataSource, secret, tokenCache);
       } else if (req.user && (req.user as { id?: string }).id) {
         req.actor = await findActorByUserId(dataSource, (req.user as { id: string }).id);
       } else {

@@ -7,6 +7,7 @@ import type { Actor } from '../auth/actor';
 import { authorize } from '../auth/permissions';
 import { ApiTokenEntity, UserEntity, type ApiTokenRow, type UserRow } from '../db/entities/core.entities';
 import { Invalid, NotFound } from '../http/errors';
+import { forgetToken, type TokenCache } from './token-cache';
 
 // Personal API tokens: the secret is shown once; only its SHA-256 is stored. Every token expires (chosen at
 // creation, at most a year: OWASP ASVS 4.0.3 V3.5 token-based session management, common practice for the
@@ -43,21 +44,37 @@ export async function issueToken(dataSource: DataSource, userId: string, name: s
   });
 }
 
-export async function actorFromToken(dataSource: DataSource, secret: string): Promise<Actor | null> {
+export async function actorFromToken(dataSource: DataSource, secret: string, cache: TokenCache | null = null): Promise<Actor | null> {
   if (!secret.startsWith(TOKEN_PREFIX)) return null;
-  // One indexed statement per request (token_hash is UNIQUE): the token and its person together, checked every
-  // time (revocation, expiry and deactivation take effect at once; nothing is cached between requests).
-  const [row]: { token_id: string; last_used_at: Date | null; user_id: string; email: string; display_name: string; role: Actor['role']; institute_id: string | null }[] = await dataSource.query(
-    `SELECT t.id AS token_id, t.last_used_at, u.id AS user_id, u.email, u.display_name, u.role, u.institute_id
+  const hash = hashToken(secret);
+  // A cached entry is never stale (token-cache.ts): changes drop it before it is served; its expiry is checked here.
+  const hit = cache ? await cache.get(hash) : null;
+  if (hit) {
+    if (hit.lastUsedAt === null || Date.now() - hit.lastUsedAt > 60_000) {
+      hit.lastUsedAt = Date.now();
+      await dataSource.getRepository(ApiTokenEntity).update({ id: hit.tokenId }, { lastUsedAt: new Date(hit.lastUsedAt) });
+    }
+    return { ...hit.actor };
+  }
+  const mark = cache?.mark() ?? 0;
+  const startedAt = Date.now();
+  // One indexed statement (token_hash is UNIQUE): the token and its person together; revocation, expiry and
+  // deactivation are checked by the statement itself.
+  const [row]: { token_id: string; last_used_at: Date | null; expires_at: Date; user_id: string; email: string; display_name: string; role: Actor['role']; institute_id: string | null }[] = await dataSource.query(
+    `SELECT t.id AS token_id, t.last_used_at, t.expires_at, u.id AS user_id, u.email, u.display_name, u.role, u.institute_id
        FROM api_token t JOIN app_user u ON u.id = t.user_id
       WHERE t.token_hash = $1 AND t.revoked_at IS NULL AND t.expires_at > now() AND u.deactivated_at IS NULL`,
-    [hashToken(secret)],
+    [hash],
   );
   if (!row) return null;
-  if (!row.last_used_at || Date.now() - row.last_used_at.getTime() > 60_000) {
-    await dataSource.getRepository(ApiTokenEntity).update({ id: row.token_id }, { lastUsedAt: new Date() });
+  let lastUsedAt = row.last_used_at ? row.last_used_at.getTime() : null;
+  if (lastUsedAt === null || Date.now() - lastUsedAt > 60_000) {
+    lastUsedAt = Date.now();
+    await dataSource.getRepository(ApiTokenEntity).update({ id: row.token_id }, { lastUsedAt: new Date(lastUsedAt) });
   }
-  return { userId: row.user_id, email: row.email, displayName: row.display_name, role: row.role, instituteId: row.institute_id, via: 'token' };
+  const actor: Actor = { userId: row.user_id, email: row.email, displayName: row.display_name, role: row.role, instituteId: row.institute_id, via: 'token' };
+  cache?.put(hash, { tokenId: row.token_id, actor: { ...actor }, expiresAt: row.expires_at.getTime(), lastUsedAt, storedAt: startedAt }, mark);
+  return actor;
 }
 
 const ownerOf = (u: UserRow | undefined) => (u ? { id: u.id, email: u.email, displayName: u.displayName } : null);
@@ -71,6 +88,7 @@ export function createTokensService(dataSource: DataSource) {
       if (!row.revokedAt) await repo.update({ id }, { revokedAt: new Date() });
       await recordAudit(m, actor, { action: 'token.revoked', entityType: 'api-token', entityId: id, details: { userId: row.userId } });
     });
+    forgetToken(dataSource, id);
   }
   return {
     async listOwn(actor: Actor) {

@@ -6,6 +6,7 @@ import type { Actor } from '../auth/actor';
 import { authorize } from '../auth/permissions';
 import { InstituteEntity, UserEntity, type InstituteRow, type UserRow } from '../db/entities/core.entities';
 import { Conflict, Invalid, NotFound } from '../http/errors';
+import { forgetUserTokens } from '../tokens/token-cache';
 
 export function toInstituteDto(i: InstituteRow | null | undefined) {
   return i ? { id: i.id, code: i.code, name: i.name, city: i.city, kind: i.kind } : null;
@@ -34,7 +35,7 @@ export async function upsertUserFromSignIn(
   dataSource: DataSource,
   input: { email: string; displayName: string; role: Role; instituteCode: string | null },
 ): Promise<{ user: UserRow; assertedDiffers: boolean }> {
-  return dataSource.transaction(async (m) => {
+  const done = await dataSource.transaction(async (m) => {
     const institute = input.instituteCode
       ? await m.getRepository(InstituteEntity).findOneBy({ code: input.instituteCode })
       : null;
@@ -57,6 +58,9 @@ export async function upsertUserFromSignIn(
     });
     return { user, assertedDiffers };
   });
+  // The display name may have changed (and the cached tokens of this person carry it).
+  forgetUserTokens(dataSource, done.user.id);
+  return done;
 }
 
 export async function findActorByUserId(dataSource: DataSource, userId: string): Promise<Actor | null> {
@@ -78,7 +82,7 @@ export function createUsersService(dataSource: DataSource) {
     },
     async update(actor: Actor, id: string, patch: { role?: Role; instituteId?: string | null }) {
       authorize(actor, 'users:write');
-      return dataSource.transaction(async (m) => {
+      const dto = await dataSource.transaction(async (m) => {
         const repo = m.getRepository(UserEntity);
         const user = await repo.findOne({ where: { id }, relations: { institute: true } });
         if (!user) throw new NotFound('User');
@@ -98,12 +102,14 @@ export function createUsersService(dataSource: DataSource) {
         await recordAudit(m, actor, { action: 'user.updated', entityType: 'user', entityId: id, details: { before, after } });
         return toUserDto(fresh);
       });
+      forgetUserTokens(dataSource, id);
+      return dto;
     },
     /** Deactivation ends everything at once: sign-in refused, every session deleted, every token revoked. */
     async setActive(actor: Actor, id: string, active: boolean) {
       authorize(actor, 'users:write');
       if (!active && id === actor.userId) throw new Conflict('You cannot deactivate yourself; ask another administrator.');
-      return dataSource.transaction(async (m) => {
+      const dto = await dataSource.transaction(async (m) => {
         const repo = m.getRepository(UserEntity);
         const user = await repo.findOne({ where: { id }, relations: { institute: true } });
         if (!user) throw new NotFound('User');
@@ -120,6 +126,8 @@ export function createUsersService(dataSource: DataSource) {
         const fresh = await repo.findOne({ where: { id }, relations: { institute: true } });
         return toUserDto(fresh!);
       });
+      forgetUserTokens(dataSource, id);
+      return dto;
     },
   };
 }

@@ -11,6 +11,10 @@ let t: TestApp;
 const tok: Record<string, string> = {};
 let counting = false;
 let statements = 0;
+// Rounds: statements that started while none of the request's statements was running (one waits for the other);
+// statements sent together while others are in flight share a round.
+let inFlight = 0;
+let rounds = 0;
 const original = PostgresQueryRunner.prototype.query;
 
 beforeAll(async () => {
@@ -20,8 +24,10 @@ beforeAll(async () => {
   tok.coord = await tokenFor(t, 'ansel.brandt@geopotential-office.invalid');
   tok.op = await tokenFor(t, 'person1@scaled-copy.invalid');
   PostgresQueryRunner.prototype.query = function (this: PostgresQueryRunner, ...args: Parameters<typeof original>) {
-    if (counting) statements++;
-    return original.apply(this, args);
+    if (!counting) return original.apply(this, args);
+    statements++;
+    if (inFlight++ === 0) rounds++;
+    return original.apply(this, args).finally(() => inFlight--);
   } as typeof original;
 });
 afterAll(async () => {
@@ -33,11 +39,12 @@ async function statementsFor(url: string, who: 'coord' | 'op') {
   // Warm once so one-time work (token last-used stamp, metadata) is not counted.
   await request(t.app).get(url).set('authorization', `Bearer ${tok[who]}`);
   statements = 0;
+  rounds = 0;
   counting = true;
   const res = await request(t.app).get(url).set('authorization', `Bearer ${tok[who]}`);
   counting = false;
   expect(res.status, `${url}: ${res.text.slice(0, 200)}`).toBe(200);
-  return { n: statements, items: (res.body.items ?? []).length as number };
+  return { n: statements, rounds, items: (res.body.items ?? []).length as number };
 }
 
 const lists = ['/api/v1/campaigns', '/api/v1/sites', '/api/v1/clocks', '/api/v1/network/benchmarks', '/api/v1/network/sections', '/api/v1/certificates'];
@@ -60,5 +67,19 @@ describe('SQL statements per list request', () => {
     const large = await statementsFor('/api/v1/campaigns?page=1&pageSize=100', 'op');
     expect(large.n).toBe(small.n);
     expect(large.items).toBeGreaterThan(small.items);
+  });
+});
+
+describe('SQL round trips of a campaign detail', () => {
+  it('reads the campaign, then clocks and link together, then result, timeline and closures together: 3 rounds', async () => {
+    const [{ id }] = await t.ds.query(
+      "SELECT c.id FROM campaign c JOIN app_user u ON u.institute_id = c.institute_id WHERE u.email = 'person1@scaled-copy.invalid' ORDER BY c.name LIMIT 1",
+    );
+    for (const who of ['op', 'coord'] as const) {
+      // the token is cached after the warm-up request, so its lookup sends no statement
+      const detail = await statementsFor(`/api/v1/campaigns/${id}`, who);
+      expect(detail.n).toBeGreaterThanOrEqual(6);
+      expect(detail.rounds).toBe(3);
+    }
   });
 });

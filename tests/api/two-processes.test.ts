@@ -150,4 +150,39 @@ describe('two HTTP processes behind haproxy', () => {
     const other = await tokenFor(t, 'mira.ostrowe@highridge-obs.invalid');
     expect((await fetch(`http://127.0.0.1:${ports[1]}/api/v1/uploads/${uploadId}/progress`, { headers: { authorization: `Bearer ${other}` } })).status).toBe(404);
   });
+
+  it('neither process serves a cached token after a change made through the other or in SQL', async () => {
+    const health = async (p: number) => (await (await fetch(`http://127.0.0.1:${p}/api/health`)).json()).tokenCache;
+    for (const p of ports) {
+      for (let i = 0; i < 200 && (await health(p)) !== 'on'; i++) await new Promise((r) => setTimeout(r, 25));
+      expect(await health(p)).toBe('on');
+    }
+    const admin = await tokenFor(t, 'yusra.holm@geopotential-office.invalid');
+    const [{ id: petra }] = await t.ds.query("SELECT id FROM app_user WHERE email = 'petra.lind@audit-bureau.invalid'");
+    const secret = await tokenFor(t, 'petra.lind@audit-bureau.invalid');
+    const meAt = (p: number, s: string) => fetch(`http://127.0.0.1:${p}/api/v1/me`, { headers: { authorization: `Bearer ${s}` } });
+    const patch = (p: number, body: object) => fetch(`http://127.0.0.1:${p}/api/v1/users/${petra}`, {
+      method: 'PATCH', headers: { authorization: `Bearer ${admin}`, 'content-type': 'application/json' }, body: JSON.stringify(body),
+    });
+    for (let round = 0; round < 10; round++) {
+      const [one, two] = round % 2 ? [ports[1], ports[0]] : [ports[0], ports[1]];
+      for (const p of ports) for (let i = 0; i < 2; i++) expect((await meAt(p, secret)).status).toBe(200); // cached on both
+      const role = round % 2 ? 'auditor' : 'coordinator';
+      expect((await patch(one, { role })).status).toBe(200);
+      expect((await (await meAt(two, secret)).json()).role).toBe(role);
+      expect((await (await meAt(one, secret)).json()).role).toBe(role);
+    }
+    // A change in SQL from a third connection, then revocation and deactivation through one process.
+    await t.ds.query("UPDATE app_user SET role = 'coordinator' WHERE id = $1", [petra]);
+    for (const p of ports) expect((await (await meAt(p, secret)).json()).role).toBe('coordinator');
+    const revoked = await tokenFor(t, 'petra.lind@audit-bureau.invalid');
+    for (const p of ports) expect((await meAt(p, revoked)).status).toBe(200);
+    const [{ id: revokedId }] = await t.ds.query('SELECT id FROM api_token WHERE user_id = $1 ORDER BY created_at DESC LIMIT 1', [petra]);
+    expect((await fetch(`http://127.0.0.1:${ports[0]}/api/v1/admin/tokens/${revokedId}`, { method: 'DELETE', headers: { authorization: `Bearer ${admin}` } })).status).toBe(204);
+    expect((await meAt(ports[1], revoked)).status).toBe(401);
+    expect((await meAt(ports[1], secret)).status).toBe(200);
+    expect((await fetch(`http://127.0.0.1:${ports[1]}/api/v1/users/${petra}/deactivate`, { method: 'POST', headers: { authorization: `Bearer ${admin}` } })).status).toBe(200);
+    expect((await meAt(ports[0], secret)).status).toBe(401);
+    expect((await meAt(ports[1], secret)).status).toBe(401);
+  });
 });

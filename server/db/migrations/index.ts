@@ -26,6 +26,7 @@ import { ChainCertificates1766100000000 } from './1766100000000-chain-certificat
 import { CampaignListScope1766110000000 } from './1766110000000-campaign-list-scope';
 import { SeriesOverviewCoarse1766130000000 } from './1766130000000-series-overview-coarse';
 import { RawFileLz41766140000000 } from './1766140000000-raw-file-lz4';
+import { TokenChangeNotify1766150000000 } from './1766150000000-token-change-notify';
 
 // Every migration, in order. Add new ones at the end (file name: <timestamp>-<what>.ts).
 export const migrations = [
@@ -57,4 +58,5 @@ export const migrations = [
   CampaignListScope1766110000000,
   SeriesOverviewCoarse1766130000000,
   RawFileLz41766140000000,
+  TokenChangeNotify1766150000000,
 ];
