@@ -1,6 +1,7 @@
 // Seeded random levelling networks for the adjustment tests and benchmark.
 // Generator: mulberry32 (a public-domain 32-bit PRNG, common practice) and the Box–Muller transform for normal deviates.
 
+import { Matrix } from 'ml-matrix';
 import type { NetworkObservation, NetworkPoint } from '../../../server/science/adjustment/gauss-markov';
 
 export function mulberry32(seed: number): () => number {
@@ -118,4 +119,45 @@ export function gridNetwork(seed: number, nPoints: number): RandomNetwork {
     if ((i / 1000) % 2 === 1) points[i].sigmaFixed = 0.02;
   }
   return { points, observations, trueC };
+}
+
+/**
+ * The dense design of a levelling network for reference solutions: A (one row per observation, then one per weighted
+ * datum point), l, the σ of each row and P = diag(1/σ²). Held points (fixedC without sigmaFixed) are moved into l;
+ * a point with fixedC and sigmaFixed > 0 is an unknown with a pseudo-observation.
+ */
+export function denseDesign(points: NetworkPoint[], observations: NetworkObservation[]) {
+  const unknownOf = new Map<string, number>();
+  const held = new Map<string, number>();
+  for (const p of points) {
+    if (p.fixedC !== undefined && !(p.sigmaFixed && p.sigmaFixed > 0)) held.set(p.code, p.fixedC);
+    else unknownOf.set(p.code, unknownOf.size);
+  }
+  const u = unknownOf.size;
+  const rows: number[][] = [];
+  const l: number[] = [];
+  const sigma: number[] = [];
+  for (const ob of observations) {
+    const a = new Array<number>(u).fill(0);
+    let li = ob.deltaC;
+    if (held.has(ob.to)) li -= held.get(ob.to)!;
+    else a[unknownOf.get(ob.to)!] += 1;
+    if (held.has(ob.from)) li += held.get(ob.from)!;
+    else a[unknownOf.get(ob.from)!] -= 1;
+    rows.push(a);
+    l.push(li);
+    sigma.push(ob.sigma);
+  }
+  for (const pt of points) {
+    if (pt.fixedC !== undefined && pt.sigmaFixed && pt.sigmaFixed > 0) {
+      const a = new Array<number>(u).fill(0);
+      a[unknownOf.get(pt.code)!] = 1;
+      rows.push(a);
+      l.push(pt.fixedC);
+      sigma.push(pt.sigmaFixed);
+    }
+  }
+  const A = new Matrix(rows);
+  const P = Matrix.diag(sigma.map((s) => 1 / (s * s)));
+  return { unknownOf, held, u, A, P, l, sigma };
 }

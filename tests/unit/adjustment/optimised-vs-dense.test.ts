@@ -1,7 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import { Matrix, inverse } from 'ml-matrix';
 import { adjustNetwork, type NetworkObservation, type NetworkPoint } from '../../../server/science/adjustment/gauss-markov';
-import { gridNetwork } from './network-fixtures';
+import { denseDesign, gridNetwork } from './network-fixtures';
 
 // The sparse path (minimum-degree ordering, LDLᵀ, selected inversion on supernode blocks, supernodal solves, outlier
 // screening by rank-one downdates and the adjustment after the removals reusing the factor) against a dense solution
@@ -16,38 +16,7 @@ type DenseResult = { c: Map<string, { c: number; sigma: number }>; r: number[]; 
 
 /** Dense adjustment; held points: fixedC without sigmaFixed; weighted: with sigmaFixed > 0 (pseudo-observation). */
 function denseAdjust(points: NetworkPoint[], observations: NetworkObservation[]): DenseResult {
-  const unknownOf = new Map<string, number>();
-  const held = new Map<string, number>();
-  for (const p of points) {
-    if (p.fixedC !== undefined && !(p.sigmaFixed && p.sigmaFixed > 0)) held.set(p.code, p.fixedC);
-    else unknownOf.set(p.code, unknownOf.size);
-  }
-  const u = unknownOf.size;
-  const rows: number[][] = [];
-  const l: number[] = [];
-  const sigma: number[] = [];
-  for (const ob of observations) {
-    const a = new Array<number>(u).fill(0);
-    let li = ob.deltaC;
-    if (held.has(ob.to)) li -= held.get(ob.to)!;
-    else a[unknownOf.get(ob.to)!] += 1;
-    if (held.has(ob.from)) li += held.get(ob.from)!;
-    else a[unknownOf.get(ob.from)!] -= 1;
-    rows.push(a);
-    l.push(li);
-    sigma.push(ob.sigma);
-  }
-  for (const pt of points) {
-    if (pt.fixedC !== undefined && pt.sigmaFixed && pt.sigmaFixed > 0) {
-      const a = new Array<number>(u).fill(0);
-      a[unknownOf.get(pt.code)!] = 1;
-      rows.push(a);
-      l.push(pt.fixedC);
-      sigma.push(pt.sigmaFixed);
-    }
-  }
-  const A = new Matrix(rows);
-  const P = Matrix.diag(sigma.map((s) => 1 / (s * s)));
+  const { unknownOf, held, u, A, P, l } = denseDesign(points, observations);
   const Qxx = inverse(A.transpose().mmul(P).mmul(A));
   const x = Qxx.mmul(A.transpose().mmul(P).mmul(Matrix.columnVector(l)));
   const AQ = A.mmul(Qxx);

@@ -1,7 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import { Matrix, inverse } from 'ml-matrix';
 import { adjustNetwork, type NetworkObservation, type NetworkPoint } from '../../../server/science/adjustment/gauss-markov';
-import { smallRandomNetwork } from './network-fixtures';
+import { denseDesign, smallRandomNetwork } from './network-fixtures';
 
 // The adjustment takes diag(Q_vv) from the selected inverse (Q_xx on the pattern of AᵀPA), and after data snooping
 // from that inverse with rank-one downdates, never from a dense Q_vv. Reference: the dense cofactor matrix of the
@@ -14,38 +14,7 @@ type Dense = { v: number[]; r: number[]; w: number[]; c: Map<string, { c: number
 
 /** Dense adjustment of the given observations; held points are those with fixedC and no sigmaFixed. */
 function denseCofactors(points: NetworkPoint[], observations: NetworkObservation[]): Dense {
-  const unknownOf = new Map<string, number>();
-  const held = new Map<string, number>();
-  for (const p of points) {
-    if (p.fixedC !== undefined && !(p.sigmaFixed && p.sigmaFixed > 0)) held.set(p.code, p.fixedC);
-    else unknownOf.set(p.code, unknownOf.size);
-  }
-  const u = unknownOf.size;
-  const rows: number[][] = [];
-  const l: number[] = [];
-  const sigma: number[] = [];
-  for (const ob of observations) {
-    const a = new Array<number>(u).fill(0);
-    let li = ob.deltaC;
-    if (held.has(ob.to)) li -= held.get(ob.to)!;
-    else a[unknownOf.get(ob.to)!] += 1;
-    if (held.has(ob.from)) li += held.get(ob.from)!;
-    else a[unknownOf.get(ob.from)!] -= 1;
-    rows.push(a);
-    l.push(li);
-    sigma.push(ob.sigma);
-  }
-  for (const pt of points) {
-    if (pt.fixedC !== undefined && pt.sigmaFixed && pt.sigmaFixed > 0) {
-      const a = new Array<number>(u).fill(0);
-      a[unknownOf.get(pt.code)!] = 1;
-      rows.push(a);
-      l.push(pt.fixedC);
-      sigma.push(pt.sigmaFixed);
-    }
-  }
-  const A = new Matrix(rows);
-  const P = Matrix.diag(sigma.map((s) => 1 / (s * s)));
+  const { unknownOf, held, A, P, l, sigma } = denseDesign(points, observations);
   const Qll = Matrix.diag(sigma.map((s) => s * s));
   const Qxx = inverse(A.transpose().mmul(P).mmul(A));
   const x = Qxx.mmul(A.transpose().mmul(P).mmul(Matrix.columnVector(l)));
