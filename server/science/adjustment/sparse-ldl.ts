@@ -100,23 +100,29 @@ export function symbolicAnalysis(a: SymmetricPattern, ordering: Ordering): { par
   return { parent, colPtr };
 }
 
+/** What both factorisations start from: the ordering, the symbolic analysis and the factor's arrays, still empty. */
+function prepareFactor(a: SymmetricCsc, options: FactorOptions) {
+  const n = a.n;
+  const ordering = options.ordering ?? approximateMinimumDegree(a);
+  const { parent, colPtr } = symbolicAnalysis(a, ordering);
+  const onColumns = options.onColumns;
+  const nnz = colPtr[n];
+  return {
+    n, ordering, parent, colPtr, onColumns,
+    tol: options.pivotTolerance ?? DEFAULT_PIVOT_TOLERANCE,
+    perm: ordering.perm, inversePerm: ordering.inversePerm,
+    weight: onColumns ? columnWork(colPtr, n) : null,
+    rowIdx: new Int32Array(nnz), values: new Float64Array(nnz), diag: new Float64Array(n),
+  };
+}
+
 /**
  * Numeric LDLᵀ row by row (up-looking, Davis 2005), the reference for factorize. Throws SingularMatrixError naming the
  * original column of the first bad pivot.
  */
 export function factorizeByRows(a: SymmetricCsc, options: FactorOptions = {}): LdlFactor {
-  const n = a.n;
-  const ordering = options.ordering ?? approximateMinimumDegree(a);
-  const tol = options.pivotTolerance ?? DEFAULT_PIVOT_TOLERANCE;
-  const { parent, colPtr } = symbolicAnalysis(a, ordering);
-  const { perm, inversePerm } = ordering;
-  const onColumns = options.onColumns;
-  const weight = onColumns ? columnWork(colPtr, n) : null;
+  const { n, ordering, tol, parent, colPtr, perm, inversePerm, onColumns, weight, rowIdx, values, diag } = prepareFactor(a, options);
   let done = 0;
-  const nnz = colPtr[n];
-  const rowIdx = new Int32Array(nnz);
-  const values = new Float64Array(nnz);
-  const diag = new Float64Array(n);
   const y = new Float64Array(n);
   const pattern = new Int32Array(n);
   const flag = new Int32Array(n);
@@ -179,18 +185,8 @@ export const MAX_PANEL_ENTRIES = 1 << 22;
  * column of the first bad pivot, as that one does.
  */
 export function factorize(a: SymmetricCsc, options: FactorOptions = {}): LdlFactor {
-  const n = a.n;
-  const ordering = options.ordering ?? approximateMinimumDegree(a);
-  const tol = options.pivotTolerance ?? DEFAULT_PIVOT_TOLERANCE;
-  const { parent, colPtr } = symbolicAnalysis(a, ordering);
-  const { perm, inversePerm } = ordering;
-  const onColumns = options.onColumns;
-  const weight = onColumns ? columnWork(colPtr, n) : null;
+  const { n, ordering, tol, parent, colPtr, perm, inversePerm, onColumns, weight, rowIdx, values, diag } = prepareFactor(a, options);
   let done = 0;
-  const nnz = colPtr[n];
-  const rowIdx = new Int32Array(nnz);
-  const values = new Float64Array(nnz);
-  const diag = new Float64Array(n);
 
   // Pattern: row k of L = reach of row k of A in the elimination tree; rows arrive in ascending order per column.
   {
