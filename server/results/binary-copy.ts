@@ -269,12 +269,11 @@ export class BinarySamplesCopy {
     }, this.reader.wholeRows);
   }
 
-  /** Called by pg when the query's turn comes; an error returned is given back through handleError. */
-  submit(connection: pg.Connection): Error | undefined {
+  submit(connection: pg.Connection): void {
     const con = connection as unknown as PgConnection;
     const stream = con.stream;
     const handlers = stream.listeners('data') as ((b: Buffer) => void)[];
-    if (handlers.length !== 1) return new Error('unexpected pg connection: one data handler expected');
+    if (handlers.length !== 1) throw new Error('unexpected pg connection: one data handler expected');
     const handler = handlers[0];
     stream.removeListener('data', handler);
     stream.pause();
@@ -294,7 +293,6 @@ export class BinarySamplesCopy {
     };
     stream.on('readable', onReadable);
     con.query(this.text);
-    return undefined;
   }
 
   handleError(err: Error): void {
