@@ -1,4 +1,5 @@
 import type pg from 'pg';
+import { to as copyTo } from 'pg-copy-streams';
 import type { DataSource, EntityManager } from 'typeorm';
 import type { ComparisonResultDto, ResultBody } from '../../shared/results';
 import { resultCsvColumns } from '../../shared/results';
@@ -15,7 +16,6 @@ import { AppError, Conflict, NotFound } from '../http/errors';
 import { SOFTWARE_CONSTANTS } from '../science/constants';
 import { ScienceInputError } from '../science/errors';
 import { readResultRequest, requestResultComputation } from './result-requests';
-import { BinarySamplesCopy, type SeriesColumns } from './binary-copy';
 import { computeResultBody, inputHashOf, SOFTWARE_VERSION, type InputFile, type SampleArrays } from './compute-result';
 
 // Campaign result: load inputs → compare the input hash with the newest stored result → reuse it or recompute and
@@ -30,7 +30,83 @@ export async function loadFiles(manager: EntityManager, campaignId: string): Pro
   return rows.map((r) => ({ seriesId: r.id, name: r.file_name, sha256: r.sha256, sampleCount: Number(r.row_count) }));
 }
 
-export { createBinaryCopyReader, parseBinaryCopy } from './binary-copy';
+type SeriesColumns = { epochMjd: Float64Array; y: Float64Array; valid: Uint8Array };
+
+const COPY_SIGNATURE = Buffer.from('PGCOPY\n\xff\r\n\0', 'latin1');
+const ROW_BYTES = 31; // int16 field count, then (int32 length + value) for float8, float8, bool
+
+/**
+ * Incremental parser of PostgreSQL's binary COPY output of (float8, float8, bool) rows (PostgreSQL docs, COPY,
+ * "Binary Format"): chunks are parsed as they arrive into columns sized from the expected row count, so a series of
+ * 10⁷ rows never exists twice in memory (once as chunks, once concatenated).
+ */
+export function createBinaryCopyReader(expectedRows = 0) {
+  let cap = Math.max(expectedRows, 256);
+  let epochMjd = new Float64Array(cap);
+  let y = new Float64Array(cap);
+  let valid = new Uint8Array(cap);
+  let n = 0;
+  let headerRead = false;
+  let ended = false;
+  let tail: Buffer | null = null;
+  const grow = () => {
+    cap *= 2;
+    const e2 = new Float64Array(cap); e2.set(epochMjd); epochMjd = e2;
+    const y2 = new Float64Array(cap); y2.set(y); y = y2;
+    const v2 = new Uint8Array(cap); v2.set(valid); valid = v2;
+  };
+  return {
+    push(chunk: Buffer): void {
+      if (ended) return;
+      const buf = tail ? Buffer.concat([tail, chunk]) : chunk;
+      tail = null;
+      let o = 0;
+      if (!headerRead) {
+        if (buf.length < 19) {
+          tail = Buffer.from(buf);
+          return;
+        }
+        if (!buf.subarray(0, 11).equals(COPY_SIGNATURE)) throw new Error('not a binary COPY stream');
+        const ext = buf.readInt32BE(15);
+        if (buf.length < 19 + ext) {
+          tail = Buffer.from(buf);
+          return;
+        }
+        o = 19 + ext;
+        headerRead = true;
+      }
+      const view = new DataView(buf.buffer, buf.byteOffset, buf.byteLength);
+      const len = buf.length;
+      while (o + 2 <= len) {
+        const fields = view.getInt16(o);
+        if (fields === -1) {
+          ended = true;
+          return;
+        }
+        if (o + ROW_BYTES > len) break;
+        if (fields !== 3 || view.getInt32(o + 2) !== 8 || view.getInt32(o + 14) !== 8 || view.getInt32(o + 26) !== 1) throw new Error('unexpected row layout in COPY stream');
+        if (n === cap) grow();
+        epochMjd[n] = view.getFloat64(o + 6);
+        y[n] = view.getFloat64(o + 18);
+        valid[n] = buf[o + 30];
+        n++;
+        o += ROW_BYTES;
+      }
+      if (o < len) tail = Buffer.from(buf.subarray(o));
+    },
+    finish(): SeriesColumns {
+      if (!ended && (tail?.length ?? 0) > 0) throw new Error('the COPY stream ended inside a row');
+      return { epochMjd: epochMjd.subarray(0, n), y: y.subarray(0, n), valid: valid.subarray(0, n) };
+    },
+  };
+}
+
+/** Parses a whole binary COPY output of (float8, float8, bool) rows at once. */
+export function parseBinaryCopy(buf: Buffer): SeriesColumns {
+  const r = createBinaryCopyReader(Math.floor(buf.length / ROW_BYTES));
+  r.push(buf);
+  return r.finish();
+}
 
 /** The rows in ascending epoch order: returned as they are when already ascending (the usual case), else sorted. */
 export function inEpochOrder(c: SeriesColumns): SeriesColumns {
@@ -85,8 +161,7 @@ async function withPgClient<T>(manager: EntityManager, fn: (client: pg.ClientBas
 
 /**
  * All samples of a campaign's uploads in epoch order (earlier upload first on a tie). Each series is read with a
- * binary COPY (no million row objects, doubles bit-exact) and decoded from the socket as it streams (binary-copy.ts);
- * the series are then merged.
+ * binary COPY (no million row objects, doubles bit-exact) and parsed as it streams; the series are then merged.
  * A series is stored by one COPY in epoch order, so its rows come back in that order from a plain scan of its
  * partition: the query asks for no sort (which for 10⁷ rows spilled to disk), and the order is checked here, the
  * rare unordered read (a synchronised or parallel scan) being sorted in memory.
@@ -100,8 +175,10 @@ export async function loadCampaignSamples(manager: EntityManager, campaignId: st
     for (const f of series) {
       // The id comes from our own table (a uuid), never from the request, so inlining it in COPY is safe.
       if (!/^[0-9a-f-]{36}$/.test(f.seriesId)) throw new Error('unexpected series id');
-      const copy = client.query(new BinarySamplesCopy(`COPY (SELECT mjd, y, valid FROM ratio_sample WHERE series_id = '${f.seriesId}') TO STDOUT (FORMAT binary)`, f.sampleCount));
-      out.push(inEpochOrder(await copy.columns));
+      const stream = client.query(copyTo(`COPY (SELECT mjd, y, valid FROM ratio_sample WHERE series_id = '${f.seriesId}') TO STDOUT (FORMAT binary)`));
+      const reader = createBinaryCopyReader(f.sampleCount);
+      for await (const chunk of stream) reader.push(chunk as Buffer);
+      out.push(inEpochOrder(reader.finish()));
     }
     return out;
   });
