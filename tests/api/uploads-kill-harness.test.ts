@@ -257,8 +257,18 @@ describe.each(['sigkill-server', 'stop-postgres'] as const)('kill harness (%s)',
       // a queued job is retried by the server's worker (after the reaper's 10 s grace): let its request end first
       const requestTable = point === 'result-compute' ? 'result_request' : point === 'certificate-issue' ? 'certificate_request' : null;
       if (requestTable) {
-        await until(async () => (await query<{ n: number }>(`SELECT count(*)::int AS n FROM ${requestTable} WHERE campaign_id = $1 AND state IN ('queued', 'running')`, [campaignId]))[0].n === 0,
-          90_000, `the ${requestTable} of the campaign done or failed`);
+        // on a timeout the message states the request rows and the queue's jobs for the campaign as last seen
+        let lastSeen: unknown = null;
+        await until(async () => {
+          const open = (await query<{ n: number }>(`SELECT count(*)::int AS n FROM ${requestTable} WHERE campaign_id = $1 AND state IN ('queued', 'running')`, [campaignId]))[0].n;
+          if (open > 0) {
+            lastSeen = {
+              requests: await query(`SELECT state, started_at, finished_at, error FROM ${requestTable} WHERE campaign_id = $1 ORDER BY requested_at`, [campaignId]),
+              jobs: await query(`SELECT name, state, retry_count, started_on, completed_on FROM pgboss.job WHERE data->>'campaignId' = $1::text OR data->>'requestId' IN (SELECT id::text FROM ${requestTable} WHERE campaign_id = $1::uuid) ORDER BY created_on`, [campaignId]),
+            };
+          }
+          return open === 0;
+        }, 90_000, () => `the ${requestTable} of the campaign done or failed (last seen: ${JSON.stringify(lastSeen)})`);
       }
       // the surviving server recovers: database reachable, pool back at its baseline
       let lastHealth: unknown = null;
