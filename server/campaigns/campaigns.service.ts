@@ -43,6 +43,7 @@ import { currentBudget, linkDistances, normalHeightOf, toBudgetDto } from '../re
 import { requestResultComputation } from '../results/result-requests';
 import { campaignScopeSql, canSeeCampaign } from '../auth/campaign-scope';
 import { resolveCampaignSites, resolveLocalTie } from './campaign-sites';
+import { preparedQuery } from '../db/prepared';
 
 // Campaign rules: owning institute = clock A's institute; the lab edits only while draft or returned; the
 // coordinating institute reviews; every change is audited and every state change lands on the timeline.
@@ -412,7 +413,7 @@ function listClockRef(id: string, k: ClockRefJson | null) {
 }
 
 /**
- * One page of the campaigns the caller may see, and their number: two statements whatever the page size.
+ * One page of the campaigns the caller may see, and their number: one statement whatever the page size.
  * The page is found on the campaign table and its institute (the visibility rule on the campaign's own columns, the
  * sort's index, LIMIT/OFFSET), and only its rows fetch their clocks, sites and link through small correlated
  * sub-selects: a join of all twelve tables made PostgreSQL spend tens of milliseconds planning every request, and
@@ -431,25 +432,38 @@ async function listCampaigns(dataSource: DataSource, actor: Actor, q: CampaignLi
   const [inner, outer] = sortColumns.get(q.sort ?? 'updatedAt') ?? ['c.updated_at', 'p.updated_at'];
   const dir = q.order === 'desc' ? 'DESC' : 'ASC';
   const filter = where.join(' AND ');
-  const countParams = [...params];
-  const limit = param(q.pageSize);
-  const offset = param((q.page - 1) * q.pageSize);
-  const pageSql = `
-    SELECT p.*, ${clockRefSql('p.clock_a_id')} AS clock_a, ${clockRefSql('p.clock_b_id')} AS clock_b,
+  // The first page (what the campaigns page opens with) is a prepared statement with its size in the text: with
+  // LIMIT and OFFSET as parameters PostgreSQL's generic plan assumes a tenth of the rows skipped and is never chosen,
+  // so every request would be planned again. Later pages keep both as parameters and are planned per request.
+  const first = q.page === 1;
+  const limit = first ? String(q.pageSize) : param(q.pageSize);
+  const offset = first ? '0' : param((q.page - 1) * q.pageSize);
+  // Without a text filter the visibility rule and the state filter read only the campaign's state, institute and
+  // partner institute, so the total is the same condition summed over campaign_tally (kept by triggers, migration
+  // CampaignTally). The text filter needs the campaigns themselves and the institute's code.
+  // institute_id is NOT NULL and a foreign key, so the page's inner join keeps every campaign (and lets PostgreSQL
+  // walk the institutes in code order for the sort by institute).
+  const total = q.q
+    ? `SELECT count(*)::int AS total FROM "campaign" c JOIN institute i ON i.id = c.institute_id WHERE ${filter}`
+    : `SELECT coalesce(sum(c.n), 0)::int AS total FROM campaign_tally c WHERE ${filter}`;
+  // The count and the page travel as one statement (one round trip); the count's row stands alone when the page is
+  // empty.
+  const sql = `
+    SELECT n.total, p.*, ${clockRefSql('p.clock_a_id')} AS clock_a, ${clockRefSql('p.clock_b_id')} AS clock_b,
            (SELECT l.name FROM fibre_link l WHERE l.id = p.link_id) AS link_name,
            (SELECT s.name FROM site s WHERE s.id = p.site_a_id) AS site_a_name,
            (SELECT s.name FROM site s WHERE s.id = p.site_b_id) AS site_b_name
-      FROM (SELECT c.id, c.name, c.state, c.institute_id, i.code AS institute_code, c.clock_a_id, c.clock_b_id, c.link_id, c.period_start, c.period_end,
+      FROM (${total}) n
+      LEFT JOIN LATERAL (
+            SELECT c.id, c.name, c.state, c.institute_id, i.code AS institute_code, c.clock_a_id, c.clock_b_id, c.link_id, c.period_start, c.period_end,
                    c.role, c.site_a_id, c.site_b_id, c.updated_at
               FROM "campaign" c JOIN institute i ON i.id = c.institute_id
              WHERE ${filter}
-             ORDER BY ${inner} ${dir}, c.id LIMIT ${limit} OFFSET ${offset}) p
+             ORDER BY ${inner} ${dir}, c.id LIMIT ${limit} OFFSET ${offset}) p ON true
      ORDER BY ${outer} ${dir}, p.id`;
-  // The text filter needs the institute's code; otherwise the count reads the campaign table (or its index) alone.
-  // institute_id is NOT NULL and a foreign key, so the inner join keeps every campaign (and lets PostgreSQL walk
-  // the institutes in code order for the sort by institute).
-  const countSql = `SELECT count(*)::int AS n FROM "campaign" c${q.q ? ' JOIN institute i ON i.id = c.institute_id' : ''} WHERE ${filter}`;
-  const [rows, counted]: [CampaignListRow[], { n: number }[]] = await Promise.all([dataSource.query(pageSql, params), dataSource.query(countSql, countParams)]);
+  const found: (Partial<CampaignListRow> & { total: number })[] = first ? await preparedQuery(dataSource, sql, params) : await dataSource.query(sql, params);
+  const counted = found[0]?.total ?? 0;
+  const rows = found.filter((r): r is CampaignListRow & { total: number } => r.id != null);
   const items = rows.map((r) => ({
     id: r.id,
     name: r.name,
@@ -465,7 +479,7 @@ async function listCampaigns(dataSource: DataSource, actor: Actor, q: CampaignLi
     siteB: { id: r.site_b_id, name: r.site_b_name ?? '' },
     updatedAt: r.updated_at.toISOString(),
   }));
-  return { items, total: counted[0].n, page: q.page, pageSize: q.pageSize };
+  return { items, total: counted, page: q.page, pageSize: q.pageSize };
 }
 
 export function createCampaignsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'coordinatorMail' | 'publicUrl' | 'databaseUrl' | 'reviewMinUptimeFraction' | 'reviewFourEyes'> }) {
