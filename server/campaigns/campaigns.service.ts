@@ -41,7 +41,7 @@ import { parsePositiveDecimal, ratioOfFrequencies, MAX_REFERENCE_SIGNIFICANT_DIG
 import { rss } from '../science/uncertainty';
 import { currentBudget, linkDistances, normalHeightOf, toBudgetDto } from '../registry/registry.service';
 import { requestResultComputation } from '../results/result-requests';
-import { campaignScopeSql, canSeeCampaign } from '../auth/campaign-scope';
+import { campaignScopeBranches, canSeeCampaign } from '../auth/campaign-scope';
 import { resolveCampaignSites, resolveLocalTie } from './campaign-sites';
 import { preparedQuery } from '../db/prepared';
 
@@ -423,15 +423,16 @@ function listClockRef(id: string, k: ClockRefJson | null) {
 async function listCampaigns(dataSource: DataSource, actor: Actor, q: CampaignListQuery) {
   const params: unknown[] = [];
   const param = (v: unknown) => `$${params.push(v)}`;
-  const where = [campaignScopeSql(actor, { state: 'c.state', institute: 'c.institute_id', partnerInstitute: 'c.partner_institute_id' }, param)];
+  const branches = campaignScopeBranches(actor, { state: 'c.state', institute: 'c.institute_id', partnerInstitute: 'c.partner_institute_id' }, param);
+  const extra: string[] = [];
   if (q.q) {
     const text = param(`%${q.q}%`);
-    where.push(`(c.name ILIKE ${text} OR i.code ILIKE ${text} OR EXISTS (SELECT 1 FROM clock k WHERE k.id IN (c.clock_a_id, c.clock_b_id) AND k.name ILIKE ${text}))`);
+    extra.push(`(c.name ILIKE ${text} OR i.code ILIKE ${text} OR EXISTS (SELECT 1 FROM clock k WHERE k.id IN (c.clock_a_id, c.clock_b_id) AND k.name ILIKE ${text}))`);
   }
-  if (q.state) where.push(`c.state = ${param(q.state)}`);
+  if (q.state) extra.push(`c.state = ${param(q.state)}`);
   const [inner, outer] = sortColumns.get(q.sort ?? 'updatedAt') ?? ['c.updated_at', 'p.updated_at'];
   const dir = q.order === 'desc' ? 'DESC' : 'ASC';
-  const filter = where.join(' AND ');
+  const filter = [branches.length === 1 ? branches[0] : `(${branches.join(' OR ')})`, ...extra].join(' AND ');
   // The first page (what the campaigns page opens with) is a prepared statement with its size in the text: with
   // LIMIT and OFFSET as parameters PostgreSQL's generic plan assumes a tenth of the rows skipped and is never chosen,
   // so every request would be planned again. Later pages keep both as parameters and are planned per request.
@@ -446,6 +447,18 @@ async function listCampaigns(dataSource: DataSource, actor: Actor, q: CampaignLi
   const total = q.q
     ? `SELECT count(*)::int AS total FROM "campaign" c JOIN institute i ON i.id = c.institute_id WHERE ${filter}`
     : `SELECT coalesce(sum(c.n), 0)::int AS total FROM campaign_tally c WHERE ${filter}`;
+  // The page: one branch of the visibility rule is read in the sort's order and cut; several (an operator's own and
+  // partner campaigns) are each read in that order up to the page's end and merged.
+  const branchSql = (cond: string) => `
+            SELECT c.id, c.name, c.state, c.institute_id, i.code AS institute_code, c.clock_a_id, c.clock_b_id, c.link_id, c.period_start, c.period_end,
+                   c.role, c.site_a_id, c.site_b_id, c.updated_at
+              FROM "campaign" c JOIN institute i ON i.id = c.institute_id
+             WHERE ${[cond, ...extra].join(' AND ')}
+             ORDER BY ${inner} ${dir}, c.id`;
+  const pageSql = branches.length === 1
+    ? `${branchSql(branches[0])} LIMIT ${limit} OFFSET ${offset}`
+    : `SELECT * FROM (${branches.map((b) => `(${branchSql(b)} LIMIT ${first ? limit : `${limit}::int + ${offset}::int`})`).join(' UNION ALL ')}) u
+             ORDER BY ${outer.replace(/^p\./, 'u.')} ${dir}, u.id LIMIT ${limit} OFFSET ${offset}`;
   // The count and the page travel as one statement (one round trip); the count's row stands alone when the page is
   // empty.
   const sql = `
@@ -454,12 +467,7 @@ async function listCampaigns(dataSource: DataSource, actor: Actor, q: CampaignLi
            (SELECT s.name FROM site s WHERE s.id = p.site_a_id) AS site_a_name,
            (SELECT s.name FROM site s WHERE s.id = p.site_b_id) AS site_b_name
       FROM (${total}) n
-      LEFT JOIN LATERAL (
-            SELECT c.id, c.name, c.state, c.institute_id, i.code AS institute_code, c.clock_a_id, c.clock_b_id, c.link_id, c.period_start, c.period_end,
-                   c.role, c.site_a_id, c.site_b_id, c.updated_at
-              FROM "campaign" c JOIN institute i ON i.id = c.institute_id
-             WHERE ${filter}
-             ORDER BY ${inner} ${dir}, c.id LIMIT ${limit} OFFSET ${offset}) p ON true
+      LEFT JOIN LATERAL (${pageSql}) p ON true
      ORDER BY ${outer} ${dir}, p.id`;
   const found: (Partial<CampaignListRow> & { total: number })[] = first ? await preparedQuery(dataSource, sql, params) : await dataSource.query(sql, params);
   const counted = found[0]?.total ?? 0;

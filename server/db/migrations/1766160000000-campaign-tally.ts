@@ -7,6 +7,7 @@ import type { MigrationInterface, QueryRunner } from 'typeorm';
 // 10 000 campaigns). Statement-level triggers with transition tables keep it exact in the writing transaction:
 // each statement adds its net change per group, groups locked in key order; TRUNCATE empties it. A text search
 // still counts the campaigns themselves.
+// The partial index campaign_partner_elsewhere serves the second branch of an operator's list.
 export class CampaignTally1766160000000 implements MigrationInterface {
   name = 'CampaignTally1766160000000';
 
@@ -62,11 +63,16 @@ export class CampaignTally1766160000000 implements MigrationInterface {
 
       INSERT INTO campaign_tally (institute_id, partner_institute_id, state, n)
         SELECT institute_id, partner_institute_id, state, count(*) FROM campaign GROUP BY 1, 2, 3;
+
+      -- An operator's list reads the campaigns of clock B's institute owned by another institute in the sort's
+      -- order (server/auth/campaign-scope.ts, campaignScopeBranches): few rows, in an index of their own.
+      CREATE INDEX campaign_partner_elsewhere ON campaign (partner_institute_id, updated_at, id) WHERE partner_institute_id <> institute_id;
     `);
   }
 
   async down(q: QueryRunner): Promise<void> {
     await q.query(`
+      DROP INDEX campaign_partner_elsewhere;
       DROP TRIGGER campaign_tally_truncate ON campaign;
       DROP TRIGGER campaign_tally_delete ON campaign;
       DROP TRIGGER campaign_tally_update ON campaign;
