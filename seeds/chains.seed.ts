@@ -15,7 +15,10 @@ export const chainsSeeder: Seeder = {
   async run({ manager }) {
     const campaigns = manager.getRepository(CampaignEntity);
     const find = (name: string) => campaigns.findOne({ where: { name } });
-    const [before, remote, after] = await Promise.all([find(DEMO_CHAIN_CAMPAIGNS.before), find(DEMO_CHAIN_CAMPAIGNS.remote), find(DEMO_CHAIN_CAMPAIGNS.after)]);
+    // one after the other: the seed runs in one transaction, on one connection, which takes one query at a time
+    const before = await find(DEMO_CHAIN_CAMPAIGNS.before);
+    const remote = await find(DEMO_CHAIN_CAMPAIGNS.remote);
+    const after = await find(DEMO_CHAIN_CAMPAIGNS.after);
     const T = await manager.getRepository(ClockEntity).findOne({ where: { name: 'NGCO-TSr1' } });
     if (!before || !remote || !after || !T) return;
     const referenceClockId = before.clockAId === T.id ? before.clockBId : before.clockAId;

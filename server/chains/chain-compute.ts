@@ -71,7 +71,9 @@ const fmtE = (x: number, d = 2) => {
 export async function computeChain(m: EntityManager, row: CalibrationChainRow, cs?: ChainCampaigns): Promise<ChainResult> {
   const c = cs ?? await loadChainCampaigns(m, row);
   const parts = ([['remote', c.remote], ['before', c.before], ['after', c.after]] as const).filter((x): x is ['remote' | 'before' | 'after', CampaignRow] => x[1] !== null);
-  const results = await Promise.all(parts.map(([, cmp]) => latestResultForCampaign(m, cmp.id)));
+  // one after the other: `m` may be a transaction's manager, whose one connection takes one query at a time
+  const results: Awaited<ReturnType<typeof latestResultForCampaign>>[] = [];
+  for (const [, cmp] of parts) results.push(await latestResultForCampaign(m, cmp.id));
   const missing = parts.filter((_, i) => !results[i]).map(([, cmp]) => ({ campaignId: cmp.id, name: cmp.name }));
   if (missing.length) throw new ChainNotReady(missing);
   const clockIds = [row.transportableClockId, row.referenceClockId];

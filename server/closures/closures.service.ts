@@ -72,7 +72,9 @@ export async function recomputeClosures(manager: EntityManager, opts: { now: Dat
   const failed: string[] = [];
   const keep = new Set<string>();
   for (const loop of loops) {
-    const legs = await Promise.all(loop.legs.map(async (l) => ({ ...l, ...(await inputsOf(l.campaignId)) })));
+    // one leg after the other: `manager` may hold one connection, which takes one query at a time
+    const legs: (typeof loop.legs[number] & Awaited<ReturnType<typeof inputsOf>>)[] = [];
+    for (const l of loop.legs) legs.push({ ...l, ...(await inputsOf(l.campaignId)) });
     const inputHash = crypto.createHash('sha256').update(JSON.stringify({
       legs: legs.map((l) => [l.campaignId, l.sign, inputHashOf(l.campaign, l.files)]), common: [loop.commonStart, loop.commonEnd], softwareVersion: SOFTWARE_VERSION, revision: 1,
     })).digest('hex');
