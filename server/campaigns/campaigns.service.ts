@@ -186,8 +186,9 @@ type CampaignDetailRow = {
 };
 
 const detailClockSql = (idCol: string) => `(SELECT json_build_object('name', k.name, 'species', k.species, 'nominalFrequencyHz', k.nominal_frequency_hz,
-         'siteId', k.site_id, 'siteName', s.name, 'instituteId', k.institute_id, 'instituteCode', ki.code, 'currentBudgetVersion', k.current_budget_version)
-    FROM clock k LEFT JOIN site s ON s.id = k.site_id LEFT JOIN institute ki ON ki.id = k.institute_id WHERE k.id = ${idCol})`;
+         'siteId', k.site_id, 'siteName', (SELECT s.name FROM site s WHERE s.id = k.site_id),
+         'instituteId', k.institute_id, 'instituteCode', (SELECT ki.code FROM institute ki WHERE ki.id = k.institute_id), 'currentBudgetVersion', k.current_budget_version)
+    FROM clock k WHERE k.id = ${idCol})`;
 const detailBudgetSql = (idCol: string) => `(SELECT json_build_object('id', v.id, 'clockId', v.clock_id, 'version', v.version, 'rows', v.rows,
          'totalCorrection', v.total_correction, 'totalUncertainty', v.total_uncertainty, 'comment', v.comment, 'deploymentId', v.deployment_id,
          'createdByUserId', v.created_by_user_id, 'createdBy', v.created_by, 'createdAt', v.created_at::text)
@@ -196,9 +197,11 @@ const detailBudgetSql = (idCol: string) => `(SELECT json_build_object('id', v.id
 /**
  * The campaign, its institute, sites, link, both clocks, pinned budget versions, timeline, the parts of its newest
  * result the review rules read and its failing closures: one statement, the campaign row by its key and each of the
- * rest a small sub-select on a primary key or index, so PostgreSQL plans a few single-table lookups rather than a
- * join of a dozen tables (a fourteen-table join cost about 8 ms of planning on the scaled demo; five statements
- * cost a round trip each, in the HTTP process and in PostgreSQL).
+ * rest a small sub-select on a primary key or index, so PostgreSQL plans single-table lookups rather than a join of
+ * a dozen tables (a fourteen-table join cost about 8 ms of planning on the scaled demo; the six statements this
+ * replaces cost a round trip each, in the HTTP process and in PostgreSQL). Sub-selects rather than joins inside the
+ * sub-selects too: on the scaled demo the clocks' and the closures' members' joins took planning from about 0.30 to
+ * 0.46 ms per read.
  */
 const campaignDetailSql = `
   SELECT c.id, c.name, c.state, c.institute_id, c.clock_a_id, c.clock_b_id, c.link_id, c.period_start, c.period_end, c.role, c.site_a_id, c.site_b_id,
