@@ -6,7 +6,10 @@ import type { ComparisonResultDto } from '../../shared/results';
 // Eₙ outside |Eₙ| ≤ 1 (ISO 13528:2022, 9.7), an uptime below the installation's threshold, or a clock-ratio
 // closure of a loop the campaign is part of that fails (|Eₙ| > 1; the stored closures, server/closures).
 
-export function reviewExceptions(result: ComparisonResultDto['result'] | null, minUptimeFraction: number, noResultReason?: string, closures: readonly ReviewException[] = []): ReviewException[] {
+/** The parts of a stored result the review rules read. */
+export type ResultForReview = Pick<ComparisonResultDto['result'], 'sideBySide' | 'geodesy' | 'samples'>;
+
+export function reviewExceptions(result: ResultForReview | null, minUptimeFraction: number, noResultReason?: string, closures: readonly ReviewException[] = []): ReviewException[] {
   if (!result) return [{ code: 'no-result', text: `No result could be computed${noResultReason ? `: ${noResultReason}` : ''}.` }, ...closures];
   const out: ReviewException[] = [...closures];
   // A side-by-side campaign measures the offset between two clocks: no geodetic comparison is expected of it.

@@ -4,7 +4,7 @@ import type { ClosureDetail, ClosureListQuery, ClosureSummary } from '../../shar
 import type { Page } from '../../shared/http';
 import type { ReviewException } from '../../shared/campaigns';
 import type { Actor } from '../auth/actor';
-import { canSeeCampaign } from '../auth/campaign-scope';
+import { canSeeCampaign, type CampaignOwnership } from '../auth/campaign-scope';
 import { authorize } from '../auth/permissions';
 import { recordAudit } from '../audit/audit.service';
 import { getCampaignForResult, type CampaignForResult } from '../campaigns/campaigns.service';
@@ -149,7 +149,7 @@ async function loadClosures(manager: EntityManager, where: string, params: unkno
   );
 }
 
-const visibleTo = (actor: Actor, row: ClosureRow) => row.members.length > 0 && row.members.every((m) => canSeeCampaign(actor, m));
+const visibleTo = (actor: Actor, row: { members: readonly CampaignOwnership[] }) => row.members.length > 0 && row.members.every((m) => canSeeCampaign(actor, m));
 
 function toSummary(row: ClosureRow): ClosureSummary {
   return {
@@ -245,13 +245,37 @@ export function createClosuresService(dataSource: DataSource) {
   };
 }
 
-/** Review exceptions from the stored closures of a campaign that fail (|E_n| > 1), among those the actor may see. */
-export async function closureExceptions(manager: EntityManager, actor: Actor, campaignId: string): Promise<ReviewException[]> {
-  const rows = await loadClosures(manager, 'WHERE rc.agreed = false AND EXISTS (SELECT 1 FROM ratio_closure_campaign x WHERE x.closure_id = rc.id AND x.campaign_id = $1)', [campaignId], false);
+/** What a review exception needs of a stored closure: its figures and the campaigns of its loop (for visibility). */
+export type ClosureForReview = Pick<ClosureRow, 'label' | 'en' | 'closure' | 'expanded_uncertainty' | 'coverage_factor'> & {
+  members: { state: string; instituteId: string; partnerInstituteId: string | null }[];
+};
+
+/**
+ * The failing stored closures (|E_n| > 1) of the campaign whose id is the SQL expression `campaignId`, oldest common
+ * start first, as one JSON array (NULL when there is none): a sub-select for a statement that reads more of the campaign.
+ * Clock B's institute is a sub-select rather than a third joined table: less for PostgreSQL to plan on every read.
+ */
+export const failingClosuresJsonSql = (campaignId: string) => `(SELECT json_agg(json_build_object('label', rc.label, 'en', rc.en, 'closure', rc.closure,
+           'expanded_uncertainty', rc.expanded_uncertainty, 'coverage_factor', rc.coverage_factor,
+           'members', (SELECT json_agg(json_build_object('state', c.state, 'instituteId', c.institute_id,
+                                                         'partnerInstituteId', (SELECT kb.institute_id FROM clock kb WHERE kb.id = c.clock_b_id)) ORDER BY m.position)
+                         FROM ratio_closure_campaign m JOIN campaign c ON c.id = m.campaign_id WHERE m.closure_id = rc.id))
+         ORDER BY rc.common_start, rc.label, rc.id)
+    FROM ratio_closure rc
+   WHERE rc.agreed = false AND EXISTS (SELECT 1 FROM ratio_closure_campaign x WHERE x.closure_id = rc.id AND x.campaign_id = ${campaignId}))`;
+
+/** Review exceptions from failing closures, among those the actor may see. */
+export function closureExceptionsOf(actor: Actor, rows: readonly ClosureForReview[]): ReviewException[] {
   return rows.filter((r) => visibleTo(actor, r)).map((r) => ({
     code: 'closure-failing' as const,
     text: `The ratio closure ${r.label} fails: Eₙ = ${r.en.toFixed(2)} (|Eₙ| > 1; ε = ${r.closure.toExponential(2)}, U = ${r.expanded_uncertainty.toExponential(2)}, k = ${r.coverage_factor.toFixed(2)}).`,
   }));
+}
+
+/** Review exceptions from the stored closures of a campaign that fail (|E_n| > 1), among those the actor may see. */
+export async function closureExceptions(manager: EntityManager, actor: Actor, campaignId: string): Promise<ReviewException[]> {
+  const rows = await loadClosures(manager, 'WHERE rc.agreed = false AND EXISTS (SELECT 1 FROM ratio_closure_campaign x WHERE x.closure_id = rc.id AND x.campaign_id = $1)', [campaignId], false);
+  return closureExceptionsOf(actor, rows);
 }
 
 export type { FoundLoop };

@@ -206,6 +206,14 @@ export async function latestResultForCampaign(manager: EntityManager, campaignId
   return row ? toDto(row, false) : null;
 }
 
+/**
+ * The parts of the campaign's newest stored result that the review rules read (server/campaigns/review-rules.ts), as
+ * JSON (NULL when there is no result), for the campaign whose id is the SQL expression `campaignId`: the same row as
+ * latestResultForCampaign(), without sending its whole body.
+ */
+export const latestResultForReviewSql = (campaignId: string) => `(SELECT jsonb_build_object('sideBySide', r.result->'sideBySide', 'geodesy', r.result->'geodesy', 'samples', r.result->'samples')
+    FROM comparison_result r WHERE r.campaign_id = ${campaignId} ORDER BY r.computed_at DESC, r.id DESC LIMIT 1)`;
+
 /** The stored result for the campaign's current inputs, or null; reads only, never computes. */
 export async function storedCurrentResult(manager: EntityManager, campaignId: string): Promise<ComparisonResultDto | null> {
   const campaign = await getCampaignForResult(manager, campaignId);
