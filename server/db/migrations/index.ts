@@ -27,6 +27,7 @@ import { CampaignListScope1766110000000 } from './1766110000000-campaign-list-sc
 import { SeriesOverviewCoarse1766130000000 } from './1766130000000-series-overview-coarse';
 import { RawFileLz41766140000000 } from './1766140000000-raw-file-lz4';
 import { TokenChangeNotify1766150000000 } from './1766150000000-token-change-notify';
+import { RawFileApart1766160000000 } from './1766160000000-raw-file-apart';
 
 // Every migration, in order. Add new ones at the end (file name: <timestamp>-<what>.ts).
 export const migrations = [
@@ -59,4 +60,5 @@ export const migrations = [
   SeriesOverviewCoarse1766130000000,
   RawFileLz41766140000000,
   TokenChangeNotify1766150000000,
+  RawFileApart1766160000000,
 ];
