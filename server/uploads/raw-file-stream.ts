@@ -1,3 +1,4 @@
+import crypto from 'node:crypto';
 import type pg from 'pg';
 import { from as copyFrom } from 'pg-copy-streams';
 import type { DataSource } from 'typeorm';
@@ -27,8 +28,10 @@ export async function lockRawFile(client: pg.ClientBase, seriesId: string): Prom
 }
 
 export type RawFileSession = {
+  /** The id the upload's series will have (its lock is held by the upload's transaction). */
+  seriesId: string;
   /** Starts the COPY of the series' parts. */
-  start(seriesId: string): void;
+  start(): void;
   /** Takes the next bytes of the file (kept until a part is full). */
   write(chunk: Buffer): void;
   /** A promise while the caller should wait (PostgreSQL is behind, or a test pause); throws once the COPY failed. */
@@ -44,11 +47,14 @@ export type RawFileSession = {
 };
 
 /**
- * A second connection from the pool, in its own transaction, for the raw file; null when the pool gives none within
- * `waitMs` (every connection busy: the upload then keeps its raw file on its own connection, after the samples, so a
- * full pool can never deadlock uploads that each wait for a second connection).
+ * A second connection from the pool, in its own transaction, for the raw file of the upload whose transaction runs on
+ * `uploadClient` (which takes the series' lock here); null when the pool gives none within `waitMs` (every
+ * connection busy: the upload then keeps its raw file on its own connection, after the samples, so a full pool can
+ * never deadlock uploads that each wait for a second connection).
  */
-export async function openRawFileSession(dataSource: DataSource, opts: { statementTimeoutMs: number; waitMs: number }): Promise<RawFileSession | null> {
+export async function openRawFileSession(
+  dataSource: DataSource, uploadClient: pg.ClientBase, opts: { statementTimeoutMs: number; waitMs: number },
+): Promise<RawFileSession | null> {
   const pool = poolOf(dataSource);
   if (!pool) return null;
   const pending = pool.connect();
@@ -74,10 +80,20 @@ export async function openRawFileSession(dataSource: DataSource, opts: { stateme
     client.release(true);
     return null;
   }
+  const seriesId = crypto.randomUUID();
+  try {
+    // held until the upload's transaction ends: the parts, committed just before it, are not swept meanwhile
+    await lockRawFile(uploadClient, seriesId);
+  } catch (e) {
+    await client.query('ROLLBACK').catch(() => undefined);
+    client.off('error', onError);
+    client.release();
+    throw e;
+  }
 
   let copy: ReturnType<typeof copyFrom> | null = null;
   let failure: Error | null = null;
-  let uuid = Buffer.alloc(16);
+  const uuid = Buffer.from(seriesId.replace(/-/g, ''), 'hex');
   let part = 0;
   let row = Buffer.allocUnsafe(34 + PART_BYTES);
   let fill = 0;
@@ -102,8 +118,8 @@ export async function openRawFileSession(dataSource: DataSource, opts: { stateme
   };
 
   return {
-    start(seriesId) {
-      uuid = Buffer.from(seriesId.replace(/-/g, ''), 'hex');
+    seriesId,
+    start() {
       copy = client.query(copyFrom(COPY_FILE_SQL));
       copy.on('error', (e: Error) => (failure ??= e));
       copy.write(COPY_BINARY_HEADER);

@@ -13,7 +13,7 @@ import { COPY_SAMPLES_SQL, finishCopy, ingestRatioSeries, type IngestSummary } f
 import { receiveMultipart } from './multipart';
 import { faultPoint } from '../dev/fault-point';
 import { openSpool } from './raw-file-spool';
-import { lockRawFile, openRawFileSession, type RawFileSession } from './raw-file-stream';
+import { openRawFileSession, type RawFileSession } from './raw-file-stream';
 import { exportSamplesCsv } from './samples-export';
 import { buildPreview } from './ratio-series-format';
 import { coarsenOverview, decimateSeries } from './series-plot';
@@ -125,15 +125,13 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
     throw new Invalid('The column mapping is not valid.', parsed.error.issues.map((i) => ({ path: `body.${i.path.map(String).join('.')}`, message: i.message })));
   }
   const mapping = parsed.data;
-  const seriesId = crypto.randomUUID();
   const raw = input.rawFile;
+  const seriesId = raw ? raw.seriesId : crypto.randomUUID();
   const spool = raw ? null : openSpool();
   try {
-    // held until this transaction ends: the raw file's parts, committed just before it, are not swept meanwhile
-    if (raw) await lockRawFile(client, seriesId);
     await faultPoint('before-copy');
     const copy = client.query(copyFrom(COPY_SAMPLES_SQL));
-    raw?.start(seriesId);
+    raw?.start();
     let midCopy = false;
     let summary: IngestSummary;
     try {
@@ -256,7 +254,7 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
         await qr.startTransaction();
         // PostgreSQL itself ends a COPY that a stalled or vanished client keeps open, whatever this process does.
         await client.query(`SET LOCAL statement_timeout = ${Math.trunc(config.upload.statementTimeoutMs)}`);
-        raw = await openRawFileSession(dataSource, { statementTimeoutMs: config.upload.statementTimeoutMs, waitMs: RAW_CONNECTION_WAIT_MS });
+        raw = await openRawFileSession(dataSource, client, { statementTimeoutMs: config.upload.statementTimeoutMs, waitMs: RAW_CONNECTION_WAIT_MS });
         const rawFile = raw ?? undefined;
         const { result } = await receiveMultipart(req, { fileBytes: config.uploadLimitBytes, idleMs: config.upload.idleTimeoutMs }, async (file, info, fields) => {
           const row = await storeSeries(client, actor, { campaign, fileName: info.filename, source: file, fields, limitBytes: config.uploadLimitBytes, maxLineChars: config.upload.maxLineBytes, onProgress: (p) => uploadProgress.update(uploadId, p), rawFile });
