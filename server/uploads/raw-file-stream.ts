@@ -138,7 +138,7 @@ export async function openRawFileSession(
       const fault = failure ?? broken;
       if (fault) throw fault;
       if (!full && !faultDue) return undefined;
-      return (async () => {
+      const waiting = (async () => {
         if (full) {
           full = false;
           await new Promise<void>((resolve, reject) => {
@@ -156,6 +156,10 @@ export async function openRawFileSession(
           await faultPoint('raw-file-parts');
         }
       })();
+      // the ingest does not wait on its last progress report: a failure seen only there is no unhandled rejection
+      // (the COPY's end reports it)
+      waiting.catch(() => undefined);
+      return waiting;
     },
     async finish() {
       if (failure) throw failure;
