@@ -7,6 +7,7 @@ import type { AddressInfo } from 'node:net';
 import type pg from 'pg';
 import request from 'supertest';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { openDatabase } from '../../server/db/data-source';
 import { resumeFileFor } from '../../server/dev/fault-point';
 import { runHousekeeping } from '../../server/maintenance/housekeeping';
 import { lockRawFile, sweepRawFileOrphans } from '../../server/uploads/raw-file-stream';
@@ -236,5 +237,30 @@ describe('sweep of parts without a series', () => {
     expect(await seriesOf(campaignId)).toBe(0);
     expect(await sweepRawFileOrphans(t.ds)).toBe(parts);
     expect(await allParts()).toBe(before);
+  });
+});
+
+describe('migration RawFileApart', () => {
+  it('down() removes parts without a series and restores the foreign key; up() drops it again', async () => {
+    const t2 = await createTestApp({ seed: false });
+    const owner = await openDatabase(t2.ownerUrl, { migrate: false });
+    const fk = async () => (await owner.query("SELECT count(*)::int AS n FROM pg_constraint WHERE conname = 'ratio_series_file_series_id_fkey'"))[0].n as number;
+    try {
+      expect(await fk()).toBe(0);
+      const orphan = crypto.randomUUID();
+      const parts = async () => (await owner.query('SELECT count(*)::int AS n FROM ratio_series_file')).map((r: { n: number }) => r.n)[0] as number;
+      const kept = await parts(); // the parts of stored series (the template's demo uploads)
+      await owner.query('INSERT INTO ratio_series_file (series_id, part, bytes) VALUES ($1, 0, $2)', [orphan, Buffer.from('orphan')]);
+      await owner.undoLastMigration({ transaction: 'each' });
+      expect(await fk()).toBe(1);
+      expect(await parts()).toBe(kept);
+      expect((await owner.query('SELECT count(*)::int AS n FROM ratio_series_file WHERE series_id = $1', [orphan]))[0].n).toBe(0);
+      await owner.runMigrations({ transaction: 'each' });
+      expect(await fk()).toBe(0);
+      expect((await owner.query("SELECT count(*)::int AS n FROM pg_trigger WHERE tgname = 'ratio_series_file_gone'"))[0].n).toBe(1);
+    } finally {
+      await owner.destroy();
+      await t2.close();
+    }
   });
 });
