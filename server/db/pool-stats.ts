@@ -3,7 +3,7 @@ import type { DataSource } from 'typeorm';
 
 export type PoolStats = { max: number; total: number; idle: number; inUse: number; waiting: number };
 
-function poolOf(dataSource: DataSource): pg.Pool | null {
+export function poolOf(dataSource: DataSource): pg.Pool | null {
   return (dataSource.driver as unknown as { master?: pg.Pool }).master ?? null;
 }
 

@@ -9,8 +9,11 @@ import path from 'node:path';
 // every call is a no-op.
 
 export const FAULT_POINTS = ['before-copy', 'mid-copy', 'raw-file-parts', 'before-commit', 'result-compute', 'certificate-issue'] as const;
-/** 'adjustment-run' (after a run's first progress report) is armed by tests/api/worker-kill.test.ts, not the harness. */
-export type FaultPointName = (typeof FAULT_POINTS)[number] | 'adjustment-run';
+/**
+ * 'adjustment-run' (after a run's first progress report) is armed by tests/api/worker-kill.test.ts, 'raw-file-committed'
+ * (an upload's raw file committed, its own transaction not yet) by tests/api/uploads-raw-file.test.ts; not by the harness.
+ */
+export type FaultPointName = (typeof FAULT_POINTS)[number] | 'adjustment-run' | 'raw-file-committed';
 
 let armed: string | null = process.env.NODE_ENV === 'production' ? null : (process.env.CHRONOLEVEL_FAULT_POINT ?? null);
 const fired = new Set<string>();

@@ -7,12 +7,13 @@ import { from as copyFrom } from 'pg-copy-streams';
 import { faultPoint } from '../dev/fault-point';
 import { COPY_BINARY_HEADER, finishCopy } from './ingest';
 
-// The raw file is kept in ratio_series_file, written by COPY in the upload's transaction, so a rejected or
-// interrupted upload leaves nothing behind. While the rows stream into their COPY (which occupies the connection),
-// the raw bytes go to a temporary file that is unlinked at once: the open descriptor is its only name, so even a
-// killed process leaves no file.
-const PART_BYTES = 1 << 20;
-const COPY_FILE_SQL = 'COPY ratio_series_file (series_id, part, bytes) FROM STDIN (FORMAT binary)';
+// The raw file kept in ratio_series_file by COPY in the upload's own transaction, after the samples: the way when no
+// second connection is at hand (the demo seeder, or a pool with every connection busy; otherwise raw-file-stream.ts
+// writes it alongside the samples). While the rows stream into their COPY (which occupies the connection), the raw
+// bytes go to a temporary file that is unlinked at once: the open descriptor is its only name, so even a killed
+// process leaves no file.
+export const PART_BYTES = 1 << 20;
+export const COPY_FILE_SQL = 'COPY ratio_series_file (series_id, part, bytes) FROM STDIN (FORMAT binary)';
 
 export type Spool = { write(chunk: Buffer): void; size(): number; copyInto(client: pg.ClientBase, seriesId: string): Promise<number>; close(): void };
 

@@ -54,13 +54,13 @@ async function readSamples(client: pg.PoolClient, seriesId: string, rowCount: nu
   return { mjd, y, valid };
 }
 
-/** The raw file of a series, part by part (≤ 1 MiB each). */
+/** The raw file of a series, part by part (≤ 1 MiB each); parts are found only through their series (raw-file-stream.ts). */
 function rawFile(client: pg.PoolClient, seriesId: string): Readable {
   let part = 0;
   return new Readable({
     async read() {
       try {
-        const { rows } = await client.query<{ bytes: Buffer }>('SELECT bytes FROM ratio_series_file WHERE series_id = $1 AND part = $2', [seriesId, part++]);
+        const { rows } = await client.query<{ bytes: Buffer }>('SELECT f.bytes FROM ratio_series_file f JOIN ratio_series s ON s.id = f.series_id WHERE f.series_id = $1 AND f.part = $2', [seriesId, part++]);
         this.push(rows[0] ? rows[0].bytes : null);
       } catch (e) {
         this.destroy(e as Error);

@@ -13,6 +13,7 @@ import { COPY_SAMPLES_SQL, finishCopy, ingestRatioSeries, type IngestSummary } f
 import { receiveMultipart } from './multipart';
 import { faultPoint } from '../dev/fault-point';
 import { openSpool } from './raw-file-spool';
+import { openRawFileSession, type RawFileSession } from './raw-file-stream';
 import { exportSamplesCsv } from './samples-export';
 import { buildPreview } from './ratio-series-format';
 import { coarsenOverview, decimateSeries } from './series-plot';
@@ -27,6 +28,8 @@ const floatBytes = (a: Float64Array) => Buffer.from(a.buffer, a.byteOffset, a.by
 // returned), the one transaction (COPY rows + raw file + series row + audit event), previews, lists and plot data.
 
 export const PREVIEW_BYTES = 64 * 1024;
+/** How long an upload waits for a second connection for its raw file before keeping it on its own connection. */
+const RAW_CONNECTION_WAIT_MS = 1000;
 const MS_PER_DAY = 86_400_000;
 const toMjd = (d: Date) => d.getTime() / MS_PER_DAY + 40587;
 
@@ -106,6 +109,8 @@ export type StoreSeriesInput = {
   /** longest line accepted (default 64 KiB) */
   maxLineChars?: number;
   invented?: boolean;
+  /** a second connection for the raw file, committed by the caller just before its own transaction (raw-file-stream.ts) */
+  rawFile?: RawFileSession;
 };
 
 /**
@@ -120,11 +125,13 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
     throw new Invalid('The column mapping is not valid.', parsed.error.issues.map((i) => ({ path: `body.${i.path.map(String).join('.')}`, message: i.message })));
   }
   const mapping = parsed.data;
-  const seriesId = crypto.randomUUID();
-  const spool = openSpool();
+  const raw = input.rawFile;
+  const seriesId = raw ? raw.seriesId : crypto.randomUUID();
+  const spool = raw ? null : openSpool();
   try {
     await faultPoint('before-copy');
     const copy = client.query(copyFrom(COPY_SAMPLES_SQL));
+    raw?.start();
     let midCopy = false;
     let summary: IngestSummary;
     try {
@@ -133,7 +140,7 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
         periodStartMjd: input.campaign.periodStartMjd, periodEndMjd: input.campaign.periodEndMjd,
         limitBytes: input.limitBytes,
         maxLineChars: input.maxLineChars,
-        onRawChunk: (c) => spool.write(c),
+        onRawChunk: raw ? (c) => raw.write(c) : (c) => spool!.write(c),
         onProgress: (p) => {
           input.onProgress?.(p);
           // the kill harness stops here once some rows are in the COPY (no-op unless armed)
@@ -141,11 +148,14 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
             midCopy = true;
             return faultPoint('mid-copy');
           }
+          return raw?.ready();
         },
       });
-      await finishCopy(copy);
+      // both COPYs end together: the raw file's runs on its own connection while PostgreSQL takes the last samples
+      await Promise.all([finishCopy(copy), raw?.finish()]);
     } catch (e) {
       copy.destroy(e as Error);
+      await raw?.rollback();
       throw e;
     }
     if (summary.tooLarge) throw new PayloadTooLarge(input.limitBytes);
@@ -167,10 +177,10 @@ export async function storeSeries(client: pg.ClientBase, actor: Actor | null, in
         input.invented ?? false, actor?.userId ?? null, actorLabel(actor), floatBytes(summary.overview), floatBytes(summary.overviewStats),
         floatBytes(coarse.overview), floatBytes(coarse.stats)],
     );
-    await spool.copyInto(client, seriesId);
+    if (spool) await spool.copyInto(client, seriesId);
     return rows[0];
   } finally {
-    spool.close();
+    spool?.close();
   }
 }
 
@@ -239,12 +249,15 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
       const qr = dataSource.createQueryRunner();
       await qr.connect();
       const client = (qr as unknown as { databaseConnection: pg.PoolClient }).databaseConnection;
+      let raw: RawFileSession | null = null;
       try {
         await qr.startTransaction();
         // PostgreSQL itself ends a COPY that a stalled or vanished client keeps open, whatever this process does.
         await client.query(`SET LOCAL statement_timeout = ${Math.trunc(config.upload.statementTimeoutMs)}`);
+        raw = await openRawFileSession(dataSource, client, { statementTimeoutMs: config.upload.statementTimeoutMs, waitMs: RAW_CONNECTION_WAIT_MS });
+        const rawFile = raw ?? undefined;
         const { result } = await receiveMultipart(req, { fileBytes: config.uploadLimitBytes, idleMs: config.upload.idleTimeoutMs }, async (file, info, fields) => {
-          const row = await storeSeries(client, actor, { campaign, fileName: info.filename, source: file, fields, limitBytes: config.uploadLimitBytes, maxLineChars: config.upload.maxLineBytes, onProgress: (p) => uploadProgress.update(uploadId, p) });
+          const row = await storeSeries(client, actor, { campaign, fileName: info.filename, source: file, fields, limitBytes: config.uploadLimitBytes, maxLineChars: config.upload.maxLineBytes, onProgress: (p) => uploadProgress.update(uploadId, p), rawFile });
           await recordAudit(qr.manager, actor, {
             action: 'campaign.series-uploaded', entityType: 'ratio_series', entityId: row.id, instituteId: campaign.instituteId,
             details: { campaignId, fileName: row.file_name, sha256: row.sha256, rows: row.row_count, valid: row.valid_count },
@@ -255,15 +268,21 @@ export function createUploadsService(deps: { dataSource: DataSource; config: Pic
         });
         if (!result) throw new Invalid('No file was sent.', [{ path: 'file', message: 'attach the file as the part named "file"' }]);
         await faultPoint('before-commit');
+        // the raw file first: without its series row it is invisible, and this transaction's lock keeps it from the
+        // sweep until the commit below (raw-file-stream.ts)
+        await raw?.commit();
+        await faultPoint('raw-file-committed');
         await qr.commitTransaction();
         await uploadProgress.finish(uploadId, { phase: 'done', seriesId: result.id });
         return toSeriesDto(result);
       } catch (e) {
         await uploadProgress.finish(uploadId, { phase: 'failed' });
+        await raw?.rollback();
         if (qr.isTransactionActive) await qr.rollbackTransaction().catch(() => undefined);
         if (isUniqueViolation(e)) throw new Conflict('This file was already uploaded to this campaign (at the same moment).');
         throw e;
       } finally {
+        raw?.release();
         await qr.release();
       }
     },

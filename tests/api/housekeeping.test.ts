@@ -32,7 +32,7 @@ describe('saml_request pruning', () => {
     await insertExpired(50);
     await t.ds.query("INSERT INTO rate_limit (key, points, expire) VALUES ('calc:user:ended', 3, $1), ('calc:user:running', 1, $2)", [Date.now() - 1000, Date.now() + 60_000]);
     const pruned = await runHousekeeping(t.ds);
-    expect(pruned).toEqual({ samlRequests: 50, rateLimitCounters: 1 });
+    expect(pruned).toEqual({ samlRequests: 50, rateLimitCounters: 1, rawFileOrphans: 0 });
     expect(await count("id LIKE 'old-%'")).toBe(0);
     expect(await t.ds.query('SELECT key FROM rate_limit ORDER BY key')).toEqual([{ key: 'calc:user:running' }]);
   });

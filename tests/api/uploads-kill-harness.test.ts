@@ -109,7 +109,7 @@ afterAll(async () => {
   fs.rmSync(tmp, { recursive: true, force: true });
 });
 
-type Server = { child: ChildProcess; port: number; faults: string[]; exited: Promise<void> };
+type Server = { child: ChildProcess; port: number; faults: string[]; exited: Promise<void>; /** the child's last log lines (warn and above) */ log: string[] };
 
 async function startServer(faultPoint: FaultPointName | null): Promise<Server> {
   const env: Record<string, string> = {
@@ -119,7 +119,16 @@ async function startServer(faultPoint: FaultPointName | null): Promise<Server> {
   if (faultPoint) env.CHRONOLEVEL_FAULT_POINT = faultPoint;
   const child = spawn(process.execPath, ['--import', 'tsx', 'tests/helpers/upload-server.ts'], {
     // the result is computed by a job: the child runs a worker too, so the kill point inside the computation is reached
-    env: { ...process.env, ...env, CHRONOLEVEL_CHILD_ENV: JSON.stringify(env), CHRONOLEVEL_CHILD_WORKER: '1' }, stdio: ['ignore', 'pipe', 'inherit'],
+    env: { ...process.env, ...env, CHRONOLEVEL_CHILD_ENV: JSON.stringify(env), CHRONOLEVEL_CHILD_WORKER: '1', CHRONOLEVEL_CHILD_LOG_LEVEL: 'info' }, stdio: ['ignore', 'pipe', 'pipe'],
+  });
+  // the child's log (pino lines on stderr) is kept, not shown: a timeout below states its last lines
+  const log: string[] = [];
+  let partial = '';
+  child.stderr!.on('data', (d: Buffer) => {
+    const lines = (partial + d.toString()).split('\n');
+    partial = lines.pop() ?? '';
+    for (const line of lines) if (line.trim()) log.push(line.length > 600 ? `${line.slice(0, 600)}…` : line);
+    if (log.length > 60) log.splice(0, log.length - 60);
   });
   children.add(child);
   const exited = new Promise<void>((r) => child.once('exit', () => r()));
@@ -133,7 +142,7 @@ async function startServer(faultPoint: FaultPointName | null): Promise<Server> {
       if (l) resolve(Number(l[1]));
     });
   });
-  return { child, port, faults, exited };
+  return { child, port, faults, exited, log };
 }
 
 /** Streams the big CSV as a multipart upload; resolves with the status (or 0 when the connection broke). */
@@ -265,6 +274,9 @@ describe.each(['sigkill-server', 'stop-postgres'] as const)('kill harness (%s)',
             lastSeen = {
               requests: await query(`SELECT state, started_at, finished_at, error FROM ${requestTable} WHERE campaign_id = $1 ORDER BY requested_at`, [campaignId]),
               jobs: await query(`SELECT name, state, retry_count, started_on, completed_on FROM pgboss.job WHERE data->>'campaignId' = $1::text OR data->>'requestId' IN (SELECT id::text FROM ${requestTable} WHERE campaign_id = $1::uuid) ORDER BY created_on`, [campaignId]),
+              sessions: await query(`SELECT application_name, state, wait_event_type, wait_event, left(query, 160) AS query, now() - state_change AS for FROM pg_stat_activity WHERE datname = current_database() AND pid <> pg_backend_pid()`),
+              locks: await query(`SELECT l.locktype, l.classid, l.objid, l.mode, l.granted, a.application_name, left(a.query, 80) AS query FROM pg_locks l JOIN pg_stat_activity a ON a.pid = l.pid WHERE l.locktype = 'advisory'`),
+              serverLog: server.log.slice(-30),
             };
           }
           return open === 0;

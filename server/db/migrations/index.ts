@@ -28,6 +28,7 @@ import { SeriesOverviewCoarse1766130000000 } from './1766130000000-series-overvi
 import { RawFileLz41766140000000 } from './1766140000000-raw-file-lz4';
 import { TokenChangeNotify1766150000000 } from './1766150000000-token-change-notify';
 import { CampaignTally1766160000000 } from './1766160000000-campaign-tally';
+import { RawFileApart1766170000000 } from './1766170000000-raw-file-apart';
 
 // Every migration, in order. Add new ones at the end (file name: <timestamp>-<what>.ts).
 export const migrations = [
@@ -61,4 +62,5 @@ export const migrations = [
   RawFileLz41766140000000,
   TokenChangeNotify1766150000000,
   CampaignTally1766160000000,
+  RawFileApart1766170000000,
 ];
