@@ -109,6 +109,45 @@ afterAll(async () => {
   fs.rmSync(tmp, { recursive: true, force: true });
 });
 
+const reportDir = fs.mkdtempSync(path.join(os.tmpdir(), 'chronolevel-kill-reports-'));
+
+/**
+ * What the child is doing now: its CPU use over one second, and the top of its JavaScript stack from a diagnostic
+ * report (written by the event loop: no report while the loop is blocked, itself a finding).
+ */
+async function childState(child: ChildProcess): Promise<{ cpuPercentOverOneSecond: number | null; stack: string[] }> {
+  const pid = child.pid;
+  if (!pid || child.exitCode !== null) return { cpuPercentOverOneSecond: null, stack: ['(exited)'] };
+  const cpu = () => {
+    try {
+      const f = fs.readFileSync(`/proc/${pid}/stat`, 'utf8').split(') ')[1].split(' ');
+      return (Number(f[11]) + Number(f[12])) / 100;
+    } catch {
+      return null;
+    }
+  };
+  const c0 = cpu();
+  await new Promise((r) => setTimeout(r, 1000));
+  const c1 = cpu();
+  const cpuSeconds = c0 === null || c1 === null ? null : Math.round((c1 - c0) * 100);
+  const before = new Set(fs.readdirSync(reportDir));
+  child.kill('SIGUSR2');
+  for (let i = 0; i < 50; i++) {
+    const fresh = fs.readdirSync(reportDir).filter((f) => !before.has(f) && f.endsWith('.json'));
+    if (fresh.length) {
+      await new Promise((r) => setTimeout(r, 200));
+      try {
+        const report = JSON.parse(fs.readFileSync(path.join(reportDir, fresh[0]), 'utf8')) as { javascriptStack?: { message?: string; stack?: string[] } };
+        return { cpuPercentOverOneSecond: cpuSeconds, stack: [report.javascriptStack?.message ?? '', ...(report.javascriptStack?.stack ?? []).slice(0, 25)] };
+      } catch (e) {
+        return { cpuPercentOverOneSecond: cpuSeconds, stack: [`(report unreadable: ${(e as Error).message})`] };
+      }
+    }
+    await new Promise((r) => setTimeout(r, 100));
+  }
+  return { cpuPercentOverOneSecond: cpuSeconds, stack: ['(no report within 5 s)'] };
+}
+
 type Server = { child: ChildProcess; port: number; faults: string[]; exited: Promise<void>; /** the child's last log lines (warn and above) */ log: string[] };
 
 async function startServer(faultPoint: FaultPointName | null): Promise<Server> {
@@ -117,7 +156,9 @@ async function startServer(faultPoint: FaultPointName | null): Promise<Server> {
     LOG_LEVEL: 'silent', NODE_ENV: 'test', UPLOAD_IDLE_TIMEOUT_MS: '600000', TSA_URL: inject('tsaUrl'), TSA_ROOT_CERT_FILE: inject('tsaRootCertFile'),
   };
   if (faultPoint) env.CHRONOLEVEL_FAULT_POINT = faultPoint;
-  const child = spawn(process.execPath, ['--import', 'tsx', 'tests/helpers/upload-server.ts'], {
+  // SIGUSR2 makes the child write a diagnostic report (its JavaScript stack even when its event loop is busy): a
+  // timeout below states the stack, so a stuck server can be told from a slow one.
+  const child = spawn(process.execPath, ['--report-on-signal', '--report-signal=SIGUSR2', `--report-directory=${reportDir}`, '--import', 'tsx', 'tests/helpers/upload-server.ts'], {
     // the result is computed by a job: the child runs a worker too, so the kill point inside the computation is reached
     env: { ...process.env, ...env, CHRONOLEVEL_CHILD_ENV: JSON.stringify(env), CHRONOLEVEL_CHILD_WORKER: '1', CHRONOLEVEL_CHILD_LOG_LEVEL: 'info' }, stdio: ['ignore', 'pipe', 'pipe'],
   });
@@ -268,6 +309,8 @@ describe.each(['sigkill-server', 'stop-postgres'] as const)('kill harness (%s)',
       if (requestTable) {
         // on a timeout the message states the request rows and the queue's jobs for the campaign as last seen
         let lastSeen: unknown = null;
+        const waitEnd = Date.now() + 90_000;
+        let stateTaken = false;
         await until(async () => {
           const open = (await query<{ n: number }>(`SELECT count(*)::int AS n FROM ${requestTable} WHERE campaign_id = $1 AND state IN ('queued', 'running')`, [campaignId]))[0].n;
           if (open > 0) {
@@ -278,6 +321,11 @@ describe.each(['sigkill-server', 'stop-postgres'] as const)('kill harness (%s)',
               locks: await query(`SELECT l.locktype, l.classid, l.objid, l.mode, l.granted, a.application_name, left(a.query, 80) AS query FROM pg_locks l JOIN pg_stat_activity a ON a.pid = l.pid WHERE l.locktype = 'advisory'`),
               serverLog: server.log.slice(-30),
             };
+            // near the deadline, once: what the server process is doing
+            if (Date.now() > waitEnd - 8_000 && !stateTaken) {
+              stateTaken = true;
+              (lastSeen as Record<string, unknown>).server = await childState(server.child);
+            }
           }
           return open === 0;
         }, 90_000, () => `the ${requestTable} of the campaign done or failed (last seen: ${JSON.stringify(lastSeen)})`);
