@@ -33,6 +33,7 @@ import {
   type SiteRow,
 } from '../db/entities/registry.entities';
 import { Conflict, Forbidden, Invalid, NotFound } from '../http/errors';
+import { JsonText } from '../http/json-text';
 import { enqueueMail } from '../mail/outbox';
 import { labAddresses, mailDate } from '../mail/mail-text';
 import { computeCampaignResult, latestResultForReviewSql } from '../results/results.service';
@@ -466,36 +467,35 @@ const sortColumns = new Map<NonNullable<CampaignListQuery['sort']>, readonly [st
   ['institute', ['i.code', 'p.institute_code']],
 ]);
 
+// The list's items are written as JSON text by PostgreSQL (the shape of campaignSummarySchema, shared/campaigns.ts)
+// and passed on as they are: this process builds, parses and serialises no row. Text goes through to_json (JSON's
+// string escaping, the same as JSON.stringify); uuids, states, roles and timestamps are plain ASCII. Every operand
+// of || is non-null (a NULL would void the whole item): the campaign's own columns are NOT NULL, the joined ones
+// are coalesced as the TypeScript mapping did ('' for a missing name).
+const jsonText = (expr: string) => `to_json(coalesce(${expr}, ''))::text`;
+const jsonUuid = (expr: string) => `'"' || coalesce(${expr}::text, '') || '"'`;
+/** A timestamp the way Date.prototype.toISOString writes it (UTC, milliseconds truncated, 'Z'). */
+const jsonIso = (col: string) => `'"' || to_char(${col} AT TIME ZONE 'UTC', 'YYYY-MM-DD"T"HH24:MI:SS.MS"Z"') || '"'`;
+const sqlString = (text: string) => `'${text.replace(/'/g, "''")}'`;
+/** The species' label as JSON text, from shared/registry.ts (constants, never input). */
+const speciesLabelJson = (col: string) =>
+  `CASE ${col} ${Object.entries(speciesLabels).map(([code, label]) => `WHEN ${sqlString(code)} THEN ${sqlString(JSON.stringify(label))}`).join(' ')} ELSE '""' END`;
+
 /** A clock as the list shows it: the clock (alias k<x>), its home site (ks<x>) and its institute (ki<x>), joined to the page. */
-const clockRefColumns = (x: 'a' | 'b') =>
-  `k${x}.name AS clock_${x}_name, k${x}.species AS clock_${x}_species, k${x}.nominal_frequency_hz AS clock_${x}_frequency, k${x}.site_id AS clock_${x}_site_id,
-           ks${x}.name AS clock_${x}_site_name, k${x}.institute_id AS clock_${x}_institute_id, ki${x}.code AS clock_${x}_institute_code`;
+const clockRefJson = (x: 'a' | 'b') =>
+  `'{"id":"' || p.clock_${x}_id || '","name":' || ${jsonText(`k${x}.name`)} || ',"species":' || coalesce(to_json(k${x}.species)::text, 'null')
+     || ',"speciesLabel":' || ${speciesLabelJson(`k${x}.species`)} || ',"nominalFrequencyHz":' || ${jsonText(`k${x}.nominal_frequency_hz`)}
+     || ',"site":{"id":' || ${jsonUuid(`k${x}.site_id`)} || ',"name":' || ${jsonText(`ks${x}.name`)} || '}'
+     || ',"institute":{"id":' || ${jsonUuid(`k${x}.institute_id`)} || ',"code":' || ${jsonText(`ki${x}.code`)} || '}}'`;
 const clockRefJoins = (x: 'a' | 'b') =>
   `LEFT JOIN clock k${x} ON k${x}.id = p.clock_${x}_id LEFT JOIN site ks${x} ON ks${x}.id = k${x}.site_id LEFT JOIN institute ki${x} ON ki${x}.id = k${x}.institute_id`;
-
-type ClockRefColumns<X extends string> = {
-  [K in `clock_${X}_name` | `clock_${X}_site_id` | `clock_${X}_site_name` | `clock_${X}_institute_id` | `clock_${X}_institute_code` | `clock_${X}_frequency`]: string | null;
-} & { [K in `clock_${X}_species`]: SpeciesCode | null };
-type CampaignListRow = {
-  id: string; name: string; state: CampaignState; institute_id: string; institute_code: string | null; clock_a_id: string; clock_b_id: string;
-  link_id: string; link_name: string | null; period_start: Date; period_end: Date; role: CampaignRow['role']; site_a_id: string; site_a_name: string | null;
-  site_b_id: string; site_b_name: string | null; updated_at: Date;
-} & ClockRefColumns<'a'> & ClockRefColumns<'b'>;
-
-function listClockRef(r: CampaignListRow, x: 'a' | 'b') {
-  const name = x === 'a' ? r.clock_a_name : r.clock_b_name;
-  const species = x === 'a' ? r.clock_a_species : r.clock_b_species;
-  const found = name != null;
-  return {
-    id: x === 'a' ? r.clock_a_id : r.clock_b_id,
-    name: name ?? '',
-    species: species as SpeciesCode,
-    speciesLabel: found && species ? speciesLabels[species] : '',
-    nominalFrequencyHz: (x === 'a' ? r.clock_a_frequency : r.clock_b_frequency) ?? '',
-    site: { id: (x === 'a' ? r.clock_a_site_id : r.clock_b_site_id) ?? '', name: (x === 'a' ? r.clock_a_site_name : r.clock_b_site_name) ?? '' },
-    institute: { id: (x === 'a' ? r.clock_a_institute_id : r.clock_b_institute_id) ?? '', code: (x === 'a' ? r.clock_a_institute_code : r.clock_b_institute_code) ?? '' },
-  };
-}
+const listItemJson = `'{"id":"' || p.id || '","name":' || to_json(p.name)::text || ',"state":' || to_json(p.state)::text
+     || ',"institute":{"id":"' || p.institute_id || '","code":' || ${jsonText('p.institute_code')} || '}'
+     || ',"clockA":' || ${clockRefJson('a')} || ',"clockB":' || ${clockRefJson('b')}
+     || ',"link":{"id":"' || p.link_id || '","name":' || ${jsonText('l.name')} || '}'
+     || ',"periodStart":' || ${jsonIso('p.period_start')} || ',"periodEnd":' || ${jsonIso('p.period_end')} || ',"role":' || to_json(p.role)::text
+     || ',"siteA":{"id":"' || p.site_a_id || '","name":' || ${jsonText('sa.name')} || '},"siteB":{"id":"' || p.site_b_id || '","name":' || ${jsonText('sb.name')} || '}'
+     || ',"updatedAt":' || ${jsonIso('p.updated_at')} || '}'`;
 
 /**
  * One page of the campaigns the caller may see, and their number: one statement whatever the page size.
@@ -547,34 +547,17 @@ async function listCampaigns(dataSource: DataSource, actor: Actor, q: CampaignLi
              ORDER BY ${outer.replace(/^p\./, 'u.')} ${dir}, u.id LIMIT ${limit} OFFSET ${offset}`;
   // The count and the page travel as one statement (one round trip); the count's row stands alone when the page is
   // empty.
-  const sql = `
-    SELECT n.total, p.*, ${clockRefColumns('a')}, ${clockRefColumns('b')},
-           l.name AS link_name, sa.name AS site_a_name, sb.name AS site_b_name
+  // The comment names the statement in pg_stat_activity, whose copy of a statement's text is cut at 1 KiB (after
+  // SELECT: text that does not begin with SELECT or WITH is not taken for a plain read, server/db/replicas.ts).
+  const sql = `SELECT /* campaign list */ n.total, '[' || coalesce(string_agg(${listItemJson}, ',' ORDER BY ${outer} ${dir}, p.id), '') || ']' AS items
       FROM (${total}) n
       LEFT JOIN LATERAL (${pageSql}) p ON true
       ${clockRefJoins('a')}
       ${clockRefJoins('b')}
       LEFT JOIN fibre_link l ON l.id = p.link_id LEFT JOIN site sa ON sa.id = p.site_a_id LEFT JOIN site sb ON sb.id = p.site_b_id
-     ORDER BY ${outer} ${dir}, p.id`;
-  const found: (Partial<CampaignListRow> & { total: number })[] = await preparedQuery(dataSource, sql, params);
-  const counted = found[0]?.total ?? 0;
-  const rows = found.filter((r): r is CampaignListRow & { total: number } => r.id != null);
-  const items = rows.map((r) => ({
-    id: r.id,
-    name: r.name,
-    state: r.state,
-    institute: { id: r.institute_id, code: r.institute_code ?? '' },
-    clockA: listClockRef(r, 'a'),
-    clockB: listClockRef(r, 'b'),
-    link: { id: r.link_id, name: r.link_name ?? '' },
-    periodStart: r.period_start.toISOString(),
-    periodEnd: r.period_end.toISOString(),
-    role: r.role,
-    siteA: { id: r.site_a_id, name: r.site_a_name ?? '' },
-    siteB: { id: r.site_b_id, name: r.site_b_name ?? '' },
-    updatedAt: r.updated_at.toISOString(),
-  }));
-  return { items, total: counted, page: q.page, pageSize: q.pageSize };
+     GROUP BY n.total`;
+  const [found]: { total: number; items: string }[] = await preparedQuery(dataSource, sql, params);
+  return new JsonText(`{"items":${found.items},"total":${found.total},"page":${q.page},"pageSize":${q.pageSize}}`);
 }
 
 export function createCampaignsService(deps: { dataSource: DataSource; config: Pick<AppConfig, 'coordinatorMail' | 'publicUrl' | 'databaseUrl' | 'reviewMinUptimeFraction' | 'reviewFourEyes'> }) {

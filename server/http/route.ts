@@ -5,6 +5,7 @@ import { authorize, type Permission } from '../auth/permissions';
 import type { AppDeps } from '../deps';
 import { onDatabase, type DbAccess } from '../db/replicas';
 import { Invalid, Unauthenticated } from './errors';
+import { JsonText } from './json-text';
 
 type Method = 'get' | 'post' | 'put' | 'patch' | 'delete';
 
@@ -86,6 +87,10 @@ export function mountRoutes(router: Router, routes: RouteSpec[], deps: AppDeps):
         if (spec.raw) return;
         if (result === undefined) {
           res.status(spec.successStatus ?? 204).end();
+          return;
+        }
+        if (result instanceof JsonText) {
+          res.status(spec.successStatus ?? 200).type('application/json').send(result.text);
           return;
         }
         res.status(spec.successStatus ?? 200).json(result);

@@ -5,6 +5,7 @@
 // haproxy checks the liveness path /api/live (LOAD_CHECK=/api/health repeats the earlier set-up, whose checks took
 // saturated processes out); its statistics tell per cell which 503 answers came from haproxy itself.
 import { spawn, type ChildProcess } from 'node:child_process';
+import type { EventEmitter } from 'node:events';
 import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
@@ -49,18 +50,25 @@ async function startHttp(env: Record<string, string>): Promise<ChildProcess> {
   return child;
 }
 
-type Cell = { what: string; connections: number; rps: number; p50: number; p95: number; p99: number; errors: number; non2xx: number; fromBalancer: number; checksDown: number; load: string };
+type Cell = { what: string; connections: number; rps: number; p50: number; p95: number; p975: number; p99: number; errors: number; non2xx: number; fromBalancer: number; checksDown: number; load: string };
 type Lb = Awaited<ReturnType<typeof startHaproxy>>;
 
 async function run(lb: Lb, url: string, token: string, connections: number, what: string): Promise<Cell> {
   const before = await lb.stats();
-  const r = await autocannon({ url, connections, duration: SECONDS, headers: { authorization: `Bearer ${token}` }, timeout: 10 });
+  // without a callback autocannon returns its tracker (an event emitter) made thenable
+  const instance = autocannon({ url, connections, duration: SECONDS, headers: { authorization: `Bearer ${token}` }, timeout: 10 }) as unknown as EventEmitter & Promise<autocannon.Result>;
+  // autocannon's summary has no 95th percentile (it reports 90 and 97.5): it is taken from every response's time
+  const times: number[] = [];
+  instance.on('response', (_client: unknown, _status: number, _bytes: number, ms: number) => times.push(ms));
+  const r = await instance;
+  times.sort((a, b) => a - b);
+  const p95 = times.length ? times[Math.ceil(0.95 * times.length) - 1] : NaN;
   const after = await lb.stats();
   const down = (x: typeof after) => x.servers.reduce((a, sv) => a + sv.checksDown, 0);
   return {
     what, connections,
     rps: r.requests.average,
-    p50: r.latency.p50, p95: r.latency.p97_5 /* autocannon reports 97.5 */, p99: r.latency.p99,
+    p50: r.latency.p50, p95: Math.round(p95), p975: r.latency.p97_5, p99: r.latency.p99,
     errors: r.errors + r.timeouts, non2xx: r.non2xx,
     fromBalancer: after.noServerAvailable - before.noServerAvailable, checksDown: down(after) - down(before), load: os.loadavg()[0].toFixed(2),
   };
@@ -111,14 +119,14 @@ async function main() {
       cells.push(await run(lb, detail, opToken, connections, 'campaign detail (operator)'));
     }
     console.log(`\nthrough haproxy (health check ${CHECK}) with 2 HTTP processes, ${SECONDS} s per cell, ${os.cpus().length} cores (target: 0 errors, p95 < 200 ms at 200 connections)`);
-    console.log('| what | connections | req/s | p50 ms | p97.5 ms | p99 ms | errors | non-2xx | of which 503 from haproxy | servers marked down | load avg |');
-    console.log('| --- | --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |');
-    for (const c of cells) console.log(`| ${c.what} | ${c.connections} | ${c.rps.toFixed(0)} | ${c.p50} | ${c.p95} | ${c.p99} | ${c.errors} | ${c.non2xx} | ${c.fromBalancer} | ${c.checksDown} | ${c.load} |`);
+    console.log('| what | connections | req/s | p50 ms | p95 ms | p97.5 ms | p99 ms | errors | non-2xx | of which 503 from haproxy | servers marked down | load avg |');
+    console.log('| --- | --- | --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |');
+    for (const c of cells) console.log(`| ${c.what} | ${c.connections} | ${c.rps.toFixed(0)} | ${c.p50} | ${c.p95} | ${c.p975} | ${c.p99} | ${c.errors} | ${c.non2xx} | ${c.fromBalancer} | ${c.checksDown} | ${c.load} |`);
     for (const c of cells) {
       const at200 = c.connections === 200;
       reportFigure({
-        figure: `load: ${c.what}, ${c.connections} conn., ${SECONDS} s, check ${CHECK} (req/s; p97.5; errors + non-2xx)`,
-        measured: `${c.rps.toFixed(0)} req/s; p97.5 ${c.p95} ms; ${c.errors} + ${c.non2xx} (${c.fromBalancer} from haproxy)`,
+        figure: `load: ${c.what}, ${c.connections} conn., ${SECONDS} s, check ${CHECK} (req/s; p95; errors + non-2xx)`,
+        measured: `${c.rps.toFixed(0)} req/s; p95 ${c.p95} ms (p97.5 ${c.p975}); ${c.errors} + ${c.non2xx} (${c.fromBalancer} from haproxy)`,
         target: at200 ? 'p95 < 200 ms, 0 errors' : '0 errors',
         met: at200 ? c.p95 < 200 && c.errors + c.non2xx === 0 : c.errors + c.non2xx === 0,
         load: Number(c.load),
