@@ -15,6 +15,16 @@ import { COPY_BINARY_HEADER, finishCopy } from './ingest';
 export const PART_BYTES = 1 << 20;
 export const COPY_FILE_SQL = 'COPY ratio_series_file (series_id, part, bytes) FROM STDIN (FORMAT binary)';
 
+/** Writes the head of one binary COPY row of ratio_series_file (3 fields: series_id, part, n bytes) into `row`. */
+export function writePartHead(row: Buffer, uuid: Buffer, part: number, n: number): void {
+  row.writeInt16BE(3, 0);
+  row.writeInt32BE(16, 2);
+  uuid.copy(row, 6);
+  row.writeInt32BE(4, 22);
+  row.writeInt32BE(part, 26);
+  row.writeInt32BE(n, 30);
+}
+
 export type Spool = { write(chunk: Buffer): void; size(): number; copyInto(client: pg.ClientBase, seriesId: string): Promise<number>; close(): void };
 
 export function openSpool(): Spool {
@@ -50,12 +60,7 @@ export function openSpool(): Spool {
       for (let pos = 0; pos < size; part++) {
         const n = Math.min(PART_BYTES, size - pos);
         const row = Buffer.allocUnsafe(2 + 4 + 16 + 4 + 4 + 4 + n);
-        row.writeInt16BE(3, 0);
-        row.writeInt32BE(16, 2);
-        uuid.copy(row, 6);
-        row.writeInt32BE(4, 22);
-        row.writeInt32BE(part, 26);
-        row.writeInt32BE(n, 30);
+        writePartHead(row, uuid, part, n);
         let read = 0;
         while (read < n) read += fs.readSync(fd, row, 34 + read, n - read, pos + read);
         pos += n;

@@ -5,7 +5,7 @@ import type { DataSource } from 'typeorm';
 import { faultPoint } from '../dev/fault-point';
 import { poolOf } from '../db/pool-stats';
 import { COPY_BINARY_HEADER, finishCopy } from './ingest';
-import { COPY_FILE_SQL, PART_BYTES } from './raw-file-spool';
+import { COPY_FILE_SQL, PART_BYTES, writePartHead } from './raw-file-spool';
 
 // The raw file of an upload, written on a second connection while the samples' COPY occupies the upload's own: the
 // bytes go into ratio_series_file (COPY, parts of ≤ 1 MiB) as they arrive, in a transaction of that second
@@ -104,12 +104,7 @@ export async function openRawFileSession(
   let released = false;
 
   const sendPart = () => {
-    row.writeInt16BE(3, 0);
-    row.writeInt32BE(16, 2);
-    uuid.copy(row, 6);
-    row.writeInt32BE(4, 22);
-    row.writeInt32BE(part, 26);
-    row.writeInt32BE(fill, 30);
+    writePartHead(row, uuid, part, fill);
     if (!copy!.write(fill === PART_BYTES ? row : row.subarray(0, 34 + fill))) full = true;
     if (part === 1) faultDue = true;
     part++;
