@@ -11,8 +11,9 @@ import { createMailSender } from '../../server/mail/outbox';
 const env = JSON.parse(process.env.CHRONOLEVEL_CHILD_ENV ?? '{}') as Record<string, string>;
 const config = loadConfig(env);
 const ds = await openDatabase(config.databaseUrl, { migrate: false, pool: { max: config.db.poolMax, idleInTransactionTimeoutMs: config.db.idleInTransactionTimeoutMs } });
-// Silent unless asked (CHRONOLEVEL_CHILD_LOG_LEVEL): the kill harness keeps the log lines on stderr to explain a timeout.
-const logger = pino({ level: process.env.CHRONOLEVEL_CHILD_LOG_LEVEL ?? 'silent' }, pino.destination(2));
+// Silent unless asked (CHRONOLEVEL_CHILD_LOG_LEVEL): the kill harness keeps the log lines on stderr to explain a
+// timeout; written synchronously, so a line logged just before the event loop stops is not lost.
+const logger = pino({ level: process.env.CHRONOLEVEL_CHILD_LOG_LEVEL ?? 'silent' }, pino.destination({ dest: 2, sync: true }));
 const mail = createMailSender({ dataSource: ds, smtpUrl: config.smtpUrl, from: config.mailFrom, logger });
 const app = createApp({ config, dataSource: ds, logger, mail });
 // A job worker in the same process when asked (CHRONOLEVEL_CHILD_WORKER=1): a kill then takes both down together.
