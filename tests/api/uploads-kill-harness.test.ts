@@ -117,7 +117,7 @@ const reportDir = fs.mkdtempSync(path.join(os.tmpdir(), 'chronolevel-kill-report
  */
 async function childState(child: ChildProcess): Promise<{ cpuPercentOverOneSecond: number | null; stack: string[] }> {
   const pid = child.pid;
-  if (!pid || child.exitCode !== null) return { cpuPercentOverOneSecond: null, stack: ['(exited)'] };
+  if (!pid || child.exitCode !== null || child.signalCode !== null) return { cpuPercentOverOneSecond: null, stack: [`(exited: code ${child.exitCode}, signal ${child.signalCode})`] };
   const cpu = () => {
     try {
       const f = fs.readFileSync(`/proc/${pid}/stat`, 'utf8').split(') ')[1].split(' ');
