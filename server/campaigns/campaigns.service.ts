@@ -506,6 +506,9 @@ const listItemJson = `'{"id":"' || p.id || '","name":' || to_json(p.name)::text 
  * connection (a prepared statement, server/db/prepared.ts); correlated sub-selects per row cost 0.3 ms more to run.
  * The answer is the one toSummary() gives for the fully joined campaign (tests/api/campaign-list-parity.test.ts).
  */
+/** Page sizes whose first page is a statement of its own (the pages' choices, and the API's default of 25). */
+const PREPARED_PAGE_SIZES = new Set([10, 20, 25, 50, 100]);
+
 async function listCampaigns(dataSource: DataSource, actor: Actor, q: CampaignListQuery) {
   const params: unknown[] = [];
   const param = (v: unknown) => `$${params.push(v)}`;
@@ -521,8 +524,10 @@ async function listCampaigns(dataSource: DataSource, actor: Actor, q: CampaignLi
   const filter = [branches.length === 1 ? branches[0] : `(${branches.join(' OR ')})`, ...extra].join(' AND ');
   // The first page (what the campaigns page opens with) has its size in the statement's text: with LIMIT and OFFSET
   // as parameters PostgreSQL's generic plan assumes a tenth of the rows skipped and is never chosen, so every request
-  // would be planned again. Later pages keep both as parameters and are planned per request.
-  const first = q.page === 1;
+  // would be planned again. Later pages, and first pages of other sizes, keep both as parameters and are planned per
+  // request. Only the usual sizes go into the text, so a caller cannot make a prepared statement per number
+  // (PostgreSQL keeps each until the connection ends; tests/api/prepared-statements.test.ts).
+  const first = q.page === 1 && PREPARED_PAGE_SIZES.has(q.pageSize);
   const limit = first ? String(q.pageSize) : param(q.pageSize);
   const offset = first ? '0' : param((q.page - 1) * q.pageSize);
   // Without a text filter the visibility rule and the state filter read only the campaign's state, institute and
